@@ -1,0 +1,88 @@
+// Command kermalux leads an engineer hands-free through the acceptance and
+// yearly check of an X-ray image intensifier, and keeps the records.
+//
+// Each subcommand lives in its own file (cmd_<name>.go) and registers
+// itself with register in an init function; this file only maps errors to
+// exit codes. Subcommands hold no logic of their own: they wire packages.
+package main
+
+import (
+	"errors"
+	"fmt"
+	"log/slog"
+	"os"
+	"strings"
+
+	"github.com/spf13/cobra"
+)
+
+// version is set at build time with -ldflags "-X main.version=...".
+var version = "0.1.0-dev"
+
+var root = &cobra.Command{
+	Use:   "kermalux",
+	Short: "Guided, hands-free acceptance and yearly checks of X-ray image intensifiers",
+	Long: `kermalux leads the engineer through the acceptance or yearly check of an
+X-ray image intensifier: it speaks each step, waits for the foot switch, detects
+the beam from the dosimeter, takes the readings as soon as they are precise
+enough, applies the meters' calibration, computes the conversion factor,
+luminance uniformity and contrast ratio with their uncertainties, judges them,
+and journals every reading.
+
+CAUTION: X-rays are dangerous. kermalux does not replace the judgement of a
+qualified medical physicist or radiation safety officer, nor local regulations.`,
+	SilenceUsage:  true,
+	SilenceErrors: true,
+	Version:       version,
+}
+
+// register adds a subcommand; each cmd_<name>.go calls it from init.
+func register(cmds ...*cobra.Command) { root.AddCommand(cmds...) }
+
+// exitError carries an exit code chosen by a subcommand.
+type exitError struct {
+	code int
+	err  error
+}
+
+func (e *exitError) Error() string { return e.err.Error() }
+func (e *exitError) Unwrap() error { return e.err }
+
+// withCode marks err so that main exits with code.
+func withCode(code int, err error) error { return &exitError{code: code, err: err} }
+
+// Exit codes, in one place.
+const (
+	exitOK      = 0
+	exitFailure = 1 // the job failed or the input is invalid
+	exitUsage   = 2 // the command line is wrong
+)
+
+func main() {
+	slog.SetDefault(slog.New(slog.NewTextHandler(os.Stderr, &slog.HandlerOptions{Level: slog.LevelWarn})))
+	root.SetFlagErrorFunc(func(c *cobra.Command, err error) error { return withCode(exitUsage, err) })
+	err := root.Execute()
+	if err == nil {
+		os.Exit(exitOK)
+	}
+	fmt.Fprintln(os.Stderr, "kermalux:", err)
+	var ee *exitError
+	if errors.As(err, &ee) {
+		os.Exit(ee.code)
+	}
+	if isUsage(err) {
+		os.Exit(exitUsage)
+	}
+	os.Exit(exitFailure)
+}
+
+// isUsage recognises cobra's own argument errors.
+func isUsage(err error) bool {
+	msg := err.Error()
+	for _, p := range []string{"unknown command", "unknown flag", "accepts ", "requires at least", "requires at most", "required flag"} {
+		if strings.Contains(msg, p) {
+			return true
+		}
+	}
+	return false
+}

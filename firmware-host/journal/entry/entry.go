@@ -1,0 +1,189 @@
+// Package entry defines what a session journal records: the payloads of
+// journal records, shared by the engine that writes them, the journal that
+// chains and signs them, the workstation store that keeps them and the
+// report that shows them. It has no dependencies so every layer can use it.
+//
+// JSON field names here are a stable contract: journals written today must
+// be readable by next year's workstation. Add fields; never rename them.
+package entry
+
+import "time"
+
+// Kind names a record's payload type.
+type Kind string
+
+const (
+	KindSession    Kind = "session"     // Session: first record of a session
+	KindStep       Kind = "step"        // Step: a step started, finished, retaken, skipped
+	KindPrompt     Kind = "prompt"      // Prompt: something said or asked
+	KindAck        Kind = "ack"         // Ack: the operator's answer
+	KindValue      Kind = "value"       // Value: a value entered (temperature, kV...)
+	KindReading    Kind = "reading"     // Reading: one raw + corrected meter reading
+	KindEvent      Kind = "event"       // Event: beam on/off, meter lost/back, alarm, discard
+	KindResult     Kind = "result"      // Result: a figure of merit with budget and verdict
+	KindSessionEnd Kind = "session_end" // SessionEnd: last record of a finished session
+)
+
+// Session opens a session.
+type Session struct {
+	ID                string    `json:"id"`
+	Site              string    `json:"site"`
+	Room              string    `json:"room"`
+	IntensifierModel  string    `json:"intensifier_model"`
+	IntensifierSerial string    `json:"intensifier_serial"`
+	Engineer          string    `json:"engineer"`
+	Procedure         string    `json:"procedure"`      // procedure name
+	ProcedureHash     string    `json:"procedure_hash"` // SHA-256 of the script text
+	BenchHash         string    `json:"bench_hash"`     // SHA-256 of the bench file
+	SoftwareVersion   string    `json:"software_version"`
+	BoardKey          string    `json:"board_key"` // hex ed25519 public key of the board
+	Started           time.Time `json:"started"`
+	Certificates      []CertRef `json:"certificates,omitempty"`
+}
+
+// CertRef identifies a calibration certificate used in a session.
+type CertRef struct {
+	ID         string    `json:"id"` // certificate number
+	Meter      string    `json:"meter"`
+	Model      string    `json:"model"`
+	Serial     string    `json:"serial"`
+	Laboratory string    `json:"laboratory"`
+	Calibrated time.Time `json:"calibrated"`
+	Due        time.Time `json:"due"`
+	Valid      bool      `json:"valid"`  // in date on the session day
+	SHA256     string    `json:"sha256"` // of the certificate file
+}
+
+// StepState is what happened to a step.
+type StepState string
+
+const (
+	StepStarted StepState = "started"
+	StepDone    StepState = "done"
+	StepRetake  StepState = "retake"
+	StepSkipped StepState = "skipped"
+	StepAborted StepState = "aborted"
+	StepResumed StepState = "resumed"
+)
+
+// Step marks a step transition; a restart rebuilds the engine's position
+// from these.
+type Step struct {
+	Index     int       `json:"index"` // 1-based position in the flattened procedure
+	Of        int       `json:"of"`
+	ID        string    `json:"id"`
+	Kind      string    `json:"kind"`
+	FieldMode string    `json:"field_mode,omitempty"`
+	State     StepState `json:"state"`
+	Reason    string    `json:"reason,omitempty"`
+}
+
+// Prompt records something said or asked.
+type Prompt struct {
+	Step   int    `json:"step"`
+	Level  string `json:"level"`
+	Action string `json:"action,omitempty"`
+	Text   string `json:"text"`
+	Asked  bool   `json:"asked"` // waited for an answer
+}
+
+// Ack records the operator's answer to a prompt.
+type Ack struct {
+	Step      int       `json:"step"`
+	PromptSeq int64     `json:"prompt_seq"` // journal sequence number of the prompt
+	Answer    string    `json:"answer"`
+	Text      string    `json:"text"` // the prompt's words, so a report can list acknowledgements alone
+	At        time.Time `json:"at"`
+}
+
+// Value records a value entered or confirmed.
+type Value struct {
+	Step   int     `json:"step"`
+	Name   string  `json:"name"`
+	Value  float64 `json:"value"`
+	Unit   string  `json:"unit"`
+	Source string  `json:"source"` // "operator", "bench default", "sensor"
+}
+
+// Correction is one correction applied to a reading, in the order applied.
+type Correction struct {
+	Name   string  `json:"name"`   // "calibration_coefficient", "k_tp", "dark", "inverse_square", "backscatter", "unit"
+	Factor float64 `json:"factor"` // multiplicative factor applied (1 if none)
+	Offset float64 `json:"offset"` // additive term applied after the factor (0 if none)
+	Note   string  `json:"note,omitempty"`
+}
+
+// Reading is one meter reading with everything done to it.
+type Reading struct {
+	Step        int           `json:"step"`
+	StepID      string        `json:"step_id"`
+	FieldMode   string        `json:"field_mode,omitempty"`
+	Position    string        `json:"position,omitempty"` // uniformity position label
+	Meter       string        `json:"meter"`
+	Quantity    string        `json:"quantity"`
+	Raw         string        `json:"raw"` // the line as received
+	RawValue    float64       `json:"raw_value"`
+	RawUnit     string        `json:"raw_unit"`
+	Value       float64       `json:"value"` // corrected, canonical unit
+	Unit        string        `json:"unit"`
+	Status      string        `json:"status"`
+	Corrections []Correction  `json:"corrections,omitempty"`
+	Certificate string        `json:"certificate,omitempty"`
+	Calibrated  bool          `json:"calibrated"`
+	Flags       []string      `json:"flags,omitempty"` // why not calibrated, etc.
+	Mono        time.Duration `json:"mono_ns"`
+	Wall        time.Time     `json:"wall"`
+	BootID      string        `json:"boot_id"`
+	Used        bool          `json:"used"` // entered the result (false: settling, discarded)
+}
+
+// Event records something that happened.
+type Event struct {
+	Step   int     `json:"step"`
+	Name   string  `json:"name"` // "beam_on", "beam_off", "meter_lost", "meter_back", "beam_alarm", "beam_warning", "kerma_out_of_range", "samples_discarded", "paused", "aborted"
+	Detail string  `json:"detail,omitempty"`
+	BeamOn float64 `json:"beam_on_s"` // cumulative beam-on seconds at the event
+}
+
+// BudgetRow is one line of an uncertainty budget (JCGM 100:2008).
+type BudgetRow struct {
+	Source       string  `json:"source"`
+	Type         string  `json:"type"`  // "A" or "B"
+	Value        float64 `json:"value"` // estimate of the input quantity
+	Unit         string  `json:"unit"`
+	StdUnc       float64 `json:"std_unc"`       // standard uncertainty of the input, in its unit
+	RelStdUnc    float64 `json:"rel_std_unc"`   // relative standard uncertainty
+	Sensitivity  float64 `json:"sensitivity"`   // sensitivity coefficient (relative, for products)
+	Contribution float64 `json:"contribution"`  // relative contribution to the result's standard uncertainty
+	DoF          float64 `json:"dof,omitempty"` // degrees of freedom (0 = infinite)
+}
+
+// Result is a figure of merit as judged.
+type Result struct {
+	Step         int         `json:"step"`
+	Procedure    string      `json:"procedure"`
+	FieldMode    string      `json:"field_mode,omitempty"`
+	Quantity     string      `json:"quantity"` // conversion_factor, non_uniformity, contrast_ratio, input_kerma_rate, ...
+	Value        float64     `json:"value"`
+	Unit         string      `json:"unit"`
+	StdUnc       float64     `json:"standard_uncertainty"`
+	ExpUnc       float64     `json:"expanded_uncertainty"`
+	K            float64     `json:"coverage_factor"`
+	Verdict      string      `json:"verdict"`    // pass, fail, info
+	DecidedBy    string      `json:"decided_by"` // which limit decided the verdict
+	Calibrated   bool        `json:"calibrated"`
+	Flags        []string    `json:"flags,omitempty"`
+	Baseline     float64     `json:"baseline,omitempty"`
+	BaselineFrac float64     `json:"baseline_fraction,omitempty"`
+	Budget       []BudgetRow `json:"budget,omitempty"`
+	Detail       any         `json:"detail,omitempty"` // e.g. the radial profile or the uniformity map
+}
+
+// SessionEnd closes a session.
+type SessionEnd struct {
+	Finished time.Time `json:"finished"`
+	BeamOn   float64   `json:"beam_on_s"`
+	Steps    int       `json:"steps"`
+	Outcome  string    `json:"outcome"` // "complete", "aborted"
+	Review   int       `json:"review"`  // results that need review
+}
