@@ -7,7 +7,10 @@
 // be readable by next year's workstation. Add fields; never rename them.
 package entry
 
-import "time"
+import (
+	"encoding/json"
+	"time"
+)
 
 // Kind names a record's payload type.
 type Kind string
@@ -186,4 +189,17 @@ type SessionEnd struct {
 	Steps    int       `json:"steps"`
 	Outcome  string    `json:"outcome"` // "complete", "aborted"
 	Review   int       `json:"review"`  // results that need review
+}
+
+// Envelope is a decoded journal record as the workstation and the report
+// see it: the payload still encoded, to be decoded by Kind. The journal's
+// own record adds the chain hash, the previous hash and the signature.
+type Envelope struct {
+	Seq     int64           `json:"seq"`
+	Session string          `json:"session"`
+	Kind    Kind            `json:"kind"`
+	Wall    time.Time       `json:"wall"`
+	Mono    time.Duration   `json:"mono_ns"`
+	BootID  string          `json:"boot_id"`
+	Payload json.RawMessage `json:"payload"`
 }
