@@ -1,0 +1,69 @@
+package script
+
+import (
+	"errors"
+	"fmt"
+
+	"kermalux/drivers/units"
+)
+
+// Problem is one thing wrong with a script.
+type Problem struct {
+	Pos    Pos
+	Reason string
+}
+
+func (p Problem) String() string { return fmt.Sprintf("%s: %s", p.Pos, p.Reason) }
+
+// Problems is every problem found in a script; it is an error.
+type Problems []Problem
+
+func (ps Problems) Error() string {
+	if len(ps) == 0 {
+		return "no problems"
+	}
+	s := ps[0].String()
+	if len(ps) > 1 {
+		s += fmt.Sprintf(" (and %d more)", len(ps)-1)
+	}
+	return s
+}
+
+// Resolver finds an included procedure by the name written in an include
+// step, relative to the file of the procedure that includes it.
+type Resolver interface {
+	Resolve(name, from string) (*Procedure, error)
+}
+
+// Env is what the checker knows about the bench a procedure will run on.
+// The zero Env checks the script alone.
+type Env struct {
+	// Quantities the configured meters report, by meter name; nil: not
+	// known, the check is skipped.
+	Quantities map[string][]units.Quantity
+	// FieldModes the intensifier has (from the bench file), for
+	// per_field_mode blocks that take their modes from the bench.
+	FieldModes []string
+	// Resolver finds included procedures; nil: the built-ins and files
+	// next to the including one.
+	Resolver Resolver
+}
+
+var errNotYet = errors.New("script: not implemented yet")
+
+// Parse reads a script's text; name is used in positions (usually the file
+// name). Syntax errors and problems of form (unknown kind or field, bad
+// unit) are returned as Problems.
+func Parse(name string, data []byte) (*Procedure, error) { return nil, errNotYet }
+
+// Load reads and parses the script file at path.
+func Load(path string) (*Procedure, error) { return nil, errNotYet }
+
+// Check returns every problem of p in the context env: references,
+// safety rules, beam-on budget, meters. It returns nil for a valid
+// procedure.
+func Check(p *Procedure, env Env) Problems { return Problems{{Pos: p.Pos, Reason: errNotYet.Error()}} }
+
+// Flatten expands includes and per-field-mode repetitions into the linear
+// list of steps the engine walks.
+func Flatten(p *Procedure, env Env) (*Flat, error) { return nil, errNotYet }

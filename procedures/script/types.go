@@ -1,0 +1,384 @@
+// Package script reads, checks and flattens kermalux procedure scripts.
+//
+// A procedure script is a YAML file (see FORMAT.md) that says what the
+// engineer is told, which values are entered, what is measured under which
+// bench set-up, what is computed from the measurements and how each result
+// is judged. [Parse] and [Load] turn the text into a [Procedure] whose every
+// part remembers where it was written (file, line, column); [Check] returns
+// every problem found, each with its position; [Flatten] expands includes
+// and per-field-mode repetitions into the linear list of steps the run
+// engine walks, so that "step 14 of 31" is well defined and a resumed
+// session can find its step again by id.
+package script
+
+import (
+	"fmt"
+	"time"
+
+	"kermalux/drivers/units"
+)
+
+// Pos is where something was written in a script.
+type Pos struct {
+	File string
+	Line int // 1-based
+	Col  int // 1-based
+}
+
+// String formats the position as file:line:col.
+func (p Pos) String() string {
+	if p.Line == 0 {
+		return p.File
+	}
+	return fmt.Sprintf("%s:%d:%d", p.File, p.Line, p.Col)
+}
+
+// Kind is a step's kind.
+type Kind string
+
+// The step kinds.
+const (
+	// KindSay shows and speaks Text and goes on without waiting.
+	KindSay Kind = "say"
+	// KindPrepare shows and speaks Text and the Setup wanted, then waits
+	// for a press.
+	KindPrepare Kind = "prepare"
+	// KindChecklist reads Items one at a time; each needs a press.
+	KindChecklist Kind = "checklist"
+	// KindSafetyChecklist is the pre-exposure safety checklist: like
+	// KindChecklist, and no beam step may come before one is acknowledged.
+	KindSafetyChecklist Kind = "safety_checklist"
+	// KindEnter asks for a value (see EnterSpec).
+	KindEnter Kind = "enter"
+	// KindMeasure takes readings (see MeasureSpec).
+	KindMeasure Kind = "measure"
+	// KindCompute computes a figure of merit from earlier measurements.
+	KindCompute Kind = "compute"
+	// KindJudge judges a computed result against limits.
+	KindJudge Kind = "judge"
+	// KindPerFieldMode repeats its nested steps once for each field mode.
+	KindPerFieldMode Kind = "per_field_mode"
+	// KindInclude runs another procedure's steps in its place.
+	KindInclude Kind = "include"
+)
+
+// Kinds lists every step kind, in the order FORMAT.md describes them.
+var Kinds = []Kind{KindSay, KindPrepare, KindChecklist, KindSafetyChecklist, KindEnter,
+	KindMeasure, KindCompute, KindJudge, KindPerFieldMode, KindInclude}
+
+// Procedure is a parsed script.
+type Procedure struct {
+	Name    string // short machine name, used by include and in journals
+	Title   string // what the engineer hears and reads
+	Version string
+	// BeamBudget is the declared maximum cumulative beam-on time of the
+	// whole procedure, includes and repetitions counted.
+	BeamBudget time.Duration
+	Meters     []string // meters the procedure needs ("dosimeter", "photometer")
+	Defaults   Defaults
+	Steps      []Step
+	File       string // the file it was read from (or the name given to Parse)
+	SHA256     string // hex SHA-256 of the script text (journalled with a session)
+	Pos        Pos    // position of the document
+	Fields     map[string]Pos
+}
+
+// Defaults apply to measure steps that do not say otherwise.
+type Defaults struct {
+	Precision float64       // relative expanded uncertainty target (0.02 = 2 %); 0: none given
+	MaxBeam   time.Duration // per reading position; 0: none given
+	Expect    []Expect
+}
+
+// Step is one step as written. Exactly one of the kind-specific parts is
+// set, according to Kind (say, prepare and the checklists need none beyond
+// Text, Setup and Items).
+type Step struct {
+	ID    string
+	Kind  Kind
+	Text  string // spoken and shown; may contain {mode} within per_field_mode
+	Setup Setup  // bench state wanted (prepare, measure)
+	Items []Item // checklist lines
+
+	Enter   *EnterSpec
+	Measure *MeasureSpec
+	Compute *ComputeSpec
+	Judge   *JudgeSpec
+	Repeat  *RepeatSpec
+	Include *IncludeSpec
+
+	Pos    Pos            // position of the step's first key
+	Fields map[string]Pos // position of each key written in the step
+}
+
+// Item is one checklist line.
+type Item struct {
+	Text string
+	Pos  Pos
+}
+
+// Setting is one bench setting in a setup block: a key from SetupKeys and
+// its value normalised to text ("70 kV", "21 mm Al", "0.9 r", "90 deg",
+// "removed", "on").
+type Setting struct {
+	Key   string
+	Value string
+	Pos   Pos
+}
+
+// Setup is a bench set-up, in the order written.
+type Setup []Setting
+
+// Map returns the setup as the string key/values a panel.Prompt carries.
+// It returns nil for an empty setup.
+func (s Setup) Map() map[string]string {
+	if len(s) == 0 {
+		return nil
+	}
+	m := make(map[string]string, len(s))
+	for _, kv := range s {
+		m[kv.Key] = kv.Value
+	}
+	return m
+}
+
+// Get returns the value of key and whether it is set.
+func (s Setup) Get(key string) (string, bool) {
+	for _, kv := range s {
+		if kv.Key == key {
+			return kv.Value, true
+		}
+	}
+	return "", false
+}
+
+// Setup keys. Values: field_mode any text; tube_voltage in kV; tube_current
+// in mA; added_filter "<length> <material>" ("21 mm Al"); grid "in" or
+// "removed"; lead_disk, phantom "in" or "out"; photometer_radius a fraction
+// of the output radius ("0.9 r"); photometer_angle in degrees, counted
+// anticlockwise from "right" as seen facing the output window ("90 deg" is
+// up); brightness_control "on" or "off"; chamber "input plane" or a distance
+// from the focal spot ("100 cm").
+const (
+	SetFieldMode         = "field_mode"
+	SetTubeVoltage       = "tube_voltage"
+	SetTubeCurrent       = "tube_current"
+	SetAddedFilter       = "added_filter"
+	SetGrid              = "grid"
+	SetLeadDisk          = "lead_disk"
+	SetPhotometerRadius  = "photometer_radius"
+	SetPhotometerAngle   = "photometer_angle"
+	SetPhantom           = "phantom"
+	SetBrightnessControl = "brightness_control"
+	SetChamber           = "chamber"
+	SetBeamQuality       = "beam_quality"
+)
+
+// Source is where an entered value's default comes from.
+type Source string
+
+// Value sources.
+const (
+	FromOperator Source = "operator" // the engineer reads it off and confirms it
+	FromBench    Source = "bench"    // the bench file's value, confirmed by a press
+	FromSensor   Source = "sensor"   // the board's own sensor, confirmed by a press
+)
+
+// EnterSpec asks for a value.
+type EnterSpec struct {
+	Name     string         // value name, referred to as entered.<Name>
+	Quantity units.Quantity // from Unit
+	Unit     string         // the unit it is asked in
+	Min, Max float64        // plausible range, in Unit
+	Default  float64        // in Unit, valid when HasDefault
+	HasDef   bool
+	Source   Source
+}
+
+// Read is one meter read in a measure step and the quantity it gives.
+type Read struct {
+	Meter    string
+	Quantity units.Quantity
+	Pos      Pos
+}
+
+// Position is one photometer position of a multi-position measurement.
+type Position struct {
+	Label  string  // spoken: "up, nine tenths of the radius" is said from Label
+	Radius float64 // fraction of the output radius (0 = centre)
+	Angle  float64 // degrees anticlockwise from right, facing the output
+	Pos    Pos
+}
+
+// Expect is an expected range of a quantity; a reading far outside stops
+// the step (safety stop) rather than being used.
+type Expect struct {
+	Quantity units.Quantity
+	Min, Max float64 // canonical unit of Quantity
+	Pos      Pos
+}
+
+// MeasureSpec describes the readings of a measure step.
+type MeasureSpec struct {
+	Reads []Read
+	// Beam is true for a reading with the beam on (an exposure); false
+	// for a dark (beam-off) reading.
+	Beam        bool
+	BeamQuality string // IEC 61267 name, "RQA5"; empty if none required
+	FieldMode   string // may be "{mode}" within per_field_mode
+	Positions   []Position
+	Precision   float64       // relative expanded uncertainty target; 0: take Defaults
+	MaxBeam     time.Duration // per position; 0: take Defaults
+	Duration    time.Duration // collect for this long instead of stopping at precision (stability checks)
+	MaxDrift    float64       // relative; for stability checks with Duration; 0: not judged
+	Expect      []Expect
+}
+
+// PositionCount is the number of readings the step takes (1 without
+// positions).
+func (m *MeasureSpec) PositionCount() int {
+	if len(m.Positions) == 0 {
+		return 1
+	}
+	return len(m.Positions)
+}
+
+// Figure names a figure of merit.
+type Figure string
+
+// Figures of merit the compute step knows, with the input roles each needs.
+const (
+	// Conversion factor G_x = L / K̇ (IEC 61262-2): roles luminance and
+	// air_kerma_rate; optional dark_luminance, dark_air_kerma_rate.
+	FigConversionFactor Figure = "conversion_factor"
+	// Luminance non-uniformity from a multi-position luminance
+	// measurement (IEC 61262-3): role luminance.
+	FigNonUniformity Figure = "non_uniformity"
+	// Contrast ratio L_open / L_disk (IEC 61262-6): roles open, disk;
+	// optional dark.
+	FigContrastRatio Figure = "contrast_ratio"
+	// Input air kerma rate at the input plane: role air_kerma_rate.
+	FigInputKermaRate Figure = "input_kerma_rate"
+	// Ratio of a field mode's input kerma rate to a reference mode's:
+	// roles air_kerma_rate, reference.
+	FigKermaModeScaling Figure = "kerma_mode_scaling"
+	// Stability of a meter over a fixed-duration reading: role reading.
+	FigStability Figure = "stability"
+	// Mean dark reading (offset) of a meter: role reading.
+	FigDarkLevel Figure = "dark_level"
+)
+
+// Input is one named input of a compute step: a role and the id of the
+// measure step that supplies it. Ref may name a step in another field-mode
+// repetition as "id@mode".
+type Input struct {
+	Role string
+	Ref  string
+	// Resolved is the flattened id of the step referred to; set by Flatten.
+	Resolved string
+	Pos      Pos
+}
+
+// ComputeSpec computes a figure of merit.
+type ComputeSpec struct {
+	Figure Figure
+	Inputs []Input
+}
+
+// Input returns the input with the role and whether there is one.
+func (c *ComputeSpec) Input(role string) (Input, bool) {
+	for _, in := range c.Inputs {
+		if in.Role == role {
+			return in, true
+		}
+	}
+	return Input{}, false
+}
+
+// LimitKind is what a limit compares with.
+type LimitKind string
+
+// Limit kinds.
+const (
+	SpecMin     LimitKind = "min"          // specification: result ≥ value
+	SpecMax     LimitKind = "max"          // specification: result ≤ value
+	BaselineMin LimitKind = "baseline_min" // result ≥ value × baseline (value a fraction)
+	BaselineMax LimitKind = "baseline_max" // result ≤ value × baseline
+	ActionMin   LimitKind = "action_min"   // action level: result ≥ value
+	ActionMax   LimitKind = "action_max"   // action level: result ≤ value
+)
+
+// Limit is one limit of a judge step: either a number (Value, already
+// converted from Unit: "90 %" is 0.9) or a reference to a session input
+// such as "spec.conversion_factor_min" (Ref set, Value unused).
+type Limit struct {
+	Kind  LimitKind
+	Value float64
+	Unit  string
+	Ref   string
+	Pos   Pos
+}
+
+// JudgeSpec judges a result.
+type JudgeSpec struct {
+	Result string // id of the compute step
+	// Resolved is the flattened id of the compute step; set by Flatten.
+	Resolved string
+	Limits   []Limit
+}
+
+// RepeatSpec repeats Steps once per field mode, substituting {mode} in
+// texts, setups and measure field modes.
+type RepeatSpec struct {
+	Modes []string // listed modes; empty when FromBench
+	// FromBench takes the modes from the bench file at run time; MaxModes
+	// bounds how many there may be (for the beam budget).
+	FromBench bool
+	MaxModes  int
+	Steps     []Step
+}
+
+// IncludeSpec runs another procedure here.
+type IncludeSpec struct {
+	Procedure string // a built-in's name or a path relative to the including file
+	// Resolved is the included procedure; set by Flatten (and by Check).
+	Resolved *Procedure
+}
+
+// Flat is a procedure flattened into the steps the engine walks.
+type Flat struct {
+	Procedure  *Procedure
+	BeamBudget time.Duration
+	Steps      []FlatStep
+}
+
+// FlatStep is one step of a flattened procedure. Step is a copy of the
+// written step with {mode} substituted, references resolved and the
+// defaults of the procedure it was written in filled in (a measure step's
+// Precision, MaxBeam and Expect); it is never a per_field_mode or include
+// step.
+type FlatStep struct {
+	Index     int    // 1-based
+	Of        int    // len(Flat.Steps)
+	ID        string // stable: include path, step id and field mode ("cf/light@32 cm")
+	FieldMode string // empty outside per_field_mode
+	Procedure string // name of the procedure the step was written in
+	Step      Step
+}
+
+// MaxBeam returns the longest beam-on time the step may use (0 for a step
+// without beam). Flatten has already filled in the procedure's defaults.
+func (f FlatStep) MaxBeam() time.Duration {
+	return stepBeam(&f.Step, Defaults{})
+}
+
+func stepBeam(s *Step, d Defaults) time.Duration {
+	if s.Kind != KindMeasure || s.Measure == nil || !s.Measure.Beam {
+		return 0
+	}
+	mb := s.Measure.MaxBeam
+	if mb == 0 {
+		mb = d.MaxBeam
+	}
+	return mb * time.Duration(s.Measure.PositionCount())
+}
