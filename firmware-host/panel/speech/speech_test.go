@@ -1,0 +1,243 @@
+package speech
+
+import (
+	"context"
+	"errors"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"reflect"
+	"sync"
+	"testing"
+	"time"
+)
+
+func TestForEar(t *testing.T) {
+	// Unit names as spoken in English follow the SI Brochure (BIPM, 9th
+	// edition, 2019), tables 2 and 4 (candela, gray, pascal, metre, degree
+	// Celsius) and its prefixes (table 7: micro, milli, nano, kilo, hecto).
+	tests := []struct{ in, want string }{
+		{"Luminance 102 cd/m²", "Luminance 102 candela per square metre"},
+		{"Luminance 102 cd/m2.", "Luminance 102 candela per square metre."},
+		{"Kerma rate 0.87 µGy/s", "Kerma rate 0.87 micro-gray per second"},
+		{"Kerma rate 0.87 μGy/s", "Kerma rate 0.87 micro-gray per second"}, // Greek mu
+		{"Kerma rate 0.87 uGy/s", "Kerma rate 0.87 micro-gray per second"},
+		{"Dose 12 µGy", "Dose 12 micro-gray"},
+		{"Select the 32cm field.", "Select the 32 centimetre field."},
+		{"Select the 32 cm field.", "Select the 32 centimetre field."},
+		{"Set 70 kV, manual mode.", "Set 70 kilovolt, manual mode."},
+		{"Room 21.5 °C, 101.3 kPa", "Room 21.5 degrees Celsius, 101.3 kilopascal"},
+		{"Hang the 21 mm aluminium filter", "Hang the 21 millimetre aluminium filter"},
+		{"90% of baseline", "90 percent of baseline"},
+		{"Beam on for 6 s.", "Beam on for 6 seconds."},
+		{"after 4 min 30 s", "after 4 minutes 30 seconds"},
+		{"step 5 of 31 — next: lead disk", "step 5 of 31, next: lead disk"},
+		{"RQA5 beam, k_TP 1.012", "R Q A 5 beam, k T P 1.012"},
+		{"152 ± 4", "152 plus or minus 4"},
+		// Not units: letters inside words, symbols not after a number.
+		{"This is the mm-wave test", "This is the mm-wave test"},
+		{"press s to skip", "press s to skip"},
+		{"Move the photometer", "Move the photometer"},
+		{"The commissioning", "The commissioning"},
+		{"line one\nline\ttwo\x07", "line one line two"},
+	}
+	for _, tc := range tests {
+		if got := ForEar(tc.in); got != tc.want {
+			t.Errorf("ForEar(%q)\n got %q\nwant %q", tc.in, got, tc.want)
+		}
+	}
+}
+
+// recorder is a Speaker that records what it was asked to say and holds
+// each utterance until released.
+type recorder struct {
+	mu       sync.Mutex
+	said     []string
+	cut      []string // utterances stopped before they were released
+	started  chan string
+	release  chan struct{}
+	failWith error
+}
+
+func newRecorder() *recorder {
+	return &recorder{started: make(chan string, 16), release: make(chan struct{})}
+}
+
+func (r *recorder) Speak(ctx context.Context, text string) error {
+	r.mu.Lock()
+	r.said = append(r.said, text)
+	r.mu.Unlock()
+	r.started <- text
+	select {
+	case <-r.release:
+		return r.failWith
+	case <-ctx.Done():
+		r.mu.Lock()
+		r.cut = append(r.cut, text)
+		r.mu.Unlock()
+		return ctx.Err()
+	}
+}
+
+func (r *recorder) snapshot() (said, cut []string) {
+	r.mu.Lock()
+	defer r.mu.Unlock()
+	return append([]string(nil), r.said...), append([]string(nil), r.cut...)
+}
+
+func waitStart(t *testing.T, r *recorder, want string) {
+	t.Helper()
+	select {
+	case got := <-r.started:
+		if got != want {
+			t.Fatalf("started %q, want %q", got, want)
+		}
+	case <-time.After(5 * time.Second):
+		t.Fatalf("timed out waiting for %q to be spoken", want)
+	}
+}
+
+func TestQueueOrderAndPreempt(t *testing.T) {
+	tests := []struct {
+		name     string
+		run      func(q *Queue, r *recorder)
+		wantSaid []string
+		wantCut  []string
+	}{
+		{
+			name: "in order",
+			run: func(q *Queue, r *recorder) {
+				q.Say("one", false)
+				q.Say("two", false)
+				waitStart(t, r, "one")
+				r.release <- struct{}{}
+				waitStart(t, r, "two")
+				r.release <- struct{}{}
+			},
+			wantSaid: []string{"one", "two"},
+		},
+		{
+			name: "alarm drops queue and cuts current",
+			run: func(q *Queue, r *recorder) {
+				q.Say("set 70 kV", false)
+				waitStart(t, r, "set 70 kV")
+				q.Say("next field", false)
+				q.Say("stop now", true)
+				waitStart(t, r, "stop now")
+				r.release <- struct{}{}
+			},
+			wantSaid: []string{"set 70 kV", "stop now"},
+			wantCut:  []string{"set 70 kV"},
+		},
+		{
+			name: "alarm is not cut by alarm",
+			run: func(q *Queue, r *recorder) {
+				q.Say("alarm one", true)
+				waitStart(t, r, "alarm one")
+				q.Say("ordinary", false)
+				q.Say("alarm two", true)
+				r.release <- struct{}{}
+				waitStart(t, r, "alarm two")
+				r.release <- struct{}{}
+			},
+			wantSaid: []string{"alarm one", "alarm two"},
+		},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			r := newRecorder()
+			q := NewQueue(r, 0, nil)
+			defer q.Close()
+			tc.run(q, r)
+			ctx, cancel := context.WithTimeout(context.Background(), 5*time.Second)
+			defer cancel()
+			if err := q.Wait(ctx); err != nil {
+				t.Fatal(err)
+			}
+			said, cut := r.snapshot()
+			if !reflect.DeepEqual(said, tc.wantSaid) {
+				t.Errorf("said %q, want %q", said, tc.wantSaid)
+			}
+			if !reflect.DeepEqual(cut, tc.wantCut) {
+				t.Errorf("cut %q, want %q", cut, tc.wantCut)
+			}
+		})
+	}
+}
+
+func TestQueueDropsOldestBeyondMax(t *testing.T) {
+	r := newRecorder()
+	q := NewQueue(r, 2, nil)
+	defer q.Close()
+	q.Say("first", false)
+	waitStart(t, r, "first")
+	for _, s := range []string{"a", "b", "c"} {
+		q.Say(s, false)
+	}
+	close(r.release) // let everything through
+	if err := q.Wait(context.Background()); err != nil {
+		t.Fatal(err)
+	}
+	said, _ := r.snapshot()
+	if want := []string{"first", "b", "c"}; !reflect.DeepEqual(said, want) {
+		t.Errorf("said %q, want %q", said, want)
+	}
+}
+
+func TestQueueReportsFailure(t *testing.T) {
+	r := newRecorder()
+	r.failWith = errors.New("no sound card")
+	close(r.release)
+	q := NewQueue(r, 0, nil)
+	defer q.Close()
+	q.Say("hello", false)
+	<-r.started
+	if err := q.Wait(context.Background()); err != nil {
+		t.Fatal(err)
+	}
+	if err := q.Err(); err == nil {
+		t.Error("Err() = nil after a failed utterance")
+	}
+}
+
+func TestEspeakArgs(t *testing.T) {
+	tests := []struct {
+		e    *Espeak
+		text string
+		wav  string
+		want []string
+	}{
+		{&Espeak{}, "Ready.", "", []string{"Ready."}},
+		{&Espeak{Voice: "en-gb", Rate: 150}, "Ready.", "/tmp/x.wav", []string{"-v", "en-gb", "-s", "150", "-w", "/tmp/x.wav", "Ready."}},
+		// A leading dash must not become an option; a NUL cannot be passed.
+		{&Espeak{}, "-w /etc/passwd", "", []string{" -w /etc/passwd"}},
+		{&Espeak{}, "a\x00b; rm -rf /", "", []string{"ab; rm -rf /"}},
+	}
+	for _, tc := range tests {
+		if got := tc.e.Args(tc.text, tc.wav); !reflect.DeepEqual(got, tc.want) {
+			t.Errorf("Args(%q) = %q, want %q", tc.text, got, tc.want)
+		}
+	}
+}
+
+func TestEspeakWritesWAV(t *testing.T) {
+	if _, err := exec.LookPath("espeak-ng"); err != nil {
+		t.Skip("espeak-ng not installed")
+	}
+	e, err := FindEspeak("", 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	e.WAVDir = t.TempDir()
+	if err := e.Speak(context.Background(), ForEar("Select the 32cm field.")); err != nil {
+		t.Fatal(err)
+	}
+	b, err := os.ReadFile(filepath.Join(e.WAVDir, "utterance-001.wav"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	// A WAV file starts "RIFF" .... "WAVE" (Microsoft RIFF format).
+	if len(b) < 44 || string(b[0:4]) != "RIFF" || string(b[8:12]) != "WAVE" {
+		t.Errorf("not a WAV file: %d bytes, starts %q", len(b), b[:min(12, len(b))])
+	}
+}
