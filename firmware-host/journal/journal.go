@@ -1,0 +1,436 @@
+// Package journal is the board's session journal: every prompt, answer,
+// reading, step transition and result of a session, one SQLite transaction
+// per record (WAL, synchronous=FULL), so a record is on disk when Append
+// returns and survives a power cut. Records of a session form a SHA-256
+// hash chain and each is signed with the board's ed25519 key, so a copy of
+// the journal, a sync batch or a bundle can be checked anywhere against the
+// board's public key. FORMAT.md describes the file and the hashes exactly.
+package journal
+
+import (
+	"context"
+	"crypto/ed25519"
+	"crypto/rand"
+	"database/sql"
+	"encoding/hex"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"os"
+	"path/filepath"
+	"strings"
+	"sync"
+	"time"
+
+	_ "modernc.org/sqlite" // pure-Go SQLite driver "sqlite"
+
+	"kermalux/drivers/clock"
+	"kermalux/firmware-host/journal/entry"
+)
+
+// SchemaVersion is the journal file's schema version (table schema_version).
+const SchemaVersion = 1
+
+// Errors callers can test with errors.Is.
+var (
+	ErrUnknownSession = errors.New("unknown session")
+	ErrSessionEnded   = errors.New("session already ended")
+	ErrHashMismatch   = errors.New("hash mismatch")
+	ErrBadSignature   = errors.New("bad signature")
+	ErrChainBroken    = errors.New("chain broken")
+	ErrWrongBoard     = errors.New("journal belongs to another board")
+)
+
+// Options configure Open.
+type Options struct {
+	// KeyPath is the board's private key file. If empty, KeyDir/board.key;
+	// if KeyDir is empty too, "board-key/board.key" beside the journal.
+	// The key is created on first start (file 0600 in a 0700 directory).
+	KeyPath string
+	KeyDir  string
+	// BootID returns the current boot's id; default reads
+	// /proc/sys/kernel/random/boot_id (Linux), "unknown" elsewhere.
+	BootID func() string
+	// SoftwareVersion is written into sessions that do not set one.
+	SoftwareVersion string
+	// Clock gives wall and monotonic times; default the real clock.
+	Clock clock.Clock
+}
+
+// KeyFile returns the key path these options select for journal path.
+func (o Options) KeyFile(journalPath string) string {
+	switch {
+	case o.KeyPath != "":
+		return o.KeyPath
+	case o.KeyDir != "":
+		return filepath.Join(o.KeyDir, KeyFileName)
+	default:
+		return filepath.Join(filepath.Dir(journalPath), "board-key", KeyFileName)
+	}
+}
+
+// Journal is an open board journal. Its methods are safe for concurrent
+// use; one process should write a journal file at a time.
+type Journal struct {
+	path   string
+	db     *sql.DB
+	priv   ed25519.PrivateKey
+	pub    ed25519.PublicKey
+	pubHex string
+	clk    clock.Clock
+	boot   string
+	soft   string
+	mu     sync.Mutex
+}
+
+const schemaSQL = `
+CREATE TABLE IF NOT EXISTS schema_version(
+	version  INTEGER NOT NULL,
+	software TEXT NOT NULL,
+	created  TEXT NOT NULL);
+CREATE TABLE IF NOT EXISTS board(
+	id         INTEGER PRIMARY KEY CHECK (id = 1),
+	public_key TEXT NOT NULL);
+CREATE TABLE IF NOT EXISTS records(
+	session TEXT NOT NULL,
+	seq     INTEGER NOT NULL,
+	kind    TEXT NOT NULL,
+	wall    TEXT NOT NULL,
+	mono_ns INTEGER NOT NULL,
+	boot_id TEXT NOT NULL,
+	payload TEXT NOT NULL,
+	prev    TEXT NOT NULL,
+	hash    TEXT NOT NULL,
+	sig     TEXT NOT NULL,
+	PRIMARY KEY (session, seq)) WITHOUT ROWID;
+CREATE TABLE IF NOT EXISTS heads(
+	session  TEXT PRIMARY KEY,
+	seq      INTEGER NOT NULL,
+	hash     TEXT NOT NULL,
+	head_sig TEXT NOT NULL,
+	ended    INTEGER NOT NULL DEFAULT 0);
+`
+
+func dsn(path string, write bool) string {
+	q := "_pragma=busy_timeout(10000)"
+	if write {
+		q += "&_pragma=journal_mode(WAL)&_pragma=synchronous(FULL)&_txlock=immediate"
+	}
+	return "file:" + path + "?" + q
+}
+
+// Open opens or creates the journal at path with the board key the options
+// select (creating the key on first start).
+func Open(path string, opts Options) (*Journal, error) {
+	priv, err := LoadOrCreateKey(opts.KeyFile(path))
+	if err != nil {
+		return nil, fmt.Errorf("open journal %s: %w", path, err)
+	}
+	if strings.ContainsRune(path, '?') {
+		return nil, fmt.Errorf("open journal %s: a '?' in the path is not supported", path)
+	}
+	db, err := sql.Open("sqlite", dsn(path, true))
+	if err != nil {
+		return nil, fmt.Errorf("open journal %s: %w", path, err)
+	}
+	db.SetMaxOpenConns(1)
+	j := &Journal{path: path, db: db, priv: priv, pub: priv.Public().(ed25519.PublicKey), clk: opts.Clock, soft: opts.SoftwareVersion}
+	j.pubHex = hex.EncodeToString(j.pub)
+	if j.clk == nil {
+		j.clk = clock.NewReal()
+	}
+	if opts.BootID != nil {
+		j.boot = opts.BootID()
+	} else {
+		j.boot = ReadBootID()
+	}
+	if err := j.init(); err != nil {
+		db.Close()
+		return nil, fmt.Errorf("open journal %s: %w", path, err)
+	}
+	return j, nil
+}
+
+func (j *Journal) init() error {
+	ctx := context.Background()
+	tx, err := j.db.BeginTx(ctx, nil)
+	if err != nil {
+		return err
+	}
+	defer tx.Rollback()
+	if _, err := tx.Exec(schemaSQL); err != nil {
+		return fmt.Errorf("create schema: %w", err)
+	}
+	var v int
+	switch err := tx.QueryRow(`SELECT version FROM schema_version`).Scan(&v); {
+	case errors.Is(err, sql.ErrNoRows):
+		if _, err := tx.Exec(`INSERT INTO schema_version VALUES (?, ?, ?)`, SchemaVersion, j.soft, j.clk.Now().UTC().Format(WallFormat)); err != nil {
+			return err
+		}
+	case err != nil:
+		return fmt.Errorf("read schema version: %w", err)
+	case v != SchemaVersion:
+		return fmt.Errorf("schema version %d, this program reads version %d", v, SchemaVersion)
+	}
+	var key string
+	switch err := tx.QueryRow(`SELECT public_key FROM board WHERE id = 1`).Scan(&key); {
+	case errors.Is(err, sql.ErrNoRows):
+		if _, err := tx.Exec(`INSERT INTO board VALUES (1, ?)`, j.pubHex); err != nil {
+			return err
+		}
+	case err != nil:
+		return fmt.Errorf("read board key: %w", err)
+	case key != j.pubHex:
+		return fmt.Errorf("%w: written with board key %s, the key file holds %s", ErrWrongBoard, short(key), short(j.pubHex))
+	}
+	return tx.Commit()
+}
+
+// ReadBootID returns Linux's boot id, or "unknown".
+func ReadBootID() string {
+	b, err := os.ReadFile("/proc/sys/kernel/random/boot_id")
+	if err != nil {
+		return "unknown"
+	}
+	return strings.TrimSpace(string(b))
+}
+
+// Path is the journal file.
+func (j *Journal) Path() string { return j.path }
+
+// PublicKey is the board's public key.
+func (j *Journal) PublicKey() ed25519.PublicKey { return j.pub }
+
+// BoardKey is the board's public key in hex, as enrolled at the workstation.
+func (j *Journal) BoardKey() string { return j.pubHex }
+
+// Sign signs msg with the board key (used for batches and bundles).
+func (j *Journal) Sign(msg []byte) []byte { return ed25519.Sign(j.priv, msg) }
+
+// Close closes the journal.
+func (j *Journal) Close() error { return j.db.Close() }
+
+// NewSessionID returns a fresh session id: UTC start time, the first 8 hex
+// digits of the board key and 8 random hex digits.
+func NewSessionID(start time.Time, boardKey string) string {
+	var r [4]byte
+	rand.Read(r[:])
+	k := boardKey
+	if len(k) > 8 {
+		k = k[:8]
+	}
+	return start.UTC().Format("20060102T150405Z") + "-" + k + "-" + hex.EncodeToString(r[:])
+}
+
+// Begin records a new session and returns its id. It fills in s.ID (if
+// empty), s.BoardKey, s.Started (if zero) and s.SoftwareVersion (if empty).
+func (j *Journal) Begin(ctx context.Context, s entry.Session) (string, error) {
+	if s.Started.IsZero() {
+		s.Started = j.clk.Now()
+	}
+	if s.BoardKey != "" && s.BoardKey != j.pubHex {
+		return "", fmt.Errorf("begin session: %w: session names board key %s, journal key is %s", ErrWrongBoard, short(s.BoardKey), short(j.pubHex))
+	}
+	s.BoardKey = j.pubHex
+	if s.SoftwareVersion == "" {
+		s.SoftwareVersion = j.soft
+	}
+	if s.ID == "" {
+		s.ID = NewSessionID(s.Started, j.pubHex)
+	}
+	if _, err := j.append(ctx, s.ID, entry.KindSession, s, true); err != nil {
+		return "", err
+	}
+	return s.ID, nil
+}
+
+// Append records payload (an entry type, or canonical-able JSON bytes) as
+// the next record of session and returns its sequence number. The record
+// is committed (fsynced) when Append returns without error. Kind session
+// is written by Begin; nothing may follow a session_end.
+func (j *Journal) Append(ctx context.Context, session string, kind entry.Kind, payload any) (int64, error) {
+	if kind == entry.KindSession {
+		return 0, fmt.Errorf("append to session %s: a session record is written by Begin", session)
+	}
+	return j.append(ctx, session, kind, payload, false)
+}
+
+func marshalPayload(payload any) ([]byte, error) {
+	switch p := payload.(type) {
+	case json.RawMessage:
+		return CanonicalPayload(p)
+	case []byte:
+		return CanonicalPayload(p)
+	}
+	return json.Marshal(payload)
+}
+
+func (j *Journal) append(ctx context.Context, session string, kind entry.Kind, payload any, first bool) (int64, error) {
+	fail := func(err error) (int64, error) {
+		return 0, fmt.Errorf("append %s to session %s: %w", kind, session, err)
+	}
+	if kind == "" {
+		return fail(errors.New("empty kind"))
+	}
+	body, err := marshalPayload(payload)
+	if err != nil {
+		return fail(fmt.Errorf("encode payload: %w", err))
+	}
+	j.mu.Lock()
+	defer j.mu.Unlock()
+	tx, err := j.db.BeginTx(ctx, nil)
+	if err != nil {
+		return fail(err)
+	}
+	defer tx.Rollback()
+	var (
+		seq   int64
+		prev  string
+		ended bool
+	)
+	err = tx.QueryRowContext(ctx, `SELECT seq, hash, ended FROM heads WHERE session = ?`, session).Scan(&seq, &prev, &ended)
+	switch {
+	case first && err == nil:
+		return fail(errors.New("session id already used"))
+	case first && errors.Is(err, sql.ErrNoRows):
+		seq, prev = 0, zeroHashHex()
+	case errors.Is(err, sql.ErrNoRows):
+		return fail(ErrUnknownSession)
+	case err != nil:
+		return fail(err)
+	case ended:
+		return fail(ErrSessionEnded)
+	}
+	r := Record{Seq: seq + 1, Session: session, Kind: kind, Wall: j.clk.Now().UTC().Format(WallFormat),
+		Mono: int64(j.clk.Mono()), BootID: j.boot, Payload: body, Prev: prev}
+	h := r.ComputeHash()
+	r.Hash = hex.EncodeToString(h[:])
+	r.Sig = hex.EncodeToString(ed25519.Sign(j.priv, recordMessage(h[:])))
+	headSig := hex.EncodeToString(ed25519.Sign(j.priv, headMessage(session, r.Seq, h[:])))
+	if _, err := tx.ExecContext(ctx, `INSERT INTO records VALUES (?,?,?,?,?,?,?,?,?,?)`,
+		r.Session, r.Seq, string(r.Kind), r.Wall, r.Mono, r.BootID, string(r.Payload), r.Prev, r.Hash, r.Sig); err != nil {
+		return fail(err)
+	}
+	isEnd := kind == entry.KindSessionEnd
+	if first {
+		_, err = tx.ExecContext(ctx, `INSERT INTO heads(session, seq, hash, head_sig, ended) VALUES (?,?,?,?,0)`, session, r.Seq, r.Hash, headSig)
+	} else {
+		_, err = tx.ExecContext(ctx, `UPDATE heads SET seq = ?, hash = ?, head_sig = ?, ended = ? WHERE session = ?`, r.Seq, r.Hash, headSig, isEnd, session)
+	}
+	if err != nil {
+		return fail(err)
+	}
+	if err := tx.Commit(); err != nil {
+		return fail(err)
+	}
+	return r.Seq, nil
+}
+
+// Records returns up to limit records of session with seq > after, in
+// order (limit <= 0: all).
+func (j *Journal) Records(ctx context.Context, session string, after int64, limit int) ([]Record, error) {
+	return readRecords(ctx, j.db, session, after, limit)
+}
+
+type querier interface {
+	QueryContext(ctx context.Context, q string, args ...any) (*sql.Rows, error)
+}
+
+func readRecords(ctx context.Context, db querier, session string, after int64, limit int) ([]Record, error) {
+	if limit <= 0 {
+		limit = -1
+	}
+	rows, err := db.QueryContext(ctx, `SELECT session, seq, kind, wall, mono_ns, boot_id, payload, prev, hash, sig
+		FROM records WHERE session = ? AND seq > ? ORDER BY seq LIMIT ?`, session, after, limit)
+	if err != nil {
+		return nil, fmt.Errorf("read records of session %s: %w", session, err)
+	}
+	defer rows.Close()
+	var out []Record
+	for rows.Next() {
+		var r Record
+		var kind, payload string
+		if err := rows.Scan(&r.Session, &r.Seq, &kind, &r.Wall, &r.Mono, &r.BootID, &payload, &r.Prev, &r.Hash, &r.Sig); err != nil {
+			return nil, fmt.Errorf("read records of session %s: %w", session, err)
+		}
+		r.Kind, r.Payload = entry.Kind(kind), json.RawMessage(payload)
+		out = append(out, r)
+	}
+	if err := rows.Err(); err != nil {
+		return nil, fmt.Errorf("read records of session %s: %w", session, err)
+	}
+	return out, nil
+}
+
+// Envelopes returns every record of session, decoded for the report.
+func (j *Journal) Envelopes(ctx context.Context, session string) ([]entry.Envelope, error) {
+	recs, err := j.Records(ctx, session, 0, 0)
+	if err != nil {
+		return nil, err
+	}
+	if len(recs) == 0 {
+		return nil, fmt.Errorf("session %s: %w", session, ErrUnknownSession)
+	}
+	out := make([]entry.Envelope, len(recs))
+	for i := range recs {
+		if out[i], err = recs[i].Envelope(); err != nil {
+			return nil, fmt.Errorf("session %s: %w", session, err)
+		}
+	}
+	return out, nil
+}
+
+// SessionSummary describes one session in the journal.
+type SessionSummary struct {
+	ID      string
+	Session entry.Session
+	Last    int64             // sequence number of the last record
+	Ended   bool              // a session_end was recorded
+	End     *entry.SessionEnd // nil unless Ended
+}
+
+// Sessions lists the journal's sessions in the order they began.
+func (j *Journal) Sessions(ctx context.Context) ([]SessionSummary, error) {
+	return listSessions(ctx, j.db, false)
+}
+
+// Unfinished lists sessions without a session_end, for resuming after a
+// restart or power cut; the engine rebuilds its position from Envelopes.
+func (j *Journal) Unfinished(ctx context.Context) ([]SessionSummary, error) {
+	return listSessions(ctx, j.db, true)
+}
+
+func listSessions(ctx context.Context, db querier, unfinished bool) ([]SessionSummary, error) {
+	q := `SELECT h.session, h.seq, h.ended, r.payload,
+		(SELECT e.payload FROM records e WHERE e.session = h.session AND e.seq = h.seq AND e.kind = 'session_end')
+		FROM heads h JOIN records r ON r.session = h.session AND r.seq = 1`
+	if unfinished {
+		q += ` WHERE h.ended = 0`
+	}
+	q += ` ORDER BY h.rowid`
+	rows, err := db.QueryContext(ctx, q)
+	if err != nil {
+		return nil, fmt.Errorf("list sessions: %w", err)
+	}
+	defer rows.Close()
+	var out []SessionSummary
+	for rows.Next() {
+		var s SessionSummary
+		var first string
+		var end sql.NullString
+		if err := rows.Scan(&s.ID, &s.Last, &s.Ended, &first, &end); err != nil {
+			return nil, fmt.Errorf("list sessions: %w", err)
+		}
+		if err := json.Unmarshal([]byte(first), &s.Session); err != nil {
+			return nil, fmt.Errorf("list sessions: session %s record 1: %w", s.ID, err)
+		}
+		if end.Valid {
+			s.End = new(entry.SessionEnd)
+			if err := json.Unmarshal([]byte(end.String), s.End); err != nil {
+				return nil, fmt.Errorf("list sessions: session %s record %d: %w", s.ID, s.Last, err)
+			}
+		}
+		out = append(out, s)
+	}
+	return out, rows.Err()
+}

@@ -1,0 +1,244 @@
+package journal
+
+import (
+	"bytes"
+	"crypto/ed25519"
+	"crypto/sha256"
+	"encoding/binary"
+	"encoding/hex"
+	"encoding/json"
+	"fmt"
+	"strconv"
+	"time"
+	"unicode/utf8"
+
+	"kermalux/firmware-host/journal/entry"
+)
+
+// HashSize is the length of a record hash (SHA-256, FIPS 180-4).
+const HashSize = sha256.Size
+
+// Signature domains: each signed message starts with one of these so that a
+// signature made for one purpose can never be replayed as another.
+const (
+	recordDomain = "kermalux record v1\x00"
+	headDomain   = "kermalux head v1\x00"
+	batchDomain  = "kermalux batch v1\x00"
+	bundleDomain = "kermalux bundle v1\x00"
+)
+
+// WallFormat is how wall times are written in records: RFC 3339 with
+// nanoseconds, always UTC, trailing zeros trimmed (time.RFC3339Nano).
+const WallFormat = time.RFC3339Nano
+
+// Record is one journal record as stored on the board, carried in batches
+// and bundles and kept by the workstation. Hash is SHA-256 over Canonical();
+// Prev is the Hash of the previous record of the same session (all zero
+// bytes for seq 1); Sig is the board's ed25519 signature of
+// "kermalux record v1\x00" || Hash. See FORMAT.md.
+type Record struct {
+	Seq     int64           `json:"seq"`
+	Session string          `json:"session"`
+	Kind    entry.Kind      `json:"kind"`
+	Wall    string          `json:"wall"`    // WallFormat, UTC
+	Mono    int64           `json:"mono_ns"` // monotonic nanoseconds of the writing process's clock
+	BootID  string          `json:"boot_id"`
+	Payload json.RawMessage `json:"payload"` // canonical JSON (see CanonicalPayload)
+	Prev    string          `json:"prev"`    // hex
+	Hash    string          `json:"hash"`    // hex
+	Sig     string          `json:"sig"`     // hex
+}
+
+// Canonical returns the bytes the record's hash is computed over:
+//
+//	{"seq":S,"session":J,"kind":J,"wall":J,"mono_ns":M,"boot_id":J,"prev":"HEX","payload":P}
+//
+// where S and M are base-10 integers, each J is the field as a JSON string
+// (Go encoding/json string encoding), HEX is Prev in lower-case hex and P
+// is the payload bytes exactly as stored. No whitespace anywhere.
+func (r *Record) Canonical() []byte {
+	var b bytes.Buffer
+	b.Grow(160 + len(r.Payload))
+	b.WriteString(`{"seq":`)
+	b.WriteString(strconv.FormatInt(r.Seq, 10))
+	b.WriteString(`,"session":`)
+	writeJSONString(&b, r.Session)
+	b.WriteString(`,"kind":`)
+	writeJSONString(&b, string(r.Kind))
+	b.WriteString(`,"wall":`)
+	writeJSONString(&b, r.Wall)
+	b.WriteString(`,"mono_ns":`)
+	b.WriteString(strconv.FormatInt(r.Mono, 10))
+	b.WriteString(`,"boot_id":`)
+	writeJSONString(&b, r.BootID)
+	b.WriteString(`,"prev":"`)
+	b.WriteString(r.Prev)
+	b.WriteString(`","payload":`)
+	b.Write(r.Payload)
+	b.WriteByte('}')
+	return b.Bytes()
+}
+
+func writeJSONString(b *bytes.Buffer, s string) {
+	q, _ := json.Marshal(s) // a string always marshals
+	b.Write(q)
+}
+
+// ComputeHash returns SHA-256 of Canonical().
+func (r *Record) ComputeHash() [HashSize]byte { return sha256.Sum256(r.Canonical()) }
+
+// Envelope returns the record as the report and the store see it.
+func (r *Record) Envelope() (entry.Envelope, error) {
+	w, err := time.Parse(WallFormat, r.Wall)
+	if err != nil {
+		return entry.Envelope{}, fmt.Errorf("record %d: wall time %q: %w", r.Seq, r.Wall, err)
+	}
+	return entry.Envelope{Seq: r.Seq, Session: r.Session, Kind: r.Kind, Wall: w,
+		Mono: time.Duration(r.Mono), BootID: r.BootID, Payload: r.Payload}, nil
+}
+
+// CanonicalPayload returns the canonical form of JSON text: compacted
+// (encoding/json Compact) with <, >, & and U+2028/U+2029 escaped inside
+// strings (encoding/json HTMLEscape), which is exactly what json.Marshal
+// produces, so a marshalled payload is already canonical.
+func CanonicalPayload(raw []byte) ([]byte, error) {
+	var c bytes.Buffer
+	if err := json.Compact(&c, raw); err != nil {
+		return nil, err
+	}
+	var h bytes.Buffer
+	json.HTMLEscape(&h, c.Bytes())
+	return h.Bytes(), nil
+}
+
+func zeroHashHex() string { return hex.EncodeToString(make([]byte, HashSize)) }
+
+func recordMessage(hash []byte) []byte {
+	return append([]byte(recordDomain), hash...)
+}
+
+func headMessage(session string, seq int64, hash []byte) []byte {
+	m := make([]byte, 0, len(headDomain)+len(session)+9+len(hash))
+	m = append(m, headDomain...)
+	m = append(m, session...)
+	m = append(m, 0)
+	m = binary.BigEndian.AppendUint64(m, uint64(seq))
+	return append(m, hash...)
+}
+
+// Check verifies a record on its own: field sanity, canonical payload,
+// hash and signature against pub. It does not check the chain (Prev).
+func (r *Record) Check(pub ed25519.PublicKey) error {
+	if r.Seq < 1 {
+		return fmt.Errorf("sequence number %d is not positive", r.Seq)
+	}
+	if r.Session == "" || !utf8.ValidString(r.Session) {
+		return fmt.Errorf("session id is empty or not UTF-8")
+	}
+	if r.Kind == "" {
+		return fmt.Errorf("kind is empty")
+	}
+	if !utf8.ValidString(string(r.Kind)) || !utf8.ValidString(r.BootID) || !utf8.ValidString(r.Wall) {
+		return fmt.Errorf("text field is not UTF-8")
+	}
+	if _, err := time.Parse(WallFormat, r.Wall); err != nil {
+		return fmt.Errorf("wall time %q is not RFC 3339: %v", r.Wall, err)
+	}
+	prev, err := hex.DecodeString(r.Prev)
+	if err != nil || len(prev) != HashSize {
+		return fmt.Errorf("previous hash %q is not %d hex bytes", short(r.Prev), HashSize)
+	}
+	canon, err := CanonicalPayload(r.Payload)
+	if err != nil {
+		return fmt.Errorf("payload is not JSON: %v", err)
+	}
+	if !bytes.Equal(canon, r.Payload) {
+		return fmt.Errorf("payload is not in canonical form (extra whitespace or unescaped characters)")
+	}
+	if err := checkPayloadKind(r.Kind, r.Payload); err != nil {
+		return err
+	}
+	want := r.ComputeHash()
+	got, err := hex.DecodeString(r.Hash)
+	if err != nil || len(got) != HashSize {
+		return fmt.Errorf("hash %q is not %d hex bytes", short(r.Hash), HashSize)
+	}
+	if !bytes.Equal(got, want[:]) {
+		return fmt.Errorf("%w: stored %s, contents hash to %s", ErrHashMismatch, short(r.Hash), short(hex.EncodeToString(want[:])))
+	}
+	sig, err := hex.DecodeString(r.Sig)
+	if err != nil || len(sig) != ed25519.SignatureSize {
+		return fmt.Errorf("%w: signature is not %d hex bytes", ErrBadSignature, ed25519.SignatureSize)
+	}
+	if !ed25519.Verify(pub, recordMessage(got), sig) {
+		return fmt.Errorf("%w: record signature does not verify with board key %s", ErrBadSignature, short(hex.EncodeToString(pub)))
+	}
+	return nil
+}
+
+// checkPayloadKind decodes a payload of a known kind into its type, so a
+// record that would not decode in the report is caught at once. Unknown
+// kinds are accepted (a newer board may add kinds) if they are JSON objects.
+func checkPayloadKind(k entry.Kind, p []byte) error {
+	var v any
+	switch k {
+	case entry.KindSession:
+		v = new(entry.Session)
+	case entry.KindStep:
+		v = new(entry.Step)
+	case entry.KindPrompt:
+		v = new(entry.Prompt)
+	case entry.KindAck:
+		v = new(entry.Ack)
+	case entry.KindValue:
+		v = new(entry.Value)
+	case entry.KindReading:
+		v = new(entry.Reading)
+	case entry.KindEvent:
+		v = new(entry.Event)
+	case entry.KindResult:
+		v = new(entry.Result)
+	case entry.KindSessionEnd:
+		v = new(entry.SessionEnd)
+	default:
+		v = new(map[string]any)
+	}
+	if err := json.Unmarshal(p, v); err != nil {
+		return fmt.Errorf("payload does not decode as %s: %v", k, err)
+	}
+	return nil
+}
+
+// CheckChain checks that recs are consecutive records of one session
+// starting after a record with hash prevHash (hex; zero hash when recs[0]
+// is seq 1), each passing Check. It returns the index of the first bad
+// record with the error, or -1, nil.
+func CheckChain(pub ed25519.PublicKey, prevSeq int64, prevHash string, recs []Record) (int, error) {
+	for i := range recs {
+		r := &recs[i]
+		if r.Seq != prevSeq+1 {
+			if r.Seq > prevSeq+1 {
+				return i, fmt.Errorf("%w: expected seq %d, found %d (records %d..%d missing)", ErrChainBroken, prevSeq+1, r.Seq, prevSeq+1, r.Seq-1)
+			}
+			return i, fmt.Errorf("%w: expected seq %d, found %d (duplicate or out of order)", ErrChainBroken, prevSeq+1, r.Seq)
+		}
+		if err := r.Check(pub); err != nil {
+			return i, err
+		}
+		if r.Prev != prevHash {
+			return i, fmt.Errorf("%w: previous hash %s does not match the hash %s of record %d", ErrChainBroken, short(r.Prev), short(prevHash), prevSeq)
+		}
+		if i > 0 && r.Session != recs[0].Session {
+			return i, fmt.Errorf("session %q differs from %q in the same chain", r.Session, recs[0].Session)
+		}
+		prevSeq, prevHash = r.Seq, r.Hash
+	}
+	return -1, nil
+}
+
+func short(h string) string {
+	if len(h) > 12 {
+		return h[:12] + "…"
+	}
+	return h
+}
