@@ -1,0 +1,63 @@
+package engine
+
+import (
+	"context"
+	"errors"
+	"fmt"
+)
+
+// Errors Run returns (wrapped); test with errors.Is.
+var (
+	// ErrNoChecklist: a beam step came before the pre-exposure checklist was acknowledged.
+	ErrNoChecklist = errors.New("pre-exposure safety checklist not acknowledged")
+	// ErrKermaOutOfRange: the kerma rate at the chamber was far above an intensifier input's.
+	ErrKermaOutOfRange = errors.New("kerma rate far outside the expected range")
+	// ErrAborted: the operator aborted the session.
+	ErrAborted = errors.New("session aborted by the operator")
+	// ErrPaused: the operator paused; the session can be resumed.
+	ErrPaused = errors.New("session paused")
+	// ErrStepFailed: a measurement could not be completed in its attempts.
+	ErrStepFailed = errors.New("step could not be completed")
+)
+
+// Engine runs one session.
+type Engine struct {
+	cfg Config
+	st  *state
+}
+
+// New checks cfg and returns an engine ready to Run.
+func New(cfg Config) (*Engine, error) {
+	if cfg.Panel == nil {
+		return nil, fmt.Errorf("engine: no panel")
+	}
+	if cfg.Journal == nil {
+		return nil, fmt.Errorf("engine: no journal")
+	}
+	if cfg.Clock == nil {
+		return nil, fmt.Errorf("engine: no clock")
+	}
+	if len(cfg.Procedure.Steps) == 0 {
+		return nil, fmt.Errorf("engine: procedure %q has no steps", cfg.Procedure.Name)
+	}
+	for i, s := range cfg.Procedure.Steps {
+		if s.Kind == Measure {
+			if s.Measure == nil {
+				return nil, fmt.Errorf("engine: step %d (%s) is a measurement without a description", i+1, s.ID)
+			}
+			for _, role := range s.Measure.Meters {
+				if cfg.Meters[role] == nil {
+					return nil, fmt.Errorf("engine: step %d (%s) needs the %s, which the bench does not have", i+1, s.ID, role)
+				}
+			}
+		}
+	}
+	fillLimits(&cfg.Limits)
+	return &Engine{cfg: cfg}, nil
+}
+
+// Run walks the procedure until it is done, aborted, paused or stopped
+// for safety. The Summary is valid whatever the error.
+func (e *Engine) Run(ctx context.Context) (Summary, error) {
+	return e.run(ctx)
+}

@@ -1,0 +1,466 @@
+package engine
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"log/slog"
+	"strings"
+	"time"
+
+	"kermalux/firmware-host/journal/entry"
+	"kermalux/firmware-host/panel"
+)
+
+// Event names the engine journals (entry.Event.Name).
+const (
+	evBeamOn      = "beam_on"
+	evBeamOff     = "beam_off"
+	evMeterLost   = "meter_lost"
+	evMeterBack   = "meter_back"
+	evBeamWarning = "beam_warning"
+	evBeamAlarm   = "beam_alarm"
+	evBeamTime    = "beam_time"
+	evKermaRange  = "kerma_out_of_range"
+	evDiscarded   = "samples_discarded"
+	evPaused      = "paused"
+	evAborted     = "aborted"
+	evRefused     = "beam_refused"
+	evMeasured    = "measurement_done"
+	evReadError   = "reading_error"
+	evCertificate = "certificate_problem"
+)
+
+// errRetakePrev: the operator asked to redo the last step.
+var errRetakePrev = errors.New("retake the previous step")
+
+// errSkip: the step could not be done and is skipped (its results are missing).
+type skipError struct{ reason string }
+
+func (s *skipError) Error() string { return "step skipped: " + s.reason }
+
+func (e *Engine) run(ctx context.Context) (Summary, error) {
+	cfg := &e.cfg
+	steps := cfg.Procedure.Steps
+	n := len(steps)
+	sum := Summary{Of: n, Outcome: "aborted"}
+
+	var st *state
+	var err error
+	if cfg.Resume != "" {
+		st, err = e.rebuild(ctx, cfg.Resume)
+		if err != nil {
+			return sum, err
+		}
+	} else {
+		st = newState(cfg.Limits)
+		sess := cfg.Session
+		if sess.Procedure == "" {
+			sess.Procedure = cfg.Procedure.Name
+		}
+		if sess.ProcedureHash == "" {
+			sess.ProcedureHash = cfg.Procedure.Hash
+		}
+		if sess.Started.IsZero() {
+			sess.Started = cfg.Clock.Now()
+		}
+		id, err := cfg.Journal.Begin(ctx, sess)
+		if err != nil {
+			return sum, fmt.Errorf("start session: %w", err)
+		}
+		st.session = id
+	}
+	e.st = st
+	sum.Session = st.session
+	for k, v := range cfg.Values {
+		if _, ok := st.values[k]; !ok {
+			st.values[k] = v
+		}
+	}
+
+	first := 0
+	for first < n && st.done[first+1] {
+		first++
+	}
+	title := cfg.Procedure.Title
+	if title == "" {
+		title = cfg.Procedure.Name
+	}
+	if st.resumed {
+		where := strings.TrimSpace(cfg.Session.Room)
+		if where == "" {
+			where = title
+		}
+		if first < n {
+			_ = e.journal(ctx, entry.KindStep, entry.Step{Index: first + 1, Of: n, ID: steps[first].ID, Kind: string(steps[first].Kind), FieldMode: steps[first].FieldMode, State: entry.StepResumed})
+		}
+		if err := e.say(ctx, first+1, panel.Message{Text: fmt.Sprintf("Resuming %s at step %d of %d.", where, min(first+1, n), n), Level: panel.Info}); err != nil {
+			return e.finish(ctx, sum, err)
+		}
+	} else {
+		if err := e.say(ctx, 0, panel.Message{Text: fmt.Sprintf("Starting %s: %d steps. Caution: X-rays are dangerous. Follow your local rules and your radiation safety officer.", title, n), Level: panel.Info}); err != nil {
+			return e.finish(ctx, sum, err)
+		}
+	}
+	for _, p := range cfg.CertProblems {
+		_ = e.journal(ctx, entry.KindEvent, entry.Event{Name: evCertificate, Detail: p, BeamOn: st.beamOn.Seconds()})
+		if err := e.say(ctx, 0, panel.Message{Text: p + " Results will be flagged as not calibrated.", Level: panel.Warn}); err != nil {
+			return e.finish(ctx, sum, err)
+		}
+	}
+	_ = cfg.Panel.Indicate(ctx, panel.Ready)
+
+	i := first
+	for i < n {
+		if st.done[i+1] {
+			i++
+			continue
+		}
+		step := steps[i]
+		idx := i + 1
+		rec := entry.Step{Index: idx, Of: n, ID: step.ID, Kind: string(step.Kind), FieldMode: step.FieldMode, State: entry.StepStarted}
+		if err := e.journal(ctx, entry.KindStep, rec); err != nil {
+			return e.finish(ctx, sum, err)
+		}
+		err := e.doStep(ctx, idx, step)
+		var skip *skipError
+		switch {
+		case err == nil:
+			rec.State = entry.StepDone
+		case errors.As(err, &skip):
+			rec.State = entry.StepSkipped
+			rec.Reason = skip.reason
+		case errors.Is(err, errRetakePrev):
+			j := e.previousRetakable(i)
+			if j < 0 {
+				_ = e.say(ctx, idx, panel.Message{Text: "There is no earlier step to retake.", Level: panel.Info})
+				continue
+			}
+			for k := j; k <= i; k++ {
+				s := steps[k]
+				if k == j || st.done[k+1] {
+					st.done[k+1] = false
+					delete(st.meas, s.ID)
+					if err := e.journal(ctx, entry.KindStep, entry.Step{Index: k + 1, Of: n, ID: s.ID, Kind: string(s.Kind), FieldMode: s.FieldMode, State: entry.StepRetake, Reason: "operator asked to retake"}); err != nil {
+						return e.finish(ctx, sum, err)
+					}
+				}
+			}
+			_ = e.say(ctx, j+1, panel.Message{Text: fmt.Sprintf("Retaking step %d of %d.", j+1, n), Level: panel.Retry})
+			i = j
+			continue
+		default:
+			if errors.Is(err, ErrPaused) {
+				sum.Outcome = "paused"
+			} else {
+				rec.State = entry.StepAborted
+				rec.Reason = err.Error()
+				_ = e.journal(ctx, entry.KindStep, rec)
+			}
+			return e.finish(ctx, sum, err)
+		}
+		if err := e.journal(ctx, entry.KindStep, rec); err != nil {
+			return e.finish(ctx, sum, err)
+		}
+		st.done[idx] = true
+		if step.Safety && rec.State == entry.StepDone {
+			st.checklist = true
+		}
+		i++
+	}
+	sum.Outcome = "complete"
+	return e.finish(ctx, sum, nil)
+}
+
+// previousRetakable is the last step before i that a retake can redo.
+func (e *Engine) previousRetakable(i int) int {
+	for j := i - 1; j >= 0; j-- {
+		switch e.cfg.Procedure.Steps[j].Kind {
+		case Announce, Compute, Judge:
+			continue
+		}
+		return j
+	}
+	return -1
+}
+
+// finish closes the session (unless paused or cut short by ctx), fills
+// the summary and speaks the outcome.
+func (e *Engine) finish(ctx context.Context, sum Summary, runErr error) (Summary, error) {
+	st := e.st
+	if st == nil {
+		return sum, runErr
+	}
+	sum.BeamOn = st.beamOn
+	for _, id := range st.order {
+		r := st.results[id]
+		sum.Results = append(sum.Results, r)
+		if needsReview(r) {
+			sum.Review++
+		}
+	}
+	for _, d := range st.done {
+		if d {
+			sum.Steps++
+		}
+	}
+	if ctx.Err() != nil {
+		// Power cut or kill: leave the session unfinished for a resume.
+		sum.Outcome = "interrupted"
+		return sum, errors.Join(runErr, ctx.Err())
+	}
+	if errors.Is(runErr, ErrPaused) {
+		_ = e.say(ctx, 0, panel.Message{Text: "Paused. Run again to resume where you left off.", Level: panel.Info})
+		return sum, runErr
+	}
+	end := entry.SessionEnd{Finished: e.cfg.Clock.Now(), BeamOn: st.beamOn.Seconds(), Steps: sum.Steps, Outcome: sum.Outcome, Review: sum.Review}
+	if sum.Outcome != "complete" {
+		end.Outcome = "aborted"
+	}
+	if err := e.journal(ctx, entry.KindSessionEnd, end); err != nil {
+		return sum, errors.Join(runErr, err)
+	}
+	if runErr != nil {
+		_ = e.cfg.Panel.Indicate(ctx, panel.Fault)
+		return sum, runErr
+	}
+	text := "All steps done."
+	switch sum.Review {
+	case 0:
+		text += " No results need review."
+	case 1:
+		text += " One result needs review" + reviewWhy(sum.Results) + "."
+	default:
+		text += fmt.Sprintf(" %s results need review%s.", spellCount(sum.Review), reviewWhy(sum.Results))
+	}
+	text += " Beam-on time " + spokenDuration(st.beamOn) + "."
+	_ = e.say(ctx, 0, panel.Message{Text: text, Level: panel.Info})
+	_ = e.cfg.Panel.Indicate(ctx, panel.Ready)
+	return sum, nil
+}
+
+func needsReview(r entry.Result) bool { return r.Verdict == "fail" || !r.Calibrated }
+
+func reviewWhy(rs []entry.Result) string {
+	var why []string
+	for _, r := range rs {
+		if r.Verdict == "fail" {
+			w := spokenQuantity(r.Quantity)
+			if r.DecidedBy != "" {
+				w += " " + r.DecidedBy
+			}
+			why = append(why, w)
+		}
+	}
+	if len(why) == 0 {
+		return ": not calibrated"
+	}
+	return ": " + strings.Join(why, ", ")
+}
+
+func spellCount(n int) string {
+	words := []string{"Zero", "One", "Two", "Three", "Four", "Five", "Six", "Seven", "Eight", "Nine", "Ten"}
+	if n >= 0 && n < len(words) {
+		return words[n]
+	}
+	return fmt.Sprint(n)
+}
+
+// spokenDuration says a duration the way a person would.
+func spokenDuration(d time.Duration) string {
+	s := int(d.Round(time.Second) / time.Second)
+	m := s / 60
+	s %= 60
+	switch {
+	case m == 0:
+		return fmt.Sprintf("%d seconds", s)
+	case s == 0:
+		return fmt.Sprintf("%d minute%s", m, plural(m))
+	default:
+		return fmt.Sprintf("%d minute%s %d seconds", m, plural(m), s)
+	}
+}
+
+func plural(n int) string {
+	if n == 1 {
+		return ""
+	}
+	return "s"
+}
+
+// journal appends a record to the session.
+func (e *Engine) journal(ctx context.Context, kind entry.Kind, payload any) error {
+	_, err := e.appendSeq(ctx, kind, payload)
+	return err
+}
+
+func (e *Engine) appendSeq(ctx context.Context, kind entry.Kind, payload any) (int64, error) {
+	seq, err := e.cfg.Journal.Append(ctx, e.st.session, kind, payload)
+	if err != nil {
+		return 0, fmt.Errorf("journal %s record: %w", kind, err)
+	}
+	return seq, nil
+}
+
+// say shows and speaks m, and journals it.
+func (e *Engine) say(ctx context.Context, step int, m panel.Message) error {
+	if err := e.journal(ctx, entry.KindPrompt, entry.Prompt{Step: step, Level: string(m.Level), Action: string(m.Action), Text: m.Text}); err != nil {
+		return err
+	}
+	if err := e.cfg.Panel.Say(ctx, m); err != nil {
+		if ctx.Err() != nil {
+			return ctx.Err()
+		}
+		slog.Warn("panel could not say a message", "text", m.Text, "err", err)
+	}
+	return nil
+}
+
+// ask asks p and journals the prompt and the answer. Pause, abort and
+// retake come back as ErrPaused, ErrAborted and errRetakePrev.
+func (e *Engine) ask(ctx context.Context, p panel.Prompt) (panel.Response, error) {
+	if p.Of == 0 {
+		p.Of = len(e.cfg.Procedure.Steps)
+	}
+	if p.Next == "" {
+		p.Next = e.nextText(p.Step)
+	}
+	seq, err := e.appendSeq(ctx, entry.KindPrompt, entry.Prompt{Step: p.Step, Level: string(p.Level), Action: string(p.Action), Text: p.Text, Asked: true})
+	if err != nil {
+		return panel.Response{}, err
+	}
+	r, err := e.cfg.Panel.Ask(ctx, p)
+	if err != nil {
+		return r, fmt.Errorf("panel: %w", err)
+	}
+	at := r.At
+	if at.IsZero() {
+		at = e.cfg.Clock.Now()
+	}
+	if err := e.journal(ctx, entry.KindAck, entry.Ack{Step: p.Step, PromptSeq: seq, Answer: string(r.Answer), Text: p.Text, At: at}); err != nil {
+		return r, err
+	}
+	switch r.Answer {
+	case panel.Pause:
+		_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: p.Step, Name: evPaused, BeamOn: e.st.beamOn.Seconds()})
+		return r, ErrPaused
+	case panel.Abort:
+		_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: p.Step, Name: evAborted, BeamOn: e.st.beamOn.Seconds()})
+		return r, ErrAborted
+	case panel.Retake:
+		return r, errRetakePrev
+	}
+	return r, nil
+}
+
+// nextText is the progress line: what comes after step idx, and the
+// beam-on time so far.
+func (e *Engine) nextText(idx int) string {
+	steps := e.cfg.Procedure.Steps
+	next := "the end"
+	if idx >= 0 && idx < len(steps) {
+		next = firstSentence(steps[idx].Text)
+		if next == "" {
+			next = strings.ReplaceAll(string(steps[idx].Kind), "_", " ")
+		}
+	}
+	return fmt.Sprintf("%s (beam-on so far %s)", next, spokenDuration(e.st.beamOn))
+}
+
+func firstSentence(s string) string {
+	s = strings.TrimSpace(s)
+	if i := strings.IndexAny(s, ".\n"); i > 0 {
+		return s[:i]
+	}
+	return s
+}
+
+// doStep runs one step.
+func (e *Engine) doStep(ctx context.Context, idx int, s Step) error {
+	n := len(e.cfg.Procedure.Steps)
+	base := panel.Prompt{Step: idx, Of: n, StepID: s.ID}
+	switch s.Kind {
+	case Announce:
+		return e.say(ctx, idx, panel.Message{Text: s.Text, Level: panel.Info, Setup: s.Setup})
+	case Instruct:
+		p := base
+		p.Message = panel.Message{Text: s.Text, Level: panel.Info, Action: panel.ActAcknowledge, Setup: s.Setup}
+		if len(s.Setup) > 0 {
+			p.Action = panel.ActSetup
+		}
+		_, err := e.ask(ctx, p)
+		return err
+	case Checklist:
+		if s.Text != "" {
+			if err := e.say(ctx, idx, panel.Message{Text: s.Text, Level: panel.Info}); err != nil {
+				return err
+			}
+		}
+		for k, item := range s.Items {
+			p := base
+			p.Message = panel.Message{Text: item, Level: panel.Info, Action: panel.ActCheck}
+			if s.Safety {
+				p.Message.Setup = map[string]string{"checklist": "pre-exposure", "item": fmt.Sprint(k + 1)}
+			}
+			if _, err := e.ask(ctx, p); err != nil {
+				return err
+			}
+		}
+		return nil
+	case Enter:
+		return e.enter(ctx, idx, s, base)
+	case Measure:
+		return e.measure(ctx, idx, s)
+	case Compute:
+		return e.compute(ctx, idx, s)
+	case Judge:
+		return e.judge(ctx, idx, s)
+	}
+	return fmt.Errorf("step %d (%s): unknown kind %q", idx, s.ID, s.Kind)
+}
+
+func (e *Engine) enter(ctx context.Context, idx int, s Step, base panel.Prompt) error {
+	v := s.Value
+	if v == nil {
+		return fmt.Errorf("step %d (%s): enter step without a value", idx, s.ID)
+	}
+	req := &panel.ValueRequest{Name: v.Name, Unit: v.Unit, Default: v.Default, HasDef: v.HasDef, Min: v.Min, Max: v.Max}
+	source := "bench default"
+	if d, ok := e.cfg.Values[v.Name]; ok {
+		req.Default, req.HasDef = d, true
+	} else if !v.HasDef {
+		source = "operator"
+	}
+	for attempt := 0; ; attempt++ {
+		p := base
+		text := s.Text
+		if text == "" {
+			text = "Enter the " + strings.ReplaceAll(v.Name, "_", " ") + " in " + v.Unit + "."
+		}
+		p.Message = panel.Message{Text: text, Level: panel.Info, Action: panel.ActValue}
+		p.Value = req
+		r, err := e.ask(ctx, p)
+		if err != nil {
+			return err
+		}
+		val := r.Value
+		if req.HasDef && val == req.Default {
+			// accepted as offered
+		} else if req.HasDef && val == 0 && (req.Min > 0 || req.Max < 0) {
+			val = req.Default // a plain press accepts the default
+		} else {
+			source = "operator"
+		}
+		if (req.Min != 0 || req.Max != 0) && (val < req.Min || val > req.Max) {
+			if err := e.say(ctx, idx, panel.Message{Text: fmt.Sprintf("%s %s is outside %s to %s %s. Please enter it again.", fmtNum(val), v.Unit, fmtNum(req.Min), fmtNum(req.Max), v.Unit), Level: panel.Retry}); err != nil {
+				return err
+			}
+			if attempt >= 5 {
+				return fmt.Errorf("step %d (%s): no plausible %s entered", idx, s.ID, v.Name)
+			}
+			continue
+		}
+		e.st.values[v.Name] = val
+		return e.journal(ctx, entry.KindValue, entry.Value{Step: idx, Name: v.Name, Value: val, Unit: v.Unit, Source: source})
+	}
+}
