@@ -1,0 +1,280 @@
+package profile
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"log/slog"
+	"time"
+
+	"kermalux/drivers"
+	"kermalux/drivers/clock"
+	"kermalux/drivers/serialline"
+)
+
+// Options are the collaborators of an open meter.
+type Options struct {
+	// Name is the meter's role in the bench file ("dosimeter"); it is
+	// copied into every Reading.
+	Name string
+	// Clock stamps readings and scales the profile's timeouts; the real
+	// clock when nil.
+	Clock clock.Clock
+	// Log receives link and protocol events; slog.Default() when nil.
+	Log *slog.Logger
+}
+
+// Meter is a meter driven by a profile over a serial line. It implements
+// drivers.Meter and drivers.Identifier. Use it from one goroutine.
+type Meter struct {
+	p    *Profile
+	port *serialline.Port
+	opts Options
+
+	gen       uint64 // port generation the set-up was done for
+	reconnect bool   // the next reading is the first after a reconnection
+	dirty     bool   // a reply may be pending after an error: flush first
+	streaming bool   // the start command has been acknowledged
+}
+
+var (
+	_ drivers.Meter      = (*Meter)(nil)
+	_ drivers.Identifier = (*Meter)(nil)
+)
+
+// Open opens port with the profile's serial settings and runs its set-up
+// commands (and, for a streaming meter, its start command). port may be a
+// device or a stable link; the link is resolved again on every reconnect.
+func Open(ctx context.Context, p *Profile, port string, opts Options) (*Meter, error) {
+	if opts.Clock == nil {
+		opts.Clock = clock.NewReal()
+	}
+	if opts.Log == nil {
+		opts.Log = slog.Default()
+	}
+	if opts.Name == "" {
+		opts.Name = p.Name
+	}
+	cfg := p.Line
+	cfg.Port = port
+	cfg.ReadTimeout = realTime(opts.Clock, p.ReplyTimeout)
+	sp, err := serialline.Open(ctx, cfg, serialline.Options{Clock: opts.Clock, Log: opts.Log})
+	if err != nil {
+		return nil, fmt.Errorf("%s (%s): %w", opts.Name, p.Name, err)
+	}
+	m := &Meter{p: p, port: sp, opts: opts}
+	if err := m.prepare(ctx); err != nil {
+		sp.Close()
+		return nil, err
+	}
+	return m, nil
+}
+
+// realTime converts a duration of the meter's clock into the operating
+// system's time for read timeouts, never below 20 ms; a manual clock
+// (which reports 0) keeps the duration as given.
+func realTime(c clock.Clock, d time.Duration) time.Duration {
+	r := c.Real(d)
+	if r <= 0 {
+		return d
+	}
+	if r < 20*time.Millisecond {
+		return 20 * time.Millisecond
+	}
+	return r
+}
+
+// Profile returns the meter's profile.
+func (m *Meter) Profile() *Profile { return m.p }
+
+// Port returns the transport (for its name and state).
+func (m *Meter) Port() *serialline.Port { return m.port }
+
+func (m *Meter) errorf(format string, args ...any) error {
+	return fmt.Errorf("%s (%s) on %s: %w", m.opts.Name, m.p.Name, m.port.Name(), fmt.Errorf(format, args...))
+}
+
+// prepare (re)runs set-up and start when the link was (re)opened.
+func (m *Meter) prepare(ctx context.Context) error {
+	if err := m.port.Ensure(ctx); err != nil {
+		return m.errorf("%w", err)
+	}
+	g := m.port.Generation()
+	if g == m.gen {
+		return nil
+	}
+	if m.gen != 0 {
+		m.reconnect = true
+		m.streaming = false
+		m.opts.Log.Info("meter reconnected", "meter", m.opts.Name, "port", m.port.Name(), "device", m.port.Device())
+	}
+	for _, x := range m.p.Setup {
+		if err := m.exchange(ctx, x); err != nil {
+			return err
+		}
+	}
+	if m.p.Mode == Streaming {
+		if err := m.exchange(ctx, m.p.Start); err != nil {
+			return err
+		}
+		m.streaming = true
+	}
+	m.gen = g
+	m.dirty = false
+	return nil
+}
+
+// exchange sends a command and waits for its exact reply, skipping lines
+// that are readings (a streaming meter may still be talking).
+func (m *Meter) exchange(ctx context.Context, x Exchange) error {
+	if err := m.port.WriteLine(ctx, x.Send); err != nil {
+		return m.errorf("sending %q: %w", x.Send, err)
+	}
+	if x.Expect == "" {
+		return nil
+	}
+	_, err := m.await(ctx, x.Send, fmt.Sprintf("%q", x.Expect), func(s string) bool { return s == x.Expect })
+	return err
+}
+
+// await reads lines until match accepts one, skipping up to 100 lines
+// that match the reading pattern; any other line is an error.
+func (m *Meter) await(ctx context.Context, sent, want string, match func(string) bool) (serialline.Line, error) {
+	for skipped := 0; ; skipped++ {
+		l, err := m.port.ReadLine(ctx)
+		if err != nil {
+			m.dirty = true
+			return l, m.errorf("after %q, expected %s: %w", sent, want, err)
+		}
+		if match(l.Text) {
+			return l, nil
+		}
+		if skipped < 100 && m.p.Pattern.MatchString(l.Text) {
+			continue
+		}
+		m.dirty = true
+		return l, m.errorf("%w: after %q, expected %s, got %q", drivers.ErrGarbled, sent, want, l.Text)
+	}
+}
+
+// Identify asks the meter who it is. Without an identify command in the
+// profile it returns the profile's maker and model.
+func (m *Meter) Identify(ctx context.Context) (drivers.Identity, error) {
+	id := drivers.Identity{Maker: m.p.Maker, Model: m.p.Model}
+	if m.p.Identify == "" {
+		return id, nil
+	}
+	if err := m.prepare(ctx); err != nil {
+		return id, err
+	}
+	if err := m.port.WriteLine(ctx, m.p.Identify); err != nil {
+		return id, m.errorf("sending %q: %w", m.p.Identify, err)
+	}
+	re := m.p.IdentifyPattern
+	l, err := m.await(ctx, m.p.Identify, "a reply matching "+re.String(), re.MatchString)
+	if err != nil {
+		return id, err
+	}
+	sub := re.FindStringSubmatch(l.Text)
+	for i, name := range re.SubexpNames() {
+		if i == 0 || sub[i] == "" {
+			continue
+		}
+		switch name {
+		case "maker":
+			id.Maker = sub[i]
+		case "model":
+			id.Model = sub[i]
+		case "serial":
+			id.Serial = sub[i]
+		case "firmware":
+			id.Firmware = sub[i]
+		}
+	}
+	id.Raw = l.Text
+	return id, nil
+}
+
+// Read returns the next reading: a polled meter is queried, a streaming
+// meter's next line is awaited (at most SilentPeriods periods: longer is
+// reported as a silent meter, wrapping drivers.ErrTimeout, and the stream
+// is restarted on the next call). Instrument statuses other than ok come
+// back as readings with that status; a garbled line or a wrong unit is an
+// error wrapping drivers.ErrGarbled or drivers.ErrUnit, and a lost link
+// drivers.ErrLinkDown (the next call reconnects).
+func (m *Meter) Read(ctx context.Context) (drivers.Reading, error) {
+	if err := m.prepare(ctx); err != nil {
+		return drivers.Reading{}, err
+	}
+	var (
+		l   serialline.Line
+		err error
+	)
+	switch m.p.Mode {
+	case Polled:
+		if m.dirty {
+			m.port.Flush() // a late reply to an earlier query is not fresh
+			m.dirty = false
+		}
+		if err := m.port.WriteLine(ctx, m.p.Query); err != nil {
+			return drivers.Reading{}, m.errorf("sending %q: %w", m.p.Query, err)
+		}
+		l, err = m.port.ReadLine(ctx)
+		if err != nil {
+			m.dirty = true
+			return drivers.Reading{}, m.errorf("reply to %q: %w", m.p.Query, err)
+		}
+	case Streaming:
+		if !m.streaming {
+			if err := m.exchange(ctx, m.p.Start); err != nil {
+				return drivers.Reading{}, err
+			}
+			m.streaming = true
+		}
+		wd := m.p.Watchdog()
+		l, err = m.port.ReadLineTimeout(ctx, realTime(m.opts.Clock, wd))
+		if err != nil {
+			if errors.Is(err, drivers.ErrTimeout) {
+				m.streaming = false
+				return drivers.Reading{}, m.errorf("meter silent: no reading for %d periods of %v (%w)", m.p.SilentPeriods, m.p.Period, err)
+			}
+			return drivers.Reading{}, m.errorf("%w", err)
+		}
+	}
+	return m.reading(l)
+}
+
+func (m *Meter) reading(l serialline.Line) (drivers.Reading, error) {
+	r := drivers.Reading{
+		Meter:          m.opts.Name,
+		Quantity:       m.p.Quantity,
+		Raw:            l.Text,
+		Mono:           l.Mono,
+		Wall:           l.Wall,
+		AfterReconnect: m.reconnect || l.AfterReconnect,
+		Status:         drivers.StatusFault,
+	}
+	m.reconnect = false
+	v, unit, st, err := m.p.ParseLine(l.Text)
+	r.RawValue, r.RawUnit = v, unit
+	if err != nil {
+		m.dirty = true
+		return r, m.errorf("%w", err)
+	}
+	c, err := m.p.Convert(v, unit)
+	if err != nil {
+		return r, m.errorf("%w", err)
+	}
+	r.Value, r.Unit, r.Status = c, unitsCanonical(m.p), st
+	return r, nil
+}
+
+// Close stops a streaming meter (best effort) and closes the port.
+func (m *Meter) Close() error {
+	if m.p.Mode == Streaming && m.p.Stop != "" && m.port.Up() {
+		ctx, cancel := context.WithTimeout(context.Background(), 200*time.Millisecond)
+		m.port.WriteLine(ctx, m.p.Stop)
+		cancel()
+	}
+	return m.port.Close()
+}

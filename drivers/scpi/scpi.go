@@ -1,0 +1,486 @@
+// Package scpi drives a meter that speaks SCPI over a serial line:
+// identification with *IDN? (the four comma-separated fields of IEEE
+// 488.2, 10.14: maker, model, serial number, firmware), configurable
+// set-up commands, a configurable reading query (READ? by default), the
+// unit queried or configured, and the error queue (SYST:ERR?) drained after
+// every reading so that an instrument error is reported with the reading it
+// spoilt.
+//
+// SCPI (1999.0, Vol. 1, 7.2.1) writes an overflow as 9.9E37 and
+// not-a-number as 9.91E37; they come back as over range and fault.
+package scpi
+
+import (
+	"context"
+	"fmt"
+	"log/slog"
+	"math"
+	"strconv"
+	"strings"
+	"time"
+
+	"kermalux/drivers"
+	"kermalux/drivers/clock"
+	"kermalux/drivers/serialline"
+	"kermalux/drivers/units"
+)
+
+// SCPI special values (SCPI 1999.0 Vol. 1, 7.2.1.4 and 7.2.1.5).
+const (
+	Overflow = 9.9e37
+	NotANum  = 9.91e37
+)
+
+// Config describes an SCPI meter.
+type Config struct {
+	// Line is the serial settings; zero fields default to 19200 8N1 with
+	// LF line ends both ways.
+	Line serialline.Config
+	// Quantity measured; air_kerma_rate when empty.
+	Quantity units.Quantity
+	// Init commands sent after every (re)open, in order; SCPI set-up
+	// commands send no reply. Default: *RST, *CLS, CONF:KRAT.
+	Init []string
+	// Query is the reading query; READ? when empty.
+	Query string
+	// Unit is the unit readings are in, in SCPI spelling (UGY/S) or
+	// ours (uGy/s). When empty it is asked with UnitQuery after set-up.
+	Unit string
+	// UnitQuery asks the unit; UNIT:KRAT? when empty.
+	UnitQuery string
+	// ErrorQuery reads one error-queue entry; SYST:ERR? when empty, "-"
+	// to never ask.
+	ErrorQuery string
+	// ReplyTimeout bounds each reply (meter's clock time); 1 s when zero.
+	ReplyTimeout time.Duration
+}
+
+// DefaultInit is the set-up of an air-kerma-rate meter.
+var DefaultInit = []string{"*RST", "*CLS", "CONF:KRAT"}
+
+func (c *Config) defaults() {
+	if c.Line.Baud == 0 {
+		c.Line.Baud = 19200
+	}
+	if c.Line.SendEnd == "" {
+		c.Line.SendEnd = serialline.LF
+	}
+	if c.Line.ReceiveEnd == "" {
+		c.Line.ReceiveEnd = serialline.LF
+	}
+	if c.Quantity == "" {
+		c.Quantity = units.AirKermaRate
+	}
+	if c.Init == nil {
+		c.Init = DefaultInit
+	}
+	if c.Query == "" {
+		c.Query = "READ?"
+	}
+	if c.UnitQuery == "" {
+		c.UnitQuery = "UNIT:KRAT?"
+	}
+	if c.ErrorQuery == "" {
+		c.ErrorQuery = "SYST:ERR?"
+	}
+	if c.ReplyTimeout <= 0 {
+		c.ReplyTimeout = time.Second
+	}
+}
+
+// Option sets an optional collaborator of Open.
+type Option func(*options)
+
+type options struct {
+	name string
+	clk  clock.Clock
+	log  *slog.Logger
+}
+
+// WithName sets the meter's role ("dosimeter"), copied into readings.
+func WithName(name string) Option { return func(o *options) { o.name = name } }
+
+// WithClock sets the clock that stamps readings and scales timeouts.
+func WithClock(c clock.Clock) Option { return func(o *options) { o.clk = c } }
+
+// WithLogger sets the logger for link and protocol events.
+func WithLogger(l *slog.Logger) Option { return func(o *options) { o.log = l } }
+
+// Meter is an SCPI meter over a serial line; it implements drivers.Meter
+// and drivers.Identifier. Use it from one goroutine.
+type Meter struct {
+	cfg  Config
+	port *serialline.Port
+	o    options
+
+	gen       uint64
+	reconnect bool
+	dirty     bool
+	unit      string // as the meter spells it
+	ourUnit   string // as package units spells it
+}
+
+var (
+	_ drivers.Meter      = (*Meter)(nil)
+	_ drivers.Identifier = (*Meter)(nil)
+)
+
+// Open opens the port, sends the set-up commands and learns the unit.
+func Open(ctx context.Context, port string, cfg Config, opts ...Option) (*Meter, error) {
+	cfg.defaults()
+	o := options{name: "meter"}
+	for _, f := range opts {
+		f(&o)
+	}
+	if o.clk == nil {
+		o.clk = clock.NewReal()
+	}
+	if o.log == nil {
+		o.log = slog.Default()
+	}
+	if !cfg.Quantity.Valid() {
+		return nil, fmt.Errorf("%s on %s: quantity %q: expected air_kerma_rate, air_kerma or luminance", o.name, port, cfg.Quantity)
+	}
+	lc := cfg.Line
+	lc.Port = port
+	lc.ReadTimeout = realTime(o.clk, cfg.ReplyTimeout)
+	sp, err := serialline.Open(ctx, lc, serialline.Options{Clock: o.clk, Log: o.log})
+	if err != nil {
+		return nil, fmt.Errorf("%s (SCPI): %w", o.name, err)
+	}
+	m := &Meter{cfg: cfg, port: sp, o: o}
+	if cfg.Unit != "" {
+		if err := m.setUnit(cfg.Unit); err != nil {
+			sp.Close()
+			return nil, err
+		}
+	}
+	if err := m.prepare(ctx); err != nil {
+		sp.Close()
+		return nil, err
+	}
+	return m, nil
+}
+
+func realTime(c clock.Clock, d time.Duration) time.Duration {
+	r := c.Real(d)
+	if r <= 0 {
+		return d
+	}
+	if r < 20*time.Millisecond {
+		return 20 * time.Millisecond
+	}
+	return r
+}
+
+// Port returns the transport.
+func (m *Meter) Port() *serialline.Port { return m.port }
+
+// Unit returns the unit readings arrive in, as the meter spells it.
+func (m *Meter) Unit() string { return m.unit }
+
+func (m *Meter) errorf(format string, args ...any) error {
+	return fmt.Errorf("%s (SCPI) on %s: %w", m.o.name, m.port.Name(), fmt.Errorf(format, args...))
+}
+
+func (m *Meter) prepare(ctx context.Context) error {
+	if err := m.port.Ensure(ctx); err != nil {
+		return m.errorf("%w", err)
+	}
+	g := m.port.Generation()
+	if g == m.gen {
+		return nil
+	}
+	if m.gen != 0 {
+		m.reconnect = true
+		m.o.log.Info("meter reconnected", "meter", m.o.name, "port", m.port.Name())
+	}
+	for _, c := range m.cfg.Init {
+		if err := m.port.WriteLine(ctx, c); err != nil {
+			return m.errorf("sending %q: %w", c, err)
+		}
+	}
+	if m.cfg.Unit == "" {
+		u, err := m.query(ctx, m.cfg.UnitQuery)
+		if err != nil {
+			return err
+		}
+		if err := m.setUnit(u); err != nil {
+			return err
+		}
+	}
+	m.gen = g
+	return nil
+}
+
+// setUnit accepts a unit in SCPI spelling (case-insensitive mnemonics,
+// where a leading M is milli and MA mega: SCPI 1999.0 Vol. 1, 7.7.3) or in
+// ours.
+func (m *Meter) setUnit(u string) error {
+	ours, err := Unit(m.cfg.Quantity, u)
+	if err != nil {
+		return m.errorf("%w", err)
+	}
+	m.unit, m.ourUnit = strings.TrimSpace(u), ours
+	return nil
+}
+
+// scpiUnits maps upper-case SCPI unit mnemonics to our spelling.
+var scpiUnits = map[string]string{
+	"GY/S": "Gy/s", "MGY/S": "mGy/s", "UGY/S": "µGy/s", "NGY/S": "nGy/s",
+	"GY/MIN": "Gy/min", "MGY/MIN": "mGy/min", "UGY/MIN": "µGy/min",
+	"MGY/H": "mGy/h", "UGY/H": "µGy/h",
+	"R/S": "R/s", "MR/S": "mR/s", "UR/S": "µR/s",
+	"R/MIN": "R/min", "MR/MIN": "mR/min", "R/H": "R/h", "MR/H": "mR/h",
+	"GY": "Gy", "MGY": "mGy", "UGY": "µGy", "NGY": "nGy", "R": "R", "MR": "mR", "UR": "µR",
+	"CD/M2": "cd/m²", "FL": "fL",
+}
+
+// Unit converts a unit as an SCPI meter prints it into package units'
+// spelling, checking that it measures q. An unknown unit is
+// drivers.ErrUnit.
+func Unit(q units.Quantity, u string) (string, error) {
+	u = strings.TrimSpace(strings.Trim(strings.TrimSpace(u), `"`))
+	cand := u
+	if s, ok := scpiUnits[strings.ToUpper(u)]; ok {
+		cand = s
+	}
+	if _, err := units.ToCanonical(q, 1, cand); err != nil {
+		return "", fmt.Errorf("%w: %q is not a unit of %s (expected one convertible to %s, such as UGY/S)", drivers.ErrUnit, u, q, units.Canonical(q))
+	}
+	return cand, nil
+}
+
+// query sends a command and returns its one-line reply.
+func (m *Meter) query(ctx context.Context, cmd string) (string, error) {
+	if m.dirty {
+		m.port.Flush()
+		m.dirty = false
+	}
+	if err := m.port.WriteLine(ctx, cmd); err != nil {
+		return "", m.errorf("sending %q: %w", cmd, err)
+	}
+	l, err := m.port.ReadLine(ctx)
+	if err != nil {
+		m.dirty = true
+		return "", m.errorf("reply to %q: %w", cmd, err)
+	}
+	return l.Text, nil
+}
+
+// Identify sends *IDN? and splits the IEEE 488.2 reply.
+func (m *Meter) Identify(ctx context.Context) (drivers.Identity, error) {
+	if err := m.prepare(ctx); err != nil {
+		return drivers.Identity{}, err
+	}
+	s, err := m.query(ctx, "*IDN?")
+	if err != nil {
+		return drivers.Identity{}, err
+	}
+	id, err := ParseIDN(s)
+	if err != nil {
+		m.dirty = true
+		return id, m.errorf("%w", err)
+	}
+	return id, nil
+}
+
+// ParseIDN splits an *IDN? reply into its four fields (IEEE 488.2,
+// 10.14.1: manufacturer, model, serial number or 0, firmware level or 0).
+func ParseIDN(s string) (drivers.Identity, error) {
+	f := strings.Split(s, ",")
+	if len(f) != 4 {
+		return drivers.Identity{Raw: s}, fmt.Errorf("%w: *IDN? reply %q: expected four comma-separated fields (maker,model,serial,firmware)", drivers.ErrGarbled, s)
+	}
+	for i := range f {
+		f[i] = strings.TrimSpace(f[i])
+	}
+	if f[0] == "" || f[1] == "" {
+		return drivers.Identity{Raw: s}, fmt.Errorf("%w: *IDN? reply %q: expected a maker and a model", drivers.ErrGarbled, s)
+	}
+	return drivers.Identity{Maker: f[0], Model: f[1], Serial: f[2], Firmware: f[3], Raw: s}, nil
+}
+
+// ParseNumber reads an SCPI numeric reply (NR1, NR2 or NR3 of IEEE 488.2,
+// 8.7) and classifies the SCPI special values: 9.9E37 is over range and
+// 9.91E37 (not a number) is a fault. -9.9E37 is taken as under range.
+func ParseNumber(s string) (float64, drivers.Status, error) {
+	t := strings.TrimSpace(s)
+	if t == "" || !numeric(t) {
+		return 0, "", fmt.Errorf("%w: %q: expected a number such as 1.2340E-01", drivers.ErrGarbled, s)
+	}
+	v, err := strconv.ParseFloat(t, 64)
+	if err != nil || math.IsInf(v, 0) || math.IsNaN(v) {
+		return 0, "", fmt.Errorf("%w: %q: expected a finite number", drivers.ErrGarbled, s)
+	}
+	switch {
+	case near(v, NotANum):
+		return v, drivers.StatusFault, nil
+	case near(v, Overflow):
+		return v, drivers.StatusOverRange, nil
+	case near(v, -Overflow):
+		return v, drivers.StatusUnderRange, nil
+	}
+	return v, drivers.StatusOK, nil
+}
+
+func near(a, b float64) bool { return math.Abs(a-b) <= 1e-6*math.Abs(b) }
+
+// numeric accepts [+-]digits[.digits][E[+-]digits] and nothing else.
+func numeric(s string) bool {
+	i := 0
+	if s[0] == '+' || s[0] == '-' {
+		i++
+	}
+	d := 0
+	for ; i < len(s) && s[i] >= '0' && s[i] <= '9'; i++ {
+		d++
+	}
+	if i < len(s) && s[i] == '.' {
+		i++
+		for ; i < len(s) && s[i] >= '0' && s[i] <= '9'; i++ {
+			d++
+		}
+	}
+	if d == 0 {
+		return false
+	}
+	if i < len(s) && (s[i] == 'E' || s[i] == 'e') {
+		i++
+		if i < len(s) && (s[i] == '+' || s[i] == '-') {
+			i++
+		}
+		e := 0
+		for ; i < len(s) && s[i] >= '0' && s[i] <= '9'; i++ {
+			e++
+		}
+		if e == 0 || e > 4 {
+			return false
+		}
+	}
+	return i == len(s)
+}
+
+// QueueEntry is one entry of the SCPI error queue.
+type QueueEntry struct {
+	Code    int
+	Message string
+}
+
+func (e QueueEntry) String() string { return fmt.Sprintf("%d,%q", e.Code, e.Message) }
+
+// ParseError reads a SYST:ERR? reply: <code>,"<message>" (SCPI 1999.0
+// Vol. 2, 21.8.8). Code 0 means the queue is empty.
+func ParseError(s string) (QueueEntry, error) {
+	code, msg, ok := strings.Cut(strings.TrimSpace(s), ",")
+	if !ok {
+		return QueueEntry{}, fmt.Errorf("%w: SYST:ERR? reply %q: expected <code>,\"<message>\"", drivers.ErrGarbled, s)
+	}
+	n, err := strconv.Atoi(strings.TrimSpace(code))
+	if err != nil {
+		return QueueEntry{}, fmt.Errorf("%w: SYST:ERR? reply %q: expected a whole-number code before the comma", drivers.ErrGarbled, s)
+	}
+	msg = strings.TrimSpace(msg)
+	if len(msg) < 2 || msg[0] != '"' || msg[len(msg)-1] != '"' {
+		return QueueEntry{}, fmt.Errorf("%w: SYST:ERR? reply %q: expected the message in double quotes", drivers.ErrGarbled, s)
+	}
+	return QueueEntry{Code: n, Message: msg[1 : len(msg)-1]}, nil
+}
+
+// maxQueue bounds the error-queue drain (a meter repeating the same error
+// forever must not hang the read).
+const maxQueue = 16
+
+// drain empties the error queue.
+func (m *Meter) drain(ctx context.Context) ([]QueueEntry, error) {
+	if m.cfg.ErrorQuery == "-" {
+		return nil, nil
+	}
+	var out []QueueEntry
+	for range maxQueue {
+		s, err := m.query(ctx, m.cfg.ErrorQuery)
+		if err != nil {
+			return out, err
+		}
+		e, err := ParseError(s)
+		if err != nil {
+			m.dirty = true
+			return out, m.errorf("%w", err)
+		}
+		if e.Code == 0 {
+			return out, nil
+		}
+		out = append(out, e)
+	}
+	return out, nil
+}
+
+// dataOutOfRange is the SCPI execution error that accompanies an
+// overflow (SCPI 1999.0 Vol. 2, 21.8.9: -222).
+const dataOutOfRange = -222
+
+// Read queries a reading and drains the error queue. Error-queue entries
+// make the status fault and are appended to Raw after " | " (an over-range
+// reading whose only entries are -222 "Data out of range" stays over
+// range).
+func (m *Meter) Read(ctx context.Context) (drivers.Reading, error) {
+	if err := m.prepare(ctx); err != nil {
+		return drivers.Reading{}, err
+	}
+	if m.dirty {
+		m.port.Flush()
+		m.dirty = false
+	}
+	if err := m.port.WriteLine(ctx, m.cfg.Query); err != nil {
+		return drivers.Reading{}, m.errorf("sending %q: %w", m.cfg.Query, err)
+	}
+	l, err := m.port.ReadLine(ctx)
+	if err != nil {
+		m.dirty = true
+		return drivers.Reading{}, m.errorf("reply to %q: %w", m.cfg.Query, err)
+	}
+	r := drivers.Reading{
+		Meter: m.o.name, Quantity: m.cfg.Quantity, Raw: l.Text, Mono: l.Mono, Wall: l.Wall,
+		AfterReconnect: m.reconnect || l.AfterReconnect, Status: drivers.StatusFault, RawUnit: m.unit,
+	}
+	m.reconnect = false
+	v, st, perr := ParseNumber(l.Text)
+	if perr != nil {
+		m.dirty = true
+	}
+	errs, qerr := m.drain(ctx)
+	if perr != nil {
+		return r, m.errorf("reply to %q: %w", m.cfg.Query, perr)
+	}
+	if qerr != nil {
+		return r, qerr
+	}
+	r.RawValue = v
+	if len(errs) > 0 {
+		var b strings.Builder
+		b.WriteString(r.Raw)
+		onlyRange := true
+		for _, e := range errs {
+			b.WriteString(" | ")
+			b.WriteString(e.String())
+			if e.Code != dataOutOfRange {
+				onlyRange = false
+			}
+		}
+		r.Raw = b.String()
+		if !(st == drivers.StatusOverRange && onlyRange) {
+			st = drivers.StatusFault
+		}
+		m.o.log.Warn("meter reported errors", "meter", m.o.name, "port", m.port.Name(), "errors", r.Raw)
+	}
+	r.Status = st
+	c, err := units.ToCanonical(m.cfg.Quantity, v, m.ourUnit)
+	if err != nil {
+		return r, m.errorf("%w: %v", drivers.ErrUnit, err)
+	}
+	r.Value, r.Unit = c, units.Canonical(m.cfg.Quantity)
+	return r, nil
+}
+
+// Close closes the port.
+func (m *Meter) Close() error { return m.port.Close() }
