@@ -1,0 +1,342 @@
+package calib
+
+import (
+	"fmt"
+	"math"
+	"strings"
+	"time"
+
+	"gonum.org/v1/gonum/interp"
+
+	"kermalux/drivers/units"
+)
+
+// Applied is one correction applied to a reading, in the order applied:
+// value_after = value_before × Factor + Offset. It carries the same fields
+// as the journal's correction record.
+type Applied struct {
+	Name   string  // "dark", "calibration_coefficient", "k_tp", "backscatter", "inverse_square"
+	Factor float64 // multiplicative factor (1 if none)
+	Offset float64 // additive term after the factor (0 if none)
+	Note   string  // what it was computed from
+}
+
+// Names of corrections, as recorded in [Applied].
+const (
+	CorrDark          = "dark"
+	CorrCoefficient   = "calibration_coefficient"
+	CorrKTP           = "k_tp"
+	CorrBackscatter   = "backscatter"
+	CorrInverseSquare = "inverse_square"
+)
+
+// FlagCode says why a reading or result is not calibrated, or what else is
+// worth noting about it.
+type FlagCode string
+
+// Flag codes.
+const (
+	FlagNoCertificate  FlagCode = "no_certificate"        // no certificate for the meter
+	FlagExpired        FlagCode = "certificate_expired"   // certificate out of date on the day
+	FlagWrongQuantity  FlagCode = "certificate_quantity"  // certificate is for another quantity
+	FlagOutsideQuality FlagCode = "quality_outside_table" // beam quality outside the certificate's table
+	FlagNoQuality      FlagCode = "quality_unknown"       // beam quality not given but the table needs it
+	FlagNoAirDensity   FlagCode = "air_density_missing"   // T or P missing or implausible for a vented chamber
+	FlagGeometry       FlagCode = "geometry_invalid"      // distances missing or impossible
+	FlagNoBackscatter  FlagCode = "backscatter_unknown"   // chamber on the face but no backscatter factor
+	FlagDueSoon        FlagCode = "certificate_due_soon"  // informational: does not uncalibrate
+	FlagUnusable       FlagCode = "reading_unusable"      // the meter reported over/under range or a fault
+	FlagFewSamples     FlagCode = "too_few_samples"       // fewer than two samples: no type A estimate
+	FlagDiskSize       FlagCode = "disk_size"             // informational: lead disk not 10 % of the field
+	FlagInput          FlagCode = "input_invalid"         // an input of a figure of merit is missing or not positive
+)
+
+// Flag is a code and a sentence to say and print.
+type Flag struct {
+	Code FlagCode
+	Text string
+}
+
+func (f Flag) String() string { return f.Text }
+
+// informational flags do not stop a reading being calibrated.
+func (f Flag) informational() bool {
+	return f.Code == FlagDueSoon || f.Code == FlagDiskSize
+}
+
+// certificateFlag reports flags about a meter's calibration, which a ratio
+// read with that one meter does not depend on.
+func (f Flag) certificateFlag() bool {
+	switch f.Code {
+	case FlagNoCertificate, FlagExpired, FlagWrongQuantity, FlagOutsideQuality, FlagNoQuality, FlagDueSoon:
+		return true
+	}
+	return false
+}
+
+// FlagTexts returns the flags' sentences, for the journal.
+func FlagTexts(flags []Flag) []string {
+	if len(flags) == 0 {
+		return nil
+	}
+	out := make([]string, len(flags))
+	for i, f := range flags {
+		out[i] = f.Text
+	}
+	return out
+}
+
+// Air is the room's air temperature (°C) and pressure (kPa) near the
+// chamber. Zero or NaN means "not entered".
+type Air struct {
+	Temperature float64
+	Pressure    float64
+}
+
+// Plausible ranges of room air for k_TP; a value outside is treated as not
+// entered (common practice: rooms are kept between about 15 and 35 °C;
+// 60 kPa is the pressure near 4000 m altitude, 110 kPa above any weather
+// at sea level).
+const (
+	MinTemperature, MaxTemperature = 5.0, 45.0
+	MinPressure, MaxPressure       = 60.0, 110.0
+)
+
+// Geometry is where the chamber sits relative to the intensifier input.
+// Distances are from the focal spot, in mm.
+type Geometry struct {
+	SourceToChamber float64 // focal spot to the chamber's reference point; 0: chamber at the input plane
+	SourceToInput   float64 // focal spot to the intensifier input plane; 0: same as the chamber
+	OnFace          bool    // chamber against the input face: its reading includes backscatter
+	Backscatter     float64 // backscatter factor B entered for this set-up; 0: use the certificate's
+	GridRemoved     bool    // anti-scatter grid removed (recorded, IEC 61262-2 measures without it)
+}
+
+// Setup is everything a reading's corrections depend on besides its value.
+type Setup struct {
+	Cert     *Certificate // nil: no certificate for this meter
+	Day      time.Time    // the session's wall-clock time, for certificate validity
+	Quality  Quality      // beam quality (dosimeter)
+	Air      Air          // room air (vented chambers)
+	Geometry Geometry     // dosimeter position
+	Dark     float64      // beam-off luminance, canonical (photometer); 0 when none
+}
+
+// Corrected is a reading after corrections.
+type Corrected struct {
+	Value       float64 // corrected, canonical unit
+	Raw         float64 // the value as it arrived (canonical)
+	Applied     []Applied
+	Calibrated  bool   // every correction could be applied with an in-date certificate
+	Flags       []Flag // why not calibrated (and notes)
+	Certificate string // certificate number used, if any
+}
+
+// OutsideTableError says a beam quality lies outside a certificate's table.
+type OutsideTableError struct {
+	Cert    string
+	Axis    Axis
+	Value   float64
+	Lo, Hi  float64
+	Quality string
+}
+
+func (e *OutsideTableError) Error() string {
+	if e.Axis == AlongQuality {
+		return fmt.Sprintf("beam quality %q is not in certificate %s", e.Quality, e.Cert)
+	}
+	return fmt.Sprintf("beam quality outside certificate %s: %s %g lies outside %g to %g", e.Cert, axisWords(e.Axis), e.Value, e.Lo, e.Hi)
+}
+
+func axisWords(a Axis) string {
+	if a == AlongHVL {
+		return "half-value layer (mm Al)"
+	}
+	return "tube voltage (kV)"
+}
+
+// relTol is how close to a table end a quality may be and still count as
+// inside (rounding of the stated HVL or kV).
+const relTol = 1e-9
+
+// CoefficientAt returns the calibration coefficient at beam quality q,
+// interpolated linearly along the table's axis (gonum interp.PiecewiseLinear).
+// It refuses to extrapolate: a quality outside the table's range is an
+// *OutsideTableError. A quality named after an IEC 61267 RQA quality has
+// its HVL and tube voltage filled from [RQAQualities] when not stated.
+func (c *Certificate) CoefficientAt(q Quality) (float64, error) {
+	if len(c.Points) == 0 {
+		return c.Coefficient, nil
+	}
+	q = q.filled()
+	if c.Along == AlongQuality {
+		for _, p := range c.Points {
+			if strings.EqualFold(p.Quality.Name, q.Name) {
+				return p.Factor, nil
+			}
+		}
+		return 0, &OutsideTableError{Cert: c.Number, Axis: AlongQuality, Quality: q.Name}
+	}
+	x := c.axisValue(q)
+	lo, hi := c.axisValue(c.Points[0].Quality), c.axisValue(c.Points[len(c.Points)-1].Quality)
+	if x <= 0 || math.IsNaN(x) {
+		return 0, fmt.Errorf("certificate %s is tabulated along %s, but the beam quality gives none", c.Number, axisWords(c.Along))
+	}
+	tol := relTol * hi
+	if x < lo-tol || x > hi+tol {
+		return 0, &OutsideTableError{Cert: c.Number, Axis: c.Along, Value: x, Lo: lo, Hi: hi, Quality: q.Name}
+	}
+	if len(c.Points) == 1 {
+		return c.Points[0].Factor, nil
+	}
+	xs := make([]float64, len(c.Points))
+	ys := make([]float64, len(c.Points))
+	for i, p := range c.Points {
+		xs[i], ys[i] = c.axisValue(p.Quality), p.Factor
+	}
+	var pl interp.PiecewiseLinear
+	if err := pl.Fit(xs, ys); err != nil {
+		return 0, fmt.Errorf("certificate %s: coefficient table: %w", c.Number, err)
+	}
+	return pl.Predict(math.Min(math.Max(x, lo), hi)), nil
+}
+
+// KTP is the air-density correction for a vented ionisation chamber
+// (IAEA TRS-398 eq. (9); TRS-457; AAPM TG-61):
+//
+//	k_TP = ((273.15 + T) / (273.15 + T0)) · (P0 / P)
+//
+// with T, T0 in °C and P, P0 in kPa; T0 and P0 are the certificate's
+// reference conditions (T0 = 20 °C in TRS-398, 22 °C in TG-61).
+func KTP(t, p, t0, p0 float64) float64 {
+	return (273.15 + t) / (273.15 + t0) * (p0 / p)
+}
+
+// InverseSquare is the factor that carries an air kerma (rate) measured at
+// distance dFrom from the focal spot to distance dTo (inverse-square law,
+// point source, no attenuation between):
+//
+//	K(dTo) = K(dFrom) · (dFrom / dTo)²
+func InverseSquare(dFrom, dTo float64) float64 {
+	r := dFrom / dTo
+	return r * r
+}
+
+// BackscatterFactor is the factor that removes backscatter from a reading
+// taken with the chamber against the input face: K_free = K_measured / B.
+func BackscatterFactor(b float64) float64 { return 1 / b }
+
+// SubtractDark removes the beam-off luminance (stray light, phosphor
+// afterglow, meter offset) from a luminance reading: L = M − M_dark.
+func SubtractDark(m, dark float64) float64 { return m - dark }
+
+func usableAir(t, lo, hi float64) bool { return t >= lo && t <= hi && !math.IsNaN(t) }
+
+// Correct applies the corrections a reading of quantity q needs, in the
+// order given in the package documentation, and records each. It never
+// fails: what it cannot do is flagged and the reading is then not
+// calibrated; the value carries whatever corrections could be applied.
+func Correct(value float64, q units.Quantity, s Setup) Corrected {
+	out := Corrected{Value: value, Raw: value, Calibrated: true}
+	flag := func(code FlagCode, format string, args ...any) {
+		f := Flag{Code: code, Text: fmt.Sprintf(format, args...)}
+		out.Flags = append(out.Flags, f)
+		if !f.informational() {
+			out.Calibrated = false
+		}
+	}
+	apply := func(a Applied) {
+		out.Value = out.Value*a.Factor + a.Offset
+		out.Applied = append(out.Applied, a)
+	}
+	c := s.Cert
+	if q == units.Luminance && s.Dark != 0 {
+		apply(Applied{Name: CorrDark, Factor: 1, Offset: -s.Dark, Note: fmt.Sprintf("beam-off reading %.4g cd/m² subtracted", s.Dark)})
+	}
+	switch {
+	case c == nil:
+		flag(FlagNoCertificate, "no calibration certificate for this meter: reading not calibrated")
+	case c.Quantity != q && !(c.ForDosimeter() && (q == units.AirKerma || q == units.AirKermaRate)):
+		out.Certificate = c.Number
+		flag(FlagWrongQuantity, "certificate %s is for %s, not %s: reading not calibrated", c.Number, c.Quantity, q)
+	default:
+		out.Certificate = c.Number
+		if v := c.ValidOn(s.Day); !v.Valid {
+			flag(FlagExpired, "%s: reading not calibrated", v.Text)
+		} else if v.DueSoon {
+			flag(FlagDueSoon, "%s", v.Text)
+		}
+		n, err := c.CoefficientAt(s.Quality)
+		switch {
+		case err == nil:
+			note := fmt.Sprintf("certificate %s", c.Number)
+			if len(c.Points) > 1 {
+				fq := s.Quality.filled()
+				note = fmt.Sprintf("certificate %s, interpolated at %s %g", c.Number, c.Along, c.axisValue(fq))
+			}
+			apply(Applied{Name: CorrCoefficient, Factor: n, Note: note})
+		case isOutside(err):
+			flag(FlagOutsideQuality, "%v: reading not calibrated", err)
+		default:
+			flag(FlagNoQuality, "%v: reading not calibrated", err)
+		}
+	}
+	if q != units.AirKermaRate && q != units.AirKerma {
+		return out
+	}
+	if c != nil && c.ForDosimeter() && c.Vented {
+		a := s.Air
+		okT := usableAir(a.Temperature, MinTemperature, MaxTemperature)
+		okP := usableAir(a.Pressure, MinPressure, MaxPressure)
+		switch {
+		case !okT && !okP:
+			flag(FlagNoAirDensity, "room temperature and pressure missing for the vented chamber: no air-density correction, reading not calibrated")
+		case !okT:
+			flag(FlagNoAirDensity, "room temperature missing or implausible (%g °C) for the vented chamber: reading not calibrated", a.Temperature)
+		case !okP:
+			flag(FlagNoAirDensity, "air pressure missing or implausible (%g kPa) for the vented chamber: reading not calibrated", a.Pressure)
+		default:
+			k := KTP(a.Temperature, a.Pressure, c.RefTemperature, c.RefPressure)
+			apply(Applied{Name: CorrKTP, Factor: k, Note: fmt.Sprintf("T %.1f °C, P %.2f kPa; reference %.1f °C, %.3f kPa", a.Temperature, a.Pressure, c.RefTemperature, c.RefPressure)})
+		}
+	}
+	g := s.Geometry
+	if g.OnFace {
+		b := g.Backscatter
+		from := "entered"
+		if b == 0 && c != nil {
+			b, from = c.Backscatter, "from certificate "+c.Number
+		}
+		if b < 1 || b > 2 || math.IsNaN(b) {
+			flag(FlagNoBackscatter, "chamber on the input face but no usable backscatter factor: reading not calibrated")
+		} else {
+			apply(Applied{Name: CorrBackscatter, Factor: BackscatterFactor(b), Note: fmt.Sprintf("B = %.3g %s; chamber on the input face, %s", b, from, gridWords(g.GridRemoved))})
+		}
+	}
+	if g.SourceToChamber != 0 || g.SourceToInput != 0 {
+		dc, di := g.SourceToChamber, g.SourceToInput
+		switch {
+		case dc == 0 || di == 0:
+			// one distance given: chamber taken at the input plane, nothing to do
+		case dc < 0 || di < 0 || math.IsNaN(dc) || math.IsNaN(di):
+			flag(FlagGeometry, "distances from the focal spot must be positive (chamber %g mm, input %g mm): reading not calibrated", dc, di)
+		case dc != di:
+			apply(Applied{Name: CorrInverseSquare, Factor: InverseSquare(dc, di), Note: fmt.Sprintf("chamber at %g mm, input plane at %g mm from the focal spot; %s", dc, di, gridWords(g.GridRemoved))})
+		}
+	}
+	return out
+}
+
+func gridWords(removed bool) string {
+	if removed {
+		return "grid removed"
+	}
+	return "grid in place"
+}
+
+func isOutside(err error) bool {
+	_, ok := err.(*OutsideTableError)
+	return ok
+}
+
+func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }

@@ -1,0 +1,222 @@
+package calib
+
+import (
+	"fmt"
+	"math"
+	"sort"
+	"strings"
+	"time"
+
+	"gonum.org/v1/gonum/stat"
+)
+
+// Bound is which side of a limit passes.
+type Bound string
+
+// Bounds.
+const (
+	AtLeast Bound = "at_least" // value ≥ limit passes
+	AtMost  Bound = "at_most"  // value ≤ limit passes
+)
+
+// Kinds of limit, in the order they are checked.
+const (
+	KindSpecification = "specification" // from the intensifier's data, entered in the session
+	KindBaseline      = "baseline"      // a fraction of the intensifier's own baseline
+	KindActionLevel   = "action level"  // a local decision
+)
+
+// Limit is one acceptance limit of a figure of merit. For KindBaseline,
+// Value is a fraction of the baseline (0.8: at least 80 % of baseline);
+// otherwise it is in the result's unit.
+type Limit struct {
+	Kind  string
+	Bound Bound
+	Value float64
+}
+
+func (l Limit) words(unit string) string {
+	side := "minimum"
+	if l.Bound == AtMost {
+		side = "maximum"
+	}
+	if l.Kind == KindBaseline {
+		return fmt.Sprintf("%s %s %.0f %% of baseline", l.Kind, side, 100*l.Value)
+	}
+	if unit == UnitRatio {
+		unit = ""
+	}
+	return strings.TrimSpace(fmt.Sprintf("%s %s %.4g %s", l.Kind, side, l.Value, unit))
+}
+
+// Verdicts.
+const (
+	Pass = "pass"
+	Fail = "fail"
+	Info = "info"
+)
+
+// Verdict is a judged result.
+type Verdict struct {
+	Verdict   string // Pass, Fail or Info
+	DecidedBy string // which limit decided it, in words
+	Marginal  bool   // a limit lies within the expanded uncertainty of the value
+	Notes     []string
+}
+
+// Judge judges r against limits. baseline is the intensifier's baseline
+// value of the same figure (0: none; baseline limits are then skipped).
+//
+// How uncertainty enters (common practice, "simple acceptance"): the value
+// itself is compared with each limit; when a limit lies within the
+// expanded uncertainty U of the value the verdict stands but is marked
+// Marginal, so the report asks a physicist to look. Limits are checked in
+// the order specification, baseline, action level, and the first one
+// failed decides a Fail. When all pass, the one with the smallest margin
+// is named. A result that is not calibrated is never Pass or Fail: it is
+// Info, and the note says what the comparison would have given.
+func Judge(r Result, baseline float64, limits []Limit) Verdict {
+	order := map[string]int{KindSpecification: 0, KindBaseline: 1, KindActionLevel: 2}
+	ls := append([]Limit(nil), limits...)
+	sort.SliceStable(ls, func(i, j int) bool { return order[ls[i].Kind] < order[ls[j].Kind] })
+	var v Verdict
+	var failed *Limit
+	var failedWords string
+	closest, closestWords := math.Inf(1), ""
+	checked := 0
+	for i := range ls {
+		l := ls[i]
+		limit := l.Value
+		if l.Kind == KindBaseline {
+			if !(baseline > 0) {
+				v.Notes = append(v.Notes, "no baseline: baseline limit not checked")
+				continue
+			}
+			limit = l.Value * baseline
+		}
+		if math.IsNaN(limit) || (l.Bound != AtLeast && l.Bound != AtMost) {
+			v.Notes = append(v.Notes, fmt.Sprintf("limit %q not understood: not checked", l.Kind))
+			continue
+		}
+		checked++
+		w := l.words(r.Unit)
+		ok := r.Value >= limit
+		margin := r.Value - limit
+		if l.Bound == AtMost {
+			ok, margin = r.Value <= limit, limit-r.Value
+		}
+		if math.Abs(r.Value-limit) <= r.ExpUnc {
+			v.Marginal = true
+			v.Notes = append(v.Notes, fmt.Sprintf("%s lies within the expanded uncertainty (±%.2g)", w, r.ExpUnc))
+		}
+		if !ok && failed == nil {
+			failed, failedWords = &ls[i], w
+		}
+		if ok && margin < closest {
+			closest, closestWords = margin, w
+		}
+	}
+	switch {
+	case checked == 0:
+		v.Verdict, v.DecidedBy = Info, "no limit set"
+	case failed != nil:
+		v.Verdict, v.DecidedBy = Fail, failedWords
+	default:
+		v.Verdict, v.DecidedBy = Pass, closestWords
+	}
+	if !r.Calibrated && v.Verdict != Info {
+		v.Notes = append(v.Notes, fmt.Sprintf("would be %s on %s", v.Verdict, v.DecidedBy))
+		reason := "result not calibrated"
+		if t := FlagTexts(r.Flags); len(t) > 0 {
+			reason += ": " + t[0]
+		}
+		v.Verdict, v.DecidedBy = Info, reason
+	}
+	if v.Marginal && v.Verdict != Info {
+		v.DecidedBy += " (marginal)"
+	}
+	return v
+}
+
+// Dated is a value of a figure of merit on a day.
+type Dated struct {
+	Day   time.Time
+	Value float64
+}
+
+// Trend compares a result with the intensifier's baseline and history.
+type Trend struct {
+	Baseline   float64
+	Fraction   float64 // current / baseline
+	AnnualRate float64 // change per year, as a fraction of the baseline (−0.05: losing 5 % of baseline a year); NaN when unknown
+	Method     string  // how AnnualRate was found
+	Points     int     // results the rate was found from
+	// Crossing is the date the fitted line reaches the action level, when
+	// it moves toward it; zero otherwise.
+	Crossing time.Time
+	Beyond   bool // the current value is already past the action level
+}
+
+const daysPerYear = 365.25
+
+// Compare computes the fraction of baseline, the annual rate of change
+// and the date the action level would be crossed at that rate. The rate
+// comes from the current and all earlier results: with more than two
+// results, an ordinary least-squares line (gonum stat.LinearRegression);
+// with two, the line through them. action may be nil.
+func Compare(current Dated, baseline float64, earlier []Dated, action *Limit) (Trend, error) {
+	if !(baseline > 0) {
+		return Trend{}, fmt.Errorf("baseline %g is not positive", baseline)
+	}
+	t := Trend{Baseline: baseline, Fraction: current.Value / baseline, AnnualRate: math.NaN()}
+	pts := append(append([]Dated(nil), earlier...), current)
+	sort.SliceStable(pts, func(i, j int) bool { return pts[i].Day.Before(pts[j].Day) })
+	t.Points = len(pts)
+	t0 := pts[0].Day
+	years := func(d time.Time) float64 { return d.Sub(t0).Hours() / 24 / daysPerYear }
+	var alpha, beta float64
+	switch {
+	case len(pts) == 1:
+		t.Method = "no earlier results"
+		return t, nil
+	case len(pts) == 2:
+		dt := years(pts[1].Day)
+		if dt <= 0 {
+			return t, fmt.Errorf("two results on the same day: no rate of change")
+		}
+		beta = (pts[1].Value - pts[0].Value) / dt
+		alpha = pts[0].Value
+		t.Method = "line through two results"
+	default:
+		xs := make([]float64, len(pts))
+		ys := make([]float64, len(pts))
+		for i, p := range pts {
+			xs[i], ys[i] = years(p.Day), p.Value
+		}
+		if xs[len(xs)-1] == 0 {
+			return t, fmt.Errorf("all results on the same day: no rate of change")
+		}
+		alpha, beta = stat.LinearRegression(xs, ys, nil, false)
+		t.Method = fmt.Sprintf("least-squares line through %d results", len(pts))
+	}
+	t.AnnualRate = beta / baseline
+	if action == nil {
+		return t, nil
+	}
+	level := action.Value
+	if action.Kind == KindBaseline {
+		level *= baseline
+	}
+	switch action.Bound {
+	case AtLeast:
+		t.Beyond = current.Value < level
+	case AtMost:
+		t.Beyond = current.Value > level
+	}
+	toward := (action.Bound == AtLeast && beta < 0) || (action.Bound == AtMost && beta > 0)
+	if toward && !t.Beyond {
+		x := (level - alpha) / beta
+		t.Crossing = t0.Add(time.Duration(x * daysPerYear * 24 * float64(time.Hour)))
+	}
+	return t, nil
+}

@@ -1,0 +1,371 @@
+package calib
+
+import (
+	"math"
+	"sync"
+
+	"gonum.org/v1/gonum/stat/distuv"
+)
+
+// Coverage is the default coverage probability, 95.45 %: with infinite
+// degrees of freedom it gives k = 2 (JCGM 100:2008, Table G.2).
+const Coverage = 0.9545
+
+// Running accumulates samples one at a time (Welford's algorithm): O(1)
+// per sample, no allocation. The zero value is empty and ready.
+type Running struct {
+	n    int
+	mean float64
+	m2   float64
+}
+
+// Add includes x.
+func (r *Running) Add(x float64) {
+	r.n++
+	d := x - r.mean
+	r.mean += d / float64(r.n)
+	r.m2 += d * (x - r.mean)
+}
+
+// Reset empties r (for a retake).
+func (r *Running) Reset() { *r = Running{} }
+
+// N is the number of samples.
+func (r *Running) N() int { return r.n }
+
+// Mean is the arithmetic mean (JCGM 100:2008 4.2.1).
+func (r *Running) Mean() float64 { return r.mean }
+
+// Variance is the experimental variance s² of the samples (GUM 4.2.2);
+// 0 with fewer than two samples.
+func (r *Running) Variance() float64 {
+	if r.n < 2 {
+		return 0
+	}
+	return r.m2 / float64(r.n-1)
+}
+
+// Summary returns what a figure of merit needs from the samples.
+func (r *Running) Summary() Summary {
+	return Summary{N: r.n, Mean: r.mean, SD: math.Sqrt(r.Variance())}
+}
+
+// Summary is n samples' mean and experimental standard deviation.
+type Summary struct {
+	N    int
+	Mean float64
+	SD   float64 // experimental standard deviation s (GUM 4.2.2)
+}
+
+// Summarize summarises samples.
+func Summarize(samples []float64) Summary {
+	var r Running
+	for _, x := range samples {
+		r.Add(x)
+	}
+	return r.Summary()
+}
+
+// SDMean is the experimental standard deviation of the mean, the type A
+// standard uncertainty s/√n (JCGM 100:2008 4.2.3); +Inf with fewer than two
+// samples.
+func (s Summary) SDMean() float64 {
+	if s.N < 2 {
+		return math.Inf(1)
+	}
+	return s.SD / math.Sqrt(float64(s.N))
+}
+
+// Component is one type B contribution to an input's uncertainty. Give it
+// either relative (Rel, a fraction of the input's value) or absolute (Abs,
+// in the input's unit) standard uncertainty.
+type Component struct {
+	Source string
+	Rel    float64
+	Abs    float64
+	DoF    float64 // degrees of freedom; 0 = infinite (a type B estimate taken as exact, GUM G.4.2)
+	// Calibration marks the meter's calibration coefficient, which cancels
+	// in a ratio of two readings of the same meter.
+	Calibration bool
+}
+
+// CertificateComponents are the type B components a certificate gives a
+// reading: the coefficient's standard uncertainty U/k (normal, GUM 4.3.4)
+// and, when stated, the display resolution δ as a rectangular distribution
+// of half-width δ/2, u = δ/√12 (GUM 4.3.7, F.2.2.1).
+func CertificateComponents(c *Certificate) []Component {
+	if c == nil {
+		return nil
+	}
+	out := []Component{{Source: "calibration coefficient, certificate " + c.Number, Rel: c.RelStdUnc(), Calibration: true}}
+	if r := ResolutionComponent(c.Resolution); r.Abs > 0 {
+		r.Source = "display resolution, " + c.Model
+		out = append(out, r)
+	}
+	return out
+}
+
+// ResolutionComponent is the rectangular type B component of a display
+// resolution δ: u = δ/√12 (JCGM 100:2008 F.2.2.1).
+func ResolutionComponent(delta float64) Component {
+	return Component{Source: "display resolution", Abs: delta / math.Sqrt(12)}
+}
+
+// Measured is one input of a figure of merit: the samples of a corrected
+// reading and the type B components that go with it.
+type Measured struct {
+	Name       string // "output luminance", "input air kerma rate"
+	Unit       string
+	Samples    Summary
+	TypeB      []Component
+	Calibrated bool
+	Flags      []Flag
+}
+
+// BudgetRow is one line of an uncertainty budget (JCGM 100:2008). For a
+// product or ratio model the sensitivity is relative (the exponent of the
+// input, ±1) and the contribution is relative to the result; for other
+// models (non-uniformity) both are absolute, in the result's unit.
+type BudgetRow struct {
+	Source       string
+	Type         string  // "A" or "B"
+	Value        float64 // estimate of the input quantity
+	Unit         string
+	StdUnc       float64 // standard uncertainty of the input, in its unit
+	RelStdUnc    float64 // relative standard uncertainty of the input
+	Sensitivity  float64
+	Contribution float64
+	DoF          float64 // 0 = infinite
+}
+
+// Result is a figure of merit with its uncertainty.
+type Result struct {
+	Quantity   string // "conversion_factor", "non_uniformity", "contrast_ratio", "input_kerma_rate", "kerma_rate_scaling"
+	Value      float64
+	Unit       string
+	StdUnc     float64 // combined standard uncertainty u_c (GUM 5.1.2)
+	ExpUnc     float64 // expanded uncertainty U = k·u_c (GUM 6.2.1)
+	K          float64 // coverage factor
+	DoF        float64 // effective degrees of freedom (GUM G.4.1); 0 = infinite
+	Coverage   float64 // coverage probability of ExpUnc
+	Budget     []BudgetRow
+	Calibrated bool
+	Flags      []Flag
+	Detail     any // figure-specific detail, e.g. *UniformityDetail
+}
+
+// RelExpUnc is U / |value|.
+func (r Result) RelExpUnc() float64 { return r.ExpUnc / math.Abs(r.Value) }
+
+// CoverageFactor returns k = t_p(ν), the two-sided Student t quantile for
+// coverage probability p and ν degrees of freedom (JCGM 100:2008 G.3, G.4;
+// Table G.2), using gonum's distuv.StudentsT. ν ≤ 0 or +Inf means infinite
+// (normal distribution). A non-integer ν is truncated to the next lower
+// integer, as G.4.1 says; ν below 1 is taken as 1.
+func CoverageFactor(dof, p float64) float64 {
+	if dof <= 0 || math.IsInf(dof, 1) || dof > 1e6 || math.IsNaN(dof) {
+		return distuv.UnitNormal.Quantile(0.5 + p/2)
+	}
+	nu := math.Floor(dof)
+	if nu < 1 {
+		nu = 1
+	}
+	if p == Coverage && nu <= tableMax {
+		tableOnce.Do(fillTable)
+		return kTable[int(nu)]
+	}
+	return distuv.StudentsT{Mu: 0, Sigma: 1, Nu: nu}.Quantile(0.5 + p/2)
+}
+
+const tableMax = 500
+
+var (
+	tableOnce sync.Once
+	kTable    [tableMax + 1]float64
+)
+
+func fillTable() {
+	for nu := 1; nu <= tableMax; nu++ {
+		kTable[nu] = distuv.StudentsT{Mu: 0, Sigma: 1, Nu: float64(nu)}.Quantile(0.5 + Coverage/2)
+	}
+}
+
+// WelchSatterthwaite returns the effective degrees of freedom of a
+// combined uncertainty from its contributions c_i·u_i and their degrees of
+// freedom ν_i (JCGM 100:2008 G.4.1, eq. G.2b):
+//
+//	ν_eff = u_c⁴ / Σ (c_i u_i)⁴ / ν_i
+//
+// ν_i = 0 or +Inf means infinite; the result is +Inf when every ν_i is.
+// Relative contributions give the same ν_eff for a product model.
+func WelchSatterthwaite(contrib, dof []float64) float64 {
+	var uc2, den float64
+	for i, c := range contrib {
+		uc2 += c * c
+		if d := dof[i]; d > 0 && !math.IsInf(d, 1) {
+			den += c * c * c * c / d
+		}
+	}
+	if den == 0 {
+		return math.Inf(1)
+	}
+	return uc2 * uc2 / den
+}
+
+// dofOut maps +Inf to 0, the journal's "infinite".
+func dofOut(d float64) float64 {
+	if math.IsInf(d, 1) || d > 1e9 {
+		return 0
+	}
+	return d
+}
+
+// product combines inputs raised to powers (Y = Π X_i^p_i) into a result:
+// relative variances add, weighted by p_i² (JCGM 100:2008 5.1.6). When
+// dropCal is true the certificate components are left out (a ratio read
+// with one meter cancels the meter's calibration coefficient).
+func product(quantity, unit string, value float64, inputs []Measured, powers []float64, dropCal bool, p float64) Result {
+	res := Result{Quantity: quantity, Value: value, Unit: unit, Calibrated: true, Coverage: p}
+	var contrib, dofs []float64
+	for i, in := range inputs {
+		pw := powers[i]
+		m := in.Samples.Mean
+		if !in.Calibrated && !dropCal {
+			res.Calibrated = false
+		}
+		for _, f := range in.Flags {
+			if dropCal && f.certificateFlag() {
+				continue
+			}
+			if !f.informational() && dropCal {
+				res.Calibrated = false
+			}
+			res.Flags = appendFlag(res.Flags, f)
+		}
+		if in.Samples.N < 2 {
+			res.Calibrated = false
+			res.Flags = appendFlag(res.Flags, Flag{FlagFewSamples, in.Name + ": fewer than two samples, repeatability unknown"})
+		}
+		if !(m > 0) {
+			res.Calibrated = false
+			res.Flags = appendFlag(res.Flags, Flag{FlagInput, in.Name + ": mean is not positive"})
+		}
+		ua := in.Samples.SDMean()
+		if math.IsInf(ua, 1) {
+			ua = 0
+		}
+		rel := ua / math.Abs(m)
+		row := BudgetRow{Source: in.Name + ", repeatability", Type: "A", Value: m, Unit: in.Unit, StdUnc: ua, RelStdUnc: rel,
+			Sensitivity: pw, Contribution: math.Abs(pw) * rel, DoF: float64(in.Samples.N - 1)}
+		if in.Samples.N < 2 {
+			row.DoF = 1
+		}
+		res.Budget = append(res.Budget, row)
+		contrib = append(contrib, row.Contribution)
+		dofs = append(dofs, row.DoF)
+		for _, b := range in.TypeB {
+			if dropCal && b.Calibration {
+				continue
+			}
+			r := b.Rel + b.Abs/math.Abs(m)
+			row := BudgetRow{Source: b.Source, Type: "B", Value: m, Unit: in.Unit, StdUnc: r * math.Abs(m), RelStdUnc: r,
+				Sensitivity: pw, Contribution: math.Abs(pw) * r, DoF: b.DoF}
+			res.Budget = append(res.Budget, row)
+			contrib = append(contrib, row.Contribution)
+			d := b.DoF
+			if d == 0 {
+				d = math.Inf(1)
+			}
+			dofs = append(dofs, d)
+		}
+	}
+	var rel2 float64
+	for _, c := range contrib {
+		rel2 += c * c
+	}
+	res.StdUnc = math.Sqrt(rel2) * math.Abs(value)
+	nu := WelchSatterthwaite(contrib, dofs)
+	res.K = CoverageFactor(nu, p)
+	res.ExpUnc = res.K * res.StdUnc
+	res.DoF = dofOut(nu)
+	return res
+}
+
+func appendFlag(list []Flag, f Flag) []Flag {
+	for _, g := range list {
+		if g == f {
+			return list
+		}
+	}
+	return append(list, f)
+}
+
+// RatioPrecision tracks, sample by sample, the relative expanded
+// uncertainty of the ratio of two meters' means (for the conversion factor:
+// luminance over air kerma rate), so a stopping rule can end sampling once
+// it is small enough. Each Add is O(1) and allocation-free. The two
+// meters' samples are treated as uncorrelated (conservative when the tube
+// output fluctuates, which moves both the same way).
+//
+//	u_rel² = (s_x²/n_x)/x̄² + (s_y²/n_y)/ȳ² + u_B,rel²       (GUM 5.1.6)
+//	ν_eff from the type A parts (G.4.1), type B taken as exact
+//	U_rel = t_p(ν_eff) · u_rel
+type RatioPrecision struct {
+	Num, Den  Running
+	TypeBRel2 float64 // sum of squared relative type B uncertainties of both meters
+	P         float64 // coverage probability; 0 = Coverage
+}
+
+// NewRatioPrecision starts tracking with the fixed type B components of
+// the two meters (for example from [CertificateComponents]; absolute
+// components are taken relative to ref values numRef and denRef, or
+// ignored when those are 0).
+func NewRatioPrecision(num, den []Component, numRef, denRef float64) *RatioPrecision {
+	rp := &RatioPrecision{}
+	add := func(cs []Component, ref float64) {
+		for _, c := range cs {
+			r := c.Rel
+			if c.Abs != 0 && ref != 0 {
+				r += c.Abs / math.Abs(ref)
+			}
+			rp.TypeBRel2 += r * r
+		}
+	}
+	add(num, numRef)
+	add(den, denRef)
+	return rp
+}
+
+// Add includes one sample of each meter; pass NaN to skip one side.
+func (rp *RatioPrecision) Add(num, den float64) {
+	if !math.IsNaN(num) {
+		rp.Num.Add(num)
+	}
+	if !math.IsNaN(den) {
+		rp.Den.Add(den)
+	}
+}
+
+// Ratio is the ratio of the means so far.
+func (rp *RatioPrecision) Ratio() float64 { return rp.Num.Mean() / rp.Den.Mean() }
+
+// RelExpanded is the relative expanded uncertainty of the ratio of the
+// means so far; +Inf until each side has two samples and a positive mean.
+func (rp *RatioPrecision) RelExpanded() float64 {
+	if rp.Num.n < 2 || rp.Den.n < 2 || !(rp.Num.mean > 0) || !(rp.Den.mean > 0) {
+		return math.Inf(1)
+	}
+	ax := rp.Num.Variance() / float64(rp.Num.n) / (rp.Num.mean * rp.Num.mean)
+	ay := rp.Den.Variance() / float64(rp.Den.n) / (rp.Den.mean * rp.Den.mean)
+	u2 := ax + ay + rp.TypeBRel2
+	den := ax*ax/float64(rp.Num.n-1) + ay*ay/float64(rp.Den.n-1)
+	nu := math.Inf(1)
+	if den > 0 {
+		nu = u2 * u2 / den
+	}
+	p := rp.P
+	if p == 0 {
+		p = Coverage
+	}
+	return CoverageFactor(nu, p) * math.Sqrt(u2)
+}
