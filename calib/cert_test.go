@@ -1,0 +1,258 @@
+package calib
+
+import (
+	"errors"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+	"time"
+
+	"kermalux/drivers/units"
+)
+
+const certDir = "../testdata/certificates"
+
+func load(t testing.TB, name string) *Certificate {
+	t.Helper()
+	c, err := LoadCertificate(filepath.Join(certDir, name))
+	if err != nil {
+		t.Fatal(err)
+	}
+	return c
+}
+
+func day(s string) time.Time {
+	d, err := time.Parse(time.DateOnly, s)
+	if err != nil {
+		panic(err)
+	}
+	return d
+}
+
+func TestExampleCertificates(t *testing.T) {
+	files, err := filepath.Glob(filepath.Join(certDir, "*.yaml"))
+	if err != nil || len(files) < 4 {
+		t.Fatalf("example certificates: %d found, %v", len(files), err)
+	}
+	for _, f := range files {
+		if _, err := LoadCertificate(f); err != nil {
+			t.Errorf("%v", err)
+		}
+	}
+	c := load(t, "veltrane-kr40-1187.yaml")
+	if c.Number != "NRML-26-0318" || c.Model != "Veltrane KR-40" || c.Serial != "KR40-1187" {
+		t.Errorf("identity = %q %q %q", c.Number, c.Model, c.Serial)
+	}
+	if c.Quantity != units.AirKermaRate || !c.Vented || c.RefTemperature != 20 || c.RefPressure != 101.325 {
+		t.Errorf("chamber = %v vented %v T0 %v P0 %v", c.Quantity, c.Vented, c.RefTemperature, c.RefPressure)
+	}
+	if c.Along != AlongHVL || len(c.Points) != 4 || c.Points[0].Quality.Name != "RQA3" {
+		t.Errorf("table = %v %+v", c.Along, c.Points)
+	}
+	// "2.4 %" at k = 2 is a relative standard uncertainty of 1.2 % (GUM 4.3.3: u = U/k).
+	if d := c.RelStdUnc() - 0.012; d > 1e-12 || d < -1e-12 {
+		t.Errorf("relative standard uncertainty = %v, want 0.012", c.RelStdUnc())
+	}
+	if c.Backscatter != 1.27 || c.Resolution != 0.001 {
+		t.Errorf("backscatter %v resolution %v", c.Backscatter, c.Resolution)
+	}
+	p := load(t, "orlan-lm9-5521.yaml")
+	if p.Quantity != units.Luminance || p.Coefficient != 1.012 || len(p.Points) != 0 {
+		t.Errorf("photometer certificate = %+v", p)
+	}
+}
+
+func TestValidOn(t *testing.T) {
+	c := load(t, "veltrane-kr40-1187.yaml") // calibrated 2026-03-10, due 2027-03-10
+	tests := []struct {
+		day            string
+		valid, dueSoon bool
+		left           int
+	}{
+		{"2026-12-02", true, false, 98},
+		{"2027-02-08", true, true, 30}, // exactly 30 days ahead: warned
+		{"2027-02-07", true, false, 31},
+		{"2027-03-10", true, true, 0}, // valid through its due date
+		{"2027-03-11", false, false, -1},
+		{"2026-03-09", false, false, 366}, // before the calibration
+	}
+	for _, tc := range tests {
+		v := c.ValidOn(day(tc.day).Add(15 * time.Hour))
+		if v.Valid != tc.valid || v.DueSoon != tc.dueSoon || v.DaysLeft != tc.left || v.Text == "" {
+			t.Errorf("%s: %+v, want valid %v due soon %v days left %d", tc.day, v, tc.valid, tc.dueSoon, tc.left)
+		}
+	}
+	old := load(t, "veltrane-kr40-1187-expired.yaml")
+	if v := old.ValidOn(day("2026-12-02")); v.Valid || !strings.Contains(v.Text, "expired on 2025-03-04") {
+		t.Errorf("expired certificate: %+v", v)
+	}
+}
+
+// valid is a complete dosimeter certificate; the malformed cases edit it.
+const valid = `certificate: T-1
+laboratory: Test Laboratory
+meter:
+  model: Test Meter
+  serial: SN-1
+quantity: air_kerma_rate
+calibrated: 2026-01-01
+due: 2027-01-01
+chamber:
+  vented: true
+  reference_temperature: 22 °C
+  reference_pressure: 101.325 kPa
+coefficients:
+  along: hvl
+  points:
+    - {hvl_mm_al: 4, factor: 1.01}
+    - {hvl_mm_al: 8, factor: 1.00}
+uncertainty:
+  expanded: 2 %
+  coverage_factor: 2
+`
+
+func TestParseErrorsNameLineAndField(t *testing.T) {
+	tests := []struct {
+		name    string
+		edit    func(string) string
+		line    int
+		field   string
+		message string
+	}{
+		{"missing due", func(s string) string { return strings.Replace(s, "due: 2027-01-01\n", "", 1) }, 1, "due", "missing"},
+		{"missing pressure", func(s string) string { return strings.Replace(s, "  reference_pressure: 101.325 kPa\n", "", 1) }, 9, "chamber.reference_pressure", "missing"},
+		{"missing serial", func(s string) string { return strings.Replace(s, "  serial: SN-1\n", "", 1) }, 3, "meter.serial", "missing"},
+		{"bad date", func(s string) string { return strings.Replace(s, "2027-01-01", "01/01/2027", 1) }, 8, "due", "date"},
+		{"due before calibration", func(s string) string { return strings.Replace(s, "2027-01-01", "2025-01-01", 1) }, 8, "due", "not after"},
+		{"unknown key", func(s string) string { return strings.Replace(s, "laboratory:", "labratory:", 1) }, 2, "labratory", "unknown field"},
+		{"wrong unit", func(s string) string { return strings.Replace(s, "22 °C", "22 kPa", 1) }, 11, "chamber.reference_temperature", "not a unit of temperature"},
+		{"factor not a number", func(s string) string { return strings.Replace(s, "factor: 1.00}", "factor: one}", 1) }, 17, "coefficients.points[1].factor", "number"},
+		{"negative factor", func(s string) string { return strings.Replace(s, "factor: 1.00}", "factor: -1}", 1) }, 17, "coefficients.points[1].factor", "positive"},
+		{"duplicate point", func(s string) string { return strings.Replace(s, "hvl_mm_al: 8", "hvl_mm_al: 4", 1) }, 17, "coefficients.points", "same hvl"},
+		{"no coefficient", func(s string) string {
+			return s[:strings.Index(s, "coefficients:")] + s[strings.Index(s, "uncertainty:"):]
+		}, 1, "coefficient", "missing"},
+		{"uncertainty over 100 %", func(s string) string { return strings.Replace(s, "2 %", "200 %", 1) }, 19, "uncertainty.expanded", "between 0 and 100"},
+		{"bad quantity", func(s string) string { return strings.Replace(s, "quantity: air_kerma_rate", "quantity: dose", 1) }, 6, "quantity", "expected"},
+		{"syntax", func(s string) string { return strings.Replace(s, "  serial: SN-1", "  serial: [SN-1", 1) }, 0, "", "not valid YAML"},
+		{"empty", func(string) string { return "# nothing\n" }, 1, "", "empty"},
+	}
+	if _, err := ParseCertificate("valid.yaml", []byte(valid)); err != nil {
+		t.Fatalf("the unedited certificate must parse: %v", err)
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			_, err := ParseCertificate("bad.yaml", []byte(tc.edit(valid)))
+			var fe *FileError
+			if !errors.As(err, &fe) {
+				t.Fatalf("error = %v, want a *FileError", err)
+			}
+			if (tc.line != 0 && fe.Line != tc.line) || fe.Field != tc.field || !strings.Contains(fe.Msg, tc.message) {
+				t.Errorf("got line %d field %q msg %q (%v); want line %d field %q containing %q", fe.Line, fe.Field, fe.Msg, err, tc.line, tc.field, tc.message)
+			}
+			if !strings.HasPrefix(err.Error(), "bad.yaml:") {
+				t.Errorf("error %q does not start with the file name", err)
+			}
+		})
+	}
+}
+
+func TestLoadMissingFile(t *testing.T) {
+	_, err := LoadCertificate(filepath.Join(t.TempDir(), "none.yaml"))
+	if !errors.Is(err, os.ErrNotExist) {
+		t.Errorf("error = %v, want not exist", err)
+	}
+}
+
+func TestCoefficientAt(t *testing.T) {
+	c := load(t, "veltrane-kr40-1187.yaml") // RQA3 3.8→1.021, RQA5 6.8→1.008, RQA7 9.2→1.003, RQA9 11.6→0.997
+	tests := []struct {
+		q    Quality
+		want float64
+		out  bool
+	}{
+		{Quality{Name: "RQA5"}, 1.008, false},                                              // HVL from the RQA table (6.8 mm Al)
+		{Quality{HVL: 6.8}, 1.008, false},                                                  // a table point
+		{Quality{HVL: 8.0}, 1.008 - 0.005*(1.2/2.4), false},                                // linear interpolation by hand: 1.0055
+		{Quality{HVL: 3.8}, 1.021, false},                                                  // lower end
+		{Quality{HVL: 11.6}, 0.997, false},                                                 // upper end
+		{Quality{HVL: 3.0}, 0, true},                                                       // below the table
+		{Quality{HVL: 12.5}, 0, true},                                                      // above the table
+		{Quality{Name: "RQA5", TubeVoltage: 70, HVL: 7.1}, 1.008 - 0.005*(0.3/2.4), false}, // stated HVL wins
+	}
+	for _, tc := range tests {
+		got, err := c.CoefficientAt(tc.q)
+		var ot *OutsideTableError
+		if tc.out {
+			if !errors.As(err, &ot) {
+				t.Errorf("%+v: err = %v, want outside table", tc.q, err)
+			}
+			continue
+		}
+		if err != nil || abs(got-tc.want) > 1e-12 {
+			t.Errorf("%+v = %v, %v; want %v", tc.q, got, err, tc.want)
+		}
+	}
+	// Tube-voltage table.
+	h := load(t, "halden-dx2-30417.yaml")
+	if got, err := h.CoefficientAt(Quality{TubeVoltage: 80}); err != nil || abs(got-1.0055) > 1e-12 {
+		t.Errorf("80 kV = %v, %v; want (1.000+1.011)/2 = 1.0055", got, err)
+	}
+	if _, err := h.CoefficientAt(Quality{TubeVoltage: 40}); err == nil {
+		t.Error("40 kV is below the table and must be refused")
+	}
+	// Quality table: names only.
+	o := load(t, "veltrane-kr40-1187-expired.yaml")
+	if got, err := o.CoefficientAt(Quality{Name: "rqa7"}); err != nil || got != 1.004 {
+		t.Errorf("RQA7 = %v, %v", got, err)
+	}
+	if _, err := o.CoefficientAt(Quality{Name: "RQA9"}); err == nil {
+		t.Error("RQA9 is not in the table and must be refused")
+	}
+}
+
+func abs(x float64) float64 {
+	if x < 0 {
+		return -x
+	}
+	return x
+}
+
+func FuzzParseCertificate(f *testing.F) {
+	files, _ := filepath.Glob(filepath.Join(certDir, "*.yaml"))
+	for _, p := range files {
+		b, err := os.ReadFile(p)
+		if err != nil {
+			f.Fatal(err)
+		}
+		f.Add(b)
+	}
+	f.Add([]byte(valid))
+	f.Add([]byte("certificate: [\n"))
+	f.Add([]byte("meter: {model: x}\nquantity: luminance\n"))
+	f.Add([]byte("- a\n- b\n"))
+	f.Add([]byte("---\na: 1\n---\nb: 2\n"))
+	f.Add([]byte("certificate: &a x\nlaboratory: *a\n"))
+	f.Fuzz(func(t *testing.T, data []byte) {
+		c, err := ParseCertificate("fuzz.yaml", data)
+		if err != nil {
+			var fe *FileError
+			if !errors.As(err, &fe) || fe.File != "fuzz.yaml" {
+				t.Fatalf("error %v is not a *FileError naming the file", err)
+			}
+			return
+		}
+		if !c.Due.After(c.Calibrated) || !(c.Expanded > 0 && c.Expanded < 1) || c.CoverageFactor < 1 {
+			t.Fatalf("accepted an inconsistent certificate: %+v", c)
+		}
+		if (c.Coefficient > 0) == (len(c.Points) > 0) {
+			t.Fatalf("accepted a certificate with coefficient %v and %d points", c.Coefficient, len(c.Points))
+		}
+		for _, p := range c.Points {
+			if !(p.Factor > 0) {
+				t.Fatalf("accepted factor %v", p.Factor)
+			}
+		}
+	})
+}
