@@ -1,7 +1,6 @@
 package script
 
 import (
-	"errors"
 	"fmt"
 
 	"kermalux/drivers/units"
@@ -48,22 +47,3 @@ type Env struct {
 	// next to the including one.
 	Resolver Resolver
 }
-
-var errNotYet = errors.New("script: not implemented yet")
-
-// Parse reads a script's text; name is used in positions (usually the file
-// name). Syntax errors and problems of form (unknown kind or field, bad
-// unit) are returned as Problems.
-func Parse(name string, data []byte) (*Procedure, error) { return nil, errNotYet }
-
-// Load reads and parses the script file at path.
-func Load(path string) (*Procedure, error) { return nil, errNotYet }
-
-// Check returns every problem of p in the context env: references,
-// safety rules, beam-on budget, meters. It returns nil for a valid
-// procedure.
-func Check(p *Procedure, env Env) Problems { return Problems{{Pos: p.Pos, Reason: errNotYet.Error()}} }
-
-// Flatten expands includes and per-field-mode repetitions into the linear
-// list of steps the engine walks.
-func Flatten(p *Procedure, env Env) (*Flat, error) { return nil, errNotYet }

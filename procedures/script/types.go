@@ -193,6 +193,12 @@ type EnterSpec struct {
 	Default  float64        // in Unit, valid when HasDefault
 	HasDef   bool
 	Source   Source
+
+	// Units the range and default were written in, converted into Unit
+	// once Unit is known.
+	rangeUnit, defUnit       string
+	rangePos                 Pos
+	rangeChecked, defChecked bool
 }
 
 // Read is one meter read in a measure step and the quantity it gives.
@@ -341,6 +347,9 @@ type RepeatSpec struct {
 // IncludeSpec runs another procedure here.
 type IncludeSpec struct {
 	Procedure string // a built-in's name or a path relative to the including file
+	// Once skips the include when the same procedure was already included
+	// earlier in the flattened sequence (a shared safety checklist).
+	Once bool
 	// Resolved is the included procedure; set by Flatten (and by Check).
 	Resolved *Procedure
 }

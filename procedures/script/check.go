@@ -1,0 +1,703 @@
+package script
+
+import (
+	"fmt"
+	"os"
+	"path/filepath"
+	"sort"
+	"strings"
+	"time"
+
+	"kermalux/drivers/units"
+	"kermalux/procedures/builtin"
+)
+
+// Check returns every problem of p in the context env: step ids,
+// references, units of limits, the safety rules (no beam before a
+// pre-exposure safety checklist; the beam-on budget; an expected range for
+// every exposure), includes, and, when env.Quantities is given, that a
+// configured meter reports each quantity measured. It returns nil for a
+// valid procedure. Problems of form were already returned by Parse.
+func Check(p *Procedure, env Env) Problems {
+	if p == nil {
+		return Problems{{Reason: "no procedure"}}
+	}
+	x := newExpander(env, false)
+	x.run(p)
+	return x.problems()
+}
+
+// CheckFile loads the script at path and checks it; it returns every
+// problem of form and of content. A file that cannot be read is one
+// problem naming the file.
+func CheckFile(path string, env Env) (*Procedure, Problems) {
+	p, err := Load(path)
+	var probs Problems
+	if err != nil {
+		if ps, ok := err.(Problems); ok {
+			probs = append(probs, ps...)
+		} else {
+			return nil, Problems{{Pos: Pos{File: path}, Reason: err.Error()}}
+		}
+	}
+	if p == nil {
+		return nil, probs
+	}
+	probs = append(probs, Check(p, env)...)
+	return p, dedupe(probs)
+}
+
+// Flatten expands includes and per-field-mode repetitions into the linear
+// list of steps the engine walks. It refuses a procedure that Check
+// rejects, and a per_field_mode block that takes its modes from the bench
+// when env.FieldModes is empty.
+func Flatten(p *Procedure, env Env) (*Flat, error) {
+	if p == nil {
+		return nil, fmt.Errorf("flatten: no procedure")
+	}
+	x := newExpander(env, true)
+	x.run(p)
+	if ps := x.problems(); len(ps) > 0 {
+		return nil, ps
+	}
+	for i := range x.steps {
+		x.steps[i].Index = i + 1
+		x.steps[i].Of = len(x.steps)
+	}
+	return &Flat{Procedure: p, BeamBudget: p.BeamBudget, Steps: x.steps}, nil
+}
+
+// DefaultResolver finds included procedures: a name with a slash or a
+// .yaml ending is a path relative to the including file; a plain name is
+// looked for next to the including file, then among the built-ins.
+// Procedures read from the built-ins include only built-ins.
+type DefaultResolver struct {
+	cache map[string]*Procedure
+}
+
+// Resolve implements Resolver.
+func (r *DefaultResolver) Resolve(name, from string) (*Procedure, error) {
+	if r.cache == nil {
+		r.cache = map[string]*Procedure{}
+	}
+	load := func(key string, f func() (*Procedure, error)) (*Procedure, error) {
+		if p, ok := r.cache[key]; ok {
+			return p, nil
+		}
+		p, err := f()
+		if err != nil {
+			return p, err
+		}
+		r.cache[key] = p
+		return p, nil
+	}
+	fromBuiltin := strings.HasPrefix(from, BuiltinPrefix)
+	if strings.ContainsRune(name, '/') || strings.HasSuffix(name, ".yaml") {
+		if fromBuiltin {
+			return nil, fmt.Errorf("a built-in procedure can include only built-ins, not %q", name)
+		}
+		path := filepath.Join(filepath.Dir(from), name)
+		return load(path, func() (*Procedure, error) { return Load(path) })
+	}
+	if !fromBuiltin {
+		path := filepath.Join(filepath.Dir(from), name+".yaml")
+		if _, err := os.Stat(path); err == nil {
+			return load(path, func() (*Procedure, error) { return Load(path) })
+		}
+	}
+	data, err := builtin.Read(name)
+	if err != nil {
+		return nil, fmt.Errorf("no procedure %q next to %s nor among the built-ins (%s)", name, from, strings.Join(builtin.Names(), ", "))
+	}
+	return load(BuiltinPrefix+name, func() (*Procedure, error) { return Parse(BuiltinPrefix+name+".yaml", data) })
+}
+
+// BuiltinPrefix starts the file name of a built-in procedure in positions.
+const BuiltinPrefix = "builtin/"
+
+// LoadBuiltin parses the built-in procedure name.
+func LoadBuiltin(name string) (*Procedure, error) {
+	data, err := builtin.Read(name)
+	if err != nil {
+		return nil, err
+	}
+	return Parse(BuiltinPrefix+name+".yaml", data)
+}
+
+func dedupe(ps Problems) Problems {
+	seen := map[string]bool{}
+	var out Problems
+	for _, p := range ps {
+		k := p.String()
+		if seen[k] {
+			continue
+		}
+		seen[k] = true
+		out = append(out, p)
+	}
+	sort.SliceStable(out, func(i, j int) bool {
+		a, b := out[i].Pos, out[j].Pos
+		if a.File != b.File {
+			return false
+		}
+		if a.Line != b.Line {
+			return a.Line < b.Line
+		}
+		return a.Col < b.Col
+	})
+	return out
+}
+
+// expander walks a procedure in run order, expanding includes and
+// repetitions, and collects problems on the way.
+type expander struct {
+	env    Env
+	res    Resolver
+	forRun bool
+	probs  Problems
+	steps  []FlatStep
+	byID   map[string]int
+	// origin maps a flat id to the written step it came from.
+	origin    map[string]*Step
+	checked   map[*Procedure]bool
+	included  map[string]bool
+	stack     []string
+	entered   map[string]bool
+	safetyAt  *Pos
+	safetyAll []Pos // every safety checklist, for the "comes later" hint
+	earlyBeam []Pos // beam steps before any safety checklist
+}
+
+func newExpander(env Env, forRun bool) *expander {
+	res := env.Resolver
+	if res == nil {
+		res = &DefaultResolver{}
+	}
+	return &expander{env: env, res: res, forRun: forRun, byID: map[string]int{}, origin: map[string]*Step{},
+		checked: map[*Procedure]bool{}, included: map[string]bool{}, entered: map[string]bool{}}
+}
+
+func (x *expander) errf(p Pos, format string, args ...any) {
+	x.probs = append(x.probs, Problem{Pos: p, Reason: fmt.Sprintf(format, args...)})
+}
+
+func (x *expander) problems() Problems {
+	for _, b := range x.earlyBeam {
+		if len(x.safetyAll) > 0 {
+			x.errf(b, "beam step comes before the pre-exposure safety checklist (the checklist at %s must come first)", x.safetyAll[0])
+		} else {
+			x.errf(b, "beam step with no pre-exposure safety checklist before it (add a safety_checklist step, or include pre-exposure-safety, earlier)")
+		}
+	}
+	x.earlyBeam = nil
+	return dedupe(x.probs)
+}
+
+func (x *expander) run(p *Procedure) {
+	x.stack = append(x.stack, p.Name)
+	x.included[p.Name] = true
+	x.proc(p, "")
+}
+
+// proc expands one procedure instance and returns the beam-on time its
+// steps may use.
+func (x *expander) proc(p *Procedure, prefix string) time.Duration {
+	if !x.checked[p] {
+		x.checked[p] = true
+		x.static(p)
+	}
+	var sum time.Duration
+	for i := range p.Steps {
+		sum += x.step(p, prefix, &p.Steps[i], "", nil)
+	}
+	if sum > p.BeamBudget {
+		pos := p.Pos
+		if fp, ok := p.Fields["beam_budget"]; ok {
+			pos = fp
+		}
+		x.errf(pos, "beam-on budget of %s is exceeded: the steps may use up to %s of beam%s", fmtDur(p.BeamBudget), fmtDur(sum), repeatNote(p))
+	}
+	return sum
+}
+
+func repeatNote(p *Procedure) string {
+	var notes []string
+	for _, s := range p.Steps {
+		if s.Kind == KindPerFieldMode && s.Repeat != nil {
+			n := len(s.Repeat.Modes)
+			if s.Repeat.FromBench {
+				n = s.Repeat.MaxModes
+			}
+			notes = append(notes, fmt.Sprintf("%q repeats %d times", s.ID, n))
+		}
+	}
+	if len(notes) == 0 {
+		return ""
+	}
+	return " (" + strings.Join(notes, "; ") + ")"
+}
+
+func fmtDur(d time.Duration) string {
+	return formatNumber(d.Seconds()) + " s"
+}
+
+// step expands one written step in mode (empty outside per_field_mode)
+// and returns the beam-on time it may use.
+func (x *expander) step(p *Procedure, prefix string, s *Step, mode string, modes []string) time.Duration {
+	switch s.Kind {
+	case KindPerFieldMode:
+		return x.repeat(p, prefix, s)
+	case KindInclude:
+		return x.include(p, prefix, s)
+	}
+	fs := FlatStep{ID: prefix + s.ID, FieldMode: mode, Procedure: p.Name, Step: x.instance(p, s, mode)}
+	if mode != "" {
+		fs.ID += "@" + mode
+	}
+	st := &fs.Step
+	switch st.Kind {
+	case KindSafetyChecklist:
+		pos := s.Pos
+		x.safetyAll = append(x.safetyAll, pos)
+		if x.safetyAt == nil {
+			x.safetyAt = &pos
+		}
+	case KindEnter:
+		if st.Enter != nil {
+			x.entered[st.Enter.Name] = true
+		}
+	case KindMeasure:
+		if st.Measure != nil && st.Measure.Beam && x.safetyAt == nil {
+			x.earlyBeam = append(x.earlyBeam, s.Pos)
+		}
+	case KindCompute:
+		x.compute(prefix, st, mode, modes)
+	case KindJudge:
+		x.judge(prefix, st, mode, modes)
+	}
+	if _, dup := x.byID[fs.ID]; !dup {
+		x.byID[fs.ID] = len(x.steps)
+		x.origin[fs.ID] = s
+	}
+	x.steps = append(x.steps, fs)
+	return fs.MaxBeam()
+}
+
+func (x *expander) repeat(p *Procedure, prefix string, s *Step) time.Duration {
+	r := s.Repeat
+	if r == nil {
+		return 0
+	}
+	modes := r.Modes
+	if r.FromBench {
+		switch {
+		case len(x.env.FieldModes) > 0:
+			modes = x.env.FieldModes
+			if r.MaxModes > 0 && len(modes) > r.MaxModes {
+				x.errf(s.Fields["max_modes"], "the bench lists %d field modes, more than max_modes %d", len(modes), r.MaxModes)
+			}
+		case x.forRun:
+			x.errf(s.Pos, "per_field_mode %q takes its modes from the bench file, and none were given", s.ID)
+			return 0
+		case r.MaxModes == 0:
+			x.errf(s.Pos, "per_field_mode %q takes its modes from the bench: give max_modes so the beam-on budget can be checked", s.ID)
+			return 0
+		default:
+			for i := 1; i <= r.MaxModes; i++ {
+				modes = append(modes, fmt.Sprintf("mode %d", i))
+			}
+		}
+	}
+	var sum time.Duration
+	for _, m := range modes {
+		for i := range r.Steps {
+			sum += x.step(p, prefix, &r.Steps[i], m, modes)
+		}
+	}
+	return sum
+}
+
+func (x *expander) include(p *Procedure, prefix string, s *Step) time.Duration {
+	in := s.Include
+	if in == nil || in.Procedure == "" {
+		return 0
+	}
+	inc, err := x.res.Resolve(in.Procedure, p.File)
+	if err != nil {
+		if ps, ok := err.(Problems); ok {
+			x.probs = append(x.probs, ps...)
+		}
+		if inc == nil {
+			if _, ok := err.(Problems); !ok {
+				x.errf(s.Fields["procedure"], "include %q: %v", in.Procedure, err)
+			}
+			return 0
+		}
+	}
+	in.Resolved = inc
+	for _, n := range x.stack {
+		if n == inc.Name {
+			x.errf(s.Fields["procedure"], "include cycle: %s → %s", strings.Join(x.stack, " → "), inc.Name)
+			return 0
+		}
+	}
+	if in.Once && x.included[inc.Name] {
+		return 0
+	}
+	x.included[inc.Name] = true
+	x.stack = append(x.stack, inc.Name)
+	defer func() { x.stack = x.stack[:len(x.stack)-1] }()
+	return x.proc(inc, prefix+s.ID+"/")
+}
+
+// instance copies a written step for one run position: {mode}
+// substituted, the procedure's defaults filled in, a beam quality's
+// tube voltage and filter added to the setup.
+func (x *expander) instance(p *Procedure, s *Step, mode string) Step {
+	st := *s
+	sub := func(t string) string {
+		if mode == "" {
+			return t
+		}
+		return strings.ReplaceAll(t, "{mode}", mode)
+	}
+	st.Text = sub(s.Text)
+	st.Items = nil
+	for _, it := range s.Items {
+		st.Items = append(st.Items, Item{Text: sub(it.Text), Pos: it.Pos})
+	}
+	st.Setup = nil
+	for _, kv := range s.Setup {
+		st.Setup = append(st.Setup, Setting{Key: kv.Key, Value: sub(kv.Value), Pos: kv.Pos})
+	}
+	if s.Measure != nil {
+		m := *s.Measure
+		m.FieldMode = sub(m.FieldMode)
+		if m.FieldMode == "" {
+			if fm, ok := st.Setup.Get(SetFieldMode); ok {
+				m.FieldMode = fm
+			} else {
+				m.FieldMode = mode
+			}
+		}
+		if m.Precision == 0 {
+			m.Precision = p.Defaults.Precision
+		}
+		if m.MaxBeam == 0 && m.Beam {
+			m.MaxBeam = p.Defaults.MaxBeam
+		}
+		if m.Expect == nil {
+			m.Expect = p.Defaults.Expect
+		}
+		if m.FieldMode != "" {
+			if _, ok := st.Setup.Get(SetFieldMode); !ok {
+				st.Setup = append(st.Setup, Setting{Key: SetFieldMode, Value: m.FieldMode, Pos: s.Pos})
+			}
+		}
+		if q, ok := BeamQualities[m.BeamQuality]; ok {
+			if _, ok := st.Setup.Get(SetBeamQuality); !ok {
+				st.Setup = append(st.Setup, Setting{Key: SetBeamQuality, Value: q.Name, Pos: s.Pos})
+			}
+			if _, ok := st.Setup.Get(SetTubeVoltage); !ok {
+				st.Setup = append(st.Setup, Setting{Key: SetTubeVoltage, Value: formatNumber(q.TubeVoltage) + " kV", Pos: s.Pos})
+			}
+			if _, ok := st.Setup.Get(SetAddedFilter); !ok {
+				st.Setup = append(st.Setup, Setting{Key: SetAddedFilter, Value: formatNumber(q.AddedAl) + " mm Al", Pos: s.Pos})
+			}
+		}
+		st.Measure = &m
+	}
+	if s.Compute != nil {
+		c := *s.Compute
+		c.Inputs = append([]Input(nil), s.Compute.Inputs...)
+		st.Compute = &c
+	}
+	if s.Judge != nil {
+		j := *s.Judge
+		j.Limits = append([]Limit(nil), s.Judge.Limits...)
+		st.Judge = &j
+	}
+	if s.Enter != nil {
+		e := *s.Enter
+		st.Enter = &e
+	}
+	return st
+}
+
+// resolve finds the flat id a reference in a step of mode names, among
+// the steps already expanded in the same procedure instance.
+func (x *expander) resolve(prefix, ref, mode string, modes []string) (string, bool) {
+	if id, m, ok := strings.Cut(ref, "@"); ok {
+		if m == "first" && len(modes) > 0 {
+			m = modes[0]
+		}
+		_, found := x.byID[prefix+id+"@"+m]
+		return prefix + id + "@" + m, found
+	}
+	if mode != "" {
+		if _, ok := x.byID[prefix+ref+"@"+mode]; ok {
+			return prefix + ref + "@" + mode, true
+		}
+	}
+	_, ok := x.byID[prefix+ref]
+	return prefix + ref, ok
+}
+
+func (x *expander) compute(prefix string, st *Step, mode string, modes []string) {
+	c := st.Compute
+	if c == nil {
+		return
+	}
+	roles, ok := figureRoles[c.Figure]
+	if !ok {
+		return
+	}
+	for i := range c.Inputs {
+		in := &c.Inputs[i]
+		var r *role
+		for j := range roles {
+			if roles[j].name == in.Role {
+				r = &roles[j]
+			}
+		}
+		if r == nil {
+			var names []string
+			for _, r := range roles {
+				names = append(names, r.name)
+			}
+			x.errf(in.Pos, "%s takes no input %q (expected %s)", c.Figure, in.Role, strings.Join(names, ", "))
+			continue
+		}
+		id, found := x.resolve(prefix, in.Ref, mode, modes)
+		if !found {
+			x.errf(in.Pos, "%s refers to %q, which is not a step earlier in this procedure", in.Role, in.Ref)
+			continue
+		}
+		in.Resolved = id
+		ref := x.steps[x.byID[id]].Step
+		if ref.Kind != KindMeasure || ref.Measure == nil {
+			x.errf(in.Pos, "%s refers to %q, a %s step, not a measure step", in.Role, in.Ref, ref.Kind)
+			continue
+		}
+		m := ref.Measure
+		if r.quantity != "" && !m.reads(r.quantity) {
+			x.errf(in.Pos, "%s refers to %q, which does not read %s", in.Role, in.Ref, r.quantity)
+		}
+		if r.beam == 1 && !m.Beam {
+			x.errf(in.Pos, "%s refers to %q, a dark reading (beam off); it needs a beam reading", in.Role, in.Ref)
+		}
+		if r.beam == -1 && m.Beam {
+			x.errf(in.Pos, "%s refers to %q, a beam reading; it needs a dark reading (beam off)", in.Role, in.Ref)
+		}
+		if c.Figure == FigNonUniformity && r.name == "luminance" && len(m.Positions) < 2 {
+			x.errf(in.Pos, "non_uniformity needs a luminance measurement at several positions; %q has %d", in.Ref, len(m.Positions))
+		}
+		if c.Figure == FigStability && m.Duration == 0 {
+			x.errf(in.Pos, "stability needs a measurement over a fixed duration; %q has no duration", in.Ref)
+		}
+	}
+	for _, r := range roles {
+		if _, ok := c.Input(r.name); !ok && !r.optional {
+			x.errf(st.Fields["from"], "%s needs input %q", c.Figure, r.name)
+		}
+	}
+}
+
+func (m *MeasureSpec) reads(q units.Quantity) bool {
+	for _, r := range m.Reads {
+		if r.Quantity == q {
+			return true
+		}
+	}
+	return false
+}
+
+func (x *expander) judge(prefix string, st *Step, mode string, modes []string) {
+	j := st.Judge
+	if j == nil || j.Result == "" {
+		return
+	}
+	id, found := x.resolve(prefix, j.Result, mode, modes)
+	if !found {
+		x.errf(st.Fields["result"], "result refers to %q, which is not a step earlier in this procedure", j.Result)
+		return
+	}
+	j.Resolved = id
+	ref := x.steps[x.byID[id]].Step
+	if ref.Kind != KindCompute || ref.Compute == nil {
+		x.errf(st.Fields["result"], "result refers to %q, a %s step, not a compute step", j.Result, ref.Kind)
+		return
+	}
+	fig := ref.Compute.Figure
+	q := figureQuantity[fig]
+	if q == "" && fig != FigConversionFactor {
+		// dark_level and stability are in the unit of what was read.
+		for _, in := range ref.Compute.Inputs {
+			if i, ok := x.byID[in.Resolved]; ok && x.steps[i].Step.Measure != nil && len(x.steps[i].Step.Measure.Reads) > 0 {
+				q = x.steps[i].Step.Measure.Reads[0].Quantity
+			}
+		}
+	}
+	for i := range j.Limits {
+		l := &j.Limits[i]
+		if l.Ref != "" {
+			ns, name, ok := strings.Cut(l.Ref, ".")
+			if !ok || !contains(RefNamespaces, ns) || !validID(name) {
+				x.errf(l.Pos, "%s: %q is neither a number nor a session value (spec.NAME, baseline.NAME, site.NAME, entered.NAME)", l.Kind, l.Ref)
+				continue
+			}
+			if ns == "entered" && !x.entered[name] {
+				x.errf(l.Pos, "%s refers to entered value %q, which no earlier enter step asks for", l.Kind, name)
+			}
+			continue
+		}
+		v, unit, err := limitValue(fig, q, *l)
+		if err != nil {
+			x.errf(l.Pos, "%s of %s: %v", l.Kind, fig, err)
+			continue
+		}
+		l.Value, l.Unit = v, unit
+	}
+	lim := map[LimitKind]Limit{}
+	for _, l := range j.Limits {
+		lim[l.Kind] = l
+	}
+	for _, pair := range [][2]LimitKind{{SpecMin, SpecMax}, {BaselineMin, BaselineMax}, {ActionMin, ActionMax}} {
+		lo, ok1 := lim[pair[0]]
+		hi, ok2 := lim[pair[1]]
+		if ok1 && ok2 && lo.Ref == "" && hi.Ref == "" && lo.Unit == hi.Unit && lo.Value > hi.Value {
+			x.errf(lo.Pos, "%s is above %s", pair[0], pair[1])
+		}
+	}
+}
+
+// static checks one written procedure, once: step ids, meters, measure
+// steps' safety fields, {mode} placement.
+func (x *expander) static(p *Procedure) {
+	seen := map[string]Pos{}
+	var walk func(steps []Step, inRepeat bool)
+	walk = func(steps []Step, inRepeat bool) {
+		for i := range steps {
+			s := &steps[i]
+			if s.ID != "" {
+				if first, dup := seen[s.ID]; dup {
+					x.errf(s.Fields["id"], "duplicate step id %q (first used at line %d)", s.ID, first.Line)
+				} else {
+					seen[s.ID] = s.Fields["id"]
+				}
+			}
+			x.staticStep(p, s, inRepeat)
+			if s.Repeat != nil {
+				walk(s.Repeat.Steps, true)
+			}
+		}
+	}
+	walk(p.Steps, false)
+	if len(p.Steps) == 0 {
+		if _, ok := p.Fields["steps"]; ok {
+			x.errf(p.Fields["steps"], "the procedure has no steps")
+		}
+	}
+}
+
+func (x *expander) staticStep(p *Procedure, s *Step, inRepeat bool) {
+	if !inRepeat {
+		hasMode := strings.Contains(s.Text, "{mode}")
+		for _, it := range s.Items {
+			hasMode = hasMode || strings.Contains(it.Text, "{mode}")
+		}
+		for _, kv := range s.Setup {
+			hasMode = hasMode || strings.Contains(kv.Value, "{mode}")
+		}
+		if s.Measure != nil {
+			hasMode = hasMode || strings.Contains(s.Measure.FieldMode, "{mode}")
+		}
+		if hasMode {
+			x.errf(s.Pos, "step %q uses {mode} outside a per_field_mode block", s.ID)
+		}
+	}
+	if s.Kind == KindEnter && s.Enter != nil {
+		e := s.Enter
+		if e.HasDef && (e.Default < e.Min || e.Default > e.Max) {
+			x.errf(s.Fields["default"], "default %s %s is outside the range %s to %s", formatNumber(e.Default), e.Unit, formatNumber(e.Min), formatNumber(e.Max))
+		}
+	}
+	m := s.Measure
+	if s.Kind != KindMeasure || m == nil {
+		return
+	}
+	for _, r := range m.Reads {
+		if !contains(p.Meters, r.Meter) {
+			x.errf(r.Pos, "meter %q is not in the procedure's meters (%s)", r.Meter, strings.Join(p.Meters, ", "))
+		}
+		if x.env.Quantities != nil {
+			x.meterReports(r)
+		}
+	}
+	if m.Beam {
+		if m.MaxBeam == 0 && p.Defaults.MaxBeam == 0 {
+			x.errf(s.Pos, "beam step %q has no max_beam (and the procedure has no default): its beam-on time must be bounded", s.ID)
+		}
+		if m.reads(units.AirKermaRate) {
+			exp := m.Expect
+			if exp == nil {
+				exp = p.Defaults.Expect
+			}
+			var ok bool
+			for _, e := range exp {
+				ok = ok || e.Quantity == units.AirKermaRate
+			}
+			if !ok {
+				x.errf(s.Pos, "beam step %q reads air_kerma_rate with no expected range (expect: air_kerma_rate: LOW to HIGH µGy/s) for the out-of-range safety stop", s.ID)
+			}
+		}
+	} else if m.BeamQuality != "" {
+		x.errf(s.Fields["beam_quality"], "a dark reading (beam off) has no beam quality")
+	}
+	if m.Duration > 0 && len(m.Positions) > 1 {
+		x.errf(s.Fields["duration"], "a fixed-duration reading takes one position, not %d", len(m.Positions))
+	}
+	if q, ok := BeamQualities[m.BeamQuality]; ok {
+		if f, ok := s.Setup.Get(SetAddedFilter); ok {
+			if want := formatNumber(q.AddedAl) + " mm Al"; f != want {
+				x.errf(s.Setup.pos(SetAddedFilter), "added_filter %s does not match beam quality %s (%s)", f, q.Name, want)
+			}
+		}
+	}
+}
+
+func (s Setup) pos(key string) Pos {
+	for _, kv := range s {
+		if kv.Key == key {
+			return kv.Pos
+		}
+	}
+	return Pos{}
+}
+
+// meterReports checks a read against the configured meters.
+func (x *expander) meterReports(r Read) {
+	qs, configured := x.env.Quantities[r.Meter]
+	for _, q := range qs {
+		if q == r.Quantity {
+			return
+		}
+	}
+	var any []string
+	for name, qs := range x.env.Quantities {
+		for _, q := range qs {
+			if q == r.Quantity {
+				any = append(any, name)
+			}
+		}
+	}
+	sort.Strings(any)
+	switch {
+	case len(any) == 0:
+		x.errf(r.Pos, "no configured meter reports %s", r.Quantity)
+	case !configured:
+		x.errf(r.Pos, "meter %q is not configured on this bench (%s reports %s)", r.Meter, strings.Join(any, ", "), r.Quantity)
+	default:
+		x.errf(r.Pos, "meter %q does not report %s (%s does)", r.Meter, r.Quantity, strings.Join(any, ", "))
+	}
+}
