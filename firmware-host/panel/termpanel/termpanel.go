@@ -1,0 +1,356 @@
+// Package termpanel is the panel for a bench with a screen and keyboard:
+// messages are printed with their level and time, prompts show progress
+// and the keys that answer them, and speech can be added.
+//
+// Keys at a prompt: Enter = done (acknowledge), r = retake, p = pause,
+// q = abort (asked twice). A value prompt shows its unit, range and default
+// and takes a typed number, or Enter for the default; a number outside the
+// range is refused with a message and asked again.
+package termpanel
+
+import (
+	"bufio"
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"os"
+	"strconv"
+	"strings"
+	"sync"
+
+	"kermalux/drivers/clock"
+	"kermalux/firmware-host/panel"
+	"kermalux/firmware-host/panel/speech"
+)
+
+// Voice is what the panel needs from speech; *speech.Queue provides it.
+type Voice interface {
+	Say(text string, urgent bool)
+	Close() error
+}
+
+// Options configure a terminal panel.
+type Options struct {
+	Clock clock.Clock // for the times printed; the real clock if nil
+	Color bool        // ANSI colours (only for a terminal)
+	// Echo writes each line read back to the output, so a transcript of a
+	// piped session (or a test) shows what was typed.
+	Echo bool
+	// DiscardTypeAhead drops lines typed before a prompt appeared, so a
+	// stray Enter cannot acknowledge a safety check nobody has read. Set it
+	// for a person at a keyboard, not for piped input.
+	DiscardTypeAhead bool
+	Voice            Voice // optional speech
+}
+
+// Panel is the terminal panel. Only one Ask may wait at a time.
+type Panel struct {
+	out  io.Writer
+	opt  Options
+	clk  clock.Clock
+	in   *bufio.Reader
+	once sync.Once
+
+	lines chan string
+	inErr error // set before lines is closed
+
+	mu        sync.Mutex
+	indicator panel.Indicator
+	closed    bool
+	askMu     sync.Mutex
+}
+
+var _ panel.Panel = (*Panel)(nil)
+
+// New returns a panel reading answers from in and writing to out.
+func New(in io.Reader, out io.Writer, opt Options) *Panel {
+	if opt.Clock == nil {
+		opt.Clock = clock.NewReal()
+	}
+	return &Panel{out: out, opt: opt, clk: opt.Clock, in: bufio.NewReader(in), lines: make(chan string)}
+}
+
+// NewStdio returns a panel on standard input and output, with colour when
+// standard output is a terminal and NO_COLOR is not set, and echo when
+// standard input is not a terminal.
+func NewStdio(clk clock.Clock, voice Voice) *Panel {
+	color := isTerminal(os.Stdout) && os.Getenv("NO_COLOR") == ""
+	tty := isTerminal(os.Stdin)
+	return New(os.Stdin, os.Stdout, Options{Clock: clk, Color: color, Echo: !tty, DiscardTypeAhead: tty, Voice: voice})
+}
+
+func isTerminal(f *os.File) bool {
+	st, err := f.Stat()
+	return err == nil && st.Mode()&os.ModeCharDevice != 0
+}
+
+// ErrClosed is returned by calls after Close.
+var ErrClosed = errors.New("terminal panel: closed")
+
+// readLines feeds lines from the input to p.lines until end of input.
+func (p *Panel) readLines() {
+	for {
+		s, err := p.in.ReadString('\n')
+		if err != nil && s == "" {
+			if errors.Is(err, io.EOF) {
+				err = io.ErrUnexpectedEOF
+			}
+			p.inErr = err
+			close(p.lines)
+			return
+		}
+		p.lines <- strings.TrimRight(s, "\r\n")
+	}
+}
+
+// discardTypeAhead drops a line already read but not yet asked for.
+func (p *Panel) discardTypeAhead() {
+	p.once.Do(func() { go p.readLines() })
+	for {
+		select {
+		case _, ok := <-p.lines:
+			if !ok {
+				return
+			}
+		default:
+			return
+		}
+	}
+}
+
+// readLine waits for one line of input or for ctx to end.
+func (p *Panel) readLine(ctx context.Context) (string, error) {
+	p.once.Do(func() { go p.readLines() })
+	select {
+	case <-ctx.Done():
+		return "", ctx.Err()
+	case s, ok := <-p.lines:
+		if !ok {
+			return "", fmt.Errorf("terminal panel: reading the keyboard: input closed: %w", p.inErr)
+		}
+		if p.opt.Echo {
+			fmt.Fprintf(p.out, "%s\n", s)
+		}
+		return s, nil
+	}
+}
+
+const (
+	ansiReset  = "\x1b[0m"
+	ansiBold   = "\x1b[1m"
+	ansiRed    = "\x1b[31m"
+	ansiGreen  = "\x1b[32m"
+	ansiYellow = "\x1b[33m"
+	ansiCyan   = "\x1b[36m"
+)
+
+// label is the printed tag and colour of each level.
+var label = map[panel.Level]struct{ tag, color string }{
+	panel.Info:  {"info ", ""},
+	panel.Good:  {"good ", ansiGreen},
+	panel.Retry: {"again", ansiYellow},
+	panel.Warn:  {"WARN ", ansiBold + ansiYellow},
+	panel.Alarm: {"ALARM", ansiBold + ansiRed},
+}
+
+const indent = "                 " // under the text, past "15:04:05  info   "
+
+func (p *Panel) paint(color, s string) string {
+	if !p.opt.Color || color == "" {
+		return s
+	}
+	return color + s + ansiReset
+}
+
+func (p *Panel) line(tag, color, text string) {
+	fmt.Fprintf(p.out, "%s  %s  %s\n", p.clk.Now().Format("15:04:05"), p.paint(color, tag), p.paint(color, text))
+}
+
+// Say prints m with its level and time, and speaks it if there is a voice.
+func (p *Panel) Say(ctx context.Context, m panel.Message) error {
+	if err := ctx.Err(); err != nil {
+		return err
+	}
+	if p.isClosed() {
+		return ErrClosed
+	}
+	l, ok := label[m.Level]
+	if !ok {
+		l = label[panel.Info]
+	}
+	p.line(l.tag, l.color, m.Text)
+	if p.opt.Voice != nil {
+		p.opt.Voice.Say(speech.ForEar(m.Text), m.Level == panel.Alarm)
+	}
+	return nil
+}
+
+func (p *Panel) isClosed() bool {
+	p.mu.Lock()
+	defer p.mu.Unlock()
+	return p.closed
+}
+
+// Progress is the progress line of a prompt: "step 5 of 31 — next: lead
+// disk", or "" when the prompt carries no progress.
+func Progress(pr panel.Prompt) string {
+	if pr.Of <= 0 {
+		return ""
+	}
+	s := fmt.Sprintf("step %d of %d", pr.Step, pr.Of)
+	if pr.Next != "" {
+		s += " — next: " + pr.Next
+	}
+	return s
+}
+
+const keysLine = "Enter = done, r = retake, p = pause, q = abort"
+
+// Ask prints pr and waits for a key (or a value) on the input.
+func (p *Panel) Ask(ctx context.Context, pr panel.Prompt) (panel.Response, error) {
+	if p.isClosed() {
+		return panel.Response{}, ErrClosed
+	}
+	p.askMu.Lock()
+	defer p.askMu.Unlock()
+
+	if p.opt.DiscardTypeAhead {
+		p.discardTypeAhead()
+	}
+	if s := Progress(pr); s != "" {
+		fmt.Fprintf(p.out, "%s%s\n", indent, p.paint(ansiCyan, "["+s+"]"))
+	}
+	l, ok := label[pr.Level]
+	if !ok || pr.Level == panel.Info || pr.Level == "" {
+		l = struct{ tag, color string }{"ask  ", ansiBold}
+	}
+	p.line(l.tag, l.color, pr.Text)
+	if p.opt.Voice != nil {
+		p.opt.Voice.Say(speech.ForEar(pr.Text), pr.Level == panel.Alarm)
+	}
+	v := pr.Value
+	if v == nil {
+		fmt.Fprintf(p.out, "%s%s\n", indent, keysLine)
+	} else {
+		def := "no default: type a number"
+		if v.HasDef {
+			def = fmt.Sprintf("Enter = %s", fmtNum(v.Default))
+		}
+		fmt.Fprintf(p.out, "%s%s in %s, %s to %s; %s; r = retake, p = pause, q = abort\n",
+			indent, v.Name, v.Unit, fmtNum(v.Min), fmtNum(v.Max), def)
+	}
+
+	for {
+		fmt.Fprint(p.out, "> ")
+		s, err := p.readLine(ctx)
+		if err != nil {
+			fmt.Fprintln(p.out)
+			return panel.Response{}, fmt.Errorf("terminal panel: waiting for an answer to %q: %w", pr.Text, err)
+		}
+		key := strings.ToLower(strings.TrimSpace(s))
+		switch key {
+		case "r":
+			return p.answer(panel.Retake, 0), nil
+		case "p":
+			return p.answer(panel.Pause, 0), nil
+		case "q":
+			fmt.Fprintf(p.out, "%sAbort the session? Type q again to abort, Enter to carry on.\n> ", indent)
+			s, err := p.readLine(ctx)
+			if err != nil {
+				fmt.Fprintln(p.out)
+				return panel.Response{}, fmt.Errorf("terminal panel: waiting for the abort to be confirmed: %w", err)
+			}
+			if strings.ToLower(strings.TrimSpace(s)) == "q" {
+				return p.answer(panel.Abort, 0), nil
+			}
+			fmt.Fprintf(p.out, "%sCarrying on.\n", indent)
+			continue
+		}
+		if v == nil {
+			if key == "" {
+				return p.answer(panel.Ack, 0), nil
+			}
+			fmt.Fprintf(p.out, "%s%q is not a key here. %s.\n", indent, s, keysLine)
+			continue
+		}
+		x, msg := parseValue(key, v)
+		if msg != "" {
+			fmt.Fprintf(p.out, "%s%s\n", indent, msg)
+			continue
+		}
+		return p.answer(panel.Ack, x), nil
+	}
+}
+
+// parseValue reads a typed value (a comma is taken as the decimal point);
+// msg is why it was refused.
+func parseValue(s string, v *panel.ValueRequest) (x float64, msg string) {
+	if s == "" {
+		if v.HasDef {
+			return v.Default, ""
+		}
+		return 0, fmt.Sprintf("There is no default for %s: type a number from %s to %s %s.", v.Name, fmtNum(v.Min), fmtNum(v.Max), v.Unit)
+	}
+	x, err := strconv.ParseFloat(strings.ReplaceAll(s, ",", "."), 64)
+	if err != nil || math.IsNaN(x) || math.IsInf(x, 0) {
+		return 0, fmt.Sprintf("%q is not a number. Type %s in %s, or Enter for the default.", s, v.Name, v.Unit)
+	}
+	if x < v.Min || x > v.Max {
+		return 0, fmt.Sprintf("%s %s is outside %s to %s %s; type a value in that range.", fmtNum(x), v.Unit, fmtNum(v.Min), fmtNum(v.Max), v.Unit)
+	}
+	return x, ""
+}
+
+func fmtNum(x float64) string { return strconv.FormatFloat(x, 'g', -1, 64) }
+
+func (p *Panel) answer(a panel.Answer, x float64) panel.Response {
+	return panel.Response{Answer: a, Value: x, At: p.clk.Now()}
+}
+
+// indicatorWords is how each indicator is printed.
+var indicatorWords = map[panel.Indicator]struct{ text, color string }{
+	panel.Ready:  {"ready", ansiGreen},
+	panel.BeamOn: {"BEAM ON", ansiBold + ansiRed},
+	panel.Fault:  {"FAULT", ansiBold + ansiRed},
+	panel.Busy:   {"busy", ""},
+}
+
+// Indicate prints the status when it changes.
+func (p *Panel) Indicate(ctx context.Context, on panel.Indicator) error {
+	if err := ctx.Err(); err != nil {
+		return err
+	}
+	w, ok := indicatorWords[on]
+	if !ok {
+		return fmt.Errorf("terminal panel: unknown indicator %q", on)
+	}
+	p.mu.Lock()
+	if p.closed {
+		p.mu.Unlock()
+		return ErrClosed
+	}
+	changed := p.indicator != on
+	p.indicator = on
+	p.mu.Unlock()
+	if changed {
+		p.line("state", w.color, w.text)
+	}
+	return nil
+}
+
+// Close stops speech. The input is left open (it is usually stdin).
+func (p *Panel) Close() error {
+	p.mu.Lock()
+	if p.closed {
+		p.mu.Unlock()
+		return nil
+	}
+	p.closed = true
+	p.mu.Unlock()
+	if p.opt.Voice != nil {
+		return p.opt.Voice.Close()
+	}
+	return nil
+}
