@@ -1,0 +1,516 @@
+package report
+
+import (
+	"bytes"
+	"fmt"
+	"image/color"
+	"math"
+	"regexp"
+	"strings"
+	"time"
+
+	"gonum.org/v1/plot"
+	"gonum.org/v1/plot/font"
+	"gonum.org/v1/plot/plotter"
+	"gonum.org/v1/plot/vg"
+	"gonum.org/v1/plot/vg/draw"
+	"gonum.org/v1/plot/vg/vgimg"
+	"gonum.org/v1/plot/vg/vgsvg"
+)
+
+// Chart is a rendered chart: an SVG document for HTML and a PNG image for
+// PDF, with a caption.
+type Chart struct {
+	Name    string // stable identifier, e.g. "map-32cm"
+	Title   string
+	Caption string
+	SVG     string // the <svg> element, without the XML prolog
+	PNG     []byte
+	// Width and Height in points, for laying the PNG out in a PDF.
+	Width, Height float64
+}
+
+var (
+	inkColor    = color.RGBA{0x22, 0x2b, 0x36, 0xff}
+	accentColor = color.RGBA{0x1f, 0x5f, 0x9e, 0xff}
+	failColor   = color.RGBA{0xb0, 0x2a, 0x2a, 0xff}
+	fitColor    = color.RGBA{0x6b, 0x7a, 0x8a, 0xff}
+	gridColor   = color.RGBA{0xd5, 0xdb, 0xe1, 0xff}
+)
+
+// newPlot returns a plot in the report's sans-serif type.
+func newPlot(title, xlabel, ylabel string) *plot.Plot {
+	p := plot.New()
+	p.Title.Text = title
+	p.X.Label.Text = xlabel
+	p.Y.Label.Text = ylabel
+	sans := func(f *font.Font, size vg.Length) {
+		f.Typeface = "Liberation"
+		f.Variant = "Sans"
+		f.Size = size
+	}
+	sans(&p.Title.TextStyle.Font, 12)
+	sans(&p.X.Label.TextStyle.Font, 10)
+	sans(&p.Y.Label.TextStyle.Font, 10)
+	sans(&p.X.Tick.Label.Font, 9)
+	sans(&p.Y.Tick.Label.Font, 9)
+	sans(&p.Legend.TextStyle.Font, 9)
+	p.Title.Padding = vg.Points(6)
+	return p
+}
+
+func sansStyle(size vg.Length) font.Font {
+	return font.Font{Typeface: "Liberation", Variant: "Sans", Size: size}
+}
+
+var svgSize = regexp.MustCompile(`^<svg width="([0-9.]+)pt" height="([0-9.]+)pt"`)
+
+// render draws p as SVG and PNG at w×h points.
+func render(p *plot.Plot, name, title, caption string, w, h vg.Length) (Chart, error) {
+	c := Chart{Name: name, Title: title, Caption: caption, Width: w.Points(), Height: h.Points()}
+	sc := vgsvg.New(w, h)
+	p.Draw(draw.New(sc))
+	var sb bytes.Buffer
+	if _, err := sc.WriteTo(&sb); err != nil {
+		return c, fmt.Errorf("chart %s: svg: %w", name, err)
+	}
+	s := sb.String()
+	if i := strings.Index(s, "<svg"); i >= 0 {
+		s = s[i:]
+	}
+	s = svgSize.ReplaceAllString(s, `<svg class="chart" role="img" aria-label="`+htmlAttr(title)+`" width="${1}pt" height="${2}pt"`)
+	s = strings.ReplaceAll(s, "font-family:Liberation Sans;", "font-family:'Liberation Sans',Arial,Helvetica,sans-serif;")
+	c.SVG = s
+
+	ic := vgimg.NewWith(vgimg.UseWH(w, h), vgimg.UseDPI(150), vgimg.UseBackgroundColor(color.White))
+	p.Draw(draw.New(ic))
+	var pb bytes.Buffer
+	if _, err := (vgimg.PngCanvas{Canvas: ic}).WriteTo(&pb); err != nil {
+		return c, fmt.Errorf("chart %s: png: %w", name, err)
+	}
+	c.PNG = pb.Bytes()
+	return c, nil
+}
+
+func htmlAttr(s string) string {
+	return strings.NewReplacer(`&`, "&amp;", `"`, "&quot;", `<`, "&lt;", `>`, "&gt;").Replace(s)
+}
+
+// fractionColor maps a fraction of centre luminance to a colour: dark
+// blue at 1 (as bright as the centre), through teal and amber, to red at
+// 0.6 and below.
+func fractionColor(f float64) color.Color {
+	stops := []struct {
+		f float64
+		c color.RGBA
+	}{
+		{0.6, color.RGBA{0xc0, 0x39, 0x2b, 0xff}},
+		{0.75, color.RGBA{0xe6, 0x9b, 0x22, 0xff}},
+		{0.9, color.RGBA{0x2a, 0x9d, 0x8f, 0xff}},
+		{1.0, color.RGBA{0x1f, 0x4e, 0x8c, 0xff}},
+	}
+	if f <= stops[0].f {
+		return stops[0].c
+	}
+	for i := 1; i < len(stops); i++ {
+		if f <= stops[i].f {
+			a, b := stops[i-1], stops[i]
+			t := (f - a.f) / (b.f - a.f)
+			mix := func(x, y uint8) uint8 { return uint8(math.Round(float64(x) + t*(float64(y)-float64(x)))) }
+			return color.RGBA{mix(a.c.R, b.c.R), mix(a.c.G, b.c.G), mix(a.c.B, b.c.B), 0xff}
+		}
+	}
+	return stops[len(stops)-1].c
+}
+
+// circle returns n+1 points on a circle of radius r around the origin.
+func circle(r float64, n int) plotter.XYs {
+	pts := make(plotter.XYs, n+1)
+	for i := range pts {
+		a := 2 * math.Pi * float64(i) / float64(n)
+		pts[i].X, pts[i].Y = r*math.Cos(a), r*math.Sin(a)
+	}
+	return pts
+}
+
+// MapChart draws the luminance map of the output face: the face as a
+// circle, each position where it was read, coloured and labelled by its
+// fraction of the centre luminance.
+func MapChart(m LuminanceMap) (Chart, error) {
+	title := "Luminance over the output face"
+	if m.FieldMode != "" {
+		title += ", " + m.FieldMode + " field"
+	}
+	p := newPlot(title, "", "")
+	p.HideAxes()
+	p.X.Min, p.X.Max, p.Y.Min, p.Y.Max = -1.25, 1.25, -1.25, 1.25
+
+	edge, err := plotter.NewLine(circle(1, 120))
+	if err != nil {
+		return Chart{}, err
+	}
+	edge.Color, edge.Width = inkColor, vg.Points(1.2)
+	p.Add(edge)
+	for _, r := range []float64{0.5, 0.9} {
+		ring, err := plotter.NewLine(circle(r, 120))
+		if err != nil {
+			return Chart{}, err
+		}
+		ring.Color, ring.Width, ring.Dashes = gridColor, vg.Points(0.8), []vg.Length{vg.Points(3), vg.Points(3)}
+		p.Add(ring)
+	}
+	var pts plotter.XYs
+	var labels []string
+	var fracs []float64
+	for _, q := range m.Points {
+		if !q.Placed {
+			continue
+		}
+		a := q.AngleDeg * math.Pi / 180
+		pts = append(pts, plotter.XY{X: q.R * math.Cos(a), Y: q.R * math.Sin(a)})
+		fracs = append(fracs, q.Fraction)
+		if m.Centre > 0 {
+			labels = append(labels, fmt.Sprintf("%.0f %%", 100*q.Fraction))
+		} else {
+			labels = append(labels, fmt.Sprintf("%.3g", q.Mean))
+		}
+	}
+	if len(pts) == 0 {
+		return Chart{}, fmt.Errorf("luminance map %s: no position could be placed on the face", m.FieldMode)
+	}
+	sc, err := plotter.NewScatter(pts)
+	if err != nil {
+		return Chart{}, err
+	}
+	sc.GlyphStyleFunc = func(i int) draw.GlyphStyle {
+		c := color.Color(accentColor)
+		if m.Centre > 0 {
+			c = fractionColor(fracs[i])
+		}
+		return draw.GlyphStyle{Color: c, Radius: vg.Points(9), Shape: draw.CircleGlyph{}}
+	}
+	p.Add(sc)
+	// Labels go below a disc, except in the lower half of the face where
+	// they go above it, clear of the edge and of the direction words.
+	lpts := make(plotter.XYs, len(pts))
+	for i, q := range pts {
+		dy := -0.19
+		if q.Y < -0.05 {
+			dy = 0.19
+		}
+		lpts[i] = plotter.XY{X: q.X, Y: q.Y + dy}
+	}
+	lb, err := plotter.NewLabels(plotter.XYLabels{XYs: lpts, Labels: labels})
+	if err != nil {
+		return Chart{}, err
+	}
+	for i := range lb.TextStyle {
+		lb.TextStyle[i].Font = sansStyle(9)
+		lb.TextStyle[i].Color = inkColor
+		lb.TextStyle[i].XAlign = draw.XCenter
+		lb.TextStyle[i].YAlign = draw.YCenter
+	}
+	p.Add(lb)
+	// Direction words around the face so the map reads without a legend.
+	dirs, err := plotter.NewLabels(plotter.XYLabels{
+		XYs:    plotter.XYs{{X: 0, Y: 1.15}, {X: 0, Y: -1.15}, {X: -1.15, Y: 0}, {X: 1.15, Y: 0}},
+		Labels: []string{"up", "down", "left", "right"},
+	})
+	if err != nil {
+		return Chart{}, err
+	}
+	for i := range dirs.TextStyle {
+		dirs.TextStyle[i].Font = sansStyle(8)
+		dirs.TextStyle[i].Color = fitColor
+		dirs.TextStyle[i].XAlign = draw.XCenter
+		dirs.TextStyle[i].YAlign = draw.YCenter
+	}
+	p.Add(dirs)
+	caption := "Each disc is a photometer position; its label is the luminance there as a percentage of the centre. Dashed rings: 0.5 and 0.9 of the output radius."
+	return render(p, "map-"+slug(m.FieldMode), title, caption, 4*vg.Inch, 4.2*vg.Inch)
+}
+
+// ProfileChart draws the radial luminance profile: the mean fraction of
+// centre at each radius, with the spread over directions as bars.
+func ProfileChart(m LuminanceMap) (Chart, error) {
+	if len(m.Profile) < 2 {
+		return Chart{}, fmt.Errorf("radial profile %s: fewer than two radii", m.FieldMode)
+	}
+	title := "Radial luminance profile"
+	if m.FieldMode != "" {
+		title += ", " + m.FieldMode + " field"
+	}
+	p := newPlot(title, "radius (fraction of output radius)", "luminance / centre")
+	p.Add(plotter.NewGrid())
+	pts := make(plotter.XYs, len(m.Profile))
+	errs := make(plotter.YErrors, len(m.Profile))
+	lo, hi := 1.0, 1.0
+	for i, q := range m.Profile {
+		pts[i] = plotter.XY{X: q.R, Y: q.Fraction}
+		errs[i].Low, errs[i].High = q.Fraction-q.Min, q.Max-q.Fraction
+		lo, hi = math.Min(lo, q.Min), math.Max(hi, q.Max)
+	}
+	line, err := plotter.NewLine(pts)
+	if err != nil {
+		return Chart{}, err
+	}
+	line.Color, line.Width = accentColor, vg.Points(1.5)
+	sc, err := plotter.NewScatter(pts)
+	if err != nil {
+		return Chart{}, err
+	}
+	sc.GlyphStyle = draw.GlyphStyle{Color: accentColor, Radius: vg.Points(3), Shape: draw.CircleGlyph{}}
+	eb, err := plotter.NewYErrorBars(struct {
+		plotter.XYs
+		plotter.YErrors
+	}{pts, errs})
+	if err != nil {
+		return Chart{}, err
+	}
+	eb.Color = accentColor
+	p.Add(line, sc, eb)
+	p.X.Min, p.X.Max = -0.05, 1.05
+	p.Y.Min, p.Y.Max = math.Min(0.6, math.Floor(lo*20)/20), math.Max(1.05, hi+0.02)
+	caption := "Mean over the directions at each radius; bars show the lowest and highest direction."
+	return render(p, "profile-"+slug(m.FieldMode), title, caption, 5*vg.Inch, 3.2*vg.Inch)
+}
+
+// ConversionChart draws the conversion factor per field mode with its
+// expanded uncertainty as error bars.
+func ConversionChart(results []Result) (Chart, error) {
+	var names []string
+	var pts plotter.XYs
+	var errs plotter.YErrors
+	var fails []bool
+	unit := ""
+	for _, r := range results {
+		if r.Quantity != "conversion_factor" {
+			continue
+		}
+		names = append(names, orDash(r.FieldMode))
+		pts = append(pts, plotter.XY{X: float64(len(pts)), Y: r.Value})
+		errs = append(errs, struct{ Low, High float64 }{r.ExpUnc, r.ExpUnc})
+		fails = append(fails, strings.EqualFold(r.Verdict, "fail"))
+		unit = r.Unit
+	}
+	if len(pts) == 0 {
+		return Chart{}, fmt.Errorf("conversion factor chart: no conversion factor results")
+	}
+	title := "Conversion factor per field mode"
+	p := newPlot(title, "field mode", "conversion factor ("+unitText(unit)+")")
+	p.Add(plotter.NewGrid())
+	sc, err := plotter.NewScatter(pts)
+	if err != nil {
+		return Chart{}, err
+	}
+	sc.GlyphStyleFunc = func(i int) draw.GlyphStyle {
+		c := color.Color(accentColor)
+		if fails[i] {
+			c = failColor
+		}
+		return draw.GlyphStyle{Color: c, Radius: vg.Points(4), Shape: draw.CircleGlyph{}}
+	}
+	eb, err := plotter.NewYErrorBars(struct {
+		plotter.XYs
+		plotter.YErrors
+	}{pts, errs})
+	if err != nil {
+		return Chart{}, err
+	}
+	eb.Color, eb.Width, eb.CapWidth = inkColor, vg.Points(1), vg.Points(8)
+	p.Add(eb, sc)
+	p.NominalX(names...)
+	p.X.Min, p.X.Max = -0.6, float64(len(pts))-0.4
+	p.Y.Min = 0
+	top := 0.0
+	for i := range pts {
+		top = math.Max(top, pts[i].Y+errs[i].High)
+	}
+	p.Y.Max = 1.12 * top
+	caption := "Bars: expanded uncertainty U. Red: the result fails a limit."
+	return render(p, "conversion-factor", title, caption, 5*vg.Inch, 3.2*vg.Inch)
+}
+
+// decimalYear converts a date to a fractional year for the trend axis.
+func decimalYear(t time.Time) float64 {
+	y := t.Year()
+	start := time.Date(y, 1, 1, 0, 0, 0, 0, time.UTC)
+	end := time.Date(y+1, 1, 1, 0, 0, 0, 0, time.UTC)
+	return float64(y) + t.UTC().Sub(start).Hours()/end.Sub(start).Hours()
+}
+
+// yearTicks labels whole years.
+type yearTicks struct{}
+
+func (yearTicks) Ticks(min, max float64) []plot.Tick {
+	step := 1
+	for _, s := range []int{1, 2, 5, 10, 20, 50} {
+		step = s
+		if (max-min)/float64(s) <= 10 {
+			break
+		}
+	}
+	var ts []plot.Tick
+	for y := int(math.Ceil(min)); float64(y) <= max; y++ {
+		label := ""
+		if y%step == 0 {
+			label = fmt.Sprint(y)
+		}
+		ts = append(ts, plot.Tick{Value: float64(y), Label: label})
+	}
+	return ts
+}
+
+// TrendChart draws one trend: each session's value with its expanded
+// uncertainty, the least-squares line extended to the projected crossing,
+// the action level and the projected date.
+func TrendChart(t Trend) (Chart, error) {
+	if len(t.Points) == 0 {
+		return Chart{}, fmt.Errorf("trend chart: no sessions")
+	}
+	title := quantityWords(t.Quantity) + " of " + t.Serial
+	if t.FieldMode != "" {
+		title += ", " + t.FieldMode + " field"
+	}
+	p := newPlot(title, "year", quantityWords(t.Quantity)+" ("+unitText(t.Unit)+")")
+	p.Add(plotter.NewGrid())
+	p.X.Tick.Marker = yearTicks{}
+	pts := make(plotter.XYs, len(t.Points))
+	errs := make(plotter.YErrors, len(t.Points))
+	ymin, ymax := math.Inf(1), math.Inf(-1)
+	for i, q := range t.Points {
+		pts[i] = plotter.XY{X: decimalYear(q.Date), Y: q.Value}
+		errs[i].Low, errs[i].High = q.ExpUnc, q.ExpUnc
+		ymin, ymax = math.Min(ymin, q.Value-q.ExpUnc), math.Max(ymax, q.Value+q.ExpUnc)
+	}
+	xmin, xmax := pts[0].X, pts[len(pts)-1].X
+	if t.Fitted {
+		end := t.Points[len(t.Points)-1].Date
+		if t.HasCrossing && t.Crossing.After(end) && t.Crossing.Sub(end) < 40*365*24*time.Hour {
+			end = t.Crossing
+		}
+		x0, x1 := decimalYear(t.Origin), decimalYear(end)
+		y := func(x time.Time) float64 { return t.Intercept + t.Slope*years(x.Sub(t.Origin)) }
+		fit, err := plotter.NewLine(plotter.XYs{{X: x0, Y: y(t.Origin)}, {X: x1, Y: y(end)}})
+		if err != nil {
+			return Chart{}, err
+		}
+		fit.Color, fit.Width, fit.Dashes = fitColor, vg.Points(1.2), []vg.Length{vg.Points(5), vg.Points(3)}
+		p.Add(fit)
+		p.Legend.Add(fmt.Sprintf("least-squares line (%+.1f %% of baseline a year)", 100*t.FracPerYear), fit)
+		xmax = math.Max(xmax, x1)
+		ymin = math.Min(ymin, y(end))
+	}
+	if t.ActionValue > 0 {
+		al, err := plotter.NewLine(plotter.XYs{{X: xmin - 0.5, Y: t.ActionValue}, {X: xmax + 0.5, Y: t.ActionValue}})
+		if err != nil {
+			return Chart{}, err
+		}
+		al.Color, al.Width = failColor, vg.Points(1.2)
+		p.Add(al)
+		p.Legend.Add(fmt.Sprintf("action level (%.0f %% of baseline)", 100*t.ActionLevel), al)
+		ymin = math.Min(ymin, t.ActionValue)
+	}
+	if t.HasCrossing && t.Crossing.After(t.Points[len(t.Points)-1].Date) && decimalYear(t.Crossing) <= xmax+0.01 {
+		x := decimalYear(t.Crossing)
+		vl, err := plotter.NewLine(plotter.XYs{{X: x, Y: 0}, {X: x, Y: t.ActionValue}})
+		if err != nil {
+			return Chart{}, err
+		}
+		vl.Color, vl.Width, vl.Dashes = failColor, vg.Points(0.8), []vg.Length{vg.Points(2), vg.Points(2)}
+		p.Add(vl)
+		lb, err := plotter.NewLabels(plotter.XYLabels{
+			XYs:    plotter.XYs{{X: x, Y: t.ActionValue}},
+			Labels: []string{"projected " + t.Crossing.Format("Jan 2006")},
+		})
+		if err != nil {
+			return Chart{}, err
+		}
+		lb.TextStyle[0].Font = sansStyle(9)
+		lb.TextStyle[0].Color = failColor
+		lb.TextStyle[0].XAlign = draw.XRight
+		lb.TextStyle[0].YAlign = draw.YTop
+		lb.Offset = vg.Point{X: vg.Points(-3), Y: vg.Points(-4)}
+		p.Add(lb)
+	}
+	sc, err := plotter.NewScatter(pts)
+	if err != nil {
+		return Chart{}, err
+	}
+	sc.GlyphStyle = draw.GlyphStyle{Color: accentColor, Radius: vg.Points(3.5), Shape: draw.CircleGlyph{}}
+	eb, err := plotter.NewYErrorBars(struct {
+		plotter.XYs
+		plotter.YErrors
+	}{pts, errs})
+	if err != nil {
+		return Chart{}, err
+	}
+	eb.Color = accentColor
+	p.Add(eb, sc)
+	p.Legend.Add("session (bars: U)", sc)
+	p.Legend.Top = true
+	p.Legend.XOffs, p.Legend.YOffs = -vg.Points(8), -vg.Points(6)
+	p.Legend.Padding = vg.Points(2)
+	p.X.Min, p.X.Max = math.Floor(xmin-0.3), math.Ceil(xmax+0.3)
+	p.Y.Min = math.Max(0, ymin-0.1*(ymax-ymin+1))
+	p.Y.Max = ymax + 0.35*(ymax-p.Y.Min)
+	caption := "Dashed: least-squares line through all sessions, extended to the projected date at the action level."
+	return render(p, "trend-"+slug(t.FieldMode), title, caption, 6*vg.Inch, 3.4*vg.Inch)
+}
+
+// unitText writes a canonical unit for chart axes.
+func unitText(u string) string {
+	if u == "" {
+		return "no unit"
+	}
+	return u
+}
+
+// slug makes a name safe for identifiers and file names.
+func slug(s string) string {
+	var b strings.Builder
+	for _, r := range strings.ToLower(s) {
+		switch {
+		case r >= 'a' && r <= 'z', r >= '0' && r <= '9':
+			b.WriteRune(r)
+		case r == '-' || r == '_' || r == '.' || r == ' ':
+			b.WriteByte('-')
+		}
+	}
+	if b.Len() == 0 {
+		return "all"
+	}
+	return b.String()
+}
+
+// Charts renders every chart the report has data for, in reading order.
+// A chart that cannot be drawn is skipped with its reason in the returned
+// notes (the report still renders).
+func (r *Report) Charts() (charts []Chart, notes []string) {
+	add := func(c Chart, err error) {
+		if err != nil {
+			notes = append(notes, err.Error())
+			return
+		}
+		charts = append(charts, c)
+	}
+	has := false
+	for _, res := range r.Results {
+		if res.Quantity == "conversion_factor" {
+			has = true
+		}
+	}
+	if has {
+		add(ConversionChart(r.Results))
+	}
+	for _, m := range r.Maps {
+		add(MapChart(m))
+		if len(m.Profile) >= 2 {
+			add(ProfileChart(m))
+		}
+	}
+	for _, t := range r.Trends {
+		add(TrendChart(t))
+	}
+	return charts, notes
+}

@@ -1,0 +1,170 @@
+package report
+
+import (
+	_ "embed"
+	"fmt"
+	"html/template"
+	"io"
+	"math"
+	"strings"
+	"time"
+
+	"kermalux/firmware-host/journal/entry"
+)
+
+//go:embed report.html.tmpl
+var htmlText string
+
+// Options are what a rendering adds to the session's own records.
+type Options struct {
+	// Generated is the time printed as the rendering time (zero: now).
+	Generated time.Time
+	// Version is the renderer's software version.
+	Version string
+}
+
+func (o Options) generated() time.Time {
+	if o.Generated.IsZero() {
+		return time.Now()
+	}
+	return o.Generated
+}
+
+var htmlTemplate = template.Must(template.New("report").Funcs(template.FuncMap{
+	"day":          Day,
+	"stamp":        Stamp,
+	"clock":        Clock,
+	"short":        short,
+	"num":          Number,
+	"valu":         ValueWithUnc,
+	"pct":          Percent,
+	"pctSigned":    func(f float64) string { return fmt.Sprintf("%+.1f %%", 100*f) },
+	"beam":         BeamTime,
+	"factor":       Factor,
+	"quantity":     quantityWords,
+	"correction":   correctionWords,
+	"corrections":  correctionsText,
+	"verdictClass": verdictClass,
+	"verdictWords": verdictWords,
+	"certClass":    certClass,
+	"neg":          func(n int) int { return -n },
+	"inc":          func(n int) int { return n + 1 },
+	"unit":         unitShown,
+	"rel":          func(u, v float64) float64 { return u / math.Abs(v) },
+	// svg marks a chart rendered by this package as safe HTML: it is
+	// produced by gonum/plot's SVG canvas, which escapes all text.
+	"svg": func(s string) template.HTML { return template.HTML(s) },
+}).Parse(htmlText))
+
+type eventRow struct {
+	Event
+	What string
+	Beam bool
+}
+
+type htmlView struct {
+	R          *Report
+	S          entry.Session
+	Verdict    string
+	Pass, Fail int
+	Info       int
+	Charts     []Chart
+	ChartNotes []string
+	Safety     []Ack
+	Others     []Ack
+	Events     []eventRow
+	Exposures  []Exposure
+	Generated  time.Time
+	Version    string
+}
+
+func (r *Report) view(opt Options, withCharts bool) htmlView {
+	v := htmlView{R: r, S: r.Session, Verdict: r.Verdict(), Pass: r.Count("pass"), Fail: r.Count("fail"), Info: r.Count("info"),
+		Generated: opt.generated(), Version: opt.Version}
+	if v.Version == "" {
+		v.Version = r.Session.SoftwareVersion
+	}
+	if withCharts {
+		v.Charts, v.ChartNotes = r.Charts()
+	}
+	for _, a := range r.Acks {
+		if a.Safety {
+			v.Safety = append(v.Safety, a)
+		} else {
+			v.Others = append(v.Others, a)
+		}
+	}
+	v.Exposures = r.Exposures()
+	for _, e := range r.Events {
+		if e.Name == "beam_on" || e.Name == "beam_off" {
+			continue
+		}
+		what := eventWords(e.Name)
+		v.Events = append(v.Events, eventRow{Event: e, What: strings.ToUpper(what[:1]) + what[1:], Beam: true})
+	}
+	for _, s := range r.Steps {
+		what := fmt.Sprintf("Step %s %s", s.ID, s.State)
+		v.Events = append(v.Events, eventRow{Event: Event{Event: entry.Event{Step: s.Index, Name: string(s.State), Detail: s.Reason}, Seq: s.Seq, Wall: s.Wall}, What: what})
+	}
+	sortEvents(v.Events)
+	return v
+}
+
+func sortEvents(rows []eventRow) {
+	// insertion sort by journal sequence: the list is short and nearly sorted
+	for i := 1; i < len(rows); i++ {
+		for j := i; j > 0 && rows[j].Seq < rows[j-1].Seq; j-- {
+			rows[j], rows[j-1] = rows[j-1], rows[j]
+		}
+	}
+}
+
+// WriteHTML writes the report as one self-contained HTML page: styles
+// inline, charts as inline SVG, no external resources, laid out to print
+// on A4.
+func (r *Report) WriteHTML(w io.Writer, opt Options) error {
+	if err := htmlTemplate.Execute(w, r.view(opt, true)); err != nil {
+		return fmt.Errorf("render HTML report of session %s: %w", r.Session.ID, err)
+	}
+	return nil
+}
+
+func verdictClass(v string) string {
+	switch strings.ToLower(v) {
+	case "pass", "fail", "info":
+		return strings.ToLower(v)
+	}
+	return "other"
+}
+
+func verdictWords(v string) string {
+	switch v {
+	case "pass":
+		return "Pass"
+	case "fail":
+		return "Fail"
+	case "review":
+		return "Pass, with review"
+	case "incomplete":
+		return "Incomplete"
+	}
+	return v
+}
+
+func certClass(status string) string {
+	switch status {
+	case "valid":
+		return "st-valid"
+	case "due soon":
+		return "st-due"
+	}
+	return "st-bad"
+}
+
+// unitShown hides the unit "1" of dimensionless quantities.
+func unitShown(u string) string {
+	if u == "1" {
+		return ""
+	}
+	return u
+}
