@@ -1,0 +1,371 @@
+package engine
+
+import (
+	"context"
+	"fmt"
+	"math"
+	"strconv"
+	"strings"
+	"time"
+
+	"kermalux/calib"
+	"kermalux/drivers"
+	"kermalux/drivers/units"
+	"kermalux/firmware-host/journal/entry"
+	"kermalux/firmware-host/panel"
+)
+
+// CalibCorrector applies a meter's certificate and the bench geometry
+// through package calib, in calib's documented order.
+type CalibCorrector struct {
+	Cert     *calib.Certificate // nil: no certificate (readings flagged)
+	Geometry calib.Geometry     // dosimeter only
+	Day      time.Time          // session day for certificate validity; zero: the reading's wall time
+}
+
+// Correct implements Corrector.
+func (cc CalibCorrector) Correct(r drivers.Reading, c Conditions) Corrected {
+	s := calib.Setup{Cert: cc.Cert, Day: cc.Day, Geometry: cc.Geometry}
+	if s.Day.IsZero() {
+		s.Day = r.Wall
+	}
+	if q, ok := calib.RQA(c.Quality); ok {
+		s.Quality = q
+	}
+	if kv, ok := c.Values["tube_voltage"]; ok && s.Quality == (calib.Quality{}) {
+		s.Quality.TubeVoltage = kv
+	}
+	s.Air = calib.Air{Temperature: math.NaN(), Pressure: math.NaN()}
+	if t, ok := c.Values["temperature"]; ok {
+		s.Air.Temperature = t
+	}
+	if p, ok := c.Values["pressure"]; ok {
+		s.Air.Pressure = p
+	}
+	if c.HasDark && r.Quantity == units.Luminance {
+		s.Dark = c.Dark
+	}
+	if r.Quantity != units.AirKermaRate && r.Quantity != units.AirKerma {
+		s.Geometry = calib.Geometry{}
+	}
+	out := calib.Correct(r.Value, r.Quantity, s)
+	res := Corrected{Value: out.Value, Certificate: out.Certificate, Calibrated: out.Calibrated, Flags: calib.FlagTexts(out.Flags)}
+	for _, a := range out.Applied {
+		res.Corrections = append(res.Corrections, entry.Correction{Name: a.Name, Factor: a.Factor, Offset: a.Offset, Note: a.Note})
+	}
+	var v float64
+	for _, comp := range calib.CertificateComponents(cc.Cert) {
+		rel := comp.Rel
+		if comp.Abs > 0 && out.Value != 0 {
+			rel = comp.Abs / math.Abs(out.Value)
+		}
+		v += rel * rel
+	}
+	res.RelStdUncB = math.Sqrt(v)
+	return res
+}
+
+// measured turns the accepted samples of one position into calib's input.
+func measured(p posStat, lum bool) calib.Measured {
+	if lum {
+		return calib.Measured{Name: "output luminance", Unit: units.Canonical(units.Luminance),
+			Samples: calib.Summary{N: p.NL, Mean: p.L, SD: p.LU * math.Sqrt(float64(p.NL))},
+			TypeB:   relB("photometer calibration and resolution", p.BL), Calibrated: p.Calib}
+	}
+	return calib.Measured{Name: "input air kerma rate", Unit: units.Canonical(units.AirKermaRate),
+		Samples: calib.Summary{N: p.NK, Mean: p.K, SD: p.KU * math.Sqrt(float64(p.NK))},
+		TypeB:   relB("dosimeter calibration and resolution", p.BK), Calibrated: p.Calib}
+}
+
+func relB(src string, rel float64) []calib.Component {
+	if rel == 0 {
+		return nil
+	}
+	return []calib.Component{{Source: src, Rel: rel, Calibration: true}}
+}
+
+// input finds the accepted measurement a compute step names for role.
+func (e *Engine) input(s Step, role string) ([]posStat, error) {
+	id, ok := s.Compute.Inputs[role]
+	if !ok {
+		return nil, fmt.Errorf("needs a %s measurement", strings.ReplaceAll(role, "_", " "))
+	}
+	ps := e.st.meas[id]
+	var out []posStat
+	for _, p := range ps {
+		if p.Index >= 0 {
+			out = append(out, p)
+		}
+	}
+	if len(out) == 0 {
+		return nil, fmt.Errorf("the %s measurement %s was not taken", strings.ReplaceAll(role, "_", " "), id)
+	}
+	return out, nil
+}
+
+// compute computes a figure of merit from accepted measurements (through
+// calib), judges it against the bench's limits and says it.
+func (e *Engine) compute(ctx context.Context, idx int, s Step) error {
+	if s.Compute == nil {
+		return fmt.Errorf("step %d (%s): compute step without a figure", idx, s.ID)
+	}
+	var res calib.Result
+	var err error
+	fig := s.Compute.Figure
+	switch fig {
+	case "conversion_factor":
+		var lp, kp []posStat
+		if lp, err = e.input(s, "luminance"); err == nil {
+			if kp, err = e.input(s, "air_kerma_rate"); err == nil {
+				res = calib.ConversionFactor(measured(lp[0], true), measured(kp[0], false), 0)
+			}
+		}
+	case "input_kerma_rate":
+		var kp []posStat
+		if kp, err = e.input(s, "air_kerma_rate"); err == nil {
+			res = calib.KermaRate(measured(kp[0], false), 0)
+		}
+	case "contrast_ratio":
+		var op, dp []posStat
+		if op, err = e.input(s, "open"); err == nil {
+			if dp, err = e.input(s, "disk"); err == nil {
+				res = calib.ContrastRatio(measured(op[0], true), measured(dp[0], true), e.st.values["disk_diameter"], e.st.values["field_diameter"], 0)
+			}
+		}
+	case "non_uniformity":
+		var lp []posStat
+		if lp, err = e.input(s, "luminance"); err == nil {
+			var spots []calib.Spot
+			for _, p := range lp {
+				spots = append(spots, calib.Spot{Label: p.Label, Radius: p.R, Angle: p.Angle, Luminance: measured(p, true)})
+			}
+			res, err = calib.Uniformity(spots, 0)
+		}
+	case "dark_level", "stability":
+		var rp []posStat
+		if rp, err = e.input(s, "reading"); err == nil {
+			p := rp[0]
+			m := measured(p, p.HasL)
+			res = calib.Result{Quantity: fig, Value: m.Samples.Mean, Unit: m.Unit, StdUnc: m.Samples.SDMean(), K: 2, Calibrated: p.Calib}
+			if fig == "stability" {
+				res.Value, res.Unit, res.StdUnc = p.Drift, "1", 0
+			}
+			if math.IsInf(res.StdUnc, 0) {
+				res.StdUnc = 0
+			}
+			res.ExpUnc = 2 * res.StdUnc
+		}
+	default:
+		err = fmt.Errorf("figure %q is not known to the engine", fig)
+	}
+	if err != nil {
+		_ = e.say(ctx, idx, panel.Message{Text: fmt.Sprintf("%s cannot be computed: %v.", spokenQuantity(fig), err), Level: panel.Warn})
+		return &skipError{reason: err.Error()}
+	}
+	r := entry.Result{Step: idx, Procedure: s.Procedure, FieldMode: s.FieldMode, Quantity: res.Quantity,
+		Value: res.Value, Unit: res.Unit, StdUnc: res.StdUnc, ExpUnc: res.ExpUnc, K: res.K,
+		Calibrated: res.Calibrated, Flags: calib.FlagTexts(res.Flags), Detail: res.Detail, Verdict: calib.Info}
+	if r.Quantity == "" {
+		r.Quantity = fig
+	}
+	for _, p := range e.st.meas[s.Compute.Inputs[firstRole(s.Compute.Inputs)]] {
+		for _, f := range p.Flags {
+			r.Flags = appendUnique(r.Flags, f)
+		}
+		if !p.Calib {
+			r.Calibrated = false
+		}
+	}
+	for _, b := range res.Budget {
+		r.Budget = append(r.Budget, entry.BudgetRow{Source: b.Source, Type: b.Type, Value: b.Value, Unit: b.Unit, StdUnc: b.StdUnc, RelStdUnc: b.RelStdUnc, Sensitivity: b.Sensitivity, Contribution: b.Contribution, DoF: b.DoF})
+	}
+	key := limitKey(r.Quantity, s.FieldMode)
+	if b, ok := e.cfg.Limits.Baseline[key]; ok && b != 0 {
+		r.Baseline = b
+		r.BaselineFrac = r.Value / b
+	}
+	// Judge against the bench's limits; a judge step may judge it again.
+	e.applyVerdict(&r, res, e.benchLimits(r.Quantity, s.FieldMode))
+	e.storeResult(s.ID, r)
+	if err := e.journal(ctx, entry.KindResult, r); err != nil {
+		return err
+	}
+	return e.say(ctx, idx, panel.Message{Text: spokenResult(r), Level: panel.Info})
+}
+
+func firstRole(m map[string]string) string {
+	for _, k := range []string{"luminance", "open", "air_kerma_rate", "reading"} {
+		if _, ok := m[k]; ok {
+			return k
+		}
+	}
+	return ""
+}
+
+func appendUnique(xs []string, x string) []string {
+	for _, y := range xs {
+		if y == x {
+			return xs
+		}
+	}
+	return append(xs, x)
+}
+
+func (e *Engine) storeResult(id string, r entry.Result) {
+	if _, ok := e.st.results[id]; !ok {
+		e.st.order = append(e.st.order, id)
+	}
+	e.st.results[id] = r
+}
+
+// higherIsBetter: for these figures a fall against the baseline is the concern.
+func higherIsBetter(q string) bool {
+	return q == "conversion_factor" || q == "contrast_ratio"
+}
+
+// benchLimits are the bench file's limits for a quantity.
+func (e *Engine) benchLimits(q, mode string) []calib.Limit {
+	l := e.cfg.Limits
+	var out []calib.Limit
+	add := func(kind string, m map[string]Limit) {
+		lim, ok := m[limitKey(q, mode)]
+		if !ok {
+			lim, ok = m[q]
+		}
+		if !ok {
+			return
+		}
+		if lim.HasMin {
+			out = append(out, calib.Limit{Kind: kind, Bound: calib.AtLeast, Value: lim.Min})
+		}
+		if lim.HasMax {
+			out = append(out, calib.Limit{Kind: kind, Bound: calib.AtMost, Value: lim.Max})
+		}
+	}
+	add(calib.KindSpecification, l.Spec)
+	add(calib.KindActionLevel, l.Action)
+	if higherIsBetter(q) && l.BaselineFraction > 0 {
+		if _, ok := l.Baseline[limitKey(q, mode)]; ok {
+			out = append(out, calib.Limit{Kind: calib.KindBaseline, Bound: calib.AtLeast, Value: l.BaselineFraction})
+		}
+	}
+	return out
+}
+
+func (e *Engine) applyVerdict(r *entry.Result, res calib.Result, limits []calib.Limit) {
+	res.Value, res.ExpUnc, res.Unit, res.Calibrated = r.Value, r.ExpUnc, r.Unit, r.Calibrated
+	v := calib.Judge(res, r.Baseline, limits)
+	r.Verdict, r.DecidedBy = v.Verdict, v.DecidedBy
+	if v.Marginal {
+		r.Flags = appendUnique(r.Flags, "marginal")
+	}
+	for _, n := range v.Notes {
+		r.Flags = appendUnique(r.Flags, n)
+	}
+}
+
+// judge judges a computed result against the step's limits.
+func (e *Engine) judge(ctx context.Context, idx int, s Step) error {
+	j := s.Judge
+	if j == nil {
+		return fmt.Errorf("step %d (%s): judge step without limits", idx, s.ID)
+	}
+	r, ok := e.st.results[j.Result]
+	if !ok {
+		_ = e.say(ctx, idx, panel.Message{Text: "There is no result to judge: the measurement was not completed.", Level: panel.Warn})
+		return &skipError{reason: "no result " + j.Result}
+	}
+	var limits []calib.Limit
+	for _, jl := range j.Limits {
+		v := jl.Value
+		if jl.Ref != "" {
+			x, ok := e.cfg.Limits.Inputs[jl.Ref]
+			if !ok {
+				r.Flags = appendUnique(r.Flags, "limit "+jl.Ref+" not given in the bench file: not checked")
+				continue
+			}
+			v = x
+		}
+		kind, bound := calib.KindSpecification, calib.AtLeast
+		switch jl.Kind {
+		case "max":
+			bound = calib.AtMost
+		case "baseline_min":
+			kind = calib.KindBaseline
+		case "baseline_max":
+			kind, bound = calib.KindBaseline, calib.AtMost
+		case "action_min":
+			kind = calib.KindActionLevel
+		case "action_max":
+			kind, bound = calib.KindActionLevel, calib.AtMost
+		}
+		limits = append(limits, calib.Limit{Kind: kind, Bound: bound, Value: v})
+	}
+	if len(limits) == 0 {
+		limits = e.benchLimits(r.Quantity, r.FieldMode)
+	}
+	e.applyVerdict(&r, calib.Result{}, limits)
+	e.storeResult(j.Result, r)
+	if err := e.journal(ctx, entry.KindResult, r); err != nil {
+		return err
+	}
+	text := fmt.Sprintf("%s: %s", spokenQuantity(r.Quantity), r.Verdict)
+	if r.DecidedBy != "" {
+		text += ", " + r.DecidedBy
+	}
+	lv := panel.Good
+	if r.Verdict == calib.Fail {
+		lv = panel.Warn
+	}
+	return e.say(ctx, idx, panel.Message{Text: text + ".", Level: lv})
+}
+
+func spokenQuantity(q string) string {
+	s := strings.ReplaceAll(q, "_", " ")
+	if s == "" {
+		return s
+	}
+	return strings.ToUpper(s[:1]) + s[1:]
+}
+
+// fmtNum writes v with three significant figures, as one would say it.
+func fmtNum(v float64) string {
+	if v == 0 || math.IsNaN(v) || math.IsInf(v, 0) {
+		return strconv.FormatFloat(v, 'g', -1, 64)
+	}
+	d := 3 - int(math.Floor(math.Log10(math.Abs(v)))) - 1
+	if d < 0 {
+		p := math.Pow(10, float64(-d))
+		return strconv.FormatFloat(math.Round(v/p)*p, 'f', 0, 64)
+	}
+	return strconv.FormatFloat(v, 'f', d, 64)
+}
+
+// spokenResult: "Conversion factor, 32cm field: 152, last year 168, 90
+// percent of baseline."
+func spokenResult(r entry.Result) string {
+	var b strings.Builder
+	b.WriteString(spokenQuantity(r.Quantity))
+	if r.FieldMode != "" {
+		b.WriteString(", " + r.FieldMode + " field")
+	}
+	b.WriteString(": " + fmtNum(valueForSpeech(r)))
+	if r.Unit == "1" && r.Quantity == "non_uniformity" {
+		b.WriteString(" percent")
+	}
+	if r.Baseline != 0 {
+		fmt.Fprintf(&b, ", last time %s, %.0f percent of baseline", fmtNum(r.Baseline), 100*r.BaselineFrac)
+	}
+	if !r.Calibrated {
+		b.WriteString(", not calibrated")
+	}
+	b.WriteString(".")
+	return b.String()
+}
+
+func valueForSpeech(r entry.Result) float64 {
+	if r.Unit == "1" && r.Quantity == "non_uniformity" {
+		return 100 * r.Value
+	}
+	return r.Value
+}

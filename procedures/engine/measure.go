@@ -1,0 +1,873 @@
+package engine
+
+import (
+	"context"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"math"
+	"slices"
+	"strings"
+	"time"
+
+	"kermalux/drivers"
+	"kermalux/drivers/units"
+	"kermalux/firmware-host/journal/entry"
+	"kermalux/firmware-host/panel"
+)
+
+// retryError ends an attempt that must be taken again; reason is said.
+type retryError struct {
+	reason string
+	free   bool // does not count against the attempts (timer reset, meter back)
+}
+
+func (r *retryError) Error() string { return "retake: " + r.reason }
+
+// lostError: a meter's link is down.
+type lostError struct {
+	role string
+	err  error
+}
+
+func (l *lostError) Error() string { return l.role + " lost: " + l.err.Error() }
+
+// errBeamAlarm: the five-minute alarm ended the attempt.
+var errBeamAlarm = errors.New("five-minute beam-on alarm")
+
+// held is a reading kept back until its attempt is accepted or discarded.
+type held struct {
+	role string
+	r    drivers.Reading
+	c    Corrected
+}
+
+// attempt is one try at one position of a measure step.
+type attempt struct {
+	idx     int
+	step    Step
+	spec    *MeasureSpec
+	posIdx  int
+	pos     Position
+	label   string
+	roles   []string // meters read, in turn
+	inStep  map[string]bool
+	signal  string // the meter the beam is detected with
+	errs    map[string]int
+	thresh  float64
+	darkM   float64
+	beamOn  bool
+	lastSig time.Duration
+	onAt    time.Duration // attempt's beam detection time
+	offAt   time.Duration
+	settled time.Duration // -1 until settled
+	series  map[string][]tv
+	hold    []held
+	flags   []string
+	calib   bool
+	bL, bK  float64
+}
+
+func roleName(role string) string {
+	if role == "" {
+		return "meter"
+	}
+	return strings.ToUpper(role[:1]) + role[1:]
+}
+
+// measure runs a measure step: every position not yet accepted.
+func (e *Engine) measure(ctx context.Context, idx int, s Step) error {
+	m := s.Measure
+	if m == nil {
+		return fmt.Errorf("step %d (%s): measure step without a description", idx, s.ID)
+	}
+	if m.Beam && !e.st.checklist {
+		// The engine refuses on its own, whatever the checker said.
+		_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: idx, Name: evRefused, Detail: "beam step before the pre-exposure checklist", BeamOn: e.st.beamOn.Seconds()})
+		_ = e.say(ctx, idx, panel.Message{Text: "Stop. The pre-exposure safety checklist has not been acknowledged. No exposure will be asked for.", Level: panel.Alarm})
+		return fmt.Errorf("step %d (%s): %w", idx, s.ID, ErrNoChecklist)
+	}
+	positions := m.Positions
+	if len(positions) == 0 {
+		positions = []Position{{}}
+	}
+	for pi, pos := range positions {
+		if e.st.havePos(s.ID, pi) {
+			continue
+		}
+		if err := e.measurePosition(ctx, idx, s, pi, pos, len(m.Positions)); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+func (e *Engine) measurePosition(ctx context.Context, idx int, s Step, pi int, pos Position, npos int) error {
+	l := e.cfg.Limits
+	m := s.Measure
+	failures := 0
+	var lastReason string
+	for {
+		a := e.newAttempt(idx, s, pi, pos, npos)
+		p, err := e.runAttempt(ctx, a)
+		if err == nil {
+			e.st.putPos(p)
+			b, _ := json.Marshal(p)
+			return e.journal(ctx, entry.KindEvent, entry.Event{Step: idx, Name: evMeasured, Detail: string(b), BeamOn: e.st.beamOn.Seconds()})
+		}
+		var re *retryError
+		if !errors.As(err, &re) {
+			return err
+		}
+		if !re.free {
+			failures++
+		}
+		lastReason = re.reason
+		if err := e.journal(ctx, entry.KindStep, entry.Step{Index: idx, Of: len(e.cfg.Procedure.Steps), ID: s.ID, Kind: string(s.Kind), FieldMode: s.FieldMode, State: entry.StepRetake, Reason: re.reason}); err != nil {
+			return err
+		}
+		if failures >= l.Retries {
+			text := fmt.Sprintf("This reading failed %d times: %s. Press the switch to try again, or long press to go back.", failures, re.reason)
+			if !m.Beam {
+				text = fmt.Sprintf("This reading failed %d times: %s. Press the switch to try again.", failures, re.reason)
+			}
+			if _, err := e.ask(ctx, panel.Prompt{Message: panel.Message{Text: text, Level: panel.Warn, Action: panel.ActAcknowledge}, Step: idx, StepID: s.ID}); err != nil {
+				return err
+			}
+			failures = 0
+			continue
+		}
+		if err := e.say(ctx, idx, panel.Message{Text: "Retake: " + lastReason + ".", Level: panel.Retry}); err != nil {
+			return err
+		}
+	}
+}
+
+func (e *Engine) newAttempt(idx int, s Step, pi int, pos Position, npos int) *attempt {
+	m := s.Measure
+	a := &attempt{idx: idx, step: s, spec: m, posIdx: pi, pos: pos, inStep: map[string]bool{},
+		errs: map[string]int{}, settled: -1, series: map[string][]tv{}, calib: true}
+	for _, r := range m.Meters {
+		a.inStep[r] = true
+	}
+	a.roles = slices.Clone(m.Meters)
+	// The dosimeter is always read when present: it sees the beam, times
+	// it and guards against a kerma rate far out of range.
+	if e.cfg.Meters[Dosimeter] != nil && !a.inStep[Dosimeter] {
+		a.roles = append([]string{Dosimeter}, a.roles...)
+	}
+	slices.SortStableFunc(a.roles, func(x, y string) int {
+		if x == Dosimeter {
+			return -1
+		}
+		if y == Dosimeter {
+			return 1
+		}
+		return 0
+	})
+	a.signal = a.roles[0]
+	if npos > 0 {
+		a.label = pos.Label
+	}
+	return a
+}
+
+// runAttempt takes one reading position: dark level, beam prompt, beam
+// detection, settling, sampling to the precision target, release.
+func (e *Engine) runAttempt(ctx context.Context, a *attempt) (posStat, error) {
+	if !a.spec.Beam {
+		return e.darkAttempt(ctx, a)
+	}
+	l := e.cfg.Limits
+	// Dark level of the signal, for beam detection, before the prompt.
+	dark, err := e.readFor(ctx, a, l.DarkTime, 5)
+	if err != nil {
+		return posStat{}, e.attemptFailed(ctx, a, err)
+	}
+	a.darkM, a.thresh = e.threshold(a, dark[a.signal])
+
+	p := panel.Prompt{Step: a.idx, StepID: a.step.ID}
+	p.Text = a.step.Text
+	if a.label != "" {
+		p.Text = fmt.Sprintf("Move the photometer to position %d of %d: %s. %s", a.posIdx+1, len(a.spec.Positions), a.label, a.step.Text)
+	}
+	if !strings.Contains(strings.ToLower(p.Text), "pedal") && !strings.Contains(strings.ToLower(p.Text), "beam") {
+		p.Text = strings.TrimSpace(p.Text + " Press the switch, then switch the beam on.")
+	}
+	p.Level = panel.Info
+	p.Action = panel.ActBeamOn
+	p.Setup = a.setup()
+	if _, err := e.ask(ctx, p); err != nil {
+		return posStat{}, err
+	}
+	// Wait for the beam.
+	deadline := e.cfg.Clock.Mono() + l.BeamWait
+	for !a.beamOn {
+		if e.cfg.Clock.Mono() > deadline {
+			return posStat{}, &retryError{reason: "no beam was seen"}
+		}
+		if err := e.cycle(ctx, a); err != nil {
+			return posStat{}, e.attemptFailed(ctx, a, err)
+		}
+	}
+	_ = e.cfg.Panel.Indicate(ctx, panel.BeamOn)
+	// Settle, then sample until precise enough.
+	maxOn := a.spec.MaxBeamOn
+	if maxOn == 0 {
+		maxOn = l.MaxBeamOn
+	}
+	var stat posStat
+	var short string
+	for {
+		if err := e.cycle(ctx, a); err != nil {
+			return posStat{}, e.attemptFailed(ctx, a, err)
+		}
+		if a.settled < 0 && e.isSettled(a) {
+			a.settled = a.lastSig
+		}
+		onFor := a.lastSig - a.onAt
+		if a.settled >= 0 {
+			var done bool
+			stat, done = e.precise(a)
+			if a.spec.Duration > 0 {
+				done = a.lastSig-a.settled >= a.spec.Duration
+			}
+			if done {
+				break
+			}
+		}
+		if onFor >= maxOn {
+			if a.settled < 0 {
+				return posStat{}, e.attemptFailed(ctx, a, &retryError{reason: "the reading is still drifting"})
+			}
+			if stat.NG+stat.NL+stat.NK == 0 || (stat.NG < l.MinPairs && stat.NL < l.MinPairs && stat.NK < l.MinPairs) {
+				return posStat{}, e.attemptFailed(ctx, a, &retryError{reason: "too few readings"})
+			}
+			short = "precision target not reached in the maximum beam-on time"
+			break
+		}
+		if a.settled < 0 && onFor >= l.SettleMax {
+			return posStat{}, e.attemptFailed(ctx, a, &retryError{reason: "the reading is still drifting"})
+		}
+	}
+	if short != "" {
+		stat.Flags = append(stat.Flags, short)
+	}
+	stat.BeamOnS = (a.lastSig - a.onAt).Seconds()
+	// Accept: keep the held readings as used, then release the beam.
+	if err := e.flush(ctx, a, true); err != nil {
+		return posStat{}, err
+	}
+	if err := e.release(ctx, a, panel.Good, "Release the beam."); err != nil {
+		return posStat{}, err
+	}
+	return stat, nil
+}
+
+// setup is the bench state the attempt wants, for the simulated operator.
+func (a *attempt) setup() map[string]string {
+	m := map[string]string{}
+	for k, v := range a.step.Setup {
+		m[k] = v
+	}
+	if a.label != "" {
+		m["photometer_radius"] = fmt.Sprintf("%g r", a.pos.R)
+		m["photometer_angle"] = fmt.Sprintf("%g deg", a.pos.Angle)
+		m["position"] = a.label
+	}
+	if a.step.FieldMode != "" {
+		if _, ok := m["field_mode"]; !ok {
+			m["field_mode"] = a.step.FieldMode
+		}
+	}
+	if len(m) == 0 {
+		return nil
+	}
+	return m
+}
+
+// threshold is the beam-on level: dark mean + max(k·σ_dark, floor).
+func (e *Engine) threshold(a *attempt, dark []float64) (mean, thr float64) {
+	l := e.cfg.Limits
+	mean, sd := meanSD(dark)
+	floor := l.BeamFloor
+	if a.signal != Dosimeter {
+		floor = math.Max(1, 0.5*mean) // cd/m²: no dosimeter, detect on the light
+	}
+	return mean, mean + math.Max(l.BeamSigmas*sd, floor)
+}
+
+// isSettled: the brightness control has stopped moving and both meters
+// have caught up: no trend in the kerma rate, the luminance, or their
+// ratio over the settling window.
+func (e *Engine) isSettled(a *attempt) bool {
+	l := e.cfg.Limits
+	const minN = 5
+	since := func(xs []tv) []tv {
+		i := 0
+		for i < len(xs) && xs[i].t < a.onAt {
+			i++
+		}
+		return xs[i:]
+	}
+	k := since(a.series[Dosimeter])
+	lum := since(a.series[Photometer])
+	if a.inStep[Dosimeter] && !steady(k, l.SettleWindow, l.SettleSlope, minN) {
+		return false
+	}
+	if a.inStep[Photometer] && !steady(lum, l.SettleWindow, l.SettleSlope, minN) {
+		return false
+	}
+	if a.inStep[Dosimeter] && a.inStep[Photometer] {
+		w := window(lum, l.SettleWindow)
+		g := pairs(w, k)
+		if len(g) < minN {
+			return false
+		}
+		xs := make([]tv, 0, len(g))
+		off := len(w) - len(g)
+		for i, v := range g {
+			j := i + off
+			if j < 0 || j >= len(w) {
+				continue
+			}
+			xs = append(xs, tv{w[j].t, v})
+		}
+		rel, se, ok := trend(xs)
+		if !ok || math.Abs(rel) >= l.SettleSlope+2*se {
+			return false
+		}
+	}
+	return true
+}
+
+// after returns the readings of xs at or after t.
+func after(xs []tv, t time.Duration) []tv {
+	i := 0
+	for i < len(xs) && xs[i].t < t {
+		i++
+	}
+	return xs[i:]
+}
+
+// precise computes the statistics of the samples taken since settling and
+// applies the sequential stopping rule: done when the relative expanded
+// uncertainty (type A of the mean, with the Student t coverage factor for
+// the effective degrees of freedom, combined with the meters' type B) has
+// reached the target. Where the type B alone is above the target, the
+// rule stops when type A adds little (a third of the target).
+func (e *Engine) precise(a *attempt) (posStat, bool) {
+	l := e.cfg.Limits
+	target := a.spec.Target
+	if target == 0 {
+		target = l.Target
+	}
+	p := posStat{Step: a.step.ID, Index: a.posIdx, Label: a.label, R: a.pos.R, Angle: a.pos.Angle, Mode: a.step.FieldMode, Calib: a.calib, Flags: slices.Clone(a.flags)}
+	lum := after(a.series[Photometer], a.settled)
+	k := after(a.series[Dosimeter], a.settled)
+	var uA, neff float64
+	var uB []float64
+	if a.inStep[Photometer] && len(lum) > 0 {
+		v := values(lum)
+		p.HasL = true
+		p.L, _ = meanSD(v)
+		rel, _ := relTypeA(v)
+		p.LU = rel * math.Abs(p.L)
+		p.NL = len(v)
+		p.BL = a.bL
+	}
+	if a.inStep[Dosimeter] && len(k) > 0 {
+		v := values(k)
+		p.HasK = true
+		p.K, _ = meanSD(v)
+		rel, _ := relTypeA(v)
+		p.KU = rel * math.Abs(p.K)
+		p.NK = len(v)
+		p.BK = a.bK
+	}
+	switch {
+	case p.HasL && p.HasK:
+		g := pairs(lum, k)
+		if len(g) < 2 {
+			return p, false
+		}
+		p.HasG = true
+		p.G, _ = meanSD(g)
+		uA, neff = relTypeA(g)
+		p.GU = uA * math.Abs(p.G)
+		p.NG = len(g)
+		uB = []float64{a.bL, a.bK}
+	case p.HasL:
+		uA, neff = relTypeA(values(lum))
+		uB = []float64{a.bL}
+	case p.HasK:
+		uA, neff = relTypeA(values(k))
+		uB = []float64{a.bK}
+	default:
+		return p, false
+	}
+	n := max(p.NG, p.NL, p.NK)
+	if p.HasG {
+		n = p.NG
+	}
+	if n < l.MinPairs || math.IsInf(uA, 1) {
+		return p, false
+	}
+	U, _, _ := expandedRel(uA, neff, uB...)
+	_, ucB, _ := expandedRel(0, math.Inf(1), uB...)
+	goal := target
+	if 2*ucB >= 0.9*target {
+		goal = math.Hypot(2*ucB, target/3)
+		if !slices.Contains(p.Flags, "precision target below the calibration uncertainty") {
+			p.Flags = append(p.Flags, "precision target below the calibration uncertainty")
+		}
+	}
+	return p, U <= goal
+}
+
+// darkAttempt takes a beam-off reading for a fixed time (dark level,
+// stability).
+func (e *Engine) darkAttempt(ctx context.Context, a *attempt) (posStat, error) {
+	l := e.cfg.Limits
+	text := a.step.Text
+	if text == "" {
+		text = "Keep the beam off. Press the switch to take the dark reading."
+	}
+	if _, err := e.ask(ctx, panel.Prompt{Message: panel.Message{Text: text, Level: panel.Info, Action: panel.ActSetup, Setup: a.setup()}, Step: a.idx, StepID: a.step.ID}); err != nil {
+		return posStat{}, err
+	}
+	d := a.spec.Duration
+	if d == 0 {
+		d = l.DarkTime
+	}
+	a.settled = 0
+	start := e.cfg.Clock.Mono()
+	a.onAt = start
+	for e.cfg.Clock.Mono()-start < d {
+		if err := e.cycle(ctx, a); err != nil {
+			return posStat{}, e.attemptFailed(ctx, a, err)
+		}
+	}
+	p, _ := e.precise(a)
+	p.Dark = true
+	// Drift over a fixed-duration reading: relative change of the trend
+	// line across the reading.
+	for _, role := range a.spec.Meters {
+		if rel, _, ok := trend(a.series[role]); ok {
+			p.Drift = math.Max(p.Drift, math.Abs(rel*d.Seconds()))
+		}
+	}
+	if err := e.flush(ctx, a, true); err != nil {
+		return posStat{}, err
+	}
+	return p, nil
+}
+
+// readFor reads every meter of the attempt in turn for d (at least minN
+// readings of each), journalling the readings as not used, and returns
+// the corrected values per role.
+func (e *Engine) readFor(ctx context.Context, a *attempt, d time.Duration, minN int) (map[string][]float64, error) {
+	out := map[string][]float64{}
+	start := e.cfg.Clock.Mono()
+	for e.cfg.Clock.Mono()-start < d || len(out[a.signal]) < minN {
+		for _, role := range a.roles {
+			r, c, err := e.readOne(ctx, a, role)
+			if err != nil {
+				return nil, err
+			}
+			if err := e.guard(ctx, a, role, r, c); err != nil {
+				return nil, err
+			}
+			out[role] = append(out[role], c.Value)
+			if err := e.record(ctx, a, role, r, c, false); err != nil {
+				return nil, err
+			}
+		}
+	}
+	return out, nil
+}
+
+// cycle reads each meter of the attempt once and updates the beam state.
+func (e *Engine) cycle(ctx context.Context, a *attempt) error {
+	for _, role := range a.roles {
+		r, c, err := e.readOne(ctx, a, role)
+		if err != nil {
+			return err
+		}
+		if err := e.guard(ctx, a, role, r, c); err != nil {
+			return err
+		}
+		if err := e.observe(ctx, a, role, r, c); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+// readOne reads one meter and corrects the reading. Single timeouts and
+// garbled lines are journalled and skipped; three in a row end the
+// attempt. A lost link comes back as a lostError.
+func (e *Engine) readOne(ctx context.Context, a *attempt, role string) (drivers.Reading, Corrected, error) {
+	m := e.cfg.Meters[role]
+	for {
+		r, err := m.Read(ctx)
+		if err != nil {
+			if ctx.Err() != nil {
+				return r, Corrected{}, ctx.Err()
+			}
+			if errors.Is(err, drivers.ErrLinkDown) {
+				return r, Corrected{}, &lostError{role: role, err: err}
+			}
+			a.errs[role]++
+			_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: a.idx, Name: evReadError, Detail: fmt.Sprintf("%s: %v", role, err), BeamOn: e.st.beamOn.Seconds()})
+			if a.errs[role] >= 3 {
+				what := "is not answering"
+				if errors.Is(err, drivers.ErrGarbled) {
+					what = "sends readings that are not understood"
+				} else if errors.Is(err, drivers.ErrUnit) {
+					what = "reports an unexpected unit"
+				}
+				return r, Corrected{}, &retryError{reason: "the " + role + " " + what}
+			}
+			if errors.Is(err, drivers.ErrTimeout) {
+				continue
+			}
+			// Do not spin on a meter that fails at once.
+			if err := e.cfg.Clock.Sleep(ctx, 50*time.Millisecond); err != nil {
+				return r, Corrected{}, err
+			}
+			continue
+		}
+		a.errs[role] = 0
+		c := e.correct(a, role, r)
+		if r.AfterReconnect {
+			_ = e.record(ctx, a, role, r, c, false)
+			return r, c, &retryError{reason: "the " + role + " reconnected", free: true}
+		}
+		return r, c, nil
+	}
+}
+
+// correct applies the meter's calibration, with the session's conditions.
+func (e *Engine) correct(a *attempt, role string, r drivers.Reading) Corrected {
+	cond := Conditions{Values: e.st.values, Quality: a.spec.Quality, FieldMode: a.step.FieldMode}
+	if d, ok := e.st.darks[role]; ok && a.spec.Beam {
+		cond.Dark, cond.HasDark = d, true
+	}
+	var c Corrected
+	if cr := e.cfg.Correctors[role]; cr != nil {
+		c = cr.Correct(r, cond)
+	} else {
+		c = Corrected{Value: r.Value, Flags: []string{"no calibration certificate"}}
+		if cond.HasDark && role == Photometer {
+			c.Value -= cond.Dark
+			c.Corrections = append(c.Corrections, entry.Correction{Name: "dark", Factor: 1, Offset: -cond.Dark})
+		}
+	}
+	if a.inStep[role] {
+		if !c.Calibrated {
+			a.calib = false
+		}
+		for _, f := range c.Flags {
+			if !slices.Contains(a.flags, f) {
+				a.flags = append(a.flags, f)
+			}
+		}
+		switch role {
+		case Photometer:
+			a.bL = c.RelStdUncB
+		case Dosimeter:
+			a.bK = c.RelStdUncB
+		}
+	}
+	return c
+}
+
+// guard applies the safety stop and the status checks to a reading.
+func (e *Engine) guard(ctx context.Context, a *attempt, role string, r drivers.Reading, c Corrected) error {
+	if role == Dosimeter {
+		ceil := e.cfg.Limits.KermaCeiling
+		for _, x := range a.spec.Expect {
+			if (x.Quantity == string(units.AirKermaRate)) && x.Max > 0 && x.Max < ceil {
+				ceil = x.Max
+			}
+		}
+		v := c.Value
+		if r.Status == drivers.StatusOverRange && r.Value > v {
+			v = r.Value
+		}
+		if (r.Usable() || r.Status == drivers.StatusOverRange) && v > ceil {
+			_ = e.record(ctx, a, role, r, c, false)
+			return e.kermaStop(ctx, a, v, ceil)
+		}
+	}
+	switch r.Status {
+	case drivers.StatusOK:
+		return nil
+	case drivers.StatusUnderRange:
+		return nil // below range: no beam seen by this meter
+	case drivers.StatusOverRange:
+		_ = e.record(ctx, a, role, r, c, false)
+		return &retryError{reason: "the " + role + " is over range"}
+	default:
+		_ = e.record(ctx, a, role, r, c, false)
+		return &retryError{reason: "the " + role + " reports a fault"}
+	}
+}
+
+// kermaStop is the safety stop for a kerma rate far out of range.
+func (e *Engine) kermaStop(ctx context.Context, a *attempt, v, ceil float64) error {
+	_ = e.cfg.Panel.Indicate(ctx, panel.Fault)
+	_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: a.idx, Name: evKermaRange, Detail: fmt.Sprintf("%.4g µGy/s at the chamber, above %.4g µGy/s", v, ceil), BeamOn: e.st.beamOn.Seconds()})
+	msg := fmt.Sprintf("Release the beam now. The kerma rate at the chamber is %s micro-gray per second, far above what an intensifier input sees. Check that the chamber is not in the direct beam. The session is stopped.", fmtNum(v))
+	_ = e.say(ctx, a.idx, panel.Message{Text: msg, Level: panel.Alarm, Action: panel.ActBeamOff})
+	a.beamOn = a.beamOn || true
+	if a.lastSig == 0 {
+		a.lastSig = e.cfg.Clock.Mono()
+	}
+	_ = e.waitOff(ctx, a, panel.Alarm, "Release the beam now.")
+	return fmt.Errorf("step %d (%s): %.4g µGy/s: %w", a.idx, a.step.ID, v, ErrKermaOutOfRange)
+}
+
+// observe updates beam state, the beam-on timer and the series with one
+// reading, and journals or holds it.
+func (e *Engine) observe(ctx context.Context, a *attempt, role string, r drivers.Reading, c Corrected) error {
+	v := c.Value
+	if r.Status == drivers.StatusUnderRange {
+		v = 0
+	}
+	if role == a.signal {
+		switch {
+		case !a.beamOn && v > a.thresh:
+			a.beamOn = true
+			a.onAt = r.Mono
+			a.lastSig = r.Mono
+			_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: a.idx, Name: evBeamOn, Detail: fmt.Sprintf("%s %.4g above threshold %.4g", role, v, a.thresh), BeamOn: e.st.beamOn.Seconds()})
+		case a.beamOn && v <= a.thresh:
+			if err := e.tick(ctx, a, r.Mono); err != nil && !errors.Is(err, errBeamAlarm) {
+				return err
+			}
+			a.beamOn = false
+			a.offAt = r.Mono
+			_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: a.idx, Name: evBeamOff, BeamOn: e.st.beamOn.Seconds()})
+			_ = e.record(ctx, a, role, r, c, false)
+			_ = e.cfg.Panel.Indicate(ctx, panel.Ready)
+			return &retryError{reason: "the beam dropped"}
+		case a.beamOn:
+			if err := e.tick(ctx, a, r.Mono); err != nil {
+				_ = e.record(ctx, a, role, r, c, false)
+				return err
+			}
+		}
+	}
+	if a.beamOn && a.inStep[role] && r.Usable() {
+		a.series[role] = append(a.series[role], tv{r.Mono, c.Value})
+	}
+	sampling := a.beamOn && a.settled >= 0 && a.inStep[role]
+	if sampling {
+		a.hold = append(a.hold, held{role, r, c})
+		return nil
+	}
+	return e.record(ctx, a, role, r, c, false)
+}
+
+// tick advances the cumulative beam-on timer to t and speaks its marks:
+// the time every SpeakEvery, a warning at BeamWarn and the alarm every
+// BeamAlarm of cumulative beam-on (21 CFR 1020.32(h)).
+func (e *Engine) tick(ctx context.Context, a *attempt, t time.Duration) error {
+	l := e.cfg.Limits
+	st := e.st
+	if t > a.lastSig {
+		st.beamOn += t - a.lastSig
+	}
+	a.lastSig = t
+	if st.beamOn >= st.nextAlarm {
+		st.setBeamOn(st.beamOn, l)
+		_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: a.idx, Name: evBeamAlarm, Detail: "cumulative beam-on " + spokenDuration(st.beamOn), BeamOn: st.beamOn.Seconds()})
+		_ = e.say(ctx, a.idx, panel.Message{Text: fmt.Sprintf("Alarm: %s of beam-on. Release the beam.", spokenDuration(st.beamOn)), Level: panel.Alarm, Action: panel.ActBeamOff})
+		return errBeamAlarm
+	}
+	if st.beamOn >= st.nextWarn {
+		st.nextWarn += l.BeamAlarm
+		_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: a.idx, Name: evBeamWarning, Detail: "cumulative beam-on " + spokenDuration(st.beamOn), BeamOn: st.beamOn.Seconds()})
+		_ = e.say(ctx, a.idx, panel.Message{Text: fmt.Sprintf("Warning: %s of beam-on. The alarm sounds at %s.", spokenDuration(st.beamOn), spokenDuration(st.nextAlarm)), Level: panel.Warn})
+	}
+	if st.beamOn >= st.nextSpeak {
+		for st.nextSpeak <= st.beamOn {
+			st.nextSpeak += l.SpeakEvery
+		}
+		_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: a.idx, Name: evBeamTime, BeamOn: st.beamOn.Seconds()})
+		_ = e.say(ctx, a.idx, panel.Message{Text: "Beam-on " + spokenDuration(st.beamOn) + ".", Level: panel.Info})
+	}
+	return nil
+}
+
+// attemptFailed cleans up after an attempt that cannot go on: held
+// samples are discarded (journalled as not used, with an event), a lost
+// meter is waited for, the beam is released; the error says what to do
+// next.
+func (e *Engine) attemptFailed(ctx context.Context, a *attempt, err error) error {
+	if ctx.Err() != nil {
+		return ctx.Err()
+	}
+	if len(a.hold) > 0 {
+		n := len(a.hold)
+		if ferr := e.flush(ctx, a, false); ferr != nil {
+			return ferr
+		}
+		_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: a.idx, Name: evDiscarded, Detail: fmt.Sprintf("%d readings not used: %v", n, err), BeamOn: e.st.beamOn.Seconds()})
+	}
+	var lost *lostError
+	var re *retryError
+	switch {
+	case errors.As(err, &lost):
+		if rerr := e.waitMeter(ctx, a, lost); rerr != nil {
+			return rerr
+		}
+		if a.beamOn {
+			if werr := e.release(ctx, a, panel.Retry, "Release the beam."); werr != nil {
+				return werr
+			}
+		}
+		return &retryError{reason: "the " + lost.role + " was lost", free: true}
+	case errors.Is(err, errBeamAlarm):
+		if werr := e.waitOff(ctx, a, panel.Alarm, "Release the beam."); werr != nil {
+			return werr
+		}
+		if _, aerr := e.ask(ctx, panel.Prompt{Message: panel.Message{Text: "Press the switch to reset the beam-on alarm and go on.", Level: panel.Alarm, Action: panel.ActAcknowledge}, Step: a.idx, StepID: a.step.ID}); aerr != nil {
+			return aerr
+		}
+		return &retryError{reason: "the beam-on alarm was reset", free: true}
+	case errors.As(err, &re):
+		if a.beamOn {
+			if werr := e.release(ctx, a, panel.Retry, "Release the beam."); werr != nil {
+				return werr
+			}
+		}
+		return re
+	}
+	return err
+}
+
+// waitMeter says a meter is lost and waits for it to come back.
+func (e *Engine) waitMeter(ctx context.Context, a *attempt, lost *lostError) error {
+	l := e.cfg.Limits
+	name := roleName(lost.role)
+	_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: a.idx, Name: evMeterLost, Detail: lost.err.Error(), BeamOn: e.st.beamOn.Seconds()})
+	text := name + " lost. Check its cable."
+	if a.beamOn {
+		text = name + " lost. Release the beam. Check its cable."
+	}
+	if err := e.say(ctx, a.idx, panel.Message{Text: text, Level: panel.Warn, Action: actIf(a.beamOn)}); err != nil {
+		return err
+	}
+	_ = e.cfg.Panel.Indicate(ctx, panel.Fault)
+	start := e.cfg.Clock.Mono()
+	m := e.cfg.Meters[lost.role]
+	for {
+		if err := e.cfg.Clock.Sleep(ctx, l.LinkRetry); err != nil {
+			return err
+		}
+		r, err := m.Read(ctx)
+		if err == nil {
+			c := e.correct(a, lost.role, r)
+			_ = e.record(ctx, a, lost.role, r, c, false)
+			break
+		}
+		if ctx.Err() != nil {
+			return ctx.Err()
+		}
+		if l.LinkGiveUp > 0 && e.cfg.Clock.Mono()-start > l.LinkGiveUp {
+			return fmt.Errorf("step %d (%s): %s did not come back in %s: %w", a.idx, a.step.ID, lost.role, l.LinkGiveUp, lost.err)
+		}
+	}
+	_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: a.idx, Name: evMeterBack, BeamOn: e.st.beamOn.Seconds()})
+	_ = e.cfg.Panel.Indicate(ctx, panel.Ready)
+	return e.say(ctx, a.idx, panel.Message{Text: name + " back.", Level: panel.Info})
+}
+
+func actIf(beam bool) panel.Action {
+	if beam {
+		return panel.ActBeamOff
+	}
+	return panel.ActNone
+}
+
+// release says "release the beam" and waits until the signal shows it off.
+func (e *Engine) release(ctx context.Context, a *attempt, lv panel.Level, text string) error {
+	if err := e.say(ctx, a.idx, panel.Message{Text: text, Level: lv, Action: panel.ActBeamOff}); err != nil {
+		return err
+	}
+	return e.waitOff(ctx, a, lv, text)
+}
+
+// waitOff reads until the beam is off, repeating text every 10 s.
+func (e *Engine) waitOff(ctx context.Context, a *attempt, lv panel.Level, text string) error {
+	again := e.cfg.Clock.Mono() + 10*time.Second
+	for a.beamOn {
+		for _, role := range a.roles {
+			r, c, err := e.readOne(ctx, a, role)
+			if err != nil {
+				var lost *lostError
+				if errors.As(err, &lost) || ctx.Err() != nil {
+					return err
+				}
+				continue
+			}
+			if role == a.signal {
+				v := c.Value
+				if r.Status == drivers.StatusUnderRange {
+					v = 0
+				}
+				if err := e.tick(ctx, a, r.Mono); err != nil && !errors.Is(err, errBeamAlarm) {
+					return err
+				}
+				if v <= a.thresh || a.thresh == 0 && v <= e.cfg.Limits.BeamFloor {
+					a.beamOn = false
+					_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: a.idx, Name: evBeamOff, BeamOn: e.st.beamOn.Seconds()})
+				}
+			}
+			if err := e.record(ctx, a, role, r, c, false); err != nil {
+				return err
+			}
+		}
+		if a.beamOn && e.cfg.Clock.Mono() > again {
+			again = e.cfg.Clock.Mono() + 10*time.Second
+			_ = e.say(ctx, a.idx, panel.Message{Text: text, Level: lv, Action: panel.ActBeamOff})
+		}
+	}
+	_ = e.cfg.Panel.Indicate(ctx, panel.Ready)
+	return nil
+}
+
+// record journals one reading.
+func (e *Engine) record(ctx context.Context, a *attempt, role string, r drivers.Reading, c Corrected, used bool) error {
+	q := string(r.Quantity)
+	unit := r.Unit
+	if unit == "" {
+		unit = units.Canonical(r.Quantity)
+	}
+	name := r.Meter
+	if name == "" {
+		name = role
+	}
+	rec := entry.Reading{
+		Step: a.idx, StepID: a.step.ID, FieldMode: a.step.FieldMode, Position: a.label,
+		Meter: name, Quantity: q, Raw: r.Raw, RawValue: r.RawValue, RawUnit: r.RawUnit,
+		Value: c.Value, Unit: unit, Status: string(r.Status), Corrections: c.Corrections,
+		Certificate: c.Certificate, Calibrated: c.Calibrated, Flags: c.Flags,
+		Mono: r.Mono, Wall: r.Wall, BootID: e.cfg.BootID, Used: used && a.inStep[role],
+	}
+	return e.journal(ctx, entry.KindReading, rec)
+}
+
+// flush journals the held readings as used or not.
+func (e *Engine) flush(ctx context.Context, a *attempt, used bool) error {
+	for _, h := range a.hold {
+		if err := e.record(ctx, a, h.role, h.r, h.c, used); err != nil {
+			return err
+		}
+	}
+	a.hold = a.hold[:0]
+	return nil
+}

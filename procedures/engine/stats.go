@@ -1,0 +1,205 @@
+package engine
+
+import (
+	"math"
+	"time"
+
+	"gonum.org/v1/gonum/stat/distuv"
+)
+
+// tv is a value at a host time.
+type tv struct {
+	t time.Duration
+	v float64
+}
+
+// meanSD returns the arithmetic mean and the experimental standard
+// deviation s (JCGM 100:2008, 4.2.1 and 4.2.2).
+func meanSD(xs []float64) (mean, sd float64) {
+	n := float64(len(xs))
+	if n == 0 {
+		return 0, 0
+	}
+	for _, x := range xs {
+		mean += x
+	}
+	mean /= n
+	if n < 2 {
+		return mean, 0
+	}
+	var ss float64
+	for _, x := range xs {
+		d := x - mean
+		ss += d * d
+	}
+	return mean, math.Sqrt(ss / (n - 1))
+}
+
+// effectiveN is the number of independent observations equivalent to n
+// readings of a series with lag-1 autocorrelation ρ (an AR(1) model:
+// n_eff = n·(1−ρ)/(1+ρ); Bayley & Hammersley, J. R. Stat. Soc. Suppl. 8
+// (1946), from memory). Meters with a response time longer than their
+// reading period give correlated readings whose plain standard deviation
+// of the mean would be too small. ρ is used only where it is significant
+// (above 2/√n, the usual large-sample bound for a white series).
+func effectiveN(xs []float64) float64 {
+	n := len(xs)
+	if n < 8 {
+		return float64(n)
+	}
+	m, _ := meanSD(xs)
+	var num, den float64
+	for i, x := range xs {
+		d := x - m
+		den += d * d
+		if i > 0 {
+			num += d * (xs[i-1] - m)
+		}
+	}
+	if den == 0 {
+		return float64(n)
+	}
+	rho := num / den
+	if rho <= 2/math.Sqrt(float64(n)) {
+		return float64(n)
+	}
+	rho = math.Min(rho, 0.95)
+	return math.Max(2, float64(n)*(1-rho)/(1+rho))
+}
+
+// relTypeA is the relative standard uncertainty of the mean of xs (type A,
+// JCGM 100:2008 4.2.3: s/√n, here with n the effective number) and the
+// number of effective observations.
+func relTypeA(xs []float64) (rel, neff float64) {
+	m, s := meanSD(xs)
+	if m == 0 || len(xs) < 2 {
+		return math.Inf(1), float64(len(xs))
+	}
+	neff = effectiveN(xs)
+	return s / math.Sqrt(neff) / math.Abs(m), neff
+}
+
+// coverage returns the coverage factor for a coverage probability of
+// 95.45 % with ν effective degrees of freedom (JCGM 100:2008 G.3, G.4:
+// the Student t quantile; ν = ∞ gives 2). Type B components carry
+// infinite degrees of freedom, so ν_eff = u_c⁴ / (u_A⁴/ν_A) (G.2b).
+func coverage(uA, uc, nuA float64) float64 {
+	if uA == 0 || nuA <= 0 || math.IsInf(nuA, 1) {
+		return 2
+	}
+	nu := math.Pow(uc, 4) / (math.Pow(uA, 4) / nuA)
+	if nu > 1e6 || math.IsNaN(nu) {
+		return 2
+	}
+	if nu < 1 {
+		nu = 1
+	}
+	return distuv.StudentsT{Mu: 0, Sigma: 1, Nu: nu}.Quantile(0.5 + 0.9545/2)
+}
+
+// expandedRel combines a type A relative uncertainty from neff effective
+// observations with type B relative uncertainties (relative variances
+// add for products and ratios, JCGM 100:2008 5.1.6) and expands it.
+func expandedRel(uA, neff float64, uB ...float64) (U, uc, k float64) {
+	v := uA * uA
+	for _, b := range uB {
+		v += b * b
+	}
+	uc = math.Sqrt(v)
+	k = coverage(uA, uc, neff-1)
+	return k * uc, uc, k
+}
+
+// trend fits v = a + b·t by least squares over xs and returns the slope
+// relative to the mean, per second, and its standard error.
+func trend(xs []tv) (rel, se float64, ok bool) {
+	n := float64(len(xs))
+	if n < 3 {
+		return 0, 0, false
+	}
+	var st, sv float64
+	for _, x := range xs {
+		st += x.t.Seconds()
+		sv += x.v
+	}
+	mt, mv := st/n, sv/n
+	var sxx, sxy float64
+	for _, x := range xs {
+		dt := x.t.Seconds() - mt
+		sxx += dt * dt
+		sxy += dt * (x.v - mv)
+	}
+	if sxx == 0 || mv == 0 {
+		return 0, 0, false
+	}
+	b := sxy / sxx
+	var ssr float64
+	for _, x := range xs {
+		r := x.v - (mv + b*(x.t.Seconds()-mt))
+		ssr += r * r
+	}
+	seb := math.Sqrt(ssr / (n - 2) / sxx)
+	return b / math.Abs(mv), seb / math.Abs(mv), true
+}
+
+// window returns the trailing part of xs that spans d.
+func window(xs []tv, d time.Duration) []tv {
+	if len(xs) == 0 {
+		return nil
+	}
+	end := xs[len(xs)-1].t
+	i := len(xs) - 1
+	for i > 0 && end-xs[i-1].t <= d {
+		i--
+	}
+	return xs[i:]
+}
+
+// steady reports whether the trailing window of xs shows no trend: a full
+// window (at least minN readings spanning 90 % of d; the count follows
+// from the sampling rate) whose relative least-squares slope is below
+// limit per second, allowing for the slope's own noise (two standard
+// errors).
+func steady(xs []tv, d time.Duration, limit float64, minN int) bool {
+	w := window(xs, d)
+	if len(w) < minN || w[len(w)-1].t-w[0].t < d*9/10 {
+		return false
+	}
+	rel, se, ok := trend(w)
+	return ok && math.Abs(rel) < limit+2*se
+}
+
+// pairs aligns luminance readings with the kerma rate interpolated
+// linearly at each luminance reading's host time, and returns the ratios
+// L/K. Luminance readings outside the span of the kerma readings are left
+// out.
+func pairs(lum, kerma []tv) []float64 {
+	var out []float64
+	j := 0
+	for _, l := range lum {
+		for j+1 < len(kerma) && kerma[j+1].t < l.t {
+			j++
+		}
+		if j+1 >= len(kerma) || kerma[j].t > l.t {
+			continue
+		}
+		k1, k2 := kerma[j], kerma[j+1]
+		k := k1.v
+		if k2.t != k1.t {
+			f := float64(l.t-k1.t) / float64(k2.t-k1.t)
+			k = k1.v + f*(k2.v-k1.v)
+		}
+		if k > 0 {
+			out = append(out, l.v/k)
+		}
+	}
+	return out
+}
+
+func values(xs []tv) []float64 {
+	out := make([]float64, len(xs))
+	for i, x := range xs {
+		out[i] = x.v
+	}
+	return out
+}
