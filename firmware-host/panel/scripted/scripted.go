@@ -275,7 +275,9 @@ func (p *Panel) Transcript() string {
 		fmt.Fprintf(&b, "+%s %s", e.At.Sub(t0), e.Kind)
 		switch e.Kind {
 		case KindSay:
-			fmt.Fprintf(&b, " %s", e.Message.Level)
+			if e.Message.Level != "" {
+				fmt.Fprintf(&b, " %s", e.Message.Level)
+			}
 			if e.Message.Action != panel.ActNone {
 				fmt.Fprintf(&b, " %s", e.Message.Action)
 			}

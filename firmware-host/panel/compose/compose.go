@@ -1,0 +1,158 @@
+// Package compose builds the panel a bench asks for: the board's GPIO panel
+// with speech, or a terminal panel with optional speech, from one Config
+// (the bench file maps onto it). Multi mirrors one panel's output onto
+// others, e.g. a terminal that shows what the board says.
+package compose
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"log/slog"
+	"os"
+
+	"kermalux/drivers/clock"
+	"kermalux/firmware-host/panel"
+	"kermalux/firmware-host/panel/gpiopanel"
+	"kermalux/firmware-host/panel/speech"
+	"kermalux/firmware-host/panel/termpanel"
+)
+
+// Kinds of panel.
+const (
+	KindGPIO     = "gpio"
+	KindTerminal = "terminal"
+)
+
+// Config chooses and sets up a panel. The GPIO fields (pins, debounce, long
+// press, ...) matter only for Kind "gpio".
+type Config struct {
+	Kind             string `yaml:"kind" json:"kind"` // "gpio" or "terminal"
+	gpiopanel.Config `yaml:",inline" json:",inline"`
+	Speech           bool   `yaml:"speech" json:"speech"` // speak prompts through espeak-ng
+	Voice            string `yaml:"voice" json:"voice"`   // espeak-ng voice, e.g. "en-gb"
+	SpeechRate       int    `yaml:"speech_rate" json:"speech_rate"`
+}
+
+// Terminal is where a terminal panel reads and writes; zero means standard
+// input and output.
+type Terminal struct {
+	In  io.Reader
+	Out io.Writer
+}
+
+// Open builds the panel cfg describes. When speech is wanted but espeak-ng
+// is missing, the panel works without it (the GPIO panel then marks prompts
+// with a chirp) and a warning is logged. On a machine without the GPIO pins
+// a "gpio" panel fails with an error wrapping panel.ErrNoHardware.
+func Open(cfg Config, clk clock.Clock, term Terminal, log *slog.Logger) (panel.Panel, error) {
+	if log == nil {
+		log = slog.Default()
+	}
+	if clk == nil {
+		clk = clock.NewReal()
+	}
+	var voice *speech.Queue
+	if cfg.Speech {
+		es, err := speech.FindEspeak(cfg.Voice, cfg.SpeechRate)
+		if err != nil {
+			log.Warn("speech off", "err", err)
+		} else {
+			voice = speech.NewQueue(es, 0, log)
+		}
+	}
+	closeVoice := func() {
+		if voice != nil {
+			voice.Close()
+		}
+	}
+	switch cfg.Kind {
+	case KindGPIO:
+		var v gpiopanel.Voice
+		if voice != nil {
+			v = voice
+		}
+		p, err := gpiopanel.New(cfg.Config, clk, v, log)
+		if err != nil {
+			closeVoice()
+			return nil, err
+		}
+		p.Beep(gpiopanel.BeepReady)
+		return p, nil
+	case KindTerminal, "":
+		var v termpanel.Voice
+		if voice != nil {
+			v = voice
+		}
+		if term.In == nil && term.Out == nil {
+			return termpanel.NewStdio(clk, v), nil
+		}
+		in, out := term.In, term.Out
+		if in == nil {
+			in = os.Stdin
+		}
+		if out == nil {
+			out = os.Stdout
+		}
+		return termpanel.New(in, out, termpanel.Options{Clock: clk, Voice: v}), nil
+	}
+	closeVoice()
+	return nil, fmt.Errorf("panel kind %q: want %q or %q", cfg.Kind, KindGPIO, KindTerminal)
+}
+
+// Multi is a panel that asks through Primary and shows everything (messages,
+// prompts as messages, indicators) on the Mirrors too. A failing mirror
+// does not stop the primary: Say and Indicate return its error after the
+// primary has done its part; Ask logs it and returns the primary's answer.
+type Multi struct {
+	Primary panel.Panel
+	Mirrors []panel.Panel
+}
+
+var _ panel.Panel = (*Multi)(nil)
+
+// Say shows m on every panel.
+func (m *Multi) Say(ctx context.Context, msg panel.Message) error {
+	errs := []error{m.Primary.Say(ctx, msg)}
+	for _, p := range m.Mirrors {
+		errs = append(errs, p.Say(ctx, msg))
+	}
+	return errors.Join(errs...)
+}
+
+// Ask shows pr on the mirrors and waits for the primary's answer.
+func (m *Multi) Ask(ctx context.Context, pr panel.Prompt) (panel.Response, error) {
+	var errs []error
+	for _, p := range m.Mirrors {
+		if err := p.Say(ctx, pr.Message); err != nil {
+			errs = append(errs, err)
+		}
+	}
+	r, err := m.Primary.Ask(ctx, pr)
+	if err != nil {
+		return r, err
+	}
+	if len(errs) > 0 {
+		slog.Default().Warn("mirror panel failed", "err", errors.Join(errs...))
+	}
+	return r, nil
+}
+
+// Indicate sets the indicators on every panel.
+func (m *Multi) Indicate(ctx context.Context, on panel.Indicator) error {
+	errs := []error{m.Primary.Indicate(ctx, on)}
+	for _, p := range m.Mirrors {
+		errs = append(errs, p.Indicate(ctx, on))
+	}
+	return errors.Join(errs...)
+}
+
+// Close closes every panel.
+func (m *Multi) Close() error {
+	errs := []error{m.Primary.Close()}
+	for _, p := range m.Mirrors {
+		errs = append(errs, p.Close())
+	}
+	return errors.Join(errs...)
+}
