@@ -85,6 +85,7 @@ func checkMode(path string, dir bool) error {
 
 func writeKey(path string, priv ed25519.PrivateKey) error {
 	tmp := path + ".new"
+	os.Remove(tmp) // left by a power cut during an earlier first start
 	f, err := os.OpenFile(tmp, os.O_WRONLY|os.O_CREATE|os.O_EXCL, 0o600)
 	if err != nil {
 		return fmt.Errorf("board key %s: %w", tmp, err)

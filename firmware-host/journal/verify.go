@@ -35,7 +35,9 @@ func (p Problem) String() string {
 		}
 	}
 	if b.Len() > 0 {
-		b.WriteString(": ")
+		s := strings.TrimSpace(b.String())
+		b.Reset()
+		b.WriteString(s + ": ")
 	}
 	b.WriteString(p.What)
 	if p.Hint != "" {
@@ -95,6 +97,12 @@ func VerifyKey(ctx context.Context, path string, pub ed25519.PublicKey) (Report,
 	defer db.Close()
 	fileProblem := func(what, hint string) (Report, error) {
 		rep.Problems = append(rep.Problems, Problem{What: what, Hint: hint})
+		return rep, nil
+	}
+	// A file created by a first start that was cut before the schema was
+	// committed is an empty journal: nothing was ever acknowledged in it.
+	var tables int
+	if err := db.QueryRowContext(ctx, `SELECT count(*) FROM sqlite_master`).Scan(&tables); err == nil && tables == 0 {
 		return rep, nil
 	}
 	if err := db.QueryRowContext(ctx, `SELECT version FROM schema_version`).Scan(&rep.Schema); err != nil {
