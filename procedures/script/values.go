@@ -198,6 +198,11 @@ func filterOf(t string) (float64, string, error) {
 		return 0, "", err
 	}
 	f := strings.Fields(rest)
+	if len(f) >= 1 {
+		if _, err := units.ToCanonical(units.Length, v, f[0]); err != nil {
+			return 0, "", fmt.Errorf("%q is not a filter thickness: %w", t, err)
+		}
+	}
 	if len(f) != 2 {
 		return 0, "", fmt.Errorf("%q: expected a thickness and a material, such as %q", t, "21 mm Al")
 	}
