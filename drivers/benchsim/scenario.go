@@ -9,6 +9,7 @@ import (
 	"time"
 
 	"github.com/goccy/go-yaml"
+	"github.com/goccy/go-yaml/ast"
 	"github.com/goccy/go-yaml/parser"
 )
 
@@ -231,6 +232,9 @@ func LoadScenario(path string) (*Scenario, error) {
 func ParseScenario(name string, data []byte) (*Scenario, error) {
 	var s Scenario
 	if err := yaml.UnmarshalWithOptions(data, &s, yaml.DisallowUnknownField(), yaml.Strict()); err != nil {
+		if derr := checkDurations(name, data); derr != nil {
+			return nil, derr // the decoder gives no line for a bad duration
+		}
 		return nil, yamlError(name, err)
 	}
 	s.Source = name
@@ -254,6 +258,44 @@ func yamlError(name string, err error) error {
 		return &ScenarioError{File: name, Line: line, Msg: ye.GetMessage()}
 	}
 	return &ScenarioError{File: name, Msg: err.Error()}
+}
+
+// durationKeys are the keys whose values are durations.
+var durationKeys = map[string]bool{"time_constant": true, "width": true, "over": true,
+	"response_time": true, "integration_time": true, "at": true, "after": true, "duration": true}
+
+// durationFinder reports the first duration value that does not parse.
+type durationFinder struct{ err error }
+
+func (d *durationFinder) Visit(n ast.Node) ast.Visitor {
+	if d.err != nil {
+		return nil
+	}
+	if mv, ok := n.(*ast.MappingValueNode); ok && mv.Key != nil && durationKeys[mv.Key.String()] {
+		if v, ok := mv.Value.(*ast.StringNode); ok {
+			if _, err := time.ParseDuration(v.Value); err != nil {
+				tk := v.GetToken()
+				d.err = &ScenarioError{Line: tk.Position.Line,
+					Msg: fmt.Sprintf("%s: %q is not a duration (write e.g. 0.3s or 250ms)", mv.Key.String(), v.Value)}
+			}
+		}
+	}
+	return d
+}
+
+func checkDurations(name string, data []byte) error {
+	f, err := parser.ParseBytes(data, 0)
+	if err != nil {
+		return nil
+	}
+	d := &durationFinder{}
+	for _, doc := range f.Docs {
+		ast.Walk(d, doc)
+	}
+	if d.err != nil {
+		d.err.(*ScenarioError).File = name
+	}
+	return d.err
 }
 
 // pathError is a check failure at a YAML path like "$.dosimeter.noise".

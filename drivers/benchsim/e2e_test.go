@@ -1,0 +1,318 @@
+package benchsim
+
+import (
+	"context"
+	"errors"
+	"io"
+	"log/slog"
+	"os"
+	"path/filepath"
+	"testing"
+	"time"
+
+	"kermalux/drivers"
+	"kermalux/drivers/clock"
+	"kermalux/drivers/profile"
+	"kermalux/drivers/scpi"
+	"kermalux/drivers/serialline"
+)
+
+// End-to-end tests: the simulator on real pseudo-terminals, read by the
+// real drivers (drivers/profile with testdata/profiles, drivers/scpi).
+
+const profileDir = "../../testdata/profiles"
+
+// e2eSpeed is the clock speed of these tests: fast, yet slow enough that
+// the drivers' shortest real timeouts (tens of ms) hold on a busy machine.
+const e2eSpeed = 10
+
+var quietLog = slog.New(slog.NewTextHandler(io.Discard, nil))
+
+type rig struct {
+	b     *Bench
+	clk   clock.Clock
+	ports Ports
+}
+
+func startRig(t testing.TB, file string, speed float64, edit func(*Scenario)) *rig {
+	t.Helper()
+	s, err := LoadScenario(filepath.Join(scenarioDir, file))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if edit != nil {
+		edit(s)
+	}
+	clk := clock.NewScaled(speed, time.Date(2026, 3, 4, 9, 0, 0, 0, time.UTC))
+	b, err := New(s, clk)
+	if err != nil {
+		t.Fatal(err)
+	}
+	ps, err := b.Serve(context.Background(), t.TempDir())
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(func() { b.Close() })
+	return &rig{b: b, clk: clk, ports: ps}
+}
+
+func openProfile(t testing.TB, r *rig, file, link, role string) *profile.Meter {
+	t.Helper()
+	p, err := profile.Load(filepath.Join(profileDir, file))
+	if err != nil {
+		t.Fatal(err)
+	}
+	ctx, cancel := context.WithTimeout(context.Background(), 5*time.Second)
+	defer cancel()
+	m, err := profile.Open(ctx, p, link, profile.Options{Name: role, Clock: r.clk, Log: quietLog})
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(func() { m.Close() })
+	return m
+}
+
+func (r *rig) sleep(d time.Duration) { _ = r.clk.Sleep(context.Background(), d) }
+
+// TestEndToEndReadings: readings through the real drivers agree with the
+// model's truth (× the calibration error) within the configured noise.
+func TestEndToEndReadings(t *testing.T) {
+	r := startRig(t, "harbour-view-room2.yaml", e2eSpeed, nil)
+	if fi, err := os.Lstat(r.ports.Dosimeter.Link); err != nil || fi.Mode()&os.ModeSymlink == 0 {
+		t.Fatalf("link %s: %v", r.ports.Dosimeter.Link, err)
+	}
+	dose := openProfile(t, r, "veltrane-kr40.yaml", r.ports.Dosimeter.Link, RoleDosimeter)
+	lum := openProfile(t, r, "orlan-lm9.yaml", r.ports.Photometer.Link, RolePhotometer)
+	ctx := context.Background()
+	id, err := dose.Identify(ctx)
+	if err != nil || id.Serial != "KR40-1187" || id.Firmware != "2.3" {
+		t.Errorf("dosimeter identity %+v, %v", id, err)
+	}
+	r.b.SetBeam(true)
+	// Keep reading the stream while waiting 4 s (10 brightness and 8
+	// photometer time constants): a streaming meter's lines queue up.
+	for start := r.b.Now(); r.b.Now() < start+4*time.Second; {
+		if _, err := lum.Read(ctx); err != nil {
+			t.Fatal(err)
+		}
+	}
+	var ds, ls []float64
+	for range 10 {
+		d, err := dose.Read(ctx)
+		if err != nil || !d.Usable() {
+			t.Fatalf("dosimeter: %+v %v", d, err)
+		}
+		ds = append(ds, d.Value)
+		l, err := lum.Read(ctx)
+		if err != nil || !l.Usable() {
+			t.Fatalf("photometer: %+v %v", l, err)
+		}
+		ls = append(ls, l.Value)
+	}
+	tr := r.b.Truth()
+	// 5 % is more than ten times the configured noise (about 1 %).
+	near(t, "dosimeter mean", mean(ds), tr.ChamberKermaRate*(1+tr.Dosimeter.CalibrationError), 0.05)
+	near(t, "photometer mean", mean(ls), tr.PhotometerLuminance*(1+tr.Photometer.CalibrationError), 0.05)
+	near(t, "G from the meters", (mean(ls)/(1+tr.Photometer.CalibrationError)-tr.DarkLuminance)/
+		(mean(ds)/(1+tr.Dosimeter.CalibrationError)/tr.ChamberFactor), 152, 0.05)
+}
+
+// TestEndToEndSCPI: the Halden DX-2 dialect through the SCPI driver, with
+// pulsed fluoroscopy.
+func TestEndToEndSCPI(t *testing.T) {
+	r := startRig(t, "northgate-pulsed-scpi.yaml", e2eSpeed, nil)
+	ctx, cancel := context.WithTimeout(context.Background(), 5*time.Second)
+	defer cancel()
+	m, err := scpi.Open(ctx, r.ports.Dosimeter.Link, scpi.Config{}, scpi.WithClock(r.clk), scpi.WithName(RoleDosimeter), scpi.WithLogger(quietLog))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer m.Close()
+	id, err := m.Identify(ctx)
+	if err != nil || id.Maker != "HALDEN" || id.Serial != "DX2-30417" {
+		t.Errorf("identity %+v, %v", id, err)
+	}
+	r.b.SetBeam(true)
+	r.sleep(5 * time.Second)
+	var xs []float64
+	for range 30 {
+		rd, err := m.Read(ctx)
+		if err != nil || !rd.Usable() {
+			t.Fatalf("reading %+v: %v", rd, err)
+		}
+		xs = append(xs, rd.Value)
+	}
+	tr := r.b.Truth()
+	// With a 50 ms response time the meter sees the 15 pulses/s ripple, so
+	// the readings scatter widely; their mean is still the mean rate. 15 %
+	// allows for 30 samples of a ripple of about ±60 %.
+	near(t, "mean of pulsed readings", mean(xs), tr.ChamberKermaRate*(1+tr.Dosimeter.CalibrationError), 0.15)
+	r.b.SetBeam(false)
+	r.sleep(2 * time.Second)
+	// SCPI has no under-range code: the DX-2 prints the small number.
+	rd, err := m.Read(ctx)
+	if err != nil || rd.Value > tr.Dosimeter.Range.Min {
+		t.Errorf("beam off: %+v %v, want a reading below the %g µGy/s range", rd, err, tr.Dosimeter.Range.Min)
+	}
+}
+
+func mean(xs []float64) float64 {
+	s := 0.0
+	for _, x := range xs {
+		s += x
+	}
+	return s / float64(len(xs))
+}
+
+// TestEndToEndFaults: every fault kind surfaces at the client as the
+// error or status the drivers promise.
+func TestEndToEndFaults(t *testing.T) {
+	type outcome struct {
+		err    error          // wanted error (errors.Is), or nil
+		status drivers.Status // wanted status when err is nil
+	}
+	for _, tc := range []struct {
+		kind, role string
+		want       outcome
+	}{
+		{FaultCablePulled, RolePhotometer, outcome{err: drivers.ErrLinkDown}},
+		{FaultCablePulled, RoleDosimeter, outcome{err: drivers.ErrLinkDown}},
+		{FaultStalled, RolePhotometer, outcome{err: drivers.ErrTimeout}},
+		{FaultStalled, RoleDosimeter, outcome{err: drivers.ErrTimeout}},
+		{FaultGarbage, RolePhotometer, outcome{err: drivers.ErrGarbled}},
+		{FaultGarbage, RoleDosimeter, outcome{err: drivers.ErrGarbled}},
+		{FaultOverRange, RolePhotometer, outcome{status: drivers.StatusOverRange}},
+		{FaultOverRange, RoleDosimeter, outcome{status: drivers.StatusOverRange}},
+		{FaultWrongUnit, RolePhotometer, outcome{err: drivers.ErrUnit}},
+		{FaultWrongUnit, RoleDosimeter, outcome{err: drivers.ErrUnit}},
+	} {
+		t.Run(tc.kind+"/"+tc.role, func(t *testing.T) {
+			t.Parallel()
+			r := startRig(t, "harbour-view-room2.yaml", e2eSpeed, nil)
+			var m drivers.Meter
+			if tc.role == RoleDosimeter {
+				m = openProfile(t, r, "veltrane-kr40.yaml", r.ports.Dosimeter.Link, RoleDosimeter)
+			} else {
+				m = openProfile(t, r, "orlan-lm9.yaml", r.ports.Photometer.Link, RolePhotometer)
+			}
+			r.b.SetBeam(true)
+			ctx, cancel := context.WithTimeout(context.Background(), 10*time.Second)
+			defer cancel()
+			if _, err := m.Read(ctx); err != nil {
+				t.Fatalf("before the fault: %v", err)
+			}
+			if err := r.b.InjectFault(FaultSpec{Kind: tc.kind, Meter: tc.role, Duration: 3 * time.Second}); err != nil {
+				t.Fatal(err)
+			}
+			end := r.b.Now() + 3*time.Second
+			seen, recovered, reconnectSeen := false, false, false
+			var last error
+			for ctx.Err() == nil && !(seen && recovered) {
+				rd, err := m.Read(ctx)
+				switch {
+				case tc.want.err != nil && errors.Is(err, tc.want.err):
+					seen = true
+				case tc.want.err == nil && err == nil && rd.Status == tc.want.status:
+					seen = true
+				case err == nil && rd.Usable() && r.b.Now() > end:
+					recovered = seen
+					reconnectSeen = reconnectSeen || rd.AfterReconnect
+				}
+				if err != nil {
+					last = err
+				}
+				if r.b.Now() > end+20*time.Second {
+					break
+				}
+			}
+			if !seen {
+				t.Fatalf("%s on the %s never surfaced as %+v (last error %v)", tc.kind, tc.role, tc.want, last)
+			}
+			if !recovered {
+				t.Errorf("no good reading after the fault ended (last error %v)", last)
+			}
+			if tc.kind == FaultCablePulled && !reconnectSeen {
+				t.Errorf("first reading after the re-plug not marked AfterReconnect")
+			}
+		})
+	}
+}
+
+// TestCablePulledLink: during a pull the link is gone and the pty master
+// closed; afterwards the link points at a new /dev/pts device.
+func TestCablePulledLink(t *testing.T) {
+	r := startRig(t, "harbour-view-room2.yaml", e2eSpeed, nil)
+	before := r.ports.Photometer
+	f, err := os.OpenFile(before.Link, os.O_RDWR, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	if err := r.b.InjectFault(FaultSpec{Kind: FaultCablePulled, Meter: RolePhotometer, Duration: 2 * time.Second}); err != nil {
+		t.Fatal(err)
+	}
+	r.sleep(time.Second)
+	if _, err := os.Lstat(before.Link); !errors.Is(err, os.ErrNotExist) {
+		t.Errorf("link still there during the pull: %v", err)
+	}
+	buf := make([]byte, 16)
+	if n, err := f.Read(buf); err == nil && n > 0 {
+		t.Errorf("read %d bytes from a pulled cable", n)
+	}
+	r.sleep(2 * time.Second)
+	after := r.b.Ports().Photometer
+	dev, err := filepath.EvalSymlinks(after.Link)
+	if err != nil || dev != after.Device || after.Device == "" {
+		t.Fatalf("link after re-plug resolves to %q (%v), port says %q", dev, err, after.Device)
+	}
+	// The new device answers.
+	sp, err := serialline.Open(context.Background(), serialline.Config{Port: after.Link, Baud: 19200, ReadTimeout: time.Second}, serialline.Options{Clock: r.clk, Log: quietLog})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer sp.Close()
+	if err := sp.WriteLine(context.Background(), "IDN"); err != nil {
+		t.Fatal(err)
+	}
+	l, err := sp.ReadLine(context.Background())
+	if err != nil || l.Text != "ORLAN LM-9 #LM9-5521" {
+		t.Errorf("after re-plug: %q %v", l.Text, err)
+	}
+}
+
+// TestScenarioFaultAtBeamOn: a fault scheduled "at the Nth beam-on" starts
+// then, not before.
+func TestScenarioFaultAtBeamOn(t *testing.T) {
+	s, err := LoadScenario(filepath.Join(scenarioDir, "fault-over-range.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	clk := clock.NewManual(time.Unix(0, 0))
+	b, err := New(s, clk)
+	if err != nil {
+		t.Fatal(err)
+	}
+	b.SetBeam(true)
+	clk.Advance(3 * time.Second)
+	if len(b.Truth().ActiveFaults) != 0 {
+		t.Fatal("fault active during the first beam-on")
+	}
+	b.SetBeam(false)
+	clk.Advance(time.Second)
+	b.SetBeam(true) // second beam-on: over range after 1 s for 4 s
+	clk.Advance(500 * time.Millisecond)
+	if len(b.Truth().ActiveFaults) != 0 {
+		t.Fatal("fault active before its delay")
+	}
+	clk.Advance(time.Second)
+	if f := b.Truth().ActiveFaults; len(f) != 1 || f[0].Kind != FaultOverRange {
+		t.Fatalf("active faults %+v, want over range", f)
+	}
+	if d := b.display(RoleDosimeter); d.status != drivers.StatusOverRange || d.value != 500 {
+		t.Errorf("display during the fault %+v, want over range at the 500 µGy/s limit", d)
+	}
+	clk.Advance(4 * time.Second)
+	if len(b.Truth().ActiveFaults) != 0 {
+		t.Fatal("fault outlived its duration")
+	}
+}
