@@ -26,7 +26,7 @@ type Chart struct {
 	Caption string
 	SVG     string // the <svg> element, without the XML prolog
 	PNG     []byte
-	// Width and Height in points, for laying the PNG out in a PDF.
+	// Width and Height of the PNG in points, for laying it out in a PDF.
 	Width, Height float64
 }
 
@@ -63,11 +63,14 @@ func sansStyle(size vg.Length) font.Font {
 	return font.Font{Typeface: "Liberation", Variant: "Sans", Size: size}
 }
 
+// pngScale is the size of a chart's PNG relative to its SVG.
+const pngScale = 0.68
+
 var svgSize = regexp.MustCompile(`^<svg width="([0-9.]+)pt" height="([0-9.]+)pt"`)
 
 // render draws p as SVG and PNG at w×h points.
 func render(p *plot.Plot, name, title, caption string, w, h vg.Length) (Chart, error) {
-	c := Chart{Name: name, Title: title, Caption: caption, Width: w.Points(), Height: h.Points()}
+	c := Chart{Name: name, Title: title, Caption: caption}
 	sc := vgsvg.New(w, h)
 	p.Draw(draw.New(sc))
 	var sb bytes.Buffer
@@ -82,7 +85,11 @@ func render(p *plot.Plot, name, title, caption string, w, h vg.Length) (Chart, e
 	s = strings.ReplaceAll(s, "font-family:Liberation Sans;", "font-family:'Liberation Sans',Arial,Helvetica,sans-serif;")
 	c.SVG = s
 
-	ic := vgimg.NewWith(vgimg.UseWH(w, h), vgimg.UseDPI(150), vgimg.UseBackgroundColor(color.White))
+	// The PNG (for PDF) is drawn on a smaller canvas so that its type,
+	// kept at the same point size, reads well at print size.
+	pw, ph := w*pngScale, h*pngScale
+	c.Width, c.Height = pw.Points(), ph.Points()
+	ic := vgimg.NewWith(vgimg.UseWH(pw, ph), vgimg.UseDPI(220), vgimg.UseBackgroundColor(color.White))
 	p.Draw(draw.New(ic))
 	var pb bytes.Buffer
 	if _, err := (vgimg.PngCanvas{Canvas: ic}).WriteTo(&pb); err != nil {
@@ -190,15 +197,16 @@ func MapChart(m LuminanceMap) (Chart, error) {
 		return draw.GlyphStyle{Color: c, Radius: vg.Points(9), Shape: draw.CircleGlyph{}}
 	}
 	p.Add(sc)
-	// Labels go below a disc, except in the lower half of the face where
-	// they go above it, clear of the edge and of the direction words.
+	// Labels go below a disc, except for discs near the vertical axis,
+	// whose labels go to their right, clear of the discs above and below.
 	lpts := make(plotter.XYs, len(pts))
+	right := make([]bool, len(pts))
 	for i, q := range pts {
-		dy := -0.19
-		if q.Y < -0.05 {
-			dy = 0.19
+		if math.Hypot(q.X, q.Y) > 0.05 && math.Abs(q.X) < 0.3*math.Hypot(q.X, q.Y) {
+			lpts[i], right[i] = plotter.XY{X: q.X + 0.12, Y: q.Y}, true
+			continue
 		}
-		lpts[i] = plotter.XY{X: q.X, Y: q.Y + dy}
+		lpts[i] = plotter.XY{X: q.X, Y: q.Y - 0.19}
 	}
 	lb, err := plotter.NewLabels(plotter.XYLabels{XYs: lpts, Labels: labels})
 	if err != nil {
@@ -208,6 +216,9 @@ func MapChart(m LuminanceMap) (Chart, error) {
 		lb.TextStyle[i].Font = sansStyle(9)
 		lb.TextStyle[i].Color = inkColor
 		lb.TextStyle[i].XAlign = draw.XCenter
+		if right[i] {
+			lb.TextStyle[i].XAlign = draw.XLeft
+		}
 		lb.TextStyle[i].YAlign = draw.YCenter
 	}
 	p.Add(lb)
@@ -460,10 +471,10 @@ func TrendChart(t Trend) (Chart, error) {
 
 // unitText writes a canonical unit for chart axes.
 func unitText(u string) string {
-	if u == "" {
-		return "no unit"
+	if u == "" || u == "1" {
+		return "ratio"
 	}
-	return u
+	return pdfText(u)
 }
 
 // slug makes a name safe for identifiers and file names.

@@ -31,26 +31,27 @@ func (o Options) generated() time.Time {
 }
 
 var htmlTemplate = template.Must(template.New("report").Funcs(template.FuncMap{
-	"day":          Day,
-	"stamp":        Stamp,
-	"clock":        Clock,
-	"short":        short,
-	"num":          Number,
-	"valu":         ValueWithUnc,
-	"pct":          Percent,
-	"pctSigned":    func(f float64) string { return fmt.Sprintf("%+.1f %%", 100*f) },
-	"beam":         BeamTime,
-	"factor":       Factor,
-	"quantity":     quantityWords,
-	"correction":   correctionWords,
-	"corrections":  correctionsText,
-	"verdictClass": verdictClass,
-	"verdictWords": verdictWords,
-	"certClass":    certClass,
-	"neg":          func(n int) int { return -n },
-	"inc":          func(n int) int { return n + 1 },
-	"unit":         unitShown,
-	"rel":          func(u, v float64) float64 { return u / math.Abs(v) },
+	"day":           Day,
+	"stamp":         Stamp,
+	"clock":         Clock,
+	"short":         short,
+	"num":           Number,
+	"valu":          ValueWithUnc,
+	"pct":           Percent,
+	"pctSigned":     func(f float64) string { return fmt.Sprintf("%+.1f %%", 100*f) },
+	"beam":          BeamTime,
+	"factor":        Factor,
+	"quantity":      quantityWords,
+	"correction":    correctionWords,
+	"corrections":   correctionsText,
+	"verdictClass":  verdictClass,
+	"verdictWords":  verdictWords,
+	"certClass":     certClass,
+	"neg":           func(n int) int { return -n },
+	"inc":           func(n int) int { return n + 1 },
+	"unit":          unitShown,
+	"trendSentence": trendSentence,
+	"rel":           func(u, v float64) float64 { return u / math.Abs(v) },
 	// svg marks a chart rendered by this package as safe HTML: it is
 	// produced by gonum/plot's SVG canvas, which escapes all text.
 	"svg": func(s string) template.HTML { return template.HTML(s) },
@@ -76,11 +77,12 @@ type htmlView struct {
 	Exposures  []Exposure
 	Generated  time.Time
 	Version    string
+	Cautions   []string
 }
 
 func (r *Report) view(opt Options, withCharts bool) htmlView {
 	v := htmlView{R: r, S: r.Session, Verdict: r.Verdict(), Pass: r.Count("pass"), Fail: r.Count("fail"), Info: r.Count("info"),
-		Generated: opt.generated(), Version: opt.Version}
+		Generated: opt.generated(), Version: opt.Version, Cautions: cautions(r.Simulated)}
 	if v.Version == "" {
 		v.Version = r.Session.SoftwareVersion
 	}

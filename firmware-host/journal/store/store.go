@@ -265,10 +265,28 @@ func (s *Store) Apply(ctx context.Context, b *journal.Batch) (Applied, error) {
 	return a, nil
 }
 
+// ApplyOptions configure ApplyAll.
+type ApplyOptions struct {
+	// SkipReplays counts a batch already wholly stored as duplicates
+	// instead of failing (importing the same bundle twice).
+	SkipReplays bool
+	// Progress, if set, is told the records of each batch checked.
+	Progress func(records int)
+}
+
+// BatchError names which batch of ApplyAll failed.
+type BatchError struct {
+	Index int // 0-based
+	Err   error
+}
+
+func (e *BatchError) Error() string { return fmt.Sprintf("batch %d: %v", e.Index+1, e.Err) }
+func (e *BatchError) Unwrap() error { return e.Err }
+
 // ApplyAll applies batches in one transaction, all or nothing: the fast
-// bulk path (one fsync for any number of batches). With skipReplays, a
-// batch already wholly stored is counted as duplicates instead of failing.
-func (s *Store) ApplyAll(ctx context.Context, batches []*journal.Batch, skipReplays bool) (Applied, error) {
+// bulk path (one commit for any number of batches) and the import of a
+// bundle.
+func (s *Store) ApplyAll(ctx context.Context, batches []*journal.Batch, opts ApplyOptions) (Applied, error) {
 	tx, err := s.db.BeginTx(ctx, nil)
 	if err != nil {
 		return Applied{}, fmt.Errorf("store %s: %w", s.path, err)
@@ -277,12 +295,15 @@ func (s *Store) ApplyAll(ctx context.Context, batches []*journal.Batch, skipRepl
 	var sum Applied
 	for i, b := range batches {
 		a, err := applyTx(ctx, tx, b)
-		if errors.Is(err, ErrReplay) && skipReplays {
+		if opts.Progress != nil {
+			opts.Progress(len(b.Records))
+		}
+		if errors.Is(err, ErrReplay) && opts.SkipReplays {
 			sum.Duplicates += len(b.Records)
 			continue
 		}
 		if err != nil {
-			return Applied{}, fmt.Errorf("batch %d of %d: %w", i+1, len(batches), err)
+			return Applied{}, &BatchError{Index: i, Err: err}
 		}
 		sum.Stored += a.Stored
 		sum.Duplicates += a.Duplicates

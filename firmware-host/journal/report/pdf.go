@@ -1,0 +1,599 @@
+package report
+
+import (
+	"bytes"
+	"fmt"
+	"io"
+	"strings"
+
+	"codeberg.org/go-fonts/liberation/liberationmonoregular"
+	"codeberg.org/go-fonts/liberation/liberationsansbold"
+	"codeberg.org/go-fonts/liberation/liberationsansregular"
+	"codeberg.org/go-pdf/fpdf"
+)
+
+// pdfDoc wraps fpdf with the report's few layout helpers.
+type pdfDoc struct {
+	f         *fpdf.Fpdf
+	w, left   float64 // usable width and left margin, mm
+	bottom    float64 // y beyond which a new page starts, mm
+	simulated bool
+}
+
+const ptToMM = 25.4 / 72
+
+type pdfCol struct {
+	head  string
+	width float64 // fraction of the usable width
+	right bool
+}
+
+func (d *pdfDoc) font(style string, size float64) {
+	d.f.SetFont("sans", style, size)
+}
+
+func (d *pdfDoc) ensure(h float64) {
+	if d.f.GetY()+h > d.bottom {
+		d.f.AddPage()
+	}
+}
+
+func (d *pdfDoc) heading(s string) {
+	d.ensure(22)
+	d.f.Ln(4)
+	d.font("B", 13)
+	d.f.SetTextColor(0x1d, 0x26, 0x30)
+	d.f.CellFormat(d.w, 7, pdfText(s), "B", 1, "L", false, 0, "")
+	d.f.Ln(2)
+	d.f.Bookmark(s, 0, -1)
+}
+
+func (d *pdfDoc) subheading(s string) {
+	d.ensure(16)
+	d.f.Ln(1.5)
+	d.font("B", 10.5)
+	d.f.CellFormat(d.w, 6, pdfText(s), "", 1, "L", false, 0, "")
+}
+
+func (d *pdfDoc) para(s string, size float64) {
+	d.font("", size)
+	d.f.MultiCell(d.w, size*0.5, pdfText(s), "", "L", false)
+	d.f.Ln(1)
+}
+
+// table draws a table with wrapped cells, repeating the header on each
+// new page.
+func (d *pdfDoc) table(cols []pdfCol, rows [][]string) { d.tableSized(cols, rows, 7.5) }
+
+// tableSized is table with a font size in points.
+func (d *pdfDoc) tableSized(cols []pdfCol, rows [][]string, size float64) {
+	lh, pad := size*0.48, 1.1
+	header := func() {
+		d.font("B", size)
+		d.f.SetFillColor(0xf0, 0xf2, 0xf5)
+		y := d.f.GetY()
+		h := d.rowHeight(cols, nil, lh, pad, true)
+		d.f.Rect(d.left, y, d.w, h, "F")
+		d.drawRow(cols, nil, y, lh, pad, true)
+		d.f.SetY(y + h)
+		d.font("", size)
+	}
+	d.ensure(14)
+	header()
+	for _, row := range rows {
+		h := d.rowHeight(cols, row, lh, pad, false)
+		if d.f.GetY()+h > d.bottom {
+			d.f.AddPage()
+			header()
+		}
+		y := d.f.GetY()
+		d.drawRow(cols, row, y, lh, pad, false)
+		d.f.SetDrawColor(0xd5, 0xdb, 0xe1)
+		d.f.Line(d.left, y+h, d.left+d.w, y+h)
+		d.f.SetY(y + h)
+	}
+	d.f.Ln(2)
+}
+
+func (d *pdfDoc) cellText(cols []pdfCol, row []string, i int, head bool) string {
+	if head {
+		return pdfText(cols[i].head)
+	}
+	if i < len(row) {
+		return pdfText(row[i])
+	}
+	return ""
+}
+
+// pdfText replaces characters the embedded fonts lack: the superscript
+// minus of units such as cd·m⁻²/(µGy·s⁻¹).
+func pdfText(s string) string {
+	if !strings.ContainsRune(s, '⁻') {
+		return s
+	}
+	s = strings.ReplaceAll(s, "cd·m⁻²/(µGy·s⁻¹)", "(cd/m²)/(µGy/s)")
+	return strings.NewReplacer("⁻¹", "^-1", "⁻²", "^-2", "⁻", "-").Replace(s)
+}
+
+func (d *pdfDoc) rowHeight(cols []pdfCol, row []string, lh, pad float64, head bool) float64 {
+	lines := 1
+	for i, c := range cols {
+		n := len(d.f.SplitText(d.cellText(cols, row, i, head), c.width*d.w-2*pad))
+		if n > lines {
+			lines = n
+		}
+	}
+	return float64(lines)*lh + 2*pad
+}
+
+func (d *pdfDoc) drawRow(cols []pdfCol, row []string, y, lh, pad float64, head bool) {
+	x := d.left
+	for i, c := range cols {
+		cw := c.width * d.w
+		align := "L"
+		if c.right {
+			align = "R"
+		}
+		text := d.cellText(cols, row, i, head)
+		switch {
+		case head:
+		case text == "PASS" || text == "pass":
+			d.f.SetTextColor(0x1e, 0x7a, 0x46)
+		case text == "FAIL" || text == "fail":
+			d.f.SetTextColor(0xb0, 0x2a, 0x2a)
+		}
+		d.f.SetXY(x+pad, y+pad)
+		d.f.MultiCell(cw-2*pad, lh, text, "", align, false)
+		d.f.SetTextColor(0x1d, 0x26, 0x30)
+		x += cw
+	}
+}
+
+// WritePDF writes the report as an A4 PDF with the same content as the
+// HTML report; charts are embedded as PNG images.
+func (r *Report) WritePDF(w io.Writer, opt Options) error {
+	v := r.view(opt, true)
+	f := fpdf.New("P", "mm", "A4", "")
+	f.AddUTF8FontFromBytes("sans", "", liberationsansregular.TTF)
+	f.AddUTF8FontFromBytes("sans", "B", liberationsansbold.TTF)
+	f.AddUTF8FontFromBytes("mono", "", liberationmonoregular.TTF)
+	f.SetMargins(14, 14, 14)
+	f.SetAutoPageBreak(true, 16)
+	f.SetCreationDate(v.Generated)
+	f.SetModificationDate(v.Generated)
+	f.SetCatalogSort(true)
+	title := fmt.Sprintf("Image intensifier check %s, %s %s, %s", r.Session.IntensifierSerial, r.Session.Site, r.Session.Room, Day(r.Session.Started))
+	f.SetTitle(title, true)
+	f.SetSubject("Acceptance report of session "+r.Session.ID, true)
+	f.SetAuthor(r.Session.Engineer, true)
+	f.SetCreator("kermalux "+v.Version, true)
+	f.SetKeywords("image intensifier, conversion factor, "+r.Session.IntensifierSerial+", verdict "+v.Verdict, true)
+	f.AliasNbPages("{nb}")
+	pw, ph := f.GetPageSize()
+	d := &pdfDoc{f: f, w: pw - 28, left: 14, bottom: ph - 18, simulated: r.Simulated}
+	f.SetFooterFunc(func() {
+		f.SetY(-12)
+		d.font("", 7.5)
+		f.SetTextColor(0x5b, 0x67, 0x75)
+		left := fmt.Sprintf("%s · %s · session %s", r.Session.IntensifierSerial, Day(r.Session.Started), r.Session.ID)
+		if r.Simulated {
+			left = "SIMULATED, NOT A MEASUREMENT · " + left
+		}
+		f.CellFormat(d.w*0.8, 5, left, "T", 0, "L", false, 0, "")
+		f.CellFormat(d.w*0.2, 5, fmt.Sprintf("page %d of {nb}", f.PageNo()), "T", 0, "R", false, 0, "")
+		f.SetTextColor(0x1d, 0x26, 0x30)
+	})
+	f.AddPage()
+	f.SetTextColor(0x1d, 0x26, 0x30)
+
+	d.font("B", 17)
+	f.CellFormat(d.w, 9, "Image intensifier check: "+r.Session.IntensifierSerial, "", 1, "L", false, 0, "")
+	d.font("", 9.5)
+	f.SetTextColor(0x5b, 0x67, 0x75)
+	f.CellFormat(d.w, 5, fmt.Sprintf("%s · %s · %s · %s · procedure “%s”", r.Session.Site, r.Session.Room, r.Session.IntensifierModel, Day(r.Session.Started), r.Session.Procedure), "", 1, "L", false, 0, "")
+	f.SetTextColor(0x1d, 0x26, 0x30)
+	f.Ln(3)
+	if r.Simulated {
+		d.font("B", 10)
+		f.SetTextColor(0xb0, 0x2a, 0x2a)
+		f.SetDrawColor(0xb0, 0x2a, 0x2a)
+		f.SetLineWidth(0.6)
+		f.MultiCell(d.w, 5, "SIMULATED SESSION: the readings came from the bench simulator. These results are not measurements of any intensifier and must not be used for acceptance.", "1", "L", false)
+		f.SetLineWidth(0.2)
+		f.SetTextColor(0x1d, 0x26, 0x30)
+		f.Ln(3)
+	}
+
+	// Summary box.
+	y0 := f.GetY()
+	f.SetXY(d.left+4, y0+4)
+	d.font("B", 20)
+	switch v.Verdict {
+	case "pass":
+		f.SetTextColor(0x1e, 0x7a, 0x46)
+	case "fail":
+		f.SetTextColor(0xb0, 0x2a, 0x2a)
+	default:
+		f.SetTextColor(0xa8, 0x62, 0x00)
+	}
+	f.CellFormat(60, 10, strings.ToUpper(verdictWords(v.Verdict)), "", 2, "L", false, 0, "")
+	f.SetTextColor(0x5b, 0x67, 0x75)
+	d.font("", 9)
+	f.SetX(d.left + 4)
+	f.CellFormat(60, 5, fmt.Sprintf("%d pass · %d fail · %d for information", v.Pass, v.Fail, v.Info), "", 2, "L", false, 0, "")
+	f.SetX(d.left + 4)
+	f.CellFormat(60, 5, "Beam on: "+BeamTime(r.BeamOn)+" in total", "", 2, "L", false, 0, "")
+	leftEnd := f.GetY()
+	f.SetTextColor(0x1d, 0x26, 0x30)
+	f.SetXY(d.left+70, y0+4)
+	d.font("B", 10)
+	if len(r.Review) > 0 {
+		f.CellFormat(d.w-74, 6, fmt.Sprintf("Needs review (%d)", len(r.Review)), "", 2, "L", false, 0, "")
+		d.font("", 9)
+		for _, s := range r.Review {
+			f.SetX(d.left + 70)
+			f.MultiCell(d.w-74, 4.5, "• "+pdfText(s), "", "L", false)
+		}
+	} else {
+		f.CellFormat(d.w-74, 6, "Nothing needs review", "", 2, "L", false, 0, "")
+	}
+	y1 := f.GetY()
+	if leftEnd > y1 {
+		y1 = leftEnd
+	}
+	y1 += 3
+	f.SetDrawColor(0x1d, 0x26, 0x30)
+	f.SetLineWidth(0.5)
+	f.Rect(d.left, y0, d.w, y1-y0, "D")
+	f.SetLineWidth(0.2)
+	f.SetY(y1 + 3)
+
+	finished := "not finished"
+	if r.End != nil {
+		finished = Stamp(r.End.Finished) + " (" + r.End.Outcome + ")"
+	}
+	facts := [][2]string{
+		{"Site", r.Session.Site}, {"Room", r.Session.Room}, {"Intensifier", r.Session.IntensifierModel + ", serial " + r.Session.IntensifierSerial},
+		{"Engineer", r.Session.Engineer}, {"Started", Stamp(r.Session.Started)}, {"Finished", finished},
+		{"Procedure", fmt.Sprintf("%s · %d steps", r.Session.Procedure, r.StepCount)}, {"Board", short(r.Session.BoardKey)}, {"Software", "kermalux " + r.Session.SoftwareVersion},
+	}
+	cw := d.w / 3
+	for i := 0; i < len(facts); i += 3 {
+		y := f.GetY()
+		for j := 0; j < 3 && i+j < len(facts); j++ {
+			f.SetXY(d.left+float64(j)*cw, y)
+			d.font("", 7.5)
+			f.SetTextColor(0x5b, 0x67, 0x75)
+			f.CellFormat(cw-3, 3.8, facts[i+j][0], "T", 2, "L", false, 0, "")
+			f.SetX(d.left + float64(j)*cw)
+			d.font("", 9)
+			f.SetTextColor(0x1d, 0x26, 0x30)
+			f.CellFormat(cw-3, 4.6, facts[i+j][1], "", 0, "L", false, 0, "")
+		}
+		f.SetY(y + 10)
+	}
+
+	d.heading("Results")
+	var rows [][]string
+	for _, res := range r.Results {
+		of := ""
+		if res.BaselineFrac != 0 {
+			of = Percent(res.BaselineFrac) + " of " + Number(res.Baseline)
+		}
+		notes := res.Flags
+		if !res.Calibrated {
+			notes = append([]string{"not calibrated"}, notes...)
+		}
+		rows = append(rows, []string{quantityWords(res.Quantity), res.FieldMode, ValueWithUnc(res.Value, res.ExpUnc), unitShown(res.Unit), Number(res.K), of, strings.ToUpper(res.Verdict), res.DecidedBy, strings.Join(notes, "; ")})
+	}
+	d.table([]pdfCol{{"Result", .15, false}, {"Field", .06, false}, {"Value ± U", .12, true}, {"Unit", .12, false}, {"k", .03, true}, {"Of baseline", .12, true}, {"Verdict", .07, false}, {"Decided by", .21, false}, {"Notes", .12, false}}, rows)
+	d.para("U is the expanded uncertainty with coverage factor k (JCGM 100:2008). A verdict compares the value itself with the limit named under “Decided by”.", 7.5)
+
+	if len(v.Charts) > 0 {
+		d.pdfCharts(v.Charts)
+	}
+	for _, m := range r.Maps {
+		d.subheading("Luminance positions, " + m.FieldMode + " field")
+		var rows [][]string
+		for _, p := range m.Points {
+			rr, aa, fr := "?", "", ""
+			if p.Placed {
+				rr, aa = Number(p.R)+" r", Number(p.AngleDeg)+"°"
+			}
+			if p.Fraction != 0 {
+				fr = Percent(p.Fraction)
+			}
+			rows = append(rows, []string{p.Label, rr, aa, fmt.Sprint(p.N), Number(p.Mean), fr})
+		}
+		d.table([]pdfCol{{"Position", .3, false}, {"Radius", .12, true}, {"Angle", .12, true}, {"Readings", .12, true}, {"Mean (" + m.Unit + ")", .17, true}, {"Of centre", .17, true}}, rows)
+	}
+
+	if len(r.Trends) > 0 {
+		d.heading("History of this intensifier")
+		for _, t := range r.Trends {
+			d.subheading(quantityWords(t.Quantity) + ", " + orDash(t.FieldMode) + " field")
+			var rows [][]string
+			for _, p := range t.Points {
+				rows = append(rows, []string{Day(p.Date), p.Site + " / " + p.Room, ValueWithUnc(p.Value, p.ExpUnc), Percent(p.Fraction), strings.ToUpper(p.Verdict)})
+			}
+			d.table([]pdfCol{{"Date", .15, false}, {"Site / room", .4, false}, {"Value ± U", .17, true}, {"Of baseline", .15, true}, {"Verdict", .13, false}}, rows)
+			d.para(trendSentence(t), 8.5)
+		}
+	}
+
+	d.heading("Calibration certificates")
+	if len(r.Certificates) == 0 {
+		d.para("No certificate was recorded: no reading in this session is calibrated.", 9)
+	} else {
+		var rows [][]string
+		for _, c := range r.Certificates {
+			rows = append(rows, []string{c.ID, c.Meter, c.Model + ", " + c.Serial, c.Laboratory, Day(c.Calibrated), Day(c.Due), certStanding(c), short(c.SHA256)})
+		}
+		d.table([]pdfCol{{"Certificate", .12, false}, {"Meter", .1, false}, {"Model, serial", .15, false}, {"Laboratory", .16, false}, {"Calibrated", .1, false}, {"Due", .1, false}, {"Standing on the day", .14, false}, {"File SHA-256", .13, false}}, rows)
+	}
+
+	d.heading("Corrections applied")
+	if len(r.Corrections) == 0 {
+		d.para("No corrections were recorded.", 9)
+	} else {
+		var rows [][]string
+		for _, c := range r.Corrections {
+			fac := Factor(c.MinFactor)
+			if c.MinFactor != c.MaxFactor {
+				fac += " to " + Factor(c.MaxFactor)
+			}
+			off := Number(c.MinOffset)
+			if c.MinOffset != c.MaxOffset {
+				off += " to " + Number(c.MaxOffset)
+			}
+			rows = append(rows, []string{correctionWords(c.Name) + " (" + c.Name + ")", fmt.Sprint(c.Count), fac, off, strings.Join(c.Notes, "; ")})
+		}
+		d.table([]pdfCol{{"Correction", .25, false}, {"Readings", .09, true}, {"Factor", .17, true}, {"Offset", .09, true}, {"Notes", .40, false}}, rows)
+	}
+	if len(r.Values) > 0 {
+		d.subheading("Values entered")
+		var rows [][]string
+		for _, val := range r.Values {
+			rows = append(rows, []string{Clock(val.Wall), fmt.Sprint(val.Step), val.Name, Number(val.Value.Value) + " " + val.Unit, val.Source})
+		}
+		d.table([]pdfCol{{"Time", .15, false}, {"Step", .1, true}, {"Quantity", .3, false}, {"Value", .2, true}, {"Source", .25, false}}, rows)
+	}
+
+	d.heading("Uncertainty budgets")
+	for _, res := range r.Results {
+		if len(res.Budget) == 0 {
+			continue
+		}
+		d.subheading(fmt.Sprintf("%s%s: %s %s (k = %s)", quantityWords(res.Quantity), prefixed(", ", res.FieldMode), ValueWithUnc(res.Value, res.ExpUnc), unitShown(res.Unit), Number(res.K)))
+		var rows [][]string
+		for _, b := range res.Budget {
+			dof := "∞"
+			if b.DoF != 0 {
+				dof = Number(b.DoF)
+			}
+			rows = append(rows, []string{b.Source, b.Type, Number(b.Value) + " " + unitShown(b.Unit), Number(b.StdUnc), Percent(b.RelStdUnc), Number(b.Sensitivity), Percent(b.Contribution), dof})
+		}
+		rel := ""
+		if res.Value != 0 {
+			rel = Percent(res.StdUnc / abs(res.Value))
+		}
+		rows = append(rows, []string{"Combined standard uncertainty of the result", "", "", Number(res.StdUnc), rel, "", "U = " + Number(res.ExpUnc), "k = " + Number(res.K)})
+		d.table([]pdfCol{{"Source", .32, false}, {"Type", .06, false}, {"Estimate", .14, true}, {"Std. unc.", .12, true}, {"Relative", .09, true}, {"Sens.", .07, true}, {"Contrib.", .1, true}, {"DoF", .1, true}}, rows)
+	}
+
+	d.heading("Safety acknowledgements")
+	if len(v.Safety) == 0 {
+		d.para("No safety checklist acknowledgement is in the journal.", 9)
+	} else {
+		var rows [][]string
+		for _, a := range v.Safety {
+			rows = append(rows, []string{Stamp(a.At), fmt.Sprint(a.Step), a.Text, a.Answer})
+		}
+		d.table([]pdfCol{{"Time", .25, false}, {"Step", .07, true}, {"Prompt", .53, false}, {"Answer", .15, false}}, rows)
+	}
+	if len(v.Others) > 0 {
+		d.subheading("Other acknowledgements")
+		var rows [][]string
+		for _, a := range v.Others {
+			rows = append(rows, []string{Clock(a.At), fmt.Sprint(a.Step), a.Text, a.Answer})
+		}
+		d.table([]pdfCol{{"Time", .25, false}, {"Step", .07, true}, {"Prompt", .53, false}, {"Answer", .15, false}}, rows)
+	}
+
+	d.heading("Beam-on time and events")
+	summary := "Cumulative beam-on time: " + BeamTime(r.BeamOn)
+	if len(v.Exposures) > 0 {
+		summary += fmt.Sprintf(" in %d exposures", len(v.Exposures))
+	}
+	d.para(summary+".", 9)
+	if len(v.Events) > 0 {
+		d.subheading("Events")
+		var rows [][]string
+		for _, e := range v.Events {
+			bt := ""
+			if e.Beam {
+				bt = BeamTime(e.BeamOn)
+			}
+			rows = append(rows, []string{Clock(e.Wall), fmt.Sprint(e.Step), e.What, e.Detail, bt})
+		}
+		d.table([]pdfCol{{"Time", .12, false}, {"Step", .07, true}, {"Event", .28, false}, {"Detail", .38, false}, {"Beam on so far", .15, true}}, rows)
+	}
+	if len(v.Exposures) > 0 {
+		d.subheading("Exposures")
+		var rows [][]string
+		for i, x := range v.Exposures {
+			off := Clock(x.Off)
+			if x.Open {
+				off = "not recorded"
+			}
+			rows = append(rows, []string{fmt.Sprint(i + 1), fmt.Sprint(x.Step), Clock(x.On), off, BeamTime(x.Duration), BeamTime(x.Cumulative)})
+		}
+		d.table([]pdfCol{{"#", .08, true}, {"Step", .08, true}, {"Beam on", .2, false}, {"Beam off", .2, false}, {"This exposure", .22, true}, {"Cumulative", .22, true}}, rows)
+	}
+
+	d.heading("Cautions")
+	for _, c := range cautions(r.Simulated) {
+		d.para("• "+c, 9)
+	}
+
+	d.heading("Review and signature")
+	d.ensure(70)
+	d.para("Comments of the medical physicist:", 9)
+	y := f.GetY()
+	f.SetDrawColor(0x9a, 0xa4, 0xae)
+	f.Rect(d.left, y, d.w, 38, "D")
+	f.SetY(y + 42)
+	d.para("☐ Accepted     ☐ Accepted with conditions     ☐ Not accepted", 9.5)
+	f.Ln(10)
+	y = f.GetY()
+	f.SetDrawColor(0x1d, 0x26, 0x30)
+	for i, lab := range []string{"Name and qualification", "Signature", "Date"} {
+		x := d.left + float64(i)*d.w/3
+		f.Line(x, y, x+d.w/3-6, y)
+		f.SetXY(x, y+1)
+		d.font("", 7.5)
+		f.CellFormat(d.w/3-6, 4, lab, "", 0, "L", false, 0, "")
+	}
+	f.SetY(y + 8)
+
+	f.AddPageFormat("L", fpdf.SizeType{Wd: 210, Ht: 297})
+	pw, ph = f.GetPageSize()
+	d.w, d.bottom = pw-28, ph-18
+	d.heading("Appendix: every reading")
+	d.para(fmt.Sprintf("%d readings. Readings marked “not used” did not enter a result (settling, dark or discarded). Corrections are listed in the order applied; the corrected value is in the canonical unit.", len(r.Readings)), 8)
+	rows = rows[:0]
+	for _, rd := range r.Readings {
+		st := rd.Status
+		if !rd.Used {
+			st += ", not used"
+		}
+		if !rd.Calibrated {
+			st += ", uncalibrated"
+		}
+		if len(rd.Flags) > 0 {
+			st += ", " + strings.Join(rd.Flags, ", ")
+		}
+		rows = append(rows, []string{fmt.Sprint(rd.Seq), Clock(rd.Wall), rd.StepID, rd.FieldMode, rd.Position, rd.Meter, rd.Raw, correctionsText(rd.Corrections), Number(rd.Value) + " " + rd.Unit, st})
+	}
+	d.tableSized([]pdfCol{{"Seq", .04, true}, {"Time", .06, false}, {"Step", .11, false}, {"Field", .05, false}, {"Position", .07, false}, {"Meter", .07, false}, {"Raw line", .14, false}, {"Corrections", .24, false}, {"Corrected", .09, true}, {"Status", .13, false}}, rows, 6.5)
+	d.para(fmt.Sprintf("Session %s · procedure SHA-256 %s · bench file SHA-256 %s · rendered %s by kermalux %s.", r.Session.ID, r.Session.ProcedureHash, r.Session.BenchHash, Stamp(v.Generated), v.Version), 7)
+
+	if err := f.Error(); err != nil {
+		return fmt.Errorf("render PDF report of session %s: %w", r.Session.ID, err)
+	}
+	if err := f.Output(w); err != nil {
+		return fmt.Errorf("write PDF report of session %s: %w", r.Session.ID, err)
+	}
+	return nil
+}
+
+func abs(x float64) float64 {
+	if x < 0 {
+		return -x
+	}
+	return x
+}
+
+func prefixed(p, s string) string {
+	if s == "" {
+		return ""
+	}
+	return p + s
+}
+
+func certStanding(c Certificate) string {
+	if c.Status == "expired" {
+		return fmt.Sprintf("expired (%d days overdue)", -c.DaysToDue)
+	}
+	return fmt.Sprintf("%s (%d days left)", c.Status, c.DaysToDue)
+}
+
+// trendSentence says a trend's fit and projection in one paragraph.
+func trendSentence(t Trend) string {
+	s := fmt.Sprintf("Baseline %s %s (%s).", Number(t.Baseline), t.Unit, t.BaselineFrom)
+	if t.Fitted {
+		s += fmt.Sprintf(" Rate of change %s %s a year (%+.1f %% of baseline a year).", Number(t.Slope), t.Unit, 100*t.FracPerYear)
+	}
+	s += fmt.Sprintf(" Action level %s of baseline = %s %s", Percent(t.ActionLevel), Number(t.ActionValue), t.Unit)
+	if t.HasCrossing {
+		s += ": projected to be reached on " + Day(t.Crossing)
+	}
+	if t.CrossingNote != "" {
+		s += " (" + t.CrossingNote + ")"
+	}
+	return s + "."
+}
+
+// cautions are the radiation-safety and scope cautions every report
+// carries.
+func cautions(simulated bool) []string {
+	c := []string{
+		"X-rays are dangerous. Everyone present during exposures must wear protection and stay shielded; follow the radiation protection rules of your site.",
+		"This report does not replace the judgement of a qualified medical physicist or radiation safety officer, nor the regulations that apply where the equipment is used. Acceptance is their decision.",
+		"Limits, baselines and action levels here are the ones configured for this session; local requirements take precedence.",
+		"A result is only as good as the meters’ calibration: check the certificates above.",
+	}
+	if simulated {
+		c = append(c, "This session came from the bench simulator: its results are not measurements.")
+	}
+	return c
+}
+
+// pdfCharts lays the charts out two to a row (a wide chart takes a row of
+// its own), keeping each chart with its caption on one page.
+func (d *pdfDoc) pdfCharts(charts []Chart) {
+	f := d.f
+	colW := (d.w - 6) / 2
+	type placed struct {
+		c    Chart
+		w, h float64
+		full bool
+	}
+	var items []placed
+	for _, c := range charts {
+		wmm, hmm := c.Width*ptToMM, c.Height*ptToMM
+		full := wmm > colW
+		if wmm > d.w {
+			wmm, hmm = d.w, hmm*d.w/wmm
+		}
+		items = append(items, placed{c, wmm, hmm, full})
+	}
+	first := true
+	for i := 0; i < len(items); {
+		row := items[i : i+1]
+		if !items[i].full && i+1 < len(items) && !items[i+1].full {
+			row = items[i : i+2]
+		}
+		h := 0.0
+		for _, it := range row {
+			if it.h > h {
+				h = it.h
+			}
+		}
+		need := h + 12
+		if first {
+			need += 16
+		}
+		d.ensure(need)
+		if first {
+			d.heading("Charts")
+			first = false
+		}
+		y := f.GetY()
+		capY := y + h + 1
+		for j, it := range row {
+			x := d.left + float64(j)*(colW+6)
+			name := fmt.Sprintf("chart-%d-%s", i+j, it.c.Name)
+			opts := fpdf.ImageOptions{ImageType: "PNG"}
+			f.RegisterImageOptionsReader(name, opts, bytes.NewReader(it.c.PNG))
+			f.ImageOptions(name, x, y, it.w, it.h, false, opts, 0, "")
+			f.SetXY(x, capY)
+			d.font("", 7)
+			f.SetTextColor(0x5b, 0x67, 0x75)
+			f.MultiCell(it.w, 3.3, pdfText(it.c.Caption), "", "L", false)
+			f.SetTextColor(0x1d, 0x26, 0x30)
+		}
+		f.SetY(capY + 10)
+		i += len(row)
+	}
+}
