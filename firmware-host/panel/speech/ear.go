@@ -80,6 +80,7 @@ func ForEar(text string) string {
 		}
 		return r
 	}, text)
+	text = strings.Join(strings.Fields(text), " ")
 
 	var b strings.Builder
 	last := 0
