@@ -741,6 +741,9 @@ func isRef(t string) bool {
 // the procedure.
 var RefNamespaces = []string{"spec", "baseline", "site", "entered"}
 
+// maxModes bounds max_modes: no intensifier has more field modes.
+const maxModes = 16
+
 func (ps *parse) repeatField(s *Step, f field) {
 	if s.Repeat == nil {
 		s.Repeat = &RepeatSpec{}
@@ -776,8 +779,8 @@ func (ps *parse) repeatField(s *Step, f field) {
 	case "max_modes":
 		t := ps.text(f, "max_modes")
 		var n int
-		if _, err := fmt.Sscanf(t, "%d", &n); err != nil || n < 1 || fmt.Sprint(n) != t {
-			ps.errf(f.vpos, "max_modes: expected a whole number of at least 1, found %q", t)
+		if _, err := fmt.Sscanf(t, "%d", &n); err != nil || n < 1 || n > maxModes || fmt.Sprint(n) != t {
+			ps.errf(f.vpos, "max_modes: expected a whole number from 1 to %d, found %q", maxModes, t)
 			return
 		}
 		r.MaxModes = n

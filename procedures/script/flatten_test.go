@@ -1,0 +1,210 @@
+package script
+
+import (
+	"math"
+	"strings"
+	"testing"
+	"time"
+)
+
+const goodDir = "../../testdata/procedures/good"
+
+func loadGood(t *testing.T, name string) *Procedure {
+	t.Helper()
+	p, ps := CheckFile(goodDir+"/"+name, Env{})
+	if p == nil || len(ps) > 0 {
+		t.Fatalf("%s: %v\n%s", name, ps, list(ps))
+	}
+	return p
+}
+
+// TestFlattenTwoModes walks the two-mode script: the include of the local
+// safety list appears once (the second include says once), each step of
+// the repeated block appears once per listed mode with the mode in its id,
+// text and setup, and references resolve within the same mode.
+func TestFlattenTwoModes(t *testing.T) {
+	p := loadGood(t, "two-modes.yaml")
+	f, err := Flatten(p, Env{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	wantIDs := []string{
+		"safety/list", "dark",
+		"select@30 cm", "light@30 cm", "factor@30 cm", "factor-check@30 cm", "scaling@30 cm",
+		"select@20 cm", "light@20 cm", "factor@20 cm", "factor-check@20 cm", "scaling@20 cm",
+		"compare",
+	}
+	if len(f.Steps) != len(wantIDs) {
+		t.Fatalf("got %d steps, want %d", len(f.Steps), len(wantIDs))
+	}
+	for i, s := range f.Steps {
+		if s.ID != wantIDs[i] || s.Index != i+1 || s.Of != len(wantIDs) {
+			t.Errorf("step %d: id %q index %d of %d; want %q %d of %d", i, s.ID, s.Index, s.Of, wantIDs[i], i+1, len(wantIDs))
+		}
+	}
+	byID := map[string]FlatStep{}
+	for _, s := range f.Steps {
+		byID[s.ID] = s
+	}
+	if got := byID["safety/list"].Step.Items; len(got) != 5 || byID["safety/list"].Procedure != "local-safety" {
+		t.Errorf("safety list: %d items from %q", len(got), byID["safety/list"].Procedure)
+	}
+	sel := byID["select@20 cm"]
+	if sel.Step.Text != "Select the 20 cm field." || sel.Step.Setup.Map()[SetFieldMode] != "20 cm" || sel.FieldMode != "20 cm" {
+		t.Errorf("mode not substituted: %q %v %q", sel.Step.Text, sel.Step.Setup.Map(), sel.FieldMode)
+	}
+	light := byID["light@20 cm"]
+	m := light.Step.Measure
+	// RQA5 is 70 kV with 21 mm Al added (IEC 61267, as in reference.md).
+	setup := light.Step.Setup.Map()
+	if setup[SetTubeVoltage] != "70 kV" || setup[SetAddedFilter] != "21 mm Al" || setup[SetBeamQuality] != "RQA5" || setup[SetFieldMode] != "20 cm" {
+		t.Errorf("light setup = %v", setup)
+	}
+	if m.FieldMode != "20 cm" || m.Precision != 0.02 || m.MaxBeam != 10*time.Second || len(m.Expect) != 1 {
+		t.Errorf("light measure = %+v", m)
+	}
+	if light.MaxBeam() != 10*time.Second {
+		t.Errorf("light max beam = %v", light.MaxBeam())
+	}
+	fc := byID["factor@20 cm"].Step.Compute
+	for role, want := range map[string]string{"luminance": "light@20 cm", "air_kerma_rate": "light@20 cm", "dark_luminance": "dark"} {
+		if in, _ := fc.Input(role); in.Resolved != want {
+			t.Errorf("factor@20 cm %s resolved to %q, want %q", role, in.Resolved, want)
+		}
+	}
+	if in, _ := byID["scaling@20 cm"].Step.Compute.Input("reference"); in.Resolved != "light@30 cm" {
+		t.Errorf("@first resolved to %q", in.Resolved)
+	}
+	if in, _ := byID["compare"].Step.Compute.Input("air_kerma_rate"); in.Resolved != "light@20 cm" {
+		t.Errorf("explicit @mode resolved to %q", in.Resolved)
+	}
+	j := byID["factor-check@30 cm"].Step.Judge
+	if j.Resolved != "factor@30 cm" {
+		t.Errorf("judge resolved to %q", j.Resolved)
+	}
+	// 15 cd/m² per mR/s is 15 / 8.764 cd/m² per µGy/s: 1 mR ↔ 8.764 µGy
+	// (W/e = 33.97 J/C, 1 R = 2.58e-4 C/kg; reference.md gives 8.76).
+	for _, l := range j.Limits {
+		switch l.Kind {
+		case SpecMin:
+			if math.Abs(l.Value-15/8.764) > 1e-3 || l.Unit != ConversionFactorUnit {
+				t.Errorf("min = %v %s, want %v", l.Value, l.Unit, 15/8.764)
+			}
+		case BaselineMin:
+			if l.Value != 0.9 {
+				t.Errorf("baseline_min = %v, want 0.9", l.Value)
+			}
+		}
+	}
+	// The written procedure is not changed by flattening.
+	if p.Steps[3].Repeat.Steps[1].Measure.FieldMode != "" || p.Steps[3].Repeat.Steps[2].Compute.Inputs[0].Resolved != "" {
+		t.Error("flatten changed the written procedure")
+	}
+}
+
+// TestFlattenBenchModes: modes taken from the bench need the bench's list
+// to run, and the bound max_modes to be checked without one.
+func TestFlattenBenchModes(t *testing.T) {
+	src := `name: bench-modes
+title: Modes from the bench
+version: "1"
+beam_budget: 30 s
+meters: [dosimeter]
+defaults:
+  max_beam: 10 s
+  expect: {air_kerma_rate: 0.02 to 20 µGy/s}
+steps:
+  - id: safety
+    kind: safety_checklist
+  - id: modes
+    kind: per_field_mode
+    modes: bench
+    max_modes: 3
+    steps:
+      - id: rate
+        kind: measure
+        text: "{mode} field."
+        read: {dosimeter: air_kerma_rate}
+        beam: on
+`
+	p, err := Parse("bench-modes.yaml", []byte(src))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if ps := Check(p, Env{}); len(ps) != 0 {
+		t.Fatalf("check without bench: %s", list(ps))
+	}
+	if _, err := Flatten(p, Env{}); err == nil || !strings.Contains(err.Error(), "none were given") {
+		t.Errorf("flatten without modes: %v", err)
+	}
+	f, err := Flatten(p, Env{FieldModes: []string{"40 cm", "28 cm"}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(f.Steps) != 3 || f.Steps[2].ID != "rate@28 cm" || f.Steps[2].Step.Text != "28 cm field." {
+		t.Errorf("steps: %+v", f.Steps)
+	}
+	// Four modes exceed max_modes 3 and the 30 s budget (4 × 10 s).
+	ps := Check(p, Env{FieldModes: []string{"a", "b", "c", "d"}})
+	if len(ps) != 2 || !strings.Contains(ps[0].Reason, "beam-on budget of 30 s is exceeded") || !strings.Contains(ps[1].Reason, "more than max_modes 3") {
+		t.Errorf("four modes: %s", list(ps))
+	}
+}
+
+// TestSafetyInInclude: a checklist in an included procedure that runs
+// before the exposure counts; one that runs after does not.
+func TestSafetyInInclude(t *testing.T) {
+	const body = `name: %s
+title: T
+version: "1"
+beam_budget: 10 s
+meters: [photometer]
+defaults: {max_beam: 10 s}
+steps:
+`
+	before := strings.Replace(body, "%s", "before", 1) + `  - id: s
+    kind: include
+    procedure: pre-exposure-safety
+  - id: l
+    kind: measure
+    read: {photometer: luminance}
+    beam: on
+`
+	after := strings.Replace(body, "%s", "after", 1) + `  - id: l
+    kind: measure
+    read: {photometer: luminance}
+    beam: on
+  - id: s
+    kind: include
+    procedure: pre-exposure-safety
+`
+	p, err := Parse("before.yaml", []byte(before))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if ps := Check(p, Env{}); len(ps) != 0 {
+		t.Errorf("checklist included before: %s", list(ps))
+	}
+	p, err = Parse("after.yaml", []byte(after))
+	if err != nil {
+		t.Fatal(err)
+	}
+	ps := Check(p, Env{})
+	if len(ps) != 1 || ps[0].Pos.Line != 8 || !strings.Contains(ps[0].Reason, "comes before the pre-exposure safety checklist (the checklist at builtin/pre-exposure-safety.yaml:") {
+		t.Errorf("checklist included after: %s", list(ps))
+	}
+}
+
+// TestStandardSafetyItems: a safety_checklist without items reads the
+// standard lines.
+func TestStandardSafetyItems(t *testing.T) {
+	src := "name: s\ntitle: S\nversion: \"1\"\nbeam_budget: 0 s\nmeters: []\nsteps:\n  - id: c\n    kind: safety_checklist\n"
+	p, err := Parse("s.yaml", []byte(src))
+	if err != nil {
+		t.Fatal(err)
+	}
+	items := p.Steps[0].Items
+	if len(items) != 4 || !strings.Contains(items[0].Text, "apron") || !strings.Contains(items[3].Text, "qualified") {
+		t.Errorf("items = %+v", items)
+	}
+}
