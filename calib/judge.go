@@ -217,6 +217,11 @@ func Compare(current Dated, baseline float64, earlier []Dated, action *Limit) (T
 	if toward && !t.Beyond {
 		x := (level - alpha) / beta
 		t.Crossing = t0.Add(time.Duration(x * daysPerYear * 24 * float64(time.Hour)))
+		if t.Crossing.Before(current.Day) {
+			// The fitted line is already past the level though the
+			// current value is not: the crossing is now.
+			t.Crossing = current.Day
+		}
 	}
 	return t, nil
 }

@@ -163,19 +163,37 @@ func (r Result) RelExpUnc() float64 { return r.ExpUnc / math.Abs(r.Value) }
 // (normal distribution). A non-integer ν is truncated to the next lower
 // integer, as G.4.1 says; ν below 1 is taken as 1.
 func CoverageFactor(dof, p float64) float64 {
-	if dof <= 0 || math.IsInf(dof, 1) || dof > 1e6 || math.IsNaN(dof) {
-		return distuv.UnitNormal.Quantile(0.5 + p/2)
+	z := normalQuantile(p)
+	if dof <= 0 || math.IsInf(dof, 1) || math.IsNaN(dof) {
+		return z
 	}
 	nu := math.Floor(dof)
 	if nu < 1 {
 		nu = 1
 	}
-	if p == Coverage && nu <= tableMax {
+	if nu > tableMax {
+		// Cornish–Fisher expansion of the t quantile in 1/ν (Abramowitz and
+		// Stegun 26.7.5); beyond ν = 500 its error is below 1e-8.
+		z2 := z * z
+		g1 := (z2 + 1) * z / 4
+		g2 := ((5*z2+16)*z2 + 3) * z / 96
+		return z + g1/nu + g2/(nu*nu)
+	}
+	if p == Coverage {
 		tableOnce.Do(fillTable)
 		return kTable[int(nu)]
 	}
 	return distuv.StudentsT{Mu: 0, Sigma: 1, Nu: nu}.Quantile(0.5 + p/2)
 }
+
+func normalQuantile(p float64) float64 {
+	if p == Coverage {
+		return zCoverage
+	}
+	return distuv.UnitNormal.Quantile(0.5 + p/2)
+}
+
+var zCoverage = distuv.UnitNormal.Quantile(0.5 + Coverage/2)
 
 const tableMax = 500
 

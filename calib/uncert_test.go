@@ -1,0 +1,171 @@
+package calib
+
+import (
+	"math"
+	"testing"
+
+	"gonum.org/v1/gonum/stat"
+	"gonum.org/v1/gonum/stat/distuv"
+)
+
+func TestCoverageFactorStudentT(t *testing.T) {
+	// Two-sided 95 % (t_0.975) critical values, NIST/SEMATECH e-Handbook of
+	// Statistical Methods, 1.3.6.7.2 (critical values of Student's t).
+	for _, tc := range []struct{ nu, want float64 }{
+		{1, 12.706}, {2, 4.303}, {5, 2.571}, {10, 2.228}, {30, 2.042},
+	} {
+		if got := CoverageFactor(tc.nu, 0.95); math.Abs(got-tc.want) > 0.0006 {
+			t.Errorf("t_0.975(%v) = %.4f, want %.3f (NIST/SEMATECH 1.3.6.7.2)", tc.nu, got, tc.want)
+		}
+	}
+	// Coverage factors for p = 95.45 %, JCGM 100:2008 Table G.2.
+	for _, tc := range []struct{ nu, want float64 }{
+		{1, 13.97}, {2, 4.53}, {5, 2.65}, {10, 2.28}, {math.Inf(1), 2.00}, {0, 2.00},
+	} {
+		if got := CoverageFactor(tc.nu, Coverage); math.Abs(got-tc.want) > 0.006 {
+			t.Errorf("k_95.45(%v) = %.4f, want %.2f (GUM Table G.2)", tc.nu, got, tc.want)
+		}
+	}
+	// G.4.1: ν_eff = 5.9 is truncated to 5 (Table G.2: 2.65).
+	if got := CoverageFactor(5.9, Coverage); math.Abs(got-2.65) > 0.006 {
+		t.Errorf("k(5.9) = %v, want k(5) = 2.65", got)
+	}
+}
+
+func TestWelchSatterthwaite(t *testing.T) {
+	// JCGM 100:2008 eq. (G.2b), worked by hand: contributions 1 (ν = 4) and
+	// 1 (ν = 4): ν_eff = (1+1)² / (1/4 + 1/4) = 8.
+	if got := WelchSatterthwaite([]float64{1, 1}, []float64{4, 4}); math.Abs(got-8) > 1e-12 {
+		t.Errorf("ν_eff = %v, want 8", got)
+	}
+	// A type B contribution with infinite ν raises ν_eff: (1+1)²/(1/4) = 16.
+	if got := WelchSatterthwaite([]float64{1, 1}, []float64{4, math.Inf(1)}); math.Abs(got-16) > 1e-12 {
+		t.Errorf("ν_eff = %v, want 16", got)
+	}
+	if got := WelchSatterthwaite([]float64{1}, []float64{0}); !math.IsInf(got, 1) {
+		t.Errorf("all infinite: ν_eff = %v", got)
+	}
+}
+
+func TestRunningMatchesGonum(t *testing.T) {
+	xs := []float64{150.2, 149.1, 151.7, 150.0, 148.8, 150.9, 151.3, 149.6}
+	var r Running
+	for _, x := range xs {
+		r.Add(x)
+	}
+	mean, variance := stat.MeanVariance(xs, nil) // gonum: unbiased (n − 1) variance
+	if math.Abs(r.Mean()-mean) > 1e-12 || math.Abs(r.Variance()-variance) > 1e-9 {
+		t.Errorf("Running = %v, %v; gonum stat.MeanVariance = %v, %v", r.Mean(), r.Variance(), mean, variance)
+	}
+	s := Summarize(xs)
+	if math.Abs(s.SDMean()-math.Sqrt(variance/8)) > 1e-12 {
+		t.Errorf("SDMean = %v", s.SDMean())
+	}
+}
+
+// The GUM's rule for a ratio of uncorrelated inputs (JCGM 100:2008 5.1.6:
+// relative variances add), on a case worked by hand:
+//
+//	L = 150 cd/m², 10 samples, s = 1.5  → u_A,rel = 1.5/√10/150 = 0.0031623
+//	  photometer certificate U = 2 %, k = 2 → u_B,rel = 0.010
+//	K = 1.0 µGy/s, 10 samples, s = 0.02 → u_A,rel = 0.02/√10/1.0 = 0.0063246
+//	  dosimeter certificate U = 2.4 %, k = 2 → u_B,rel = 0.012
+//	G = 150; u_rel² = 1e-5 + 1e-4 + 4e-5 + 1.44e-4 = 2.94e-4 → u_rel = 0.017146
+//	u_c = 2.5720 cd·m⁻²/(µGy·s⁻¹)
+//	ν_eff = (2.94e-4)² / ((1e-5)²/9 + (4e-5)²/9) = 457.6 (G.2b)
+//	k(457) lies between Table G.2's 2.025 (ν = 100) and 2.00 (ν = ∞)
+func TestConversionFactorWorkedRatio(t *testing.T) {
+	lum := Measured{Name: "centre luminance", Unit: "cd/m²", Samples: Summary{N: 10, Mean: 150, SD: 1.5},
+		TypeB: []Component{{Source: "calibration coefficient", Rel: 0.02 / 2, Calibration: true}}, Calibrated: true}
+	ker := Measured{Name: "input air kerma rate", Unit: "µGy/s", Samples: Summary{N: 10, Mean: 1.0, SD: 0.02},
+		TypeB: []Component{{Source: "calibration coefficient", Rel: 0.024 / 2, Calibration: true}}, Calibrated: true}
+	r := ConversionFactor(lum, ker, 0)
+	if math.Abs(r.Value-150) > 1e-9 || math.Abs(r.StdUnc-2.5720) > 5e-4 {
+		t.Errorf("G = %v ± %v, want 150 ± 2.5720", r.Value, r.StdUnc)
+	}
+	if math.Abs(r.DoF-457.6) > 0.5 {
+		t.Errorf("ν_eff = %v, want 457.6", r.DoF)
+	}
+	if r.K < 2.0 || r.K > 2.025 || math.Abs(r.ExpUnc-r.K*r.StdUnc) > 1e-12 {
+		t.Errorf("k = %v, U = %v", r.K, r.ExpUnc)
+	}
+	if len(r.Budget) != 4 || !r.Calibrated {
+		t.Errorf("budget %d rows, calibrated %v", len(r.Budget), r.Calibrated)
+	}
+	var sum2 float64
+	for _, b := range r.Budget {
+		sum2 += b.Contribution * b.Contribution
+	}
+	if math.Abs(math.Sqrt(sum2)*150-r.StdUnc) > 1e-9 {
+		t.Errorf("budget rows do not add up to u_c")
+	}
+}
+
+// Fewer samples with the same scatter give a larger expanded uncertainty
+// (s/√n grows and the Student t factor grows).
+func TestUncertaintyGrowsAsSamplesShrink(t *testing.T) {
+	prev := 0.0
+	for _, n := range []int{100, 30, 10, 5, 3, 2} {
+		lum := Measured{Name: "L", Samples: Summary{N: n, Mean: 150, SD: 3}, Calibrated: true}
+		ker := Measured{Name: "K", Samples: Summary{N: n, Mean: 1, SD: 0.02}, Calibrated: true,
+			TypeB: []Component{{Rel: 0.012, Calibration: true}}}
+		u := ConversionFactor(lum, ker, 0).ExpUnc
+		if u <= prev {
+			t.Errorf("n = %d: U = %v, not larger than %v with more samples", n, u, prev)
+		}
+		prev = u
+	}
+}
+
+func TestRatioPrecisionAgreesWithResult(t *testing.T) {
+	cert := []Component{{Rel: 0.01, Calibration: true}}
+	rp := NewRatioPrecision(cert, []Component{{Rel: 0.012}, {Abs: 0.001 / math.Sqrt(12)}}, 150, 1)
+	lum := []float64{150.4, 149.2, 151.1, 150.3, 148.9, 150.6}
+	ker := []float64{1.004, 0.991, 1.012, 0.998, 1.003, 0.995}
+	if !math.IsInf(rp.RelExpanded(), 1) {
+		t.Error("no samples: want +Inf")
+	}
+	for i := range lum {
+		rp.Add(lum[i], ker[i])
+	}
+	l := Measured{Name: "L", Samples: Summarize(lum), TypeB: cert, Calibrated: true}
+	k := Measured{Name: "K", Samples: Summarize(ker), Calibrated: true,
+		TypeB: []Component{{Rel: 0.012}, ResolutionComponent(0.001)}}
+	r := ConversionFactor(l, k, 0)
+	// The resolution component is taken relative to the reference 1 µGy/s
+	// in the running form and to the mean (≈1.0005) in the result: agree to 1e-4.
+	if got, want := rp.RelExpanded(), r.RelExpUnc(); math.Abs(got-want) > 1e-4*want {
+		t.Errorf("running relative U = %v, result's = %v", got, want)
+	}
+	if math.Abs(rp.Ratio()-r.Value) > 1e-9 {
+		t.Errorf("ratio %v vs %v", rp.Ratio(), r.Value)
+	}
+	allocs := testing.AllocsPerRun(100, func() {
+		rp.Add(150, 1)
+		_ = rp.RelExpanded()
+	})
+	if allocs != 0 {
+		t.Errorf("Add+RelExpanded allocate %v times", allocs)
+	}
+}
+
+func BenchmarkRatioPrecisionAdd(b *testing.B) {
+	rp := NewRatioPrecision([]Component{{Rel: 0.01}}, []Component{{Rel: 0.012}}, 0, 0)
+	b.ReportAllocs()
+	for i := 0; i < b.N; i++ {
+		rp.Add(150+float64(i%7), 1+0.001*float64(i%5))
+		_ = rp.RelExpanded()
+	}
+}
+
+// Above the table the expansion must agree with gonum's Student t quantile.
+func TestCoverageFactorLargeDoF(t *testing.T) {
+	for _, nu := range []float64{501, 800, 5000, 1e5} {
+		for _, p := range []float64{0.95, Coverage, 0.99} {
+			want := distuv.StudentsT{Mu: 0, Sigma: 1, Nu: nu}.Quantile(0.5 + p/2)
+			if got := CoverageFactor(nu, p); math.Abs(got-want) > 1e-7 {
+				t.Errorf("k(%v, %v) = %v, gonum %v", nu, p, got, want)
+			}
+		}
+	}
+}
