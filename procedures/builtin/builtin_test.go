@@ -1,0 +1,171 @@
+package builtin_test
+
+import (
+	"strings"
+	"testing"
+	"time"
+
+	"kermalux/drivers/units"
+	"kermalux/procedures/builtin"
+	"kermalux/procedures/script"
+)
+
+// bench is a bench with both meters, as the built-ins expect.
+var bench = script.Env{Quantities: map[string][]units.Quantity{
+	"dosimeter":  {units.AirKermaRate, units.AirKerma},
+	"photometer": {units.Luminance},
+}}
+
+// TestBuiltinsPass: every built-in passes the checker, alone and on a
+// bench with both meters.
+func TestBuiltinsPass(t *testing.T) {
+	names := builtin.Names()
+	if len(names) < 8 {
+		t.Fatalf("only %d built-ins: %v", len(names), names)
+	}
+	for _, n := range names {
+		p, err := script.LoadBuiltin(n)
+		if err != nil {
+			t.Errorf("%s: %v", n, err)
+			continue
+		}
+		if p.Name != n {
+			t.Errorf("%s: file declares name %q", n, p.Name)
+		}
+		for _, env := range []script.Env{{}, bench} {
+			if ps := script.Check(p, env); len(ps) > 0 {
+				t.Errorf("%s: %d problems:\n%v", n, len(ps), ps)
+			}
+		}
+	}
+}
+
+// TestBuiltinCounts flattens each built-in with n field modes and checks
+// the number of steps against counts made by hand from the scripts:
+// pre-exposure-safety 2 (caution, checklist); air-density 2; meter-checks
+// 12; conversion-factor 6 + 5n (safety 2, air 2, bench, dark; per mode
+// select, kv, light, factor, factor-check); luminance-uniformity 7;
+// contrast-ratio 11; input-kerma-rate 5 + 7n; acceptance 35 + 12n (the
+// once-includes of safety and air density inside the parts are skipped).
+func TestBuiltinCounts(t *testing.T) {
+	counts := map[string]func(n int) int{
+		"pre-exposure-safety":  func(int) int { return 2 },
+		"air-density":          func(int) int { return 2 },
+		"meter-checks":         func(int) int { return 12 },
+		"conversion-factor":    func(n int) int { return 6 + 5*n },
+		"luminance-uniformity": func(int) int { return 7 },
+		"contrast-ratio":       func(int) int { return 11 },
+		"input-kerma-rate":     func(n int) int { return 5 + 7*n },
+		"acceptance":           func(n int) int { return 35 + 12*n },
+	}
+	modes := []string{"36 cm", "25 cm", "17 cm", "12 cm"}
+	for _, n := range builtin.Names() {
+		count, ok := counts[n]
+		if !ok {
+			t.Errorf("built-in %s has no hand count in this test", n)
+			continue
+		}
+		p, err := script.LoadBuiltin(n)
+		if err != nil {
+			t.Fatal(err)
+		}
+		for k := 1; k <= len(modes); k++ {
+			env := bench
+			env.FieldModes = modes[:k]
+			f, err := script.Flatten(p, env)
+			if err != nil {
+				t.Errorf("%s with %d modes: %v", n, k, err)
+				continue
+			}
+			if len(f.Steps) != count(k) {
+				t.Errorf("%s with %d modes: %d steps, want %d", n, k, len(f.Steps), count(k))
+			}
+			seen := map[string]bool{}
+			for _, s := range f.Steps {
+				if seen[s.ID] {
+					t.Errorf("%s: step id %q twice", n, s.ID)
+				}
+				seen[s.ID] = true
+			}
+		}
+	}
+}
+
+// TestAcceptanceShape: in the acceptance sequence the safety checklist
+// comes before any beam step and the temperature before the first
+// measurement; the worst-case beam-on time stays under 4.5 minutes, the
+// point at which the board warns ahead of the five-minute timer of
+// 21 CFR 1020.32(h); uniformity uses nine positions.
+func TestAcceptanceShape(t *testing.T) {
+	p, err := script.LoadBuiltin("acceptance")
+	if err != nil {
+		t.Fatal(err)
+	}
+	env := bench
+	env.FieldModes = []string{"36 cm", "25 cm", "17 cm", "12 cm"}
+	f, err := script.Flatten(p, env)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var safety, temperature, firstMeasure, firstBeam int
+	var beam time.Duration
+	for _, s := range f.Steps {
+		switch {
+		case s.Step.Kind == script.KindSafetyChecklist && safety == 0:
+			safety = s.Index
+		case s.Step.Kind == script.KindEnter && s.Step.Enter.Name == "temperature" && temperature == 0:
+			temperature = s.Index
+		case s.Step.Kind == script.KindMeasure && firstMeasure == 0:
+			firstMeasure = s.Index
+		}
+		if s.MaxBeam() > 0 && firstBeam == 0 {
+			firstBeam = s.Index
+		}
+		beam += s.MaxBeam()
+		if s.ID == "uniformity/spots" && len(s.Step.Measure.Positions) != 9 {
+			t.Errorf("uniformity positions = %d", len(s.Step.Measure.Positions))
+		}
+	}
+	if !(safety > 0 && safety < temperature && temperature < firstMeasure && firstMeasure <= firstBeam) {
+		t.Errorf("order: safety %d, temperature %d, first measure %d, first beam %d", safety, temperature, firstMeasure, firstBeam)
+	}
+	if beam > 270*time.Second || beam > f.BeamBudget {
+		t.Errorf("worst-case beam-on %v (budget %v)", beam, f.BeamBudget)
+	}
+}
+
+// TestSpokenWording keeps the spoken texts short enough to follow with
+// busy hands: at most 16 words a sentence (a house rule).
+func TestSpokenWording(t *testing.T) {
+	for _, n := range builtin.Names() {
+		p, err := script.LoadBuiltin(n)
+		if err != nil {
+			t.Fatal(err)
+		}
+		f, err := script.Flatten(p, script.Env{FieldModes: []string{"36 cm"}})
+		if err != nil {
+			t.Fatal(err)
+		}
+		for _, s := range f.Steps {
+			texts := []string{s.Step.Text}
+			for _, it := range s.Step.Items {
+				texts = append(texts, it.Text)
+			}
+			for _, text := range texts {
+				for _, sentence := range strings.FieldsFunc(text, func(r rune) bool { return r == '.' || r == '?' || r == '!' }) {
+					if w := len(strings.Fields(sentence)); w > 16 {
+						t.Errorf("%s %s: %d words: %q", n, s.ID, w, strings.TrimSpace(sentence))
+					}
+				}
+			}
+		}
+	}
+}
+
+func TestReadUnknown(t *testing.T) {
+	for _, n := range []string{"no-such", "../acceptance", ""} {
+		if _, err := builtin.Read(n); err == nil {
+			t.Errorf("Read(%q) succeeded", n)
+		}
+	}
+}
