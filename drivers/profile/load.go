@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"os"
 	"path/filepath"
+	"reflect"
 	"regexp"
 	"strconv"
 	"strings"
@@ -116,12 +117,12 @@ func Parse(name string, data []byte) (*Profile, error) {
 	if name == "" {
 		name = "profile"
 	}
-	var fp fileProfile
-	if err := yaml.UnmarshalWithOptions(data, &fp, yaml.DisallowUnknownField()); err != nil {
-		return nil, yamlError(name, err)
-	}
 	file, err := parser.ParseBytes(data, 0)
 	if err != nil {
+		return nil, yamlError(name, err)
+	}
+	var fp fileProfile
+	if err := decode(data, &fp); err != nil {
 		return nil, yamlError(name, err)
 	}
 	c := checker{name: name, file: file}
@@ -131,6 +132,17 @@ func Parse(name string, data []byte) (*Profile, error) {
 	}
 	p.Source = name
 	return p, nil
+}
+
+// decode runs the YAML decoder, turning a panic inside it (go-yaml v1.19.2
+// panics on some malformed tagged nodes, found by FuzzParse) into an error.
+func decode(data []byte, fp *fileProfile) (err error) {
+	defer func() {
+		if r := recover(); r != nil {
+			err = fmt.Errorf("the file is not a profile the YAML decoder can read (%v); expected the layout in drivers/profile/FORMAT.md", r)
+		}
+	}()
+	return yaml.UnmarshalWithOptions(data, fp, yaml.DisallowUnknownField())
 }
 
 func yamlError(name string, err error) error {
@@ -144,9 +156,34 @@ func yamlError(name string, err error) error {
 		if errors.As(err, &uf) {
 			e.Msg += " (see drivers/profile/FORMAT.md for the keys)"
 		}
+		var te *yaml.TypeError
+		if errors.As(err, &te) && te.DstType != nil {
+			val := ""
+			if tk := ye.GetToken(); tk != nil {
+				val = fmt.Sprintf("%q: ", tk.Value)
+			}
+			e.Msg = val + "expected " + kindName(te.DstType)
+		}
 		return e
 	}
 	return &Error{File: name, Msg: err.Error()}
+}
+
+func kindName(t reflect.Type) string {
+	for t.Kind() == reflect.Pointer {
+		t = t.Elem()
+	}
+	switch t.Kind() {
+	case reflect.Int, reflect.Int64, reflect.Int32:
+		return "a whole number"
+	case reflect.String:
+		return "text"
+	case reflect.Slice:
+		return "a list"
+	case reflect.Struct, reflect.Map:
+		return "a mapping of keys"
+	}
+	return t.Kind().String()
 }
 
 // checker turns the file form into a Profile, keeping the first error.

@@ -90,7 +90,7 @@ func TestWriteFraming(t *testing.T) {
 
 func TestTimeout(t *testing.T) {
 	d := linetest.New(t, "dev", '\n', nil)
-	p := open(t, d, serialline.Config{ReadTimeout: 80 * time.Millisecond})
+	p := open(t, d, serialline.Config{ReadTimeout: 200 * time.Millisecond})
 	_, err := p.ReadLine(context.Background())
 	if !errors.Is(err, drivers.ErrTimeout) {
 		t.Fatalf("silent device: got %v, want ErrTimeout", err)

@@ -1,0 +1,214 @@
+package profile_test
+
+import (
+	"errors"
+	"flag"
+	"fmt"
+	"os"
+	"strings"
+	"testing"
+
+	"kermalux/drivers"
+	"kermalux/drivers/profile"
+)
+
+var update = flag.Bool("update", false, "rewrite golden files")
+
+// minimal is a small valid profile the error cases below modify.
+const minimal = `name: Test meter
+quantity: air_kerma_rate
+serial:
+  baud: 9600
+  send_line_end: cr
+  receive_line_end: crlf
+reading:
+  mode: polled
+  send: "RD?"
+  reply: '^RD (?P<value>\S+) (?P<unit>\S+) (?P<status>\S+)$'
+units: [uGy/s]
+status:
+  ok: [OK]
+  over_range: [OVR]
+`
+
+func TestMinimalIsValid(t *testing.T) {
+	p, err := profile.Parse("minimal.yaml", []byte(minimal))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if p.Line.Baud != 9600 || p.Mode != profile.Polled || p.Query != "RD?" || p.ReplyTimeout.Seconds() != 1 {
+		t.Errorf("parsed %+v", p)
+	}
+}
+
+// TestMalformed checks that each malformed profile is refused with the
+// file, line and column and what was expected (golden messages).
+func TestMalformed(t *testing.T) {
+	cases := []struct {
+		name string
+		old  string // replaced in minimal ("" appends new)
+		new  string
+	}{
+		{"unknown key", "units:", "unit_list:"},
+		{"unknown nested key", "  baud: 9600", "  baud: 9600\n  speed: fast"},
+		{"wrong type", "baud: 9600", "baud: fast"},
+		{"bad yaml", "  mode: polled", "  mode: [polled"},
+		{"missing quantity", "quantity: air_kerma_rate\n", ""},
+		{"bad quantity", "quantity: air_kerma_rate", "quantity: dose"},
+		{"bad framing", "send_line_end: cr", "send_line_end: semicolon"},
+		{"bad parity", "  baud: 9600", "  baud: 9600\n  parity: often"},
+		{"flow control", "  baud: 9600", "  baud: 9600\n  flow_control: rts-cts"},
+		{"bad mode", "mode: polled", "mode: sometimes"},
+		{"polled without send", "  send: \"RD?\"\n", ""},
+		{"bad regexp", `(?P<value>\S+) (?P<unit>`, `(?P<value>\S+ (?P<unit>`},
+		{"no value group", `(?P<value>\S+)`, `(?P<number>\S+)`},
+		{"unit of wrong quantity", "units: [uGy/s]", "units: [uGy/s, cd/m2]"},
+		{"unknown unit", "units: [uGy/s]", "units: [uSv/h]"},
+		{"duplicate status", "over_range: [OVR]", "over_range: [OK]"},
+		{"bad duration", "  mode: polled", "  mode: polled\n  reply_timeout: soon"},
+		{"bad decimal mark", "units:", "numbers:\n  decimal_mark: ';'\nunits:"},
+		{"setup without send", "reading:", "setup:\n  - expect: OK\nreading:"},
+		{"identify group", "reading:", "identify:\n  send: ID?\n  reply: '(?P<colour>.*)'\nreading:"},
+		{"no unit anywhere", ` (?P<unit>\S+)`, ``},
+		{"list for mapping", "serial:\n  baud: 9600\n  send_line_end: cr\n  receive_line_end: crlf", "serial: [9600]"},
+		{"empty file", minimal, ""},
+		{"streaming without period", "  mode: polled\n  send: \"RD?\"", "  mode: streaming\n  start:\n    send: GO"},
+	}
+	var golden strings.Builder
+	for _, tc := range cases {
+		src := minimal
+		if tc.old == "" {
+			src += tc.new
+		} else {
+			if !strings.Contains(src, tc.old) {
+				t.Fatalf("%s: %q not in the minimal profile", tc.name, tc.old)
+			}
+			src = strings.Replace(src, tc.old, tc.new, 1)
+		}
+		_, err := profile.Parse("bad.yaml", []byte(src))
+		if err == nil {
+			t.Errorf("%s: accepted", tc.name)
+			continue
+		}
+		var pe *profile.Error
+		if !errors.As(err, &pe) || pe.File != "bad.yaml" || pe.Line == 0 {
+			t.Errorf("%s: %v: want a *profile.Error with file and line", tc.name, err)
+		}
+		fmt.Fprintf(&golden, "%s\n\t%s\n", tc.name, strings.ReplaceAll(err.Error(), "\n", "\n\t"))
+	}
+	const file = "testdata/malformed.golden"
+	if *update {
+		if err := os.WriteFile(file, []byte(golden.String()), 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	want, err := os.ReadFile(file)
+	if err != nil {
+		t.Fatalf("%v (run with -update to create it)", err)
+	}
+	if got := golden.String(); got != string(want) {
+		t.Errorf("messages differ from %s (run with -update after checking):\n%s", file, got)
+	}
+}
+
+func TestShippedProfiles(t *testing.T) {
+	kr := load(t, "veltrane-kr40.yaml")
+	// meters.md: 9600 8N1, commands end in CR, replies in CR LF.
+	if l := kr.Line; l.Baud != 9600 || l.DataBits != 8 || l.Parity != "none" || l.StopBits != 1 || l.SendEnd != "cr" || l.ReceiveEnd != "crlf" {
+		t.Errorf("KR-40 line settings %+v", l)
+	}
+	lm := load(t, "orlan-lm9.yaml")
+	// meters.md: 19200 8N1, LF both ways, STREAM 10 → ACK, 10 readings/s.
+	if l := lm.Line; l.Baud != 19200 || l.SendEnd != "lf" || l.ReceiveEnd != "lf" || lm.Start.Send != "STREAM 10" || lm.Start.Expect != "ACK" || lm.Period.Milliseconds() != 100 {
+		t.Errorf("LM-9 settings %+v", lm)
+	}
+}
+
+func TestParseLine(t *testing.T) {
+	kr := load(t, "veltrane-kr40.yaml")
+	lm := load(t, "orlan-lm9.yaml")
+	tests := []struct {
+		p      *profile.Profile
+		line   string
+		value  float64
+		unit   string
+		status drivers.Status
+		err    error
+	}{
+		// Lines as meters.md prints them.
+		{kr, "RD +1.2340E-01 uGy/s OK", 0.1234, "uGy/s", drivers.StatusOK, nil},
+		{kr, "RD -2.0000E-03 mR/min UND", -0.002, "mR/min", drivers.StatusUnderRange, nil},
+		{kr, "RD +5.0000E+02 uGy/s OVR", 500, "uGy/s", drivers.StatusOverRange, nil},
+		{kr, "RD +0.0000E+00 uGy/s ERR", 0, "uGy/s", drivers.StatusFault, nil},
+		{kr, "RD 1.2340E-01 uGy/s OK", 0, "", "", drivers.ErrGarbled},  // sign required
+		{kr, "RD +1.2340 uGy/s OK", 0, "", "", drivers.ErrGarbled},     // exponent required
+		{kr, "RD +1,2340E-01 uGy/s OK", 0, "", "", drivers.ErrGarbled}, // decimal comma
+		{kr, "RD +1.2340E-01 uSv/h OK", 1.234e-1, "uSv/h", drivers.StatusOK, drivers.ErrUnit},
+		{kr, "RD +1.2340E-01 uGy/s", 0, "", "", drivers.ErrGarbled},
+		{kr, "RD +Inf uGy/s OK", 0, "", "", drivers.ErrGarbled},
+		{kr, "RD +0x1p-2 uGy/s OK", 0, "", "", drivers.ErrGarbled},
+		{kr, "RD +1E999 uGy/s OK", 0, "", "", drivers.ErrGarbled},
+		{lm, "L 123,45 cd/m2 S0", 123.45, "cd/m2", drivers.StatusOK, nil},
+		{lm, "L 0,01 fL S2", 0.01, "fL", drivers.StatusUnderRange, nil},
+		{lm, "L 9999 cd/m2 S1", 9999, "cd/m2", drivers.StatusOverRange, nil},
+		{lm, "L 123.45 cd/m2 S0", 0, "", "", drivers.ErrGarbled},
+		{lm, "L 123,45 cd/m2 S5", 0, "", "", drivers.ErrGarbled},
+		{lm, "L 123,45 lux S0", 123.45, "lux", drivers.StatusOK, drivers.ErrUnit},
+		{lm, "", 0, "", "", drivers.ErrGarbled},
+	}
+	for _, tc := range tests {
+		v, u, st, err := tc.p.ParseLine(tc.line)
+		if tc.err != nil {
+			if !errors.Is(err, tc.err) {
+				t.Errorf("%q: got %v %q %s %v, want %v", tc.line, v, u, st, err, tc.err)
+			}
+			continue
+		}
+		if err != nil || v != tc.value || u != tc.unit || st != tc.status {
+			t.Errorf("%q: got %v %q %s %v, want %v %q %s", tc.line, v, u, st, err, tc.value, tc.unit, tc.status)
+		}
+	}
+}
+
+func TestNumbers(t *testing.T) {
+	// Expected values are the decimal numbers as written; the formats are
+	// those of meters.md (sign and exponent; decimal comma) and the
+	// common European and English thousands groupings (common practice).
+	eu := profile.Numbers{DecimalMark: ',', ThousandsMark: '.', Sign: profile.SignOptional, Exponent: profile.ExponentNone}
+	en := profile.Numbers{DecimalMark: '.', ThousandsMark: ',', Sign: profile.SignOptional, Exponent: profile.ExponentOptional}
+	sp := profile.Numbers{DecimalMark: '.', ThousandsMark: ' ', Sign: profile.SignNone, Exponent: profile.ExponentNone}
+	tests := []struct {
+		n    profile.Numbers
+		s    string
+		want float64
+		ok   bool
+	}{
+		{eu, "1.234,5", 1234.5, true},
+		{eu, "12.345.678,9", 12345678.9, true},
+		{eu, "123,45", 123.45, true},
+		{eu, "-0,5", -0.5, true},
+		{eu, "1.23,4", 0, false}, // a group of two
+		{eu, "1234.5", 0, false}, // a group of one after the mark
+		{eu, "1,2E3", 0, false},  // no exponent in this format
+		{eu, ",5", 0.5, true},    // leading decimal mark
+		{eu, "5,", 5, true},      // trailing decimal mark
+		{eu, ".123", 0, false},   // thousands mark first
+		{en, "1,234.5", 1234.5, true},
+		{en, "1.5e-3", 0.0015, true},
+		{en, "+2E+2", 200, true},
+		{en, "2E", 0, false},
+		{en, "1_000", 0, false},
+		{en, "", 0, false},
+		{en, "-", 0, false},
+		{en, "nan", 0, false},
+		{sp, "1 000 000", 1e6, true},
+		{sp, "-1", 0, false},
+		{sp, "1  000", 0, false},
+	}
+	for _, tc := range tests {
+		got, err := tc.n.Parse(tc.s)
+		if (err == nil) != tc.ok || (tc.ok && got != tc.want) {
+			t.Errorf("%+q in %+v: got %v, %v; want %v ok=%v", tc.s, tc.n, got, err, tc.want, tc.ok)
+		}
+	}
+}
