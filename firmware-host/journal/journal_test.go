@@ -16,6 +16,7 @@ import (
 
 	"kermalux/drivers/clock"
 	"kermalux/firmware-host/journal/entry"
+	"kermalux/firmware-host/journal/journaltest"
 )
 
 func openTest(t *testing.T, dir string) *Journal {
@@ -32,18 +33,18 @@ func TestAppendVerifyRoundTrip(t *testing.T) {
 	ctx := context.Background()
 	dir := t.TempDir()
 	j := openTest(t, dir)
-	done, err := j.Begin(ctx, demoSession(1))
+	done, err := j.Begin(ctx, journaltest.Session(1))
 	if err != nil {
 		t.Fatal(err)
 	}
-	if err := writeDemo(ctx, j, done, 4, true, nil); err != nil {
+	if err := journaltest.WriteSession(ctx, j, done, 4, true, nil); err != nil {
 		t.Fatal(err)
 	}
-	open, err := j.Begin(ctx, demoSession(2))
+	open, err := j.Begin(ctx, journaltest.Session(2))
 	if err != nil {
 		t.Fatal(err)
 	}
-	if err := writeDemo(ctx, j, open, 2, false, nil); err != nil {
+	if err := journaltest.WriteSession(ctx, j, open, 2, false, nil); err != nil {
 		t.Fatal(err)
 	}
 	if _, err := j.Append(ctx, done, entry.KindEvent, entry.Event{Name: "late"}); !errors.Is(err, ErrSessionEnded) {
@@ -197,8 +198,8 @@ func TestVerifyFindsTampering(t *testing.T) {
 	ctx := context.Background()
 	dir := t.TempDir()
 	j := openTest(t, dir)
-	sid, _ := j.Begin(ctx, demoSession(3))
-	if err := writeDemo(ctx, j, sid, 3, true, nil); err != nil {
+	sid, _ := j.Begin(ctx, journaltest.Session(3))
+	if err := journaltest.WriteSession(ctx, j, sid, 3, true, nil); err != nil {
 		t.Fatal(err)
 	}
 	j.Close() // checkpoints the WAL into the main file

@@ -15,6 +15,7 @@ import (
 	"time"
 
 	"kermalux/firmware-host/journal/entry"
+	"kermalux/firmware-host/journal/journaltest"
 )
 
 const childEnv = "KERMALUX_JOURNAL_KILL_CHILD"
@@ -53,19 +54,19 @@ func runChild(dir string) int {
 			return 3
 		}
 		report(u.ID)(seq, entry.KindStep)
-		if err := writeDemo(ctx, j, u.ID, 3, true, report(u.ID)); err != nil {
+		if err := journaltest.WriteSession(ctx, j, u.ID, 3, true, report(u.ID)); err != nil {
 			fmt.Fprintln(os.Stderr, err)
 			return 3
 		}
 	}
 	for n := 0; ; n++ {
-		id, err := j.Begin(ctx, demoSession(n))
+		id, err := j.Begin(ctx, journaltest.Session(n))
 		if err != nil {
 			fmt.Fprintln(os.Stderr, err)
 			return 3
 		}
 		report(id)(1, entry.KindSession)
-		if err := writeDemo(ctx, j, id, 3, true, report(id)); err != nil {
+		if err := journaltest.WriteSession(ctx, j, id, 3, true, report(id)); err != nil {
 			fmt.Fprintln(os.Stderr, err)
 			return 3
 		}

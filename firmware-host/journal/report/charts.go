@@ -64,7 +64,7 @@ func sansStyle(size vg.Length) font.Font {
 }
 
 // pngScale is the size of a chart's PNG relative to its SVG.
-const pngScale = 0.68
+const pngScale = 0.85
 
 var svgSize = regexp.MustCompile(`^<svg width="([0-9.]+)pt" height="([0-9.]+)pt"`)
 
@@ -89,7 +89,7 @@ func render(p *plot.Plot, name, title, caption string, w, h vg.Length) (Chart, e
 	// kept at the same point size, reads well at print size.
 	pw, ph := w*pngScale, h*pngScale
 	c.Width, c.Height = pw.Points(), ph.Points()
-	ic := vgimg.NewWith(vgimg.UseWH(pw, ph), vgimg.UseDPI(220), vgimg.UseBackgroundColor(color.White))
+	ic := vgimg.NewWith(vgimg.UseWH(pw, ph), vgimg.UseDPI(150), vgimg.UseBackgroundColor(color.White))
 	p.Draw(draw.New(ic))
 	var pb bytes.Buffer
 	if _, err := (vgimg.PngCanvas{Canvas: ic}).WriteTo(&pb); err != nil {
@@ -144,7 +144,7 @@ func circle(r float64, n int) plotter.XYs {
 // circle, each position where it was read, coloured and labelled by its
 // fraction of the centre luminance.
 func MapChart(m LuminanceMap) (Chart, error) {
-	title := "Luminance over the output face"
+	title := "Output face luminance"
 	if m.FieldMode != "" {
 		title += ", " + m.FieldMode + " field"
 	}
@@ -238,7 +238,7 @@ func MapChart(m LuminanceMap) (Chart, error) {
 	}
 	p.Add(dirs)
 	caption := "Each disc is a photometer position; its label is the luminance there as a percentage of the centre. Dashed rings: 0.5 and 0.9 of the output radius."
-	return render(p, "map-"+slug(m.FieldMode), title, caption, 4*vg.Inch, 4.2*vg.Inch)
+	return render(p, "map-"+slug(m.FieldMode), title, caption, 3.5*vg.Inch, 3.7*vg.Inch)
 }
 
 // ProfileChart draws the radial luminance profile: the mean fraction of

@@ -552,9 +552,13 @@ func (d *pdfDoc) pdfCharts(charts []Chart) {
 	var items []placed
 	for _, c := range charts {
 		wmm, hmm := c.Width*ptToMM, c.Height*ptToMM
-		full := wmm > colW
-		if wmm > d.w {
-			wmm, hmm = d.w, hmm*d.w/wmm
+		full := wmm > colW*1.3
+		limit := colW
+		if full {
+			limit = d.w
+		}
+		if wmm > limit {
+			wmm, hmm = limit, hmm*limit/wmm
 		}
 		items = append(items, placed{c, wmm, hmm, full})
 	}

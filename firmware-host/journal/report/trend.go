@@ -9,6 +9,7 @@ import (
 
 	"gonum.org/v1/gonum/stat"
 
+	"kermalux/calib"
 	"kermalux/firmware-host/journal/entry"
 )
 
@@ -76,23 +77,26 @@ type Trend struct {
 	CrossingNote string
 }
 
-// yearDays is the mean Gregorian year, for converting dates to years.
-const yearDays = 365.2425
+// yearDays is the year used to turn dates into years (the Julian year,
+// as calib does for its rates).
+const yearDays = 365.25
 
 // Fit builds the trends of quantity (e.g. "conversion_factor") from a
 // history, one per field mode (a history without field modes gives one
 // trend). actionLevel is a fraction of baseline (≤ 0 means
 // DefaultActionLevel).
 //
-// The line is an unweighted least-squares fit of value against time in
-// years (gonum stat.LinearRegression), the annual rate is its slope, and
-// the projected date is where the line reaches actionLevel × baseline:
+// The rate and the projected date come from calib.Compare: an unweighted
+// least-squares line of value against time in years through all sessions
+// (the line through two when there are two); the projected date is where
+// that line reaches actionLevel × baseline:
 //
 //	t_cross = (A·B − α) / β   years after the first session
 //
 // with α the intercept, β the slope, A the action level and B the baseline.
 // The baseline is the one recorded with the results (the latest point that
-// carries one) or else the first session's value.
+// carries one) or else the first session's value. For non-uniformity the
+// action level is a ceiling; for everything else a floor.
 func Fit(serial, quantity string, history []HistoryPoint, actionLevel float64) []Trend {
 	if actionLevel <= 0 {
 		actionLevel = DefaultActionLevel
@@ -128,12 +132,12 @@ func fitOne(serial, quantity, mode string, hs []HistoryPoint, actionLevel float6
 	if t.Baseline == 0 && len(hs) > 0 {
 		t.Baseline, t.BaselineFrom = hs[0].Result.Value, "first session"
 	}
-	xs := make([]float64, 0, len(hs))
-	ys := make([]float64, 0, len(hs))
 	if len(hs) > 0 {
 		t.Origin = hs[0].Date
 		t.Unit = hs[0].Result.Unit
 	}
+	var xs, ys []float64
+	var dated []calib.Dated
 	for _, h := range hs {
 		p := TrendPoint{Session: h.Session, Date: h.Date, Site: h.Site, Room: h.Room,
 			Value: h.Result.Value, ExpUnc: h.Result.ExpUnc, K: h.Result.K, Verdict: h.Result.Verdict,
@@ -144,36 +148,39 @@ func fitOne(serial, quantity, mode string, hs []HistoryPoint, actionLevel float6
 		t.Points = append(t.Points, p)
 		xs = append(xs, years(h.Date.Sub(t.Origin)))
 		ys = append(ys, h.Result.Value)
+		dated = append(dated, calib.Dated{Day: h.Date, Value: h.Result.Value})
 	}
 	t.ActionValue = actionLevel * t.Baseline
-	if len(xs) < 2 || xs[len(xs)-1] == xs[0] {
+	if len(hs) < 2 || xs[len(xs)-1] == xs[0] {
 		t.CrossingNote = "one session only: no rate of change yet"
 		return t
 	}
-	t.Intercept, t.Slope = stat.LinearRegression(xs, ys, nil, false)
-	t.Fitted = true
-	if t.Baseline != 0 {
-		t.FracPerYear = t.Slope / t.Baseline
+	bound := calib.AtLeast
+	if quantity == "non_uniformity" {
+		bound = calib.AtMost
 	}
-	last := t.Points[len(t.Points)-1]
-	lastX := years(last.Date.Sub(t.Origin))
-	toGo := t.ActionValue - (t.Intercept + t.Slope*lastX)
+	last := len(dated) - 1
+	ct, err := calib.Compare(dated[last], t.Baseline, dated[:last], &calib.Limit{Kind: calib.KindBaseline, Bound: bound, Value: actionLevel})
+	if err != nil || math.IsNaN(ct.AnnualRate) {
+		t.CrossingNote = "no rate of change"
+		if err != nil {
+			t.CrossingNote += ": " + err.Error()
+		}
+		return t
+	}
+	t.Fitted = true
+	t.FracPerYear = ct.AnnualRate
+	t.Slope = ct.AnnualRate * t.Baseline
+	// The least-squares line (and the line through two points) passes
+	// through the centroid of the points: that fixes the intercept.
+	t.Intercept = stat.Mean(ys, nil) - t.Slope*stat.Mean(xs, nil)
 	switch {
-	case t.Slope == 0:
-		t.CrossingNote = "no change: no crossing projected"
-	case toGo != 0 && (toGo > 0) != (t.Slope > 0):
+	case ct.Beyond:
+		t.CrossingNote = "the latest value is already past the action level"
+	case ct.Crossing.IsZero():
 		t.CrossingNote = "not moving toward the action level: no crossing projected"
 	default:
-		tc := (t.ActionValue - t.Intercept) / t.Slope
-		if math.IsNaN(tc) || math.IsInf(tc, 0) || tc > 1000 {
-			t.CrossingNote = "no crossing within 1000 years"
-			return t
-		}
-		t.Crossing = t.Origin.Add(time.Duration(tc * yearDays * 24 * float64(time.Hour)))
-		t.HasCrossing = true
-		if !t.Crossing.After(last.Date) {
-			t.CrossingNote = "the fitted line is already past the action level"
-		}
+		t.Crossing, t.HasCrossing = ct.Crossing, true
 	}
 	return t
 }

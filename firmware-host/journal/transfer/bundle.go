@@ -145,6 +145,7 @@ type Bundle struct {
 func ReadBundle(r io.Reader, name string) (*Bundle, error) {
 	br := bufio.NewReaderSize(r, 1<<20)
 	lineNo := 0
+	cut := false // the last line read had no newline
 	next := func() ([]byte, error) {
 		var buf []byte
 		for {
@@ -160,6 +161,7 @@ func ReadBundle(r io.Reader, name string) (*Bundle, error) {
 				return nil, err
 			}
 			lineNo++
+			cut = !bytes.HasSuffix(buf, []byte{'\n'})
 			return bytes.TrimRight(buf, "\r\n"), nil
 		}
 	}
@@ -188,6 +190,9 @@ func ReadBundle(r io.Reader, name string) (*Bundle, error) {
 		if bytes.HasPrefix(line, []byte(`{"end":`)) {
 			var e bundleEnd
 			if err := json.Unmarshal(line, &e); err != nil {
+				if cut {
+					return nil, fmt.Errorf("%s line %d: the closing line is cut short: the file is truncated (copy it again)", name, lineNo)
+				}
 				return nil, fmt.Errorf("%s line %d: closing line: %v", name, lineNo, err)
 			}
 			if e.End.Batches != len(sigs) || e.End.Records != bun.Records {
@@ -205,6 +210,9 @@ func ReadBundle(r io.Reader, name string) (*Bundle, error) {
 		}
 		b, err := DecodeBatch(line)
 		if err != nil {
+			if cut {
+				return nil, fmt.Errorf("%s line %d is cut short: the file is truncated (copy it again): %w", name, lineNo, err)
+			}
 			return nil, fmt.Errorf("%s line %d: %w", name, lineNo, err)
 		}
 		if b.Board != h.Board {

@@ -1,4 +1,6 @@
-package journal
+// Package journaltest writes demo-like sessions (invented data) into a
+// journal for tests of the journal, the sync, the store and the report.
+package journaltest
 
 import (
 	"context"
@@ -8,8 +10,8 @@ import (
 	"kermalux/firmware-host/journal/entry"
 )
 
-// demoSession is an invented session header (demo data only).
-func demoSession(n int) entry.Session {
+// Session returns the n-th invented session header (demo data only).
+func Session(n int) entry.Session {
 	return entry.Session{
 		Site: "Harbourview Clinic", Room: fmt.Sprintf("Fluoro %d", 1+n%3),
 		IntensifierModel: "Lumora XI-23", IntensifierSerial: fmt.Sprintf("LX23-%04d", 100+n%7),
@@ -17,11 +19,16 @@ func demoSession(n int) entry.Session {
 	}
 }
 
-// writeDemo appends a demo-like sequence of records to session (steps,
+// Appender is the journal's Append.
+type Appender interface {
+	Append(ctx context.Context, session string, kind entry.Kind, payload any) (int64, error)
+}
+
+// WriteSession appends a demo-like sequence of records to session (steps,
 // prompts, acknowledgements, values, beam events, readings, a result),
 // calling ack after each acknowledged Append. It ends the session when
 // end is true.
-func writeDemo(ctx context.Context, j *Journal, session string, readings int, end bool, ack func(seq int64, k entry.Kind)) error {
+func WriteSession(ctx context.Context, j Appender, session string, readings int, end bool, ack func(seq int64, k entry.Kind)) error {
 	app := func(k entry.Kind, p any) error {
 		seq, err := j.Append(ctx, session, k, p)
 		if err != nil {
@@ -74,4 +81,14 @@ func writeDemo(ctx context.Context, j *Journal, session string, readings int, en
 		return app(entry.KindSessionEnd, entry.SessionEnd{Finished: time.Date(2026, 3, 4, 11, 0, 0, 0, time.UTC), Steps: len(steps), Outcome: "complete"})
 	}
 	return nil
+}
+
+// Records is how many records WriteSession writes (plus the session record
+// Begin writes): 1 + 2 steps × (8 + readings) + 1 if ended.
+func Records(readings int, end bool) int64 {
+	n := int64(1 + 2*(8+readings))
+	if end {
+		n++
+	}
+	return n
 }

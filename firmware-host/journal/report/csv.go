@@ -1,0 +1,94 @@
+package report
+
+import (
+	"encoding/csv"
+	"fmt"
+	"io"
+	"strconv"
+	"strings"
+	"time"
+)
+
+func g(v float64) string { return strconv.FormatFloat(v, 'g', -1, 64) }
+
+// WriteResultsCSV writes one row per result, for spreadsheets: numbers in
+// full precision with a dot as decimal separator, times in RFC 3339.
+func (r *Report) WriteResultsCSV(w io.Writer) error {
+	cw := csv.NewWriter(w)
+	head := []string{"session", "site", "room", "intensifier_serial", "started", "step", "field_mode", "quantity", "value", "unit",
+		"standard_uncertainty", "expanded_uncertainty", "coverage_factor", "verdict", "decided_by", "calibrated", "baseline", "baseline_fraction", "flags", "review"}
+	if err := cw.Write(head); err != nil {
+		return fmt.Errorf("results CSV: %w", err)
+	}
+	s := r.Session
+	for _, res := range r.Results {
+		row := []string{s.ID, s.Site, s.Room, s.IntensifierSerial, s.Started.Format(time.RFC3339), strconv.Itoa(res.Step), res.FieldMode, res.Quantity,
+			g(res.Value), res.Unit, g(res.StdUnc), g(res.ExpUnc), g(res.K), res.Verdict, res.DecidedBy, strconv.FormatBool(res.Calibrated),
+			optional(res.Baseline), optional(res.BaselineFrac), strings.Join(res.Flags, "; "), res.Review}
+		if err := cw.Write(row); err != nil {
+			return fmt.Errorf("results CSV: %w", err)
+		}
+	}
+	cw.Flush()
+	if err := cw.Error(); err != nil {
+		return fmt.Errorf("results CSV: %w", err)
+	}
+	return nil
+}
+
+// WriteReadingsCSV writes one row per reading with its raw line, raw
+// value, every correction in order and the corrected value.
+func (r *Report) WriteReadingsCSV(w io.Writer) error {
+	cw := csv.NewWriter(w)
+	head := []string{"session", "seq", "wall", "mono_ns", "boot_id", "step", "step_id", "field_mode", "position", "meter", "quantity",
+		"raw", "raw_value", "raw_unit", "corrections", "value", "unit", "status", "used", "calibrated", "certificate", "flags"}
+	if err := cw.Write(head); err != nil {
+		return fmt.Errorf("readings CSV: %w", err)
+	}
+	for _, rd := range r.Readings {
+		var cs []string
+		for _, c := range rd.Corrections {
+			cs = append(cs, fmt.Sprintf("%s*%s%+g", c.Name, g(c.Factor), c.Offset))
+		}
+		row := []string{r.Session.ID, strconv.FormatInt(rd.Seq, 10), rd.Wall.Format(time.RFC3339Nano), strconv.FormatInt(int64(rd.Mono), 10), rd.BootID,
+			strconv.Itoa(rd.Step), rd.StepID, rd.FieldMode, rd.Position, rd.Meter, rd.Quantity, rd.Raw, g(rd.RawValue), rd.RawUnit,
+			strings.Join(cs, "; "), g(rd.Value), rd.Unit, rd.Status, strconv.FormatBool(rd.Used), strconv.FormatBool(rd.Calibrated), rd.Certificate,
+			strings.Join(rd.Flags, "; ")}
+		if err := cw.Write(row); err != nil {
+			return fmt.Errorf("readings CSV: %w", err)
+		}
+	}
+	cw.Flush()
+	if err := cw.Error(); err != nil {
+		return fmt.Errorf("readings CSV: %w", err)
+	}
+	return nil
+}
+
+// WriteTrendCSV writes one row per session of each trend.
+func WriteTrendCSV(w io.Writer, trends []Trend) error {
+	cw := csv.NewWriter(w)
+	if err := cw.Write([]string{"serial", "quantity", "field_mode", "session", "date", "site", "room", "value", "unit", "expanded_uncertainty", "coverage_factor", "baseline_fraction", "verdict"}); err != nil {
+		return fmt.Errorf("trend CSV: %w", err)
+	}
+	for _, t := range trends {
+		for _, p := range t.Points {
+			if err := cw.Write([]string{t.Serial, t.Quantity, t.FieldMode, p.Session, p.Date.Format(time.RFC3339), p.Site, p.Room, g(p.Value), t.Unit,
+				g(p.ExpUnc), g(p.K), g(p.Fraction), p.Verdict}); err != nil {
+				return fmt.Errorf("trend CSV: %w", err)
+			}
+		}
+	}
+	cw.Flush()
+	if err := cw.Error(); err != nil {
+		return fmt.Errorf("trend CSV: %w", err)
+	}
+	return nil
+}
+
+func optional(v float64) string {
+	if v == 0 {
+		return ""
+	}
+	return g(v)
+}
