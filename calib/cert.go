@@ -3,9 +3,11 @@ package calib
 import (
 	"crypto/sha256"
 	"encoding/hex"
+	"errors"
 	"fmt"
 	"math"
 	"os"
+	"path/filepath"
 	"sort"
 	"strings"
 	"time"
@@ -329,4 +331,57 @@ func (c *Certificate) ValidOn(day time.Time) Validity {
 func dateOnly(t time.Time) time.Time {
 	y, m, d := t.Date()
 	return time.Date(y, m, d, 0, 0, 0, 0, time.UTC)
+}
+
+// LoadDir reads every certificate file (*.yaml, *.yml) in dir, in name
+// order. A file that does not parse is reported in the joined error and
+// skipped; the others are still returned.
+func LoadDir(dir string) ([]*Certificate, error) {
+	entries, err := os.ReadDir(dir)
+	if err != nil {
+		return nil, fmt.Errorf("reading certificate directory: %w", err)
+	}
+	var out []*Certificate
+	var errs []error
+	for _, e := range entries {
+		n := e.Name()
+		if e.IsDir() || !(strings.HasSuffix(n, ".yaml") || strings.HasSuffix(n, ".yml")) {
+			continue
+		}
+		c, err := LoadCertificate(filepath.Join(dir, n))
+		if err != nil {
+			errs = append(errs, err)
+			continue
+		}
+		out = append(out, c)
+	}
+	return out, errors.Join(errs...)
+}
+
+// Pick returns the certificate of the meter with that serial number to use
+// on day: the most recently calibrated one that is valid then; when none
+// is valid, the most recent one (so its expiry can be reported); nil when
+// there is none for the serial. Serials compare without case and spaces.
+func Pick(certs []*Certificate, serial string, day time.Time) *Certificate {
+	var best, latest *Certificate
+	for _, c := range certs {
+		if !sameSerial(c.Serial, serial) {
+			continue
+		}
+		if latest == nil || c.Calibrated.After(latest.Calibrated) {
+			latest = c
+		}
+		if c.ValidOn(day).Valid && (best == nil || c.Calibrated.After(best.Calibrated)) {
+			best = c
+		}
+	}
+	if best != nil {
+		return best
+	}
+	return latest
+}
+
+func sameSerial(a, b string) bool {
+	norm := func(s string) string { return strings.ToUpper(strings.Join(strings.Fields(s), "")) }
+	return norm(a) != "" && norm(a) == norm(b)
 }

@@ -256,3 +256,36 @@ func FuzzParseCertificate(f *testing.F) {
 		}
 	})
 }
+
+func TestLoadDirAndPick(t *testing.T) {
+	certs, err := LoadDir(certDir)
+	if err != nil || len(certs) < 4 {
+		t.Fatalf("%d certificates, %v", len(certs), err)
+	}
+	// Two certificates for KR40-1187: the current one is picked while
+	// valid, the newer one even when both are out of date.
+	if c := Pick(certs, "kr40-1187", day("2026-12-02")); c == nil || c.Number != "NRML-26-0318" {
+		t.Errorf("picked %v", c)
+	}
+	if c := Pick(certs, "KR40-1187", day("2024-06-01")); c == nil || c.Number != "NRML-24-0291" {
+		t.Errorf("in 2024 picked %v", c)
+	}
+	if c := Pick(certs, "KR40-1187", day("2028-01-01")); c == nil || c.Number != "NRML-26-0318" || c.ValidOn(day("2028-01-01")).Valid {
+		t.Errorf("in 2028 picked %v", c)
+	}
+	if c := Pick(certs, "XX-1", day("2026-12-02")); c != nil {
+		t.Errorf("unknown serial picked %v", c)
+	}
+	// A broken file is reported with its name; the good ones still load.
+	dir := t.TempDir()
+	if err := os.WriteFile(filepath.Join(dir, "good.yaml"), []byte(valid), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	if err := os.WriteFile(filepath.Join(dir, "broken.yaml"), []byte("certificate: [\n"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	certs, err = LoadDir(dir)
+	if len(certs) != 1 || err == nil || !strings.Contains(err.Error(), "broken.yaml") {
+		t.Errorf("%d certificates, %v", len(certs), err)
+	}
+}

@@ -8,6 +8,7 @@ import (
 
 	"gonum.org/v1/gonum/interp"
 
+	"kermalux/drivers"
 	"kermalux/drivers/units"
 )
 
@@ -91,6 +92,10 @@ func FlagTexts(flags []Flag) []string {
 type Air struct {
 	Temperature float64
 	Pressure    float64
+	// Standard uncertainties of the thermometer and barometer readings
+	// (°C, kPa); 0 = not stated, no budget row.
+	TemperatureUnc float64
+	PressureUnc    float64
 }
 
 // Plausible ranges of room air for k_TP; a value outside is treated as not
@@ -110,6 +115,9 @@ type Geometry struct {
 	OnFace          bool    // chamber against the input face: its reading includes backscatter
 	Backscatter     float64 // backscatter factor B entered for this set-up; 0: use the certificate's
 	GridRemoved     bool    // anti-scatter grid removed (recorded, IEC 61262-2 measures without it)
+	// DistanceUnc is the standard uncertainty of each distance, mm; 0 = not
+	// stated, no budget row.
+	DistanceUnc float64
 }
 
 // Setup is everything a reading's corrections depend on besides its value.
@@ -130,6 +138,24 @@ type Corrected struct {
 	Calibrated  bool   // every correction could be applied with an in-date certificate
 	Flags       []Flag // why not calibrated (and notes)
 	Certificate string // certificate number used, if any
+	// TypeB are the type B uncertainty components of the corrected value:
+	// the certificate's (coefficient, resolution scaled by the corrections'
+	// factors) and those of the corrections (air density, distances).
+	TypeB []Component
+}
+
+// RelStdUncB is the relative standard uncertainty of the type B
+// components together (root sum of squares), for a stopping rule.
+func (c Corrected) RelStdUncB() float64 {
+	var s float64
+	for _, b := range c.TypeB {
+		r := b.Rel
+		if b.Abs != 0 && c.Value != 0 {
+			r += b.Abs / math.Abs(c.Value)
+		}
+		s += r * r
+	}
+	return math.Sqrt(s)
 }
 
 // OutsideTableError says a beam quality lies outside a certificate's table.
@@ -275,6 +301,7 @@ func Correct(value float64, q units.Quantity, s Setup) Corrected {
 				note = fmt.Sprintf("certificate %s, interpolated at %s %g", c.Number, c.Along, c.axisValue(fq))
 			}
 			apply(Applied{Name: CorrCoefficient, Factor: n, Note: note})
+			out.TypeB = append(out.TypeB, Component{Source: "calibration coefficient, certificate " + c.Number, Rel: c.RelStdUnc(), Calibration: true})
 		case isOutside(err):
 			flag(FlagOutsideQuality, "%v: reading not calibrated", err)
 		default:
@@ -282,6 +309,7 @@ func Correct(value float64, q units.Quantity, s Setup) Corrected {
 		}
 	}
 	if q != units.AirKermaRate && q != units.AirKerma {
+		out.addResolution(c)
 		return out
 	}
 	if c != nil && c.ForDosimeter() && c.Vented {
@@ -298,6 +326,13 @@ func Correct(value float64, q units.Quantity, s Setup) Corrected {
 		default:
 			k := KTP(a.Temperature, a.Pressure, c.RefTemperature, c.RefPressure)
 			apply(Applied{Name: CorrKTP, Factor: k, Note: fmt.Sprintf("T %.1f °C, P %.2f kPa; reference %.1f °C, %.3f kPa", a.Temperature, a.Pressure, c.RefTemperature, c.RefPressure)})
+			// Relative sensitivities of k_TP (GUM 5.1.3): 1/(273.15+T) per °C, −1/P per kPa.
+			if a.TemperatureUnc > 0 {
+				out.TypeB = append(out.TypeB, Component{Source: "room temperature (k_TP)", Rel: a.TemperatureUnc / (273.15 + a.Temperature)})
+			}
+			if a.PressureUnc > 0 {
+				out.TypeB = append(out.TypeB, Component{Source: "air pressure (k_TP)", Rel: a.PressureUnc / a.Pressure})
+			}
 		}
 	}
 	g := s.Geometry
@@ -322,9 +357,47 @@ func Correct(value float64, q units.Quantity, s Setup) Corrected {
 			flag(FlagGeometry, "distances from the focal spot must be positive (chamber %g mm, input %g mm): reading not calibrated", dc, di)
 		case dc != di:
 			apply(Applied{Name: CorrInverseSquare, Factor: InverseSquare(dc, di), Note: fmt.Sprintf("chamber at %g mm, input plane at %g mm from the focal spot; %s", dc, di, gridWords(g.GridRemoved))})
+			// (d_c/d_i)²: relative sensitivity 2 to each distance (GUM 5.1.6).
+			if u := g.DistanceUnc; u > 0 {
+				out.TypeB = append(out.TypeB, Component{Source: "distances (inverse square)", Rel: 2 * math.Hypot(u/dc, u/di)})
+			}
 		}
 	}
+	out.addResolution(c)
 	return out
+}
+
+// addResolution adds the display resolution of the certificate, carried
+// through the corrections' factors into the corrected value's unit.
+func (out *Corrected) addResolution(c *Certificate) {
+	if c == nil || c.Resolution <= 0 {
+		return
+	}
+	f := 1.0
+	for _, a := range out.Applied {
+		f *= a.Factor
+	}
+	r := ResolutionComponent(c.Resolution * math.Abs(f))
+	r.Source = "display resolution, " + c.Model
+	out.TypeB = append(out.TypeB, r)
+}
+
+// CorrectReading corrects a meter reading; a reading the meter reported
+// as over or under range or faulty is flagged and never calibrated.
+func CorrectReading(r drivers.Reading, s Setup) Corrected {
+	out := Correct(r.Value, r.Quantity, s)
+	if !r.Usable() {
+		out.Calibrated = false
+		out.Flags = append(out.Flags, Flag{FlagUnusable, fmt.Sprintf("the %s reported %s", meterWord(r.Meter), strings.ReplaceAll(string(r.Status), "_", " "))})
+	}
+	return out
+}
+
+func meterWord(m string) string {
+	if m == "" {
+		return "meter"
+	}
+	return m
 }
 
 func gridWords(removed bool) string {

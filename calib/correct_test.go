@@ -5,6 +5,7 @@ import (
 	"strings"
 	"testing"
 
+	"kermalux/drivers"
 	"kermalux/drivers/units"
 )
 
@@ -135,5 +136,59 @@ func TestCorrectFlagsInsteadOfCalibrating(t *testing.T) {
 	c := Correct(1, units.AirKermaRate, Setup{Cert: h, Day: day("2026-12-02"), Quality: Quality{TubeVoltage: 70}})
 	if !c.Calibrated || !hasFlag(c, FlagDueSoon) {
 		t.Errorf("sealed detector, due in 16 days: calibrated %v flags %v", c.Calibrated, c.Flags)
+	}
+}
+
+func TestCorrectedTypeBAndCollect(t *testing.T) {
+	c := load(t, "veltrane-kr40-1187.yaml")
+	s := Setup{Cert: c, Day: day("2026-12-02"), Quality: Quality{Name: "RQA5"},
+		Air:      Air{Temperature: 24, Pressure: 98.0, TemperatureUnc: 0.3, PressureUnc: 0.1},
+		Geometry: Geometry{SourceToChamber: 900, SourceToInput: 1000, DistanceUnc: 2}}
+	var rs []Corrected
+	for _, v := range []float64{0.50, 0.51, 0.49, 0.50} {
+		rs = append(rs, Correct(v, units.AirKermaRate, s))
+	}
+	// Rows: coefficient 1.2 %; T 0.3/297.15 = 0.101 %; P 0.1/98 = 0.102 %;
+	// distances 2·√((2/900)² + (2/1000)²) = 0.598 %; resolution
+	// 0.001/√12 × (1.008·1.04804·0.81) µGy/s (factors carried through).
+	want := []float64{0.012, 0.3 / 297.15, 0.1 / 98, 2 * math.Hypot(2.0/900, 2.0/1000)}
+	tb := rs[0].TypeB
+	if len(tb) != 5 {
+		t.Fatalf("type B rows %+v", tb)
+	}
+	for i, w := range want {
+		if math.Abs(tb[i].Rel-w) > 1e-9 {
+			t.Errorf("row %d (%s) = %v, want %v", i, tb[i].Source, tb[i].Rel, w)
+		}
+	}
+	if res := 0.001 / math.Sqrt(12) * 1.008 * 1.04804 * 0.81; math.Abs(tb[4].Abs-res) > 1e-5*res {
+		t.Errorf("resolution row %v, want %v", tb[4].Abs, res)
+	}
+	m := Collect("input air kerma rate", "µGy/s", rs)
+	if m.Samples.N != 4 || !m.Calibrated || len(m.TypeB) != 5 || math.Abs(m.Samples.Mean-rs[0].Value) > 1e-12 {
+		t.Errorf("collected %+v", m)
+	}
+	// One flagged reading uncalibrates the run and its flag appears once.
+	s.Air.Pressure = 0
+	rs = append(rs, Correct(0.5, units.AirKermaRate, s), Correct(0.5, units.AirKermaRate, s))
+	m = Collect("input air kerma rate", "µGy/s", rs)
+	if m.Calibrated || len(m.Flags) != 1 {
+		t.Errorf("calibrated %v flags %v", m.Calibrated, m.Flags)
+	}
+	if got := rs[0].RelStdUncB(); got < 0.012 || got > 0.0137 {
+		t.Errorf("RelStdUncB = %v", got)
+	}
+}
+
+func TestCorrectReadingOverRange(t *testing.T) {
+	p := load(t, "orlan-lm9-5521.yaml")
+	r := drivers.Reading{Meter: "photometer", Quantity: units.Luminance, Value: 9999, Status: drivers.StatusOverRange}
+	c := CorrectReading(r, Setup{Cert: p, Day: day("2026-12-02")})
+	if c.Calibrated || !hasFlag(c, FlagUnusable) || !strings.Contains(c.Flags[0].Text, "over range") {
+		t.Errorf("%+v", c)
+	}
+	r.Status = drivers.StatusOK
+	if c := CorrectReading(r, Setup{Cert: p, Day: day("2026-12-02")}); !c.Calibrated {
+		t.Errorf("ok reading: %+v", c.Flags)
 	}
 }

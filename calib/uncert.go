@@ -122,6 +122,35 @@ type Measured struct {
 	Flags      []Flag
 }
 
+// Collect summarises a run of corrected readings of one quantity into an
+// input of a figure of merit: the mean and scatter of their values, the
+// type B components of the first (absolute components averaged over the
+// run), calibrated only if every reading is, and every flag once.
+func Collect(name, unit string, readings []Corrected) Measured {
+	m := Measured{Name: name, Unit: unit, Calibrated: len(readings) > 0}
+	var r Running
+	for i, c := range readings {
+		r.Add(c.Value)
+		if !c.Calibrated {
+			m.Calibrated = false
+		}
+		for _, f := range c.Flags {
+			m.Flags = appendFlag(m.Flags, f)
+		}
+		if i == 0 {
+			m.TypeB = append([]Component(nil), c.TypeB...)
+			continue
+		}
+		for j := range m.TypeB {
+			if j < len(c.TypeB) && c.TypeB[j].Source == m.TypeB[j].Source {
+				m.TypeB[j].Abs += (c.TypeB[j].Abs - m.TypeB[j].Abs) / float64(i+1)
+			}
+		}
+	}
+	m.Samples = r.Summary()
+	return m
+}
+
 // BudgetRow is one line of an uncertainty budget (JCGM 100:2008). For a
 // product or ratio model the sensitivity is relative (the exponent of the
 // input, ±1) and the contribution is relative to the result; for other
