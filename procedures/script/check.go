@@ -47,6 +47,23 @@ func CheckFile(path string, env Env) (*Procedure, Problems) {
 	return p, dedupe(probs)
 }
 
+// CheckBuiltin parses and checks the built-in procedure name.
+func CheckBuiltin(name string, env Env) (*Procedure, Problems) {
+	p, err := LoadBuiltin(name)
+	var probs Problems
+	if err != nil {
+		if ps, ok := err.(Problems); ok {
+			probs = append(probs, ps...)
+		} else {
+			return nil, Problems{{Pos: Pos{File: BuiltinPrefix + name}, Reason: err.Error()}}
+		}
+	}
+	if p == nil {
+		return nil, probs
+	}
+	return p, dedupe(append(probs, Check(p, env)...))
+}
+
 // Flatten expands includes and per-field-mode repetitions into the linear
 // list of steps the engine walks. It refuses a procedure that Check
 // rejects, and a per_field_mode block that takes its modes from the bench
@@ -547,7 +564,7 @@ func (x *expander) judge(prefix string, st *Step, mode string, modes []string) {
 		if l.Ref != "" {
 			ns, name, ok := strings.Cut(l.Ref, ".")
 			if !ok || !contains(RefNamespaces, ns) || !validID(name) {
-				x.errf(l.Pos, "%s: %q is neither a number nor a session value (spec.NAME, baseline.NAME, site.NAME, entered.NAME)", l.Kind, l.Ref)
+				x.errf(l.Pos, "%s: %q is neither a number nor a session value (spec.NAME, baseline.NAME, site.NAME, action.NAME, entered.NAME)", l.Kind, l.Ref)
 				continue
 			}
 			if ns == "entered" && !x.entered[name] {

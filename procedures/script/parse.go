@@ -737,9 +737,9 @@ func isRef(t string) bool {
 
 // Namespaces a limit may refer to: the session's specification values
 // (from the intensifier's data sheet or the contract), its baseline (last
-// accepted results), the site's own levels, and values entered earlier in
-// the procedure.
-var RefNamespaces = []string{"spec", "baseline", "site", "entered"}
+// accepted results), the site's own levels and action levels, and values
+// entered earlier in the procedure.
+var RefNamespaces = []string{"spec", "baseline", "site", "action", "entered"}
 
 // maxModes bounds max_modes: no intensifier has more field modes.
 const maxModes = 16
