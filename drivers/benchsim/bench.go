@@ -133,6 +133,15 @@ func (b *Bench) SetTubeVoltage(kv float64) error {
 	return b.model.SetTubeVoltage(b.clk.Mono(), kv)
 }
 
+// SetBrightnessControl switches the automatic brightness control on or
+// off (manual mode). Off, the input kerma rate follows the tube voltage
+// and the phantom; on, it is held at the field mode's rate.
+func (b *Bench) SetBrightnessControl(on bool) {
+	b.mu.Lock()
+	defer b.mu.Unlock()
+	b.model.SetBrightnessControl(b.clk.Mono(), on)
+}
+
 // SetPhantom puts the phantom or added filter into the beam, or removes it.
 func (b *Bench) SetPhantom(in bool) {
 	b.mu.Lock()

@@ -23,6 +23,7 @@ type Model struct {
 	kv          float64
 	phantom     bool
 	leadDisk    bool
+	abc         bool // automatic brightness control on
 	photR       float64
 	photAngle   float64 // degrees
 
@@ -54,6 +55,7 @@ func NewModel(scn *Scenario) (*Model, error) {
 	}
 	m.mode = m.modes[scn.Intensifier.StartMode]
 	m.kv = scn.Intensifier.TubeVoltageKV
+	m.abc = scn.Intensifier.Brightness.On
 	if p := scn.Photometer.Position; p != nil {
 		m.photR, m.photAngle = p.R, p.AngleDeg
 	}
@@ -73,7 +75,7 @@ func (m *Model) target() float64 {
 	}
 	in := m.scn.Intensifier
 	k := m.mode.KermaRate
-	if !in.Brightness.On {
+	if !m.abc {
 		k *= math.Pow(m.kv/in.TubeVoltageKV, in.KVExponent)
 		if m.phantom {
 			k *= in.PhantomTransmission
@@ -89,7 +91,7 @@ func (m *Model) inputMean(t time.Duration) float64 {
 	}
 	k := m.target()
 	b := m.scn.Intensifier.Brightness
-	if !b.On || b.TimeConstant == 0 {
+	if !m.abc || b.TimeConstant == 0 {
 		return k
 	}
 	dt := (t - m.t0).Seconds()
@@ -144,7 +146,7 @@ func (m *Model) luminanceFromKerma(k float64) float64 {
 // steps through the brightness-control transient.
 func (m *Model) advance(t time.Duration) {
 	step := 50 * time.Millisecond
-	if b := m.scn.Intensifier.Brightness; b.On && b.TimeConstant > 0 && b.TimeConstant/10 < step {
+	if b := m.scn.Intensifier.Brightness; m.abc && b.TimeConstant > 0 && b.TimeConstant/10 < step {
 		step = max(b.TimeConstant/10, time.Millisecond)
 	}
 	cf := m.chamberFactor()
@@ -186,7 +188,7 @@ func (m *Model) SetBeam(t time.Duration, on bool) int {
 		m.beamOnCount++
 		m.beamOnAt = t
 		m.v0 = m.target() * m.scn.Intensifier.Brightness.StartFraction
-		if !m.scn.Intensifier.Brightness.On {
+		if !m.abc {
 			m.v0 = m.target()
 		}
 	}
@@ -227,6 +229,14 @@ func (m *Model) SetTubeVoltage(t time.Duration, kv float64) error {
 func (m *Model) SetPhantom(t time.Duration, in bool) {
 	m.change(t)
 	m.phantom = in
+}
+
+// SetBrightnessControl switches the automatic brightness control at t
+// (manual mode when off). Switched on with the beam on, the rate settles
+// from where it was with the control's time constant.
+func (m *Model) SetBrightnessControl(t time.Duration, on bool) {
+	m.change(t)
+	m.abc = on
 }
 
 // SetLeadDisk puts the lead disk at the input centre or takes it away.
@@ -318,7 +328,7 @@ func (m *Model) Truth(t time.Duration) Truth {
 		PhotometerLuminance:   m.luminanceFromKerma(k),
 		DarkLuminance:         in.DarkLuminance,
 		ContrastRatio:         in.ContrastRatio,
-		BrightnessOn:          in.Brightness.On,
+		BrightnessOn:          m.abc,
 		BrightnessTime:        in.Brightness.TimeConstant,
 		Vignetting:            in.Vignetting,
 		Dosimeter:             meterTruth(m.scn.Dosimeter),
@@ -330,6 +340,7 @@ func (m *Model) Truth(t time.Duration) Truth {
 		tr.PulseRateHz, tr.PulseWidth = in.Pulsed.RateHz, in.Pulsed.Width
 	}
 	tr.DosimeterQuantumNoise = m.quantumNoise(k, m.scn.Dosimeter.IntegrationTime)
+	tr.PhotometerQuantumNoise = m.quantumNoise(k, m.scn.Photometer.IntegrationTime)
 	for _, fm := range in.FieldModes {
 		tr.Modes = append(tr.Modes, ModeTruth{Name: fm.Name, DiameterCM: fm.DiameterCM,
 			ConversionFactor: fm.ConversionFactor, KermaRate: fm.KermaRate})
@@ -388,6 +399,9 @@ type Truth struct {
 	// DosimeterQuantumNoise is the relative quantum noise of one
 	// dosimeter reading at the current rate.
 	DosimeterQuantumNoise float64
+	// PhotometerQuantumNoise is the same for the beam-induced part of
+	// one photometer reading.
+	PhotometerQuantumNoise float64
 	// ActiveFaults are the faults in force now (filled by Bench).
 	ActiveFaults []FaultSpec
 }

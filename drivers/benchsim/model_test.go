@@ -335,3 +335,22 @@ func TestManualModeScaling(t *testing.T) {
 		t.Error("unknown field mode accepted")
 	}
 }
+
+// TestBrightnessSwitch: switching the control on during a manual-mode
+// exposure at 80 kV brings the rate from 0.5·(80/70)² = 0.6531 back to the
+// mode's 0.5 µGy/s with the control's time constant (0.4 s by default):
+// after one time constant the deficit is e⁻¹ of the step (arithmetic).
+func TestBrightnessSwitch(t *testing.T) {
+	m := quiet(t, nil)
+	m.SetBeam(0, true)
+	if err := m.SetTubeVoltage(0, 80); err != nil {
+		t.Fatal(err)
+	}
+	m.SetBrightnessControl(sec, true)
+	start := 0.5 * (80.0 / 70) * (80.0 / 70)
+	near(t, "rate one time constant later", m.Truth(sec+400*time.Millisecond).InputKermaRate,
+		0.5+(start-0.5)*math.Exp(-1), 1e-9)
+	if !m.Truth(2 * sec).BrightnessOn {
+		t.Error("truth says the control is off")
+	}
+}

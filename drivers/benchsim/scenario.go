@@ -426,7 +426,7 @@ func (s *Scenario) check() error {
 	if b.TimeConstant < 0 {
 		return bad("$.intensifier.brightness_control.time_constant", "must not be negative")
 	}
-	if b.On && b.TimeConstant == 0 {
+	if b.TimeConstant == 0 { // also used when switched on later
 		b.TimeConstant = 400 * time.Millisecond
 	}
 	if b.StartFraction == 0 {
