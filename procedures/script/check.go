@@ -152,10 +152,17 @@ func dedupe(ps Problems) Problems {
 		seen[k] = true
 		out = append(out, p)
 	}
+	// Files in the order they first appear, then by position.
+	rank := map[string]int{}
+	for _, p := range out {
+		if _, ok := rank[p.Pos.File]; !ok {
+			rank[p.Pos.File] = len(rank)
+		}
+	}
 	sort.SliceStable(out, func(i, j int) bool {
 		a, b := out[i].Pos, out[j].Pos
 		if a.File != b.File {
-			return false
+			return rank[a.File] < rank[b.File]
 		}
 		if a.Line != b.Line {
 			return a.Line < b.Line
@@ -314,6 +321,18 @@ func (x *expander) repeat(p *Procedure, prefix string, s *Step) time.Duration {
 		switch {
 		case len(x.env.FieldModes) > 0:
 			modes = x.env.FieldModes
+			seenMode := map[string]bool{}
+			for _, m := range modes {
+				if seenMode[m] {
+					x.errf(s.Pos, "field mode %q is listed twice by the bench", m)
+					return 0
+				}
+				seenMode[m] = true
+				if m == "" || strings.ContainsAny(m, "@/{}") {
+					x.errf(s.Pos, "field mode %q from the bench: a mode name must not be empty nor contain @, /, { or }", m)
+					return 0
+				}
+			}
 			if r.MaxModes > 0 && len(modes) > r.MaxModes {
 				x.errf(s.Fields["max_modes"], "the bench lists %d field modes, more than max_modes %d", len(modes), r.MaxModes)
 			}

@@ -208,3 +208,17 @@ func TestStandardSafetyItems(t *testing.T) {
 		t.Errorf("items = %+v", items)
 	}
 }
+
+// TestBenchModeNames: mode names from the bench that would make step ids
+// ambiguous are refused.
+func TestBenchModeNames(t *testing.T) {
+	p, err := LoadBuiltin("conversion-factor")
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, modes := range [][]string{{"36 cm", "36 cm"}, {"a@b"}, {""}} {
+		if _, err := Flatten(p, Env{FieldModes: modes}); err == nil {
+			t.Errorf("modes %q accepted", modes)
+		}
+	}
+}

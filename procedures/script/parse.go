@@ -773,6 +773,9 @@ func (ps *parse) repeatField(s *Step, f field) {
 			if seen[t] {
 				ps.errf(ps.pos(it), "modes: %q listed twice", t)
 			}
+			if strings.ContainsAny(t, "@/{}") {
+				ps.errf(ps.pos(it), "modes: %q: a mode name must not contain @, /, { or }", t)
+			}
 			seen[t] = true
 			r.Modes = append(r.Modes, t)
 		}
