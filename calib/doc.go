@@ -24,4 +24,35 @@
 // a beam quality outside the certificate's table, missing air density for a
 // vented chamber) is never marked calibrated: it carries [Flag]s whose text
 // can be spoken and printed.
+//
+// # Uncertainty
+//
+// Every [Result] carries its value, combined standard uncertainty, expanded
+// uncertainty, coverage factor, effective degrees of freedom and budget
+// rows, following JCGM 100:2008:
+//
+//   - type A: the experimental standard deviation of the mean, s/√n (4.2.3),
+//     with n − 1 degrees of freedom;
+//   - type B: the certificate's expanded uncertainty over its coverage
+//     factor (4.3.3), the display resolution δ as rectangular, δ/√12
+//     (F.2.2.1), and the stated uncertainties of the thermometer, barometer
+//     and distances through their sensitivities; all with infinite degrees
+//     of freedom;
+//   - products and ratios combine relative variances (5.1.6); a ratio read
+//     with one meter (contrast ratio, uniformity, kerma rate scaling)
+//     drops that meter's calibration coefficient, which cancels;
+//   - the coverage factor is Student's t for 95.45 % ([Coverage]) at the
+//     Welch–Satterthwaite effective degrees of freedom (G.4.1, truncated to
+//     an integer), which is 2.00 for infinite degrees of freedom (Table G.2).
+//
+// The two meters' samples are treated as uncorrelated, which overstates the
+// uncertainty of the conversion factor when the tube output fluctuates
+// (both meters then move together); this is the cautious side.
+//
+// # Judgement
+//
+// [Judge] compares the value itself with each limit (common practice,
+// "simple acceptance"); a limit inside the expanded uncertainty marks the
+// verdict marginal for review. A result that is not calibrated is never
+// pass or fail, only info.
 package calib
