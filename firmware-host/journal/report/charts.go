@@ -68,22 +68,66 @@ const pngScale = 0.85
 
 var svgSize = regexp.MustCompile(`^<svg width="([0-9.]+)pt" height="([0-9.]+)pt"`)
 
-// render draws p as SVG and PNG at w×h points.
-func render(p *plot.Plot, name, title, caption string, w, h vg.Length) (Chart, error) {
-	c := Chart{Name: name, Title: title, Caption: caption}
+// chartSpec is a chart ready to draw.
+type chartSpec struct {
+	p                    *plot.Plot
+	name, title, caption string
+	w, h                 vg.Length
+}
+
+// MapChart draws the luminance map of the output face: the face as a
+// circle, each position where it was read, coloured and labelled by its
+// fraction of the centre luminance.
+func MapChart(m LuminanceMap) (Chart, error) { return both(mapSpec(m)) }
+
+// ProfileChart draws the radial luminance profile: the mean fraction of
+// centre at each radius, with the spread over directions as bars.
+func ProfileChart(m LuminanceMap) (Chart, error) { return both(profileSpec(m)) }
+
+// ConversionChart draws the conversion factor per field mode with its
+// expanded uncertainty as error bars.
+func ConversionChart(results []Result) (Chart, error) { return both(conversionSpec(results)) }
+
+// TrendChart draws one trend: each session's value with its expanded
+// uncertainty, the least-squares line extended to the projected crossing,
+// the action level and the projected date.
+func TrendChart(t Trend) (Chart, error) { return both(trendSpec(t)) }
+
+func both(s chartSpec, err error) (Chart, error) {
+	if err != nil {
+		return Chart{}, err
+	}
+	return s.render(true, true)
+}
+
+// render draws the chart as SVG and/or PNG.
+func (s chartSpec) render(svg, png bool) (Chart, error) {
+	p, name, w, h := s.p, s.name, s.w, s.h
+	c := Chart{Name: name, Title: s.title, Caption: s.caption}
+	if !svg {
+		return c.withPNG(p, w, h)
+	}
 	sc := vgsvg.New(w, h)
 	p.Draw(draw.New(sc))
 	var sb bytes.Buffer
 	if _, err := sc.WriteTo(&sb); err != nil {
 		return c, fmt.Errorf("chart %s: svg: %w", name, err)
 	}
-	s := sb.String()
-	if i := strings.Index(s, "<svg"); i >= 0 {
-		s = s[i:]
+	txt := sb.String()
+	if i := strings.Index(txt, "<svg"); i >= 0 {
+		txt = txt[i:]
 	}
-	s = svgSize.ReplaceAllString(s, `<svg class="chart" role="img" aria-label="`+htmlAttr(title)+`" width="${1}pt" height="${2}pt"`)
-	s = strings.ReplaceAll(s, "font-family:Liberation Sans;", "font-family:'Liberation Sans',Arial,Helvetica,sans-serif;")
-	c.SVG = s
+	txt = svgSize.ReplaceAllString(txt, `<svg class="chart" role="img" aria-label="`+htmlAttr(s.title)+`" width="${1}pt" height="${2}pt"`)
+	txt = strings.ReplaceAll(txt, "font-family:Liberation Sans;", "font-family:'Liberation Sans',Arial,Helvetica,sans-serif;")
+	c.SVG = txt
+	if !png {
+		return c, nil
+	}
+	return c.withPNG(p, w, h)
+}
+
+func (c Chart) withPNG(p *plot.Plot, w, h vg.Length) (Chart, error) {
+	name := c.Name
 
 	// The PNG (for PDF) is drawn on a smaller canvas so that its type,
 	// kept at the same point size, reads well at print size.
@@ -140,10 +184,7 @@ func circle(r float64, n int) plotter.XYs {
 	return pts
 }
 
-// MapChart draws the luminance map of the output face: the face as a
-// circle, each position where it was read, coloured and labelled by its
-// fraction of the centre luminance.
-func MapChart(m LuminanceMap) (Chart, error) {
+func mapSpec(m LuminanceMap) (chartSpec, error) {
 	title := "Output face luminance"
 	if m.FieldMode != "" {
 		title += ", " + m.FieldMode + " field"
@@ -154,14 +195,14 @@ func MapChart(m LuminanceMap) (Chart, error) {
 
 	edge, err := plotter.NewLine(circle(1, 120))
 	if err != nil {
-		return Chart{}, err
+		return chartSpec{}, err
 	}
 	edge.Color, edge.Width = inkColor, vg.Points(1.2)
 	p.Add(edge)
 	for _, r := range []float64{0.5, 0.9} {
 		ring, err := plotter.NewLine(circle(r, 120))
 		if err != nil {
-			return Chart{}, err
+			return chartSpec{}, err
 		}
 		ring.Color, ring.Width, ring.Dashes = gridColor, vg.Points(0.8), []vg.Length{vg.Points(3), vg.Points(3)}
 		p.Add(ring)
@@ -183,11 +224,11 @@ func MapChart(m LuminanceMap) (Chart, error) {
 		}
 	}
 	if len(pts) == 0 {
-		return Chart{}, fmt.Errorf("luminance map %s: no position could be placed on the face", m.FieldMode)
+		return chartSpec{}, fmt.Errorf("luminance map %s: no position could be placed on the face", m.FieldMode)
 	}
 	sc, err := plotter.NewScatter(pts)
 	if err != nil {
-		return Chart{}, err
+		return chartSpec{}, err
 	}
 	sc.GlyphStyleFunc = func(i int) draw.GlyphStyle {
 		c := color.Color(accentColor)
@@ -210,7 +251,7 @@ func MapChart(m LuminanceMap) (Chart, error) {
 	}
 	lb, err := plotter.NewLabels(plotter.XYLabels{XYs: lpts, Labels: labels})
 	if err != nil {
-		return Chart{}, err
+		return chartSpec{}, err
 	}
 	for i := range lb.TextStyle {
 		lb.TextStyle[i].Font = sansStyle(9)
@@ -228,7 +269,7 @@ func MapChart(m LuminanceMap) (Chart, error) {
 		Labels: []string{"up", "down", "left", "right"},
 	})
 	if err != nil {
-		return Chart{}, err
+		return chartSpec{}, err
 	}
 	for i := range dirs.TextStyle {
 		dirs.TextStyle[i].Font = sansStyle(8)
@@ -238,14 +279,12 @@ func MapChart(m LuminanceMap) (Chart, error) {
 	}
 	p.Add(dirs)
 	caption := "Each disc is a photometer position; its label is the luminance there as a percentage of the centre. Dashed rings: 0.5 and 0.9 of the output radius."
-	return render(p, "map-"+slug(m.FieldMode), title, caption, 3.5*vg.Inch, 3.7*vg.Inch)
+	return chartSpec{p: p, name: "map-" + slug(m.FieldMode), title: title, caption: caption, w: 3.5 * vg.Inch, h: 3.7 * vg.Inch}, nil
 }
 
-// ProfileChart draws the radial luminance profile: the mean fraction of
-// centre at each radius, with the spread over directions as bars.
-func ProfileChart(m LuminanceMap) (Chart, error) {
+func profileSpec(m LuminanceMap) (chartSpec, error) {
 	if len(m.Profile) < 2 {
-		return Chart{}, fmt.Errorf("radial profile %s: fewer than two radii", m.FieldMode)
+		return chartSpec{}, fmt.Errorf("radial profile %s: fewer than two radii", m.FieldMode)
 	}
 	title := "Radial luminance profile"
 	if m.FieldMode != "" {
@@ -263,12 +302,12 @@ func ProfileChart(m LuminanceMap) (Chart, error) {
 	}
 	line, err := plotter.NewLine(pts)
 	if err != nil {
-		return Chart{}, err
+		return chartSpec{}, err
 	}
 	line.Color, line.Width = accentColor, vg.Points(1.5)
 	sc, err := plotter.NewScatter(pts)
 	if err != nil {
-		return Chart{}, err
+		return chartSpec{}, err
 	}
 	sc.GlyphStyle = draw.GlyphStyle{Color: accentColor, Radius: vg.Points(3), Shape: draw.CircleGlyph{}}
 	eb, err := plotter.NewYErrorBars(struct {
@@ -276,19 +315,17 @@ func ProfileChart(m LuminanceMap) (Chart, error) {
 		plotter.YErrors
 	}{pts, errs})
 	if err != nil {
-		return Chart{}, err
+		return chartSpec{}, err
 	}
 	eb.Color = accentColor
 	p.Add(line, sc, eb)
 	p.X.Min, p.X.Max = -0.05, 1.05
 	p.Y.Min, p.Y.Max = math.Min(0.6, math.Floor(lo*20)/20), math.Max(1.05, hi+0.02)
 	caption := "Mean over the directions at each radius; bars show the lowest and highest direction."
-	return render(p, "profile-"+slug(m.FieldMode), title, caption, 5*vg.Inch, 3.2*vg.Inch)
+	return chartSpec{p: p, name: "profile-" + slug(m.FieldMode), title: title, caption: caption, w: 5 * vg.Inch, h: 3.2 * vg.Inch}, nil
 }
 
-// ConversionChart draws the conversion factor per field mode with its
-// expanded uncertainty as error bars.
-func ConversionChart(results []Result) (Chart, error) {
+func conversionSpec(results []Result) (chartSpec, error) {
 	var names []string
 	var pts plotter.XYs
 	var errs plotter.YErrors
@@ -305,14 +342,14 @@ func ConversionChart(results []Result) (Chart, error) {
 		unit = r.Unit
 	}
 	if len(pts) == 0 {
-		return Chart{}, fmt.Errorf("conversion factor chart: no conversion factor results")
+		return chartSpec{}, fmt.Errorf("conversion factor chart: no conversion factor results")
 	}
 	title := "Conversion factor per field mode"
 	p := newPlot(title, "field mode", "conversion factor ("+unitText(unit)+")")
 	p.Add(plotter.NewGrid())
 	sc, err := plotter.NewScatter(pts)
 	if err != nil {
-		return Chart{}, err
+		return chartSpec{}, err
 	}
 	sc.GlyphStyleFunc = func(i int) draw.GlyphStyle {
 		c := color.Color(accentColor)
@@ -326,7 +363,7 @@ func ConversionChart(results []Result) (Chart, error) {
 		plotter.YErrors
 	}{pts, errs})
 	if err != nil {
-		return Chart{}, err
+		return chartSpec{}, err
 	}
 	eb.Color, eb.Width, eb.CapWidth = inkColor, vg.Points(1), vg.Points(8)
 	p.Add(eb, sc)
@@ -339,7 +376,7 @@ func ConversionChart(results []Result) (Chart, error) {
 	}
 	p.Y.Max = 1.12 * top
 	caption := "Bars: expanded uncertainty U. Red: the result fails a limit."
-	return render(p, "conversion-factor", title, caption, 5*vg.Inch, 3.2*vg.Inch)
+	return chartSpec{p: p, name: "conversion-factor", title: title, caption: caption, w: 5 * vg.Inch, h: 3.2 * vg.Inch}, nil
 }
 
 // decimalYear converts a date to a fractional year for the trend axis.
@@ -372,12 +409,9 @@ func (yearTicks) Ticks(min, max float64) []plot.Tick {
 	return ts
 }
 
-// TrendChart draws one trend: each session's value with its expanded
-// uncertainty, the least-squares line extended to the projected crossing,
-// the action level and the projected date.
-func TrendChart(t Trend) (Chart, error) {
+func trendSpec(t Trend) (chartSpec, error) {
 	if len(t.Points) == 0 {
-		return Chart{}, fmt.Errorf("trend chart: no sessions")
+		return chartSpec{}, fmt.Errorf("trend chart: no sessions")
 	}
 	title := quantityWords(t.Quantity) + " of " + t.Serial
 	if t.FieldMode != "" {
@@ -404,7 +438,7 @@ func TrendChart(t Trend) (Chart, error) {
 		y := func(x time.Time) float64 { return t.Intercept + t.Slope*years(x.Sub(t.Origin)) }
 		fit, err := plotter.NewLine(plotter.XYs{{X: x0, Y: y(t.Origin)}, {X: x1, Y: y(end)}})
 		if err != nil {
-			return Chart{}, err
+			return chartSpec{}, err
 		}
 		fit.Color, fit.Width, fit.Dashes = fitColor, vg.Points(1.2), []vg.Length{vg.Points(5), vg.Points(3)}
 		p.Add(fit)
@@ -415,7 +449,7 @@ func TrendChart(t Trend) (Chart, error) {
 	if t.ActionValue > 0 {
 		al, err := plotter.NewLine(plotter.XYs{{X: xmin - 0.5, Y: t.ActionValue}, {X: xmax + 0.5, Y: t.ActionValue}})
 		if err != nil {
-			return Chart{}, err
+			return chartSpec{}, err
 		}
 		al.Color, al.Width = failColor, vg.Points(1.2)
 		p.Add(al)
@@ -426,7 +460,7 @@ func TrendChart(t Trend) (Chart, error) {
 		x := decimalYear(t.Crossing)
 		vl, err := plotter.NewLine(plotter.XYs{{X: x, Y: 0}, {X: x, Y: t.ActionValue}})
 		if err != nil {
-			return Chart{}, err
+			return chartSpec{}, err
 		}
 		vl.Color, vl.Width, vl.Dashes = failColor, vg.Points(0.8), []vg.Length{vg.Points(2), vg.Points(2)}
 		p.Add(vl)
@@ -435,7 +469,7 @@ func TrendChart(t Trend) (Chart, error) {
 			Labels: []string{"projected " + t.Crossing.Format("Jan 2006")},
 		})
 		if err != nil {
-			return Chart{}, err
+			return chartSpec{}, err
 		}
 		lb.TextStyle[0].Font = sansStyle(9)
 		lb.TextStyle[0].Color = failColor
@@ -446,7 +480,7 @@ func TrendChart(t Trend) (Chart, error) {
 	}
 	sc, err := plotter.NewScatter(pts)
 	if err != nil {
-		return Chart{}, err
+		return chartSpec{}, err
 	}
 	sc.GlyphStyle = draw.GlyphStyle{Color: accentColor, Radius: vg.Points(3.5), Shape: draw.CircleGlyph{}}
 	eb, err := plotter.NewYErrorBars(struct {
@@ -454,7 +488,7 @@ func TrendChart(t Trend) (Chart, error) {
 		plotter.YErrors
 	}{pts, errs})
 	if err != nil {
-		return Chart{}, err
+		return chartSpec{}, err
 	}
 	eb.Color = accentColor
 	p.Add(eb, sc)
@@ -466,7 +500,7 @@ func TrendChart(t Trend) (Chart, error) {
 	p.Y.Min = math.Max(0, ymin-0.1*(ymax-ymin+1))
 	p.Y.Max = ymax + 0.35*(ymax-p.Y.Min)
 	caption := "Dashed: least-squares line through all sessions, extended to the projected date at the action level."
-	return render(p, "trend-"+slug(t.FieldMode), title, caption, 6*vg.Inch, 3.4*vg.Inch)
+	return chartSpec{p: p, name: "trend-" + slug(t.FieldMode), title: title, caption: caption, w: 6 * vg.Inch, h: 3.4 * vg.Inch}, nil
 }
 
 // unitText writes a canonical unit for chart axes.
@@ -494,16 +528,21 @@ func slug(s string) string {
 	return b.String()
 }
 
-// Charts renders every chart the report has data for, in reading order.
-// A chart that cannot be drawn is skipped with its reason in the returned
-// notes (the report still renders).
-func (r *Report) Charts() (charts []Chart, notes []string) {
-	add := func(c Chart, err error) {
-		if err != nil {
-			notes = append(notes, err.Error())
-			return
+// Charts renders every chart the report has data for, in reading order,
+// as SVG and PNG. A chart that cannot be drawn is skipped with its reason
+// in the returned notes (the report still renders).
+func (r *Report) Charts() (charts []Chart, notes []string) { return r.charts(true, true) }
+
+func (r *Report) charts(svg, png bool) (charts []Chart, notes []string) {
+	add := func(s chartSpec, err error) {
+		if err == nil {
+			var c Chart
+			if c, err = s.render(svg, png); err == nil {
+				charts = append(charts, c)
+				return
+			}
 		}
-		charts = append(charts, c)
+		notes = append(notes, err.Error())
 	}
 	has := false
 	for _, res := range r.Results {
@@ -512,16 +551,16 @@ func (r *Report) Charts() (charts []Chart, notes []string) {
 		}
 	}
 	if has {
-		add(ConversionChart(r.Results))
+		add(conversionSpec(r.Results))
 	}
 	for _, m := range r.Maps {
-		add(MapChart(m))
+		add(mapSpec(m))
 		if len(m.Profile) >= 2 {
-			add(ProfileChart(m))
+			add(profileSpec(m))
 		}
 	}
 	for _, t := range r.Trends {
-		add(TrendChart(t))
+		add(trendSpec(t))
 	}
 	return charts, notes
 }

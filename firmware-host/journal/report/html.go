@@ -80,15 +80,21 @@ type htmlView struct {
 	Cautions   []string
 }
 
-func (r *Report) view(opt Options, withCharts bool) htmlView {
+// chartUse says which chart formats a rendering needs.
+type chartUse int
+
+const (
+	chartsSVG chartUse = iota + 1
+	chartsPNG
+)
+
+func (r *Report) view(opt Options, use chartUse) htmlView {
 	v := htmlView{R: r, S: r.Session, Verdict: r.Verdict(), Pass: r.Count("pass"), Fail: r.Count("fail"), Info: r.Count("info"),
 		Generated: opt.generated(), Version: opt.Version, Cautions: cautions(r.Simulated)}
 	if v.Version == "" {
 		v.Version = r.Session.SoftwareVersion
 	}
-	if withCharts {
-		v.Charts, v.ChartNotes = r.Charts()
-	}
+	v.Charts, v.ChartNotes = r.charts(use == chartsSVG, use == chartsPNG)
 	for _, a := range r.Acks {
 		if a.Safety {
 			v.Safety = append(v.Safety, a)
@@ -125,7 +131,7 @@ func sortEvents(rows []eventRow) {
 // inline, charts as inline SVG, no external resources, laid out to print
 // on A4.
 func (r *Report) WriteHTML(w io.Writer, opt Options) error {
-	if err := htmlTemplate.Execute(w, r.view(opt, true)); err != nil {
+	if err := htmlTemplate.Execute(w, r.view(opt, chartsSVG)); err != nil {
 		return fmt.Errorf("render HTML report of session %s: %w", r.Session.ID, err)
 	}
 	return nil

@@ -152,7 +152,7 @@ func (d *pdfDoc) drawRow(cols []pdfCol, row []string, y, lh, pad float64, head b
 // WritePDF writes the report as an A4 PDF with the same content as the
 // HTML report; charts are embedded as PNG images.
 func (r *Report) WritePDF(w io.Writer, opt Options) error {
-	v := r.view(opt, true)
+	v := r.view(opt, chartsPNG)
 	f := fpdf.New("P", "mm", "A4", "")
 	f.AddUTF8FontFromBytes("sans", "", liberationsansregular.TTF)
 	f.AddUTF8FontFromBytes("sans", "B", liberationsansbold.TTF)

@@ -44,6 +44,9 @@ func ParsePosition(label string) (r, angle float64, ok bool) {
 		}
 		switch {
 		case f == "r" || f == "radius":
+			if haveR { // "0.7 r": the unit of the number before
+				continue
+			}
 			if v, ok2 := next(); ok2 {
 				x, err := strconv.ParseFloat(strings.TrimSuffix(v, "r"), 64)
 				if err != nil {
