@@ -196,6 +196,9 @@ func (c *Certificate) CoefficientAt(q Quality) (float64, error) {
 	}
 	q = q.filled()
 	if c.Along == AlongQuality {
+		if strings.TrimSpace(q.Name) == "" {
+			return 0, fmt.Errorf("certificate %s is tabulated by beam quality name, but no quality was given", c.Number)
+		}
 		for _, p := range c.Points {
 			if strings.EqualFold(p.Quality.Name, q.Name) {
 				return p.Factor, nil
