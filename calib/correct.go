@@ -29,6 +29,10 @@ const (
 	CorrKTP           = "k_tp"
 	CorrBackscatter   = "backscatter"
 	CorrInverseSquare = "inverse_square"
+	// CorrGeometry records the set-up (grid, chamber position) with factor
+	// 1 when neither geometric correction was needed, so every dosimeter
+	// reading says whether the grid was in place.
+	CorrGeometry = "geometry"
 )
 
 // FlagCode says why a reading or result is not calibrated, or what else is
@@ -366,8 +370,20 @@ func Correct(value float64, q units.Quantity, s Setup) Corrected {
 			}
 		}
 	}
+	if !g.OnFace && !hasApplied(out.Applied, CorrInverseSquare) {
+		apply(Applied{Name: CorrGeometry, Factor: 1, Note: "chamber at the input plane, free in air; " + gridWords(g.GridRemoved)})
+	}
 	out.addResolution(c)
 	return out
+}
+
+func hasApplied(list []Applied, name string) bool {
+	for _, a := range list {
+		if a.Name == name {
+			return true
+		}
+	}
+	return false
 }
 
 // addResolution adds the display resolution of the certificate, carried

@@ -192,3 +192,15 @@ func TestCorrectReadingOverRange(t *testing.T) {
 		t.Errorf("ok reading: %+v", c.Flags)
 	}
 }
+
+func TestGridStateAlwaysRecorded(t *testing.T) {
+	h := load(t, "halden-dx2-30417.yaml")
+	for _, removed := range []bool{true, false} {
+		c := Correct(1, units.AirKermaRate, Setup{Cert: h, Day: day("2026-12-02"), Quality: Quality{TubeVoltage: 70}, Geometry: Geometry{GridRemoved: removed}})
+		last := c.Applied[len(c.Applied)-1]
+		want := map[bool]string{true: "grid removed", false: "grid in place"}[removed]
+		if last.Name != CorrGeometry || last.Factor != 1 || !strings.Contains(last.Note, want) || c.Value != 1 {
+			t.Errorf("grid removed %v: %+v", removed, c.Applied)
+		}
+	}
+}

@@ -230,3 +230,28 @@ func TestCompareTrend(t *testing.T) {
 		t.Error("zero baseline must be an error")
 	}
 }
+
+// Property: the non-uniformity lies in [0, 1) and does not change when
+// every luminance is scaled by one factor (a photometer's calibration
+// coefficient cancels in it); the contrast ratio likewise.
+func TestUniformityScaleInvariance(t *testing.T) {
+	vals := map[string]float64{"centre": 200, "*": 190, "up 0.9": 170, "down 0.9": 150, "left 0.9": 175, "right 0.9": 160}
+	base, err := Uniformity(spots(vals), 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, f := range []float64{0.01, 0.9, 3.426259, 1000} {
+		scaled := map[string]float64{}
+		for k, v := range vals {
+			scaled[k] = v * f
+		}
+		r, err := Uniformity(spots(scaled), 0)
+		if err != nil || r.Value < 0 || r.Value >= 1 || math.Abs(r.Value-base.Value) > 1e-12 {
+			t.Errorf("scale %v: NU %v vs %v (%v)", f, r.Value, base.Value, err)
+		}
+		a := ContrastRatio(meas(180*f, 6, 1.8*f), meas(9*f, 6, 0.09*f), 23, 230, 0)
+		if math.Abs(a.Value-20) > 1e-9 || math.Abs(a.StdUnc/a.Value-math.Hypot(0.01, 0.01)/math.Sqrt(6)) > 1e-12 {
+			t.Errorf("scale %v: CR %v ± %v", f, a.Value, a.StdUnc)
+		}
+	}
+}
