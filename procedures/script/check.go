@@ -401,6 +401,14 @@ func (x *expander) instance(p *Procedure, s *Step, mode string) Step {
 		}
 		return strings.ReplaceAll(t, "{mode}", mode)
 	}
+	// "largest" names the bench's first field mode (benches list them
+	// largest first), when the bench's modes are known.
+	largest := func(t string) string {
+		if t == LargestMode && len(x.env.FieldModes) > 0 {
+			return x.env.FieldModes[0]
+		}
+		return t
+	}
 	st.Text = sub(s.Text)
 	st.Items = nil
 	for _, it := range s.Items {
@@ -408,11 +416,15 @@ func (x *expander) instance(p *Procedure, s *Step, mode string) Step {
 	}
 	st.Setup = nil
 	for _, kv := range s.Setup {
-		st.Setup = append(st.Setup, Setting{Key: kv.Key, Value: sub(kv.Value), Pos: kv.Pos})
+		v := sub(kv.Value)
+		if kv.Key == SetFieldMode {
+			v = largest(v)
+		}
+		st.Setup = append(st.Setup, Setting{Key: kv.Key, Value: v, Pos: kv.Pos})
 	}
 	if s.Measure != nil {
 		m := *s.Measure
-		m.FieldMode = sub(m.FieldMode)
+		m.FieldMode = largest(sub(m.FieldMode))
 		if m.FieldMode == "" {
 			if fm, ok := st.Setup.Get(SetFieldMode); ok {
 				m.FieldMode = fm

@@ -222,3 +222,30 @@ func TestBenchModeNames(t *testing.T) {
 		}
 	}
 }
+
+// TestLargestMode: "largest" becomes the bench's first (largest) mode.
+func TestLargestMode(t *testing.T) {
+	p, err := LoadBuiltin("contrast-ratio")
+	if err != nil {
+		t.Fatal(err)
+	}
+	f, err := Flatten(p, Env{FieldModes: []string{"40 cm", "28 cm"}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, s := range f.Steps {
+		if s.ID == "open" && (s.Step.Measure.FieldMode != "40 cm" || s.Step.Setup.Map()[SetFieldMode] != "40 cm") {
+			t.Errorf("open: field mode %q, setup %v", s.Step.Measure.FieldMode, s.Step.Setup.Map())
+		}
+		if s.ID == "bench" && s.Step.Setup.Map()[SetFieldMode] != "40 cm" {
+			t.Errorf("bench setup %v", s.Step.Setup.Map())
+		}
+	}
+	f, err = Flatten(p, Env{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if f.Steps[2].Step.Setup.Map()[SetFieldMode] != LargestMode {
+		t.Errorf("without a bench: %v", f.Steps[2].Step.Setup.Map())
+	}
+}

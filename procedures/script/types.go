@@ -174,6 +174,11 @@ const (
 	SetBeamQuality       = "beam_quality"
 )
 
+// LargestMode as a field mode names the bench's largest field mode; Flatten
+// replaces it by the first of Env.FieldModes (benches list their modes
+// largest first) when they are given.
+const LargestMode = "largest"
+
 // Source is where an entered value's default comes from.
 type Source string
 
