@@ -88,7 +88,8 @@ type ContrastDetail struct {
 //
 // the centre luminance without and with a lead disk at the centre of the
 // input field (IEC 61262-6 uses a disk of 10 % of the input field diameter:
-// from memory, verify in the standard). Both readings come from the same
+// from memory, verify in the standard; one secondary description speaks of
+// 10 % of the input screen's area instead). Both readings come from the same
 // photometer, so its calibration coefficient cancels: only repeatability
 // and the resolution remain (JCGM 100:2008 5.1.6). A disk far from 10 %
 // of the field is noted, not refused.

@@ -10,7 +10,8 @@ import (
 
 func TestCoverageFactorStudentT(t *testing.T) {
 	// Two-sided 95 % (t_0.975) critical values, NIST/SEMATECH e-Handbook of
-	// Statistical Methods, 1.3.6.7.2 (critical values of Student's t).
+	// Statistical Methods, 1.3.6.7.2 (critical values of Student's t; read in
+	// a reprint of that table which names it as its source).
 	for _, tc := range []struct{ nu, want float64 }{
 		{1, 12.706}, {2, 4.303}, {5, 2.571}, {10, 2.228}, {30, 2.042},
 	} {
@@ -18,7 +19,9 @@ func TestCoverageFactorStudentT(t *testing.T) {
 			t.Errorf("t_0.975(%v) = %.4f, want %.3f (NIST/SEMATECH 1.3.6.7.2)", tc.nu, got, tc.want)
 		}
 	}
-	// Coverage factors for p = 95.45 %, JCGM 100:2008 Table G.2.
+	// Coverage factors for p = 95.45 %, JCGM 100:2008 Table G.2 (checked
+	// against a reproduction of the table in Fluke Calibration, "Basics of
+	// measurement uncertainty for DMM calibration", 2011, p. 54).
 	for _, tc := range []struct{ nu, want float64 }{
 		{1, 13.97}, {2, 4.53}, {5, 2.65}, {10, 2.28}, {math.Inf(1), 2.00}, {0, 2.00},
 	} {
