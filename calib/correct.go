@@ -291,7 +291,7 @@ func Correct(value float64, q units.Quantity, s Setup) Corrected {
 		flag(FlagNoCertificate, "no calibration certificate for this meter: reading not calibrated")
 	case c.Quantity != q && !(c.ForDosimeter() && (q == units.AirKerma || q == units.AirKermaRate)):
 		out.Certificate = c.Number
-		flag(FlagWrongQuantity, "certificate %s is for %s, not %s: reading not calibrated", c.Number, c.Quantity, q)
+		flag(FlagWrongQuantity, "certificate %s is for %s, not %s: reading not calibrated", c.Number, words(string(c.Quantity)), words(string(q)))
 	default:
 		out.Certificate = c.Number
 		if v := c.ValidOn(s.Day); !v.Valid {
@@ -303,9 +303,12 @@ func Correct(value float64, q units.Quantity, s Setup) Corrected {
 		switch {
 		case err == nil:
 			note := fmt.Sprintf("certificate %s", c.Number)
-			if len(c.Points) > 1 {
+			switch {
+			case len(c.Points) > 1 && c.Along == AlongQuality:
+				note = fmt.Sprintf("certificate %s, row %s", c.Number, s.Quality.Name)
+			case len(c.Points) > 1:
 				fq := s.Quality.filled()
-				note = fmt.Sprintf("certificate %s, interpolated at %s %g", c.Number, c.Along, c.axisValue(fq))
+				note = fmt.Sprintf("certificate %s, interpolated at %s %g", c.Number, axisWords(c.Along), c.axisValue(fq))
 			}
 			apply(Applied{Name: CorrCoefficient, Factor: n, Note: note})
 			out.TypeB = append(out.TypeB, Component{Source: "calibration coefficient, certificate " + c.Number, Rel: c.RelStdUnc(), Calibration: true})
@@ -407,7 +410,7 @@ func CorrectReading(r drivers.Reading, s Setup) Corrected {
 	out := Correct(r.Value, r.Quantity, s)
 	if !r.Usable() {
 		out.Calibrated = false
-		out.Flags = append(out.Flags, Flag{FlagUnusable, fmt.Sprintf("the %s reported %s", meterWord(r.Meter), strings.ReplaceAll(string(r.Status), "_", " "))})
+		out.Flags = append(out.Flags, Flag{FlagUnusable, fmt.Sprintf("the %s reported %s", meterWord(r.Meter), words(string(r.Status)))})
 	}
 	return out
 }
@@ -418,6 +421,8 @@ func meterWord(m string) string {
 	}
 	return m
 }
+
+func words(s string) string { return strings.ReplaceAll(s, "_", " ") }
 
 func gridWords(removed bool) string {
 	if removed {
