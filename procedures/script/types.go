@@ -273,7 +273,8 @@ const (
 	// Ratio of a field mode's input kerma rate to a reference mode's:
 	// roles air_kerma_rate, reference.
 	FigKermaModeScaling Figure = "kerma_mode_scaling"
-	// Stability of a meter over a fixed-duration reading: role reading.
+	// Stability of a meter over a fixed-duration reading, as the relative
+	// change of its trend over the duration: role reading.
 	FigStability Figure = "stability"
 	// Mean dark reading (offset) of a meter: role reading.
 	FigDarkLevel Figure = "dark_level"

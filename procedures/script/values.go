@@ -81,7 +81,7 @@ var figureQuantity = map[Figure]units.Quantity{
 	FigContrastRatio:    units.Ratio,
 	FigInputKermaRate:   units.AirKermaRate,
 	FigKermaModeScaling: units.Ratio,
-	FigStability:        "", // the unit of the reading: drift over the duration
+	FigStability:        units.Ratio, // relative change of the trend over the duration
 	FigDarkLevel:        "", // the unit of the reading
 }
 
