@@ -82,7 +82,7 @@ var figureQuantity = map[Figure]units.Quantity{
 	FigInputKermaRate:   units.AirKermaRate,
 	FigKermaModeScaling: units.Ratio,
 	FigStability:        units.Ratio, // relative change of the trend over the duration
-	FigDarkLevel:        "", // the unit of the reading
+	FigDarkLevel:        "",          // the unit of the reading
 }
 
 // ConversionFactorUnit is the canonical unit of a conversion factor.
