@@ -2,6 +2,7 @@ package calib
 
 import (
 	"fmt"
+	"sort"
 	"testing"
 
 	"kermalux/drivers/units"
@@ -67,5 +68,21 @@ func BenchmarkCorrectReading(b *testing.B) {
 	b.ReportAllocs()
 	for i := 0; i < b.N; i++ {
 		_ = Correct(0.5, units.AirKermaRate, s)
+	}
+}
+
+// BenchmarkReferenceSort is a fixed reference workload (sorting 1000
+// numbers) run beside the others, so their figures can be read as a ratio
+// that does not depend on how busy the machine is.
+func BenchmarkReferenceSort(b *testing.B) {
+	src := make([]float64, 1000)
+	for i := range src {
+		src[i] = float64((i * 7919) % 1000)
+	}
+	dst := make([]float64, len(src))
+	b.ResetTimer()
+	for i := 0; i < b.N; i++ {
+		copy(dst, src)
+		sort.Float64s(dst)
 	}
 }
