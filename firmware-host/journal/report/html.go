@@ -84,7 +84,8 @@ type htmlView struct {
 type chartUse int
 
 const (
-	chartsSVG chartUse = iota + 1
+	noCharts chartUse = iota
+	chartsSVG
 	chartsPNG
 )
 
@@ -94,7 +95,9 @@ func (r *Report) view(opt Options, use chartUse) htmlView {
 	if v.Version == "" {
 		v.Version = r.Session.SoftwareVersion
 	}
-	v.Charts, v.ChartNotes = r.charts(use == chartsSVG, use == chartsPNG)
+	if use != noCharts {
+		v.Charts, v.ChartNotes = r.charts(use == chartsSVG, use == chartsPNG)
+	}
 	for _, a := range r.Acks {
 		if a.Safety {
 			v.Safety = append(v.Safety, a)
@@ -130,8 +133,10 @@ func sortEvents(rows []eventRow) {
 // WriteHTML writes the report as one self-contained HTML page: styles
 // inline, charts as inline SVG, no external resources, laid out to print
 // on A4.
-func (r *Report) WriteHTML(w io.Writer, opt Options) error {
-	if err := htmlTemplate.Execute(w, r.view(opt, chartsSVG)); err != nil {
+func (r *Report) WriteHTML(w io.Writer, opt Options) error { return r.writeHTML(w, opt, chartsSVG) }
+
+func (r *Report) writeHTML(w io.Writer, opt Options, use chartUse) error {
+	if err := htmlTemplate.Execute(w, r.view(opt, use)); err != nil {
 		return fmt.Errorf("render HTML report of session %s: %w", r.Session.ID, err)
 	}
 	return nil
