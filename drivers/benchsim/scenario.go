@@ -229,9 +229,9 @@ func LoadScenario(path string) (*Scenario, error) {
 
 // ParseScenario decodes and checks a scenario; name is used in errors.
 // Unknown keys are errors. Missing optional values get their defaults.
-func ParseScenario(name string, data []byte) (*Scenario, error) {
+func ParseScenario(name string, data []byte) (scn *Scenario, err error) {
 	var s Scenario
-	if err := yaml.UnmarshalWithOptions(data, &s, yaml.DisallowUnknownField(), yaml.Strict()); err != nil {
+	if err := decodeYAML(data, &s); err != nil {
 		if derr := checkDurations(name, data); derr != nil {
 			return nil, derr // the decoder gives no line for a bad duration
 		}
@@ -246,6 +246,22 @@ func ParseScenario(name string, data []byte) (*Scenario, error) {
 		return nil, &ScenarioError{File: name, Msg: err.Error()}
 	}
 	return &s, nil
+}
+
+// decodeYAML decodes strictly. The YAML decoder panics on some malformed
+// documents (found by fuzzing, e.g. "faults: ! "); that is turned into an
+// error, found again by the position-reporting parser where it can.
+func decodeYAML(data []byte, v any) (err error) {
+	defer func() {
+		if r := recover(); r != nil {
+			if _, perr := parser.ParseBytes(data, 0); perr != nil {
+				err = perr
+				return
+			}
+			err = fmt.Errorf("malformed YAML: the decoder failed (%v); look for an empty tag (!) or a stray anchor", r)
+		}
+	}()
+	return yaml.UnmarshalWithOptions(data, v, yaml.DisallowUnknownField(), yaml.Strict())
 }
 
 func yamlError(name string, err error) error {
