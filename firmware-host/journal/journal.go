@@ -265,16 +265,53 @@ func marshalPayload(payload any) ([]byte, error) {
 	return json.Marshal(payload)
 }
 
+// Item is one record for AppendAll.
+type Item struct {
+	Kind    entry.Kind
+	Payload any
+}
+
+// AppendAll records items as the next records of session in one
+// transaction (one fsync): all are durable when it returns, or none is
+// recorded. It suits bursts of readings and bulk loads; the head is
+// signed once, at the last record.
+func (j *Journal) AppendAll(ctx context.Context, session string, items []Item) (last int64, err error) {
+	for _, it := range items {
+		if it.Kind == entry.KindSession {
+			return 0, fmt.Errorf("append to session %s: a session record is written by Begin", session)
+		}
+	}
+	return j.appendItems(ctx, session, items, false)
+}
+
 func (j *Journal) append(ctx context.Context, session string, kind entry.Kind, payload any, first bool) (int64, error) {
+	return j.appendItems(ctx, session, []Item{{kind, payload}}, first)
+}
+
+func (j *Journal) appendItems(ctx context.Context, session string, items []Item, first bool) (int64, error) {
+	if len(items) == 0 {
+		return 0, fmt.Errorf("append to session %s: no records", session)
+	}
+	kind := items[0].Kind
 	fail := func(err error) (int64, error) {
+		if len(items) > 1 {
+			return 0, fmt.Errorf("append %d records to session %s: %w", len(items), session, err)
+		}
 		return 0, fmt.Errorf("append %s to session %s: %w", kind, session, err)
 	}
-	if kind == "" {
-		return fail(errors.New("empty kind"))
-	}
-	body, err := marshalPayload(payload)
-	if err != nil {
-		return fail(fmt.Errorf("encode payload: %w", err))
+	bodies := make([][]byte, len(items))
+	for i, it := range items {
+		if it.Kind == "" {
+			return fail(errors.New("empty kind"))
+		}
+		if it.Kind == entry.KindSessionEnd && i != len(items)-1 {
+			return fail(errors.New("records after the session_end"))
+		}
+		body, err := marshalPayload(it.Payload)
+		if err != nil {
+			return fail(fmt.Errorf("encode %s payload: %w", it.Kind, err))
+		}
+		bodies[i] = body
 	}
 	j.mu.Lock()
 	defer j.mu.Unlock()
@@ -301,21 +338,29 @@ func (j *Journal) append(ctx context.Context, session string, kind entry.Kind, p
 	case ended:
 		return fail(ErrSessionEnded)
 	}
-	r := Record{Seq: seq + 1, Session: session, Kind: kind, Wall: j.clk.Now().UTC().Format(WallFormat),
-		Mono: int64(j.clk.Mono()), BootID: j.boot, Payload: body, Prev: prev}
-	h := r.ComputeHash()
-	r.Hash = hex.EncodeToString(h[:])
-	r.Sig = hex.EncodeToString(ed25519.Sign(j.priv, recordMessage(h[:])))
-	headSig := hex.EncodeToString(ed25519.Sign(j.priv, headMessage(session, r.Seq, h[:])))
-	if _, err := tx.ExecContext(ctx, `INSERT INTO records VALUES (?,?,?,?,?,?,?,?,?,?)`,
-		r.Session, r.Seq, string(r.Kind), r.Wall, r.Mono, r.BootID, string(r.Payload), r.Prev, r.Hash, r.Sig); err != nil {
+	ins, err := tx.PrepareContext(ctx, `INSERT INTO records VALUES (?,?,?,?,?,?,?,?,?,?)`)
+	if err != nil {
 		return fail(err)
 	}
-	isEnd := kind == entry.KindSessionEnd
+	defer ins.Close()
+	var h [HashSize]byte
+	for i, it := range items {
+		r := Record{Seq: seq + 1, Session: session, Kind: it.Kind, Wall: j.clk.Now().UTC().Format(WallFormat),
+			Mono: int64(j.clk.Mono()), BootID: j.boot, Payload: bodies[i], Prev: prev}
+		h = r.ComputeHash()
+		r.Hash = hex.EncodeToString(h[:])
+		r.Sig = hex.EncodeToString(ed25519.Sign(j.priv, recordMessage(h[:])))
+		if _, err := ins.ExecContext(ctx, r.Session, r.Seq, string(r.Kind), r.Wall, r.Mono, r.BootID, string(r.Payload), r.Prev, r.Hash, r.Sig); err != nil {
+			return fail(err)
+		}
+		seq, prev = r.Seq, r.Hash
+	}
+	headSig := hex.EncodeToString(ed25519.Sign(j.priv, headMessage(session, seq, h[:])))
+	isEnd := items[len(items)-1].Kind == entry.KindSessionEnd
 	if first {
-		_, err = tx.ExecContext(ctx, `INSERT INTO heads(session, seq, hash, head_sig, ended) VALUES (?,?,?,?,0)`, session, r.Seq, r.Hash, headSig)
+		_, err = tx.ExecContext(ctx, `INSERT INTO heads(session, seq, hash, head_sig, ended) VALUES (?,?,?,?,?)`, session, seq, prev, headSig, isEnd)
 	} else {
-		_, err = tx.ExecContext(ctx, `UPDATE heads SET seq = ?, hash = ?, head_sig = ?, ended = ? WHERE session = ?`, r.Seq, r.Hash, headSig, isEnd, session)
+		_, err = tx.ExecContext(ctx, `UPDATE heads SET seq = ?, hash = ?, head_sig = ?, ended = ? WHERE session = ?`, seq, prev, headSig, isEnd, session)
 	}
 	if err != nil {
 		return fail(err)
@@ -323,7 +368,7 @@ func (j *Journal) append(ctx context.Context, session string, kind entry.Kind, p
 	if err := tx.Commit(); err != nil {
 		return fail(err)
 	}
-	return r.Seq, nil
+	return seq, nil
 }
 
 // Records returns up to limit records of session with seq > after, in

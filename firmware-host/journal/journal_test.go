@@ -19,7 +19,7 @@ import (
 	"kermalux/firmware-host/journal/journaltest"
 )
 
-func openTest(t *testing.T, dir string) *Journal {
+func openTest(t testing.TB, dir string) *Journal {
 	t.Helper()
 	j, err := Open(filepath.Join(dir, "journal.db"), Options{KeyDir: filepath.Join(dir, "key"), SoftwareVersion: "test",
 		Clock: clock.NewManual(time.Date(2026, 3, 4, 9, 0, 0, 0, time.UTC)), BootID: func() string { return "boot-1" }})

@@ -36,8 +36,12 @@ func (w *sampleWriter) add(kind entry.Kind, payload any, advance time.Duration) 
 
 var sampleStart = time.Date(2026, 11, 18, 9, 2, 0, 0, time.UTC)
 
-func sampleCerts() []entry.CertRef {
-	return []entry.CertRef{
+func sampleCerts() []entry.CertRef { return sampleCertsShifted(0) }
+
+// sampleCertsShifted returns the sample certificates with their dates moved
+// by d (for sessions of other years).
+func sampleCertsShifted(d time.Duration) []entry.CertRef {
+	cs := []entry.CertRef{
 		{ID: "NCL-D-24117", Meter: "dosimeter", Model: "Veltrane KR-40", Serial: "KR40-1187", Laboratory: "Northgate Calibration Laboratory",
 			Calibrated: time.Date(2026, 3, 10, 0, 0, 0, 0, time.UTC), Due: time.Date(2027, 3, 10, 0, 0, 0, 0, time.UTC), Valid: true,
 			SHA256: "5d0c8a41e7b29f36c1a4d8e0f2b7a9c3d6e1f4a7b0c3d6e9f2a5b8c1d4e7f0a3"},
@@ -45,6 +49,10 @@ func sampleCerts() []entry.CertRef {
 			Calibrated: time.Date(2025, 12, 1, 0, 0, 0, 0, time.UTC), Due: time.Date(2026, 12, 1, 0, 0, 0, 0, time.UTC), Valid: true,
 			SHA256: "a1f3c5e7092b4d6f8a0c2e4f6b8d0a2c4e6f8b0d2a4c6e8f0b2d4a6c8e0f2b4d"},
 	}
+	for i := range cs {
+		cs[i].Calibrated, cs[i].Due = cs[i].Calibrated.Add(d), cs[i].Due.Add(d)
+	}
+	return cs
 }
 
 // budget makes an uncertainty budget from relative standard uncertainties
@@ -67,7 +75,15 @@ func budget(rows ...entry.BudgetRow) ([]entry.BudgetRow, float64) {
 // session with a retake after a lost photometer and a failing contrast
 // ratio.
 func sampleSession() []entry.Envelope {
-	w := &sampleWriter{wall: sampleStart, mono: 41 * time.Second, session: "hv2291-20261118-0902"}
+	return sampleSessionAt(sampleStart, "hv2291-20261118-0902", 1, nil)
+}
+
+// sampleSessionAt is the sample session started at start with id, its
+// conversion factors multiplied by gScale and, when baselines is not nil,
+// those baselines (per field mode) recorded with them.
+func sampleSessionAt(start time.Time, id string, gScale float64, baselines map[string]float64) []entry.Envelope {
+	shift := start.Sub(sampleStart)
+	w := &sampleWriter{wall: start, mono: 41 * time.Second, session: id}
 	const of = 31
 	step := 0
 	startStep := func(id, kind, mode string) {
@@ -85,7 +101,7 @@ func sampleSession() []entry.Envelope {
 		BenchHash:       "4c2a0e8f6d4b2a0c8e6f4d2b0a8c6e4f2d0b8a6c4e2f0d8b6a4c2e0f8d6b4a2c",
 		SoftwareVersion: "0.1.0-dev",
 		BoardKey:        "b7e1c04d9a2f6e3b8c5d0a7f4e1b9c6d3a0f7e4b1c8d5a2f9e6b3c0d7a4f1e8b",
-		Started:         sampleStart, Certificates: sampleCerts(),
+		Started:         start, Certificates: sampleCertsShifted(shift),
 	}, 0)
 
 	// Pre-exposure safety checklist: each line acknowledged with a press.
@@ -151,6 +167,12 @@ func sampleSession() []entry.Envelope {
 		{"32cm", 0.452, 152.0, 168.0, "pass", "baseline: at least 0.80 of baseline"},
 		{"25cm", 0.738, 93.1, 101.5, "pass", "baseline: at least 0.80 of baseline"},
 		{"17cm", 1.61, 42.6, 47.9, "pass", "specification: at least 35 cd·m⁻²/(µGy·s⁻¹)"},
+	}
+	for mi := range modes {
+		modes[mi].g *= gScale
+		if b, ok := baselines[modes[mi].name]; ok {
+			modes[mi].baseline = b
+		}
 	}
 	for mi, m := range modes {
 		id := "conversion-" + m.name

@@ -325,7 +325,7 @@ func applyTx(ctx context.Context, tx *sql.Tx, b *journal.Batch) (Applied, error)
 	if err != nil {
 		return Applied{}, err
 	}
-	if err := b.Check(pub); err != nil {
+	if err := b.CheckSigned(pub); err != nil {
 		return refuse(ErrRefused, "%v", err)
 	}
 	var (

@@ -121,21 +121,41 @@ func Push(ctx context.Context, src Source, opts PushOptions) (PushSummary, error
 	for _, s := range sessions {
 		after := marks[s.ID]
 		failures := 0
+		var ahead chan prepared // the next batch, read and encoded while this one is sent
 		for after < s.Last {
-			b, err := src.NextBatch(ctx, s.ID, after, opts.BatchSize)
-			if err != nil {
-				return sum, err
+			var pb prepared
+			if ahead != nil {
+				pb = <-ahead
+				ahead = nil
+				if pb.err == nil && pb.b != nil && pb.b.First() != after+1 {
+					pb = prepare(ctx, src, s.ID, after, opts.BatchSize)
+				}
+			} else {
+				pb = prepare(ctx, src, s.ID, after, opts.BatchSize)
 			}
+			if pb.err != nil {
+				return sum, pb.err
+			}
+			b := pb.b
 			if b == nil {
 				break
 			}
-			resp, err := p.send(ctx, b)
+			if b.Last() < s.Last {
+				ahead = make(chan prepared, 1)
+				go func(after int64) { ahead <- prepare(ctx, src, s.ID, after, opts.BatchSize) }(b.Last())
+			}
+			var resp BatchResponse
+			err := p.postRaw(ctx, "/v1/batch", pb.data, &resp)
 			if err == nil {
 				sum.Sent += int64(resp.Stored)
 				sum.Duplicates += int64(resp.Duplicates)
 				prog.Add(resp.Stored)
 				after, failures = resp.High, 0
 				continue
+			}
+			if ahead != nil {
+				<-ahead // let the reader finish before asking again
+				ahead = nil
 			}
 			var re *RefusedError
 			if errors.As(err, &re) && re.Status == http.StatusForbidden || ctx.Err() != nil {
@@ -197,10 +217,20 @@ func (p *pusher) marks(ctx context.Context, ids []string) (map[string]int64, err
 	return resp.Marks, nil
 }
 
-func (p *pusher) send(ctx context.Context, b *journal.Batch) (BatchResponse, error) {
-	var resp BatchResponse
-	err := p.post(ctx, "/v1/batch", b, &resp)
-	return resp, err
+// prepared is a batch read from the journal and encoded.
+type prepared struct {
+	b    *journal.Batch
+	data []byte
+	err  error
+}
+
+func prepare(ctx context.Context, src Source, session string, after int64, n int) prepared {
+	b, err := src.NextBatch(ctx, session, after, n)
+	if err != nil || b == nil {
+		return prepared{err: err}
+	}
+	data, err := json.Marshal(b)
+	return prepared{b: b, data: data, err: err}
 }
 
 func (p *pusher) post(ctx context.Context, path string, body, out any) error {
@@ -208,6 +238,10 @@ func (p *pusher) post(ctx context.Context, path string, body, out any) error {
 	if err != nil {
 		return err
 	}
+	return p.postRaw(ctx, path, data, out)
+}
+
+func (p *pusher) postRaw(ctx context.Context, path string, data []byte, out any) error {
 	req, err := http.NewRequestWithContext(ctx, http.MethodPost, p.base+path, bytes.NewReader(data))
 	if err != nil {
 		return fmt.Errorf("workstation URL %q: %w", p.base, err)
