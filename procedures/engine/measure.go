@@ -111,8 +111,12 @@ func (e *Engine) measurePosition(ctx context.Context, idx int, s Step, pi int, p
 		a := e.newAttempt(idx, s, pi, pos, npos)
 		p, err := e.runAttempt(ctx, a)
 		if err == nil {
+			p.finite()
 			e.st.putPos(p)
-			b, _ := json.Marshal(p)
+			b, err := json.Marshal(p)
+			if err != nil {
+				return fmt.Errorf("step %d (%s): record measurement: %w", idx, s.ID, err)
+			}
 			return e.journal(ctx, entry.KindEvent, entry.Event{Step: idx, Name: evMeasured, Detail: string(b), BeamOn: e.st.beamOn.Seconds()})
 		}
 		var re *retryError
@@ -185,6 +189,16 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (posStat, error) {
 		return posStat{}, e.attemptFailed(ctx, a, err)
 	}
 	a.darkM, a.thresh = e.threshold(a, dark[a.signal])
+	if a.signal == Dosimeter && a.darkM > 5*l.BeamFloor {
+		// The beam is already on (a pedal held through a restart): have it
+		// released before taking the dark level again.
+		a.beamOn, a.thresh = true, 5*l.BeamFloor
+		a.lastSig = e.cfg.Clock.Mono()
+		if err := e.release(ctx, a, panel.Warn, "The beam is on. Release the beam."); err != nil {
+			return posStat{}, err
+		}
+		return posStat{}, &retryError{reason: "the beam was on before the prompt", free: true}
+	}
 
 	p := panel.Prompt{Step: a.idx, StepID: a.step.ID}
 	p.Text = a.step.Text
@@ -441,6 +455,7 @@ func (e *Engine) darkAttempt(ctx context.Context, a *attempt) (posStat, error) {
 		d = l.DarkTime
 	}
 	a.settled = 0
+	a.thresh = math.Inf(1) // no beam detection in a beam-off reading
 	start := e.cfg.Clock.Mono()
 	a.onAt = start
 	for e.cfg.Clock.Mono()-start < d {
@@ -660,10 +675,11 @@ func (e *Engine) observe(ctx context.Context, a *attempt, role string, r drivers
 			}
 		}
 	}
-	if a.beamOn && a.inStep[role] && r.Usable() {
+	live := a.beamOn || !a.spec.Beam
+	if live && a.inStep[role] && r.Usable() {
 		a.series[role] = append(a.series[role], tv{r.Mono, c.Value})
 	}
-	sampling := a.beamOn && a.settled >= 0 && a.inStep[role]
+	sampling := live && a.settled >= 0 && a.inStep[role]
 	if sampling {
 		a.hold = append(a.hold, held{role, r, c})
 		return nil

@@ -4,6 +4,7 @@ import (
 	"context"
 	"encoding/json"
 	"fmt"
+	"math"
 	"time"
 
 	"kermalux/firmware-host/journal/entry"
@@ -176,4 +177,15 @@ func (st *state) putPos(p posStat) {
 func (st *state) havePos(id string, i int) bool {
 	ps := st.meas[id]
 	return i < len(ps) && ps[i].Index == i
+}
+
+// finite replaces values JSON cannot carry (an infinite type A from a
+// single reading) with 0 and flags it.
+func (p *posStat) finite() {
+	for _, v := range []*float64{&p.L, &p.LU, &p.K, &p.KU, &p.G, &p.GU, &p.Drift, &p.BL, &p.BK} {
+		if math.IsInf(*v, 0) || math.IsNaN(*v) {
+			*v = 0
+			p.Flags = append(p.Flags, "too few readings for a type A uncertainty")
+		}
+	}
 }

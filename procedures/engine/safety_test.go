@@ -1,0 +1,171 @@
+package engine
+
+import (
+	"context"
+	"encoding/json"
+	"strings"
+	"testing"
+	"time"
+
+	"kermalux/firmware-host/journal/entry"
+	"kermalux/firmware-host/panel"
+)
+
+// The cumulative beam-on timer warns at 4.5 minutes and sounds the alarm
+// at 5 minutes (21 CFR 1020.32(h): a cumulative timer of at most five
+// minutes with an audible signal), and the alarm must be reset by a press.
+func TestFiveMinuteAlarmAndWarning(t *testing.T) {
+	steps := cfSteps()[:5]
+	// Four measurements whose precision target cannot be met, each
+	// holding the beam for its 100 s maximum: 400 s of beam in all.
+	for i := 0; i < 4; i++ {
+		steps = append(steps, Step{ID: "long" + string(rune('a'+i)), Kind: Measure, Text: "Press the switch, then step on the pedal.",
+			Measure: &MeasureSpec{Meters: []string{Dosimeter, Photometer}, Beam: true, Target: 1e-6, MaxBeamOn: 100 * time.Second}})
+	}
+	r := newRig(steps)
+	r.cfg.Limits.SettleMax = 200 * time.Second
+	resetAsked := false
+	r.reply = func(p panel.Prompt) (panel.Response, bool) {
+		if strings.Contains(p.Text, "reset the beam-on alarm") {
+			resetAsked = true
+		}
+		return panel.Response{}, false
+	}
+	sum, err := r.run(context.Background())
+	if err != nil {
+		t.Fatal(err)
+	}
+	warn := events(r.jr, sum.Session, evBeamWarning)
+	alarm := events(r.jr, sum.Session, evBeamAlarm)
+	if len(warn) < 1 || len(alarm) < 1 {
+		t.Fatalf("%d warnings, %d alarms; beam-on %s", len(warn), len(alarm), sum.BeamOn)
+	}
+	// The warning at 4.5 min, the alarm at 5 min, to within one reading
+	// period (0.1 s) of the dosimeter.
+	if w := warn[0].BeamOn; w < 270 || w > 270.2 {
+		t.Errorf("warning at %.2f s of beam-on, want 270", w)
+	}
+	if a := alarm[0].BeamOn; a < 300 || a > 300.2 {
+		t.Errorf("alarm at %.2f s of beam-on, want 300", a)
+	}
+	if !resetAsked {
+		t.Error("the alarm was not reset by a press")
+	}
+	var minutes int
+	for _, m := range r.pan.Messages() {
+		if m.Level == panel.Alarm && !strings.Contains(m.Text, "5 minutes") {
+			t.Errorf("alarm text %q", m.Text)
+		}
+		if strings.HasPrefix(m.Text, "Beam-on ") {
+			minutes++
+		}
+	}
+	if minutes < 4 {
+		t.Errorf("beam-on time spoken %d times", minutes)
+	}
+}
+
+// A power cut at any moment: the session resumes at the first
+// unfinished step; the checklist and entered values are not asked again,
+// each measurement is accepted exactly once and nothing journalled is lost.
+func TestResumeAfterPowerCut(t *testing.T) {
+	steps := cfSteps()
+	// A second field mode makes the cut land between measurements too.
+	steps = append(steps,
+		Step{ID: "cf@17cm", Kind: Measure, FieldMode: "17cm", Text: "Select the 17 centimetre field. Press the switch, then step on the pedal.",
+			Measure: &MeasureSpec{Meters: []string{Dosimeter, Photometer}, Beam: true, Quality: "RQA5", Target: 0.02, MaxBeamOn: 30 * time.Second}},
+		Step{ID: "g@17cm", Kind: Compute, FieldMode: "17cm", Compute: &ComputeSpec{Figure: "conversion_factor", Inputs: map[string]string{"luminance": "cf@17cm", "air_kerma_rate": "cf@17cm"}}},
+	)
+	// Count the appends of an uninterrupted run.
+	full := newRig(steps)
+	if _, err := full.run(context.Background()); err != nil {
+		t.Fatal(err)
+	}
+	total := full.jr.n
+	for cut := 3; cut < total; cut += max(1, total/40) {
+		r := newRig(steps)
+		ctx, cancel := context.WithCancel(context.Background())
+		r.jr.cutAfter, r.jr.cancel = cut, cancel
+		if cut%2 == 0 {
+			// Half the time the operator releases the pedal when the
+			// board goes dark; otherwise the engine finds the beam on.
+			r.jr.onCut = func() { r.phys.schedule(false, 0) }
+		}
+		sum, err := r.run(ctx)
+		cancel()
+		if err == nil {
+			t.Fatalf("cut %d: run finished", cut)
+		}
+		before := len(r.jr.sessions[sum.Session])
+		beforeRecs := append([]entry.Envelope(nil), r.jr.sessions[sum.Session]...)
+		// Power back: resume.
+		r.jr.cutAfter = 0
+		r.cfg.Resume = sum.Session
+		sum2, err := r.run(context.Background())
+		if err != nil {
+			t.Fatalf("cut %d: resume: %v", cut, err)
+		}
+		if sum2.Outcome != "complete" || len(sum2.Results) != 2 {
+			t.Fatalf("cut %d: outcome %s, %d results", cut, sum2.Outcome, len(sum2.Results))
+		}
+		after := r.jr.sessions[sum.Session]
+		for i := 0; i < before; i++ {
+			if string(after[i].Payload) != string(beforeRecs[i].Payload) {
+				t.Fatalf("cut %d: record %d changed", cut, i+1)
+			}
+		}
+		checks, values := 0, 0
+		for _, p := range r.pan.Prompts() {
+			if p.Action == panel.ActCheck {
+				checks++
+			}
+			if p.Action == panel.ActValue {
+				values++
+			}
+		}
+		// Acknowledged before the cut and asked again only if its step
+		// had not finished.
+		if checks > 2*len(safetyItems) || values > 4 {
+			t.Errorf("cut %d: %d checklist prompts, %d value prompts", cut, checks, values)
+		}
+		acc := map[string]int{}
+		for _, ev := range events(r.jr, sum.Session, evMeasured) {
+			var p posStat
+			_ = json.Unmarshal([]byte(ev.Detail), &p)
+			acc[p.Step]++
+		}
+		for _, id := range []string{"dark", "cf@32cm", "cf@17cm"} {
+			if acc[id] != 1 {
+				t.Errorf("cut %d: %s accepted %d times", cut, id, acc[id])
+			}
+		}
+		if !said(r.pan, "Resuming room 2 at step") {
+			t.Errorf("cut %d: resume not announced", cut)
+		}
+	}
+}
+
+// A meter lost mid-sample: "Photometer lost", wait, "Photometer back",
+// and the step is taken again.
+func TestMeterLostAndBack(t *testing.T) {
+	r := newRig(cfSteps())
+	// Beam prompt at about 6.5 s, beam on at about 7.8 s: pull the cable
+	// at 9.5 s for 4 s.
+	r.phot.lost = []window2{{9500 * time.Millisecond, 13500 * time.Millisecond}}
+	sum, err := r.run(context.Background())
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !said(r.pan, "Photometer lost") || !said(r.pan, "Photometer back") {
+		t.Fatalf("transcript:\n%s", r.pan.Transcript())
+	}
+	if len(events(r.jr, sum.Session, evMeterLost)) != 1 || len(events(r.jr, sum.Session, evMeterBack)) != 1 {
+		t.Error("meter lost/back events")
+	}
+	if r.phys.beamOns != 2 {
+		t.Errorf("%d beam-ons, want 2 (the step retaken)", r.phys.beamOns)
+	}
+	if len(sum.Results) != 1 {
+		t.Fatal("no result")
+	}
+}
