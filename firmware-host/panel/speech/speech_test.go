@@ -232,12 +232,39 @@ func TestEspeakWritesWAV(t *testing.T) {
 	if err := e.Speak(context.Background(), ForEar("Select the 32cm field.")); err != nil {
 		t.Fatal(err)
 	}
-	b, err := os.ReadFile(filepath.Join(e.WAVDir, "utterance-001.wav"))
+	// A text that looks like an option is spoken, not obeyed: no file is
+	// written where "-w" would point.
+	trap := filepath.Join(e.WAVDir, "trap.wav")
+	if err := e.Speak(context.Background(), "-w "+trap); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := os.Stat(trap); err == nil {
+		t.Error("text beginning with -w was taken as an option")
+	}
+	for _, name := range []string{"utterance-001.wav", "utterance-002.wav"} {
+		b, err := os.ReadFile(filepath.Join(e.WAVDir, name))
+		if err != nil {
+			t.Fatal(err)
+		}
+		// A WAV file starts "RIFF" .... "WAVE" (Microsoft RIFF format).
+		if len(b) < 44 || string(b[0:4]) != "RIFF" || string(b[8:12]) != "WAVE" {
+			t.Errorf("%s is not a WAV file: %d bytes, starts %q", name, len(b), b[:min(12, len(b))])
+		}
+	}
+}
+
+func TestEspeakStopsOnCancel(t *testing.T) {
+	if _, err := exec.LookPath("espeak-ng"); err != nil {
+		t.Skip("espeak-ng not installed")
+	}
+	e, err := FindEspeak("", 0)
 	if err != nil {
 		t.Fatal(err)
 	}
-	// A WAV file starts "RIFF" .... "WAVE" (Microsoft RIFF format).
-	if len(b) < 44 || string(b[0:4]) != "RIFF" || string(b[8:12]) != "WAVE" {
-		t.Errorf("not a WAV file: %d bytes, starts %q", len(b), b[:min(12, len(b))])
+	e.WAVDir = t.TempDir()
+	ctx, cancel := context.WithCancel(context.Background())
+	cancel()
+	if err := e.Speak(ctx, "Never said."); !errors.Is(err, context.Canceled) {
+		t.Errorf("err = %v, want context.Canceled", err)
 	}
 }
