@@ -1,0 +1,129 @@
+package bench
+
+import (
+	"strings"
+	"testing"
+	"time"
+)
+
+func TestLoadExamples(t *testing.T) {
+	for _, f := range []string{"harbour-view-room2.yaml", "demo-sim.yaml"} {
+		b, err := Load("../../testdata/bench/" + f)
+		if err != nil {
+			t.Fatalf("%s: %v", f, err)
+		}
+		if len(b.SHA256) != 64 || len(b.Meters) != 2 || len(b.Intensifier.FieldModes) != 3 {
+			t.Errorf("%s: %+v", f, b)
+		}
+		if _, err := b.EngineLimits(); err != nil {
+			t.Errorf("%s: limits: %v", f, err)
+		}
+	}
+}
+
+func TestRoom2Settings(t *testing.T) {
+	b, err := Load("../../testdata/bench/harbour-view-room2.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	l, err := b.EngineLimits()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if s := l.Spec["conversion_factor@25cm"]; !s.HasMin || s.Min != 75 {
+		t.Errorf("per-mode spec %+v", s)
+	}
+	if s := l.Spec["non_uniformity"]; !s.HasMax || s.Max != 0.25 {
+		t.Errorf("non-uniformity spec %+v", s)
+	}
+	if l.Inputs["spec.contrast_ratio_min"] != 15 || l.Inputs["action.conversion_factor_min"] != 100 {
+		t.Errorf("inputs %v", l.Inputs)
+	}
+	if l.Baseline["conversion_factor@32cm"] != 168 {
+		t.Errorf("baseline %v", l.Baseline)
+	}
+	if b.Panel.Kind != "gpio" || b.Panel.Switch != "GPIO17" || b.Panel.LongPress != 1500*time.Millisecond {
+		t.Errorf("panel %+v", b.Panel)
+	}
+	v := b.Values()
+	if v["temperature"] != 22 || v["pressure"] != 101.3 {
+		t.Errorf("values %v", v)
+	}
+	// The example certificates: valid on a day in 2026; the expired one
+	// is said aloud.
+	certs, problems, err := Certificates(b, time.Date(2026, 6, 1, 0, 0, 0, 0, time.UTC))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(certs) != 2 || len(problems) != 0 {
+		t.Errorf("%d certificates, problems %v", len(certs), problems)
+	}
+	_, problems, _ = Certificates(b, time.Date(2027, 4, 1, 0, 0, 0, 0, time.UTC))
+	if len(problems) == 0 || !strings.Contains(problems[0], "expired") {
+		t.Errorf("expired certificate not reported: %v", problems)
+	}
+}
+
+// Bad bench files are refused with the file and, for YAML faults, the line.
+func TestBadBenchFiles(t *testing.T) {
+	for _, c := range []struct{ file, want string }{
+		{"unknown-key.yaml", ":8:"},
+		{"unknown-key.yaml", "colour"},
+		{"two-dialects.yaml", "exactly one dialect"},
+		{"bad-role.yaml", "want dosimeter or photometer"},
+		{"not-yaml.yaml", "not-yaml.yaml:"},
+	} {
+		_, err := Load("../../testdata/bench/bad/" + c.file)
+		if err == nil {
+			t.Errorf("%s: accepted", c.file)
+			continue
+		}
+		if !strings.Contains(err.Error(), c.want) || !strings.Contains(err.Error(), c.file) {
+			t.Errorf("%s: error %q lacks %q", c.file, err, c.want)
+		}
+	}
+}
+
+func FuzzParse(f *testing.F) {
+	for _, s := range []string{
+		"site: a\nmeters:\n  - {name: d, role: dosimeter, port: /dev/x, profile: p.yaml}\n",
+		"meters: []\n", "site: [", "limits: {baseline_fraction: 2}\n",
+	} {
+		f.Add([]byte(s))
+	}
+	f.Fuzz(func(t *testing.T, data []byte) {
+		b, err := Parse("fuzz.yaml", data)
+		if err == nil && len(b.Meters) == 0 {
+			t.Fatal("a bench without meters was accepted")
+		}
+	})
+}
+
+// The built-in acceptance sequence passes the checker on the example
+// bench and flattens into engine steps with a safety checklist before the
+// first exposure.
+func TestBuiltinAcceptanceOnBench(t *testing.T) {
+	b, err := Load("../../testdata/bench/harbour-view-room2.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	p, err := b.Procedure("")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(p.Steps) < 10 {
+		t.Fatalf("%d steps", len(p.Steps))
+	}
+	safety := false
+	for _, s := range p.Steps {
+		if s.Safety {
+			safety = true
+		}
+		if s.Kind == "measure" && s.Measure.Beam && !safety {
+			t.Fatalf("beam step %s before the checklist", s.ID)
+		}
+	}
+	if !safety {
+		t.Fatal("no safety checklist")
+	}
+}
