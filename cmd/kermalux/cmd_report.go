@@ -1,0 +1,97 @@
+package main
+
+import (
+	"errors"
+	"fmt"
+
+	"github.com/spf13/cobra"
+
+	"kermalux/firmware-host/journal/report"
+	"kermalux/firmware-host/journal/store"
+)
+
+func init() {
+	var storePath, session, serial, journalPath, out, formats string
+	var latest bool
+	var actionLevel float64
+	cmd := &cobra.Command{
+		Use:   "report (--store PATH (--session ID | --serial SERIAL [--latest]) | --journal FILE) --out DIR",
+		Short: "Render the acceptance report of a session as HTML, PDF and CSV",
+		Long: `report renders the acceptance report of a session: a summary of verdicts and
+what needs review, the results with their expanded uncertainties, charts, the
+certificates, the corrections, the uncertainty budgets, the safety
+acknowledgements with their times, the beam-on time, every reading, the
+cautions and a place for the physicist's comment and signature.
+
+From the workstation store, choose one session (--session) or an intensifier
+(--serial: all its sessions, or only the newest with --latest); the report then
+includes the intensifier's conversion factor history with the projected date
+at the action level. From a board journal file (--journal: the SQLite journal
+or its "journal export --json" output), the last session is rendered unless
+--session names another.
+
+Files are written to DIR as report-<serial>-<date>-<session>.html, .pdf,
+-results.csv and -readings.csv; their paths are printed.`,
+		Args: cobra.NoArgs,
+		RunE: func(cmd *cobra.Command, args []string) error {
+			fmts, err := report.ParseFormats(formats)
+			if err != nil {
+				return withCode(exitUsage, err)
+			}
+			switch {
+			case storePath != "" && journalPath != "":
+				return withCode(exitUsage, errors.New("give --store or --journal, not both"))
+			case storePath == "" && journalPath == "":
+				return withCode(exitUsage, errors.New("give --store PATH or --journal FILE"))
+			case journalPath != "" && (serial != "" || latest):
+				return withCode(exitUsage, errors.New("--serial and --latest choose sessions of a store; with --journal use --session"))
+			case storePath != "" && (session == "") == (serial == ""):
+				return withCode(exitUsage, errors.New("with --store give either --session ID or --serial SERIAL"))
+			case latest && serial == "":
+				return withCode(exitUsage, errors.New("--latest goes with --serial"))
+			}
+			var reports []*report.Report
+			if journalPath != "" {
+				r, err := report.FromJournal(cmd.Context(), journalPath, session)
+				if err != nil {
+					return withCode(exitFailure, err)
+				}
+				reports = append(reports, r)
+			} else {
+				if !store.Exists(storePath) {
+					return withCode(exitFailure, fmt.Errorf("store %s does not exist (receive or import sessions first)", storePath))
+				}
+				st, err := store.Open(storePath)
+				if err != nil {
+					return withCode(exitFailure, err)
+				}
+				defer st.Close()
+				reports, err = report.FromStore(cmd.Context(), st, report.Selection{Session: session, Serial: serial, Latest: latest}, actionLevel)
+				if err != nil {
+					return withCode(exitFailure, err)
+				}
+			}
+			for _, r := range reports {
+				paths, err := r.WriteFiles(out, fmts, report.Options{Version: version})
+				for _, p := range paths {
+					fmt.Fprintln(cmd.OutOrStdout(), p)
+				}
+				if err != nil {
+					return withCode(exitFailure, err)
+				}
+			}
+			return nil
+		},
+	}
+	f := cmd.Flags()
+	f.StringVar(&storePath, "store", "", "workstation store file")
+	f.StringVar(&session, "session", "", "session id")
+	f.StringVar(&serial, "serial", "", "intensifier serial number: report its sessions")
+	f.BoolVar(&latest, "latest", false, "with --serial: only the newest session")
+	f.StringVar(&journalPath, "journal", "", "board journal file, or its JSON-lines export")
+	f.StringVar(&out, "out", "", "directory to write the report into")
+	f.StringVar(&formats, "format", "html,pdf,csv", "comma-separated formats: html, pdf, csv")
+	f.Float64Var(&actionLevel, "action-level", report.DefaultActionLevel, "action level for the trend, as a fraction of baseline (a local decision)")
+	_ = cmd.MarkFlagRequired("out")
+	register(cmd)
+}
