@@ -7,8 +7,11 @@ import (
 	"time"
 
 	"kermalux/calib"
+	"kermalux/drivers"
+	"kermalux/drivers/clock"
 	"kermalux/drivers/units"
 	"kermalux/firmware-host/journal/entry"
+	"kermalux/firmware-host/panel"
 	"kermalux/procedures/engine"
 	"kermalux/procedures/script"
 )
@@ -133,4 +136,62 @@ func (b *Bench) Procedure(name string) (engine.Procedure, error) {
 	}
 	proc := engine.FromFlat(flat)
 	return proc, nil
+}
+
+// Config assembles the engine's configuration for a session on this
+// bench: limits, certificates and corrections, defaults, session record.
+// The meters, panel, journal and clock are opened by the caller.
+func (b *Bench) Config(proc engine.Procedure, meters map[string]drivers.Meter, pan panel.Panel, j engine.Journal, clk clock.Clock, version string) (engine.Config, error) {
+	day := clk.Now()
+	lim, err := b.EngineLimits()
+	if err != nil {
+		return engine.Config{}, err
+	}
+	certs, problems, err := Certificates(b, day)
+	if err != nil {
+		return engine.Config{}, err
+	}
+	corr, refs := b.Correctors(certs, day)
+	return engine.Config{
+		Procedure: proc, Meters: meters, Correctors: corr, Panel: pan, Journal: j, Clock: clk,
+		Session: entry.Session{Site: b.Site, Room: b.Room, IntensifierModel: b.Intensifier.Model,
+			IntensifierSerial: b.Intensifier.Serial, Engineer: b.Engineer, Procedure: proc.Name,
+			ProcedureHash: proc.Hash, BenchHash: b.SHA256, SoftwareVersion: version, Started: day, Certificates: refs},
+		Values: b.Values(), CertProblems: problems, Limits: lim, BootID: BootID(),
+	}, nil
+}
+
+// BootID is this boot's id (Linux), "unknown" elsewhere.
+func BootID() string {
+	b, err := os.ReadFile("/proc/sys/kernel/random/boot_id")
+	if err != nil {
+		return "unknown"
+	}
+	return strings.TrimSpace(string(b))
+}
+
+// Found says what the board found at start-up, for the standby greeting:
+// "Dosimeter found, certificate valid until March 2027."
+func (b *Bench) Found(meters map[string]drivers.Meter, day time.Time) string {
+	certs, _, _ := Certificates(b, day)
+	var parts []string
+	for _, m := range b.Meters {
+		s := strings.ToUpper(m.Role[:1]) + m.Role[1:]
+		if meters[m.Role] == nil {
+			parts = append(parts, s+" not found")
+			continue
+		}
+		s += " found"
+		if c := certs[m.Role]; c != nil {
+			if day.After(c.Due) {
+				s += ", certificate expired"
+			} else {
+				s += ", certificate valid until " + c.Due.Format("January 2006")
+			}
+		} else {
+			s += ", no certificate"
+		}
+		parts = append(parts, s)
+	}
+	return strings.Join(parts, ". ") + "."
 }

@@ -1,0 +1,188 @@
+package main
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"os"
+	"os/signal"
+	"strings"
+	"syscall"
+
+	"github.com/spf13/cobra"
+
+	"kermalux/drivers"
+	"kermalux/drivers/clock"
+	"kermalux/firmware-host/bench"
+	"kermalux/firmware-host/journal"
+	"kermalux/firmware-host/panel"
+	"kermalux/firmware-host/panel/compose"
+	"kermalux/procedures/engine"
+	"kermalux/procedures/script"
+)
+
+type runOptions struct {
+	bench   string
+	panel   string
+	out     string
+	journal string
+	standby bool
+	fresh   bool
+	ports   []string
+}
+
+func init() {
+	var o runOptions
+	cmd := &cobra.Command{
+		Use:   "run [PROCEDURE] --bench BENCHFILE",
+		Short: "Run a procedure on the bench, hands-free",
+		Long: `Run a procedure (a built-in name or a script file; default: the bench file's
+sequence) on the meters and panel the bench file names. The procedure must pass
+the checker. An unfinished session of the same procedure on the same intensifier
+is resumed at its first unfinished step. results.json is written to --out.
+
+With --standby (at boot) the board beeps twice, says which meters and
+certificates it found, and waits for a press of the foot switch to start.
+
+CAUTION: X-rays are dangerous. Follow local regulations and the advice of your
+medical physicist or radiation safety officer.`,
+		Args: cobra.MaximumNArgs(1),
+		RunE: func(cmd *cobra.Command, args []string) error {
+			name := ""
+			if len(args) == 1 {
+				name = args[0]
+			}
+			return runRun(cmd.Context(), o, name)
+		},
+	}
+	f := cmd.Flags()
+	f.StringVar(&o.bench, "bench", "", "bench file (required)")
+	f.StringVar(&o.panel, "panel", "", "panel: terminal or gpio (default: the bench file's)")
+	f.StringVar(&o.out, "out", ".", "directory for results.json")
+	f.StringVar(&o.journal, "journal", "", "journal file (default: the bench file's)")
+	f.BoolVar(&o.standby, "standby", false, "wait at the ready for a foot-switch press before starting")
+	f.BoolVar(&o.fresh, "new", false, "start a new session even if an unfinished one exists")
+	f.StringArrayVar(&o.ports, "port", nil, "NAME=PATH: use PATH for the bench's meter NAME (repeatable; e.g. the simulator's links)")
+	_ = cmd.MarkFlagRequired("bench")
+	register(cmd)
+}
+
+func runRun(parent context.Context, o runOptions, name string) error {
+	if parent == nil {
+		parent = context.Background()
+	}
+	ctx, stop := signal.NotifyContext(parent, os.Interrupt, syscall.SIGTERM)
+	defer stop()
+	b, err := bench.Load(o.bench)
+	if err != nil {
+		return withCode(exitFailure, err)
+	}
+	proc, err := b.Procedure(name)
+	if err != nil {
+		var probs script.Problems
+		if errors.As(err, &probs) {
+			for _, p := range probs {
+				fmt.Fprintln(os.Stderr, p.String())
+			}
+		}
+		return withCode(exitFailure, err)
+	}
+	if o.panel != "" {
+		if o.panel != compose.KindGPIO && o.panel != compose.KindTerminal {
+			return withCode(exitUsage, fmt.Errorf("--panel %q: want terminal or gpio", o.panel))
+		}
+		b.Panel.Kind = o.panel
+	}
+	clk := clock.NewReal()
+	jpath := o.journal
+	if jpath == "" {
+		jpath = b.Rel(b.Journal)
+	}
+	if jpath == "" {
+		return withCode(exitUsage, fmt.Errorf("bench %s names no journal; give --journal", o.bench))
+	}
+	jr, err := journal.Open(jpath, journal.Options{KeyDir: b.Keys, SoftwareVersion: version, Clock: clk})
+	if err != nil {
+		return withCode(exitFailure, err)
+	}
+	defer jr.Close()
+	pan, err := compose.Open(b.Panel, clk, compose.Terminal{}, nil)
+	if err != nil {
+		return withCode(exitFailure, err)
+	}
+	defer pan.Close()
+	ports := map[string]string{}
+	for _, kv := range o.ports {
+		k, v, ok := strings.Cut(kv, "=")
+		if !ok || k == "" || v == "" {
+			return withCode(exitUsage, fmt.Errorf("--port %q: want NAME=PATH", kv))
+		}
+		ports[k] = v
+	}
+	meters, err := bench.OpenMeters(ctx, b, clk, ports)
+	if err != nil {
+		_ = pan.Say(ctx, panel.Message{Text: "A meter was not found: " + err.Error(), Level: panel.Warn})
+		_ = pan.Indicate(ctx, panel.Fault)
+		return withCode(exitFailure, err)
+	}
+	defer closeMeters(meters)
+	cfg, err := b.Config(proc, meters, pan, jr, clk, version)
+	if err != nil {
+		return withCode(exitFailure, err)
+	}
+	if !o.fresh {
+		if id, err := unfinished(ctx, jr, cfg); err != nil {
+			return withCode(exitFailure, err)
+		} else if id != "" {
+			cfg.Resume = id
+		}
+	}
+	if o.standby {
+		text := "Ready. " + b.Found(meters, clk.Now()) + " Press the switch to start " + proc.Title + "."
+		if cfg.Resume != "" {
+			text = "Ready. " + b.Found(meters, clk.Now()) + " Press the switch to resume " + proc.Title + "."
+		}
+		_ = pan.Indicate(ctx, panel.Ready)
+		if _, err := pan.Ask(ctx, panel.Prompt{Message: panel.Message{Text: text, Level: panel.Info, Action: panel.ActAcknowledge}}); err != nil {
+			return withCode(exitFailure, err)
+		}
+	}
+	eng, err := engine.New(cfg)
+	if err != nil {
+		return withCode(exitFailure, err)
+	}
+	sum, runErr := eng.Run(ctx)
+	if sum.Session != "" && sum.Outcome != "interrupted" {
+		path, err := engine.WriteResultsFile(o.out, engine.NewResultsFile(sum, cfg.Session))
+		if err != nil {
+			return withCode(exitFailure, errors.Join(runErr, err))
+		}
+		fmt.Fprintf(os.Stderr, "session %s: %s, %d results, %d to review, beam-on %.0f s; %s\n", sum.Session, sum.Outcome, len(sum.Results), sum.Review, sum.BeamOn.Seconds(), path)
+	}
+	if runErr != nil {
+		return withCode(exitFailure, runErr)
+	}
+	return nil
+}
+
+// unfinished finds an unfinished session of the same procedure on the
+// same intensifier to resume.
+func unfinished(ctx context.Context, jr *journal.Journal, cfg engine.Config) (string, error) {
+	ss, err := jr.Unfinished(ctx)
+	if err != nil {
+		return "", err
+	}
+	id := ""
+	for _, s := range ss {
+		if s.Session.Procedure == cfg.Session.Procedure && s.Session.IntensifierSerial == cfg.Session.IntensifierSerial && s.Session.ProcedureHash == cfg.Session.ProcedureHash {
+			id = s.ID // the latest one
+		}
+	}
+	return id, nil
+}
+
+func closeMeters(ms map[string]drivers.Meter) {
+	for _, m := range ms {
+		m.Close()
+	}
+}
