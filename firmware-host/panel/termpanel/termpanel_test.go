@@ -200,7 +200,7 @@ func TestDiscardTypeAhead(t *testing.T) {
 	if _, err := w.Write([]byte("\n")); err != nil {
 		t.Fatal(err)
 	}
-	time.Sleep(20 * time.Millisecond)
+	time.Sleep(100 * time.Millisecond)
 	done := make(chan panel.Response)
 	go func() {
 		resp, _ := p.Ask(context.Background(), panel.Prompt{Message: panel.Message{Text: "Door warning light on?"}})
