@@ -40,7 +40,10 @@ up stored once. The board must be enrolled at the workstation first
 			}
 			sum, err := transfer.Push(cmd.Context(), j, opts)
 			if err != nil {
-				return withCode(exitFailure, fmt.Errorf("%s (%s so far)", err, sum))
+				if sum.Sent > 0 {
+					err = fmt.Errorf("%w (%d records were stored before this; run push again to resume)", err, sum.Sent)
+				}
+				return withCode(exitFailure, err)
 			}
 			fmt.Fprintln(cmd.OutOrStdout(), sum)
 			return nil

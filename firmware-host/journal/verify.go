@@ -166,16 +166,15 @@ func VerifyKey(ctx context.Context, path string, pub ed25519.PublicKey) (Report,
 			continue
 		}
 		rep.Records += int64(len(recs))
+		if !h.ended {
+			rep.Unfinished = append(rep.Unfinished, s)
+		}
 		if p := CheckSession(fileKey, recs); p != nil {
 			rep.Problems = append(rep.Problems, *p)
 			continue
 		}
 		if p := h.check(fileKey, recs); p != nil {
 			rep.Problems = append(rep.Problems, *p)
-			continue
-		}
-		if !h.ended {
-			rep.Unfinished = append(rep.Unfinished, s)
 		}
 	}
 	return rep, nil

@@ -23,4 +23,8 @@ func TestPreview(t *testing.T) {
 	for _, p := range paths {
 		t.Log(p)
 	}
+	// A board journal and a workstation store holding seven yearly
+	// sessions of HV-2291 and two other intensifiers, for trying the
+	// report and trend commands.
+	t.Log(buildStore(t, filepath.Clean(dir), 3, 7))
 }

@@ -190,7 +190,7 @@ func boardKey(ctx context.Context, q queryRower, key string) (ed25519.PublicKey,
 	var name string
 	err := q.QueryRowContext(ctx, `SELECT name FROM boards WHERE key = ?`, key).Scan(&name)
 	if errors.Is(err, sql.ErrNoRows) {
-		return nil, "", fmt.Errorf("%w: board key %s is not enrolled in this store (enroll it first: kermalux enroll --key %s --name NAME)", ErrNotEnrolled, shortKey(key), key)
+		return nil, "", fmt.Errorf("%w: board key %s is not enrolled in this store (enroll it first: kermalux enroll --store STORE --key %s --name NAME)", ErrNotEnrolled, shortKey(key), key)
 	}
 	if err != nil {
 		return nil, "", err

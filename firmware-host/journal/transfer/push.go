@@ -66,8 +66,9 @@ func (e *RefusedError) Error() string {
 // batch. It resumes after any interruption (a cut connection, a workstation
 // restart): it asks the workstation for its high-water marks again and
 // sends from there, so each record ends up stored once.
-func Push(ctx context.Context, src Source, opts PushOptions) (PushSummary, error) {
+func Push(ctx context.Context, src Source, opts PushOptions) (sum PushSummary, err error) {
 	start := time.Now()
+	defer func() { sum.Elapsed = time.Since(start) }()
 	if opts.Client == nil {
 		opts.Client = &http.Client{Timeout: 60 * time.Second}
 	}
@@ -85,7 +86,6 @@ func Push(ctx context.Context, src Source, opts PushOptions) (PushSummary, error
 	}
 	base := strings.TrimRight(opts.URL, "/")
 	p := &pusher{opts: opts, base: base, board: src.BoardKey()}
-	var sum PushSummary
 	sessions, err := src.Sessions(ctx)
 	if err != nil {
 		return sum, err
@@ -182,7 +182,6 @@ func Push(ctx context.Context, src Source, opts PushOptions) (PushSummary, error
 			after = m[s.ID]
 		}
 	}
-	sum.Elapsed = time.Since(start)
 	return sum, nil
 }
 

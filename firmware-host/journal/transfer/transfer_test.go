@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"context"
 	"crypto/ed25519"
+	"database/sql"
 	"encoding/json"
 	"errors"
 	"io"
@@ -12,6 +13,7 @@ import (
 	"net"
 	"net/http"
 	"net/http/httptest"
+	"os"
 	"path/filepath"
 	"strings"
 	"sync"
@@ -389,3 +391,47 @@ func TestBundleTampering(t *testing.T) {
 }
 
 var quiet = slog.New(slog.DiscardHandler)
+
+// TestWorkstationRefusesTamperedJournal pushes tampered copies of a
+// journal: the workstation refuses each with 403, naming the record.
+func TestWorkstationRefusesTamperedJournal(t *testing.T) {
+	ctx := context.Background()
+	dir := t.TempDir()
+	j := board(t, dir, 1, 3, false)
+	j.Close()
+	src, _ := os.ReadFile(filepath.Join(dir, "journal.db"))
+	for _, c := range []struct{ name, sql, want string }{
+		{"edit a value", `UPDATE records SET payload = replace(payload, '21.5', '25.5') WHERE seq = 5`, "record 5"},
+		{"delete a record", `DELETE FROM records WHERE seq = 9`, "missing"},
+		{"flip a hash byte", `UPDATE records SET hash = '0' || substr(hash, 2) WHERE seq = 3`, "record 3"},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			cp := filepath.Join(t.TempDir(), "copy.db")
+			os.WriteFile(cp, src, 0o600)
+			db, err := sql.Open("sqlite", cp)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if _, err := db.Exec(c.sql); err != nil {
+				t.Fatal(err)
+			}
+			db.Close()
+			tj, err := journal.Open(cp, journal.Options{KeyDir: filepath.Join(dir, "key")})
+			if err != nil {
+				t.Fatal(err)
+			}
+			defer tj.Close()
+			st := workstation(t, tj.PublicKey())
+			srv := httptest.NewServer(Handler(st, quiet))
+			defer srv.Close()
+			_, err = Push(ctx, tj, PushOptions{URL: srv.URL})
+			var re *RefusedError
+			if !errors.As(err, &re) || re.Status != http.StatusForbidden || !strings.Contains(re.Reason, c.want) {
+				t.Fatalf("got %v, want 403 naming %q", err, c.want)
+			}
+			if n, _ := st.Sessions(ctx, store.Query{}); len(n) != 0 {
+				t.Errorf("a refused batch left %d sessions in the store", len(n))
+			}
+		})
+	}
+}
