@@ -247,7 +247,11 @@ func mapSpec(m LuminanceMap) (chartSpec, error) {
 			lpts[i], right[i] = plotter.XY{X: q.X + 0.12, Y: q.Y}, true
 			continue
 		}
-		lpts[i] = plotter.XY{X: q.X, Y: q.Y - 0.19}
+		x := q.X
+		if math.Abs(x) > 0.7 { // keep labels near the edge inside the face
+			x -= math.Copysign(0.07, x)
+		}
+		lpts[i] = plotter.XY{X: x, Y: q.Y - 0.19}
 	}
 	lb, err := plotter.NewLabels(plotter.XYLabels{XYs: lpts, Labels: labels})
 	if err != nil {

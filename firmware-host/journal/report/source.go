@@ -9,6 +9,7 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"strings"
 
 	"kermalux/firmware-host/journal"
 	"kermalux/firmware-host/journal/entry"
@@ -150,5 +151,10 @@ func PickSession(sessions [][]entry.Envelope, id, from string) ([]entry.Envelope
 			ids = append(ids, s[0].Session)
 		}
 	}
-	return nil, fmt.Errorf("%s: no session %q (it has %d: %v)", from, id, len(ids), ids)
+	shown := ids
+	if len(shown) > 8 {
+		shown = append(shown[:4:4], "…")
+		shown = append(shown, ids[len(ids)-3:]...)
+	}
+	return nil, fmt.Errorf("%s: no session %q (it has %d: %s)", from, id, len(ids), strings.Join(shown, ", "))
 }

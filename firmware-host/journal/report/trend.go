@@ -112,7 +112,8 @@ func Fit(serial, quantity string, history []HistoryPoint, actionLevel float64) [
 		}
 		groups[h.Result.FieldMode] = append(groups[h.Result.FieldMode], h)
 	}
-	sort.Strings(modes)
+	// Field modes keep the order they first appear in (the procedure's
+	// order, usually the full field first).
 	var out []Trend
 	for _, mode := range modes {
 		out = append(out, fitOne(serial, quantity, mode, groups[mode], actionLevel))
