@@ -258,3 +258,28 @@ func TestVerifyFindsTampering(t *testing.T) {
 
 // goldenHash: `head -c -1 testdata/record.canonical | sha256sum` (GNU coreutils).
 const goldenHash = "01dc9a494e468f16fc7ea1182e452d98cf71292e4df500386d642b6fce29a1d0"
+
+func TestAppendAll(t *testing.T) {
+	ctx := context.Background()
+	dir := t.TempDir()
+	j := openTest(t, dir)
+	id, _ := j.Begin(ctx, journaltest.Session(0))
+	items := []Item{{entry.KindEvent, entry.Event{Name: "beam_on"}}, {entry.KindValue, entry.Value{Name: "kV", Value: 70}}}
+	last, err := j.AppendAll(ctx, id, items)
+	if err != nil || last != 3 {
+		t.Fatalf("AppendAll = %d, %v", last, err)
+	}
+	if _, err := j.AppendAll(ctx, id, []Item{{entry.KindSessionEnd, entry.SessionEnd{}}, {entry.KindEvent, entry.Event{}}}); err == nil {
+		t.Error("records after a session_end accepted")
+	}
+	if _, err := j.AppendAll(ctx, id, []Item{{entry.KindEvent, entry.Event{}}, {entry.KindEvent, func() {}}}); err == nil {
+		t.Error("unencodable payload accepted")
+	}
+	if s, _ := j.Sessions(ctx); s[0].Last != 3 {
+		t.Errorf("a refused AppendAll left records: last %d", s[0].Last)
+	}
+	j.Close()
+	if rep, err := Verify(ctx, filepath.Join(dir, "journal.db")); err != nil || !rep.OK() {
+		t.Errorf("verify: %+v %v", rep, err)
+	}
+}
