@@ -1,0 +1,105 @@
+package main
+
+import (
+	"context"
+	"fmt"
+	"io"
+	"os"
+	"os/signal"
+	"syscall"
+
+	"github.com/spf13/cobra"
+
+	"kermalux/firmware-host/journal/report"
+	"kermalux/procedures/demo"
+)
+
+type demoOptions struct {
+	out       string
+	scenario  string
+	seed      int64
+	speed     float64
+	procedure string
+	formats   string
+	quiet     bool
+}
+
+func init() {
+	var o demoOptions
+	cmd := &cobra.Command{
+		Use:   "demo [--out DIR] [--scenario FILE] [--seed N]",
+		Short: "Run the whole acceptance sequence hands-free on the built-in bench simulator",
+		Long: `Runs the full acceptance sequence against the bench simulator over
+pseudo-terminals, through the real meter drivers, with a simulated operator who
+presses the switch and works the beam pedal when told. Writes results.json, the
+journal, the bench file it used and the report (HTML, PDF, CSV) into --out, and
+prints what the board says as it goes and a short summary.
+
+The simulator's figures are invented: they are not measurements.`,
+		Args: cobra.NoArgs,
+		RunE: func(c *cobra.Command, args []string) error {
+			return runDemo(c.Context(), c.OutOrStdout(), o, c.Flags().Changed("seed"))
+		},
+	}
+	f := cmd.Flags()
+	f.StringVar(&o.out, "out", "demo-out", "directory for results.json, journal, bench file and report")
+	f.StringVar(&o.scenario, "scenario", "", "simulator scenario file (default: the built-in Harbour View room 2 bench)")
+	f.Int64Var(&o.seed, "seed", 0, "random seed (default: the scenario's)")
+	f.Float64Var(&o.speed, "speed", 0, "simulated time runs this many times faster than real time (default: the scenario's)")
+	f.StringVar(&o.procedure, "procedure", "", "procedure to run (default: acceptance)")
+	f.StringVar(&o.formats, "format", "html,pdf,csv", "report formats")
+	f.BoolVarP(&o.quiet, "quiet", "q", false, "print only the summary")
+	register(cmd)
+}
+
+func runDemo(parent context.Context, w io.Writer, o demoOptions, hasSeed bool) error {
+	if parent == nil {
+		parent = context.Background()
+	}
+	ctx, stop := signal.NotifyContext(parent, os.Interrupt, syscall.SIGTERM)
+	defer stop()
+	formats, err := report.ParseFormats(o.formats)
+	if err != nil {
+		return withCode(exitUsage, err)
+	}
+	opts := demo.Options{Out: o.out, Scenario: o.scenario, Seed: o.seed, HasSeed: hasSeed, Speed: o.speed,
+		Procedure: o.procedure, Formats: formats, Version: version}
+	if !o.quiet {
+		opts.Transcript = w
+	}
+	out, runErr := demo.Run(ctx, opts)
+	if out != nil {
+		printDemoSummary(w, out)
+	}
+	if runErr != nil {
+		return withCode(exitFailure, runErr)
+	}
+	return nil
+}
+
+func printDemoSummary(w io.Writer, out *demo.Outcome) {
+	s := out.Summary
+	fmt.Fprintf(w, "\nSession %s: %s, %d of %d steps, beam-on %.0f s, %s simulated in %s.\n",
+		s.Session, s.Outcome, s.Steps, s.Of, s.BeamOn.Seconds(), out.Elapsed.Round(1e9), out.Wall.Round(1e8))
+	for _, r := range s.Results {
+		mode := r.FieldMode
+		if mode == "" {
+			mode = "-"
+		}
+		cal := ""
+		if !r.Calibrated {
+			cal = " (not calibrated)"
+		}
+		fmt.Fprintf(w, "  %-18s %-6s %10.4g ± %-8.2g %-22s %s%s\n", r.Quantity, mode, r.Value, r.ExpUnc, r.Unit, r.Verdict, cal)
+	}
+	if s.Review > 0 {
+		fmt.Fprintf(w, "%d result(s) need review.\n", s.Review)
+	}
+	if out.Results != "" {
+		fmt.Fprintf(w, "Results: %s\nJournal: %s\nBench:   %s\n", out.Results, out.Journal, out.Bench)
+	}
+	for _, r := range out.Reports {
+		fmt.Fprintf(w, "Report:  %s\n", r)
+	}
+	fmt.Fprintln(w, "Simulated bench: these figures are not measurements.")
+}

@@ -1,0 +1,393 @@
+package demo
+
+import (
+	"context"
+	"embed"
+	"errors"
+	"fmt"
+	"io"
+	"io/fs"
+	"os"
+	"path/filepath"
+	"sort"
+	"strings"
+	"sync"
+	"time"
+
+	"kermalux/calib"
+	"kermalux/drivers/benchsim"
+	"kermalux/drivers/clock"
+	"kermalux/firmware-host/bench"
+	"kermalux/firmware-host/journal"
+	"kermalux/firmware-host/journal/entry"
+	"kermalux/firmware-host/journal/report"
+	"kermalux/firmware-host/panel"
+	"kermalux/firmware-host/panel/scripted"
+	"kermalux/procedures/engine"
+)
+
+// assets are the demo's own copies of the invented example files under
+// testdata/ (profiles, certificates, the default scenario, last year's
+// results for the default intensifier), so the demo runs from any
+// directory. A test keeps them identical to testdata/.
+//
+//go:embed assets
+var assets embed.FS
+
+// DefaultScenario names the embedded scenario used when none is given.
+const DefaultScenario = "harbour-view-room2.yaml"
+
+// Options configure a demo run.
+type Options struct {
+	Out       string  // directory for results.json, the journal, the bench file and the report
+	Scenario  string  // scenario file; empty: the embedded default
+	Seed      int64   // overrides the scenario's seed when HasSeed
+	HasSeed   bool    //
+	Speed     float64 // clock speed × real time; 0: the scenario's (20 if it says none)
+	Procedure string  // procedure to run; empty: the acceptance sequence
+	Formats   []string
+	Version   string
+	// Transcript receives what the board says and asks, as it happens
+	// (nil: nothing is printed).
+	Transcript io.Writer
+	// Hook, when set, is called with the running bench and clock before the
+	// session starts (tests use it to inject events).
+	Hook func(b *benchsim.Bench, clk clock.Clock)
+}
+
+// Outcome is what a demo run produced.
+type Outcome struct {
+	Summary  engine.Summary
+	Results  string   // path of results.json
+	Journal  string   // path of the journal
+	Bench    string   // path of the generated bench file
+	Reports  []string // report files written
+	Scenario *benchsim.Scenario
+	Truth    benchsim.Truth // the simulator's answer key at the end
+	Operator []string       // what the simulated operator did
+	Elapsed  time.Duration  // simulated time of the session
+	Wall     time.Duration  // real time it took
+}
+
+// Run runs the whole sequence against the simulator: it starts the bench
+// simulator on pseudo-terminals, writes a bench file naming its ports, opens
+// the meters through the real drivers, and runs the engine with a
+// simulated operator, then renders the report from the journal.
+func Run(ctx context.Context, o Options) (*Outcome, error) {
+	wallStart := time.Now()
+	if o.Out == "" {
+		return nil, errors.New("demo: no output directory")
+	}
+	if err := os.MkdirAll(o.Out, 0o755); err != nil {
+		return nil, fmt.Errorf("demo: %w", err)
+	}
+	scn, err := loadScenario(o.Scenario)
+	if err != nil {
+		return nil, err
+	}
+	if o.HasSeed {
+		scn.Seed = o.Seed
+	}
+	speed := o.Speed
+	if speed <= 0 {
+		speed = scn.Speed
+	}
+	if speed <= 0 {
+		speed = 20
+	}
+	clk := clock.NewScaled(speed, time.Now())
+
+	ctx, cancel := context.WithCancel(ctx)
+	defer cancel()
+	sim, err := benchsim.New(scn, clk)
+	if err != nil {
+		return nil, fmt.Errorf("demo: %w", err)
+	}
+	defer sim.Close()
+	simDir, err := os.MkdirTemp("", "kermalux-demo-sim-")
+	if err != nil {
+		return nil, fmt.Errorf("demo: %w", err)
+	}
+	defer os.RemoveAll(simDir)
+	ports, err := sim.Serve(ctx, simDir)
+	if err != nil {
+		return nil, fmt.Errorf("demo: starting the simulator: %w", err)
+	}
+
+	benchPath, err := writeBench(o.Out, scn, clk.Now())
+	if err != nil {
+		return nil, err
+	}
+	b, err := bench.Load(benchPath)
+	if err != nil {
+		return nil, err
+	}
+	proc, err := b.Procedure(o.Procedure)
+	if err != nil {
+		return nil, err
+	}
+
+	jpath := filepath.Join(o.Out, "journal.db")
+	jr, err := journal.Open(jpath, journal.Options{KeyDir: filepath.Join(o.Out, "board-key"), SoftwareVersion: o.Version, Clock: clk})
+	if err != nil {
+		return nil, err
+	}
+	defer jr.Close()
+
+	op := NewOperator(ctx, sim, clk, uint64(scn.Seed))
+	op.Readings["temperature"] = 20
+	op.Readings["pressure"] = 101.325
+	t := &transcript{w: o.Transcript, clk: clk}
+	pan := scripted.New(clk,
+		scripted.WithResponder(func(p panel.Prompt) panel.Response {
+			t.ask(p)
+			return op.Respond(p)
+		}),
+		scripted.OnSay(func(m panel.Message) {
+			t.say(m)
+			op.Heard(m)
+		}),
+	)
+	defer pan.Close()
+
+	meters, err := bench.OpenMeters(ctx, b, clk, map[string]string{
+		"dosimeter":  ports.Dosimeter.Link,
+		"photometer": ports.Photometer.Link,
+	})
+	if err != nil {
+		return nil, fmt.Errorf("demo: opening the simulated meters: %w", err)
+	}
+	defer func() {
+		for _, m := range meters {
+			m.Close()
+		}
+	}()
+	cfg, err := b.Config(proc, meters, pan, simJournal{jr, scn, clk}, clk, o.Version)
+	if err != nil {
+		return nil, err
+	}
+	ready := "Ready. " + b.Found(meters, clk.Now()) + " Press the switch to start " + proc.Title + "."
+	if _, err := pan.Ask(ctx, panel.Prompt{Message: panel.Message{Text: ready, Level: panel.Info, Action: panel.ActAcknowledge}}); err != nil {
+		return nil, err
+	}
+	if o.Hook != nil {
+		o.Hook(sim, clk)
+	}
+	eng, err := engine.New(cfg)
+	if err != nil {
+		return nil, err
+	}
+	start := clk.Mono()
+	sum, runErr := eng.Run(ctx)
+	op.Wait()
+	out := &Outcome{Summary: sum, Journal: jpath, Bench: benchPath, Scenario: scn, Truth: sim.Truth(),
+		Operator: op.Actions(), Elapsed: clk.Mono() - start}
+	if sum.Session != "" {
+		out.Results, err = engine.WriteResultsFile(o.Out, engine.NewResultsFile(sum, cfg.Session))
+		if err != nil {
+			return out, errors.Join(runErr, err)
+		}
+		rep, err := report.FromJournal(ctx, jpath, sum.Session)
+		if err != nil {
+			return out, errors.Join(runErr, fmt.Errorf("demo: report: %w", err))
+		}
+		formats := o.Formats
+		if len(formats) == 0 {
+			formats = []string{"html", "pdf", "csv"}
+		}
+		out.Reports, err = rep.WriteFiles(o.Out, formats, report.Options{Version: o.Version})
+		if err != nil {
+			return out, errors.Join(runErr, fmt.Errorf("demo: report: %w", err))
+		}
+	}
+	out.Wall = time.Since(wallStart)
+	return out, runErr
+}
+
+// simJournal marks every session it begins as a simulator session, so the
+// report says its figures are not measurements.
+type simJournal struct {
+	*journal.Journal
+	scn *benchsim.Scenario
+	clk clock.Clock
+}
+
+func (j simJournal) Begin(ctx context.Context, s entry.Session) (string, error) {
+	id, err := j.Journal.Begin(ctx, s)
+	if err != nil {
+		return id, err
+	}
+	_, err = j.Journal.Append(ctx, id, entry.KindEvent, entry.Event{
+		Name:   "simulated_bench",
+		Detail: fmt.Sprintf("readings come from the bench simulator (scenario %s, seed %d): not measurements", j.scn.Source, j.scn.Seed),
+	})
+	return id, err
+}
+
+func loadScenario(path string) (*benchsim.Scenario, error) {
+	if path != "" {
+		return benchsim.LoadScenario(path)
+	}
+	data, err := assets.ReadFile("assets/scenarios/" + DefaultScenario)
+	if err != nil {
+		return nil, fmt.Errorf("demo: %w", err)
+	}
+	return benchsim.ParseScenario("(built-in) "+DefaultScenario, data)
+}
+
+// transcript prints what the board says, with the session's clock.
+type transcript struct {
+	mu    sync.Mutex
+	w     io.Writer
+	clk   clock.Clock
+	start time.Duration
+	began bool
+}
+
+func (t *transcript) line(kind, text string) {
+	if t.w == nil {
+		return
+	}
+	t.mu.Lock()
+	defer t.mu.Unlock()
+	if !t.began {
+		t.start, t.began = t.clk.Mono(), true
+	}
+	el := t.clk.Mono() - t.start
+	fmt.Fprintf(t.w, "%02d:%04.1f %-5s %s\n", int(el.Minutes()), el.Seconds()-60*float64(int(el.Minutes())), kind, text)
+}
+
+func (t *transcript) ask(p panel.Prompt) {
+	kind := "ask"
+	if p.Action == panel.ActCheck {
+		kind = "check"
+	}
+	text := p.Text
+	if p.Step > 0 && p.Of > 0 {
+		text = fmt.Sprintf("[%d/%d] %s", p.Step, p.Of, text)
+	}
+	t.line(kind, text)
+}
+
+func (t *transcript) say(m panel.Message) {
+	kind := "say"
+	switch m.Level {
+	case panel.Warn:
+		kind = "WARN"
+	case panel.Alarm:
+		kind = "ALARM"
+	case panel.Retry:
+		kind = "retry"
+	}
+	t.line(kind, m.Text)
+}
+
+// writeBench writes a bench file for the simulated bench into dir, with
+// the demo's profiles, certificates and baseline beside it. The meters'
+// ports are the simulator's links, given when the meters are opened.
+func writeBench(dir string, scn *benchsim.Scenario, day time.Time) (string, error) {
+	if err := copyAssets(dir); err != nil {
+		return "", err
+	}
+	certs, err := calib.LoadDir(filepath.Join(dir, "demo-files", "certificates"))
+	if err != nil {
+		return "", fmt.Errorf("demo: %w", err)
+	}
+	certFor := func(serial string) string {
+		if c := calib.Pick(certs, serial, day); c != nil {
+			return "demo-files/certificates/" + filepath.Base(c.File)
+		}
+		return ""
+	}
+	var sb strings.Builder
+	q := func(s string) string { return fmt.Sprintf("%q", s) }
+	fmt.Fprintf(&sb, "# Bench file written by `kermalux demo` for the simulated bench of scenario\n# %s. Everything here is invented.\n", scn.Source)
+	fmt.Fprintf(&sb, "site: %s\nroom: %s\nengineer: Demo engineer\n", q(orDefault(scn.Site, "Demo site")), q(orDefault(scn.Room, "Demo room")))
+	in := scn.Intensifier
+	fmt.Fprintf(&sb, "intensifier:\n  model: %s\n  serial: %s\n  field_modes:\n", q(strings.TrimSpace(in.Maker+" "+in.Model)), q(in.Serial))
+	largest := 0.0
+	for _, m := range in.FieldModes {
+		largest = max(largest, m.DiameterCM)
+	}
+	for _, m := range in.FieldModes {
+		fmt.Fprintf(&sb, "    - {name: %s, diameter_mm: %g}\n", q(m.Name), m.DiameterCM*10)
+	}
+	// An invented data sheet: conversion factor at least 100 in the largest
+	// field, falling with the square of the field diameter (common practice
+	// for magnified modes), contrast at least 15:1, non-uniformity at most 25 %.
+	sb.WriteString("  spec:\n")
+	for _, m := range in.FieldModes {
+		r := m.DiameterCM / largest
+		fmt.Fprintf(&sb, "    %s: %.0f\n", q("conversion_factor_min@"+m.Name), 100*r*r)
+	}
+	sb.WriteString("    conversion_factor_min: 20\n    contrast_ratio_min: 15\n    non_uniformity_max: 0.25\n")
+	if _, err := os.Stat(filepath.Join(dir, "demo-files", "baselines", in.Serial+".json")); err == nil {
+		fmt.Fprintf(&sb, "  baseline: %s\n", q("demo-files/baselines/"+in.Serial+".json"))
+	}
+	sb.WriteString("meters:\n")
+	switch scn.Dosimeter.Protocol {
+	case benchsim.ProtocolHalden:
+		sb.WriteString("  - name: dosimeter\n    role: dosimeter\n    scpi: {baud: 19200, init: [\"*RST\", \"*CLS\", \"CONF:KRAT\"], query: \"READ?\", quantity: air_kerma_rate}\n")
+	default:
+		sb.WriteString("  - name: dosimeter\n    role: dosimeter\n    profile: demo-files/profiles/veltrane-kr40.yaml\n")
+	}
+	if c := certFor(scn.Dosimeter.Serial); c != "" {
+		fmt.Fprintf(&sb, "    certificate: %s\n", q(c))
+	}
+	sb.WriteString("  - name: photometer\n    role: photometer\n    profile: demo-files/profiles/orlan-lm9.yaml\n")
+	if c := certFor(scn.Photometer.Serial); c != "" {
+		fmt.Fprintf(&sb, "    certificate: %s\n", q(c))
+	}
+	sb.WriteString("chamber:\n  grid_removed: true\n")
+	if ch := scn.Dosimeter.Chamber; ch != nil {
+		fmt.Fprintf(&sb, "  source_to_chamber_mm: %g\n  source_to_input_mm: %g\n  against_face: %t\n", ch.ChamberFromFocusMM, ch.InputFromFocusMM, ch.AgainstFace)
+		if ch.AgainstFace && ch.BackscatterFactor > 0 {
+			fmt.Fprintf(&sb, "  backscatter: %g\n", ch.BackscatterFactor)
+		}
+	}
+	sb.WriteString("panel:\n  kind: terminal\n  speech: false\njournal: journal.db\nkeys: board-key\nsequence: acceptance\n")
+	sb.WriteString("defaults:\n  temperature_c: 20\n  pressure_kpa: 101.325\n  tube_voltage_kv: 70\n")
+	sb.WriteString("limits:\n  baseline_fraction: 0.8\n  kerma_ceiling_ugy_s: 50\n")
+	path := filepath.Join(dir, "bench.yaml")
+	if err := os.WriteFile(path, []byte(sb.String()), 0o644); err != nil {
+		return "", fmt.Errorf("demo: %w", err)
+	}
+	return path, nil
+}
+
+func orDefault(s, d string) string {
+	if s == "" {
+		return d
+	}
+	return s
+}
+
+// copyAssets writes the embedded demo files into dir/demo-files.
+func copyAssets(dir string) error {
+	var names []string
+	err := fs.WalkDir(assets, "assets", func(p string, d fs.DirEntry, err error) error {
+		if err != nil || d.IsDir() {
+			return err
+		}
+		names = append(names, p)
+		return nil
+	})
+	if err != nil {
+		return fmt.Errorf("demo: %w", err)
+	}
+	sort.Strings(names)
+	for _, p := range names {
+		data, err := assets.ReadFile(p)
+		if err != nil {
+			return fmt.Errorf("demo: %w", err)
+		}
+		dst := filepath.Join(dir, "demo-files", strings.TrimPrefix(p, "assets/"))
+		if err := os.MkdirAll(filepath.Dir(dst), 0o755); err != nil {
+			return fmt.Errorf("demo: %w", err)
+		}
+		if err := os.WriteFile(dst, data, 0o644); err != nil {
+			return fmt.Errorf("demo: %w", err)
+		}
+	}
+	return nil
+}
