@@ -129,7 +129,16 @@ func (e *Engine) compute(ctx context.Context, idx int, s Step) error {
 		var op, dp []posStat
 		if op, err = e.input(s, "open"); err == nil {
 			if dp, err = e.input(s, "disk"); err == nil {
-				res = calib.ContrastRatio(measured(op[0], true), measured(dp[0], true), e.st.values["disk_diameter"], e.st.values["field_diameter"], 0)
+				disk := e.st.values["lead_disk_diameter"]
+				if disk == 0 {
+					disk = e.st.values["disk_diameter"]
+				}
+				mode := s.FieldMode
+				if mode == "" {
+					mode = op[0].Mode
+				}
+				field := e.cfg.FieldModes[resolveMode(e.cfg.FieldModes, mode)]
+				res = calib.ContrastRatio(measured(op[0], true), measured(dp[0], true), disk, field, 0)
 			}
 		}
 	case "non_uniformity":

@@ -266,6 +266,10 @@ type Config struct {
 	CertProblems []string
 	Limits       Limits
 	BootID       string
+	// FieldModes are the intensifier's field modes with their nominal
+	// input diameters in mm; a setup asking for field_mode "largest" or
+	// "smallest" gets the mode's name.
+	FieldModes map[string]float64
 }
 
 // Summary is what a run achieved.

@@ -45,6 +45,9 @@ func New(cfg Config) (*Engine, error) {
 			if s.Measure == nil {
 				return nil, fmt.Errorf("engine: step %d (%s) is a measurement without a description", i+1, s.ID)
 			}
+			if len(s.Measure.Meters) == 0 {
+				return nil, fmt.Errorf("engine: step %d (%s) reads no meter", i+1, s.ID)
+			}
 			for _, role := range s.Measure.Meters {
 				if cfg.Meters[role] == nil {
 					return nil, fmt.Errorf("engine: step %d (%s) needs the %s, which the bench does not have", i+1, s.ID, role)
@@ -53,6 +56,12 @@ func New(cfg Config) (*Engine, error) {
 		}
 	}
 	fillLimits(&cfg.Limits)
+	steps := make([]Step, len(cfg.Procedure.Steps))
+	copy(steps, cfg.Procedure.Steps)
+	for i := range steps {
+		steps[i].FieldMode = resolveMode(cfg.FieldModes, steps[i].FieldMode)
+	}
+	cfg.Procedure.Steps = steps
 	return &Engine{cfg: cfg}, nil
 }
 

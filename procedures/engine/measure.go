@@ -66,6 +66,7 @@ type attempt struct {
 	flags   []string
 	calib   bool
 	bL, bK  float64
+	modes   map[string]float64
 }
 
 func roleName(role string) string {
@@ -150,7 +151,7 @@ func (e *Engine) measurePosition(ctx context.Context, idx int, s Step, pi int, p
 func (e *Engine) newAttempt(idx int, s Step, pi int, pos Position, npos int) *attempt {
 	m := s.Measure
 	a := &attempt{idx: idx, step: s, spec: m, posIdx: pi, pos: pos, inStep: map[string]bool{},
-		errs: map[string]int{}, settled: -1, series: map[string][]tv{}, calib: true}
+		errs: map[string]int{}, settled: -1, series: map[string][]tv{}, calib: true, modes: e.cfg.FieldModes}
 	for _, r := range m.Meters {
 		a.inStep[r] = true
 	}
@@ -169,7 +170,13 @@ func (e *Engine) newAttempt(idx int, s Step, pi int, pos Position, npos int) *at
 		}
 		return 0
 	})
-	a.signal = a.roles[0]
+	// The beam is detected with a meter the step reads (the dosimeter
+	// first); a dosimeter outside the step (perhaps taken out of the
+	// beam) only guards against a kerma rate far out of range.
+	a.signal = m.Meters[0]
+	if a.inStep[Dosimeter] {
+		a.signal = Dosimeter
+	}
 	if npos > 0 {
 		a.label = pos.Label
 	}
@@ -278,11 +285,32 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (posStat, error) {
 	return stat, nil
 }
 
+// resolveMode turns "largest" and "smallest" into a field mode's name.
+func (a *attempt) resolveMode(v string) string {
+	return resolveMode(a.modes, v)
+}
+
+func resolveMode(modes map[string]float64, v string) string {
+	if v != "largest" && v != "smallest" || len(modes) == 0 {
+		return v
+	}
+	best, bd := "", 0.0
+	for name, d := range modes {
+		if best == "" || (v == "largest" && d > bd) || (v == "smallest" && d < bd) || (d == bd && name < best) {
+			best, bd = name, d
+		}
+	}
+	return best
+}
+
 // setup is the bench state the attempt wants, for the simulated operator.
 func (a *attempt) setup() map[string]string {
 	m := map[string]string{}
 	for k, v := range a.step.Setup {
 		m[k] = v
+	}
+	if v, ok := m["field_mode"]; ok {
+		m["field_mode"] = a.resolveMode(v)
 	}
 	if a.label != "" {
 		m["photometer_radius"] = fmt.Sprintf("%g r", a.pos.R)
@@ -454,8 +482,28 @@ func (e *Engine) darkAttempt(ctx context.Context, a *attempt) (posStat, error) {
 	if d == 0 {
 		d = l.DarkTime
 	}
-	a.settled = 0
 	a.thresh = math.Inf(1) // no beam detection in a beam-off reading
+	// First let the meters come down from any earlier exposure (the
+	// photometer's response is slower than the dosimeter's): no trend
+	// over the settling window, as for a beam reading.
+	begin := e.cfg.Clock.Mono()
+	for {
+		if err := e.cycle(ctx, a); err != nil {
+			return posStat{}, e.attemptFailed(ctx, a, err)
+		}
+		ok := true
+		for _, role := range a.spec.Meters {
+			ok = ok && steady(a.series[role], l.SettleWindow, l.SettleSlope, 5)
+		}
+		if ok || e.cfg.Clock.Mono()-begin > l.SettleMax {
+			break
+		}
+	}
+	if err := e.flush(ctx, a, false); err != nil {
+		return posStat{}, err
+	}
+	a.series = map[string][]tv{}
+	a.settled = 0
 	start := e.cfg.Clock.Mono()
 	a.onAt = start
 	for e.cfg.Clock.Mono()-start < d {
@@ -679,7 +727,7 @@ func (e *Engine) observe(ctx context.Context, a *attempt, role string, r drivers
 	if live && a.inStep[role] && r.Usable() {
 		a.series[role] = append(a.series[role], tv{r.Mono, c.Value})
 	}
-	sampling := live && a.settled >= 0 && a.inStep[role]
+	sampling := live && a.inStep[role] && (a.settled >= 0 || !a.spec.Beam)
 	if sampling {
 		a.hold = append(a.hold, held{role, r, c})
 		return nil

@@ -375,6 +375,19 @@ func firstSentence(s string) string {
 	return s
 }
 
+// resolveSetup copies a setup with "largest"/"smallest" field modes named.
+func (e *Engine) resolveSetup(m map[string]string) map[string]string {
+	if v, ok := m["field_mode"]; !ok || (v != "largest" && v != "smallest") {
+		return m
+	}
+	out := make(map[string]string, len(m))
+	for k, v := range m {
+		out[k] = v
+	}
+	out["field_mode"] = resolveMode(e.cfg.FieldModes, out["field_mode"])
+	return out
+}
+
 // doStep runs one step.
 func (e *Engine) doStep(ctx context.Context, idx int, s Step) error {
 	n := len(e.cfg.Procedure.Steps)
@@ -384,7 +397,7 @@ func (e *Engine) doStep(ctx context.Context, idx int, s Step) error {
 		return e.say(ctx, idx, panel.Message{Text: s.Text, Level: panel.Info, Setup: s.Setup})
 	case Instruct:
 		p := base
-		p.Message = panel.Message{Text: s.Text, Level: panel.Info, Action: panel.ActAcknowledge, Setup: s.Setup}
+		p.Message = panel.Message{Text: s.Text, Level: panel.Info, Action: panel.ActAcknowledge, Setup: e.resolveSetup(s.Setup)}
 		if len(s.Setup) > 0 {
 			p.Action = panel.ActSetup
 		}
