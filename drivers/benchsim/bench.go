@@ -87,6 +87,7 @@ func (b *Bench) SetBeam(on bool) {
 	b.mu.Lock()
 	defer b.mu.Unlock()
 	t := b.clk.Mono()
+	b.model.advance(t) // act now, so the beam-on count is current
 	n := b.model.SetBeam(t, on)
 	if on {
 		for _, w := range b.faults {

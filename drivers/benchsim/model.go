@@ -10,8 +10,11 @@ import (
 // Model is the physics of the simulated bench: a pure, deterministic
 // function of the scenario, the seed, and the control calls with the times
 // they were made at. It does no I/O and reads no clock: every method takes
-// the simulated time t (time since the bench started). Calls must come in
-// non-decreasing t. A Model is not safe for concurrent use; Bench locks it.
+// the simulated time t (time since the bench started). A control call for
+// a later time than the model has reached is kept and takes effect at that
+// time (so a test can say "beam on in 0.5 s"); a call or reading for an
+// earlier time acts at the time already reached: time never runs back.
+// A Model is not safe for concurrent use; Bench locks it.
 type Model struct {
 	scn   *Scenario
 	modes map[string]FieldMode
@@ -32,15 +35,25 @@ type Model struct {
 	t0 time.Duration
 	v0 float64
 
+	// now is the time the model has been brought up to; pending are
+	// control calls made for a later time, in time order.
+	now     time.Duration
+	pending []event
+
 	dose, lum sensor
 	doseRNG   *rand.Rand
 	lumRNG    *rand.Rand
 }
 
+// event is a control change scheduled for time t.
+type event struct {
+	t     time.Duration
+	apply func(t time.Duration)
+}
+
 // sensor is a meter's first-order lag: dy/dt = (x − y)/τ.
 type sensor struct {
 	tau time.Duration
-	t   time.Duration
 	y   float64
 }
 
@@ -145,12 +158,27 @@ func (m *Model) luminanceFromKerma(k float64) float64 {
 // pieces where the input is constant (split at pulse edges) and in short
 // steps through the brightness-control transient.
 func (m *Model) advance(t time.Duration) {
+	for len(m.pending) > 0 && m.pending[0].t <= t {
+		ev := m.pending[0]
+		m.pending = m.pending[1:]
+		m.integrate(ev.t)
+		m.restart(ev.t)
+		ev.apply(ev.t)
+	}
+	m.integrate(t)
+}
+
+// integrate moves the lags from m.now to t under the present state.
+func (m *Model) integrate(t time.Duration) {
+	if t <= m.now {
+		return
+	}
 	step := 50 * time.Millisecond
 	if b := m.scn.Intensifier.Brightness; m.abc && b.TimeConstant > 0 && b.TimeConstant/10 < step {
 		step = max(b.TimeConstant/10, time.Millisecond)
 	}
 	cf := m.chamberFactor()
-	for s := m.dose.t; s < t; {
+	for s := m.now; s < t; {
 		pf, edge := m.pulse(s)
 		e := min(t, s+step, edge)
 		k := m.inputMean(s+(e-s)/2) * pf
@@ -158,7 +186,7 @@ func (m *Model) advance(t time.Duration) {
 		m.lum.step(m.luminanceFromKerma(k), e-s)
 		s = e
 	}
-	m.dose.t, m.lum.t = t, t
+	m.now = t
 }
 
 func (s *sensor) step(x float64, dt time.Duration) {
@@ -169,29 +197,49 @@ func (s *sensor) step(x float64, dt time.Duration) {
 	s.y = x + (s.y-x)*math.Exp(-dt.Seconds()/s.tau.Seconds())
 }
 
-// change is called before a control changes the state at t: the lags are
-// brought up to t and the brightness transient restarts from its value.
-func (m *Model) change(t time.Duration) {
-	m.advance(t)
+// restart is called just before a control changes the state at t (the
+// lags already brought up to t): the brightness transient restarts from
+// the rate it had reached.
+func (m *Model) restart(t time.Duration) {
 	m.v0 = m.inputMean(t)
 	m.t0 = t
 }
 
-// SetBeam switches the beam at t. It returns the beam-on count.
+// at applies a control change at t: now, if t is not later than the time
+// reached (after bringing the lags up to it), else when advance gets there.
+func (m *Model) at(t time.Duration, apply func(t time.Duration)) {
+	if t <= m.now {
+		m.advance(m.now)
+		m.restart(m.now)
+		apply(m.now)
+		return
+	}
+	i := len(m.pending)
+	for i > 0 && m.pending[i-1].t > t {
+		i--
+	}
+	m.pending = append(m.pending, event{})
+	copy(m.pending[i+1:], m.pending[i:])
+	m.pending[i] = event{t: t, apply: apply}
+}
+
+// SetBeam switches the beam at t. It returns the beam-on count as of the
+// time reached (a beam-on scheduled for later is not counted yet).
 func (m *Model) SetBeam(t time.Duration, on bool) int {
-	if on == m.beam {
-		return m.beamOnCount
-	}
-	m.change(t)
-	m.beam = on
-	if on {
-		m.beamOnCount++
-		m.beamOnAt = t
-		m.v0 = m.target() * m.scn.Intensifier.Brightness.StartFraction
-		if !m.abc {
-			m.v0 = m.target()
+	m.at(t, func(t time.Duration) {
+		if on == m.beam {
+			return
 		}
-	}
+		m.beam = on
+		if on {
+			m.beamOnCount++
+			m.beamOnAt = t
+			m.v0 = m.target() * m.scn.Intensifier.Brightness.StartFraction
+			if !m.abc {
+				m.v0 = m.target()
+			}
+		}
+	})
 	return m.beamOnCount
 }
 
@@ -201,8 +249,7 @@ func (m *Model) SetFieldMode(t time.Duration, name string) error {
 	if !ok {
 		return fmt.Errorf("benchsim: no field mode %q (this intensifier has %v)", name, m.ModeNames())
 	}
-	m.change(t)
-	m.mode = fm
+	m.at(t, func(time.Duration) { m.mode = fm })
 	return nil
 }
 
@@ -220,29 +267,25 @@ func (m *Model) SetTubeVoltage(t time.Duration, kv float64) error {
 	if kv < 40 || kv > 150 || math.IsNaN(kv) {
 		return fmt.Errorf("benchsim: tube voltage %g kV is outside 40..150 kV", kv)
 	}
-	m.change(t)
-	m.kv = kv
+	m.at(t, func(time.Duration) { m.kv = kv })
 	return nil
 }
 
 // SetPhantom puts the phantom (or added filter) in or out of the beam at t.
 func (m *Model) SetPhantom(t time.Duration, in bool) {
-	m.change(t)
-	m.phantom = in
+	m.at(t, func(time.Duration) { m.phantom = in })
 }
 
 // SetBrightnessControl switches the automatic brightness control at t
 // (manual mode when off). Switched on with the beam on, the rate settles
 // from where it was with the control's time constant.
 func (m *Model) SetBrightnessControl(t time.Duration, on bool) {
-	m.change(t)
-	m.abc = on
+	m.at(t, func(time.Duration) { m.abc = on })
 }
 
 // SetLeadDisk puts the lead disk at the input centre or takes it away.
 func (m *Model) SetLeadDisk(t time.Duration, in bool) {
-	m.change(t)
-	m.leadDisk = in
+	m.at(t, func(time.Duration) { m.leadDisk = in })
 }
 
 // SetPhotometerPosition moves the photometer at t to rFrac of the output
@@ -251,8 +294,7 @@ func (m *Model) SetPhotometerPosition(t time.Duration, rFrac, angleDeg float64) 
 	if rFrac < 0 || rFrac > 1 || math.IsNaN(rFrac) || math.IsNaN(angleDeg) {
 		return fmt.Errorf("benchsim: photometer position r=%g is outside 0..1 of the output radius", rFrac)
 	}
-	m.change(t)
-	m.photR, m.photAngle = rFrac, angleDeg
+	m.at(t, func(time.Duration) { m.photR, m.photAngle = rFrac, angleDeg })
 	return nil
 }
 
@@ -270,6 +312,7 @@ type MeterValue struct {
 // standard deviation sqrt(meter² + quantum²) and the absolute floor.
 func (m *Model) DoseReading(t time.Duration) MeterValue {
 	m.advance(t)
+	t = m.now
 	d := m.scn.Dosimeter
 	clean := m.dose.y * (1 + d.CalibrationError)
 	rel := math.Hypot(d.Noise, m.quantumNoise(m.dose.y/m.chamberFactor(), d.IntegrationTime))
@@ -281,6 +324,7 @@ func (m *Model) DoseReading(t time.Duration) MeterValue {
 // light carries the same relative quantum noise as the kerma rate.
 func (m *Model) LumReading(t time.Duration) MeterValue {
 	m.advance(t)
+	t = m.now
 	p := m.scn.Photometer
 	clean := m.lum.y * (1 + p.CalibrationError)
 	dark := m.scn.Intensifier.DarkLuminance * m.relLum(m.photR, m.photAngle) * (1 + p.CalibrationError)
@@ -307,6 +351,7 @@ func (m *Model) quantumNoise(k float64, T time.Duration) float64 {
 // would show, for tests and for the demo's answer key.
 func (m *Model) Truth(t time.Duration) Truth {
 	m.advance(t)
+	t = m.now
 	in := m.scn.Intensifier
 	k := m.inputMean(t)
 	tr := Truth{

@@ -354,3 +354,30 @@ func TestBrightnessSwitch(t *testing.T) {
 		t.Error("truth says the control is off")
 	}
 }
+
+// TestScheduledControls: a control call for a later time takes effect
+// then; one for an earlier time acts at the time reached. With the beam
+// scheduled on at 1 s, the dosimeter (τ = 0.3 s) reads 0 before and
+// 0.5·(1 − e⁻¹) at 1.3 s (first-order step response, from memory).
+func TestScheduledControls(t *testing.T) {
+	m := quiet(t, nil)
+	m.SetBeam(sec, true)
+	m.SetBeam(3*sec, false)
+	if err := m.SetFieldMode(2*sec, "16cm"); err != nil {
+		t.Fatal(err)
+	}
+	if v := m.DoseReading(900 * time.Millisecond).Clean; v != 0 {
+		t.Errorf("before the scheduled beam-on: %g", v)
+	}
+	near(t, "0.3 s after the scheduled beam-on", m.DoseReading(1300*time.Millisecond).Clean, 0.5*(1-math.Exp(-1)), 1e-6)
+	if tr := m.Truth(2500 * time.Millisecond); tr.FieldMode != "16cm" || !tr.Beam || tr.BeamOnCount != 1 {
+		t.Errorf("at 2.5 s: mode %s beam %v count %d", tr.FieldMode, tr.Beam, tr.BeamOnCount)
+	}
+	if m.Truth(3500 * time.Millisecond).Beam {
+		t.Error("scheduled beam-off did not happen")
+	}
+	// Time never runs back: a reading asked for 1 s now is at 3.5 s.
+	if tr := m.Truth(sec); tr.At != 3500*time.Millisecond || tr.Beam {
+		t.Errorf("truth for an earlier time: at %v beam %v", tr.At, tr.Beam)
+	}
+}
