@@ -1,0 +1,66 @@
+package bench
+
+import (
+	"context"
+	"os"
+	"testing"
+	"time"
+
+	"kermalux/drivers/benchsim"
+	"kermalux/drivers/clock"
+	"kermalux/drivers/units"
+)
+
+// The demo bench file's meters open over real pseudo-terminals served by
+// the simulator, with the ports given at run time, and read in canonical
+// units through the real drivers.
+func TestOpenMetersOnSimulator(t *testing.T) {
+	if testing.Short() {
+		t.Skip("pseudo-terminals")
+	}
+	scn, err := benchsim.LoadScenario("../../testdata/scenarios/harbour-view-room2.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	clk := clock.NewScaled(5, time.Date(2026, 3, 4, 9, 0, 0, 0, time.UTC))
+	sim, err := benchsim.New(scn, clk)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer sim.Close()
+	ctx, cancel := context.WithTimeout(context.Background(), 20*time.Second)
+	defer cancel()
+	ports, err := sim.Serve(ctx, t.TempDir())
+	if err != nil {
+		if os.IsPermission(err) {
+			t.Skip(err)
+		}
+		t.Fatal(err)
+	}
+	b, err := Load("../../testdata/bench/demo-sim.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	meters, err := OpenMeters(ctx, b, clk, map[string]string{"dosimeter": ports.Dosimeter.Link, "photometer": ports.Photometer.Link})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer func() {
+		for _, m := range meters {
+			m.Close()
+		}
+	}()
+	sim.SetBeam(true)
+	for role, q := range map[string]units.Quantity{"dosimeter": units.AirKermaRate, "photometer": units.Luminance} {
+		r, err := meters[role].Read(ctx)
+		if err != nil {
+			t.Fatalf("%s: %v", role, err)
+		}
+		if r.Quantity != q || r.Unit != units.Canonical(q) || r.Raw == "" {
+			t.Errorf("%s: %+v", role, r)
+		}
+	}
+	if got := b.Found(meters, time.Date(2026, 6, 1, 0, 0, 0, 0, time.UTC)); got != "Dosimeter found, certificate valid until March 2027. Photometer found, certificate valid until May 2027." {
+		t.Errorf("found: %q", got)
+	}
+}
