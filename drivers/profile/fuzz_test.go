@@ -96,3 +96,28 @@ func FuzzParse(f *testing.F) {
 		p.ParseLine("RD +1.0E+00 uGy/s OK")
 	})
 }
+
+// BenchmarkParseLine parses a streamed photometer line; "pattern-only",
+// the baseline in the same run, is the bare regular-expression match the
+// parser cannot avoid, so the difference is the cost of number, status
+// and unit handling.
+func BenchmarkParseLine(b *testing.B) {
+	lm := load(b, "orlan-lm9.yaml")
+	const line = "L 123,45 cd/m2 S0"
+	b.Run("pattern-only", func(b *testing.B) {
+		b.ReportAllocs()
+		for range b.N {
+			if lm.Pattern.FindStringSubmatchIndex(line) == nil {
+				b.Fatal("no match")
+			}
+		}
+	})
+	b.Run("ParseLine", func(b *testing.B) {
+		b.ReportAllocs()
+		for range b.N {
+			if _, _, _, err := lm.ParseLine(line); err != nil {
+				b.Fatal(err)
+			}
+		}
+	})
+}

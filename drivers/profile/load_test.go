@@ -212,3 +212,23 @@ func TestNumbers(t *testing.T) {
 		}
 	}
 }
+
+// TestFormatExample keeps the example in FORMAT.md valid.
+func TestFormatExample(t *testing.T) {
+	doc, err := os.ReadFile("FORMAT.md")
+	if err != nil {
+		t.Fatal(err)
+	}
+	_, rest, ok := strings.Cut(string(doc), "```yaml\n")
+	example, _, ok2 := strings.Cut(rest, "```")
+	if !ok || !ok2 {
+		t.Fatal("FORMAT.md has no yaml example")
+	}
+	p, err := profile.Parse("FORMAT.md example", []byte(example))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, _, st, err := p.ParseLine("RD +1.2340E-01 uGy/s OK"); err != nil || st != drivers.StatusOK {
+		t.Errorf("example profile reads a meters.md line as %s, %v", st, err)
+	}
+}

@@ -61,6 +61,7 @@ type Port struct {
 	nextTry    time.Duration // clock Mono of the next reopen attempt
 	backoff    time.Duration
 	buf        []byte // received bytes not yet returned: buf[start:end]
+	wbuf       []byte // reused for writing
 	start, end int
 	skipping   bool // discarding the rest of an over-long line
 	term       byte
@@ -220,9 +221,9 @@ func (p *Port) WriteLine(ctx context.Context, s string) error {
 	if err := p.Ensure(ctx); err != nil {
 		return err
 	}
-	var small [128]byte
-	b := append(small[:0], s...)
+	b := append(p.wbuf[:0], s...)
 	b = append(b, p.cfg.SendEnd.bytes()...)
+	p.wbuf = b
 	for len(b) > 0 {
 		n, err := p.dev.Write(b)
 		if err != nil {

@@ -7,7 +7,6 @@
 package linetest
 
 import (
-	"bytes"
 	"errors"
 	"os"
 	"path/filepath"
@@ -200,13 +199,4 @@ func (d *Device) Replug() {
 	if err := d.plug(); err != nil {
 		d.t.Fatal(err)
 	}
-}
-
-// Lines splits text on any of CR and LF, dropping empty pieces.
-func Lines(b []byte) []string {
-	var out []string
-	for _, l := range bytes.FieldsFunc(b, func(r rune) bool { return r == '\r' || r == '\n' }) {
-		out = append(out, string(l))
-	}
-	return out
 }
