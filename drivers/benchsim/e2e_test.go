@@ -321,3 +321,40 @@ func TestScenarioFaultAtBeamOn(t *testing.T) {
 		t.Fatal("fault outlived its duration")
 	}
 }
+
+func TestServeLifecycle(t *testing.T) {
+	s, err := LoadScenario(filepath.Join(scenarioDir, "harbour-view-room2.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	b, err := New(s, clock.NewScaled(e2eSpeed, time.Now()))
+	if err != nil {
+		t.Fatal(err)
+	}
+	dir := t.TempDir()
+	ps, err := b.Serve(context.Background(), dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if ps.Dosimeter.Link != filepath.Join(dir, "by-id", "veltrane-KR40-1187") || ps.Photometer.Baud != 19200 || ps.Dosimeter.Baud != 9600 {
+		t.Errorf("ports %+v", ps)
+	}
+	if _, err := b.Serve(context.Background(), dir); err == nil {
+		t.Error("second Serve accepted")
+	}
+	if err := b.Close(); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := os.Lstat(ps.Dosimeter.Link); !errors.Is(err, os.ErrNotExist) {
+		t.Errorf("link left after Close: %v", err)
+	}
+	if err := b.Close(); err != nil {
+		t.Errorf("second Close: %v", err)
+	}
+	if _, err := b.Serve(context.Background(), dir); err == nil {
+		t.Error("Serve after Close accepted")
+	}
+	if err := b.InjectFault(FaultSpec{Kind: "flood", Meter: RoleDosimeter, Duration: time.Second}); err == nil {
+		t.Error("unknown fault kind injected")
+	}
+}
