@@ -151,6 +151,7 @@ func BenchmarkModelReading(b *testing.B) {
 			m, _ := NewModel(s)
 			m.SetBeam(0, true)
 			b.ReportAllocs()
+			b.ResetTimer()
 			for i := range b.N {
 				at := time.Duration(i) * 20 * time.Millisecond
 				m.DoseReading(at)
