@@ -254,7 +254,6 @@ func (m *Meter) reading(l serialline.Line) (drivers.Reading, error) {
 		AfterReconnect: m.reconnect || l.AfterReconnect,
 		Status:         drivers.StatusFault,
 	}
-	m.reconnect = false
 	v, unit, st, err := m.p.ParseLine(l.Text)
 	r.RawValue, r.RawUnit = v, unit
 	if err != nil {
@@ -266,6 +265,7 @@ func (m *Meter) reading(l serialline.Line) (drivers.Reading, error) {
 		return r, m.errorf("%w", err)
 	}
 	r.Value, r.Unit, r.Status = c, unitsCanonical(m.p), st
+	m.reconnect = false // marked until a reading gets through
 	return r, nil
 }
 

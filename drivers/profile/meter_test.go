@@ -153,20 +153,25 @@ func TestPolledPulledCable(t *testing.T) {
 	if _, err := m.Read(ctx(t)); !errors.Is(err, drivers.ErrLinkDown) {
 		t.Fatalf("still pulled: got %v, want ErrLinkDown", err)
 	}
-	k.set(func(k *kr40) { k.unit = "mR/s" }) // the meter forgot its set-up
+	// The meter forgot its set-up, and its first reply is garbled.
+	k.set(func(k *kr40) { k.unit = "mR/s"; k.reply = "RD \x00\r\n" })
 	d.Replug()
 	var r drivers.Reading
 	for i := 0; ; i++ {
 		r, err = m.Read(ctx(t))
-		if err == nil {
+		if errors.Is(err, drivers.ErrGarbled) {
 			break
 		}
 		if !errors.Is(err, drivers.ErrLinkDown) || i > 100 {
 			t.Fatalf("reconnecting: %v", err)
 		}
 	}
+	k.set(func(k *kr40) { k.reply = "" })
+	if r, err = m.Read(ctx(t)); err != nil {
+		t.Fatal(err)
+	}
 	if !r.AfterReconnect || r.RawUnit != "uGy/s" {
-		t.Errorf("first reading after replug %+v: want AfterReconnect and the set-up unit uGy/s re-sent", r)
+		t.Errorf("first reading after replug %+v: want AfterReconnect (kept past the garbled reply) and the set-up unit uGy/s re-sent", r)
 	}
 	if r, err := m.Read(ctx(t)); err != nil || r.AfterReconnect {
 		t.Errorf("second reading %+v, %v: want unmarked", r, err)

@@ -443,7 +443,6 @@ func (m *Meter) Read(ctx context.Context) (drivers.Reading, error) {
 		Meter: m.o.name, Quantity: m.cfg.Quantity, Raw: l.Text, Mono: l.Mono, Wall: l.Wall,
 		AfterReconnect: m.reconnect || l.AfterReconnect, Status: drivers.StatusFault, RawUnit: m.unit,
 	}
-	m.reconnect = false
 	v, st, perr := ParseNumber(l.Text)
 	if perr != nil {
 		m.dirty = true
@@ -479,6 +478,7 @@ func (m *Meter) Read(ctx context.Context) (drivers.Reading, error) {
 		return r, m.errorf("%w: %v", drivers.ErrUnit, err)
 	}
 	r.Value, r.Unit = c, units.Canonical(m.cfg.Quantity)
+	m.reconnect = false // marked until a reading gets through
 	return r, nil
 }
 
