@@ -4,6 +4,8 @@ import (
 	"strings"
 	"testing"
 	"time"
+
+	"kermalux/drivers/clock"
 )
 
 func TestLoadExamples(t *testing.T) {
@@ -125,5 +127,32 @@ func TestBuiltinAcceptanceOnBench(t *testing.T) {
 	}
 	if !safety {
 		t.Fatal("no safety checklist")
+	}
+}
+
+func TestConfigFromBench(t *testing.T) {
+	b, err := Load("../../testdata/bench/harbour-view-room2.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	p, err := b.Procedure("conversion-factor")
+	if err != nil {
+		t.Fatal(err)
+	}
+	clk := clock.NewManual(time.Date(2026, 6, 1, 9, 0, 0, 0, time.UTC))
+	cfg, err := b.Config(p, nil, nil, nil, clk, "test")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if cfg.Session.BenchHash != b.SHA256 || cfg.Session.IntensifierSerial != "HV-2291" || len(cfg.Session.Certificates) != 2 {
+		t.Errorf("session %+v", cfg.Session)
+	}
+	for _, c := range cfg.Session.Certificates {
+		if !c.Valid || len(c.SHA256) != 64 {
+			t.Errorf("certificate %+v", c)
+		}
+	}
+	if cfg.FieldModes["17cm"] != 170 || len(cfg.Correctors) != 2 {
+		t.Errorf("modes %v, correctors %d", cfg.FieldModes, len(cfg.Correctors))
 	}
 }

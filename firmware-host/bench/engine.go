@@ -157,7 +157,7 @@ func (b *Bench) Config(proc engine.Procedure, meters map[string]drivers.Meter, p
 		Session: entry.Session{Site: b.Site, Room: b.Room, IntensifierModel: b.Intensifier.Model,
 			IntensifierSerial: b.Intensifier.Serial, Engineer: b.Engineer, Procedure: proc.Name,
 			ProcedureHash: proc.Hash, BenchHash: b.SHA256, SoftwareVersion: version, Started: day, Certificates: refs},
-		Values: b.Values(), CertProblems: problems, Limits: lim, BootID: BootID(),
+		Values: b.Values(), CertProblems: problems, Limits: lim, BootID: BootID(), FieldModes: b.modeDiameters(),
 	}, nil
 }
 
@@ -194,4 +194,12 @@ func (b *Bench) Found(meters map[string]drivers.Meter, day time.Time) string {
 		parts = append(parts, s)
 	}
 	return strings.Join(parts, ". ") + "."
+}
+
+func (b *Bench) modeDiameters() map[string]float64 {
+	m := map[string]float64{}
+	for _, f := range b.Intensifier.FieldModes {
+		m[f.Name] = f.DiameterMM
+	}
+	return m
 }

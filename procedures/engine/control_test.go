@@ -1,0 +1,94 @@
+package engine
+
+import (
+	"context"
+	"errors"
+	"testing"
+
+	"kermalux/firmware-host/journal/entry"
+	"kermalux/firmware-host/panel"
+)
+
+// A long press at the prompt after a measurement retakes that
+// measurement; the result is computed from the retaken one only.
+func TestRetakeLastStep(t *testing.T) {
+	steps := cfSteps()
+	// An instruction after the measurement, where the engineer long-presses once.
+	steps = append(steps[:6], append([]Step{{ID: "check", Kind: Instruct, Text: "Check the photometer bracket. Press when done."}}, steps[6:]...)...)
+	r := newRig(steps)
+	pressed := false
+	r.reply = func(p panel.Prompt) (panel.Response, bool) {
+		if p.StepID == "check" && !pressed {
+			pressed = true
+			return panel.Response{Answer: panel.Retake}, true
+		}
+		return panel.Response{}, false
+	}
+	sum, err := r.run(context.Background())
+	if err != nil {
+		t.Fatal(err)
+	}
+	if r.phys.beamOns != 2 {
+		t.Errorf("%d beam-ons, want 2", r.phys.beamOns)
+	}
+	n := 0
+	for _, s := range records[entry.Step](r.jr, sum.Session, entry.KindStep) {
+		if s.ID == "cf@32cm" && s.State == entry.StepRetake && s.Reason == "operator asked to retake" {
+			n++
+		}
+	}
+	if n != 1 {
+		t.Errorf("%d operator retakes journalled", n)
+	}
+	if len(sum.Results) != 1 || sum.Outcome != "complete" {
+		t.Errorf("outcome %s, %d results", sum.Outcome, len(sum.Results))
+	}
+}
+
+// Pause leaves the session unfinished (resumable); abort ends it.
+func TestPauseAndAbort(t *testing.T) {
+	for _, c := range []struct {
+		answer  panel.Answer
+		want    error
+		outcome string
+		ended   bool
+	}{{panel.Pause, ErrPaused, "paused", false}, {panel.Abort, ErrAborted, "aborted", true}} {
+		r := newRig(cfSteps())
+		r.reply = func(p panel.Prompt) (panel.Response, bool) {
+			if p.Action == panel.ActValue {
+				return panel.Response{Answer: c.answer}, true
+			}
+			return panel.Response{}, false
+		}
+		sum, err := r.run(context.Background())
+		if !errors.Is(err, c.want) || sum.Outcome != c.outcome {
+			t.Errorf("%s: err %v, outcome %s", c.answer, err, sum.Outcome)
+		}
+		if r.jr.ended[sum.Session] != c.ended {
+			t.Errorf("%s: session ended = %v", c.answer, r.jr.ended[sum.Session])
+		}
+	}
+}
+
+// An expired certificate is said aloud at the start, and a reading's
+// flags reach the result.
+func TestCertificateProblemsSaid(t *testing.T) {
+	r := newRig(cfSteps())
+	r.cfg.CertProblems = []string{"The dosimeter certificate NRML-25-0112 expired on 4 March 2025."}
+	sum, err := r.run(context.Background())
+	if err != nil {
+		t.Fatal(err)
+	}
+	warned := false
+	for _, m := range r.pan.Messages() {
+		if m.Level == panel.Warn && said(r.pan, "expired on 4 March 2025") {
+			warned = true
+		}
+	}
+	if !warned || len(events(r.jr, sum.Session, evCertificate)) != 1 {
+		t.Error("certificate problem not said and journalled")
+	}
+	if sum.Results[0].Calibrated {
+		t.Error("result marked calibrated")
+	}
+}
