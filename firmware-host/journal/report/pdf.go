@@ -18,6 +18,16 @@ type pdfDoc struct {
 	w, left   float64 // usable width and left margin, mm
 	bottom    float64 // y beyond which a new page starts, mm
 	simulated bool
+	landscape bool // pages added by the layout keep the current orientation
+}
+
+// newPage starts a page in the current orientation.
+func (d *pdfDoc) newPage() {
+	if d.landscape {
+		d.f.AddPageFormat("L", fpdf.SizeType{Wd: 210, Ht: 297})
+		return
+	}
+	d.f.AddPage()
 }
 
 const ptToMM = 25.4 / 72
@@ -34,7 +44,7 @@ func (d *pdfDoc) font(style string, size float64) {
 
 func (d *pdfDoc) ensure(h float64) {
 	if d.f.GetY()+h > d.bottom {
-		d.f.AddPage()
+		d.newPage()
 	}
 }
 
@@ -49,7 +59,7 @@ func (d *pdfDoc) heading(s string) {
 }
 
 func (d *pdfDoc) subheading(s string) {
-	d.ensure(16)
+	d.ensure(28) // the heading, a table header and a first row together
 	d.f.Ln(1.5)
 	d.font("B", 10.5)
 	d.f.CellFormat(d.w, 6, pdfText(s), "", 1, "L", false, 0, "")
@@ -83,7 +93,7 @@ func (d *pdfDoc) tableSized(cols []pdfCol, rows [][]string, size float64) {
 	for _, row := range rows {
 		h := d.rowHeight(cols, row, lh, pad, false)
 		if d.f.GetY()+h > d.bottom {
-			d.f.AddPage()
+			d.newPage()
 			header()
 		}
 		y := d.f.GetY()
@@ -456,7 +466,8 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 	}
 	f.SetY(y + 8)
 
-	f.AddPageFormat("L", fpdf.SizeType{Wd: 210, Ht: 297})
+	d.landscape = true
+	d.newPage()
 	pw, ph = f.GetPageSize()
 	d.w, d.bottom = pw-28, ph-18
 	d.heading("Appendix: every reading")
