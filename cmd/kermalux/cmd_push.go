@@ -2,7 +2,6 @@ package main
 
 import (
 	"fmt"
-	"net/http"
 	"os"
 
 	"github.com/spf13/cobra"
@@ -35,8 +34,6 @@ up stored once. The board must be enrolled at the workstation first
 				if opts.Client, err = transfer.ClientWithCA(ca); err != nil {
 					return withCode(exitUsage, err)
 				}
-			} else {
-				opts.Client = http.DefaultClient
 			}
 			sum, err := transfer.Push(cmd.Context(), j, opts)
 			if err != nil {
