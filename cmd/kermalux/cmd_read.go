@@ -32,6 +32,7 @@ type readOptions struct {
 	unit     string
 	query    string
 	quantity string
+	init     []string
 }
 
 func init() {
@@ -50,7 +51,8 @@ again. Lines that cannot be understood, wrong units, silences and a pulled
 cable are reported on standard error and reading goes on.
 
 Stops after --count readings (default 10), after --for, or on Ctrl-C.
-Exit status: 0 all readings good, 1 a meter error occurred, 2 wrong command line.`,
+Exit status: 0 no errors (over- and under-range readings are shown, not errors),
+1 a meter or link error occurred, 2 wrong command line.`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, args []string) error { return runRead(cmd, o) },
 	}
@@ -65,6 +67,7 @@ Exit status: 0 all readings good, 1 a meter error occurred, 2 wrong command line
 	f.IntVar(&o.baud, "baud", 0, "SCPI: baud rate (default 19200)")
 	f.StringVar(&o.unit, "unit", "", "SCPI: unit the readings are in, such as UGY/S (default: ask UNIT:KRAT?)")
 	f.StringVar(&o.query, "query", "", "SCPI: reading query (default READ?)")
+	f.StringSliceVar(&o.init, "init", nil, "SCPI: set-up commands sent after every (re)connection, comma-separated (default *RST,*CLS,CONF:KRAT)")
 	f.StringVar(&o.quantity, "quantity", string(units.AirKermaRate), "SCPI: quantity measured: air_kerma_rate, air_kerma or luminance")
 	register(cmd)
 }
@@ -94,7 +97,7 @@ func runRead(cmd *cobra.Command, o readOptions) error {
 	clk := clock.NewReal()
 	var m meter
 	if o.scpi {
-		cfg := scpi.Config{Line: serialline.Config{Baud: o.baud}, Unit: o.unit, Query: o.query, Quantity: units.Quantity(o.quantity)}
+		cfg := scpi.Config{Line: serialline.Config{Baud: o.baud}, Unit: o.unit, Query: o.query, Quantity: units.Quantity(o.quantity), Init: o.init}
 		sm, err := scpi.Open(ctx, o.port, cfg, scpi.WithName(o.name), scpi.WithClock(clk))
 		if err != nil {
 			return withCode(exitFailure, err)

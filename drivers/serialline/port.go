@@ -21,7 +21,9 @@ import (
 // Line is one line received, without its framing.
 type Line struct {
 	Text string
-	// Mono and Wall are the clock's times when the line's end arrived.
+	// Mono and Wall are the clock's times when ReadLine found the line's
+	// end. A reader that falls behind a streaming meter stamps late, so
+	// read such a meter continuously.
 	Mono time.Duration
 	Wall time.Time
 	// AfterReconnect is true for the first line read after the link was
