@@ -92,3 +92,32 @@ func TestCertificateProblemsSaid(t *testing.T) {
 		t.Error("result marked calibrated")
 	}
 }
+
+// A value asked in another unit (pressure in hPa) is offered from the
+// bench default converted (101.3 kPa = 1013 hPa, 1 hPa = 100 Pa, NIST SP
+// 811) and kept canonical for the corrections.
+func TestValueUnits(t *testing.T) {
+	steps := cfSteps()
+	steps[3].Value = &ValueSpec{Name: "pressure", Unit: "hPa", Min: 700, Max: 1100}
+	r := newRig(steps)
+	var offered float64
+	r.reply = func(p panel.Prompt) (panel.Response, bool) {
+		if p.Value != nil && p.Value.Name == "pressure" {
+			offered = p.Value.Default
+		}
+		return panel.Response{}, false
+	}
+	e, err := New(r.cfg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := e.Run(context.Background()); err != nil {
+		t.Fatal(err)
+	}
+	if offered < 1012.99 || offered > 1013.01 {
+		t.Errorf("offered %g hPa", offered)
+	}
+	if p := e.st.values["pressure"]; p < 101.299 || p > 101.301 {
+		t.Errorf("kept %g, want 101.3 kPa", p)
+	}
+}

@@ -8,6 +8,7 @@ import (
 	"strings"
 	"time"
 
+	"kermalux/drivers/units"
 	"kermalux/firmware-host/journal/entry"
 	"kermalux/firmware-host/panel"
 )
@@ -439,7 +440,14 @@ func (e *Engine) enter(ctx context.Context, idx int, s Step, base panel.Prompt) 
 	}
 	req := &panel.ValueRequest{Name: v.Name, Unit: v.Unit, Default: v.Default, HasDef: v.HasDef, Min: v.Min, Max: v.Max}
 	source := "bench default"
+	q, qerr := units.QuantityOf(v.Unit)
 	if d, ok := e.cfg.Values[v.Name]; ok {
+		// Bench defaults are canonical; offer them in the unit asked.
+		if qerr == nil {
+			if x, err := units.FromCanonical(q, d, v.Unit); err == nil {
+				d = x
+			}
+		}
 		req.Default, req.HasDef = d, true
 	} else if !v.HasDef {
 		source = "operator"
@@ -473,7 +481,14 @@ func (e *Engine) enter(ctx context.Context, idx int, s Step, base panel.Prompt) 
 			}
 			continue
 		}
-		e.st.values[v.Name] = val
+		// Kept canonical (°C, kPa, kV, mm) for the corrections.
+		canon := val
+		if qerr == nil {
+			if x, err := units.ToCanonical(q, val, v.Unit); err == nil {
+				canon = x
+			}
+		}
+		e.st.values[v.Name] = canon
 		return e.journal(ctx, entry.KindValue, entry.Value{Step: idx, Name: v.Name, Value: val, Unit: v.Unit, Source: source})
 	}
 }

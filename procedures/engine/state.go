@@ -7,6 +7,7 @@ import (
 	"math"
 	"time"
 
+	"kermalux/drivers/units"
 	"kermalux/firmware-host/journal/entry"
 )
 
@@ -123,7 +124,13 @@ func (e *Engine) rebuild(ctx context.Context, id string) (*state, error) {
 		case entry.KindValue:
 			var v entry.Value
 			if err := json.Unmarshal(env.Payload, &v); err == nil {
-				st.values[v.Name] = v.Value
+				val := v.Value
+				if q, err := units.QuantityOf(v.Unit); err == nil {
+					if x, err := units.ToCanonical(q, val, v.Unit); err == nil {
+						val = x
+					}
+				}
+				st.values[v.Name] = val
 			}
 		case entry.KindEvent:
 			var ev entry.Event
