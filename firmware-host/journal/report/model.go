@@ -154,6 +154,7 @@ func Build(envs []entry.Envelope) (*Report, error) {
 	r := &Report{}
 	haveSession := false
 	prompts := map[int64]entry.Prompt{}
+	resultAt := map[string]int{} // step/quantity/field mode → index in r.Results
 	corr := map[string]*CorrectionSummary{}
 	var corrOrder []string
 	for _, env := range envs {
@@ -261,6 +262,15 @@ func Build(envs []entry.Envelope) (*Report, error) {
 			if hasSimFlag(res.Flags) {
 				r.Simulated = true
 			}
+			// A result judged again (a judge step after the compute step,
+			// or a retake) supersedes the earlier record of the same step,
+			// quantity and field mode; it keeps the earlier one's place.
+			key := fmt.Sprintf("%d\x00%s\x00%s", res.Step, res.Quantity, res.FieldMode)
+			if i, ok := resultAt[key]; ok {
+				r.Results[i] = Result{Result: res, Seq: env.Seq}
+				continue
+			}
+			resultAt[key] = len(r.Results)
 			r.Results = append(r.Results, Result{Result: res, Seq: env.Seq})
 		}
 	}
@@ -410,9 +420,11 @@ func (r *Report) Finished() time.Time {
 	return t
 }
 
+// isSafety recognises a safety prompt by its level or action: the engine
+// asks checklist lines with the action "check".
 func isSafety(s string) bool {
 	s = strings.ToLower(s)
-	return strings.Contains(s, "safety") || strings.Contains(s, "checklist")
+	return s == "check" || strings.Contains(s, "safety") || strings.Contains(s, "checklist")
 }
 
 func hasSimFlag(flags []string) bool {

@@ -404,3 +404,50 @@ func TestCharts(t *testing.T) {
 		t.Errorf("charts %s", got)
 	}
 }
+
+// TestRejudgedResultSupersedes: the engine journals a result when it is
+// computed and again when a judge step judges it; the report and the trend
+// count the later record once.
+func TestRejudgedResultSupersedes(t *testing.T) {
+	envs := sampleSession()
+	last := envs[len(envs)-1]
+	var cr entry.Result
+	for _, env := range envs {
+		if env.Kind == entry.KindResult {
+			var res entry.Result
+			json.Unmarshal(env.Payload, &res)
+			if res.Quantity == "contrast_ratio" {
+				cr = res
+			}
+		}
+	}
+	cr.Verdict, cr.DecidedBy = "pass", "specification: at least 12"
+	b, _ := json.Marshal(cr)
+	rejudged := entry.Envelope{Seq: last.Seq, Session: last.Session, Kind: entry.KindResult, Wall: last.Wall, Payload: b}
+	last.Seq++
+	envs = append(envs[:len(envs)-1], rejudged, last)
+	r, err := Build(envs)
+	if err != nil {
+		t.Fatal(err)
+	}
+	n := 0
+	for _, res := range r.Results {
+		if res.Quantity == "contrast_ratio" {
+			n++
+			if res.Verdict != "pass" || res.DecidedBy != "specification: at least 12" {
+				t.Errorf("contrast ratio keeps the first judgement: %s, %s", res.Verdict, res.DecidedBy)
+			}
+		}
+	}
+	if n != 1 || len(r.Results) != 8 {
+		t.Errorf("contrast ratio results %d, all results %d; want 1 and 8", n, len(r.Results))
+	}
+	hs := sampleHistory(3, 180, -4.5)
+	dup := hs[1]
+	dup.Result.Verdict = "fail"
+	hs = append(hs[:2], append([]HistoryPoint{dup}, hs[2:]...)...)
+	ts := Fit("HV-2291", "conversion_factor", hs, 0.5)
+	if len(ts[0].Points) != 3 || ts[0].Points[1].Verdict != "fail" {
+		t.Errorf("history with a re-judged result: %d points, verdict %s", len(ts[0].Points), ts[0].Points[1].Verdict)
+	}
+}

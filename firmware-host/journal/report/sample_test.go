@@ -112,7 +112,7 @@ func sampleSessionAt(start time.Time, id string, gScale float64, baselines map[s
 		"The door warning light is on.",
 		"You are qualified and authorised to operate this unit.",
 	} {
-		ps := w.add(entry.KindPrompt, entry.Prompt{Step: step, Level: "safety", Action: "checklist", Text: line, Asked: true}, 3*time.Second)
+		ps := w.add(entry.KindPrompt, entry.Prompt{Step: step, Level: "info", Action: "check", Text: line, Asked: true}, 3*time.Second)
 		w.add(entry.KindAck, entry.Ack{Step: step, PromptSeq: ps, Answer: "yes", Text: line, At: w.wall.Add(time.Duration(4+i) * time.Second)}, time.Duration(4+i)*time.Second)
 	}
 	doneStep("safety-checklist", "checklist", "")

@@ -101,10 +101,18 @@ func Fit(serial, quantity string, history []HistoryPoint, actionLevel float64) [
 	if actionLevel <= 0 {
 		actionLevel = DefaultActionLevel
 	}
+	// The store keeps every result record; a session that judged a result
+	// twice has two records of it: the later one counts.
+	latest := map[string]int{}
+	for i, h := range history {
+		if h.Result.Quantity == quantity {
+			latest[h.Session+"\x00"+h.Result.FieldMode] = i
+		}
+	}
 	groups := map[string][]HistoryPoint{}
 	var modes []string
-	for _, h := range history {
-		if h.Result.Quantity != quantity {
+	for i, h := range history {
+		if h.Result.Quantity != quantity || latest[h.Session+"\x00"+h.Result.FieldMode] != i {
 			continue
 		}
 		if _, ok := groups[h.Result.FieldMode]; !ok {
