@@ -81,6 +81,8 @@ type Journal struct {
 	boot   string
 	soft   string
 	mu     sync.Mutex
+	// Prepared once: the append path runs them in every transaction.
+	head, insert, update *sql.Stmt
 }
 
 const schemaSQL = `
@@ -148,6 +150,19 @@ func Open(path string, opts Options) (*Journal, error) {
 		db.Close()
 		return nil, fmt.Errorf("open journal %s: %w", path, err)
 	}
+	for _, p := range []struct {
+		st **sql.Stmt
+		q  string
+	}{
+		{&j.head, `SELECT seq, hash, ended FROM heads WHERE session = ?`},
+		{&j.insert, `INSERT INTO records VALUES (?,?,?,?,?,?,?,?,?,?)`},
+		{&j.update, `UPDATE heads SET seq = ?, hash = ?, head_sig = ?, ended = ? WHERE session = ?`},
+	} {
+		if *p.st, err = db.Prepare(p.q); err != nil {
+			db.Close()
+			return nil, fmt.Errorf("open journal %s: %w", path, err)
+		}
+	}
 	return j, nil
 }
 
@@ -208,7 +223,12 @@ func (j *Journal) BoardKey() string { return j.pubHex }
 func (j *Journal) Sign(msg []byte) []byte { return ed25519.Sign(j.priv, msg) }
 
 // Close closes the journal.
-func (j *Journal) Close() error { return j.db.Close() }
+func (j *Journal) Close() error {
+	for _, st := range []*sql.Stmt{j.head, j.insert, j.update} {
+		st.Close()
+	}
+	return j.db.Close()
+}
 
 // NewSessionID returns a fresh session id: UTC start time, the first 8 hex
 // digits of the board key and 8 random hex digits.
@@ -325,7 +345,7 @@ func (j *Journal) appendItems(ctx context.Context, session string, items []Item,
 		prev  string
 		ended bool
 	)
-	err = tx.QueryRowContext(ctx, `SELECT seq, hash, ended FROM heads WHERE session = ?`, session).Scan(&seq, &prev, &ended)
+	err = tx.StmtContext(ctx, j.head).QueryRowContext(ctx, session).Scan(&seq, &prev, &ended)
 	switch {
 	case first && err == nil:
 		return fail(errors.New("session id already used"))
@@ -338,29 +358,36 @@ func (j *Journal) appendItems(ctx context.Context, session string, items []Item,
 	case ended:
 		return fail(ErrSessionEnded)
 	}
-	ins, err := tx.PrepareContext(ctx, `INSERT INTO records VALUES (?,?,?,?,?,?,?,?,?,?)`)
-	if err != nil {
-		return fail(err)
-	}
-	defer ins.Close()
-	var h [HashSize]byte
+	// Hash the records first, then sign the head on another core while
+	// the records are signed and inserted (two signatures per append).
+	recs := make([]Record, len(items))
+	hashes := make([][HashSize]byte, len(items))
 	for i, it := range items {
-		r := Record{Seq: seq + 1, Session: session, Kind: it.Kind, Wall: j.clk.Now().UTC().Format(WallFormat),
+		recs[i] = Record{Seq: seq + 1, Session: session, Kind: it.Kind, Wall: j.clk.Now().UTC().Format(WallFormat),
 			Mono: int64(j.clk.Mono()), BootID: j.boot, Payload: bodies[i], Prev: prev}
-		h = r.ComputeHash()
-		r.Hash = hex.EncodeToString(h[:])
-		r.Sig = hex.EncodeToString(ed25519.Sign(j.priv, recordMessage(h[:])))
+		hashes[i] = recs[i].ComputeHash()
+		recs[i].Hash = hex.EncodeToString(hashes[i][:])
+		seq, prev = recs[i].Seq, recs[i].Hash
+	}
+	headc := make(chan string, 1)
+	go func(h [HashSize]byte) {
+		headc <- hex.EncodeToString(ed25519.Sign(j.priv, headMessage(session, seq, h[:])))
+	}(hashes[len(hashes)-1])
+	ins := tx.StmtContext(ctx, j.insert)
+	for i := range recs {
+		r := &recs[i]
+		r.Sig = hex.EncodeToString(ed25519.Sign(j.priv, recordMessage(hashes[i][:])))
 		if _, err := ins.ExecContext(ctx, r.Session, r.Seq, string(r.Kind), r.Wall, r.Mono, r.BootID, string(r.Payload), r.Prev, r.Hash, r.Sig); err != nil {
+			<-headc
 			return fail(err)
 		}
-		seq, prev = r.Seq, r.Hash
 	}
-	headSig := hex.EncodeToString(ed25519.Sign(j.priv, headMessage(session, seq, h[:])))
+	headSig := <-headc
 	isEnd := items[len(items)-1].Kind == entry.KindSessionEnd
 	if first {
 		_, err = tx.ExecContext(ctx, `INSERT INTO heads(session, seq, hash, head_sig, ended) VALUES (?,?,?,?,?)`, session, seq, prev, headSig, isEnd)
 	} else {
-		_, err = tx.ExecContext(ctx, `UPDATE heads SET seq = ?, hash = ?, head_sig = ?, ended = ? WHERE session = ?`, seq, prev, headSig, isEnd, session)
+		_, err = tx.StmtContext(ctx, j.update).ExecContext(ctx, seq, prev, headSig, isEnd, session)
 	}
 	if err != nil {
 		return fail(err)

@@ -107,7 +107,7 @@ func (r *Report) view(opt Options, use chartUse) htmlView {
 	}
 	v.Exposures = r.Exposures()
 	for _, e := range r.Events {
-		if e.Name == "beam_on" || e.Name == "beam_off" {
+		if e.Name == "beam_on" || e.Name == "beam_off" || e.Name == "beam_time" {
 			continue
 		}
 		what := eventWords(e.Name)

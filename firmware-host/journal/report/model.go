@@ -344,7 +344,7 @@ func (r *Report) review() {
 	for _, e := range r.Events {
 		counts[e.Name]++
 	}
-	for _, name := range []string{"beam_alarm", "kerma_out_of_range", "aborted", "meter_lost"} {
+	for _, name := range []string{"beam_alarm", "kerma_out_of_range", "beam_refused", "certificate_problem", "aborted", "meter_lost", "reading_error"} {
 		if n := counts[name]; n > 0 {
 			r.Review = append(r.Review, fmt.Sprintf("%s (%s) happened %d time%s", eventWords(name), name, n, plural(n)))
 		}
@@ -489,6 +489,16 @@ func eventWords(name string) string {
 		return "the session was paused"
 	case "aborted":
 		return "the session was aborted"
+	case "beam_refused":
+		return "an exposure was refused"
+	case "beam_time":
+		return "beam-on time announced"
+	case "measurement_done":
+		return "measurement done"
+	case "reading_error":
+		return "a reading could not be used"
+	case "certificate_problem":
+		return "a certificate problem"
 	}
 	return strings.ReplaceAll(name, "_", " ")
 }
