@@ -124,8 +124,15 @@ func Load(path string) (*Bench, error) {
 }
 
 // Parse reads a bench file's text; name is used in errors.
-func Parse(name string, data []byte) (*Bench, error) {
+func Parse(name string, data []byte) (bench *Bench, err error) {
 	var b Bench
+	defer func() {
+		// The YAML decoder panics on some malformed input (found by
+		// fuzzing): report it as a malformed file.
+		if r := recover(); r != nil {
+			bench, err = nil, fmt.Errorf("bench file %s: malformed YAML (%v)", name, r)
+		}
+	}()
 	if err := yaml.UnmarshalWithOptions(data, &b, yaml.Strict()); err != nil {
 		return nil, fmt.Errorf("bench file %s:%s", name, strings.TrimPrefix(yaml.FormatError(err, false, true), "["))
 	}
