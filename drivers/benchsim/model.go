@@ -137,6 +137,25 @@ func (m *Model) chamberFactor() float64 {
 	return f
 }
 
+// airResponse is how a vented chamber's reading scales with the room's air
+// density relative to its reference conditions: the collected charge is
+// proportional to the mass of air in the cavity, ∝ P/T, so the chamber reads
+// true / k_TP with
+//
+//	k_TP = ((273.15 + T)/(273.15 + T0)) · (P0/P)
+//
+// (IAEA TRS-398 / AAPM TG-61). A sealed chamber, or a scenario without
+// room air, gives 1.
+func (m *Model) airResponse() float64 {
+	c, a := m.scn.Dosimeter.Chamber, m.scn.Air
+	if c == nil || c.Vented == nil || a == nil {
+		return 1
+	}
+	v := c.Vented
+	kTP := ((273.15 + a.TemperatureC) / (273.15 + v.ReferenceTemperatureC)) * (v.ReferencePressureKPa / a.PressureKPa)
+	return 1 / kTP
+}
+
 // relLum is the vignetting factor at (r, angle), see Vignetting.
 func (m *Model) relLum(r, angleDeg float64) float64 {
 	v := m.scn.Intensifier.Vignetting
@@ -314,7 +333,7 @@ func (m *Model) DoseReading(t time.Duration) MeterValue {
 	m.advance(t)
 	t = m.now
 	d := m.scn.Dosimeter
-	clean := m.dose.y * (1 + d.CalibrationError)
+	clean := m.dose.y * (1 + d.CalibrationError) * m.airResponse()
 	rel := math.Hypot(d.Noise, m.quantumNoise(m.dose.y/m.chamberFactor(), d.IntegrationTime))
 	v := clean*(1+rel*m.doseRNG.NormFloat64()) + d.NoiseFloor*m.doseRNG.NormFloat64()
 	return MeterValue{Value: v, Clean: clean}
@@ -368,6 +387,7 @@ func (m *Model) Truth(t time.Duration) Truth {
 		InputKermaRate:        k,
 		SettledInputKermaRate: m.target(),
 		ChamberFactor:         m.chamberFactor(),
+		AirResponse:           m.airResponse(),
 		ChamberKermaRate:      k * m.chamberFactor(),
 		CentreLuminance:       m.mode.ConversionFactor*k + in.DarkLuminance,
 		PhotometerLuminance:   m.luminanceFromKerma(k),
@@ -422,6 +442,9 @@ type Truth struct {
 	// InputKermaRate × ChamberFactor (inverse square and backscatter).
 	ChamberKermaRate float64
 	ChamberFactor    float64
+	// AirResponse is the vented chamber's reading relative to the truth
+	// at the room's air (1/k_TP; 1 for a sealed chamber).
+	AirResponse float64
 	// CentreLuminance with the input open, and PhotometerLuminance at the
 	// photometer's place (lead disk and vignetting included); both include
 	// the dark luminance. cd/m².

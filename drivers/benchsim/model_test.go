@@ -381,3 +381,26 @@ func TestScheduledControls(t *testing.T) {
 		t.Errorf("truth for an earlier time: at %v beam %v", tr.At, tr.Beam)
 	}
 }
+
+// A vented chamber at 24 °C and 98.0 kPa, calibrated at 20 °C and
+// 101.325 kPa, reads the true kerma rate divided by k_TP = 1.0480
+// (reference.md: arithmetic on the IAEA TRS-398 formula); a sealed one
+// reads it unchanged.
+func TestVentedChamberFollowsAirDensity(t *testing.T) {
+	for _, tc := range []struct {
+		name   string
+		vented *VentedSpec
+		want   float64
+	}{
+		{"vented, TRS-398 reference", &VentedSpec{ReferenceTemperatureC: 20, ReferencePressureKPa: 101.325}, 1 / 1.0480},
+		{"vented, TG-61 reference", &VentedSpec{ReferenceTemperatureC: 22, ReferencePressureKPa: 101.325}, 1 / 1.0409},
+		{"sealed", nil, 1},
+	} {
+		scn := &Scenario{Air: &AirSpec{TemperatureC: 24, PressureKPa: 98.0},
+			Dosimeter: MeterSpec{Chamber: &ChamberSpec{ChamberFromFocusMM: 1000, InputFromFocusMM: 1000, Vented: tc.vented}}}
+		m := &Model{scn: scn}
+		if got := m.airResponse(); math.Abs(got-tc.want) > 5e-5 {
+			t.Errorf("%s: reads %.5f × true, want %.5f", tc.name, got, tc.want)
+		}
+	}
+}

@@ -65,19 +65,22 @@ func TestVeltraneCommands(t *testing.T) {
 	}
 	b.SetBeam(true)
 	clk.Advance(5 * time.Second)
+	kTP := ((273.15 + 23.5) / (273.15 + 20)) * (101.325 / 99.2)
 	// In mR/s: 1 mR ↔ 8.764 µGy (units.GyPerRoentgen, NIST SP 811 and
-	// W/e = 33.97 J/C), so the true 0.4635 µGy/s chamber rate × 1.008
-	// reads about 0.0533 mR/s.
+	// W/e = 33.97 J/C), so the true 0.4635 µGy/s chamber rate, read by a
+	// meter reading 0.9921 × true and a vented chamber at 23.5 °C and
+	// 99.2 kPa (1/k_TP with T0 = 20 °C, P0 = 101.325 kPa: the TRS-398
+	// formula), reads about 0.0507 mR/s.
 	got := d.command("RD?")[0]
 	if !kr40Reading.MatchString(got) || !strings.Contains(got, " mR/s OK") {
 		t.Fatalf("reading %q does not match %v", got, kr40Reading)
 	}
 	v, _ := strconv.ParseFloat(strings.Fields(got)[1], 64)
-	near(t, "mR/s reading", v, 0.45*1.03*1.008/8.764, 0.03)
+	near(t, "mR/s reading", v, 0.45*1.03*(1-0.0079)/kTP/8.764, 0.03)
 	d.command("UNIT MR/MIN")
 	got = d.command("RD?")[0]
 	v, _ = strconv.ParseFloat(strings.Fields(got)[1], 64)
-	near(t, "mR/min reading", v, 60*0.45*1.03*1.008/8.764, 0.03)
+	near(t, "mR/min reading", v, 60*0.45*1.03*(1-0.0079)/kTP/8.764, 0.03)
 }
 
 func TestHaldenCommands(t *testing.T) {

@@ -26,6 +26,10 @@ type Scenario struct {
 	Dosimeter   MeterSpec   `yaml:"dosimeter"`
 	Photometer  MeterSpec   `yaml:"photometer"`
 	Faults      []FaultSpec `yaml:"faults"`
+	// Air is the room's air, which a vented ionisation chamber's reading
+	// depends on (optional: without it the chamber reads as at its
+	// reference conditions).
+	Air *AirSpec `yaml:"room_air"`
 
 	// Source is the file the scenario was read from (for error messages).
 	Source string `yaml:"-"`
@@ -145,6 +149,19 @@ type MeterSpec struct {
 	Position *PositionSpec `yaml:"position"`
 }
 
+// AirSpec is the room's air temperature (°C) and pressure (kPa).
+type AirSpec struct {
+	TemperatureC float64 `yaml:"temperature_c"`
+	PressureKPa  float64 `yaml:"pressure_kpa"`
+}
+
+// VentedSpec is a vented chamber's reference air conditions (those of its
+// calibration certificate).
+type VentedSpec struct {
+	ReferenceTemperatureC float64 `yaml:"reference_temperature_c"`
+	ReferencePressureKPa  float64 `yaml:"reference_pressure_kpa"`
+}
+
 // RangeSpec is a meter's display range.
 type RangeSpec struct {
 	Min float64 `yaml:"min"`
@@ -159,6 +176,10 @@ type ChamberSpec struct {
 	InputFromFocusMM   float64 `yaml:"input_from_focus_mm"`
 	AgainstFace        bool    `yaml:"against_face"`
 	BackscatterFactor  float64 `yaml:"backscatter_factor"`
+	// Vented chambers respond to the mass of air in their cavity: at room
+	// air (T, P) they read true × k_TP⁻¹ with k_TP relative to the
+	// reference conditions given here (nil: a sealed chamber).
+	Vented *VentedSpec `yaml:"vented"`
 }
 
 // PositionSpec is the photometer's place on the output face.
@@ -351,6 +372,20 @@ func lineOf(data []byte, path string) int {
 
 // check validates the scenario and fills in defaults.
 func (s *Scenario) check() error {
+	if a := s.Air; a != nil {
+		if a.TemperatureC < -10 || a.TemperatureC > 50 {
+			return bad("$.room_air.temperature_c", "must be -10..50 °C, got %g", a.TemperatureC)
+		}
+		if a.PressureKPa < 50 || a.PressureKPa > 120 {
+			return bad("$.room_air.pressure_kpa", "must be 50..120 kPa, got %g", a.PressureKPa)
+		}
+	}
+	if c := s.Dosimeter.Chamber; c != nil && c.Vented != nil {
+		v := c.Vented
+		if v.ReferenceTemperatureC < 0 || v.ReferenceTemperatureC > 40 || v.ReferencePressureKPa < 50 || v.ReferencePressureKPa > 120 {
+			return bad("$.dosimeter.chamber.vented", "reference conditions must be 0..40 °C and 50..120 kPa, got %g °C, %g kPa", v.ReferenceTemperatureC, v.ReferencePressureKPa)
+		}
+	}
 	if s.Speed == 0 {
 		s.Speed = 20
 	}

@@ -135,8 +135,11 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	defer jr.Close()
 
 	op := NewOperator(ctx, sim, clk, uint64(scn.Seed))
-	op.Readings["temperature"] = 20
-	op.Readings["pressure"] = 101.325
+	// The operator reads the room's thermometer and barometer.
+	op.Readings["temperature"], op.Readings["pressure"] = 20, 101.325
+	if a := scn.Air; a != nil {
+		op.Readings["temperature"], op.Readings["pressure"] = a.TemperatureC, a.PressureKPa
+	}
 	t := &transcript{w: o.Transcript, clk: clk}
 	pan := scripted.New(clk,
 		scripted.WithResponder(func(p panel.Prompt) panel.Response {

@@ -27,6 +27,7 @@ type Bench interface {
 	SetPhotometerPosition(rFrac, angleDeg float64) error
 	SetTubeVoltage(kv float64) error
 	SetPhantom(in bool)
+	SetBrightnessControl(on bool)
 }
 
 // Operator answers prompts as a person at the bench would. Use Respond as
@@ -177,6 +178,10 @@ func (o *Operator) arrange(setup map[string]string) {
 	if v, ok := setup["phantom"]; ok {
 		o.bench.SetPhantom(v == "in")
 		o.did("phantom " + v)
+	}
+	if v, ok := setup["brightness_control"]; ok {
+		o.bench.SetBrightnessControl(v == "on")
+		o.did("brightness control " + v)
 	}
 	r, okR := setup["photometer_radius"]
 	a, okA := setup["photometer_angle"]
