@@ -77,3 +77,12 @@ var (
 	// ErrUnit: the meter reported a unit that is unknown or of the wrong quantity.
 	ErrUnit = errors.New("unexpected unit")
 )
+
+// Freshener is a meter that can drop what is waiting in its buffers, so the
+// next Read returns a line the meter sent after the call. A streaming meter
+// whose reader was busy elsewhere (a step that read only the other meter)
+// has a backlog of old lines that would be stamped as new; the engine calls
+// Discard before it starts sampling.
+type Freshener interface {
+	Discard()
+}

@@ -269,6 +269,15 @@ func (m *Meter) reading(l serialline.Line) (drivers.Reading, error) {
 	return r, nil
 }
 
+// Discard implements drivers.Freshener: a streaming meter drops the lines
+// waiting in the buffers (and the line in progress), so the next reading is
+// one sent after the call. A polled meter's readings are always fresh.
+func (m *Meter) Discard() {
+	if m.p.Mode == Streaming && m.port.Up() {
+		m.port.Discard()
+	}
+}
+
 // Close stops a streaming meter (best effort) and closes the port.
 func (m *Meter) Close() error {
 	if m.p.Mode == Streaming && m.p.Stop != "" && m.port.Up() {

@@ -249,6 +249,17 @@ func (p *Port) Flush() {
 	}
 }
 
+// Discard drops input received but not yet read, like Flush, and also the
+// rest of the line in progress, so the next line returned is one that
+// started after the call (a streaming meter's backlog is not passed on as
+// fresh, and a line cut by the flush is not reported as garbled). When the
+// flush happens to fall between two lines, the first whole line after it is
+// dropped too: one reading lost is better than a garbled one.
+func (p *Port) Discard() {
+	p.Flush()
+	p.skipping = true
+}
+
 // slice is the longest single read, so ctx is honoured promptly.
 const slice = 100 * time.Millisecond
 
