@@ -180,6 +180,8 @@ func TestCoefficientAt(t *testing.T) {
 		{Quality{HVL: 3.0}, 0, true},                                                       // below the table
 		{Quality{HVL: 12.5}, 0, true},                                                      // above the table
 		{Quality{Name: "RQA5", TubeVoltage: 70, HVL: 7.1}, 1.008 - 0.005*(0.3/2.4), false}, // stated HVL wins
+		{Quality{TubeVoltage: 80}, (1.008 + 1.003) / 2, false},                             // no HVL (phantom beam): along kV, 70→1.008, 90→1.003
+		{Quality{TubeVoltage: 130}, 0, true},                                               // by kV, above the table's 120 kV
 	}
 	for _, tc := range tests {
 		got, err := c.CoefficientAt(tc.q)

@@ -199,6 +199,11 @@ func (c *Certificate) CoefficientAt(q Quality) (float64, error) {
 		return c.Coefficient, nil
 	}
 	q = q.filled()
+	if c.voltageFallback(q) {
+		byKV := *c
+		byKV.Along = AlongTubeVoltage
+		return byKV.CoefficientAt(q)
+	}
 	if c.Along == AlongQuality {
 		if strings.TrimSpace(q.Name) == "" {
 			return 0, fmt.Errorf("certificate %s is tabulated by beam quality name, but no quality was given", c.Number)
@@ -232,6 +237,25 @@ func (c *Certificate) CoefficientAt(q Quality) (float64, error) {
 		return 0, fmt.Errorf("certificate %s: coefficient table: %w", c.Number, err)
 	}
 	return pl.Predict(math.Min(math.Max(x, lo), hi)), nil
+}
+
+// voltageFallback reports whether a table along half-value layer must be
+// read along tube voltage instead: the beam's HVL was not measured (a beam
+// hardened by a phantom, whose quality is no RQA quality) but its tube
+// voltage is known, and every row of the certificate states its tube
+// voltage. The coefficient then carries the chamber's energy dependence
+// only approximately, which the correction's note says (common practice:
+// the nearest calibrated quality by kV is used when the HVL is unknown).
+func (c *Certificate) voltageFallback(q Quality) bool {
+	if c.Along != AlongHVL || q.HVL > 0 || q.TubeVoltage <= 0 || len(c.Points) == 0 {
+		return false
+	}
+	for _, p := range c.Points {
+		if p.Quality.TubeVoltage <= 0 {
+			return false
+		}
+	}
+	return true
 }
 
 // KTP is the air-density correction for a vented ionisation chamber
@@ -306,6 +330,8 @@ func Correct(value float64, q units.Quantity, s Setup) Corrected {
 			switch {
 			case len(c.Points) > 1 && c.Along == AlongQuality:
 				note = fmt.Sprintf("certificate %s, row %s", c.Number, s.Quality.Name)
+			case len(c.Points) > 1 && c.voltageFallback(s.Quality.filled()):
+				note = fmt.Sprintf("certificate %s, interpolated at tube voltage %g kV (half-value layer not measured: energy dependence approximate)", c.Number, s.Quality.filled().TubeVoltage)
 			case len(c.Points) > 1:
 				fq := s.Quality.filled()
 				note = fmt.Sprintf("certificate %s, interpolated at %s %g", c.Number, axisWords(c.Along), c.axisValue(fq))
