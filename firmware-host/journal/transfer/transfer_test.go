@@ -286,8 +286,11 @@ func TestPushSurvivesCuts(t *testing.T) {
 		if sum.Sent != int64(n) {
 			t.Errorf("seed %d: push counted %d records, store holds %d", seed, sum.Sent, n)
 		}
-		if px.cuts == 0 || sum.Retries == 0 {
-			t.Errorf("seed %d: no connection was cut (%d cuts, %d retries)", seed, px.cuts, sum.Retries)
+		px.mu.Lock()
+		cuts := px.cuts
+		px.mu.Unlock()
+		if cuts == 0 || sum.Retries == 0 {
+			t.Errorf("seed %d: no connection was cut (%d cuts, %d retries)", seed, cuts, sum.Retries)
 		}
 		srv.Close()
 	}
