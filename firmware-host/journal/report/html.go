@@ -50,6 +50,7 @@ var htmlTemplate = template.Must(template.New("report").Funcs(template.FuncMap{
 	"neg":           func(n int) int { return -n },
 	"inc":           func(n int) int { return n + 1 },
 	"unit":          unitShown,
+	"join":          func(s []string) string { return strings.Join(s, ", ") },
 	"trendSentence": trendSentence,
 	"rel":           func(u, v float64) float64 { return u / math.Abs(v) },
 	// svg marks a chart rendered by this package as safe HTML: it is
@@ -78,6 +79,7 @@ type htmlView struct {
 	Generated  time.Time
 	Version    string
 	Cautions   []string
+	Groups     []ReadingGroup
 }
 
 // chartUse says which chart formats a rendering needs.
@@ -106,6 +108,7 @@ func (r *Report) view(opt Options, use chartUse) htmlView {
 		}
 	}
 	v.Exposures = r.Exposures()
+	v.Groups = r.ReadingGroups()
 	for _, e := range r.Events {
 		if e.Name == "beam_on" || e.Name == "beam_off" || e.Name == "beam_time" {
 			continue

@@ -570,3 +570,66 @@ func (r *Report) Exposures() []Exposure {
 	}
 	return out
 }
+
+// ReadingGroup sums up the readings of one meter in one step at one
+// position: how many, how many entered the result, and the corrected
+// values of those that did.
+type ReadingGroup struct {
+	Step                int
+	StepID              string
+	FieldMode, Position string
+	Meter, Quantity     string
+	Unit                string
+	N, Used             int
+	NotOK               int // readings whose status was not "ok"
+	Uncalibrated        int
+	Mean, Min, Max      float64 // of the used readings' corrected values
+	First, Last         time.Time
+	Corrections         []string // names, in the order applied
+	Readings            []Reading
+}
+
+// ReadingGroups groups the readings by step, meter and position, in the
+// order they were taken.
+func (r *Report) ReadingGroups() []ReadingGroup {
+	var out []ReadingGroup
+	at := map[string]int{}
+	for _, rd := range r.Readings {
+		key := fmt.Sprintf("%d\x00%s\x00%s\x00%s\x00%s", rd.Step, rd.StepID, rd.Meter, rd.Position, rd.FieldMode)
+		i, ok := at[key]
+		if !ok {
+			i = len(out)
+			at[key] = i
+			out = append(out, ReadingGroup{Step: rd.Step, StepID: rd.StepID, FieldMode: rd.FieldMode, Position: rd.Position,
+				Meter: rd.Meter, Quantity: rd.Quantity, Unit: rd.Unit, First: rd.Wall, Min: math.Inf(1), Max: math.Inf(-1)})
+		}
+		g := &out[i]
+		g.N++
+		g.Last = rd.Wall
+		if rd.Status != "ok" && rd.Status != "" {
+			g.NotOK++
+		}
+		if !rd.Calibrated {
+			g.Uncalibrated++
+		}
+		for _, c := range rd.Corrections {
+			if !contains(g.Corrections, c.Name) {
+				g.Corrections = append(g.Corrections, c.Name)
+			}
+		}
+		if rd.Used {
+			g.Used++
+			g.Mean += rd.Value
+			g.Min, g.Max = math.Min(g.Min, rd.Value), math.Max(g.Max, rd.Value)
+		}
+		g.Readings = append(g.Readings, rd)
+	}
+	for i := range out {
+		if out[i].Used > 0 {
+			out[i].Mean /= float64(out[i].Used)
+		} else {
+			out[i].Min, out[i].Max = 0, 0
+		}
+	}
+	return out
+}

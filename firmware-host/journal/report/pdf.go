@@ -32,6 +32,10 @@ func (d *pdfDoc) newPage() {
 
 const ptToMM = 25.4 / 72
 
+// pdfReadingsMax is the most readings the PDF lists one by one (about 40
+// pages); beyond it the PDF keeps the per-group summary only.
+const pdfReadingsMax = 1500
+
 type pdfCol struct {
 	head  string
 	width float64 // fraction of the usable width
@@ -470,23 +474,44 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 	d.newPage()
 	pw, ph = f.GetPageSize()
 	d.w, d.bottom = pw-28, ph-18
-	d.heading("Appendix: every reading")
-	d.para(fmt.Sprintf("%d readings. Readings marked “not used” did not enter a result (settling, dark or discarded). Corrections are listed in the order applied; the corrected value is in the canonical unit.", len(r.Readings)), 8)
+	d.heading("Appendix: the readings")
+	d.para(fmt.Sprintf("%d readings in %d groups (one meter, one step, one position). Mean, lowest and highest are of the corrected values that entered a result.", len(r.Readings), len(v.Groups)), 8)
 	rows = rows[:0]
-	for _, rd := range r.Readings {
-		st := rd.Status
-		if !rd.Used {
-			st += ", not used"
+	for _, g := range v.Groups {
+		mean, rng := "", ""
+		if g.Used > 0 {
+			mean, rng = Number(g.Mean), Number(g.Min)+" – "+Number(g.Max)
 		}
-		if !rd.Calibrated {
-			st += ", uncalibrated"
+		var notes []string
+		if g.NotOK > 0 {
+			notes = append(notes, fmt.Sprintf("%d not ok", g.NotOK))
 		}
-		if len(rd.Flags) > 0 {
-			st += ", " + strings.Join(rd.Flags, ", ")
+		if g.Uncalibrated > 0 {
+			notes = append(notes, fmt.Sprintf("%d uncalibrated", g.Uncalibrated))
 		}
-		rows = append(rows, []string{fmt.Sprint(rd.Seq), Clock(rd.Wall), rd.StepID, rd.FieldMode, rd.Position, rd.Meter, rd.Raw, correctionsText(rd.Corrections), Number(rd.Value) + " " + rd.Unit, st})
+		rows = append(rows, []string{fmt.Sprint(g.Step), g.StepID, g.FieldMode, g.Position, g.Meter, fmt.Sprint(g.N), fmt.Sprint(g.Used), mean, rng, g.Unit, strings.Join(g.Corrections, ", "), strings.Join(notes, "; ")})
 	}
-	d.tableSized([]pdfCol{{"Seq", .04, true}, {"Time", .06, false}, {"Step", .11, false}, {"Field", .05, false}, {"Position", .07, false}, {"Meter", .07, false}, {"Raw line", .14, false}, {"Corrections", .24, false}, {"Corrected", .09, true}, {"Status", .13, false}}, rows, 6.5)
+	d.tableSized([]pdfCol{{"Step", .04, true}, {"Step id", .12, false}, {"Field", .05, false}, {"Position", .07, false}, {"Meter", .08, false}, {"Readings", .06, true}, {"Used", .05, true}, {"Mean", .07, true}, {"Lowest – highest", .12, true}, {"Unit", .06, false}, {"Corrections", .18, false}, {"Notes", .1, false}}, rows, 7)
+	if len(r.Readings) <= pdfReadingsMax {
+		d.subheading("Every reading")
+		rows = rows[:0]
+		for _, rd := range r.Readings {
+			st := rd.Status
+			if !rd.Used {
+				st += ", not used"
+			}
+			if !rd.Calibrated {
+				st += ", uncalibrated"
+			}
+			if len(rd.Flags) > 0 {
+				st += ", " + strings.Join(rd.Flags, ", ")
+			}
+			rows = append(rows, []string{fmt.Sprint(rd.Seq), Clock(rd.Wall), rd.StepID, rd.FieldMode, rd.Position, rd.Meter, rd.Raw, correctionsText(rd.Corrections), Number(rd.Value) + " " + rd.Unit, st})
+		}
+		d.tableSized([]pdfCol{{"Seq", .04, true}, {"Time", .06, false}, {"Step", .11, false}, {"Field", .05, false}, {"Position", .07, false}, {"Meter", .07, false}, {"Raw line", .14, false}, {"Corrections", .24, false}, {"Corrected", .09, true}, {"Status", .13, false}}, rows, 6.5)
+	} else {
+		d.para(fmt.Sprintf("The %d readings one by one (raw line, each correction, corrected value) are in the readings CSV and the HTML report: more than %d would not make a readable PDF.", len(r.Readings), pdfReadingsMax), 8)
+	}
 	d.para(fmt.Sprintf("Session %s · procedure SHA-256 %s · bench file SHA-256 %s · rendered %s by kermalux %s.", r.Session.ID, r.Session.ProcedureHash, r.Session.BenchHash, Stamp(v.Generated), v.Version), 7)
 
 	if err := f.Error(); err != nil {
