@@ -221,7 +221,7 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 	// Summary box.
 	y0 := f.GetY()
 	f.SetXY(d.left+4, y0+4)
-	d.font("B", 20)
+	d.font("B", 16)
 	switch v.Verdict {
 	case "pass":
 		f.SetTextColor(0x1e, 0x7a, 0x46)
@@ -230,7 +230,7 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 	default:
 		f.SetTextColor(0xa8, 0x62, 0x00)
 	}
-	f.CellFormat(60, 10, strings.ToUpper(verdictWords(v.Verdict)), "", 2, "L", false, 0, "")
+	f.MultiCell(62, 7, strings.ToUpper(verdictWords(v.Verdict)), "", "L", false)
 	f.SetTextColor(0x5b, 0x67, 0x75)
 	d.font("", 9)
 	f.SetX(d.left + 4)
@@ -274,6 +274,7 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 	cw := d.w / 3
 	for i := 0; i < len(facts); i += 3 {
 		y := f.GetY()
+		bottom := y
 		for j := 0; j < 3 && i+j < len(facts); j++ {
 			f.SetXY(d.left+float64(j)*cw, y)
 			d.font("", 7.5)
@@ -282,9 +283,12 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 			f.SetX(d.left + float64(j)*cw)
 			d.font("", 9)
 			f.SetTextColor(0x1d, 0x26, 0x30)
-			f.CellFormat(cw-3, 4.6, facts[i+j][1], "", 0, "L", false, 0, "")
+			f.MultiCell(cw-3, 4.4, facts[i+j][1], "", "L", false)
+			if f.GetY() > bottom {
+				bottom = f.GetY()
+			}
 		}
-		f.SetY(y + 10)
+		f.SetY(bottom + 1.5)
 	}
 
 	d.heading("Results")
