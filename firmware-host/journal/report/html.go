@@ -110,7 +110,10 @@ func (r *Report) view(opt Options, use chartUse) htmlView {
 	v.Exposures = r.Exposures()
 	v.Groups = r.ReadingGroups()
 	for _, e := range r.Events {
-		if e.Name == "beam_on" || e.Name == "beam_off" || e.Name == "beam_time" {
+		// Beam on/off are in the exposures table; the beam-time
+		// announcements and the engine's measurement bookkeeping (for
+		// resuming) repeat what the readings and results already show.
+		if e.Name == "beam_on" || e.Name == "beam_off" || e.Name == "beam_time" || e.Name == "measurement_done" {
 			continue
 		}
 		what := eventWords(e.Name)
