@@ -103,7 +103,7 @@ func TestAcceptanceOnSimulator(t *testing.T) {
 			Dosimeter:  &simMeter{role: Dosimeter, m: model, clk: clk, period: 100 * time.Millisecond},
 			Photometer: &simMeter{role: Photometer, m: model, clk: clk, period: 100 * time.Millisecond, phase: 50 * time.Millisecond},
 		},
-		Panel: pan, Journal: jr, Clock: clk, Limits: DefaultLimits(), FieldModes: modes,
+		Panel: pan, Journal: jr, Clock: clk, Limits: DefaultLimits(), FieldModes: modes, ReadInTurn: true,
 		Values: map[string]float64{"temperature": 22, "pressure": 101.3, "lead_disk_diameter": 32},
 	}
 	e, err := New(cfg)

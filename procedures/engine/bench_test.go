@@ -119,7 +119,7 @@ func BenchmarkBeamOnPerReading(b *testing.B) {
 				Dosimeter:  &simMeter{role: Dosimeter, m: model, clk: clk, period: period},
 				Photometer: &simMeter{role: Photometer, m: model, clk: clk, period: period, phase: period / 2},
 			},
-			Panel: pan, Journal: jr, Clock: clk, Limits: DefaultLimits(),
+			Panel: pan, Journal: jr, Clock: clk, Limits: DefaultLimits(), ReadInTurn: true,
 		}
 		e, err := New(cfg)
 		if err != nil {

@@ -266,6 +266,9 @@ type Config struct {
 	CertProblems []string
 	Limits       Limits
 	BootID       string
+	// ReadInTurn is accepted for compatibility; meters are always read
+	// in turn in the engine's goroutine.
+	ReadInTurn bool
 	// FieldModes are the intensifier's field modes with their nominal
 	// input diameters in mm; a setup asking for field_mode "largest" or
 	// "smallest" gets the mode's name.

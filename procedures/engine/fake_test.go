@@ -272,7 +272,7 @@ func newRig(steps []Step) *rig {
 		Session: entry.Session{Site: "Harbour View Clinic", Room: "room 2", IntensifierSerial: "HV-2291"},
 		Values:  map[string]float64{"temperature": 22, "pressure": 101.3},
 		Limits:  DefaultLimits(),
-		BootID:  "boot-1",
+		BootID:  "boot-1", ReadInTurn: true,
 	}
 	return r
 }

@@ -67,6 +67,7 @@ type attempt struct {
 	calib   bool
 	bL, bK  float64
 	modes   map[string]float64
+	seen    map[string]float64 // beam level each other step meter must exceed before settling
 }
 
 func roleName(role string) string {
@@ -196,6 +197,17 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (posStat, error) {
 		return posStat{}, e.attemptFailed(ctx, a, err)
 	}
 	a.darkM, a.thresh = e.threshold(a, dark[a.signal])
+	// Each meter of the step must show the beam itself before settling is
+	// judged: a meter whose readings lag (a streaming meter's buffered
+	// lines) would otherwise look steady at its dark level.
+	a.seen = map[string]float64{}
+	for _, role := range a.spec.Meters {
+		if role == a.signal {
+			continue
+		}
+		m, sd := meanSD(dark[role])
+		a.seen[role] = m + math.Max(l.BeamSigmas*sd, math.Max(0.5*math.Abs(m), 1e-9))
+	}
 	if a.signal == Dosimeter && a.darkM > 5*l.BeamFloor {
 		// The beam is already on (a pedal held through a restart): have it
 		// released before taking the dark level again.
@@ -243,7 +255,7 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (posStat, error) {
 		if err := e.cycle(ctx, a); err != nil {
 			return posStat{}, e.attemptFailed(ctx, a, err)
 		}
-		if a.settled < 0 && e.isSettled(a) {
+		if a.settled < 0 && len(a.seen) == 0 && e.isSettled(a) {
 			a.settled = a.lastSig
 		}
 		onFor := a.lastSig - a.onAt
@@ -541,7 +553,11 @@ func (e *Engine) readFor(ctx context.Context, a *attempt, d time.Duration, minN 
 			if err := e.guard(ctx, a, role, r, c); err != nil {
 				return nil, err
 			}
-			out[role] = append(out[role], c.Value)
+			v := c.Value
+			if r.Status == drivers.StatusUnderRange {
+				v = 0 // below the meter's range: nothing to speak of
+			}
+			out[role] = append(out[role], v)
 			if err := e.record(ctx, a, role, r, c, false); err != nil {
 				return nil, err
 			}
@@ -571,9 +587,8 @@ func (e *Engine) cycle(ctx context.Context, a *attempt) error {
 // garbled lines are journalled and skipped; three in a row end the
 // attempt. A lost link comes back as a lostError.
 func (e *Engine) readOne(ctx context.Context, a *attempt, role string) (drivers.Reading, Corrected, error) {
-	m := e.cfg.Meters[role]
 	for {
-		r, err := m.Read(ctx)
+		r, err := e.next(ctx, role)
 		if err != nil {
 			if ctx.Err() != nil {
 				return r, Corrected{}, ctx.Err()
@@ -723,9 +738,17 @@ func (e *Engine) observe(ctx context.Context, a *attempt, role string, r drivers
 			}
 		}
 	}
+	if a.beamOn {
+		if lvl, ok := a.seen[role]; ok && v > lvl {
+			delete(a.seen, role)
+			// Readings before this one belong to the rise: start the
+			// series afresh.
+			a.series[role] = nil
+		}
+	}
 	live := a.beamOn || !a.spec.Beam
-	if live && a.inStep[role] && r.Usable() {
-		a.series[role] = append(a.series[role], tv{r.Mono, c.Value})
+	if live && a.inStep[role] && (r.Usable() || r.Status == drivers.StatusUnderRange) {
+		a.series[role] = append(a.series[role], tv{r.Mono, v})
 	}
 	sampling := live && a.inStep[role] && (a.settled >= 0 || !a.spec.Beam)
 	if sampling {
@@ -827,12 +850,11 @@ func (e *Engine) waitMeter(ctx context.Context, a *attempt, lost *lostError) err
 	}
 	_ = e.cfg.Panel.Indicate(ctx, panel.Fault)
 	start := e.cfg.Clock.Mono()
-	m := e.cfg.Meters[lost.role]
 	for {
 		if err := e.cfg.Clock.Sleep(ctx, l.LinkRetry); err != nil {
 			return err
 		}
-		r, err := m.Read(ctx)
+		r, err := e.next(ctx, lost.role)
 		if err == nil {
 			c := e.correct(a, lost.role, r)
 			_ = e.record(ctx, a, lost.role, r, c, false)
