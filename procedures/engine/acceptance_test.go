@@ -157,3 +157,29 @@ func lastLines(s string, n int) string {
 	}
 	return strings.Join(ls, "\n")
 }
+
+// Kerma rate scaling between field modes is reported against the
+// (d_full/d_mode)² expectation (common practice), from calib.
+func TestModeScalingResult(t *testing.T) {
+	steps := cfSteps()[:5]
+	for _, m := range []string{"32cm", "17cm"} {
+		steps = append(steps, Step{ID: "rate@" + m, Kind: Measure, FieldMode: m, Text: "Press the switch, then step on the pedal.",
+			Measure: &MeasureSpec{Meters: []string{Dosimeter}, Beam: true, Target: 0.02, MaxBeamOn: 20 * time.Second}})
+	}
+	steps = append(steps,
+		Step{ID: "scale@32cm", Kind: Compute, FieldMode: "32cm", Compute: &ComputeSpec{Figure: "kerma_mode_scaling", Inputs: map[string]string{"air_kerma_rate": "rate@32cm", "reference": "rate@32cm"}}},
+		Step{ID: "scale@17cm", Kind: Compute, FieldMode: "17cm", Compute: &ComputeSpec{Figure: "kerma_mode_scaling", Inputs: map[string]string{"air_kerma_rate": "rate@17cm", "reference": "rate@32cm"}}})
+	r := newRig(steps)
+	r.cfg.FieldModes = map[string]float64{"32cm": 320, "17cm": 170}
+	sum, err := r.run(context.Background())
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(sum.Results) != 1 || sum.Results[0].Quantity != "kerma_rate_scaling" {
+		t.Fatalf("results %+v", sum.Results)
+	}
+	// The fake bench's kerma rate does not change with the mode: ratio 1.
+	if v := sum.Results[0].Value; math.Abs(v-1) > 0.05 {
+		t.Errorf("scaling %.3f, want 1", v)
+	}
+}

@@ -150,6 +150,26 @@ func (e *Engine) compute(ctx context.Context, idx int, s Step) error {
 			}
 			res, err = calib.Uniformity(spots, 0)
 		}
+	case "kerma_mode_scaling":
+		if s.Compute.Inputs["air_kerma_rate"] == s.Compute.Inputs["reference"] {
+			return &skipError{reason: "the reference field mode itself: no scaling"}
+		}
+		var kp, rp []posStat
+		if kp, err = e.input(s, "air_kerma_rate"); err == nil {
+			if rp, err = e.input(s, "reference"); err == nil {
+				mk, mr := kp[0].Mode, rp[0].Mode
+				modes := []calib.Mode{
+					{Name: mk, FieldDiameter: e.cfg.FieldModes[mk], Kerma: measured(kp[0], false)},
+					{Name: mr, FieldDiameter: e.cfg.FieldModes[mr], Kerma: measured(rp[0], false)},
+				}
+				var rs []calib.Result
+				if rs, err = calib.ModeScaling(modes, 0); err == nil && len(rs) > 0 {
+					res = rs[0]
+				} else if err == nil {
+					err = fmt.Errorf("no scaling between %s and %s", mk, mr)
+				}
+			}
+		}
 	case "dark_level", "stability":
 		var rp []posStat
 		if rp, err = e.input(s, "reading"); err == nil {
