@@ -1,12 +1,14 @@
 package journal
 
 import (
+	"bytes"
 	"context"
 	"crypto/ed25519"
 	"crypto/sha256"
 	"encoding/binary"
 	"encoding/hex"
 	"fmt"
+	"strconv"
 )
 
 // BatchFormat names the batch encoding in Batch.Format.
@@ -109,6 +111,60 @@ func (b *Batch) check(pub ed25519.PublicKey, recordSigs bool) error {
 		return fmt.Errorf("record %d (%s): %s", p.Seq, p.Kind, p.What)
 	}
 	return nil
+}
+
+// EncodeJSON returns the batch as JSON, the same bytes json.Marshal
+// gives but without re-compacting every payload (they are canonical
+// already), which makes encoding several times faster.
+func (b *Batch) EncodeJSON() []byte {
+	n := 256
+	for i := range b.Records {
+		n += 400 + len(b.Records[i].Payload)
+	}
+	var buf bytes.Buffer
+	buf.Grow(n)
+	buf.WriteString(`{"format":`)
+	writeJSONString(&buf, b.Format)
+	buf.WriteString(`,"board":`)
+	writeJSONString(&buf, b.Board)
+	buf.WriteString(`,"session":`)
+	writeJSONString(&buf, b.Session)
+	buf.WriteString(`,"records":[`)
+	for i := range b.Records {
+		r := &b.Records[i]
+		if i > 0 {
+			buf.WriteByte(',')
+		}
+		buf.WriteString(`{"seq":`)
+		buf.WriteString(strconv.FormatInt(r.Seq, 10))
+		buf.WriteString(`,"session":`)
+		writeJSONString(&buf, r.Session)
+		buf.WriteString(`,"kind":`)
+		writeJSONString(&buf, string(r.Kind))
+		buf.WriteString(`,"wall":`)
+		writeJSONString(&buf, r.Wall)
+		buf.WriteString(`,"mono_ns":`)
+		buf.WriteString(strconv.FormatInt(r.Mono, 10))
+		buf.WriteString(`,"boot_id":`)
+		writeJSONString(&buf, r.BootID)
+		buf.WriteString(`,"payload":`)
+		if len(r.Payload) == 0 {
+			buf.WriteString("null")
+		} else {
+			buf.Write(r.Payload)
+		}
+		buf.WriteString(`,"prev":`)
+		writeJSONString(&buf, r.Prev)
+		buf.WriteString(`,"hash":`)
+		writeJSONString(&buf, r.Hash)
+		buf.WriteString(`,"sig":`)
+		writeJSONString(&buf, r.Sig)
+		buf.WriteByte('}')
+	}
+	buf.WriteString(`],"sig":`)
+	writeJSONString(&buf, b.Sig)
+	buf.WriteByte('}')
+	return buf.Bytes()
 }
 
 // ZeroHash is the hex "previous hash" of a session's first record.

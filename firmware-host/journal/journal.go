@@ -103,8 +103,8 @@ CREATE TABLE IF NOT EXISTS records(
 	payload TEXT NOT NULL,
 	prev    TEXT NOT NULL,
 	hash    TEXT NOT NULL,
-	sig     TEXT NOT NULL,
-	PRIMARY KEY (session, seq)) WITHOUT ROWID;
+	sig     TEXT NOT NULL);
+CREATE UNIQUE INDEX IF NOT EXISTS records_seq ON records(session, seq);
 CREATE TABLE IF NOT EXISTS heads(
 	session  TEXT PRIMARY KEY,
 	seq      INTEGER NOT NULL,

@@ -79,9 +79,21 @@ func (r *Record) Canonical() []byte {
 	return b.Bytes()
 }
 
+// writeJSONString writes s as encoding/json writes a string. Strings of
+// plain printable ASCII without the characters json escapes (ids, hex,
+// times) are written directly; anything else goes through json.Marshal.
 func writeJSONString(b *bytes.Buffer, s string) {
-	q, _ := json.Marshal(s) // a string always marshals
-	b.Write(q)
+	for i := 0; i < len(s); i++ {
+		c := s[i]
+		if c < 0x20 || c >= 0x7f || c == '"' || c == '\\' || c == '<' || c == '>' || c == '&' {
+			q, _ := json.Marshal(s) // a string always marshals
+			b.Write(q)
+			return
+		}
+	}
+	b.WriteByte('"')
+	b.WriteString(s)
+	b.WriteByte('"')
 }
 
 // ComputeHash returns SHA-256 of Canonical().

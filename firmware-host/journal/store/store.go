@@ -79,8 +79,8 @@ CREATE TABLE IF NOT EXISTS records(
 	payload TEXT NOT NULL,
 	prev    TEXT NOT NULL,
 	hash    TEXT NOT NULL,
-	sig     TEXT NOT NULL,
-	PRIMARY KEY (session, seq)) WITHOUT ROWID;
+	sig     TEXT NOT NULL);
+CREATE UNIQUE INDEX IF NOT EXISTS records_seq ON records(session, seq);
 CREATE TABLE IF NOT EXISTS results(
 	session    TEXT NOT NULL,
 	seq        INTEGER NOT NULL,
@@ -90,8 +90,8 @@ CREATE TABLE IF NOT EXISTS results(
 	field_mode TEXT NOT NULL,
 	value      REAL NOT NULL,
 	verdict    TEXT NOT NULL,
-	payload    TEXT NOT NULL,
-	PRIMARY KEY (session, seq)) WITHOUT ROWID;
+	payload    TEXT NOT NULL);
+CREATE UNIQUE INDEX IF NOT EXISTS results_seq ON results(session, seq);
 CREATE INDEX IF NOT EXISTS results_serial ON results(serial, started_ns, quantity);
 `
 

@@ -102,11 +102,7 @@ func WriteBundle(ctx context.Context, src BundleSource, w io.Writer, batchSize i
 			if b == nil {
 				break
 			}
-			line, err := json.Marshal(b)
-			if err != nil {
-				return sum, err
-			}
-			bw.Write(line)
+			bw.Write(b.EncodeJSON())
 			if err := bw.WriteByte('\n'); err != nil {
 				return sum, fmt.Errorf("write bundle: %w", err)
 			}

@@ -228,8 +228,7 @@ func prepare(ctx context.Context, src Source, session string, after int64, n int
 	if err != nil || b == nil {
 		return prepared{err: err}
 	}
-	data, err := json.Marshal(b)
-	return prepared{b: b, data: data, err: err}
+	return prepared{b: b, data: b.EncodeJSON()}
 }
 
 func (p *pusher) post(ctx context.Context, path string, body, out any) error {
