@@ -104,6 +104,7 @@ type fakeMeter struct {
 	lost    []window2 // link down in these intervals
 	wasLost bool
 	reads   int
+	spike   func(v float64, t time.Duration) float64
 }
 
 type window2 struct{ from, to time.Duration }
@@ -144,6 +145,9 @@ func (m *fakeMeter) Read(ctx context.Context) (drivers.Reading, error) {
 	m.lastT = t
 	v := m.y * (1 + m.noise*m.rng.NormFloat64())
 	v += m.floor * m.rng.NormFloat64()
+	if m.spike != nil {
+		v = m.spike(v, t)
+	}
 	m.reads++
 	r := drivers.Reading{Meter: m.name, Quantity: m.q, Value: v, Unit: units.Canonical(m.q), RawValue: v,
 		RawUnit: units.Canonical(m.q), Status: drivers.StatusOK, Raw: fmt.Sprintf("%.5g", v), Mono: t,

@@ -32,6 +32,9 @@ type lostError struct {
 
 func (l *lostError) Error() string { return l.role + " lost: " + l.err.Error() }
 
+// errIgnore: the reading was journalled (not used) and is otherwise ignored.
+var errIgnore = errors.New("reading set aside")
+
 // errBeamAlarm: the five-minute alarm ended the attempt.
 var errBeamAlarm = errors.New("five-minute beam-on alarm")
 
@@ -68,6 +71,7 @@ type attempt struct {
 	bL, bK  float64
 	modes   map[string]float64
 	seen    map[string]float64 // beam level each other step meter must exceed before settling
+	above   int                // consecutive dosimeter readings above the kerma ceiling
 }
 
 func roleName(role string) string {
@@ -550,7 +554,9 @@ func (e *Engine) readFor(ctx context.Context, a *attempt, d time.Duration, minN 
 			if err != nil {
 				return nil, err
 			}
-			if err := e.guard(ctx, a, role, r, c); err != nil {
+			if err := e.guard(ctx, a, role, r, c); errors.Is(err, errIgnore) {
+				continue
+			} else if err != nil {
 				return nil, err
 			}
 			v := c.Value
@@ -573,7 +579,9 @@ func (e *Engine) cycle(ctx context.Context, a *attempt) error {
 		if err != nil {
 			return err
 		}
-		if err := e.guard(ctx, a, role, r, c); err != nil {
+		if err := e.guard(ctx, a, role, r, c); errors.Is(err, errIgnore) {
+			continue
+		} else if err != nil {
 			return err
 		}
 		if err := e.observe(ctx, a, role, r, c); err != nil {
@@ -675,9 +683,17 @@ func (e *Engine) guard(ctx context.Context, a *attempt, role string, r drivers.R
 			v = r.Value
 		}
 		if (r.Usable() || r.Status == drivers.StatusOverRange) && v > ceil {
+			// Two readings in a row: a single corrupted value does not
+			// end a session; 0.1 to 0.2 s more beam does not matter.
+			a.above++
+			if a.above >= 2 {
+				_ = e.record(ctx, a, role, r, c, false)
+				return e.kermaStop(ctx, a, v, ceil)
+			}
 			_ = e.record(ctx, a, role, r, c, false)
-			return e.kermaStop(ctx, a, v, ceil)
+			return errIgnore
 		}
+		a.above = 0
 	}
 	switch r.Status {
 	case drivers.StatusOK:

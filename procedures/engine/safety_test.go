@@ -169,3 +169,27 @@ func TestMeterLostAndBack(t *testing.T) {
 		t.Fatal("no result")
 	}
 }
+
+// One corrupted reading above the ceiling does not stop the session; two
+// in a row do (TestKermaCeilingStops).
+func TestSingleSpikeAboveCeilingIgnored(t *testing.T) {
+	r := newRig(cfSteps())
+	spiked := false
+	r.dos.spike = func(v float64, t time.Duration) float64 {
+		if !spiked && v > 0.5 {
+			spiked = true
+			return 900
+		}
+		return v
+	}
+	sum, err := r.run(context.Background())
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !spiked || sum.Outcome != "complete" {
+		t.Fatalf("spiked %v, outcome %s", spiked, sum.Outcome)
+	}
+	if len(events(r.jr, sum.Session, evKermaRange)) != 0 {
+		t.Error("session stopped on one spike")
+	}
+}
