@@ -227,6 +227,10 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (posStat, error) {
 	p.Text = a.step.Text
 	if a.label != "" {
 		p.Text = fmt.Sprintf("Move the photometer to position %d of %d: %s. %s", a.posIdx+1, len(a.spec.Positions), a.label, a.step.Text)
+		if a.posIdx > 0 {
+			// The step's own words were said at the first position.
+			p.Text = fmt.Sprintf("Move the photometer to position %d of %d: %s. Press the switch, then step on the pedal.", a.posIdx+1, len(a.spec.Positions), a.label)
+		}
 	}
 	if !strings.Contains(strings.ToLower(p.Text), "pedal") && !strings.Contains(strings.ToLower(p.Text), "beam") {
 		p.Text = strings.TrimSpace(p.Text + " Press the switch, then switch the beam on.")
