@@ -1,7 +1,9 @@
 package engine
 
 import (
+	"bytes"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"io"
 	"os"
@@ -92,13 +94,28 @@ func WriteResultsFile(dir string, rf ResultsFile) (string, error) {
 
 // ReadResults reads a results.json (a baseline).
 func ReadResults(path string) (ResultsFile, error) {
-	var rf ResultsFile
 	b, err := os.ReadFile(path)
 	if err != nil {
-		return rf, fmt.Errorf("read results: %w", err)
+		return ResultsFile{}, fmt.Errorf("read results: %w", err)
 	}
+	return ParseResults(path, b)
+}
+
+// ParseResults reads the text of a results.json; name is used in errors.
+func ParseResults(name string, b []byte) (ResultsFile, error) {
+	var rf ResultsFile
 	if err := json.Unmarshal(b, &rf); err != nil {
-		return rf, fmt.Errorf("read results %s: %w", path, err)
+		var se *json.SyntaxError
+		if errors.As(err, &se) {
+			line := 1 + bytes.Count(b[:min(int(se.Offset), len(b))], []byte("\n"))
+			return rf, fmt.Errorf("results %s:%d: %w", name, line, err)
+		}
+		return rf, fmt.Errorf("results %s: %w", name, err)
+	}
+	for i, r := range rf.Results {
+		if r.Quantity == "" {
+			return rf, fmt.Errorf("results %s: result %d has no quantity", name, i+1)
+		}
 	}
 	return rf, nil
 }
