@@ -195,6 +195,7 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (posStat, error) {
 		return e.darkAttempt(ctx, a)
 	}
 	l := e.cfg.Limits
+	e.freshen(a)
 	// Dark level of the signal, for beam detection, before the prompt.
 	dark, err := e.readFor(ctx, a, l.DarkTime, 5)
 	if err != nil {
@@ -241,6 +242,7 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (posStat, error) {
 	if _, err := e.ask(ctx, p); err != nil {
 		return posStat{}, err
 	}
+	e.freshen(a) // lines queued while the operator was at the prompt are old
 	// Wait for the beam.
 	deadline := e.cfg.Clock.Mono() + l.BeamWait
 	for !a.beamOn {
@@ -346,6 +348,18 @@ func (a *attempt) setup() map[string]string {
 		return nil
 	}
 	return m
+}
+
+// freshen drops what streaming meters queued while the engine was busy
+// elsewhere (at a prompt, in a step that read only the other meter), so the
+// readings that follow are stamped when the meter sent them, not when the
+// engine got round to them (drivers.Freshener).
+func (e *Engine) freshen(a *attempt) {
+	for _, role := range a.spec.Meters {
+		if f, ok := e.cfg.Meters[role].(drivers.Freshener); ok {
+			f.Discard()
+		}
+	}
 }
 
 // threshold is the beam-on level: dark mean + max(k·σ_dark, floor).
@@ -498,6 +512,7 @@ func (e *Engine) darkAttempt(ctx context.Context, a *attempt) (posStat, error) {
 	if _, err := e.ask(ctx, panel.Prompt{Message: panel.Message{Text: text, Level: panel.Info, Action: panel.ActSetup, Setup: a.setup()}, Step: a.idx, StepID: a.step.ID}); err != nil {
 		return posStat{}, err
 	}
+	e.freshen(a)
 	d := a.spec.Duration
 	if d == 0 {
 		d = l.DarkTime
