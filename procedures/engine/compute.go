@@ -77,6 +77,25 @@ func measured(p posStat, lum bool) calib.Measured {
 		TypeB:   relB("dosimeter calibration and resolution", p.BK), Calibrated: p.Calib}
 }
 
+// settledMeasure is measured for a beam reading, with the residual of
+// settling in its budget. The settling test admits a signal still
+// approaching equilibrium at up to SettleSlope per second; over the
+// sampling that follows, the mean of a first-order approach keeps a
+// residual of at most about SettleSlope × SettleWindow / 2 (an estimate,
+// from a first-order lag whose time constant is below the window). It is
+// taken as a rectangular distribution of that half-width (JCGM 100:2008
+// 4.3.7), u = a/√3, and is not a calibration component: it does not cancel
+// in a ratio read with one meter.
+func (e *Engine) settledMeasure(p posStat, lum bool) calib.Measured {
+	m := measured(p, lum)
+	l := e.cfg.Limits
+	a := l.SettleSlope * l.SettleWindow.Seconds() / 2
+	if a > 0 {
+		m.TypeB = append(m.TypeB, calib.Component{Source: "residual settling of the reading", Rel: a / math.Sqrt(3)})
+	}
+	return m
+}
+
 func relB(src string, rel float64) []calib.Component {
 	if rel == 0 {
 		return nil
@@ -117,13 +136,13 @@ func (e *Engine) compute(ctx context.Context, idx int, s Step) error {
 		var lp, kp []posStat
 		if lp, err = e.input(s, "luminance"); err == nil {
 			if kp, err = e.input(s, "air_kerma_rate"); err == nil {
-				res = calib.ConversionFactor(measured(lp[0], true), measured(kp[0], false), 0)
+				res = calib.ConversionFactor(e.settledMeasure(lp[0], true), e.settledMeasure(kp[0], false), 0)
 			}
 		}
 	case "input_kerma_rate":
 		var kp []posStat
 		if kp, err = e.input(s, "air_kerma_rate"); err == nil {
-			res = calib.KermaRate(measured(kp[0], false), 0)
+			res = calib.KermaRate(e.settledMeasure(kp[0], false), 0)
 		}
 	case "contrast_ratio":
 		var op, dp []posStat
@@ -138,7 +157,7 @@ func (e *Engine) compute(ctx context.Context, idx int, s Step) error {
 					mode = op[0].Mode
 				}
 				field := e.cfg.FieldModes[resolveMode(e.cfg.FieldModes, mode)]
-				res = calib.ContrastRatio(measured(op[0], true), measured(dp[0], true), disk, field, 0)
+				res = calib.ContrastRatio(e.settledMeasure(op[0], true), e.settledMeasure(dp[0], true), disk, field, 0)
 			}
 		}
 	case "non_uniformity":
@@ -146,7 +165,7 @@ func (e *Engine) compute(ctx context.Context, idx int, s Step) error {
 		if lp, err = e.input(s, "luminance"); err == nil {
 			var spots []calib.Spot
 			for _, p := range lp {
-				spots = append(spots, calib.Spot{Label: p.Label, Radius: p.R, Angle: p.Angle, Luminance: measured(p, true)})
+				spots = append(spots, calib.Spot{Label: p.Label, Radius: p.R, Angle: p.Angle, Luminance: e.settledMeasure(p, true)})
 			}
 			res, err = calib.Uniformity(spots, 0)
 		}
@@ -159,8 +178,8 @@ func (e *Engine) compute(ctx context.Context, idx int, s Step) error {
 			if rp, err = e.input(s, "reference"); err == nil {
 				mk, mr := kp[0].Mode, rp[0].Mode
 				modes := []calib.Mode{
-					{Name: mk, FieldDiameter: e.cfg.FieldModes[mk], Kerma: measured(kp[0], false)},
-					{Name: mr, FieldDiameter: e.cfg.FieldModes[mr], Kerma: measured(rp[0], false)},
+					{Name: mk, FieldDiameter: e.cfg.FieldModes[mk], Kerma: e.settledMeasure(kp[0], false)},
+					{Name: mr, FieldDiameter: e.cfg.FieldModes[mr], Kerma: e.settledMeasure(rp[0], false)},
 				}
 				var rs []calib.Result
 				if rs, err = calib.ModeScaling(modes, 0); err == nil && len(rs) > 0 {
@@ -308,7 +327,12 @@ func (e *Engine) judge(ctx context.Context, idx int, s Step) error {
 	for _, jl := range j.Limits {
 		v := jl.Value
 		if jl.Ref != "" {
-			x, ok := e.cfg.Limits.Inputs[jl.Ref]
+			// A value for this field mode ("spec.conversion_factor_min@17cm")
+			// takes precedence over the one for all modes.
+			x, ok := e.cfg.Limits.Inputs[jl.Ref+"@"+r.FieldMode]
+			if !ok || r.FieldMode == "" {
+				x, ok = e.cfg.Limits.Inputs[jl.Ref]
+			}
 			if !ok {
 				r.Flags = appendUnique(r.Flags, "limit "+jl.Ref+" not given in the bench file: not checked")
 				continue
