@@ -10,7 +10,6 @@ import (
 
 	"github.com/spf13/cobra"
 
-	"kermalux/firmware-host/journal/report"
 	"kermalux/procedures/demo"
 )
 
@@ -58,12 +57,12 @@ func runDemo(parent context.Context, w io.Writer, o demoOptions, hasSeed bool) e
 	}
 	ctx, stop := signal.NotifyContext(parent, os.Interrupt, syscall.SIGTERM)
 	defer stop()
-	formats, err := report.ParseFormats(o.formats)
+	render, err := reportRenderer(o.formats)
 	if err != nil {
 		return withCode(exitUsage, err)
 	}
 	opts := demo.Options{Out: o.out, Scenario: o.scenario, Seed: o.seed, HasSeed: hasSeed, Speed: o.speed,
-		Procedure: o.procedure, Formats: formats, Version: version}
+		Procedure: o.procedure, Render: render, Version: version}
 	if !o.quiet {
 		opts.Transcript = w
 	}
@@ -100,6 +99,9 @@ func printDemoSummary(w io.Writer, out *demo.Outcome) {
 	}
 	for _, r := range out.Reports {
 		fmt.Fprintf(w, "Report:  %s\n", r)
+	}
+	if len(out.Reports) == 0 && out.Results != "" {
+		fmt.Fprintf(w, "Report:  not rendered by this build; at the office: kermalux report --journal %s --out DIR\n", out.Journal)
 	}
 	fmt.Fprintln(w, "Simulated bench: these figures are not measurements.")
 }

@@ -116,7 +116,8 @@ CREATE TABLE IF NOT EXISTS heads(
 func dsn(path string, write bool) string {
 	q := "_pragma=busy_timeout(10000)"
 	if write {
-		q += "&_pragma=journal_mode(WAL)&_pragma=synchronous(FULL)&_txlock=immediate"
+		// The board appends; a small page cache (512 KiB) keeps its memory low.
+		q += "&_pragma=journal_mode(WAL)&_pragma=synchronous(FULL)&_pragma=cache_size(-512)&_txlock=immediate"
 	}
 	return "file:" + path + "?" + q
 }

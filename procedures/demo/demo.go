@@ -20,7 +20,6 @@ import (
 	"kermalux/firmware-host/bench"
 	"kermalux/firmware-host/journal"
 	"kermalux/firmware-host/journal/entry"
-	"kermalux/firmware-host/journal/report"
 	"kermalux/firmware-host/panel"
 	"kermalux/firmware-host/panel/scripted"
 	"kermalux/procedures/engine"
@@ -45,8 +44,11 @@ type Options struct {
 	HasSeed   bool    //
 	Speed     float64 // clock speed × real time; 0: the scenario's (20 if it says none)
 	Procedure string  // procedure to run; empty: the acceptance sequence
-	Formats   []string
 	Version   string
+	// Render writes the session's report from the journal into dir and
+	// returns the files written; nil writes no report (a board build: the
+	// report is rendered at the office from the synced journal).
+	Render func(ctx context.Context, journal, session, dir string) ([]string, error)
 	// Transcript receives what the board says and asks, as it happens
 	// (nil: nothing is printed).
 	Transcript io.Writer
@@ -190,17 +192,11 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 		if err != nil {
 			return out, errors.Join(runErr, err)
 		}
-		rep, err := report.FromJournal(ctx, jpath, sum.Session)
-		if err != nil {
-			return out, errors.Join(runErr, fmt.Errorf("demo: report: %w", err))
-		}
-		formats := o.Formats
-		if len(formats) == 0 {
-			formats = []string{"html", "pdf", "csv"}
-		}
-		out.Reports, err = rep.WriteFiles(o.Out, formats, report.Options{Version: o.Version})
-		if err != nil {
-			return out, errors.Join(runErr, fmt.Errorf("demo: report: %w", err))
+		if o.Render != nil {
+			out.Reports, err = o.Render(ctx, jpath, sum.Session, o.Out)
+			if err != nil {
+				return out, errors.Join(runErr, fmt.Errorf("demo: report: %w", err))
+			}
 		}
 	}
 	out.Wall = time.Since(wallStart)

@@ -11,7 +11,17 @@ import (
 	"time"
 
 	"kermalux/firmware-host/journal"
+	"kermalux/firmware-host/journal/report"
 )
+
+// renderHTML renders the demo's report as the workstation build does.
+func renderHTML(ctx context.Context, journalPath, session, dir string) ([]string, error) {
+	rep, err := report.FromJournal(ctx, journalPath, session)
+	if err != nil {
+		return nil, err
+	}
+	return rep.WriteFiles(dir, []string{"html", "csv"}, report.Options{Version: "test"})
+}
 
 // resultsFile is the results.json contract as a script sees it.
 type resultsFile struct {
@@ -67,7 +77,7 @@ func TestDemoRecoversTruth(t *testing.T) {
 			dir := t.TempDir()
 			ctx, cancel := context.WithTimeout(context.Background(), 3*time.Minute)
 			defer cancel()
-			out, err := Run(ctx, Options{Out: dir, Scenario: sc.file, Speed: 40, Formats: []string{"html", "csv"}, Version: "test"})
+			out, err := Run(ctx, Options{Out: dir, Scenario: sc.file, Speed: 40, Render: renderHTML, Version: "test"})
 			if err != nil {
 				t.Fatal(err)
 			}
