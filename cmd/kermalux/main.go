@@ -9,6 +9,7 @@ package main
 import (
 	"errors"
 	"fmt"
+	"io"
 	"log/slog"
 	"os"
 	"strings"
@@ -60,20 +61,28 @@ const (
 
 func main() {
 	slog.SetDefault(slog.New(slog.NewTextHandler(os.Stderr, &slog.HandlerOptions{Level: slog.LevelWarn})))
+	os.Exit(execute(os.Args[1:], os.Stdout, os.Stderr))
+}
+
+// execute runs the command line args and returns the exit code.
+func execute(args []string, stdout, stderr io.Writer) int {
 	root.SetFlagErrorFunc(func(c *cobra.Command, err error) error { return withCode(exitUsage, err) })
+	root.SetArgs(args)
+	root.SetOut(stdout)
+	root.SetErr(stderr)
 	err := root.Execute()
 	if err == nil {
-		os.Exit(exitOK)
+		return exitOK
 	}
-	fmt.Fprintln(os.Stderr, "kermalux:", err)
+	fmt.Fprintln(stderr, "kermalux:", err)
 	var ee *exitError
 	if errors.As(err, &ee) {
-		os.Exit(ee.code)
+		return ee.code
 	}
 	if isUsage(err) {
-		os.Exit(exitUsage)
+		return exitUsage
 	}
-	os.Exit(exitFailure)
+	return exitFailure
 }
 
 // isUsage recognises cobra's own argument errors.

@@ -1,0 +1,55 @@
+package main
+
+import (
+	"bytes"
+	"strings"
+	"testing"
+
+	"github.com/spf13/cobra"
+	"github.com/spf13/pflag"
+)
+
+// resetFlags puts every flag back to its default: the command tree is
+// global, and one Execute's flags would otherwise leak into the next.
+func resetFlags(c *cobra.Command) {
+	c.Flags().VisitAll(func(f *pflag.Flag) {
+		if sv, ok := f.Value.(pflag.SliceValue); ok {
+			_ = sv.Replace(nil)
+		} else {
+			_ = f.Value.Set(f.DefValue)
+		}
+		f.Changed = false
+	})
+	for _, sub := range c.Commands() {
+		resetFlags(sub)
+	}
+}
+
+// The exit-code contract of `kermalux check` (0 valid, 1 invalid with
+// file:line:col reasons on stderr, 2 usage), run through the same entry
+// point as the binary.
+func TestCheckExitCodes(t *testing.T) {
+	tests := []struct {
+		args   []string
+		code   int
+		stderr string
+	}{
+		{[]string{"check", "--builtin"}, exitOK, ""},
+		{[]string{"check", "../../procedures/builtin/conversion-factor.yaml", "--modes", "32cm,25cm"}, exitOK, ""},
+		{[]string{"check", "../../testdata/procedures/bad/no-safety.yaml"}, exitFailure, "no-safety.yaml:"},
+		{[]string{"check", "../../testdata/procedures/bad/bad-unit.yaml"}, exitFailure, "bad-unit.yaml:13:21:"},
+		{[]string{"check"}, exitUsage, ""},
+		{[]string{"check", "--no-such-flag", "x.yaml"}, exitUsage, "unknown flag"},
+	}
+	for _, tc := range tests {
+		var out, errb bytes.Buffer
+		resetFlags(root)
+		code := execute(tc.args, &out, &errb)
+		if code != tc.code {
+			t.Errorf("kermalux %s: exit %d, want %d\nstderr: %s", strings.Join(tc.args, " "), code, tc.code, errb.String())
+		}
+		if tc.stderr != "" && !strings.Contains(errb.String(), tc.stderr) {
+			t.Errorf("kermalux %s: stderr lacks %q:\n%s", strings.Join(tc.args, " "), tc.stderr, errb.String())
+		}
+	}
+}
