@@ -159,24 +159,25 @@ func window(xs []tv, d time.Duration) []tv {
 // window (at least minN readings spanning 90 % of d; the count follows
 // from the sampling rate) whose relative least-squares slope is below
 // limit per second, allowing for the slope's own noise (two standard
-// errors). Each half of the window must show no trend either: at the
-// turning point of an overshoot (a brightness control that overshoots and
-// comes back) the slope over the whole window is near zero while the
-// signal is still moving, but its halves slope in opposite directions.
+// errors). At the turning point of an overshoot (a brightness control that
+// overshoots and comes back) the slope over the whole window is near zero
+// while the signal is still moving: a window whose halves both slope
+// significantly, in opposite directions, is not steady.
 func steady(xs []tv, d time.Duration, limit float64, minN int) bool {
 	w := window(xs, d)
 	if len(w) < minN || w[len(w)-1].t-w[0].t < d*9/10 {
 		return false
 	}
-	flat := func(w []tv) bool {
-		rel, se, ok := trend(w)
-		return ok && math.Abs(rel) < limit+2*se
-	}
-	if !flat(w) {
+	rel, se, ok := trend(w)
+	if !ok || math.Abs(rel) >= limit+2*se {
 		return false
 	}
 	if h := len(w) / 2; h >= minN {
-		return flat(w[:h]) && flat(w[h:])
+		r1, s1, ok1 := trend(w[:h])
+		r2, s2, ok2 := trend(w[h:])
+		if ok1 && ok2 && r1*r2 < 0 && math.Abs(r1) >= limit+2*s1 && math.Abs(r2) >= limit+2*s2 {
+			return false
+		}
 	}
 	return true
 }
