@@ -346,7 +346,14 @@ func writeBench(dir string, scn *benchsim.Scenario, day time.Time) (string, erro
 	}
 	sb.WriteString("panel:\n  kind: terminal\n  speech: false\njournal: journal.db\nkeys: board-key\nsequence: acceptance\n")
 	sb.WriteString("defaults:\n  temperature_c: 20\n  pressure_kpa: 101.325\n  tube_voltage_kv: 70\n")
-	sb.WriteString("limits:\n  baseline_fraction: 0.8\n  kerma_ceiling_ugy_s: 50\n")
+	// Invented local action levels: act when the conversion factor falls
+	// below 60 % of the data sheet's minimum, or the input kerma rate
+	// exceeds 2 µGy/s in any mode.
+	sb.WriteString("limits:\n  baseline_fraction: 0.8\n  kerma_ceiling_ugy_s: 50\n  action:\n    input_kerma_rate_max: 2\n")
+	for _, m := range in.FieldModes {
+		r := m.DiameterCM / largest
+		fmt.Fprintf(&sb, "    %s: %.0f\n", q("conversion_factor_min@"+m.Name), 60*r*r)
+	}
 	path := filepath.Join(dir, "bench.yaml")
 	if err := os.WriteFile(path, []byte(sb.String()), 0o644); err != nil {
 		return "", fmt.Errorf("demo: %w", err)
