@@ -107,6 +107,9 @@ func runRun(parent context.Context, o runOptions, name string) error {
 	}
 	defer jr.Close()
 	pan, err := compose.Open(b.Panel, clk, compose.Terminal{}, nil)
+	if errors.Is(err, panel.ErrNoHardware) {
+		return withCode(exitFailure, fmt.Errorf("%w (on a machine without GPIO, give --panel terminal)", err))
+	}
 	if err != nil {
 		return withCode(exitFailure, err)
 	}
