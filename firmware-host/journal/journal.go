@@ -83,6 +83,20 @@ type Journal struct {
 	mu     sync.Mutex
 	// Prepared once: the append path runs them in every transaction.
 	head, insert, update *sql.Stmt
+	// heads caches each session's head as last committed by this Journal
+	// (under mu), so an append need not read it back. A session not in the
+	// cache is read from the file; any failed append drops its entry. A
+	// stale entry (another process appending to the same session) cannot
+	// fork the chain: the unique (session, seq) index refuses the insert.
+	heads map[string]headState
+}
+
+// headState is a session's last record: its seq and hash, and whether it
+// was the session end.
+type headState struct {
+	seq   int64
+	hash  string
+	ended bool
 }
 
 const schemaSQL = `
@@ -137,7 +151,7 @@ func Open(path string, opts Options) (*Journal, error) {
 		return nil, fmt.Errorf("open journal %s: %w", path, err)
 	}
 	db.SetMaxOpenConns(1)
-	j := &Journal{path: path, db: db, priv: priv, pub: priv.Public().(ed25519.PublicKey), clk: opts.Clock, soft: opts.SoftwareVersion}
+	j := &Journal{path: path, db: db, priv: priv, pub: priv.Public().(ed25519.PublicKey), clk: opts.Clock, soft: opts.SoftwareVersion, heads: map[string]headState{}}
 	j.pubHex = hex.EncodeToString(j.pub)
 	if j.clk == nil {
 		j.clk = clock.NewReal()
@@ -336,6 +350,12 @@ func (j *Journal) appendItems(ctx context.Context, session string, items []Item,
 	}
 	j.mu.Lock()
 	defer j.mu.Unlock()
+	committed := false
+	defer func() {
+		if !committed {
+			delete(j.heads, session)
+		}
+	}()
 	tx, err := j.db.BeginTx(ctx, nil)
 	if err != nil {
 		return fail(err)
@@ -346,7 +366,11 @@ func (j *Journal) appendItems(ctx context.Context, session string, items []Item,
 		prev  string
 		ended bool
 	)
-	err = tx.StmtContext(ctx, j.head).QueryRowContext(ctx, session).Scan(&seq, &prev, &ended)
+	if h, ok := j.heads[session]; ok {
+		seq, prev, ended = h.seq, h.hash, h.ended
+	} else {
+		err = tx.StmtContext(ctx, j.head).QueryRowContext(ctx, session).Scan(&seq, &prev, &ended)
+	}
 	switch {
 	case first && err == nil:
 		return fail(errors.New("session id already used"))
@@ -396,6 +420,8 @@ func (j *Journal) appendItems(ctx context.Context, session string, items []Item,
 	if err := tx.Commit(); err != nil {
 		return fail(err)
 	}
+	committed = true
+	j.heads[session] = headState{seq: seq, hash: prev, ended: isEnd}
 	return seq, nil
 }
 
