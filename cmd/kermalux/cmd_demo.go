@@ -64,7 +64,7 @@ func runDemo(parent context.Context, w io.Writer, o demoOptions, hasSeed bool) e
 	opts := demo.Options{Out: o.out, Scenario: o.scenario, Seed: o.seed, HasSeed: hasSeed, Speed: o.speed,
 		Procedure: o.procedure, Render: render, Version: version}
 	if !o.quiet {
-		opts.Transcript = w
+		opts.Dialogue = w
 	}
 	out, runErr := demo.Run(ctx, opts)
 	if out != nil {

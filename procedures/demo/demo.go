@@ -49,9 +49,9 @@ type Options struct {
 	// returns the files written; nil writes no report (a board build: the
 	// report is rendered at the office from the synced journal).
 	Render func(ctx context.Context, journal, session, dir string) ([]string, error)
-	// Transcript receives what the board says and asks, as it happens
+	// Dialogue receives what the board says and asks, as it happens
 	// (nil: nothing is printed).
-	Transcript io.Writer
+	Dialogue io.Writer
 	// Hook, when set, is called with the running bench and clock before the
 	// session starts (tests use it to inject events).
 	Hook func(b *benchsim.Bench, clk clock.Clock)
@@ -142,7 +142,7 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	if a := scn.Air; a != nil {
 		op.Readings["temperature"], op.Readings["pressure"] = a.TemperatureC, a.PressureKPa
 	}
-	t := &transcript{w: o.Transcript, clk: clk}
+	t := &dialogue{w: o.Dialogue, clk: clk}
 	pan := scripted.New(clk,
 		scripted.WithResponder(func(p panel.Prompt) panel.Response {
 			t.ask(p)
@@ -234,8 +234,8 @@ func loadScenario(path string) (*benchsim.Scenario, error) {
 	return benchsim.ParseScenario("(built-in) "+DefaultScenario, data)
 }
 
-// transcript prints what the board says, with the session's clock.
-type transcript struct {
+// dialogue prints what the board says, with the session's clock.
+type dialogue struct {
 	mu    sync.Mutex
 	w     io.Writer
 	clk   clock.Clock
@@ -243,7 +243,7 @@ type transcript struct {
 	began bool
 }
 
-func (t *transcript) line(kind, text string) {
+func (t *dialogue) line(kind, text string) {
 	if t.w == nil {
 		return
 	}
@@ -256,7 +256,7 @@ func (t *transcript) line(kind, text string) {
 	fmt.Fprintf(t.w, "%02d:%04.1f %-5s %s\n", int(el.Minutes()), el.Seconds()-60*float64(int(el.Minutes())), kind, text)
 }
 
-func (t *transcript) ask(p panel.Prompt) {
+func (t *dialogue) ask(p panel.Prompt) {
 	kind := "ask"
 	if p.Action == panel.ActCheck {
 		kind = "check"
@@ -268,7 +268,7 @@ func (t *transcript) ask(p panel.Prompt) {
 	t.line(kind, text)
 }
 
-func (t *transcript) say(m panel.Message) {
+func (t *dialogue) say(m panel.Message) {
 	kind := "say"
 	switch m.Level {
 	case panel.Warn:

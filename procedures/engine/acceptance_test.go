@@ -112,7 +112,7 @@ func TestAcceptanceOnSimulator(t *testing.T) {
 	}
 	sum, err := e.Run(context.Background())
 	if err != nil {
-		t.Fatalf("%v\n%s", err, lastLines(pan.Transcript(), 30))
+		t.Fatalf("%v\n%s", err, lastLines(pan.Dialogue(), 30))
 	}
 	if sum.Outcome != "complete" {
 		t.Fatalf("outcome %s", sum.Outcome)
@@ -142,7 +142,7 @@ func TestAcceptanceOnSimulator(t *testing.T) {
 	}
 	for _, q := range []string{"conversion_factor", "contrast_ratio", "non_uniformity"} {
 		if !got[q] {
-			t.Errorf("no %s result; transcript tail:\n%s", q, lastLines(pan.Transcript(), 20))
+			t.Errorf("no %s result; dialogue tail:\n%s", q, lastLines(pan.Dialogue(), 20))
 		}
 	}
 	if sum.BeamOn <= 0 || sum.BeamOn > proc.BeamBudget+time.Minute {

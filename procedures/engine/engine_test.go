@@ -73,7 +73,7 @@ func TestConversionFactorEndToEnd(t *testing.T) {
 		t.Errorf("relative expanded type A %.4f above target", u)
 	}
 	if !said(r.pan, "Release the beam") || !said(r.pan, "Conversion factor, 32cm field") {
-		t.Errorf("missing prompts:\n%s", r.pan.Transcript())
+		t.Errorf("missing prompts:\n%s", r.pan.Dialogue())
 	}
 	// Every reading is journalled; used ones belong to the measurement.
 	reads := records[entry.Reading](r.jr, sum.Session, entry.KindReading)
@@ -230,7 +230,7 @@ func TestBeamDropRetaken(t *testing.T) {
 		}
 	}
 	if !retry {
-		t.Errorf("no retry message:\n%s", r.pan.Transcript())
+		t.Errorf("no retry message:\n%s", r.pan.Dialogue())
 	}
 	steps := records[entry.Step](r.jr, sum.Session, entry.KindStep)
 	retake := false

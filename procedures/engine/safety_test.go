@@ -157,7 +157,7 @@ func TestMeterLostAndBack(t *testing.T) {
 		t.Fatal(err)
 	}
 	if !said(r.pan, "Photometer lost") || !said(r.pan, "Photometer back") {
-		t.Fatalf("transcript:\n%s", r.pan.Transcript())
+		t.Fatalf("dialogue:\n%s", r.pan.Dialogue())
 	}
 	if len(events(r.jr, sum.Session, evMeterLost)) != 1 || len(events(r.jr, sum.Session, evMeterBack)) != 1 {
 		t.Error("meter lost/back events")

@@ -104,10 +104,10 @@ func TestMulti(t *testing.T) {
 	}
 	wantBoard := "+0s indicate beam_on\n+0s say beam_off: Release.\n+0s ask: Apron on? -> retake\n"
 	wantScreen := "+0s indicate beam_on\n+0s say beam_off: Release.\n+0s say: Apron on?\n"
-	if got := board.Transcript(); got != wantBoard {
+	if got := board.Dialogue(); got != wantBoard {
 		t.Errorf("board saw:\n%s\nwant:\n%s", got, wantBoard)
 	}
-	if got := screen.Transcript(); got != wantScreen {
+	if got := screen.Dialogue(); got != wantScreen {
 		t.Errorf("screen saw:\n%s\nwant:\n%s", got, wantScreen)
 	}
 	screen.Close()

@@ -256,7 +256,7 @@ func (p *Panel) Remaining() int {
 	return len(p.script)
 }
 
-// Transcript renders the events one per line, for golden files and
+// Dialogue renders the events one per line, for golden files and
 // failure messages:
 //
 //	+12.5s say warn: Cumulative beam-on time is 4 minutes.
@@ -264,7 +264,7 @@ func (p *Panel) Remaining() int {
 //	+14s indicate beam_on
 //
 // Times are relative to the first event.
-func (p *Panel) Transcript() string {
+func (p *Panel) Dialogue() string {
 	evs := p.Events()
 	var b strings.Builder
 	var t0 time.Time

@@ -113,8 +113,8 @@ func TestRecordsWithClockTime(t *testing.T) {
 	want := "+0s indicate ready\n" +
 		"+500ms say info beam_off: Release the beam.\n" +
 		"+500ms ask 2/9 check: Lead apron on? -> ack\n"
-	if got := p.Transcript(); got != want {
-		t.Errorf("transcript:\n%s\nwant:\n%s", got, want)
+	if got := p.Dialogue(); got != want {
+		t.Errorf("dialogue:\n%s\nwant:\n%s", got, want)
 	}
 	if len(heard) != 1 || heard[0] != panel.ActBeamOff {
 		t.Errorf("OnSay saw %v", heard)

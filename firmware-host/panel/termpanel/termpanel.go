@@ -35,7 +35,7 @@ type Voice interface {
 type Options struct {
 	Clock clock.Clock // for the times printed; the real clock if nil
 	Color bool        // ANSI colours (only for a terminal)
-	// Echo writes each line read back to the output, so a transcript of a
+	// Echo writes each line read back to the output, so a dialogue of a
 	// piped session (or a test) shows what was typed.
 	Echo bool
 	// DiscardTypeAhead drops lines typed before a prompt appeared, so a

@@ -52,7 +52,7 @@ func temperature() *panel.ValueRequest {
 }
 
 // TestDialogue runs a short session through the panel and compares the
-// screen with a golden transcript.
+// screen with a golden dialogue.
 func TestDialogue(t *testing.T) {
 	input := strings.Join([]string{
 		"",      // apron: done
