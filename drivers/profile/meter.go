@@ -57,7 +57,7 @@ func Open(ctx context.Context, p *Profile, port string, opts Options) (*Meter, e
 	}
 	cfg := p.Line
 	cfg.Port = port
-	cfg.ReadTimeout = realTime(opts.Clock, p.ReplyTimeout)
+	cfg.ReadTimeout = serialline.RealTimeout(opts.Clock, p.ReplyTimeout)
 	sp, err := serialline.Open(ctx, cfg, serialline.Options{Clock: opts.Clock, Log: opts.Log})
 	if err != nil {
 		return nil, fmt.Errorf("%s (%s): %w", opts.Name, p.Name, err)
@@ -68,20 +68,6 @@ func Open(ctx context.Context, p *Profile, port string, opts Options) (*Meter, e
 		return nil, err
 	}
 	return m, nil
-}
-
-// realTime converts a duration of the meter's clock into the operating
-// system's time for read timeouts, never below 20 ms; a manual clock
-// (which reports 0) keeps the duration as given.
-func realTime(c clock.Clock, d time.Duration) time.Duration {
-	r := c.Real(d)
-	if r <= 0 {
-		return d
-	}
-	if r < 20*time.Millisecond {
-		return 20 * time.Millisecond
-	}
-	return r
 }
 
 // Profile returns the meter's profile.
@@ -232,7 +218,7 @@ func (m *Meter) Read(ctx context.Context) (drivers.Reading, error) {
 			m.streaming = true
 		}
 		wd := m.p.Watchdog()
-		l, err = m.port.ReadLineTimeout(ctx, realTime(m.opts.Clock, wd))
+		l, err = m.port.ReadLineTimeout(ctx, serialline.RealTimeout(m.opts.Clock, wd))
 		if err != nil {
 			if errors.Is(err, drivers.ErrTimeout) {
 				m.streaming = false

@@ -143,7 +143,7 @@ func Open(ctx context.Context, port string, cfg Config, opts ...Option) (*Meter,
 	}
 	lc := cfg.Line
 	lc.Port = port
-	lc.ReadTimeout = realTime(o.clk, cfg.ReplyTimeout)
+	lc.ReadTimeout = serialline.RealTimeout(o.clk, cfg.ReplyTimeout)
 	sp, err := serialline.Open(ctx, lc, serialline.Options{Clock: o.clk, Log: o.log})
 	if err != nil {
 		return nil, fmt.Errorf("%s (SCPI): %w", o.name, err)
@@ -160,17 +160,6 @@ func Open(ctx context.Context, port string, cfg Config, opts ...Option) (*Meter,
 		return nil, err
 	}
 	return m, nil
-}
-
-func realTime(c clock.Clock, d time.Duration) time.Duration {
-	r := c.Real(d)
-	if r <= 0 {
-		return d
-	}
-	if r < 20*time.Millisecond {
-		return 20 * time.Millisecond
-	}
-	return r
 }
 
 // Port returns the transport.

@@ -260,6 +260,20 @@ func (p *Port) Discard() {
 	p.skipping = true
 }
 
+// RealTimeout converts a duration of a meter's clock (a scaled clock in the
+// demo) into the operating system's time for read timeouts, never below
+// 20 ms; a manual clock (which reports 0) keeps the duration as given.
+func RealTimeout(c clock.Clock, d time.Duration) time.Duration {
+	r := c.Real(d)
+	if r <= 0 {
+		return d
+	}
+	if r < 20*time.Millisecond {
+		return 20 * time.Millisecond
+	}
+	return r
+}
+
 // slice is the longest single read, so ctx is honoured promptly.
 const slice = 100 * time.Millisecond
 
