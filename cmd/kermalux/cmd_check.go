@@ -8,6 +8,7 @@ import (
 
 	"github.com/spf13/cobra"
 
+	"kermalux/firmware-host/bench"
 	"kermalux/procedures/builtin"
 	"kermalux/procedures/script"
 )
@@ -61,10 +62,20 @@ func runCheck(cmd *cobra.Command, o checkOptions, args []string) error {
 		return withCode(exitUsage, errors.New("check: give a FILE or --builtin, not both"))
 	case !o.builtin && len(args) == 0:
 		return withCode(exitUsage, errors.New("check: give a procedure FILE, or --builtin"))
-	case o.bench != "":
-		return withCode(exitUsage, errors.New("check: --bench is not wired yet (the bench file reader is not in this build); use --modes for the field modes"))
 	}
 	env := script.Env{FieldModes: o.modes}
+	if o.bench != "" {
+		// The bench says which quantities its meters report and which
+		// field modes the intensifier has.
+		b, err := bench.Load(o.bench)
+		if err != nil {
+			return withCode(exitFailure, err)
+		}
+		env = b.Env()
+		if len(o.modes) > 0 {
+			env.FieldModes = o.modes
+		}
+	}
 	out, errOut := cmd.OutOrStdout(), cmd.ErrOrStderr()
 	var bad int
 	report := func(label string, p *script.Procedure, ps script.Problems) {

@@ -38,6 +38,8 @@ func TestCheckExitCodes(t *testing.T) {
 		{[]string{"check", "../../procedures/builtin/conversion-factor.yaml", "--modes", "32cm,25cm"}, exitOK, ""},
 		{[]string{"check", "../../testdata/procedures/bad/no-safety.yaml"}, exitFailure, "no-safety.yaml:"},
 		{[]string{"check", "../../testdata/procedures/bad/bad-unit.yaml"}, exitFailure, "bad-unit.yaml:13:21:"},
+		{[]string{"check", "--builtin", "--bench", "../../testdata/bench/demo-sim.yaml"}, exitOK, ""},
+		{[]string{"check", "../../procedures/builtin/conversion-factor.yaml", "--bench", "../../testdata/bench/photometer-only.yaml"}, exitFailure, "no configured meter reports air_kerma_rate"},
 		{[]string{"check"}, exitUsage, ""},
 		{[]string{"check", "--no-such-flag", "x.yaml"}, exitUsage, "unknown flag"},
 	}
