@@ -362,10 +362,14 @@ func (c *checker) build(fp *fileProfile) *Profile {
 		if r.Send == "" {
 			c.fail("reading.send", "missing: a polled meter needs the query command")
 		}
-		if r.Start != nil || r.Stop != "" || r.Period != "" || r.SilentPeriods != 0 {
-			c.fail("reading", "start, stop, period and silent_periods are for mode: streaming")
+		if r.Start != nil || r.Stop != "" || r.SilentPeriods != 0 {
+			c.fail("reading", "start, stop and silent_periods are for mode: streaming")
 		}
 		p.Query = r.Send
+		// How often the meter updates its reading: it is not asked more
+		// often (asking faster returns the same value again, which would
+		// pass repeated values off as independent samples).
+		p.Period = c.duration("reading.period", r.Period, 100*time.Millisecond)
 	case Streaming:
 		p.Mode = Streaming
 		if r.Send != "" {

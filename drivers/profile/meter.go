@@ -31,10 +31,12 @@ type Meter struct {
 	port *serialline.Port
 	opts Options
 
-	gen       uint64 // port generation the set-up was done for
-	reconnect bool   // the next reading is the first after a reconnection
-	dirty     bool   // a reply may be pending after an error: flush first
-	streaming bool   // the start command has been acknowledged
+	gen       uint64        // port generation the set-up was done for
+	reconnect bool          // the next reading is the first after a reconnection
+	dirty     bool          // a reply may be pending after an error: flush first
+	streaming bool          // the start command has been acknowledged
+	asked     bool          // a polled meter has been queried
+	lastAsk   time.Duration // when, on the meter's clock
 }
 
 var (
@@ -198,6 +200,15 @@ func (m *Meter) Read(ctx context.Context) (drivers.Reading, error) {
 	)
 	switch m.p.Mode {
 	case Polled:
+		// Not more often than the meter updates (its clock's time).
+		if m.asked {
+			if wait := m.lastAsk + m.p.Period - m.opts.Clock.Mono(); wait > 0 {
+				if err := m.opts.Clock.Sleep(ctx, wait); err != nil {
+					return drivers.Reading{}, err
+				}
+			}
+		}
+		m.lastAsk, m.asked = m.opts.Clock.Mono(), true
 		if m.dirty {
 			m.port.Flush() // a late reply to an earlier query is not fresh
 			m.dirty = false

@@ -85,8 +85,10 @@ type Profile struct {
 	// Start begins streaming (Expect is its acknowledgement); Stop ends it.
 	Start Exchange
 	Stop  string
-	// Period is the streaming interval; SilentPeriods how many may pass
-	// without a line before the watchdog reports the meter silent.
+	// Period is the streaming interval, or for a polled meter its update
+	// interval (it is not queried more often); SilentPeriods how many may
+	// pass without a line before the watchdog reports a streaming meter
+	// silent.
 	Period        time.Duration
 	SilentPeriods int
 	// ReplyTimeout bounds the wait for one reply (meter's clock time).

@@ -53,6 +53,10 @@ type Config struct {
 	ErrorQuery string
 	// ReplyTimeout bounds each reply (meter's clock time); 1 s when zero.
 	ReplyTimeout time.Duration
+	// Period is how often the meter updates its reading: it is not asked
+	// more often (a faster query returns the same value again, which would
+	// pass repeated values off as independent samples); 100 ms when zero.
+	Period time.Duration
 }
 
 // DefaultInit is the set-up of an air-kerma-rate meter.
@@ -116,8 +120,10 @@ type Meter struct {
 	gen       uint64
 	reconnect bool
 	dirty     bool
-	unit      string // as the meter spells it
-	ourUnit   string // as package units spells it
+	unit      string        // as the meter spells it
+	ourUnit   string        // as package units spells it
+	asked     bool          // queried at least once
+	lastAsk   time.Duration // when, on the meter's clock
 }
 
 var (
@@ -416,6 +422,18 @@ func (m *Meter) Read(ctx context.Context) (drivers.Reading, error) {
 	if err := m.prepare(ctx); err != nil {
 		return drivers.Reading{}, err
 	}
+	period := m.cfg.Period
+	if period <= 0 {
+		period = 100 * time.Millisecond
+	}
+	if m.asked {
+		if wait := m.lastAsk + period - m.o.clk.Mono(); wait > 0 {
+			if err := m.o.clk.Sleep(ctx, wait); err != nil {
+				return drivers.Reading{}, err
+			}
+		}
+	}
+	m.lastAsk, m.asked = m.o.clk.Mono(), true
 	if m.dirty {
 		m.port.Flush()
 		m.dirty = false

@@ -129,17 +129,25 @@ func trend(xs []tv) (rel, se float64, ok bool) {
 		sxx += dt * dt
 		sxy += dt * (x.v - mv)
 	}
-	if sxx == 0 || mv == 0 {
+	if sxx == 0 {
 		return 0, 0, false
 	}
 	b := sxy / sxx
-	var ssr float64
+	var ssr, svv float64
 	for _, x := range xs {
 		r := x.v - (mv + b*(x.t.Seconds()-mt))
 		ssr += r * r
+		svv += (x.v - mv) * (x.v - mv)
 	}
 	seb := math.Sqrt(ssr / (n - 2) / sxx)
-	return b / math.Abs(mv), seb / math.Abs(mv), true
+	// Relative to the mean; a signal near zero (a dark reading, a meter
+	// under range) is scaled by its spread instead, where a relative
+	// slope would be meaningless, and a constant one has no trend at all.
+	scale := math.Max(math.Abs(mv), math.Sqrt(svv/(n-1)))
+	if scale == 0 {
+		return 0, 0, true
+	}
+	return b / scale, seb / scale, true
 }
 
 // window returns the trailing part of xs that spans d.
