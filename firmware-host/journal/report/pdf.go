@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"fmt"
 	"io"
+	"strconv"
 	"strings"
 
 	"codeberg.org/go-fonts/liberation/liberationmonoregular"
@@ -302,9 +303,9 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 		if !res.Calibrated {
 			notes = append([]string{"not calibrated"}, notes...)
 		}
-		rows = append(rows, []string{quantityWords(res.Quantity), res.FieldMode, ValueWithUnc(res.Value, res.ExpUnc), unitShown(res.Unit), Number(res.K), of, strings.ToUpper(res.Verdict), res.DecidedBy, strings.Join(notes, "; ")})
+		rows = append(rows, []string{quantityWords(res.Quantity), res.FieldMode, ValueWithUnc(res.Value, res.ExpUnc), unitShown(res.Unit), strconv.FormatFloat(res.K, 'f', 2, 64), of, strings.ToUpper(res.Verdict), res.DecidedBy, strings.Join(notes, "; ")})
 	}
-	d.table([]pdfCol{{"Result", .15, false}, {"Field", .06, false}, {"Value ± U", .12, true}, {"Unit", .12, false}, {"k", .03, true}, {"Of baseline", .12, true}, {"Verdict", .07, false}, {"Decided by", .21, false}, {"Notes", .12, false}}, rows)
+	d.table([]pdfCol{{"Result", .15, false}, {"Field", .06, false}, {"Value ± U", .12, true}, {"Unit", .11, false}, {"k", .07, true}, {"Of baseline", .12, true}, {"Verdict", .07, false}, {"Decided by", .18, false}, {"Notes", .12, false}}, rows)
 	d.para("U is the expanded uncertainty with coverage factor k (JCGM 100:2008). A verdict compares the value itself with the limit named under “Decided by”.", 7.5)
 
 	if len(v.Charts) > 0 {
