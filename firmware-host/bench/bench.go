@@ -134,7 +134,7 @@ func Parse(name string, data []byte) (bench *Bench, err error) {
 		}
 	}()
 	if err := yaml.UnmarshalWithOptions(data, &b, yaml.Strict()); err != nil {
-		return nil, fmt.Errorf("bench file %s:%s", name, strings.TrimPrefix(yaml.FormatError(err, false, true), "["))
+		return nil, fmt.Errorf("bench file %s:%s", name, yamlPosition(yaml.FormatError(err, false, true)))
 	}
 	b.SHA256 = sha256Hex(data)
 	b.Path = name
@@ -295,4 +295,15 @@ func (b *Bench) ModeNames() []string {
 func sha256Hex(data []byte) string {
 	sum := sha256.Sum256(data)
 	return hex.EncodeToString(sum[:])
+}
+
+// yamlPosition turns the YAML library's "[line:col] message" into
+// "line:col: message", so the error reads file:line:col: message.
+func yamlPosition(msg string) string {
+	if strings.HasPrefix(msg, "[") {
+		if i := strings.Index(msg, "] "); i > 0 {
+			return msg[1:i] + ": " + msg[i+2:]
+		}
+	}
+	return " " + msg
 }

@@ -69,7 +69,7 @@ func TestRoom2Settings(t *testing.T) {
 // Bad bench files are refused with the file and, for YAML faults, the line.
 func TestBadBenchFiles(t *testing.T) {
 	for _, c := range []struct{ file, want string }{
-		{"unknown-key.yaml", ":8:"},
+		{"unknown-key.yaml", "unknown-key.yaml:8:5: unknown field \"colour\""},
 		{"unknown-key.yaml", "colour"},
 		{"two-dialects.yaml", "exactly one dialect"},
 		{"bad-role.yaml", "want dosimeter or photometer"},
