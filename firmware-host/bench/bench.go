@@ -99,6 +99,13 @@ type Defaults struct {
 	PressureKPa  float64 `yaml:"pressure_kpa"`
 	TubeVoltage  float64 `yaml:"tube_voltage_kv"`
 	TubeCurrent  float64 `yaml:"tube_current_ma"`
+	// Standard uncertainties of the room thermometer (°C) and barometer
+	// (kPa), for the k_TP row of the budget. Zero: 0.29 °C and 0.12 kPa,
+	// a thermometer good to ±0.5 °C and a barometer to ±0.2 kPa read as
+	// rectangular distributions, u = a/√3 (JCGM 100:2008 4.3.7; the
+	// instrument accuracies are common practice: state yours).
+	TemperatureUncC float64 `yaml:"temperature_uncertainty_c"`
+	PressureUncKPa  float64 `yaml:"pressure_uncertainty_kpa"`
 }
 
 // LocalLimits are the site's own settings.

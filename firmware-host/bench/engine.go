@@ -2,6 +2,7 @@ package bench
 
 import (
 	"fmt"
+	"math"
 	"os"
 	"strings"
 	"time"
@@ -83,6 +84,13 @@ func (b *Bench) Correctors(certs map[string]*calib.Certificate, day time.Time) (
 		cc := engine.CalibCorrector{Cert: c, Day: day}
 		if m.Role == engine.Dosimeter {
 			cc.Geometry = b.Geometry()
+			cc.TemperatureUnc, cc.PressureUnc = b.Defaults.TemperatureUncC, b.Defaults.PressureUncKPa
+			if cc.TemperatureUnc == 0 {
+				cc.TemperatureUnc = 0.5 / math.Sqrt(3)
+			}
+			if cc.PressureUnc == 0 {
+				cc.PressureUnc = 0.2 / math.Sqrt(3)
+			}
 		}
 		out[m.Role] = cc
 		if c != nil {

@@ -21,6 +21,9 @@ type CalibCorrector struct {
 	Cert     *calib.Certificate // nil: no certificate (readings flagged)
 	Geometry calib.Geometry     // dosimeter only
 	Day      time.Time          // session day for certificate validity; zero: the reading's wall time
+	// Standard uncertainties of the room thermometer (°C) and barometer
+	// (kPa) whose readings enter k_TP; 0: no budget row.
+	TemperatureUnc, PressureUnc float64
 }
 
 // Correct implements Corrector.
@@ -35,7 +38,7 @@ func (cc CalibCorrector) Correct(r drivers.Reading, c Conditions) Corrected {
 	if kv, ok := c.Values["tube_voltage"]; ok && s.Quality == (calib.Quality{}) {
 		s.Quality.TubeVoltage = kv
 	}
-	s.Air = calib.Air{Temperature: math.NaN(), Pressure: math.NaN()}
+	s.Air = calib.Air{Temperature: math.NaN(), Pressure: math.NaN(), TemperatureUnc: cc.TemperatureUnc, PressureUnc: cc.PressureUnc}
 	if t, ok := c.Values["temperature"]; ok {
 		s.Air.Temperature = t
 	}
@@ -53,15 +56,9 @@ func (cc CalibCorrector) Correct(r drivers.Reading, c Conditions) Corrected {
 	for _, a := range out.Applied {
 		res.Corrections = append(res.Corrections, entry.Correction{Name: a.Name, Factor: a.Factor, Offset: a.Offset, Note: a.Note})
 	}
-	var v float64
-	for _, comp := range calib.CertificateComponents(cc.Cert) {
-		rel := comp.Rel
-		if comp.Abs > 0 && out.Value != 0 {
-			rel = comp.Abs / math.Abs(out.Value)
-		}
-		v += rel * rel
-	}
-	res.RelStdUncB = math.Sqrt(v)
+	// Every type B component of the corrected value: the coefficient, the
+	// resolution, and the thermometer and barometer through k_TP.
+	res.RelStdUncB = out.RelStdUncB()
 	return res
 }
 
@@ -74,7 +71,7 @@ func measured(p posStat, lum bool) calib.Measured {
 	}
 	return calib.Measured{Name: "input air kerma rate", Unit: units.Canonical(units.AirKermaRate),
 		Samples: calib.Summary{N: p.NK, Mean: p.K, SD: p.KU * math.Sqrt(float64(p.NK))},
-		TypeB:   relB("dosimeter calibration and resolution", p.BK), Calibrated: p.Calib}
+		TypeB:   relB("dosimeter calibration, resolution and air density (k_TP)", p.BK), Calibrated: p.Calib}
 }
 
 // settledMeasure is measured for a beam reading, with the residual of
