@@ -5,6 +5,7 @@ import (
 	"encoding/json"
 	"fmt"
 	"math"
+	"slices"
 	"time"
 
 	"kermalux/drivers/units"
@@ -192,7 +193,10 @@ func (p *posStat) finite() {
 	for _, v := range []*float64{&p.L, &p.LU, &p.K, &p.KU, &p.G, &p.GU, &p.Drift, &p.BL, &p.BK} {
 		if math.IsInf(*v, 0) || math.IsNaN(*v) {
 			*v = 0
-			p.Flags = append(p.Flags, "too few readings for a type A uncertainty")
+			const flag = "no type A uncertainty: too few readings, or a mean of zero (a meter below its range)"
+			if !slices.Contains(p.Flags, flag) {
+				p.Flags = append(p.Flags, flag)
+			}
 		}
 	}
 }
