@@ -406,7 +406,9 @@ func TestWorkstationRefusesTamperedJournal(t *testing.T) {
 	for _, c := range []struct{ name, sql, want string }{
 		{"edit a value", `UPDATE records SET payload = replace(payload, '21.5', '25.5') WHERE seq = 5`, "record 5"},
 		{"delete a record", `DELETE FROM records WHERE seq = 9`, "missing"},
-		{"flip a hash byte", `UPDATE records SET hash = '0' || substr(hash, 2) WHERE seq = 3`, "record 3"},
+		// The first hex digit is changed, whatever it was (a fixed '0' would
+		// leave one hash in sixteen untouched).
+		{"flip a hash byte", `UPDATE records SET hash = (CASE substr(hash, 1, 1) WHEN '0' THEN '1' ELSE '0' END) || substr(hash, 2) WHERE seq = 3`, "record 3"},
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			cp := filepath.Join(t.TempDir(), "copy.db")
