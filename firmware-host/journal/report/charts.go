@@ -309,19 +309,10 @@ func profileSpec(m LuminanceMap) (chartSpec, error) {
 		return chartSpec{}, err
 	}
 	line.Color, line.Width = accentColor, vg.Points(1.5)
-	sc, err := plotter.NewScatter(pts)
+	sc, eb, err := pointsWithBars(pts, errs, 3)
 	if err != nil {
 		return chartSpec{}, err
 	}
-	sc.GlyphStyle = draw.GlyphStyle{Color: accentColor, Radius: vg.Points(3), Shape: draw.CircleGlyph{}}
-	eb, err := plotter.NewYErrorBars(struct {
-		plotter.XYs
-		plotter.YErrors
-	}{pts, errs})
-	if err != nil {
-		return chartSpec{}, err
-	}
-	eb.Color = accentColor
 	p.Add(line, sc, eb)
 	p.X.Min, p.X.Max = -0.05, 1.05
 	p.Y.Min, p.Y.Max = math.Min(0.6, math.Floor(lo*20)/20), math.Max(1.05, hi+0.02)
@@ -482,19 +473,10 @@ func trendSpec(t Trend) (chartSpec, error) {
 		lb.Offset = vg.Point{X: vg.Points(-3), Y: vg.Points(-4)}
 		p.Add(lb)
 	}
-	sc, err := plotter.NewScatter(pts)
+	sc, eb, err := pointsWithBars(pts, errs, 3.5)
 	if err != nil {
 		return chartSpec{}, err
 	}
-	sc.GlyphStyle = draw.GlyphStyle{Color: accentColor, Radius: vg.Points(3.5), Shape: draw.CircleGlyph{}}
-	eb, err := plotter.NewYErrorBars(struct {
-		plotter.XYs
-		plotter.YErrors
-	}{pts, errs})
-	if err != nil {
-		return chartSpec{}, err
-	}
-	eb.Color = accentColor
 	p.Add(eb, sc)
 	p.Legend.Add("session (bars: U)", sc)
 	p.Legend.Top = true
@@ -567,4 +549,23 @@ func (r *Report) charts(svg, png bool) (charts []Chart, notes []string) {
 		add(trendSpec(t))
 	}
 	return charts, notes
+}
+
+// pointsWithBars draws values as dots of the given radius (points) with
+// their expanded uncertainties as vertical bars.
+func pointsWithBars(pts plotter.XYs, errs plotter.YErrors, radius float64) (*plotter.Scatter, *plotter.YErrorBars, error) {
+	sc, err := plotter.NewScatter(pts)
+	if err != nil {
+		return nil, nil, err
+	}
+	sc.GlyphStyle = draw.GlyphStyle{Color: accentColor, Radius: vg.Points(radius), Shape: draw.CircleGlyph{}}
+	eb, err := plotter.NewYErrorBars(struct {
+		plotter.XYs
+		plotter.YErrors
+	}{pts, errs})
+	if err != nil {
+		return nil, nil, err
+	}
+	eb.Color = accentColor
+	return sc, eb, nil
 }

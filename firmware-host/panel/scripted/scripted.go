@@ -120,16 +120,9 @@ var _ panel.Panel = (*Panel)(nil)
 
 // Say records m.
 func (p *Panel) Say(ctx context.Context, m panel.Message) error {
-	if err := ctx.Err(); err != nil {
+	if err := p.note(ctx, Event{Kind: KindSay, Message: m}); err != nil {
 		return err
 	}
-	p.mu.Lock()
-	if p.closed {
-		p.mu.Unlock()
-		return ErrClosed
-	}
-	p.events = append(p.events, Event{Kind: KindSay, At: p.clk.Now(), Message: m})
-	p.mu.Unlock()
 	if p.onSay != nil {
 		p.onSay(m)
 	}
@@ -196,19 +189,28 @@ func (p *Panel) record(idx int, r panel.Response, err error) {
 
 // Indicate records on.
 func (p *Panel) Indicate(ctx context.Context, on panel.Indicator) error {
+	if err := p.note(ctx, Event{Kind: KindIndicate, Indicator: on}); err != nil {
+		return err
+	}
+	if p.onIndicate != nil {
+		p.onIndicate(on)
+	}
+	return nil
+}
+
+// note records ev at the clock's time, unless ctx is done or the panel
+// is closed.
+func (p *Panel) note(ctx context.Context, ev Event) error {
 	if err := ctx.Err(); err != nil {
 		return err
 	}
 	p.mu.Lock()
+	defer p.mu.Unlock()
 	if p.closed {
-		p.mu.Unlock()
 		return ErrClosed
 	}
-	p.events = append(p.events, Event{Kind: KindIndicate, At: p.clk.Now(), Indicator: on})
-	p.mu.Unlock()
-	if p.onIndicate != nil {
-		p.onIndicate(on)
-	}
+	ev.At = p.clk.Now()
+	p.events = append(p.events, ev)
 	return nil
 }
 
