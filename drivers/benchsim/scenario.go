@@ -371,6 +371,14 @@ func lineOf(data []byte, path string) int {
 }
 
 // check validates the scenario and fills in defaults.
+// meterDefaults are each demo meter's serial number, firmware and link
+// name prefix when a scenario leaves them out (all invented).
+var meterDefaults = map[string]struct{ serial, firmware, link string }{
+	ProtocolVeltrane: {"KR40-1187", "2.3", "veltrane"},
+	ProtocolHalden:   {"DX2-30417", "1.08", "halden"},
+	ProtocolOrlan:    {"LM9-5521", "", "orlan"},
+}
+
 func (s *Scenario) check() error {
 	if a := s.Air; a != nil {
 		if a.TemperatureC < -10 || a.TemperatureC > 50 {
@@ -590,33 +598,15 @@ func (m *MeterSpec) check(p, role string) error {
 			return bad(p+".chamber", "a photometer has no chamber")
 		}
 	}
-	switch m.Protocol {
-	case ProtocolVeltrane:
+	if d, ok := meterDefaults[m.Protocol]; ok {
 		if m.Serial == "" {
-			m.Serial = "KR40-1187"
+			m.Serial = d.serial
 		}
 		if m.Firmware == "" {
-			m.Firmware = "2.3"
+			m.Firmware = d.firmware
 		}
 		if m.LinkName == "" {
-			m.LinkName = "veltrane-" + m.Serial
-		}
-	case ProtocolHalden:
-		if m.Serial == "" {
-			m.Serial = "DX2-30417"
-		}
-		if m.Firmware == "" {
-			m.Firmware = "1.08"
-		}
-		if m.LinkName == "" {
-			m.LinkName = "halden-" + m.Serial
-		}
-	case ProtocolOrlan:
-		if m.Serial == "" {
-			m.Serial = "LM9-5521"
-		}
-		if m.LinkName == "" {
-			m.LinkName = "orlan-" + m.Serial
+			m.LinkName = d.link + "-" + m.Serial
 		}
 	}
 	if strings.ContainsAny(m.LinkName, "/ \t") {
