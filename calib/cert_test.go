@@ -57,7 +57,7 @@ func TestExampleCertificates(t *testing.T) {
 	if c.Backscatter != 1.27 || c.Resolution != 0.001 {
 		t.Errorf("backscatter %v resolution %v", c.Backscatter, c.Resolution)
 	}
-	p := load(t, "orlan-lm9-5521.yaml")
+	p := load(t, "vessoric-lm9-5521.yaml")
 	if p.Quantity != units.Luminance || p.Coefficient != 1.012 || len(p.Points) != 0 {
 		t.Errorf("photometer certificate = %+v", p)
 	}
@@ -197,7 +197,7 @@ func TestCoefficientAt(t *testing.T) {
 		}
 	}
 	// Tube-voltage table.
-	h := load(t, "halden-dx2-30417.yaml")
+	h := load(t, "ondrakel-dx2-30417.yaml")
 	if got, err := h.CoefficientAt(Quality{TubeVoltage: 80}); err != nil || abs(got-1.0055) > 1e-12 {
 		t.Errorf("80 kV = %v, %v; want (1.000+1.011)/2 = 1.0055", got, err)
 	}

@@ -89,7 +89,7 @@ func TestCorrectDosimeterOrderAndRecord(t *testing.T) {
 }
 
 func TestCorrectPhotometer(t *testing.T) {
-	p := load(t, "orlan-lm9-5521.yaml")
+	p := load(t, "vessoric-lm9-5521.yaml")
 	got := Correct(100.5, units.Luminance, Setup{Cert: p, Day: day("2026-12-02"), Dark: 0.5})
 	// (100.5 − 0.5) × 1.012 = 101.2
 	if !got.Calibrated || math.Abs(got.Value-101.2) > 1e-9 || len(got.Applied) != 2 || got.Applied[0].Name != CorrDark || got.Applied[0].Offset != -0.5 {
@@ -118,7 +118,7 @@ func TestCorrectFlagsInsteadOfCalibrating(t *testing.T) {
 		{"pressure in the wrong unit", func(s *Setup) { s.Air.Pressure = 1013 }, FlagNoAirDensity, "pressure"},
 		{"on the face, no backscatter", func(s *Setup) { s.Cert = old; s.Day = day("2024-06-01"); s.Geometry.OnFace = true }, FlagNoBackscatter, "backscatter"},
 		{"negative distance", func(s *Setup) { s.Geometry = Geometry{SourceToChamber: -5, SourceToInput: 1000} }, FlagGeometry, "positive"},
-		{"photometer certificate on a dosimeter", func(s *Setup) { s.Cert = load(t, "orlan-lm9-5521.yaml") }, FlagWrongQuantity, "luminance"},
+		{"photometer certificate on a dosimeter", func(s *Setup) { s.Cert = load(t, "vessoric-lm9-5521.yaml") }, FlagWrongQuantity, "luminance"},
 	}
 	if c := Correct(1, units.AirKermaRate, base); !c.Calibrated {
 		t.Fatalf("the unedited set-up must calibrate: %v", c.Flags)
@@ -132,7 +132,7 @@ func TestCorrectFlagsInsteadOfCalibrating(t *testing.T) {
 		}
 	}
 	// A sealed detector needs no air density: missing T and P are fine.
-	h := load(t, "halden-dx2-30417.yaml")
+	h := load(t, "ondrakel-dx2-30417.yaml")
 	c := Correct(1, units.AirKermaRate, Setup{Cert: h, Day: day("2026-12-02"), Quality: Quality{TubeVoltage: 70}})
 	if !c.Calibrated || !hasFlag(c, FlagDueSoon) {
 		t.Errorf("sealed detector, due in 16 days: calibrated %v flags %v", c.Calibrated, c.Flags)
@@ -181,7 +181,7 @@ func TestCorrectedTypeBAndCollect(t *testing.T) {
 }
 
 func TestCorrectReadingOverRange(t *testing.T) {
-	p := load(t, "orlan-lm9-5521.yaml")
+	p := load(t, "vessoric-lm9-5521.yaml")
 	r := drivers.Reading{Meter: "photometer", Quantity: units.Luminance, Value: 9999, Status: drivers.StatusOverRange}
 	c := CorrectReading(r, Setup{Cert: p, Day: day("2026-12-02")})
 	if c.Calibrated || !hasFlag(c, FlagUnusable) || !strings.Contains(c.Flags[0].Text, "over range") {
@@ -194,7 +194,7 @@ func TestCorrectReadingOverRange(t *testing.T) {
 }
 
 func TestGridStateAlwaysRecorded(t *testing.T) {
-	h := load(t, "halden-dx2-30417.yaml")
+	h := load(t, "ondrakel-dx2-30417.yaml")
 	for _, removed := range []bool{true, false} {
 		c := Correct(1, units.AirKermaRate, Setup{Cert: h, Day: day("2026-12-02"), Quality: Quality{TubeVoltage: 70}, Geometry: Geometry{GridRemoved: removed}})
 		last := c.Applied[len(c.Applied)-1]

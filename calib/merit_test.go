@@ -139,7 +139,7 @@ func TestUniformity(t *testing.T) {
 }
 
 func TestContrastRatioCancelsPhotometerCalibration(t *testing.T) {
-	expired := Flag{FlagExpired, "certificate CPS-1 for the Orlan LM-9 expired on 2025-01-01: reading not calibrated"}
+	expired := Flag{FlagExpired, "certificate CPS-1 for the Vessoric LM-9 expired on 2025-01-01: reading not calibrated"}
 	open := Measured{Name: "open", Samples: Summary{N: 6, Mean: 180, SD: 1.8}, TypeB: []Component{{Rel: 0.01, Calibration: true}}, Flags: []Flag{expired}}
 	disk := Measured{Name: "disk", Samples: Summary{N: 6, Mean: 9, SD: 0.18}, TypeB: []Component{{Rel: 0.01, Calibration: true}}, Flags: []Flag{expired}}
 	r := ContrastRatio(open, disk, 23, 230, 0)

@@ -18,7 +18,7 @@ func TestCertsStanding(t *testing.T) {
 	}{
 		{[]string{"../../testdata/certificates"}, "2026-12-02", exitOK, []string{"due in 16 days", "out of date, superseded"}},
 		{[]string{"../../testdata/certificates/veltrane-kr40-1187-expired.yaml"}, "2026-12-02", exitFailure, []string{"OUT OF DATE"}},
-		{[]string{"../../testdata/certificates/orlan-lm9-5521.yaml"}, "2027-05-05", exitFailure, []string{"OUT OF DATE"}},
+		{[]string{"../../testdata/certificates/vessoric-lm9-5521.yaml"}, "2027-05-05", exitFailure, []string{"OUT OF DATE"}},
 	}
 	for _, tc := range tests {
 		var out bytes.Buffer

@@ -42,7 +42,7 @@ The simulator's figures are invented: they are not measurements.`,
 	}
 	f := cmd.Flags()
 	f.StringVar(&o.out, "out", "demo-out", "directory for results.json, journal, bench file and report")
-	f.StringVar(&o.scenario, "scenario", "", "simulator scenario file (default: the built-in Harbour View room 2 bench)")
+	f.StringVar(&o.scenario, "scenario", "", "simulator scenario file (default: the built-in Tollemby Rise room 2 bench)")
 	f.Int64Var(&o.seed, "seed", 0, "random seed (default: the scenario's)")
 	f.Float64Var(&o.speed, "speed", 0, "simulated time runs this many times faster than real time (default: the scenario's)")
 	f.StringVar(&o.procedure, "procedure", "", "procedure to run (default: acceptance)")

@@ -223,7 +223,7 @@ func (b *Bench) faultEnd(role, kind string, t time.Duration) time.Duration {
 // Port is where one simulated meter can be reached.
 type Port struct {
 	Role     string // "dosimeter" or "photometer"
-	Protocol string // "veltrane-kr40", "halden-dx2", "orlan-lm9"
+	Protocol string // "veltrane-kr40", "ondrakel-dx2", "vessoric-lm9"
 	Name     string // link name under <dir>/by-id
 	// Link is the stable path <dir>/by-id/<name>, a symlink to Device;
 	// clients should open it (it survives a pulled cable).

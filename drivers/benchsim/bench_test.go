@@ -42,7 +42,7 @@ func BenchmarkTwoMeters50Hz(b *testing.B) {
 			runtime.ReadMemStats(&ms0)
 			cpu0 := cpuTime(b)
 			for range b.N {
-				r := startRig(b, "harbour-view-room2.yaml", benchSpeed, nil)
+				r := startRig(b, "tollemby-rise-room2.yaml", benchSpeed, nil)
 				r.b.SetBeam(true)
 				ctx, cancel := context.WithCancel(context.Background())
 				var wg sync.WaitGroup
@@ -78,7 +78,7 @@ func BenchmarkTwoMeters50Hz(b *testing.B) {
 func readDrivers(ctx context.Context, b *testing.B, r *rig, role string, end time.Duration) int64 {
 	file, link := "veltrane-kr40.yaml", r.ports.Dosimeter.Link
 	if role == RolePhotometer {
-		file, link = "orlan-lm9.yaml", r.ports.Photometer.Link
+		file, link = "vessoric-lm9.yaml", r.ports.Photometer.Link
 	}
 	p, err := profile.Load(filepath.Join(profileDir, file))
 	if err != nil {
@@ -142,7 +142,7 @@ func readRaw(ctx context.Context, b *testing.B, r *rig, role string, end time.Du
 // BenchmarkModelReading is the physics alone: one dosimeter and one
 // photometer reading, 20 ms of simulated time apart.
 func BenchmarkModelReading(b *testing.B) {
-	for _, file := range []string{"harbour-view-room2.yaml", "northgate-pulsed-scpi.yaml"} {
+	for _, file := range []string{"tollemby-rise-room2.yaml", "pelverton-pulsed-scpi.yaml"} {
 		b.Run(file, func(b *testing.B) {
 			s, err := LoadScenario(filepath.Join(scenarioDir, file))
 			if err != nil {

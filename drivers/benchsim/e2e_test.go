@@ -77,12 +77,12 @@ func (r *rig) sleep(d time.Duration) { _ = r.clk.Sleep(context.Background(), d) 
 // TestEndToEndReadings: readings through the real drivers agree with the
 // model's truth (× the calibration error) within the configured noise.
 func TestEndToEndReadings(t *testing.T) {
-	r := startRig(t, "harbour-view-room2.yaml", e2eSpeed, nil)
+	r := startRig(t, "tollemby-rise-room2.yaml", e2eSpeed, nil)
 	if fi, err := os.Lstat(r.ports.Dosimeter.Link); err != nil || fi.Mode()&os.ModeSymlink == 0 {
 		t.Fatalf("link %s: %v", r.ports.Dosimeter.Link, err)
 	}
 	dose := openProfile(t, r, "veltrane-kr40.yaml", r.ports.Dosimeter.Link, RoleDosimeter)
-	lum := openProfile(t, r, "orlan-lm9.yaml", r.ports.Photometer.Link, RolePhotometer)
+	lum := openProfile(t, r, "vessoric-lm9.yaml", r.ports.Photometer.Link, RolePhotometer)
 	ctx := context.Background()
 	id, err := dose.Identify(ctx)
 	if err != nil || id.Serial != "KR40-1187" || id.Firmware != "2.3" {
@@ -117,10 +117,10 @@ func TestEndToEndReadings(t *testing.T) {
 		(mean(ds)/(1+tr.Dosimeter.CalibrationError)/tr.ChamberFactor), 152, 0.05)
 }
 
-// TestEndToEndSCPI: the Halden DX-2 dialect through the SCPI driver, with
+// TestEndToEndSCPI: the Ondrakel DX-2 dialect through the SCPI driver, with
 // pulsed fluoroscopy.
 func TestEndToEndSCPI(t *testing.T) {
-	r := startRig(t, "northgate-pulsed-scpi.yaml", e2eSpeed, nil)
+	r := startRig(t, "pelverton-pulsed-scpi.yaml", e2eSpeed, nil)
 	ctx, cancel := context.WithTimeout(context.Background(), 5*time.Second)
 	defer cancel()
 	m, err := scpi.Open(ctx, r.ports.Dosimeter.Link, scpi.Config{}, scpi.WithClock(r.clk), scpi.WithName(RoleDosimeter), scpi.WithLogger(quietLog))
@@ -129,7 +129,7 @@ func TestEndToEndSCPI(t *testing.T) {
 	}
 	defer m.Close()
 	id, err := m.Identify(ctx)
-	if err != nil || id.Maker != "HALDEN" || id.Serial != "DX2-30417" {
+	if err != nil || id.Maker != "ONDRAKEL" || id.Serial != "DX2-30417" {
 		t.Errorf("identity %+v, %v", id, err)
 	}
 	r.b.SetBeam(true)
@@ -193,12 +193,12 @@ func TestEndToEndFaults(t *testing.T) {
 	} {
 		t.Run(tc.kind+"/"+tc.role, func(t *testing.T) {
 			t.Parallel()
-			r := startRig(t, "harbour-view-room2.yaml", e2eSpeed, nil)
+			r := startRig(t, "tollemby-rise-room2.yaml", e2eSpeed, nil)
 			var m drivers.Meter
 			if tc.role == RoleDosimeter {
 				m = openProfile(t, r, "veltrane-kr40.yaml", r.ports.Dosimeter.Link, RoleDosimeter)
 			} else {
-				m = openProfile(t, r, "orlan-lm9.yaml", r.ports.Photometer.Link, RolePhotometer)
+				m = openProfile(t, r, "vessoric-lm9.yaml", r.ports.Photometer.Link, RolePhotometer)
 			}
 			r.b.SetBeam(true)
 			ctx, cancel := context.WithTimeout(context.Background(), 10*time.Second)
@@ -246,7 +246,7 @@ func TestEndToEndFaults(t *testing.T) {
 // TestCablePulledLink: during a pull the link is gone and the pty master
 // closed; afterwards the link points at a new /dev/pts device.
 func TestCablePulledLink(t *testing.T) {
-	r := startRig(t, "harbour-view-room2.yaml", e2eSpeed, nil)
+	r := startRig(t, "tollemby-rise-room2.yaml", e2eSpeed, nil)
 	before := r.ports.Photometer
 	f, err := os.OpenFile(before.Link, os.O_RDWR, 0)
 	if err != nil {
@@ -280,7 +280,7 @@ func TestCablePulledLink(t *testing.T) {
 		t.Fatal(err)
 	}
 	l, err := sp.ReadLine(context.Background())
-	if err != nil || l.Text != "ORLAN LM-9 #LM9-5521" {
+	if err != nil || l.Text != "VESSORIC LM-9 #LM9-5521" {
 		t.Errorf("after re-plug: %q %v", l.Text, err)
 	}
 }
@@ -323,7 +323,7 @@ func TestScenarioFaultAtBeamOn(t *testing.T) {
 }
 
 func TestServeLifecycle(t *testing.T) {
-	s, err := LoadScenario(filepath.Join(scenarioDir, "harbour-view-room2.yaml"))
+	s, err := LoadScenario(filepath.Join(scenarioDir, "tollemby-rise-room2.yaml"))
 	if err != nil {
 		t.Fatal(err)
 	}

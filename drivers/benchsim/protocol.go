@@ -72,12 +72,12 @@ type dialect interface {
 
 func newDialect(b *Bench, role string, spec MeterSpec) dialect {
 	switch spec.Protocol {
-	case ProtocolHalden:
-		h := &halden{b: b, role: role, spec: spec}
+	case ProtocolOndrakel:
+		h := &ondrakel{b: b, role: role, spec: spec}
 		h.reset()
 		return h
-	case ProtocolOrlan:
-		o := &orlan{b: b, role: role, spec: spec}
+	case ProtocolVessoric:
+		o := &vessoric{b: b, role: role, spec: spec}
 		o.reset()
 		return o
 	default:
@@ -163,9 +163,9 @@ func toUnit(q units.Quantity, v float64, unit string) float64 {
 	return out
 }
 
-// halden is the DX-2 SCPI dialect: LF-terminated, IEEE 488.2 common
+// ondrakel is the DX-2 SCPI dialect: LF-terminated, IEEE 488.2 common
 // commands, an error queue, 9.9E37 for over range and 9.91E37 for a fault.
-type halden struct {
+type ondrakel struct {
 	b      *Bench
 	role   string
 	spec   MeterSpec
@@ -179,13 +179,13 @@ const (
 	scpiNaN      = "9.91E37"
 )
 
-func (h *halden) inEnd() byte                 { return '\n' }
-func (h *halden) outEnd() string              { return "\n" }
-func (h *halden) streamPeriod() time.Duration { return 0 }
-func (h *halden) streamLine() string          { return "" }
-func (h *halden) reset()                      { h.unit, h.errors = h.spec.Unit, nil }
+func (h *ondrakel) inEnd() byte                 { return '\n' }
+func (h *ondrakel) outEnd() string              { return "\n" }
+func (h *ondrakel) streamPeriod() time.Duration { return 0 }
+func (h *ondrakel) streamLine() string          { return "" }
+func (h *ondrakel) reset()                      { h.unit, h.errors = h.spec.Unit, nil }
 
-func (h *halden) push(e string) {
+func (h *ondrakel) push(e string) {
 	if len(h.errors) >= 10 {
 		h.errors[9] = `-350,"Queue overflow"`
 		return
@@ -218,7 +218,7 @@ var (
 	nRead = [2]string{"READ", "READ"}
 )
 
-func (h *halden) command(cmd string) []string {
+func (h *ondrakel) command(cmd string) []string {
 	var out []string
 	for _, one := range strings.Split(cmd, ";") {
 		out = append(out, h.one(strings.TrimSpace(one))...)
@@ -226,7 +226,7 @@ func (h *halden) command(cmd string) []string {
 	return out
 }
 
-func (h *halden) one(cmd string) []string {
+func (h *ondrakel) one(cmd string) []string {
 	if cmd == "" {
 		return nil
 	}
@@ -236,7 +236,7 @@ func (h *halden) one(cmd string) []string {
 	hdr = strings.TrimSuffix(hdr, "?")
 	switch {
 	case hdr == "*IDN" && query:
-		return []string{fmt.Sprintf("HALDEN,DX-2,%s,%s", h.spec.Serial, h.spec.Firmware)}
+		return []string{fmt.Sprintf("ONDRAKEL,DX-2,%s,%s", h.spec.Serial, h.spec.Firmware)}
 	case hdr == "*RST" && !query:
 		h.unit = h.spec.Unit
 		return nil
@@ -269,7 +269,7 @@ func (h *halden) one(cmd string) []string {
 			h.push(`-240,"Hardware error"`)
 			return []string{scpiNaN}
 		}
-		val := toUnit(units.AirKermaRate, d.value, haldenUnit(h.unit))
+		val := toUnit(units.AirKermaRate, d.value, ondrakelUnit(h.unit))
 		return []string{fmt.Sprintf("%.4E", val)}
 	case scpiHeader(hdr, nSyst, nErr) && query:
 		if len(h.errors) == 0 {
@@ -283,7 +283,7 @@ func (h *halden) one(cmd string) []string {
 	return nil
 }
 
-func haldenUnit(u string) string {
+func ondrakelUnit(u string) string {
 	switch u {
 	case "MR/S":
 		return "mR/s"
@@ -293,32 +293,32 @@ func haldenUnit(u string) string {
 	return "uGy/s"
 }
 
-// orlan is the LM-9 streaming photometer: LF-terminated, "STREAM n"
+// vessoric is the LM-9 streaming photometer: LF-terminated, "STREAM n"
 // starts n lines a second, "STOP" stops.
-type orlan struct {
+type vessoric struct {
 	b      *Bench
 	role   string
 	spec   MeterSpec
 	rateHz int
 }
 
-func (o *orlan) inEnd() byte    { return '\n' }
-func (o *orlan) outEnd() string { return "\n" }
-func (o *orlan) reset()         { o.rateHz = 0 }
-func (o *orlan) streamPeriod() time.Duration {
+func (o *vessoric) inEnd() byte    { return '\n' }
+func (o *vessoric) outEnd() string { return "\n" }
+func (o *vessoric) reset()         { o.rateHz = 0 }
+func (o *vessoric) streamPeriod() time.Duration {
 	if o.rateHz == 0 {
 		return 0
 	}
 	return time.Second / time.Duration(o.rateHz)
 }
 
-func (o *orlan) command(cmd string) []string {
+func (o *vessoric) command(cmd string) []string {
 	c := strings.ToUpper(strings.TrimSpace(cmd))
 	switch {
 	case c == "":
 		return nil
 	case c == "IDN":
-		return []string{"ORLAN LM-9 #" + o.spec.Serial}
+		return []string{"VESSORIC LM-9 #" + o.spec.Serial}
 	case c == "STOP":
 		o.rateHz = 0
 		return nil
@@ -333,17 +333,17 @@ func (o *orlan) command(cmd string) []string {
 	return []string{"ERR"}
 }
 
-func (o *orlan) streamLine() string {
+func (o *vessoric) streamLine() string {
 	d := o.b.display(o.role)
 	unit := o.spec.Unit
 	val := toUnit(units.Luminance, d.value, unit)
 	if d.wrongUnit != "" {
 		unit = d.wrongUnit
 	}
-	return "L " + decimalComma(val) + " " + unit + " " + orlanStatus(d.status)
+	return "L " + decimalComma(val) + " " + unit + " " + vessoricStatus(d.status)
 }
 
-func orlanStatus(s drivers.Status) string {
+func vessoricStatus(s drivers.Status) string {
 	switch s {
 	case drivers.StatusOverRange:
 		return "S1"

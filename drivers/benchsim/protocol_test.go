@@ -46,7 +46,7 @@ var (
 )
 
 func TestVeltraneCommands(t *testing.T) {
-	b, clk := manualBench(t, "harbour-view-room2.yaml", nil)
+	b, clk := manualBench(t, "tollemby-rise-room2.yaml", nil)
 	d := dialectOf(b, RoleDosimeter)
 	for _, tc := range []struct{ cmd, want string }{
 		{"ID?", "VELTRANE KR-40 SN=KR40-1187 FW=2.3"},
@@ -83,14 +83,14 @@ func TestVeltraneCommands(t *testing.T) {
 	near(t, "mR/min reading", v, 60*0.45*1.03*(1-0.0079)/kTP/8.764, 0.03)
 }
 
-func TestHaldenCommands(t *testing.T) {
-	b, clk := manualBench(t, "northgate-pulsed-scpi.yaml", nil)
+func TestOndrakelCommands(t *testing.T) {
+	b, clk := manualBench(t, "pelverton-pulsed-scpi.yaml", nil)
 	d := dialectOf(b, RoleDosimeter)
 	for _, tc := range []struct {
 		cmd  string
 		want []string
 	}{
-		{"*IDN?", []string{"HALDEN,DX-2,DX2-30417,1.08"}},
+		{"*IDN?", []string{"ONDRAKEL,DX-2,DX2-30417,1.08"}},
 		{"*RST", nil},
 		{"*CLS", nil},
 		{"CONF:KRAT", nil},
@@ -129,11 +129,11 @@ func TestHaldenCommands(t *testing.T) {
 	}
 }
 
-func TestOrlanCommands(t *testing.T) {
-	b, clk := manualBench(t, "harbour-view-room2.yaml", nil)
+func TestVessoricCommands(t *testing.T) {
+	b, clk := manualBench(t, "tollemby-rise-room2.yaml", nil)
 	d := dialectOf(b, RolePhotometer)
 	for _, tc := range []struct{ cmd, want string }{
-		{"IDN", "ORLAN LM-9 #LM9-5521"},
+		{"IDN", "VESSORIC LM-9 #LM9-5521"},
 		{"STREAM 0", "ERR"},
 		{"STREAM 51", "ERR"},
 		{"STREAM ten", "ERR"},
@@ -172,7 +172,7 @@ func TestDecimalComma(t *testing.T) {
 // TestFootLamberts: 1 fL = 3.426 259 cd/m² (NIST SP 811, Appendix B.9):
 // the aged tube's photometer prints fL.
 func TestFootLamberts(t *testing.T) {
-	b, clk := manualBench(t, "fenwick-aged-tube.yaml", func(s *Scenario) {
+	b, clk := manualBench(t, "wendlemoor-aged-tube.yaml", func(s *Scenario) {
 		s.Photometer.Noise, s.Intensifier.QuantumNoise.Relative = 0, 0
 	})
 	d := dialectOf(b, RolePhotometer)
@@ -192,7 +192,7 @@ func TestFootLamberts(t *testing.T) {
 // the same clock times, the meters print the same lines.
 func TestLinesDeterministic(t *testing.T) {
 	run := func(seed int64) []string {
-		b, clk := manualBench(t, "northgate-pulsed-scpi.yaml", func(s *Scenario) { s.Seed = seed })
+		b, clk := manualBench(t, "pelverton-pulsed-scpi.yaml", func(s *Scenario) { s.Seed = seed })
 		dose, lum := dialectOf(b, RoleDosimeter), dialectOf(b, RolePhotometer)
 		lum.command("STREAM 20")
 		var out []string
@@ -234,8 +234,8 @@ func FuzzCommands(f *testing.F) {
 	for _, c := range []string{"ID?", "RD?", "UNIT MR/S", "*IDN?", "READ?;SYST:ERR?", ":UNIT:KRAT MR/MIN", "STREAM 50", "STOP", "IDN", "\x00\xff"} {
 		f.Add(c)
 	}
-	b, clk := manualBench(f, "harbour-view-room2.yaml", nil)
-	h, _ := manualBench(f, "northgate-pulsed-scpi.yaml", nil)
+	b, clk := manualBench(f, "tollemby-rise-room2.yaml", nil)
+	h, _ := manualBench(f, "pelverton-pulsed-scpi.yaml", nil)
 	ds := []dialect{dialectOf(b, RoleDosimeter), dialectOf(b, RolePhotometer), dialectOf(h, RoleDosimeter)}
 	f.Fuzz(func(t *testing.T, cmd string) {
 		clk.Advance(10 * time.Millisecond)

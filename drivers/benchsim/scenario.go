@@ -118,7 +118,7 @@ type QuantumNoiseSpec struct {
 
 // MeterSpec is one simulated meter.
 type MeterSpec struct {
-	// Protocol: "veltrane-kr40" or "halden-dx2" (dosimeter), "orlan-lm9"
+	// Protocol: "veltrane-kr40" or "ondrakel-dx2" (dosimeter), "vessoric-lm9"
 	// (photometer). The wire protocols are in SCENARIO.md.
 	Protocol string `yaml:"protocol"`
 	Serial   string `yaml:"serial"`
@@ -215,8 +215,8 @@ type FaultSpec struct {
 // Protocol names.
 const (
 	ProtocolVeltrane = "veltrane-kr40"
-	ProtocolHalden   = "halden-dx2"
-	ProtocolOrlan    = "orlan-lm9"
+	ProtocolOndrakel   = "ondrakel-dx2"
+	ProtocolVessoric    = "vessoric-lm9"
 )
 
 // Meter roles, as in a bench file.
@@ -375,8 +375,8 @@ func lineOf(data []byte, path string) int {
 // name prefix when a scenario leaves them out (all invented).
 var meterDefaults = map[string]struct{ serial, firmware, link string }{
 	ProtocolVeltrane: {"KR40-1187", "2.3", "veltrane"},
-	ProtocolHalden:   {"DX2-30417", "1.08", "halden"},
-	ProtocolOrlan:    {"LM9-5521", "", "orlan"},
+	ProtocolOndrakel:   {"DX2-30417", "1.08", "ondrakel"},
+	ProtocolVessoric:    {"LM9-5521", "", "vessoric"},
 }
 
 func (s *Scenario) check() error {
@@ -531,8 +531,8 @@ func (s *Scenario) check() error {
 
 var printedUnits = map[string][]string{
 	ProtocolVeltrane: {"uGy/s", "mR/s", "mR/min"},
-	ProtocolHalden:   {"UGY/S", "MR/S", "MR/MIN"},
-	ProtocolOrlan:    {"cd/m2", "fL"},
+	ProtocolOndrakel:   {"UGY/S", "MR/S", "MR/MIN"},
+	ProtocolVessoric:    {"cd/m2", "fL"},
 }
 
 func (m *MeterSpec) check(p, role string) error {
@@ -541,8 +541,8 @@ func (m *MeterSpec) check(p, role string) error {
 		if m.Protocol == "" {
 			m.Protocol = ProtocolVeltrane
 		}
-		if m.Protocol != ProtocolVeltrane && m.Protocol != ProtocolHalden {
-			return bad(p+".protocol", "a dosimeter speaks %q or %q, not %q", ProtocolVeltrane, ProtocolHalden, m.Protocol)
+		if m.Protocol != ProtocolVeltrane && m.Protocol != ProtocolOndrakel {
+			return bad(p+".protocol", "a dosimeter speaks %q or %q, not %q", ProtocolVeltrane, ProtocolOndrakel, m.Protocol)
 		}
 		if m.Range == (RangeSpec{}) {
 			m.Range = RangeSpec{Min: 0.005, Max: 500}
@@ -574,10 +574,10 @@ func (m *MeterSpec) check(p, role string) error {
 		}
 	case RolePhotometer:
 		if m.Protocol == "" {
-			m.Protocol = ProtocolOrlan
+			m.Protocol = ProtocolVessoric
 		}
-		if m.Protocol != ProtocolOrlan {
-			return bad(p+".protocol", "a photometer speaks %q, not %q", ProtocolOrlan, m.Protocol)
+		if m.Protocol != ProtocolVessoric {
+			return bad(p+".protocol", "a photometer speaks %q, not %q", ProtocolVessoric, m.Protocol)
 		}
 		if m.Range == (RangeSpec{}) {
 			m.Range = RangeSpec{Min: 0.01, Max: 9999}

@@ -39,13 +39,13 @@ func TestExampleScenariosLoad(t *testing.T) {
 			t.Errorf("no example scenario injects %s", k)
 		}
 	}
-	if !protocols[ProtocolHalden] || !protocols[ProtocolVeltrane] {
+	if !protocols[ProtocolOndrakel] || !protocols[ProtocolVeltrane] {
 		t.Errorf("examples cover dosimeter protocols %v, want both", protocols)
 	}
 }
 
 func TestDefaultScenario(t *testing.T) {
-	s, err := LoadScenario(filepath.Join(scenarioDir, "harbour-view-room2.yaml"))
+	s, err := LoadScenario(filepath.Join(scenarioDir, "tollemby-rise-room2.yaml"))
 	if err != nil {
 		t.Fatal(err)
 	}

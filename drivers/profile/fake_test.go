@@ -106,7 +106,7 @@ func (m *lm9) handle(d *linetest.Device, cmd string) {
 	defer m.mu.Unlock()
 	switch {
 	case cmd == "IDN":
-		d.Send("ORLAN LM-9 #LM9-5521\n")
+		d.Send("VESSORIC LM-9 #LM9-5521\n")
 	case strings.HasPrefix(cmd, "STREAM "):
 		var n int
 		if _, err := fmt.Sscanf(cmd, "STREAM %d", &n); err != nil || n < 1 || n > 50 {
@@ -154,7 +154,7 @@ func (m *lm9) set(f func(m *lm9)) {
 
 func newLM9(t *testing.T) (*lm9, *linetest.Device) {
 	m := &lm9{line: "L 123,45 cd/m2 S0"}
-	m.dev = linetest.New(t, "orlan-LM9-5521", '\n', m.handle)
+	m.dev = linetest.New(t, "vessoric-LM9-5521", '\n', m.handle)
 	m.run(t)
 	return m, m.dev
 }

@@ -20,7 +20,7 @@ func FuzzParseLine(f *testing.F) {
 		f.Add(s)
 	}
 	kr := load(f, "veltrane-kr40.yaml")
-	lm := load(f, "orlan-lm9.yaml")
+	lm := load(f, "vessoric-lm9.yaml")
 	f.Fuzz(func(t *testing.T, line string) {
 		for _, p := range []*profile.Profile{kr, lm} {
 			v, u, st, err := p.ParseLine(line)
@@ -71,7 +71,7 @@ func FuzzNumbers(f *testing.F) {
 }
 
 func FuzzParse(f *testing.F) {
-	for _, name := range []string{"veltrane-kr40.yaml", "orlan-lm9.yaml"} {
+	for _, name := range []string{"veltrane-kr40.yaml", "vessoric-lm9.yaml"} {
 		b, err := os.ReadFile("../../testdata/profiles/" + name)
 		if err != nil {
 			f.Fatal(err)
@@ -102,7 +102,7 @@ func FuzzParse(f *testing.F) {
 // parser cannot avoid, so the difference is the cost of number, status
 // and unit handling.
 func BenchmarkParseLine(b *testing.B) {
-	lm := load(b, "orlan-lm9.yaml")
+	lm := load(b, "vessoric-lm9.yaml")
 	const line = "L 123,45 cd/m2 S0"
 	b.Run("pattern-only", func(b *testing.B) {
 		b.ReportAllocs()

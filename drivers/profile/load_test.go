@@ -117,7 +117,7 @@ func TestShippedProfiles(t *testing.T) {
 	if l := kr.Line; l.Baud != 9600 || l.DataBits != 8 || l.Parity != "none" || l.StopBits != 1 || l.SendEnd != "cr" || l.ReceiveEnd != "crlf" {
 		t.Errorf("KR-40 line settings %+v", l)
 	}
-	lm := load(t, "orlan-lm9.yaml")
+	lm := load(t, "vessoric-lm9.yaml")
 	// meters.md: 19200 8N1, LF both ways, STREAM 10 → ACK, 10 readings/s.
 	if l := lm.Line; l.Baud != 19200 || l.SendEnd != "lf" || l.ReceiveEnd != "lf" || lm.Start.Send != "STREAM 10" || lm.Start.Expect != "ACK" || lm.Period.Milliseconds() != 100 {
 		t.Errorf("LM-9 settings %+v", lm)
@@ -126,7 +126,7 @@ func TestShippedProfiles(t *testing.T) {
 
 func TestParseLine(t *testing.T) {
 	kr := load(t, "veltrane-kr40.yaml")
-	lm := load(t, "orlan-lm9.yaml")
+	lm := load(t, "vessoric-lm9.yaml")
 	tests := []struct {
 		p      *profile.Profile
 		line   string

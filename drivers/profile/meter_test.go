@@ -180,7 +180,7 @@ func TestPolledPulledCable(t *testing.T) {
 
 func TestStreaming(t *testing.T) {
 	f, d := newLM9(t)
-	m := openMeter(t, load(t, "orlan-lm9.yaml"), d.Link(), "photometer")
+	m := openMeter(t, load(t, "vessoric-lm9.yaml"), d.Link(), "photometer")
 	if c := d.Commands(); len(c) != 1 || c[0] != "STREAM 10" {
 		t.Fatalf("start sent %q, want [STREAM 10]", c)
 	}
@@ -188,8 +188,8 @@ func TestStreaming(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if id.Maker != "ORLAN" || id.Model != "LM-9" || id.Serial != "LM9-5521" {
-		t.Errorf("identity %+v (meters.md: ORLAN LM-9 #LM9-5521)", id)
+	if id.Maker != "VESSORIC" || id.Model != "LM-9" || id.Serial != "LM9-5521" {
+		t.Errorf("identity %+v (meters.md: VESSORIC LM-9 #LM9-5521)", id)
 	}
 	for _, tc := range []struct {
 		line string
@@ -231,7 +231,7 @@ func TestStreamingFaults(t *testing.T) {
 		{"\x7f\x00L 12,5", drivers.ErrGarbled},
 	} {
 		f, d := newLM9(t)
-		m := openMeter(t, load(t, "orlan-lm9.yaml"), d.Link(), "photometer")
+		m := openMeter(t, load(t, "vessoric-lm9.yaml"), d.Link(), "photometer")
 		f.set(func(f *lm9) { f.line = tc.line })
 		var err error
 		for range 20 {
@@ -247,7 +247,7 @@ func TestStreamingFaults(t *testing.T) {
 
 func TestStreamingWatchdogAndPull(t *testing.T) {
 	f, d := newLM9(t)
-	m := openMeter(t, load(t, "orlan-lm9.yaml"), d.Link(), "photometer")
+	m := openMeter(t, load(t, "vessoric-lm9.yaml"), d.Link(), "photometer")
 	if _, err := m.Read(ctx(t)); err != nil {
 		t.Fatal(err)
 	}

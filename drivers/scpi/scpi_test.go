@@ -40,7 +40,7 @@ func (f *dx2) handle(d *linetest.Device, cmd string) {
 	}
 	switch cmd {
 	case "*IDN?":
-		d.Send("HALDEN,DX-2,DX2-30417,1.08\n")
+		d.Send("ONDRAKEL,DX-2,DX2-30417,1.08\n")
 	case "*RST", "*CLS", "CONF:KRAT":
 	case "UNIT:KRAT?":
 		d.Send(f.unit + "\n")
@@ -60,7 +60,7 @@ func (f *dx2) handle(d *linetest.Device, cmd string) {
 
 func newDX2(t *testing.T) (*dx2, *linetest.Device) {
 	f := &dx2{unit: "UGY/S", read: "1.2340E-01"}
-	return f, linetest.New(t, "halden-DX2-30417", '\n', f.handle)
+	return f, linetest.New(t, "ondrakel-DX2-30417", '\n', f.handle)
 }
 
 func ctx(t *testing.T) context.Context {
@@ -95,8 +95,8 @@ func TestIdentifyAndInit(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	// meters.md: *IDN? → HALDEN,DX-2,DX2-30417,1.08 (IEEE 488.2 four fields).
-	if id.Maker != "HALDEN" || id.Model != "DX-2" || id.Serial != "DX2-30417" || id.Firmware != "1.08" {
+	// meters.md: *IDN? → ONDRAKEL,DX-2,DX2-30417,1.08 (IEEE 488.2 four fields).
+	if id.Maker != "ONDRAKEL" || id.Model != "DX-2" || id.Serial != "DX2-30417" || id.Firmware != "1.08" {
 		t.Errorf("identity %+v", id)
 	}
 	if m.Unit() != "UGY/S" {
@@ -129,7 +129,7 @@ func TestRead(t *testing.T) {
 		{name: "not a number", unit: "UGY/S", read: "9.91E37", queue: []string{`-230,"Data corrupt or stale"`}, st: drivers.StatusFault, want: 9.91e37, rawHas: `-230,"Data corrupt or stale"`},
 		{name: "good number, queued error", unit: "UGY/S", read: "1.0E-01", queue: []string{`-222,"Data out of range"`, `-113,"Undefined header"`}, st: drivers.StatusFault, want: 0.1, rawHas: `-113,"Undefined header"`},
 		{name: "garbled", unit: "UGY/S", read: "1.2\x00E-01", wantErr: drivers.ErrGarbled},
-		{name: "text reply", unit: "UGY/S", read: "HALDEN", wantErr: drivers.ErrGarbled},
+		{name: "text reply", unit: "UGY/S", read: "ONDRAKEL", wantErr: drivers.ErrGarbled},
 		{name: "bad queue reply", unit: "UGY/S", read: "1.0", queue: []string{"oops"}, wantErr: drivers.ErrGarbled},
 	}
 	for _, tc := range tests {
@@ -275,10 +275,10 @@ func TestParseNumber(t *testing.T) {
 }
 
 func TestParseIDNAndError(t *testing.T) {
-	if _, err := scpi.ParseIDN("HALDEN,DX-2,DX2-30417"); !errors.Is(err, drivers.ErrGarbled) {
+	if _, err := scpi.ParseIDN("ONDRAKEL,DX-2,DX2-30417"); !errors.Is(err, drivers.ErrGarbled) {
 		t.Errorf("three fields: %v", err)
 	}
-	if id, err := scpi.ParseIDN("HALDEN, DX-2 ,0,0"); err != nil || id.Model != "DX-2" || id.Serial != "0" {
+	if id, err := scpi.ParseIDN("ONDRAKEL, DX-2 ,0,0"); err != nil || id.Model != "DX-2" || id.Serial != "0" {
 		t.Errorf("spaces and zeros: %+v %v", id, err)
 	}
 	// SCPI 1999.0 Vol. 2, 21.8: error/event queue entries.
@@ -321,7 +321,7 @@ func FuzzParseNumber(f *testing.F) {
 }
 
 func FuzzParseReplies(f *testing.F) {
-	for _, s := range []string{"HALDEN,DX-2,DX2-30417,1.08", `0,"No error"`, `-222,"Data out of range"`, ",,,", `1,"`} {
+	for _, s := range []string{"ONDRAKEL,DX-2,DX2-30417,1.08", `0,"No error"`, `-222,"Data out of range"`, ",,,", `1,"`} {
 		f.Add(s)
 	}
 	f.Fuzz(func(t *testing.T, s string) {

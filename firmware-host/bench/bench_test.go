@@ -9,7 +9,7 @@ import (
 )
 
 func TestLoadExamples(t *testing.T) {
-	for _, f := range []string{"harbour-view-room2.yaml", "demo-sim.yaml"} {
+	for _, f := range []string{"tollemby-rise-room2.yaml", "demo-sim.yaml"} {
 		b, err := Load("../../testdata/bench/" + f)
 		if err != nil {
 			t.Fatalf("%s: %v", f, err)
@@ -24,7 +24,7 @@ func TestLoadExamples(t *testing.T) {
 }
 
 func TestRoom2Settings(t *testing.T) {
-	b, err := Load("../../testdata/bench/harbour-view-room2.yaml")
+	b, err := Load("../../testdata/bench/tollemby-rise-room2.yaml")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -105,7 +105,7 @@ func FuzzParse(f *testing.F) {
 // bench and flattens into engine steps with a safety checklist before the
 // first exposure.
 func TestBuiltinAcceptanceOnBench(t *testing.T) {
-	b, err := Load("../../testdata/bench/harbour-view-room2.yaml")
+	b, err := Load("../../testdata/bench/tollemby-rise-room2.yaml")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -131,7 +131,7 @@ func TestBuiltinAcceptanceOnBench(t *testing.T) {
 }
 
 func TestConfigFromBench(t *testing.T) {
-	b, err := Load("../../testdata/bench/harbour-view-room2.yaml")
+	b, err := Load("../../testdata/bench/tollemby-rise-room2.yaml")
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -18,7 +18,7 @@ func TestOpenMetersOnSimulator(t *testing.T) {
 	if testing.Short() {
 		t.Skip("pseudo-terminals")
 	}
-	scn, err := benchsim.LoadScenario("../../testdata/scenarios/harbour-view-room2.yaml")
+	scn, err := benchsim.LoadScenario("../../testdata/scenarios/tollemby-rise-room2.yaml")
 	if err != nil {
 		t.Fatal(err)
 	}

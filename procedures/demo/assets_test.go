@@ -16,7 +16,7 @@ func TestAssetsMatchTestdata(t *testing.T) {
 		"assets/profiles":               "../../testdata/profiles",
 		"assets/certificates":           "../../testdata/certificates",
 		"assets/scenarios":              "../../testdata/scenarios",
-		"assets/baselines/HV-2291.json": "../../testdata/bench/harbour-view-room2-2025-results.json",
+		"assets/baselines/HV-2291.json": "../../testdata/bench/tollemby-rise-room2-2025-results.json",
 	}
 	n := 0
 	err := fs.WalkDir(assets, "assets", func(p string, d fs.DirEntry, err error) error {

@@ -34,7 +34,7 @@ import (
 var assets embed.FS
 
 // DefaultScenario names the embedded scenario used when none is given.
-const DefaultScenario = "harbour-view-room2.yaml"
+const DefaultScenario = "tollemby-rise-room2.yaml"
 
 // Options configure a demo run.
 type Options struct {
@@ -325,7 +325,7 @@ func writeBench(dir string, scn *benchsim.Scenario, day time.Time) (string, erro
 	}
 	sb.WriteString("meters:\n")
 	switch scn.Dosimeter.Protocol {
-	case benchsim.ProtocolHalden:
+	case benchsim.ProtocolOndrakel:
 		sb.WriteString("  - name: dosimeter\n    role: dosimeter\n    scpi: {baud: 19200, init: [\"*RST\", \"*CLS\", \"CONF:KRAT\"], query: \"READ?\", quantity: air_kerma_rate}\n")
 	default:
 		sb.WriteString("  - name: dosimeter\n    role: dosimeter\n    profile: demo-files/profiles/veltrane-kr40.yaml\n")
@@ -333,7 +333,7 @@ func writeBench(dir string, scn *benchsim.Scenario, day time.Time) (string, erro
 	if c := certFor(scn.Dosimeter.Serial); c != "" {
 		fmt.Fprintf(&sb, "    certificate: %s\n", q(c))
 	}
-	sb.WriteString("  - name: photometer\n    role: photometer\n    profile: demo-files/profiles/orlan-lm9.yaml\n")
+	sb.WriteString("  - name: photometer\n    role: photometer\n    profile: demo-files/profiles/vessoric-lm9.yaml\n")
 	if c := certFor(scn.Photometer.Serial); c != "" {
 		fmt.Fprintf(&sb, "    certificate: %s\n", q(c))
 	}

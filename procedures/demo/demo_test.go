@@ -59,7 +59,7 @@ func TestDemoRecoversTruth(t *testing.T) {
 		file  string // "" = the built-in default
 		modes int
 		fails []string // quantities whose verdict must be fail
-		// kerma: check the input kerma rate too. The Fenwick tube's
+		// kerma: check the input kerma rate too. The Wendlemoor tube's
 		// brightness control overshoots by 60 % and settles with a 1.2 s
 		// time constant, longer than the engine's 1 s settling window: the
 		// residual of that slow approach (about 3 %) is a known limit of the
@@ -67,8 +67,8 @@ func TestDemoRecoversTruth(t *testing.T) {
 		kerma bool
 	}{
 		{"", 3, nil, true},
-		{"../../testdata/scenarios/fenwick-aged-tube.yaml", 1, []string{"contrast_ratio", "conversion_factor"}, false},
-		{"../../testdata/scenarios/northgate-pulsed-scpi.yaml", 0, nil, true},
+		{"../../testdata/scenarios/wendlemoor-aged-tube.yaml", 1, []string{"contrast_ratio", "conversion_factor"}, false},
+		{"../../testdata/scenarios/pelverton-pulsed-scpi.yaml", 0, nil, true},
 	}
 	within, total := 0, 0
 	defer func() {

@@ -69,7 +69,7 @@ func operator(model *benchsim.Model, clk *clock.Manual) (scripted.Responder, fun
 // package, runs to the end on the simulator's physics, and its results
 // agree with the simulator's truth (the oracle).
 func TestAcceptanceOnSimulator(t *testing.T) {
-	scn, err := benchsim.LoadScenario("../../testdata/scenarios/harbour-view-room2.yaml")
+	scn, err := benchsim.LoadScenario("../../testdata/scenarios/tollemby-rise-room2.yaml")
 	if err != nil {
 		t.Fatal(err)
 	}

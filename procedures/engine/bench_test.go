@@ -86,7 +86,7 @@ func settleOracle(scn *benchsim.Scenario, tol float64) time.Duration {
 // read at the meters' rate. u_rel of one L/K pair combines both meters'
 // relative noise and quantum noise (relative variances add, 5.1.6).
 func BenchmarkBeamOnPerReading(b *testing.B) {
-	scn, err := benchsim.LoadScenario("../../testdata/scenarios/harbour-view-room2.yaml")
+	scn, err := benchsim.LoadScenario("../../testdata/scenarios/tollemby-rise-room2.yaml")
 	if err != nil {
 		b.Fatal(err)
 	}

@@ -252,7 +252,7 @@ func newRig(steps []Step) *rig {
 	// 10 Hz, 0.5 s response (the demo meters' figures).
 	r.dos = newMeter("veltrane", units.AirKermaRate, ph, 100*time.Millisecond, 300*time.Millisecond, 0.02, 1)
 	r.dos.floor = 0.0005
-	r.phot = newMeter("orlan", units.Luminance, ph, 100*time.Millisecond, 500*time.Millisecond, 0.01, 2)
+	r.phot = newMeter("vessoric", units.Luminance, ph, 100*time.Millisecond, 500*time.Millisecond, 0.01, 2)
 	r.jr = newMemJournal(clk)
 	r.pan = scripted.New(clk, scripted.WithThinkTime(500*time.Millisecond), scripted.WithResponder(func(p panel.Prompt) panel.Response {
 		if r.reply != nil {
@@ -273,7 +273,7 @@ func newRig(steps []Step) *rig {
 		Procedure: Procedure{Name: "test", Title: "test sequence", Hash: "abc", Steps: steps},
 		Meters:    map[string]drivers.Meter{Dosimeter: r.dos, Photometer: r.phot},
 		Panel:     r.pan, Journal: r.jr, Clock: clk,
-		Session: entry.Session{Site: "Harbour View Clinic", Room: "room 2", IntensifierSerial: "HV-2291"},
+		Session: entry.Session{Site: "Tollemby Rise Clinic", Room: "room 2", IntensifierSerial: "HV-2291"},
 		Values:  map[string]float64{"temperature": 22, "pressure": 101.3},
 		Limits:  DefaultLimits(),
 		BootID:  "boot-1", ReadInTurn: true,

@@ -15,7 +15,7 @@ func TestResultsRoundTrip(t *testing.T) {
 		{Procedure: "contrast-ratio", Quantity: "contrast_ratio", Value: 24, Unit: "1", ExpUnc: 0.3, K: 2, Verdict: "pass", Calibrated: true},
 	}}
 	var buf bytes.Buffer
-	if err := WriteResults(&buf, NewResultsFile(sum, entry.Session{Site: "Harbour View Clinic"})); err != nil {
+	if err := WriteResults(&buf, NewResultsFile(sum, entry.Session{Site: "Tollemby Rise Clinic"})); err != nil {
 		t.Fatal(err)
 	}
 	rf, err := ParseResults("x.json", buf.Bytes())

@@ -13,9 +13,9 @@ import (
 // Session returns the n-th invented session header (demo data only).
 func Session(n int) entry.Session {
 	return entry.Session{
-		Site: "Harbourview Clinic", Room: fmt.Sprintf("Fluoro %d", 1+n%3),
+		Site: "Tollemby Rise Clinic", Room: fmt.Sprintf("Fluoro %d", 1+n%3),
 		IntensifierModel: "Lumora XI-23", IntensifierSerial: fmt.Sprintf("LX23-%04d", 100+n%7),
-		Engineer: "R. Okafor", Procedure: "acceptance-rqa5", ProcedureHash: "ab12", BenchHash: "cd34",
+		Engineer: "Field service engineer", Procedure: "acceptance-rqa5", ProcedureHash: "ab12", BenchHash: "cd34",
 	}
 }
 

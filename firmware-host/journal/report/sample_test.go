@@ -9,7 +9,7 @@ import (
 	"kermalux/firmware-host/journal/entry"
 )
 
-// The session built here is invented for tests and demos: Harbour View
+// The session built here is invented for tests and demos: Tollemby Rise
 // Clinic, room 2, intensifier HV-2291, meters and laboratories that do not
 // exist. Its numbers are plausible, not measured.
 
@@ -42,10 +42,10 @@ func sampleCerts() []entry.CertRef { return sampleCertsShifted(0) }
 // by d (for sessions of other years).
 func sampleCertsShifted(d time.Duration) []entry.CertRef {
 	cs := []entry.CertRef{
-		{ID: "NCL-D-24117", Meter: "dosimeter", Model: "Veltrane KR-40", Serial: "KR40-1187", Laboratory: "Northgate Calibration Laboratory",
+		{ID: "NCL-D-24117", Meter: "dosimeter", Model: "Veltrane KR-40", Serial: "KR40-1187", Laboratory: "Pelverton Calibration Laboratory",
 			Calibrated: time.Date(2026, 3, 10, 0, 0, 0, 0, time.UTC), Due: time.Date(2027, 3, 10, 0, 0, 0, 0, time.UTC), Valid: true,
 			SHA256: "5d0c8a41e7b29f36c1a4d8e0f2b7a9c3d6e1f4a7b0c3d6e9f2a5b8c1d4e7f0a3"},
-		{ID: "NCL-P-24190", Meter: "photometer", Model: "Orlan LM-9", Serial: "LM9-5521", Laboratory: "Northgate Calibration Laboratory",
+		{ID: "NCL-P-24190", Meter: "photometer", Model: "Vessoric LM-9", Serial: "LM9-5521", Laboratory: "Pelverton Calibration Laboratory",
 			Calibrated: time.Date(2025, 12, 1, 0, 0, 0, 0, time.UTC), Due: time.Date(2026, 12, 1, 0, 0, 0, 0, time.UTC), Valid: true,
 			SHA256: "a1f3c5e7092b4d6f8a0c2e4f6b8d0a2c4e6f8b0d2a4c6e8f0b2d4a6c8e0f2b4d"},
 	}
@@ -94,9 +94,9 @@ func sampleSessionAt(start time.Time, id string, gScale float64, baselines map[s
 		w.add(entry.KindStep, entry.Step{Index: step, Of: of, ID: id, Kind: kind, FieldMode: mode, State: entry.StepDone}, time.Second)
 	}
 	w.add(entry.KindSession, entry.Session{
-		ID: w.session, Site: "Harbour View Clinic", Room: "Room 2",
+		ID: w.session, Site: "Tollemby Rise Clinic", Room: "Room 2",
 		IntensifierModel: "Meridel IX-32 (32/25/17 cm)", IntensifierSerial: "HV-2291",
-		Engineer: "Dana Ilvesmaa", Procedure: "acceptance",
+		Engineer: "Service engineer (demo)", Procedure: "acceptance",
 		ProcedureHash:   "9e4b2c7d1a0f3e5b8c6d4a2f0e1b3c5d7f9a8b6c4d2e0f1a3b5c7d9e8f6a4b2c",
 		BenchHash:       "4c2a0e8f6d4b2a0c8e6f4d2b0a8c6e4f2d0b8a6c4e2f0d8b6a4c2e0f8d6b4a2c",
 		SoftwareVersion: "0.1.0-dev",
@@ -306,7 +306,7 @@ func sampleHistory(n int, g0, slope float64) []HistoryPoint {
 		if v < 0.8*g0 {
 			verdict = "fail"
 		}
-		hs = append(hs, HistoryPoint{Session: fmt.Sprintf("hv2291-%d", d.Year()), Date: d, Site: "Harbour View Clinic", Room: "Room 2",
+		hs = append(hs, HistoryPoint{Session: fmt.Sprintf("hv2291-%d", d.Year()), Date: d, Site: "Tollemby Rise Clinic", Room: "Room 2",
 			Result: entry.Result{Quantity: "conversion_factor", FieldMode: "32cm", Value: v, Unit: "cd·m⁻²/(µGy·s⁻¹)",
 				ExpUnc: 0.035 * v, K: 2, Verdict: verdict, Calibrated: true}})
 	}

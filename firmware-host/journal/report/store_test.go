@@ -104,7 +104,7 @@ func smallSession(k int, start time.Time) []entry.Envelope {
 	id := fmt.Sprintf("bx%04d-%d", k, start.Year())
 	w := &sampleWriter{wall: start, session: id}
 	w.add(entry.KindSession, entry.Session{ID: id, Site: fmt.Sprintf("Invented Clinic %d", k%37), Room: fmt.Sprintf("Room %d", 1+k%4),
-		IntensifierModel: "Meridel IX-23", IntensifierSerial: fmt.Sprintf("BX-%04d", k), Engineer: "Dana Ilvesmaa", Procedure: "yearly",
+		IntensifierModel: "Meridel IX-23", IntensifierSerial: fmt.Sprintf("BX-%04d", k), Engineer: "Service engineer (demo)", Procedure: "yearly",
 		Started: start}, 0)
 	for i, m := range []string{"32cm", "25cm", "17cm"} {
 		g := 150 / float64(i+1)

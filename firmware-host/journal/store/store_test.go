@@ -101,7 +101,7 @@ func TestSessionQueries(t *testing.T) {
 		s := journaltest.Session(i) // rooms cycle 1..3, serials LX23-0100+i
 		s.Started = time.Date(2020+i, 3, 1, 9, 0, 0, 0, time.UTC)
 		if i%2 == 1 {
-			s.Site = "Moorside Hospital"
+			s.Site = "Ostrelby Infirmary"
 		}
 		id, _ := j.Begin(ctx, s)
 		journaltest.WriteSession(ctx, j, id, 1, true, nil)
@@ -117,8 +117,8 @@ func TestSessionQueries(t *testing.T) {
 		want int
 	}{
 		{"all", Query{}, 6},
-		{"site", Query{Site: "Moorside Hospital"}, 3},
-		{"site and room", Query{Site: "Harbourview Clinic", Room: "Fluoro 1"}, 1},
+		{"site", Query{Site: "Ostrelby Infirmary"}, 3},
+		{"site and room", Query{Site: "Tollemby Rise Clinic", Room: "Fluoro 1"}, 1},
 		{"serial", Query{Serial: "LX23-0102"}, 1},
 		{"from", Query{From: time.Date(2023, 1, 1, 0, 0, 0, 0, time.UTC)}, 3},
 		{"from to", Query{From: time.Date(2021, 3, 1, 9, 0, 0, 0, time.UTC), To: time.Date(2023, 3, 1, 9, 0, 0, 0, time.UTC)}, 2},

@@ -120,7 +120,7 @@ func TestPushAndQuery(t *testing.T) {
 		t.Fatalf("sessions by serial: %+v %v", infos, err)
 	}
 	hist, err := st.History(ctx, "LX23-0101")
-	if err != nil || len(hist) != 2 || hist[0].Result.Quantity != "conversion_factor" || hist[0].Site != "Harbourview Clinic" {
+	if err != nil || len(hist) != 2 || hist[0].Result.Quantity != "conversion_factor" || hist[0].Site != "Tollemby Rise Clinic" {
 		t.Errorf("history: %+v %v", hist, err)
 	}
 	env, err := st.Envelopes(ctx, infos[0].ID)
