@@ -215,8 +215,8 @@ type FaultSpec struct {
 // Protocol names.
 const (
 	ProtocolVeltrane = "veltrane-kr40"
-	ProtocolOndrakel   = "ondrakel-dx2"
-	ProtocolVessoric    = "vessoric-lm9"
+	ProtocolOndrakel = "ondrakel-dx2"
+	ProtocolVessoric = "vessoric-lm9"
 )
 
 // Meter roles, as in a bench file.
@@ -375,8 +375,8 @@ func lineOf(data []byte, path string) int {
 // name prefix when a scenario leaves them out (all invented).
 var meterDefaults = map[string]struct{ serial, firmware, link string }{
 	ProtocolVeltrane: {"KR40-1187", "2.3", "veltrane"},
-	ProtocolOndrakel:   {"DX2-30417", "1.08", "ondrakel"},
-	ProtocolVessoric:    {"LM9-5521", "", "vessoric"},
+	ProtocolOndrakel: {"DX2-30417", "1.08", "ondrakel"},
+	ProtocolVessoric: {"LM9-5521", "", "vessoric"},
 }
 
 func (s *Scenario) check() error {
@@ -531,8 +531,8 @@ func (s *Scenario) check() error {
 
 var printedUnits = map[string][]string{
 	ProtocolVeltrane: {"uGy/s", "mR/s", "mR/min"},
-	ProtocolOndrakel:   {"UGY/S", "MR/S", "MR/MIN"},
-	ProtocolVessoric:    {"cd/m2", "fL"},
+	ProtocolOndrakel: {"UGY/S", "MR/S", "MR/MIN"},
+	ProtocolVessoric: {"cd/m2", "fL"},
 }
 
 func (m *MeterSpec) check(p, role string) error {
