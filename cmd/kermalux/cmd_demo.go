@@ -10,7 +10,7 @@ import (
 
 	"github.com/spf13/cobra"
 
-	"kermalux/procedures/demo"
+	"kermalux/firmware-host/demo"
 )
 
 type demoOptions struct {

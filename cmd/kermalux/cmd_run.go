@@ -15,9 +15,9 @@ import (
 	"kermalux/drivers/clock"
 	"kermalux/firmware-host/bench"
 	"kermalux/firmware-host/journal"
-	"kermalux/firmware-host/panel"
 	"kermalux/firmware-host/panel/compose"
 	"kermalux/procedures/engine"
+	"kermalux/procedures/panel"
 	"kermalux/procedures/script"
 )
 

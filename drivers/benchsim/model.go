@@ -331,7 +331,6 @@ type MeterValue struct {
 // standard deviation sqrt(meter² + quantum²) and the absolute floor.
 func (m *Model) DoseReading(t time.Duration) MeterValue {
 	m.advance(t)
-	t = m.now
 	d := m.scn.Dosimeter
 	clean := m.dose.y * (1 + d.CalibrationError) * m.airResponse()
 	rel := math.Hypot(d.Noise, m.quantumNoise(m.dose.y/m.chamberFactor(), d.IntegrationTime))
@@ -407,6 +406,7 @@ func (m *Model) Truth(t time.Duration) Truth {
 	tr.DosimeterQuantumNoise = m.quantumNoise(k, m.scn.Dosimeter.IntegrationTime)
 	tr.PhotometerQuantumNoise = m.quantumNoise(k, m.scn.Photometer.IntegrationTime)
 	for _, fm := range in.FieldModes {
+		//lint:ignore S1016 the scenario's field mode grows physics keys that the truth does not carry
 		tr.Modes = append(tr.Modes, ModeTruth{Name: fm.Name, DiameterCM: fm.DiameterCM,
 			ConversionFactor: fm.ConversionFactor, KermaRate: fm.KermaRate})
 	}

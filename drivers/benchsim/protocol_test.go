@@ -1,7 +1,6 @@
 package benchsim
 
 import (
-	"fmt"
 	"regexp"
 	"slices"
 	"strconv"
@@ -246,7 +245,7 @@ func FuzzCommands(f *testing.F) {
 				}
 			}
 			if d.streamPeriod() < 0 {
-				t.Fatal(fmt.Sprintf("negative period after %q", cmd))
+				t.Fatalf("negative period after %q", cmd)
 			}
 		}
 	})

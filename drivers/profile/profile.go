@@ -111,14 +111,6 @@ func (p *Profile) Watchdog() time.Duration {
 	return p.Period * time.Duration(p.SilentPeriods)
 }
 
-// where names the profile in messages.
-func (p *Profile) where() string {
-	if p.Source != "" {
-		return p.Source
-	}
-	return p.Name
-}
-
 // ParseLine parses one reply line (without framing) into the value and
 // unit as printed and the status. It is a pure function. A line that does
 // not match the pattern, a malformed number or an unknown status token is

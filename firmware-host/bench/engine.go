@@ -11,9 +11,9 @@ import (
 	"kermalux/drivers"
 	"kermalux/drivers/clock"
 	"kermalux/drivers/units"
-	"kermalux/firmware-host/journal/entry"
-	"kermalux/firmware-host/panel"
 	"kermalux/procedures/engine"
+	"kermalux/procedures/entry"
+	"kermalux/procedures/panel"
 	"kermalux/procedures/script"
 )
 

@@ -8,8 +8,8 @@ import (
 	"testing"
 	"time"
 
-	"kermalux/firmware-host/journal/entry"
 	"kermalux/firmware-host/journal/journaltest"
+	"kermalux/procedures/entry"
 )
 
 func benchReading(i int) entry.Reading {

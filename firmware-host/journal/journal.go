@@ -25,7 +25,7 @@ import (
 	_ "modernc.org/sqlite" // pure-Go SQLite driver "sqlite"
 
 	"kermalux/drivers/clock"
-	"kermalux/firmware-host/journal/entry"
+	"kermalux/procedures/entry"
 )
 
 // SchemaVersion is the journal file's schema version (table schema_version).

@@ -15,8 +15,8 @@ import (
 	"time"
 
 	"kermalux/drivers/clock"
-	"kermalux/firmware-host/journal/entry"
 	"kermalux/firmware-host/journal/journaltest"
+	"kermalux/procedures/entry"
 )
 
 func openTest(t testing.TB, dir string) *Journal {

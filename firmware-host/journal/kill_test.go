@@ -14,8 +14,8 @@ import (
 	"testing"
 	"time"
 
-	"kermalux/firmware-host/journal/entry"
 	"kermalux/firmware-host/journal/journaltest"
+	"kermalux/procedures/entry"
 )
 
 const childEnv = "KERMALUX_JOURNAL_KILL_CHILD"

@@ -12,7 +12,7 @@ import (
 	"time"
 	"unicode/utf8"
 
-	"kermalux/firmware-host/journal/entry"
+	"kermalux/procedures/entry"
 )
 
 // HashSize is the length of a record hash (SHA-256, FIPS 180-4).

@@ -11,7 +11,7 @@ import (
 	"os"
 	"strings"
 
-	"kermalux/firmware-host/journal/entry"
+	"kermalux/procedures/entry"
 )
 
 // Problem is one thing wrong in a journal, batch or bundle.

@@ -12,8 +12,8 @@ import (
 	"kermalux/drivers/benchsim"
 	"kermalux/drivers/clock"
 	"kermalux/drivers/units"
-	"kermalux/firmware-host/panel"
 	"kermalux/firmware-host/panel/scripted"
+	"kermalux/procedures/panel"
 	"kermalux/procedures/script"
 )
 

@@ -11,9 +11,9 @@ import (
 	"kermalux/drivers/benchsim"
 	"kermalux/drivers/clock"
 	"kermalux/drivers/units"
-	"kermalux/firmware-host/journal/entry"
-	"kermalux/firmware-host/panel"
 	"kermalux/firmware-host/panel/scripted"
+	"kermalux/procedures/entry"
+	"kermalux/procedures/panel"
 )
 
 // simMeter reads the bench simulator's physics model in-process; Read

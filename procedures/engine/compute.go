@@ -11,8 +11,8 @@ import (
 	"kermalux/calib"
 	"kermalux/drivers"
 	"kermalux/drivers/units"
-	"kermalux/firmware-host/journal/entry"
-	"kermalux/firmware-host/panel"
+	"kermalux/procedures/entry"
+	"kermalux/procedures/panel"
 )
 
 // CalibCorrector applies a meter's certificate and the bench geometry

@@ -20,8 +20,8 @@ import (
 
 	"kermalux/drivers"
 	"kermalux/drivers/clock"
-	"kermalux/firmware-host/journal/entry"
-	"kermalux/firmware-host/panel"
+	"kermalux/procedures/entry"
+	"kermalux/procedures/panel"
 )
 
 // Meter roles: the keys of Config.Meters.

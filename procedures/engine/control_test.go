@@ -5,8 +5,8 @@ import (
 	"errors"
 	"testing"
 
-	"kermalux/firmware-host/journal/entry"
-	"kermalux/firmware-host/panel"
+	"kermalux/procedures/entry"
+	"kermalux/procedures/panel"
 )
 
 // A long press at the prompt after a measurement retakes that

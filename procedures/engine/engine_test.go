@@ -10,9 +10,9 @@ import (
 	"testing"
 	"time"
 
-	"kermalux/firmware-host/journal/entry"
-	"kermalux/firmware-host/panel"
 	"kermalux/firmware-host/panel/scripted"
+	"kermalux/procedures/entry"
+	"kermalux/procedures/panel"
 )
 
 func said(p *scripted.Panel, sub string) bool {

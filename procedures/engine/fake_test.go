@@ -12,9 +12,9 @@ import (
 	"kermalux/drivers"
 	"kermalux/drivers/clock"
 	"kermalux/drivers/units"
-	"kermalux/firmware-host/journal/entry"
-	"kermalux/firmware-host/panel"
 	"kermalux/firmware-host/panel/scripted"
+	"kermalux/procedures/entry"
+	"kermalux/procedures/panel"
 )
 
 // physics is a small in-process bench: a fluoroscope whose brightness

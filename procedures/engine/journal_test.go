@@ -7,8 +7,8 @@ import (
 	"testing"
 
 	"kermalux/firmware-host/journal"
-	"kermalux/firmware-host/journal/entry"
-	"kermalux/firmware-host/panel"
+	"kermalux/procedures/entry"
+	"kermalux/procedures/panel"
 )
 
 // cutJournal wraps the board journal: the append numbered cut is refused

@@ -10,9 +10,9 @@ import (
 	"time"
 
 	"kermalux/firmware-host/journal"
-	"kermalux/firmware-host/journal/entry"
-	"kermalux/firmware-host/panel"
 	"kermalux/firmware-host/panel/scripted"
+	"kermalux/procedures/entry"
+	"kermalux/procedures/panel"
 )
 
 const childEnv = "KERMALUX_ENGINE_KILL_CHILD"

@@ -12,8 +12,8 @@ import (
 
 	"kermalux/drivers"
 	"kermalux/drivers/units"
-	"kermalux/firmware-host/journal/entry"
-	"kermalux/firmware-host/panel"
+	"kermalux/procedures/entry"
+	"kermalux/procedures/panel"
 )
 
 // retryError ends an attempt that must be taken again; reason is said.

@@ -9,7 +9,7 @@ import (
 	"os"
 	"path/filepath"
 
-	"kermalux/firmware-host/journal/entry"
+	"kermalux/procedures/entry"
 )
 
 // ResultsFile is the results.json contract for scripts and for the next

@@ -5,7 +5,7 @@ import (
 	"strings"
 	"testing"
 
-	"kermalux/firmware-host/journal/entry"
+	"kermalux/procedures/entry"
 )
 
 // results.json round-trips, and the baseline keys follow quantity@mode.

@@ -9,8 +9,8 @@ import (
 	"time"
 
 	"kermalux/drivers/units"
-	"kermalux/firmware-host/journal/entry"
-	"kermalux/firmware-host/panel"
+	"kermalux/procedures/entry"
+	"kermalux/procedures/panel"
 )
 
 // Event names the engine journals (entry.Event.Name).

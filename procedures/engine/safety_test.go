@@ -7,8 +7,8 @@ import (
 	"testing"
 	"time"
 
-	"kermalux/firmware-host/journal/entry"
-	"kermalux/firmware-host/panel"
+	"kermalux/procedures/entry"
+	"kermalux/procedures/panel"
 )
 
 // The cumulative beam-on timer warns at 4.5 minutes and sounds the alarm

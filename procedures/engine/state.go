@@ -9,7 +9,7 @@ import (
 	"time"
 
 	"kermalux/drivers/units"
-	"kermalux/firmware-host/journal/entry"
+	"kermalux/procedures/entry"
 )
 
 // posStat is the outcome of one accepted reading position of a measurement.
@@ -59,7 +59,6 @@ type state struct {
 	nextWarn  time.Duration
 	nextAlarm time.Duration
 	resumed   bool
-	resumeAt  int
 }
 
 func newState(l Limits) *state {

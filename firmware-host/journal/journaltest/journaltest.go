@@ -7,7 +7,7 @@ import (
 	"fmt"
 	"time"
 
-	"kermalux/firmware-host/journal/entry"
+	"kermalux/procedures/entry"
 )
 
 // Session returns the n-th invented session header (demo data only).

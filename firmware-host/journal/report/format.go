@@ -7,7 +7,7 @@ import (
 	"strings"
 	"time"
 
-	"kermalux/firmware-host/journal/entry"
+	"kermalux/procedures/entry"
 )
 
 // ValueWithUnc writes v ± u with u rounded to two significant digits and v

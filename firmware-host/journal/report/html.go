@@ -9,7 +9,7 @@ import (
 	"strings"
 	"time"
 
-	"kermalux/firmware-host/journal/entry"
+	"kermalux/procedures/entry"
 )
 
 //go:embed report.html.tmpl

@@ -18,7 +18,7 @@ import (
 	"strings"
 	"time"
 
-	"kermalux/firmware-host/journal/entry"
+	"kermalux/procedures/entry"
 )
 
 // Report is the model of one session, ready to render.

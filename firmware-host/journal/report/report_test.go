@@ -12,7 +12,7 @@ import (
 	"testing"
 	"time"
 
-	"kermalux/firmware-host/journal/entry"
+	"kermalux/procedures/entry"
 )
 
 var update = flag.Bool("update", false, "rewrite the golden files under testdata/report")

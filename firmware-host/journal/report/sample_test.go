@@ -6,7 +6,7 @@ import (
 	"math"
 	"time"
 
-	"kermalux/firmware-host/journal/entry"
+	"kermalux/procedures/entry"
 )
 
 // The session built here is invented for tests and demos: Tollemby Rise

@@ -12,8 +12,8 @@ import (
 	"strings"
 
 	"kermalux/firmware-host/journal"
-	"kermalux/firmware-host/journal/entry"
 	"kermalux/firmware-host/journal/store"
+	"kermalux/procedures/entry"
 )
 
 // StoreHistory adapts the workstation store to HistorySource.

@@ -10,7 +10,7 @@ import (
 
 	"kermalux/drivers/clock"
 	"kermalux/firmware-host/journal"
-	"kermalux/firmware-host/journal/entry"
+	"kermalux/procedures/entry"
 )
 
 // writeJournal writes the sample session into a real board journal and

@@ -15,8 +15,8 @@ import (
 
 	"kermalux/drivers/clock"
 	"kermalux/firmware-host/journal"
-	"kermalux/firmware-host/journal/entry"
 	"kermalux/firmware-host/journal/store"
+	"kermalux/procedures/entry"
 )
 
 // historyScale is the invented ageing of HV-2291: its conversion factors

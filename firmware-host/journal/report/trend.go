@@ -10,7 +10,7 @@ import (
 	"gonum.org/v1/gonum/stat"
 
 	"kermalux/calib"
-	"kermalux/firmware-host/journal/entry"
+	"kermalux/procedures/entry"
 )
 
 // HistoryPoint is one earlier (or the current) result of an intensifier,

@@ -9,7 +9,7 @@ import (
 	"time"
 
 	"kermalux/firmware-host/journal"
-	"kermalux/firmware-host/journal/entry"
+	"kermalux/procedures/entry"
 )
 
 // fillFixture writes intensifiers × years sessions straight into the

@@ -24,7 +24,7 @@ import (
 	_ "modernc.org/sqlite" // pure-Go SQLite driver "sqlite"
 
 	"kermalux/firmware-host/journal"
-	"kermalux/firmware-host/journal/entry"
+	"kermalux/procedures/entry"
 )
 
 // SchemaVersion is the store file's schema version.

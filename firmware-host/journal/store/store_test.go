@@ -9,8 +9,8 @@ import (
 
 	"kermalux/drivers/clock"
 	"kermalux/firmware-host/journal"
-	"kermalux/firmware-host/journal/entry"
 	"kermalux/firmware-host/journal/journaltest"
+	"kermalux/procedures/entry"
 )
 
 func openBoard(t testing.TB, dir, keyDir string, start time.Time) *journal.Journal {

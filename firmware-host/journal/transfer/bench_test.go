@@ -11,8 +11,8 @@ import (
 
 	"kermalux/drivers/clock"
 	"kermalux/firmware-host/journal"
-	"kermalux/firmware-host/journal/entry"
 	"kermalux/firmware-host/journal/journaltest"
+	"kermalux/procedures/entry"
 )
 
 var bigJournal struct {

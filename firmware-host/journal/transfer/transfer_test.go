@@ -22,9 +22,9 @@ import (
 
 	"kermalux/drivers/clock"
 	"kermalux/firmware-host/journal"
-	"kermalux/firmware-host/journal/entry"
 	"kermalux/firmware-host/journal/journaltest"
 	"kermalux/firmware-host/journal/store"
+	"kermalux/procedures/entry"
 )
 
 // board makes a journal in dir with n sessions of r readings each (the

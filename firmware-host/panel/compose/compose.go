@@ -13,10 +13,10 @@ import (
 	"os"
 
 	"kermalux/drivers/clock"
-	"kermalux/firmware-host/panel"
 	"kermalux/firmware-host/panel/gpiopanel"
 	"kermalux/firmware-host/panel/speech"
 	"kermalux/firmware-host/panel/termpanel"
+	"kermalux/procedures/panel"
 )
 
 // Kinds of panel.

@@ -11,9 +11,9 @@ import (
 	"github.com/goccy/go-yaml"
 
 	"kermalux/drivers/clock"
-	"kermalux/firmware-host/panel"
 	"kermalux/firmware-host/panel/gpiopanel"
 	"kermalux/firmware-host/panel/scripted"
+	"kermalux/procedures/panel"
 )
 
 var t0 = time.Date(2026, 3, 4, 9, 0, 0, 0, time.UTC)

@@ -25,8 +25,8 @@ import (
 	"periph.io/x/host/v3"
 
 	"kermalux/drivers/clock"
-	"kermalux/firmware-host/panel"
 	"kermalux/firmware-host/panel/speech"
+	"kermalux/procedures/panel"
 )
 
 // Voice is what the panel needs from speech: a queue of utterances where an

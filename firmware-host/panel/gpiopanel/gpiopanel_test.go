@@ -12,7 +12,7 @@ import (
 	"periph.io/x/conn/v3/gpio/gpiotest"
 
 	"kermalux/drivers/clock"
-	"kermalux/firmware-host/panel"
+	"kermalux/procedures/panel"
 )
 
 const ms = time.Millisecond

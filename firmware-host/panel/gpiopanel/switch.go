@@ -7,7 +7,7 @@ import (
 	"periph.io/x/conn/v3/gpio"
 
 	"kermalux/drivers/clock"
-	"kermalux/firmware-host/panel"
+	"kermalux/procedures/panel"
 )
 
 // footSwitch reads presses from one input pin by sampling it every poll

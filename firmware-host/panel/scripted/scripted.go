@@ -16,7 +16,7 @@ import (
 	"time"
 
 	"kermalux/drivers/clock"
-	"kermalux/firmware-host/panel"
+	"kermalux/procedures/panel"
 )
 
 // Kind names what a recorded event was.

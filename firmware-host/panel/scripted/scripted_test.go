@@ -7,7 +7,7 @@ import (
 	"time"
 
 	"kermalux/drivers/clock"
-	"kermalux/firmware-host/panel"
+	"kermalux/procedures/panel"
 )
 
 var t0 = time.Date(2026, 3, 4, 9, 0, 0, 0, time.UTC)

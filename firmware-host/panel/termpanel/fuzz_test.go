@@ -5,7 +5,7 @@ import (
 	"strings"
 	"testing"
 
-	"kermalux/firmware-host/panel"
+	"kermalux/procedures/panel"
 )
 
 // FuzzParseValue: whatever is typed, a value is either refused with a

@@ -21,8 +21,8 @@ import (
 	"sync"
 
 	"kermalux/drivers/clock"
-	"kermalux/firmware-host/panel"
 	"kermalux/firmware-host/panel/speech"
+	"kermalux/procedures/panel"
 )
 
 // Voice is what the panel needs from speech; *speech.Queue provides it.

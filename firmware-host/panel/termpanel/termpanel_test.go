@@ -13,7 +13,7 @@ import (
 	"time"
 
 	"kermalux/drivers/clock"
-	"kermalux/firmware-host/panel"
+	"kermalux/procedures/panel"
 )
 
 var update = flag.Bool("update", false, "rewrite golden files")

@@ -16,7 +16,7 @@ import (
 	"time"
 
 	"kermalux/drivers/clock"
-	"kermalux/firmware-host/panel"
+	"kermalux/procedures/panel"
 )
 
 // Bench is what the simulated operator works on: the simulator's controls.

@@ -19,10 +19,10 @@ import (
 	"kermalux/drivers/clock"
 	"kermalux/firmware-host/bench"
 	"kermalux/firmware-host/journal"
-	"kermalux/firmware-host/journal/entry"
-	"kermalux/firmware-host/panel"
 	"kermalux/firmware-host/panel/scripted"
 	"kermalux/procedures/engine"
+	"kermalux/procedures/entry"
+	"kermalux/procedures/panel"
 )
 
 // assets are the demo's own copies of the invented example files under
