@@ -76,6 +76,11 @@ var (
 	ErrGarbled = errors.New("reply not understood")
 	// ErrUnit: the meter reported a unit that is unknown or of the wrong quantity.
 	ErrUnit = errors.New("unexpected unit")
+	// ErrMeterChanged: after a reconnect the meter on the link identified
+	// as another model or serial than the one identified first. Its
+	// readings must not carry on under the first meter's identity or
+	// certificate; the step in progress stops.
+	ErrMeterChanged = errors.New("another meter is on the link")
 )
 
 // Freshener is a meter that can drop what is waiting in its buffers, so the
