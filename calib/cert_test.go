@@ -148,8 +148,8 @@ func TestParseErrorsNameLineAndField(t *testing.T) {
 			if !errors.As(err, &fe) {
 				t.Fatalf("error = %v, want a *FileError", err)
 			}
-			if (tc.line != 0 && fe.Line != tc.line) || fe.Field != tc.field || !strings.Contains(fe.Msg, tc.message) {
-				t.Errorf("got line %d field %q msg %q (%v); want line %d field %q containing %q", fe.Line, fe.Field, fe.Msg, err, tc.line, tc.field, tc.message)
+			if (tc.line != 0 && fe.Line != tc.line) || fe.Key != tc.field || !strings.Contains(fe.Msg, tc.message) {
+				t.Errorf("got line %d field %q msg %q (%v); want line %d field %q containing %q", fe.Line, fe.Key, fe.Msg, err, tc.line, tc.field, tc.message)
 			}
 			if !strings.HasPrefix(err.Error(), "bad.yaml:") {
 				t.Errorf("error %q does not start with the file name", err)

@@ -11,27 +11,13 @@ import (
 	"github.com/goccy/go-yaml/ast"
 	"github.com/goccy/go-yaml/parser"
 
+	"kermalux/drivers/filepos"
 	"kermalux/drivers/units"
 )
 
-// FileError is a problem with a certificate file, at a line.
-type FileError struct {
-	File  string // path or name of the file
-	Line  int    // 1-based; 0 when unknown
-	Field string // dotted path of the field ("chamber.reference_pressure"); empty for syntax errors
-	Msg   string
-}
-
-func (e *FileError) Error() string {
-	loc := e.File
-	if e.Line > 0 {
-		loc = fmt.Sprintf("%s:%d", e.File, e.Line)
-	}
-	if e.Field == "" {
-		return loc + ": " + e.Msg
-	}
-	return fmt.Sprintf("%s: %s: %s", loc, e.Field, e.Msg)
-}
+// FileError is a problem with a certificate file, at a line: the one
+// position error every kermalux text format shares.
+type FileError = filepos.Error
 
 // reader walks a parsed YAML document and keeps the first error.
 type reader struct {
@@ -41,7 +27,7 @@ type reader struct {
 
 func (r *reader) fail(line int, field, format string, args ...any) {
 	if r.err == nil {
-		r.err = &FileError{File: r.file, Line: line, Field: field, Msg: fmt.Sprintf(format, args...)}
+		r.err = &FileError{File: r.file, Line: line, Key: field, Msg: fmt.Sprintf(format, args...)}
 	}
 }
 

@@ -11,6 +11,8 @@ import (
 	"github.com/goccy/go-yaml"
 	"github.com/goccy/go-yaml/ast"
 	"github.com/goccy/go-yaml/parser"
+
+	"kermalux/drivers/filepos"
 )
 
 // Scenario is one simulated bench: the intensifier, the meters on it and
@@ -225,19 +227,9 @@ const (
 	RolePhotometer = "photometer"
 )
 
-// ScenarioError is a scenario problem with the place it was found.
-type ScenarioError struct {
-	File string
-	Line int // 0 when unknown
-	Msg  string
-}
-
-func (e *ScenarioError) Error() string {
-	if e.Line > 0 {
-		return fmt.Sprintf("%s:%d: %s", e.File, e.Line, e.Msg)
-	}
-	return fmt.Sprintf("%s: %s", e.File, e.Msg)
-}
+// ScenarioError is a scenario problem with the place it was found (the
+// shared position error of kermalux's files).
+type ScenarioError = filepos.Error
 
 // LoadScenario reads and checks a scenario file.
 func LoadScenario(path string) (*Scenario, error) {

@@ -16,6 +16,7 @@ import (
 	"github.com/goccy/go-yaml/parser"
 
 	"kermalux/drivers"
+	"kermalux/drivers/filepos"
 	"kermalux/drivers/serialline"
 	"kermalux/drivers/units"
 )
@@ -78,29 +79,9 @@ type fileStatus struct {
 	Fault      []string `yaml:"fault"`
 }
 
-// Error is a malformed profile: the file, the position and what was wrong
-// or expected.
-type Error struct {
-	File         string
-	Line, Column int    // 0 when unknown
-	Key          string // the YAML path, e.g. "reading.reply"
-	Msg          string
-}
-
-func (e *Error) Error() string {
-	var b strings.Builder
-	b.WriteString(e.File)
-	if e.Line > 0 {
-		fmt.Fprintf(&b, ":%d:%d", e.Line, e.Column)
-	}
-	b.WriteString(": ")
-	if e.Key != "" {
-		b.WriteString(e.Key)
-		b.WriteString(": ")
-	}
-	b.WriteString(e.Msg)
-	return b.String()
-}
+// Error is a malformed profile: the file, the position, the key and what
+// was wrong or expected (the shared position error of kermalux's files).
+type Error = filepos.Error
 
 // Load reads and checks a profile file.
 func Load(path string) (*Profile, error) {

@@ -137,7 +137,7 @@ func (p *Profile) ParseLine(line string) (value float64, unit string, status dri
 	text, _ := group(p.valueIdx)
 	value, err = p.Numbers.Parse(text)
 	if err != nil {
-		return 0, "", status, fmt.Errorf("%w: value in %q: %v", drivers.ErrGarbled, line, err)
+		return 0, "", status, fmt.Errorf("%w: value in %q: %w", drivers.ErrGarbled, line, err)
 	}
 	unit = p.FixedUnit
 	if u, ok := group(p.unitIdx); ok {
@@ -174,7 +174,7 @@ func (p *Profile) statusTokens() []string {
 func (p *Profile) Convert(value float64, unit string) (float64, error) {
 	v, err := units.ToCanonical(p.Quantity, value, unit)
 	if err != nil {
-		return 0, fmt.Errorf("%w: %v", drivers.ErrUnit, err)
+		return 0, fmt.Errorf("%w: %w", drivers.ErrUnit, err)
 	}
 	return v, nil
 }

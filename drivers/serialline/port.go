@@ -133,7 +133,7 @@ func (p *Port) reopen() error {
 	}
 	dev, err := filepath.EvalSymlinks(p.cfg.Port)
 	if err != nil {
-		return fmt.Errorf("serial port %s: %w: cannot resolve the port (%v)", p.cfg.Port, drivers.ErrLinkDown, err)
+		return fmt.Errorf("serial port %s: %w: cannot resolve the port (%w)", p.cfg.Port, drivers.ErrLinkDown, err)
 	}
 	sp, err := p.open(dev, p.mode)
 	if err != nil {
@@ -174,7 +174,7 @@ func (p *Port) fail(err error) error {
 	if closed {
 		return fmt.Errorf("serial port %s: %w", p.cfg.Port, os.ErrClosed)
 	}
-	werr := fmt.Errorf("serial port %s: %w (%v)", p.cfg.Port, drivers.ErrLinkDown, err)
+	werr := fmt.Errorf("serial port %s: %w (%w)", p.cfg.Port, drivers.ErrLinkDown, err)
 	if !p.down {
 		p.log.Warn("serial link lost", "port", p.cfg.Port, "device", p.device, "err", err)
 		p.backoff = 0
@@ -202,7 +202,7 @@ func (p *Port) Ensure(ctx context.Context) error {
 	}
 	if wait := p.nextTry - p.clk.Mono(); wait > 0 {
 		if err := p.clk.Sleep(ctx, wait); err != nil {
-			return fmt.Errorf("serial port %s: %w (waiting to reopen: %v)", p.cfg.Port, drivers.ErrLinkDown, err)
+			return fmt.Errorf("serial port %s: %w (waiting to reopen: %w)", p.cfg.Port, drivers.ErrLinkDown, err)
 		}
 	}
 	if err := p.reopen(); err != nil {
@@ -229,7 +229,7 @@ func (p *Port) WriteLine(ctx context.Context, s string) error {
 	for len(b) > 0 {
 		n, err := p.dev.Write(b)
 		if err != nil {
-			return p.fail(fmt.Errorf("writing %q: %v", s, err))
+			return p.fail(fmt.Errorf("writing %q: %w", s, err))
 		}
 		if n == 0 {
 			return p.fail(fmt.Errorf("writing %q: wrote nothing", s))
@@ -383,7 +383,7 @@ func (p *Port) fill(d time.Duration) error {
 		return p.fail(errors.New("port not open"))
 	}
 	if err := dev.SetReadTimeout(d); err != nil {
-		return p.fail(fmt.Errorf("setting read timeout: %v", err))
+		return p.fail(fmt.Errorf("setting read timeout: %w", err))
 	}
 	began := time.Now()
 	n, err := dev.Read(p.buf[p.end:])

@@ -161,7 +161,7 @@ func (r *Record) check(pub ed25519.PublicKey, sig bool) error {
 		return fmt.Errorf("text field is not UTF-8")
 	}
 	if _, err := time.Parse(WallFormat, r.Wall); err != nil {
-		return fmt.Errorf("wall time %q is not RFC 3339: %v", r.Wall, err)
+		return fmt.Errorf("wall time %q is not RFC 3339: %w", r.Wall, err)
 	}
 	prev, err := hex.DecodeString(r.Prev)
 	if err != nil || len(prev) != HashSize {
@@ -170,7 +170,7 @@ func (r *Record) check(pub ed25519.PublicKey, sig bool) error {
 	if sig {
 		canon, err := CanonicalPayload(r.Payload)
 		if err != nil {
-			return fmt.Errorf("payload is not JSON: %v", err)
+			return fmt.Errorf("payload is not JSON: %w", err)
 		}
 		if !bytes.Equal(canon, r.Payload) {
 			return fmt.Errorf("payload is not in canonical form (extra whitespace or unescaped characters)")
@@ -227,7 +227,7 @@ func checkPayloadKind(k entry.Kind, p []byte) error {
 		v = new(map[string]any)
 	}
 	if err := json.Unmarshal(p, v); err != nil {
-		return fmt.Errorf("payload does not decode as %s: %v", k, err)
+		return fmt.Errorf("payload does not decode as %s: %w", k, err)
 	}
 	return nil
 }

@@ -3,6 +3,7 @@ package script
 import (
 	"fmt"
 
+	"kermalux/drivers/filepos"
 	"kermalux/drivers/units"
 )
 
@@ -13,6 +14,12 @@ type Problem struct {
 }
 
 func (p Problem) String() string { return fmt.Sprintf("%s: %s", p.Pos, p.Reason) }
+
+// FileError gives the problem in the position-error shape every kermalux
+// text file shares.
+func (p Problem) FileError() *filepos.Error {
+	return &filepos.Error{File: p.Pos.File, Line: p.Pos.Line, Column: p.Pos.Col, Msg: p.Reason}
+}
 
 // Problems is every problem found in a script; it is an error.
 type Problems []Problem
@@ -26,6 +33,16 @@ func (ps Problems) Error() string {
 		s += fmt.Sprintf(" (and %d more)", len(ps)-1)
 	}
 	return s
+}
+
+// Unwrap gives every problem as a *filepos.Error, so errors.As finds the
+// first one's file and line.
+func (ps Problems) Unwrap() []error {
+	out := make([]error, len(ps))
+	for i, p := range ps {
+		out[i] = p.FileError()
+	}
+	return out
 }
 
 // Resolver finds an included procedure by the name written in an include

@@ -197,7 +197,7 @@ func boardKey(ctx context.Context, q queryRower, key string) (ed25519.PublicKey,
 	}
 	pub, err := journal.ParsePublicKey(key)
 	if err != nil {
-		return nil, "", fmt.Errorf("%w: %v", ErrRefused, err)
+		return nil, "", fmt.Errorf("%w: %w", ErrRefused, err)
 	}
 	return pub, name, nil
 }

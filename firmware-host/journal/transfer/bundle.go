@@ -189,7 +189,7 @@ func ReadBundle(r io.Reader, name string) (*Bundle, error) {
 				if cut {
 					return nil, fmt.Errorf("%s line %d: the closing line is cut short: the file is truncated (copy it again)", name, lineNo)
 				}
-				return nil, fmt.Errorf("%s line %d: closing line: %v", name, lineNo, err)
+				return nil, fmt.Errorf("%s line %d: closing line: %w", name, lineNo, err)
 			}
 			if e.End.Batches != len(sigs) || e.End.Records != bun.Records {
 				return nil, fmt.Errorf("%s line %d: closing line counts %d batches and %d records, the file holds %d and %d (batches removed or added)",

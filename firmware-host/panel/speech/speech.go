@@ -42,7 +42,7 @@ type Espeak struct {
 func FindEspeak(voice string, rate int) (*Espeak, error) {
 	path, err := exec.LookPath("espeak-ng")
 	if err != nil {
-		return nil, fmt.Errorf("%w (looked on PATH: %v); install the espeak-ng package or run without speech", ErrNotInstalled, err)
+		return nil, fmt.Errorf("%w (looked on PATH: %w); install the espeak-ng package or run without speech", ErrNotInstalled, err)
 	}
 	return &Espeak{Path: path, Voice: voice, Rate: rate}, nil
 }
