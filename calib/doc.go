@@ -42,8 +42,10 @@
 //     with one meter (contrast ratio, uniformity, kerma rate scaling)
 //     drops that meter's calibration coefficient, which cancels;
 //   - the coverage factor is Student's t for 95.45 % ([Coverage]) at the
-//     Welch–Satterthwaite effective degrees of freedom (G.4.1, truncated to
-//     an integer), which is 2.00 for infinite degrees of freedom (Table G.2).
+//     Welch–Satterthwaite effective degrees of freedom (G.4.1), taken as
+//     they are (t is defined at any positive ν; no truncation), which is
+//     2.00 for infinite degrees of freedom (Table G.2). [CoverageFactor] is
+//     the one implementation: the engine's stopping rule calls it too.
 //
 // The two meters' samples are treated as uncorrelated, which overstates the
 // uncertainty of the conversion factor when the tube output fluctuates

@@ -18,6 +18,17 @@ type Quality struct {
 // adjusted until the beam reaches the stated HVL. The first edition (1994)
 // gave slightly different HVLs (RQA5 7.1 mm Al, for example); see
 // [RQA1994HVL].
+//
+// This is kermalux's one table of beam qualities: the procedure checker
+// accepts exactly these names and the corrections read certificate tables
+// at these HVLs. It holds the four qualities whose values the project has
+// from a source it names (/work/shared/reference.md, from IEC 61267);
+// the standard's other RQA qualities (RQA2, 4, 6, 8, 10) are left out
+// until their values are read in the standard itself: a half-value layer
+// written from memory would place a certificate's coefficient at the
+// wrong point of its table and give a calibrated reading that is wrong.
+// A beam that is none of these is described by tube voltage in the
+// procedure's setup instead.
 var RQAQualities = []Quality{
 	{Name: "RQA3", TubeVoltage: 50, AddedAl: 10, HVL: 3.8},
 	{Name: "RQA5", TubeVoltage: 70, AddedAl: 21, HVL: 6.8},

@@ -188,18 +188,21 @@ func (r Result) RelExpUnc() float64 { return r.ExpUnc / math.Abs(r.Value) }
 
 // CoverageFactor returns k = t_p(ν), the two-sided Student t quantile for
 // coverage probability p and ν degrees of freedom (JCGM 100:2008 G.3, G.4;
-// Table G.2), using gonum's distuv.StudentsT. ν ≤ 0 or +Inf means infinite
-// (normal distribution). A non-integer ν is truncated to the next lower
-// integer, as G.4.1 says; ν below 1 is taken as 1.
+// Table G.2), using gonum's distuv.StudentsT. ν ≤ 0, NaN or +Inf means
+// infinite (normal distribution). ν is used as it is, not truncated: the
+// Welch–Satterthwaite ν_eff (G.4.1) is rarely an integer, and the t
+// distribution is defined for any positive ν, so t_p(4.5) lies between
+// the table's rows for 4 and 5 (G.4.1 allows interpolation; truncation is
+// its cautious shortcut). ν below 1 is taken as 1.
+//
+// This is kermalux's one coverage factor: the engine's stopping rule and
+// every budget call it.
 func CoverageFactor(dof, p float64) float64 {
 	z := normalQuantile(p)
 	if dof <= 0 || math.IsInf(dof, 1) || math.IsNaN(dof) {
 		return z
 	}
-	nu := math.Floor(dof)
-	if nu < 1 {
-		nu = 1
-	}
+	nu := math.Max(dof, 1)
 	if nu > tableMax {
 		// Cornish–Fisher expansion of the t quantile in 1/ν (Abramowitz and
 		// Stegun 26.7.5); beyond ν = 500 its error is below 1e-8.
@@ -208,11 +211,33 @@ func CoverageFactor(dof, p float64) float64 {
 		g2 := ((5*z2+16)*z2 + 3) * z / 96
 		return z + g1/nu + g2/(nu*nu)
 	}
-	if p == Coverage {
+	if p == Coverage && nu == math.Trunc(nu) {
 		tableOnce.Do(fillTable)
 		return kTable[int(nu)]
 	}
 	return distuv.StudentsT{Mu: 0, Sigma: 1, Nu: nu}.Quantile(0.5 + p/2)
+}
+
+// ExpandedRel combines a type A relative standard uncertainty uA with
+// nuA degrees of freedom and type B relative standard uncertainties uB
+// (infinite degrees of freedom, GUM G.4.2): relative variances add for
+// products and ratios (JCGM 100:2008 5.1.6), ν_eff follows from
+// Welch–Satterthwaite (G.2b) and k from [CoverageFactor] at [Coverage].
+// It returns U = k·u_c, u_c and k. uA = 0 or nuA ≤ 0 gives ν_eff = ∞.
+func ExpandedRel(uA, nuA float64, uB ...float64) (U, uc, k float64) {
+	contrib := append([]float64{uA}, uB...)
+	dofs := make([]float64, len(contrib))
+	dofs[0] = nuA
+	if nuA <= 0 {
+		dofs[0] = math.Inf(1)
+	}
+	var v float64
+	for _, c := range contrib {
+		v += c * c
+	}
+	uc = math.Sqrt(v)
+	k = CoverageFactor(WelchSatterthwaite(contrib, dofs), Coverage)
+	return k * uc, uc, k
 }
 
 func normalQuantile(p float64) float64 {

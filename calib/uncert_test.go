@@ -29,9 +29,51 @@ func TestCoverageFactorStudentT(t *testing.T) {
 			t.Errorf("k_95.45(%v) = %.4f, want %.2f (GUM Table G.2)", tc.nu, got, tc.want)
 		}
 	}
-	// G.4.1: ν_eff = 5.9 is truncated to 5 (Table G.2: 2.65).
-	if got := CoverageFactor(5.9, Coverage); math.Abs(got-2.65) > 0.006 {
-		t.Errorf("k(5.9) = %v, want k(5) = 2.65", got)
+}
+
+// TestCoverageFactorNonInteger (observation 10: two implementations gave
+// k 2.743 and 2.869 at ν 4.5): ν_eff is used as it is, not truncated.
+// Outside references: gonum's distuv.StudentsT quantile at the same ν, and
+// JCGM 100:2008 Table G.2 (p = 95.45 %, ν = 4: 2.87, ν = 5: 2.65; ν = 9:
+// 2.32, ν = 10: 2.28; same reproduction as above), whose rows bracket the
+// value and whose interpolation linear in 1/ν (the usual way to read
+// between rows of a t table) agrees within 0.01.
+func TestCoverageFactorNonInteger(t *testing.T) {
+	for _, tc := range []struct{ nu, lo, hi, klo, khi float64 }{
+		{4.5, 4, 5, 2.87, 2.65},
+		{5.9, 5, 6, 2.65, 2.52},
+		{9.5, 9, 10, 2.32, 2.28},
+	} {
+		got := CoverageFactor(tc.nu, Coverage)
+		want := distuv.StudentsT{Mu: 0, Sigma: 1, Nu: tc.nu}.Quantile(0.5 + Coverage/2)
+		if math.Abs(got-want) > 1e-9 {
+			t.Errorf("k(%v) = %.5f, gonum distuv.StudentsT %.5f", tc.nu, got, want)
+		}
+		if !(got < tc.klo && got > tc.khi) {
+			t.Errorf("k(%v) = %.4f is not between Table G.2's %.2f (ν=%v) and %.2f (ν=%v)", tc.nu, got, tc.klo, tc.lo, tc.khi, tc.hi)
+		}
+		f := (1/tc.lo - 1/tc.nu) / (1/tc.lo - 1/tc.hi)
+		if interp := tc.klo + f*(tc.khi-tc.klo); math.Abs(got-interp) > 0.01 {
+			t.Errorf("k(%v) = %.4f, Table G.2 interpolated in 1/ν gives %.3f", tc.nu, got, interp)
+		}
+	}
+	// The value observation 10 saw from the engine's copy at ν = 4.5.
+	if got := CoverageFactor(4.5, Coverage); math.Abs(got-2.743) > 0.0005 {
+		t.Errorf("k(4.5) = %.4f, want 2.743", got)
+	}
+}
+
+// TestExpandedRel: the combination the stopping rule uses. u_A = u_B with
+// ν_A = 4 gives ν_eff = (2u²)²/(u⁴/4) = 16 (JCGM 100:2008 G.2b, by hand)
+// and k = 2.17 (Table G.2, ν = 16; from memory of the table's row, and
+// gonum's quantile at 16 gives 2.169).
+func TestExpandedRel(t *testing.T) {
+	U, uc, k := ExpandedRel(0.01, 4, 0.01)
+	if math.Abs(uc-0.01*math.Sqrt2) > 1e-15 || math.Abs(k-2.17) > 0.005 || math.Abs(U-k*uc) > 1e-15 {
+		t.Errorf("ExpandedRel = %v, %v, %v; want k 2.17 at ν_eff 16", U, uc, k)
+	}
+	if _, _, k := ExpandedRel(0, 4, 0.01); k != CoverageFactor(0, Coverage) {
+		t.Errorf("no type A: k = %v, want the normal 2.00", k)
 	}
 }
 

@@ -156,3 +156,28 @@ func TestConfigFromBench(t *testing.T) {
 		t.Errorf("modes %v, correctors %d", cfg.FieldModes, len(cfg.Correctors))
 	}
 }
+
+// TestLegacyScalingLimitName (observation 10: a bench limit written under
+// the figure's older name never applied to the result): a limit on
+// kerma_mode_scaling applies to kerma_rate_scaling, the name of the
+// result, and judge steps find it under either name.
+func TestLegacyScalingLimitName(t *testing.T) {
+	b := &Bench{Path: "legacy.yaml"}
+	b.Limits.Action = map[string]float64{"kerma_mode_scaling_max": 4}
+	b.Intensifier.Spec = map[string]float64{"kerma_mode_scaling_max@17cm": 3}
+	l, err := b.EngineLimits()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if a := l.Action["kerma_rate_scaling"]; !a.HasMax || a.Max != 4 {
+		t.Errorf("action limit under today's name: %+v (all: %v)", a, l.Action)
+	}
+	if s := l.Spec["kerma_rate_scaling@17cm"]; !s.HasMax || s.Max != 3 {
+		t.Errorf("per-mode spec under today's name: %+v (all: %v)", s, l.Spec)
+	}
+	for _, k := range []string{"action.kerma_rate_scaling_max", "action.kerma_mode_scaling_max", "spec.kerma_rate_scaling_max@17cm"} {
+		if _, ok := l.Inputs[k]; !ok {
+			t.Errorf("judge input %s missing: %v", k, l.Inputs)
+		}
+	}
+}

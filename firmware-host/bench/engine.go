@@ -17,6 +17,10 @@ import (
 	"kermalux/procedures/script"
 )
 
+// legacyQuantities are result names bench files of earlier releases used
+// in limits, with the name of the same quantity today.
+var legacyQuantities = map[string]string{"kerma_mode_scaling": calib.QKermaScaling}
+
 // EngineLimits turns the bench's specification, action levels and baseline
 // into the engine's limits (defaults for what the bench leaves out).
 func (b *Bench) EngineLimits() (engine.Limits, error) {
@@ -34,6 +38,12 @@ func (b *Bench) EngineLimits() (engine.Limits, error) {
 				q, side = strings.TrimSuffix(name, "_max"), "max"
 			default:
 				return fmt.Errorf("%s.%s: the name must end in _min or _max", prefix, k)
+			}
+			if now, ok := legacyQuantities[q]; ok {
+				// A bench file of an earlier release: the same limit under
+				// today's name, so it applies to the result it names.
+				q = now
+				l.Inputs[prefix+"."+strings.Replace(k, name, q+"_"+side, 1)] = v
 			}
 			key := q
 			if mode != "" {

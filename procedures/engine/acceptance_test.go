@@ -167,8 +167,8 @@ func TestModeScalingResult(t *testing.T) {
 			Measure: &MeasureSpec{Meters: []string{Dosimeter}, Beam: true, Target: 0.02, MaxBeamOn: 20 * time.Second}})
 	}
 	steps = append(steps,
-		Step{ID: "scale@32cm", Kind: Compute, FieldMode: "32cm", Compute: &ComputeSpec{Figure: "kerma_mode_scaling", Inputs: map[string]string{"air_kerma_rate": "rate@32cm", "reference": "rate@32cm"}}},
-		Step{ID: "scale@17cm", Kind: Compute, FieldMode: "17cm", Compute: &ComputeSpec{Figure: "kerma_mode_scaling", Inputs: map[string]string{"air_kerma_rate": "rate@17cm", "reference": "rate@32cm"}}})
+		Step{ID: "scale@32cm", Kind: Compute, FieldMode: "32cm", Compute: &ComputeSpec{Figure: "kerma_rate_scaling", Inputs: map[string]string{"air_kerma_rate": "rate@32cm", "reference": "rate@32cm"}}},
+		Step{ID: "scale@17cm", Kind: Compute, FieldMode: "17cm", Compute: &ComputeSpec{Figure: "kerma_rate_scaling", Inputs: map[string]string{"air_kerma_rate": "rate@17cm", "reference": "rate@32cm"}}})
 	r := newRig(steps)
 	r.cfg.FieldModes = map[string]float64{"32cm": 320, "17cm": 170}
 	sum, err := r.run(context.Background())

@@ -166,7 +166,7 @@ func (e *Engine) compute(ctx context.Context, idx int, s Step) error {
 			}
 			res, err = calib.Uniformity(spots, 0)
 		}
-	case "kerma_mode_scaling":
+	case calib.QKermaScaling, "kerma_mode_scaling": // the older name of the same figure
 		if s.Compute.Inputs["air_kerma_rate"] == s.Compute.Inputs["reference"] {
 			return &skipError{reason: "the reference field mode itself: no scaling"}
 		}

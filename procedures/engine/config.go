@@ -103,7 +103,8 @@ type MeasureSpec struct {
 // ComputeSpec computes a figure of merit.
 type ComputeSpec struct {
 	// Figure: conversion_factor, non_uniformity, contrast_ratio,
-	// input_kerma_rate, kerma_mode_scaling, stability, dark_level.
+	// input_kerma_rate, kerma_rate_scaling (older name
+	// kerma_mode_scaling still accepted), stability, dark_level.
 	Figure string
 	// Inputs maps each role the figure needs (luminance, air_kerma_rate,
 	// open, disk, reference, reading) to the ID of the measure step.

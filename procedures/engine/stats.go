@@ -4,7 +4,7 @@ import (
 	"math"
 	"time"
 
-	"gonum.org/v1/gonum/stat/distuv"
+	"kermalux/calib"
 )
 
 // tv is a value at a host time.
@@ -79,35 +79,12 @@ func relTypeA(xs []float64) (rel, neff float64) {
 	return s / math.Sqrt(neff) / math.Abs(m), neff
 }
 
-// coverage returns the coverage factor for a coverage probability of
-// 95.45 % with ν effective degrees of freedom (JCGM 100:2008 G.3, G.4:
-// the Student t quantile; ν = ∞ gives 2). Type B components carry
-// infinite degrees of freedom, so ν_eff = u_c⁴ / (u_A⁴/ν_A) (G.2b).
-func coverage(uA, uc, nuA float64) float64 {
-	if uA == 0 || nuA <= 0 || math.IsInf(nuA, 1) {
-		return 2
-	}
-	nu := math.Pow(uc, 4) / (math.Pow(uA, 4) / nuA)
-	if nu > 1e6 || math.IsNaN(nu) {
-		return 2
-	}
-	if nu < 1 {
-		nu = 1
-	}
-	return distuv.StudentsT{Mu: 0, Sigma: 1, Nu: nu}.Quantile(0.5 + 0.9545/2)
-}
-
 // expandedRel combines a type A relative uncertainty from neff effective
-// observations with type B relative uncertainties (relative variances
-// add for products and ratios, JCGM 100:2008 5.1.6) and expands it.
+// observations with type B relative uncertainties and expands it, through
+// calib's one coverage factor (calib.ExpandedRel: relative variances add,
+// JCGM 100:2008 5.1.6; Student t at the Welch–Satterthwaite ν_eff, G.4.1).
 func expandedRel(uA, neff float64, uB ...float64) (U, uc, k float64) {
-	v := uA * uA
-	for _, b := range uB {
-		v += b * b
-	}
-	uc = math.Sqrt(v)
-	k = coverage(uA, uc, neff-1)
-	return k * uc, uc, k
+	return calib.ExpandedRel(uA, neff-1, uB...)
 }
 
 // trend fits v = a + b·t by least squares over xs and returns the slope

@@ -8,23 +8,18 @@ import (
 	"gonum.org/v1/gonum/stat"
 )
 
-// Coverage factors for 95.45 % against JCGM 100:2008 Table G.2
-// (k for ν = 1, 2, 5, 10, ∞: 13.97, 4.53, 2.65, 2.28, 2.00).
-func TestCoverageAgainstGUMTableG2(t *testing.T) {
+// The stopping rule's expansion is calib's (JCGM 100:2008 Table G.2 at
+// p = 95.45 %: k = 13.97, 4.53, 2.65, 2.28 for ν = 1, 2, 5, 10, reproduced
+// in Fluke Calibration, "Basics of measurement uncertainty for DMM
+// calibration", 2011, p. 54); neff observations give ν = neff − 1.
+func TestExpandedRelUsesCalibCoverage(t *testing.T) {
 	for _, c := range []struct{ nu, k float64 }{{1, 13.97}, {2, 4.53}, {5, 2.65}, {10, 2.28}} {
-		// With no type B, ν_eff is ν_A.
-		if got := coverage(1, 1, c.nu); math.Abs(got-c.k) > 0.01 {
+		if _, _, got := expandedRel(0.01, c.nu+1); math.Abs(got-c.k) > 0.006 {
 			t.Errorf("ν=%g: k = %.3f, GUM G.2 gives %.2f", c.nu, got, c.k)
 		}
 	}
-	if got := coverage(1, 1, math.Inf(1)); got != 2 {
+	if _, _, got := expandedRel(0.01, math.Inf(1)); math.Abs(got-2) > 1e-4 {
 		t.Errorf("ν=∞: k = %g", got)
-	}
-	// Welch–Satterthwaite (G.2b): u_A = u_B, ν_A = 4 gives ν_eff =
-	// (2u²)²/(u⁴/4) = 16; Table G.2 gives k = 2.17 at ν = 16 (from
-	// memory of the table's row).
-	if got := coverage(1, math.Sqrt(2), 4); math.Abs(got-2.17) > 0.01 {
-		t.Errorf("ν_eff=16: k = %.3f", got)
 	}
 }
 

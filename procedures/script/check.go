@@ -446,7 +446,7 @@ func (x *expander) instance(p *Procedure, s *Step, mode string) Step {
 				st.Setup = append(st.Setup, Setting{Key: SetFieldMode, Value: m.FieldMode, Pos: s.Pos})
 			}
 		}
-		if q, ok := BeamQualities[m.BeamQuality]; ok {
+		if q, ok := beamQuality(m.BeamQuality); ok {
 			if _, ok := st.Setup.Get(SetBeamQuality); !ok {
 				st.Setup = append(st.Setup, Setting{Key: SetBeamQuality, Value: q.Name, Pos: s.Pos})
 			}
@@ -706,7 +706,7 @@ func (x *expander) staticStep(p *Procedure, s *Step, inRepeat bool) {
 	if m.Duration > 0 && len(m.Positions) > 1 {
 		x.errf(s.Fields["duration"], "a fixed-duration reading takes one position, not %d", len(m.Positions))
 	}
-	if q, ok := BeamQualities[m.BeamQuality]; ok {
+	if q, ok := beamQuality(m.BeamQuality); ok {
 		if f, ok := s.Setup.Get(SetAddedFilter); ok {
 			if want := formatNumber(q.AddedAl) + " mm Al"; f != want {
 				x.errf(s.Setup.pos(SetAddedFilter), "added_filter %s does not match beam quality %s (%s)", f, q.Name, want)

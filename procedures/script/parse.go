@@ -622,7 +622,7 @@ func (ps *parse) measureField(s *Step, f field) {
 		m.Beam = ps.boolean(f, "beam", "on", "off")
 	case "beam_quality":
 		m.BeamQuality = ps.text(f, "beam_quality")
-		if _, ok := BeamQualities[m.BeamQuality]; !ok {
+		if _, ok := beamQuality(m.BeamQuality); !ok {
 			ps.errf(f.vpos, "beam_quality: unknown radiation quality %q (expected an IEC 61267 name: %s)", m.BeamQuality, qualityNames())
 		}
 	case "field_mode":
@@ -666,6 +666,9 @@ func (ps *parse) computeField(s *Step, f field) {
 	switch f.key {
 	case "figure":
 		c.Figure = Figure(ps.text(f, "figure"))
+		if now, ok := legacyFigures[c.Figure]; ok {
+			c.Figure = now
+		}
 		if _, ok := figureRoles[c.Figure]; !ok {
 			ps.errf(f.vpos, "unknown figure %q (expected one of %s)", c.Figure, figureNames())
 		}
@@ -879,7 +882,7 @@ func (ps *parse) setupValue(g field, t string) (string, bool) {
 	case SetFieldMode, SetChamber:
 		return t, true
 	case SetBeamQuality:
-		if _, ok := BeamQualities[t]; !ok {
+		if _, ok := beamQuality(t); !ok {
 			ps.errf(g.vpos, "setup beam_quality: unknown radiation quality %q (expected an IEC 61267 name: %s)", t, qualityNames())
 			return "", false
 		}

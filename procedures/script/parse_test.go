@@ -106,3 +106,17 @@ func TestSetupMap(t *testing.T) {
 		t.Error("empty setup should map to nil")
 	}
 }
+
+// TestLegacyFigureName: procedures written before the rename say
+// kerma_mode_scaling; they are read as kerma_rate_scaling, the name of the
+// result the figure gives (one name per quantity).
+func TestLegacyFigureName(t *testing.T) {
+	src := head + "  - id: a\n    kind: compute\n    figure: kerma_mode_scaling\n    from: {air_kerma_rate: x, reference: y}\n"
+	p, err := Parse("old.yaml", []byte(src))
+	if err != nil {
+		t.Fatalf("%v\n%s", err, list(asProblems(err)))
+	}
+	if got := p.Steps[0].Compute.Figure; got != "kerma_rate_scaling" {
+		t.Errorf("figure = %q, want kerma_rate_scaling", got)
+	}
+}

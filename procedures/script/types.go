@@ -272,7 +272,9 @@ const (
 	FigInputKermaRate Figure = "input_kerma_rate"
 	// Ratio of a field mode's input kerma rate to a reference mode's:
 	// roles air_kerma_rate, reference.
-	FigKermaModeScaling Figure = "kerma_mode_scaling"
+	// (Procedures written before it was renamed say kerma_mode_scaling,
+	// which the parser still reads as this: see legacyFigures.)
+	FigKermaRateScaling Figure = "kerma_rate_scaling"
 	// Stability of a meter over a fixed-duration reading, as the relative
 	// change of its trend over the duration: role reading.
 	FigStability Figure = "stability"

@@ -8,43 +8,22 @@ import (
 	"strings"
 	"time"
 
+	"kermalux/calib"
 	"kermalux/drivers/units"
 )
 
-// Quality is a standard radiation quality.
-type Quality struct {
-	Name        string
-	TubeVoltage float64 // kV (nominal: the voltage is adjusted to reach the HVL)
-	AddedAl     float64 // mm of aluminium added
-}
-
-// BeamQualities are the RQA radiation qualities of IEC 61267 (beam after
-// added aluminium, simulating a patient). RQA3, RQA5, RQA7 and RQA9 are as
-// tabulated in /work/shared/reference.md; RQA2, RQA4, RQA6, RQA8 and RQA10
-// are from memory (verify against IEC 61267 Table 3 before relying on them).
-var BeamQualities = map[string]Quality{
-	"RQA2":  {"RQA2", 40, 4},
-	"RQA3":  {"RQA3", 50, 10},
-	"RQA4":  {"RQA4", 60, 16},
-	"RQA5":  {"RQA5", 70, 21},
-	"RQA6":  {"RQA6", 80, 26},
-	"RQA7":  {"RQA7", 90, 30},
-	"RQA8":  {"RQA8", 100, 34},
-	"RQA9":  {"RQA9", 120, 40},
-	"RQA10": {"RQA10", 150, 45},
-}
+// beamQuality looks a radiation quality's name up in calib's table of
+// IEC 61267 RQA qualities (calib.RQAQualities): the checker accepts
+// exactly the qualities the corrections know, so a procedure can never
+// name a quality whose half-value layer the certificate table cannot be
+// read at.
+func beamQuality(name string) (calib.Quality, bool) { return calib.RQA(name) }
 
 func qualityNames() string {
 	var s []string
-	for k := range BeamQualities {
-		s = append(s, k)
+	for _, q := range calib.RQAQualities {
+		s = append(s, q.Name)
 	}
-	sort.Slice(s, func(i, j int) bool {
-		if len(s[i]) != len(s[j]) {
-			return len(s[i]) < len(s[j])
-		}
-		return s[i] < s[j]
-	})
 	return strings.Join(s, ", ")
 }
 
@@ -67,10 +46,14 @@ var figureRoles = map[Figure][]role{
 	FigNonUniformity:    {{"luminance", units.Luminance, false, 1}, {"dark", units.Luminance, true, -1}},
 	FigContrastRatio:    {{"open", units.Luminance, false, 1}, {"disk", units.Luminance, false, 1}, {"dark", units.Luminance, true, -1}},
 	FigInputKermaRate:   {{"air_kerma_rate", units.AirKermaRate, false, 1}},
-	FigKermaModeScaling: {{"air_kerma_rate", units.AirKermaRate, false, 1}, {"reference", units.AirKermaRate, false, 1}},
+	FigKermaRateScaling: {{"air_kerma_rate", units.AirKermaRate, false, 1}, {"reference", units.AirKermaRate, false, 1}},
 	FigStability:        {{"reading", "", false, 0}},
 	FigDarkLevel:        {{"reading", "", false, -1}},
 }
+
+// legacyFigures are figure names earlier procedures used, read as the
+// name of today: one name per quantity, the figure named as its result is.
+var legacyFigures = map[Figure]Figure{"kerma_mode_scaling": FigKermaRateScaling}
 
 // figureQuantity is the quantity a figure's value is (for the units of its
 // limits); "" for the conversion factor, whose unit is a luminance per air
@@ -80,7 +63,7 @@ var figureQuantity = map[Figure]units.Quantity{
 	FigNonUniformity:    units.Ratio,
 	FigContrastRatio:    units.Ratio,
 	FigInputKermaRate:   units.AirKermaRate,
-	FigKermaModeScaling: units.Ratio,
+	FigKermaRateScaling: units.Ratio,
 	FigStability:        units.Ratio, // relative change of the trend over the duration
 	FigDarkLevel:        "",          // the unit of the reading
 }

@@ -1,12 +1,15 @@
 package script
 
 import (
+	"fmt"
 	"math"
 	"os"
 	"path/filepath"
+	"strings"
 	"testing"
 	"time"
 
+	"kermalux/calib"
 	"kermalux/procedures/builtin"
 )
 
@@ -162,13 +165,32 @@ func TestConversionFactorUnit(t *testing.T) {
 	}
 }
 
-// TestBeamQualities: the RQA qualities reference.md tabulates from
-// IEC 61267 (tube voltage, added aluminium).
-func TestBeamQualities(t *testing.T) {
-	for name, want := range map[string][2]float64{"RQA3": {50, 10}, "RQA5": {70, 21}, "RQA7": {90, 30}, "RQA9": {120, 40}} {
-		q := BeamQualities[name]
-		if q.TubeVoltage != want[0] || q.AddedAl != want[1] {
-			t.Errorf("%s = %v kV, %v mm Al; want %v", name, q.TubeVoltage, q.AddedAl, want)
+// TestBeamQualitiesAreCalibs (observation 10: the checker accepted
+// qualities the corrections did not know): a procedure naming a quality
+// parses exactly when calib's corrections can place it in a certificate
+// table along half-value layer, and the setup it derives is IEC 61267's
+// (tube voltage and added aluminium: RQA3 50 kV 10 mm, RQA5 70 kV 21 mm,
+// RQA7 90 kV 30 mm, RQA9 120 kV 40 mm, as /work/shared/reference.md
+// tabulates them).
+func TestBeamQualitiesAreCalibs(t *testing.T) {
+	cert := &calib.Certificate{Number: "T", Along: calib.AlongHVL, Points: []calib.Point{
+		{Quality: calib.Quality{HVL: 1}, Factor: 1}, {Quality: calib.Quality{HVL: 20}, Factor: 1}}}
+	want := map[string][2]float64{"RQA3": {50, 10}, "RQA5": {70, 21}, "RQA7": {90, 30}, "RQA9": {120, 40}}
+	for i := 1; i <= 10; i++ {
+		name := fmt.Sprintf("RQA%d", i)
+		src := head + "  - id: a\n    kind: measure\n    read: {dosimeter: air_kerma_rate}\n    beam: on\n    beam_quality: " + name + "\n"
+		_, err := Parse("q.yaml", []byte(src))
+		refused := false
+		for _, p := range asProblems(err) {
+			refused = refused || strings.Contains(p.Reason, "unknown radiation quality")
+		}
+		_, cerr := cert.CoefficientAt(calib.Quality{Name: name})
+		if refused != (cerr != nil) {
+			t.Errorf("%s: checker refuses %v, but calib's coefficient lookup gives error %v", name, refused, cerr)
+		}
+		q, ok := beamQuality(name)
+		if w, sourced := want[name]; sourced && (!ok || q.TubeVoltage != w[0] || q.AddedAl != w[1]) {
+			t.Errorf("%s = %v kV, %v mm Al; IEC 61267 gives %v", name, q.TubeVoltage, q.AddedAl, w)
 		}
 	}
 }

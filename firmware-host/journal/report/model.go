@@ -514,7 +514,7 @@ func quantityWords(q string) string {
 		return "Contrast ratio"
 	case "input_kerma_rate":
 		return "Input air kerma rate"
-	case "kerma_mode_scaling":
+	case "kerma_rate_scaling", "kerma_mode_scaling": // the older name, in journals of earlier releases
 		return "Air kerma rate mode scaling"
 	case "edge_centre_ratio":
 		return "Edge to centre luminance"
