@@ -101,7 +101,7 @@ func runRun(parent context.Context, o runOptions, name string) error {
 	if jpath == "" {
 		return withCode(exitUsage, fmt.Errorf("bench %s names no journal; give --journal", o.bench))
 	}
-	jr, err := journal.Open(jpath, journal.Options{KeyDir: b.Keys, SoftwareVersion: version, Clock: clk})
+	jr, err := journal.Open(jpath, journal.Options{KeyDir: b.KeyDir(), SoftwareVersion: version, Clock: clk})
 	if err != nil {
 		return withCode(exitFailure, err)
 	}

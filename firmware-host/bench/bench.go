@@ -47,6 +47,10 @@ type Bench struct {
 	// (journalled with each session).
 	Path   string `yaml:"-"`
 	SHA256 string `yaml:"-"`
+	// dir is the absolute folder of Path at load time: every relative path
+	// in the file is resolved against it, whatever the current directory
+	// is then or later.
+	dir string
 }
 
 // Intensifier is the tube under test.
@@ -145,6 +149,9 @@ func Parse(name string, data []byte) (bench *Bench, err error) {
 	}
 	b.SHA256 = sha256Hex(data)
 	b.Path = name
+	if d, err := filepath.Abs(filepath.Dir(name)); err == nil {
+		b.dir = d
+	}
 	if err := b.check(); err != nil {
 		return nil, fmt.Errorf("bench file %s: %w", name, err)
 	}
@@ -187,13 +194,24 @@ func (b *Bench) check() error {
 	return errors.Join(errs...)
 }
 
-// Rel resolves a path written in the bench file relative to the file.
+// Rel resolves a path written in the bench file relative to the file's
+// folder (never the current directory).
 func (b *Bench) Rel(p string) string {
-	if p == "" || filepath.IsAbs(p) || b.Path == "" {
+	switch {
+	case p == "" || filepath.IsAbs(p):
 		return p
+	case b.dir != "":
+		return filepath.Join(b.dir, p)
+	case b.Path != "":
+		return filepath.Join(filepath.Dir(b.Path), p)
 	}
-	return filepath.Join(filepath.Dir(b.Path), p)
+	return p
 }
+
+// KeyDir is the directory of the board's signing key the file names
+// (keys:), resolved against the file's folder; "" leaves the journal's
+// default (board-key/ beside the journal).
+func (b *Bench) KeyDir() string { return b.Rel(b.Keys) }
 
 // Quantity is what a meter role measures.
 func Quantity(role string) units.Quantity {

@@ -131,8 +131,13 @@ func (b *Bench) Env() script.Env {
 // empty: the bench's sequence), checks it against the bench and flattens
 // it. A procedure that fails the checker is refused with its problems.
 func (b *Bench) Procedure(name string) (engine.Procedure, error) {
-	if name == "" {
+	if name == "" && b.Sequence != "" {
+		// The bench file's own sequence: a script path in it is relative
+		// to the file, like every path in the file.
 		name = b.Sequence
+		if isScriptPath(name) {
+			name = b.Rel(name)
+		}
 	}
 	if name == "" {
 		return engine.Procedure{}, fmt.Errorf("bench %s: no sequence named, and none given", b.Path)
@@ -140,7 +145,7 @@ func (b *Bench) Procedure(name string) (engine.Procedure, error) {
 	env := b.Env()
 	var p *script.Procedure
 	var probs script.Problems
-	if _, err := os.Stat(name); err == nil || strings.ContainsAny(name, "/.") {
+	if isScriptPath(name) {
 		p, probs = script.CheckFile(name, env)
 	} else {
 		p, probs = script.CheckBuiltin(name, env)
@@ -154,6 +159,14 @@ func (b *Bench) Procedure(name string) (engine.Procedure, error) {
 	}
 	proc := engine.FromFlat(flat)
 	return proc, nil
+}
+
+// isScriptPath tells a procedure script's path from a built-in's name.
+func isScriptPath(name string) bool {
+	if _, err := os.Stat(name); err == nil {
+		return true
+	}
+	return strings.ContainsAny(name, "/.")
 }
 
 // Config assembles the engine's configuration for a session on this

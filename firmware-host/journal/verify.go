@@ -303,3 +303,51 @@ func ListSessions(ctx context.Context, path string) ([]SessionSummary, error) {
 	}
 	return out, nil
 }
+
+// ErrNotVerified is wrapped by the error of a session that does not verify
+// (VerifySession): a reader must not trust its records.
+var ErrNotVerified = errors.New("journal does not verify")
+
+// VerifyError is a session (or file) that does not verify: the first
+// problem found, naming the record.
+type VerifyError struct {
+	Path    string
+	Problem Problem
+}
+
+func (e *VerifyError) Error() string {
+	return fmt.Sprintf("journal %s does not verify: %s", e.Path, e.Problem.String())
+}
+
+// Unwrap lets errors.Is(err, ErrNotVerified) find it.
+func (e *VerifyError) Unwrap() error { return ErrNotVerified }
+
+// VerifySession checks one session of this journal the way Verify checks
+// the file: every record's hash, signature (with this board's key) and
+// chain link, the session's shape, and its signed head. It is what a
+// resume runs before trusting anything the session recorded. The error
+// is a *VerifyError naming the first bad record.
+func (j *Journal) VerifySession(ctx context.Context, session string) error {
+	recs, err := readRecords(ctx, j.db, session, 0, 0)
+	if err != nil {
+		return fmt.Errorf("verify session %s: %w", session, err)
+	}
+	if len(recs) == 0 {
+		return &VerifyError{Path: j.path, Problem: Problem{Session: session, What: "no records of this session", Hint: hintMissing}}
+	}
+	if p := CheckSession(j.pub, recs); p != nil {
+		return &VerifyError{Path: j.path, Problem: *p}
+	}
+	h := headRow{session: session}
+	err = j.db.QueryRowContext(ctx, `SELECT seq, hash, head_sig, ended FROM heads WHERE session = ?`, session).Scan(&h.seq, &h.hash, &h.sig, &h.ended)
+	if errors.Is(err, sql.ErrNoRows) {
+		return &VerifyError{Path: j.path, Problem: Problem{Session: session, What: "records without a session head (the head row was deleted)", Hint: hintMissing}}
+	}
+	if err != nil {
+		return fmt.Errorf("verify session %s: read head: %w", session, err)
+	}
+	if p := h.check(j.pub, recs); p != nil {
+		return &VerifyError{Path: j.path, Problem: *p}
+	}
+	return nil
+}

@@ -137,10 +137,13 @@ type Procedure struct {
 
 // Journal is where the engine records the session. The board journal
 // (firmware-host/journal) implements it; Append is durable when it returns.
+// VerifySession checks a session's hash chain, signatures and signed head;
+// a resume runs it before trusting any record (an error names the record).
 type Journal interface {
 	Begin(ctx context.Context, s entry.Session) (string, error)
 	Append(ctx context.Context, session string, kind entry.Kind, payload any) (int64, error)
 	Envelopes(ctx context.Context, session string) ([]entry.Envelope, error)
+	VerifySession(ctx context.Context, session string) error
 }
 
 // Conditions is what a correction needs to know besides the reading.
@@ -225,6 +228,13 @@ type Limits struct {
 	Retries    int           // attempts per measurement before the step fails
 	LinkRetry  time.Duration // wait between reconnection attempts
 	LinkGiveUp time.Duration // give up waiting for a lost meter (0: wait forever)
+
+	// RecheckAfter: a session resumed after being idle this long (from its
+	// last record), or on another boot than its last record's, asks the
+	// pre-exposure checklist again: the room may have changed meanwhile
+	// (the door warning light off after a power cut). Default 10 minutes
+	// (common practice: a person who left the room checks it again).
+	RecheckAfter time.Duration
 }
 
 // DefaultLimits returns the settings used where a bench file says nothing.
@@ -247,6 +257,7 @@ func DefaultLimits() Limits {
 		MinPairs:         5,
 		Retries:          3,
 		LinkRetry:        time.Second,
+		RecheckAfter:     10 * time.Minute,
 	}
 }
 
@@ -315,6 +326,7 @@ func fillLimits(l *Limits) {
 	setF(&l.Target, d.Target)
 	setD(&l.MaxBeamOn, d.MaxBeamOn)
 	setD(&l.LinkRetry, d.LinkRetry)
+	setD(&l.RecheckAfter, d.RecheckAfter)
 	if l.MinPairs == 0 {
 		l.MinPairs = d.MinPairs
 	}

@@ -161,14 +161,15 @@ func (m *fakeMeter) Close() error { return nil }
 // memJournal is an in-memory journal. cutAfter > 0 simulates a power cut:
 // the append with that number fails and cancels the run's context.
 type memJournal struct {
-	mu       sync.Mutex
-	sessions map[string][]entry.Envelope
-	ended    map[string]bool
-	n        int
-	cutAfter int
-	cancel   context.CancelFunc
-	onCut    func()
-	clk      clock.Clock
+	mu        sync.Mutex
+	sessions  map[string][]entry.Envelope
+	ended     map[string]bool
+	n         int
+	cutAfter  int
+	cancel    context.CancelFunc
+	onCut     func()
+	clk       clock.Clock
+	verifyErr error
 }
 
 func newMemJournal(clk clock.Clock) *memJournal {
@@ -208,6 +209,14 @@ func (j *memJournal) Append(ctx context.Context, session string, kind entry.Kind
 		j.ended[session] = true
 	}
 	return seq, nil
+}
+
+// VerifySession implements Journal: the records live in memory, out of
+// reach of tampering; verifyErr (set by a test) is what it reports.
+func (j *memJournal) VerifySession(ctx context.Context, session string) error {
+	j.mu.Lock()
+	defer j.mu.Unlock()
+	return j.verifyErr
 }
 
 func (j *memJournal) Envelopes(ctx context.Context, session string) ([]entry.Envelope, error) {

@@ -2,9 +2,12 @@ package engine
 
 import (
 	"context"
+	"database/sql"
+	"errors"
 	"path/filepath"
 	"strings"
 	"testing"
+	"time"
 
 	"kermalux/firmware-host/journal"
 	"kermalux/procedures/entry"
@@ -28,21 +31,19 @@ func (c *cutJournal) Append(ctx context.Context, s string, k entry.Kind, p any) 
 	return c.Journal.Append(ctx, s, k, p)
 }
 
-// With the real board journal (SQLite, hash-chained, signed): a run cut
-// in the middle of the conversion factor measurement leaves an unfinished
-// session; reopening the file and resuming it completes the session with
-// each measurement taken once, and the journal still verifies.
-func TestResumeWithBoardJournal(t *testing.T) {
-	dir := t.TempDir()
-	path := filepath.Join(dir, "journal.db")
+// cutSession runs cfSteps on a board journal at dir until the append
+// numbered cut (the process dies there), on boot "boot-a", and returns the
+// rig and the interrupted session's id.
+func cutSession(t *testing.T, dir string, cut int) (*rig, string) {
+	t.Helper()
 	r := newRig(cfSteps())
-	jr, err := journal.Open(path, journal.Options{KeyDir: filepath.Join(dir, "keys"), Clock: r.clk, BootID: func() string { return "boot-a" }})
+	r.cfg.BootID = "boot-a"
+	jr, err := journal.Open(filepath.Join(dir, "journal.db"), journal.Options{KeyDir: filepath.Join(dir, "keys"), Clock: r.clk, BootID: func() string { return "boot-a" }})
 	if err != nil {
 		t.Fatal(err)
 	}
 	ctx, cancel := context.WithCancel(context.Background())
-	cj := &cutJournal{Journal: jr, cut: 60, cancel: cancel}
-	r.cfg.Journal = cj
+	r.cfg.Journal = &cutJournal{Journal: jr, cut: cut, cancel: cancel}
 	sum, err := r.run(ctx)
 	cancel()
 	if err == nil {
@@ -50,48 +51,229 @@ func TestResumeWithBoardJournal(t *testing.T) {
 	}
 	jr.Close()
 	r.phys.schedule(false, 0)
+	return r, sum.Session
+}
 
-	jr, err = journal.Open(path, journal.Options{KeyDir: filepath.Join(dir, "keys"), Clock: r.clk, BootID: func() string { return "boot-b" }})
+// reopen opens the board journal of dir again, on boot.
+func reopen(t *testing.T, r *rig, dir, boot string) *journal.Journal {
+	t.Helper()
+	jr, err := journal.Open(filepath.Join(dir, "journal.db"), journal.Options{KeyDir: filepath.Join(dir, "keys"), Clock: r.clk, BootID: func() string { return boot }})
 	if err != nil {
 		t.Fatal(err)
 	}
-	defer jr.Close()
-	un, err := jr.Unfinished(context.Background())
-	if err != nil || len(un) != 1 || un[0].ID != sum.Session {
-		t.Fatalf("unfinished %v, %v", un, err)
-	}
+	t.Cleanup(func() { jr.Close() })
 	r.cfg.Journal = jr
-	r.cfg.Resume = sum.Session
-	checksBefore := countAction(r, panel.ActCheck)
-	sum2, err := r.run(context.Background())
+	r.cfg.BootID = boot
+	return jr
+}
+
+// With the real board journal (SQLite, hash-chained, signed): a run cut
+// in the middle of the conversion factor measurement leaves an unfinished
+// session; reopening the file and resuming it completes the session with
+// each measurement taken once, and the journal still verifies. On the
+// same boot and soon after, the checklist is not asked again; after a
+// restart of the board (another boot id) or a long idle time it is asked
+// again, journalled as a retake with the reason, before any beam prompt.
+func TestResumeWithBoardJournal(t *testing.T) {
+	for _, tc := range []struct {
+		name    string
+		boot    string
+		idle    time.Duration
+		recheck string // "" : checklist not asked again; else the reason journalled
+	}{
+		{"same boot", "boot-a", time.Minute, ""},
+		{"restarted", "boot-b", time.Minute, "the board was restarted"},
+		{"idle", "boot-a", 11 * time.Minute, "the session was idle for 11 minutes"},
+		{"unknown boot, idle", "unknown", 11 * time.Minute, "idle for 11 minutes"},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			dir := t.TempDir()
+			r, id := cutSession(t, dir, 90)
+			r.clk.Advance(tc.idle)
+			jr := reopen(t, r, dir, tc.boot)
+			un, err := jr.Unfinished(context.Background())
+			if err != nil || len(un) != 1 || un[0].ID != id {
+				t.Fatalf("unfinished %v, %v", un, err)
+			}
+			r.cfg.Resume = id
+			checksBefore := countAction(r, panel.ActCheck)
+			promptsBefore := len(r.pan.Prompts())
+			sum2, err := r.run(context.Background())
+			if err != nil {
+				t.Fatal(err)
+			}
+			if sum2.Outcome != "complete" || len(sum2.Results) != 1 {
+				t.Fatalf("outcome %s, %d results", sum2.Outcome, len(sum2.Results))
+			}
+			asked := countAction(r, panel.ActCheck) - checksBefore
+			if tc.recheck == "" && asked != 0 {
+				t.Errorf("checklist asked again (%d lines) after a resume on the same boot", asked)
+			}
+			if tc.recheck != "" {
+				if asked != len(safetyItems) {
+					t.Errorf("%d checklist lines asked again, want %d", asked, len(safetyItems))
+				}
+				// Every line again before the first beam prompt of the resume.
+				n := 0
+				for _, p := range r.pan.Prompts()[promptsBefore:] {
+					if p.Action == panel.ActCheck {
+						n++
+					}
+					if p.Action == panel.ActBeamOn && n < len(safetyItems) {
+						t.Fatalf("beam prompt after %d of %d checklist lines", n, len(safetyItems))
+					}
+				}
+			}
+			envs, err := jr.Envelopes(context.Background(), id)
+			if err != nil {
+				t.Fatal(err)
+			}
+			measured, retakes := 0, 0
+			for _, e := range envs {
+				if e.Kind == entry.KindEvent && containsName(e.Payload, evMeasured) {
+					measured++
+				}
+				if e.Kind == entry.KindStep && strings.Contains(string(e.Payload), `"state":"retake"`) && strings.Contains(string(e.Payload), `"id":"safety"`) {
+					retakes++
+					if tc.recheck == "" || !strings.Contains(string(e.Payload), tc.recheck) {
+						t.Errorf("checklist retake %s, want reason %q", e.Payload, tc.recheck)
+					}
+				}
+			}
+			if tc.recheck != "" && retakes != 1 {
+				t.Errorf("%d checklist retakes journalled, want 1", retakes)
+			}
+			if measured != 2 { // the dark reading and the conversion factor reading
+				t.Errorf("%d measurements accepted, want 2", measured)
+			}
+			rep, err := journal.Verify(context.Background(), filepath.Join(dir, "journal.db"))
+			if err != nil || !rep.OK() {
+				t.Fatalf("verify: %v (%+v)", err, rep.Problems)
+			}
+			if len(rep.Unfinished) != 0 {
+				t.Errorf("still unfinished: %v", rep.Unfinished)
+			}
+		})
+	}
+}
+
+// A session that does not verify is not resumed: a record edited after
+// the kill (a dark reading multiplied by 1000, a "checklist done" record
+// forged with a fresh hash but no signature) makes run refuse, naming the
+// record, before anything is said or asked.
+func TestResumeRefusesTamperedJournal(t *testing.T) {
+	for _, tc := range []struct {
+		name, sql, want string
+	}{
+		{"dark edited", `UPDATE records SET payload = replace(payload, '\"l\":', '\"l\":1000') WHERE kind = 'event' AND payload LIKE '%measurement_done%'`, "hash mismatch"},
+		{"record deleted", `DELETE FROM records WHERE seq = 5`, "missing"},
+		{"last record cut", `DELETE FROM records WHERE seq = (SELECT max(seq) FROM records)`, "signed head"},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			dir := t.TempDir()
+			r, id := cutSession(t, dir, 90)
+			db, err := sql.Open("sqlite", filepath.Join(dir, "journal.db"))
+			if err != nil {
+				t.Fatal(err)
+			}
+			res, err := db.Exec(tc.sql)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if n, _ := res.RowsAffected(); n != 1 {
+				t.Fatalf("%d rows changed", n)
+			}
+			db.Close()
+			reopen(t, r, dir, "boot-a")
+			r.cfg.Resume = id
+			prompts := len(r.pan.Prompts())
+			_, err = r.run(context.Background())
+			var ve *journal.VerifyError
+			if !errors.As(err, &ve) || !errors.Is(err, journal.ErrNotVerified) {
+				t.Fatalf("resume of a tampered journal: %v", err)
+			}
+			if !strings.Contains(err.Error(), tc.want) || !strings.Contains(err.Error(), "record ") {
+				t.Errorf("error %q does not name the record and %q", err, tc.want)
+			}
+			if n := len(r.pan.Prompts()); n != prompts {
+				t.Errorf("%d prompts after refusing", n-prompts)
+			}
+		})
+	}
+}
+
+// A checklist whose done record is in the journal but whose lines were
+// never acknowledged (a forged record signed with a stolen key is the
+// only way, since the journal verifies) is asked again, line by line,
+// before any beam prompt.
+func TestResumeAsksChecklistWithoutAcks(t *testing.T) {
+	r := newRig(cfSteps())
+	ctx := context.Background()
+	id, err := r.jr.Begin(context.Background(), entry.Session{Procedure: "test"})
 	if err != nil {
 		t.Fatal(err)
 	}
-	if sum2.Outcome != "complete" || len(sum2.Results) != 1 {
-		t.Fatalf("outcome %s, %d results", sum2.Outcome, len(sum2.Results))
-	}
-	if countAction(r, panel.ActCheck) != checksBefore {
-		t.Error("checklist asked again after the resume")
-	}
-	envs, err := jr.Envelopes(context.Background(), sum.Session)
-	if err != nil {
-		t.Fatal(err)
-	}
-	measured := 0
-	for _, e := range envs {
-		if e.Kind == entry.KindEvent && containsName(e.Payload, evMeasured) {
-			measured++
+	steps := cfSteps()
+	// A session whose checklist step says done after only one answer.
+	for _, rec := range []struct {
+		k entry.Kind
+		p any
+	}{
+		{entry.KindStep, entry.Step{Index: 1, Of: len(steps), ID: "hello", State: entry.StepStarted}},
+		{entry.KindStep, entry.Step{Index: 1, Of: len(steps), ID: "hello", State: entry.StepDone}},
+		{entry.KindStep, entry.Step{Index: 2, Of: len(steps), ID: "safety", State: entry.StepStarted}},
+		{entry.KindPrompt, entry.Prompt{Step: 2, Action: string(panel.ActCheck), Text: safetyItems[0], Asked: true}},
+		{entry.KindAck, entry.Ack{Step: 2, PromptSeq: 5, Answer: string(panel.Ack), Text: safetyItems[0]}},
+		{entry.KindStep, entry.Step{Index: 2, Of: len(steps), ID: "safety", State: entry.StepDone}},
+	} {
+		if _, err := r.jr.Append(ctx, id, rec.k, rec.p); err != nil {
+			t.Fatal(err)
 		}
 	}
-	if measured != 2 { // the dark reading and the conversion factor reading
-		t.Errorf("%d measurements accepted, want 2", measured)
+	r.cfg.Resume = id
+	sum, err := r.run(ctx)
+	if err != nil {
+		t.Fatal(err)
 	}
-	rep, err := journal.Verify(context.Background(), path)
-	if err != nil || !rep.OK() {
-		t.Fatalf("verify: %v (%+v)", err, rep.Problems)
+	if sum.Outcome != "complete" {
+		t.Fatalf("outcome %s", sum.Outcome)
 	}
-	if len(rep.Unfinished) != 0 {
-		t.Errorf("still unfinished: %v", rep.Unfinished)
+	n := 0
+	for _, p := range r.pan.Prompts() {
+		if p.Action == panel.ActCheck {
+			n++
+		}
+		if p.Action == panel.ActBeamOn && n < len(safetyItems) {
+			t.Fatalf("beam prompt after %d of %d checklist lines", n, len(safetyItems))
+		}
+	}
+	if n != len(safetyItems) {
+		t.Errorf("%d checklist lines asked, want %d", n, len(safetyItems))
+	}
+	var retake []entry.Step
+	for _, s := range records[entry.Step](r.jr, id, entry.KindStep) {
+		if s.ID == "safety" && s.State == entry.StepRetake {
+			retake = append(retake, s)
+		}
+	}
+	if len(retake) != 1 || !strings.Contains(retake[0].Reason, "3 of its 4 lines") {
+		t.Errorf("retake records %+v", retake)
+	}
+}
+
+// A journal that does not verify: the fake's verification error stops
+// the resume before anything is said.
+func TestResumeStopsWhenVerifyFails(t *testing.T) {
+	r := newRig(cfSteps())
+	id, _ := r.jr.Begin(context.Background(), entry.Session{Procedure: "test"})
+	r.jr.verifyErr = &journal.VerifyError{Path: "j", Problem: journal.Problem{Session: id, Seq: 3, Kind: entry.KindStep, What: "hash mismatch"}}
+	r.cfg.Resume = id
+	_, err := r.run(context.Background())
+	if !errors.Is(err, journal.ErrNotVerified) || !strings.Contains(err.Error(), "record 3 (step)") {
+		t.Fatalf("err %v", err)
+	}
+	if len(r.pan.Messages())+len(r.pan.Prompts()) != 0 {
+		t.Error("spoke before refusing")
 	}
 }
 

@@ -47,9 +47,10 @@ func (e *Engine) run(ctx context.Context) (Summary, error) {
 	sum := Summary{Of: n, Outcome: "aborted"}
 
 	var st *state
+	var info resumeInfo
 	var err error
 	if cfg.Resume != "" {
-		st, err = e.rebuild(ctx, cfg.Resume)
+		st, info, err = e.rebuild(ctx, cfg.Resume)
 		if err != nil {
 			return sum, err
 		}
@@ -79,6 +80,12 @@ func (e *Engine) run(ctx context.Context) (Summary, error) {
 		}
 	}
 
+	var recheck string
+	if st.resumed {
+		if recheck, err = e.recheckChecklist(ctx, info); err != nil {
+			return e.finish(ctx, sum, err)
+		}
+	}
 	first := 0
 	for first < n && st.done[first+1] {
 		first++
@@ -95,7 +102,11 @@ func (e *Engine) run(ctx context.Context) (Summary, error) {
 		if first < n {
 			_ = e.journal(ctx, entry.KindStep, entry.Step{Index: first + 1, Of: n, ID: steps[first].ID, Kind: string(steps[first].Kind), FieldMode: steps[first].FieldMode, State: entry.StepResumed})
 		}
-		if err := e.say(ctx, first+1, panel.Message{Text: fmt.Sprintf("Resuming %s at step %d of %d.", where, min(first+1, n), n), Level: panel.Info}); err != nil {
+		text := fmt.Sprintf("Resuming %s at step %d of %d.", where, min(first+1, n), n)
+		if recheck != "" {
+			text += " " + recheck
+		}
+		if err := e.say(ctx, first+1, panel.Message{Text: text, Level: panel.Info}); err != nil {
 			return e.finish(ctx, sum, err)
 		}
 	} else {
@@ -171,6 +182,42 @@ func (e *Engine) run(ctx context.Context) (Summary, error) {
 	}
 	sum.Outcome = "complete"
 	return e.finish(ctx, sum, nil)
+}
+
+// recheckChecklist un-does, on a resume, every pre-exposure checklist that
+// must be asked again: one whose done record lacks the acknowledgement of
+// a line, and all of them when the board restarted or the session was
+// idle (recheckReason). Each is journalled as a retake with its reason; the
+// words returned say why, for the resume announcement.
+func (e *Engine) recheckChecklist(ctx context.Context, info resumeInfo) (string, error) {
+	st, steps := e.st, e.cfg.Procedure.Steps
+	var said []string
+	for i, s := range steps {
+		idx := i + 1
+		if missing, ok := info.unacked[idx]; ok {
+			reason := fmt.Sprintf("the journal holds no acknowledgement of %d of its %d lines (first: %q)", len(missing), len(s.Items), missing[0])
+			if err := e.journal(ctx, entry.KindStep, entry.Step{Index: idx, Of: len(steps), ID: s.ID, Kind: string(s.Kind), State: entry.StepRetake, Reason: reason}); err != nil {
+				return "", err
+			}
+			said = append(said, "The safety checklist was not fully acknowledged: it is asked again.")
+		}
+	}
+	why := e.recheckReason(info)
+	if why == "" || !st.checklist {
+		return strings.Join(said, " "), nil
+	}
+	for i, s := range steps {
+		idx := i + 1
+		if s.Safety && st.done[idx] {
+			st.done[idx] = false
+			if err := e.journal(ctx, entry.KindStep, entry.Step{Index: idx, Of: len(steps), ID: s.ID, Kind: string(s.Kind), State: entry.StepRetake, Reason: why + ": confirm the pre-exposure checklist again"}); err != nil {
+				return "", err
+			}
+		}
+	}
+	st.checklist = false
+	said = append(said, fmt.Sprintf("Since %s, confirm the safety checklist again.", why))
+	return strings.Join(said, " "), nil
 }
 
 // previousRetakable is the last step before i that a retake can redo.

@@ -10,6 +10,7 @@ import (
 
 	"kermalux/drivers/units"
 	"kermalux/procedures/entry"
+	"kermalux/procedures/panel"
 )
 
 // posStat is the outcome of one accepted reading position of a measurement.
@@ -80,45 +81,100 @@ func (st *state) setBeamOn(d time.Duration, l Limits) {
 	}
 }
 
-// rebuild reconstructs the state of session id from its journal records.
-func (e *Engine) rebuild(ctx context.Context, id string) (*state, error) {
+// resumeInfo is what a resume learned about the session besides its state:
+// safety checklists whose done record lacks an acknowledgement of every
+// line, and the boot and wall time of the session's last record.
+type resumeInfo struct {
+	unacked  map[int][]string // safety step index → lines without an acknowledgement record
+	lastBoot string
+	lastWall time.Time
+}
+
+// rebuild verifies session id (hash chain, signatures, signed head) and
+// reconstructs its state from its records. A session that does not verify
+// is refused, naming the record: nothing in it can be trusted. A safety
+// checklist counts as acknowledged only when the journal holds, after the
+// step last started, an "ack" answer to the "check" prompt of each of its
+// lines; otherwise it is asked again.
+func (e *Engine) rebuild(ctx context.Context, id string) (*state, resumeInfo, error) {
+	info := resumeInfo{unacked: map[int][]string{}}
+	if err := e.cfg.Journal.VerifySession(ctx, id); err != nil {
+		return nil, info, fmt.Errorf("resume session %s: refused: %w", id, err)
+	}
 	envs, err := e.cfg.Journal.Envelopes(ctx, id)
 	if err != nil {
-		return nil, fmt.Errorf("resume session %s: %w", id, err)
+		return nil, info, fmt.Errorf("resume session %s: %w", id, err)
 	}
 	if len(envs) == 0 {
-		return nil, fmt.Errorf("resume session %s: the journal has no records of it", id)
+		return nil, info, fmt.Errorf("resume session %s: the journal has no records of it", id)
 	}
 	st := newState(e.cfg.Limits)
 	st.session = id
 	st.resumed = true
 	steps := e.cfg.Procedure.Steps
 	var beam float64
+	checks := map[int64]entry.Prompt{} // "check" prompts by seq
+	acked := map[int]map[string]bool{} // step index → lines acknowledged since it started
+	safeDone := map[int]bool{}         // safety steps done with every line acknowledged
 	for _, env := range envs {
 		switch env.Kind {
 		case entry.KindSessionEnd:
-			return nil, fmt.Errorf("resume session %s: it has already ended", id)
+			return nil, info, fmt.Errorf("resume session %s: it has already ended", id)
 		case entry.KindSession:
 			var s entry.Session
 			if err := json.Unmarshal(env.Payload, &s); err == nil && e.cfg.Procedure.Hash != "" && s.ProcedureHash != "" && s.ProcedureHash != e.cfg.Procedure.Hash {
-				return nil, fmt.Errorf("resume session %s: it ran procedure %s with a different text (hash %.12s, now %.12s)", id, s.Procedure, s.ProcedureHash, e.cfg.Procedure.Hash)
+				return nil, info, fmt.Errorf("resume session %s: it ran procedure %s with a different text (hash %.12s, now %.12s)", id, s.Procedure, s.ProcedureHash, e.cfg.Procedure.Hash)
+			}
+		case entry.KindPrompt:
+			var p entry.Prompt
+			if err := json.Unmarshal(env.Payload, &p); err == nil && p.Asked && p.Action == string(panel.ActCheck) {
+				checks[env.Seq] = p
+			}
+		case entry.KindAck:
+			var a entry.Ack
+			if err := json.Unmarshal(env.Payload, &a); err != nil {
+				continue
+			}
+			if p, ok := checks[a.PromptSeq]; ok && p.Step == a.Step && a.Answer == string(panel.Ack) && a.PromptSeq < env.Seq {
+				if acked[a.Step] == nil {
+					acked[a.Step] = map[string]bool{}
+				}
+				acked[a.Step][p.Text] = true
 			}
 		case entry.KindStep:
 			var s entry.Step
 			if err := json.Unmarshal(env.Payload, &s); err != nil {
-				return nil, fmt.Errorf("resume session %s: record %d: %w", id, env.Seq, err)
+				return nil, info, fmt.Errorf("resume session %s: record %d: %w", id, env.Seq, err)
 			}
 			if s.Index < 1 || s.Index > len(steps) || steps[s.Index-1].ID != s.ID {
-				return nil, fmt.Errorf("resume session %s: record %d names step %d %q, which is not in this procedure", id, env.Seq, s.Index, s.ID)
+				return nil, info, fmt.Errorf("resume session %s: record %d names step %d %q, which is not in this procedure", id, env.Seq, s.Index, s.ID)
 			}
+			step := steps[s.Index-1]
 			switch s.State {
+			case entry.StepStarted:
+				delete(acked, s.Index)
 			case entry.StepDone, entry.StepSkipped:
 				st.done[s.Index] = true
-				if steps[s.Index-1].Safety && s.State == entry.StepDone {
-					st.checklist = true
+				if step.Safety && s.State == entry.StepDone {
+					var missing []string
+					for _, item := range step.Items {
+						if !acked[s.Index][item] {
+							missing = append(missing, item)
+						}
+					}
+					if len(missing) > 0 {
+						// Done without the answers: ask it again.
+						st.done[s.Index] = false
+						info.unacked[s.Index] = missing
+					} else {
+						safeDone[s.Index] = true
+						delete(info.unacked, s.Index)
+					}
 				}
 			case entry.StepRetake:
 				st.done[s.Index] = false
+				delete(safeDone, s.Index)
+				delete(acked, s.Index)
 				delete(st.meas, s.ID)
 			}
 		case entry.KindValue:
@@ -143,7 +199,7 @@ func (e *Engine) rebuild(ctx context.Context, id string) (*state, error) {
 			if ev.Name == evMeasured {
 				var p posStat
 				if err := json.Unmarshal([]byte(ev.Detail), &p); err != nil {
-					return nil, fmt.Errorf("resume session %s: record %d: measurement not readable: %w", id, env.Seq, err)
+					return nil, info, fmt.Errorf("resume session %s: record %d: measurement not readable: %w", id, env.Seq, err)
 				}
 				st.putPos(p)
 			}
@@ -158,9 +214,32 @@ func (e *Engine) rebuild(ctx context.Context, id string) (*state, error) {
 			}
 		}
 	}
+	st.checklist = len(safeDone) > 0
+	last := envs[len(envs)-1]
+	info.lastBoot, info.lastWall = last.BootID, last.Wall
 	st.setBeamOn(time.Duration(beam*float64(time.Second)), e.cfg.Limits)
-	return st, nil
+	return st, info, nil
 }
+
+// recheckReason says why a resumed session must confirm its pre-exposure
+// checklist again ("" if it need not): the board booted since the
+// session's last record (a power cut), or the session was idle longer
+// than Limits.RecheckAfter. An unknown boot id on either side decides
+// nothing; the idle time still does.
+func (e *Engine) recheckReason(info resumeInfo) string {
+	now := e.cfg.BootID
+	if known(info.lastBoot) && known(now) && info.lastBoot != now {
+		return "the board was restarted"
+	}
+	if !info.lastWall.IsZero() {
+		if idle := e.cfg.Clock.Now().Sub(info.lastWall); idle > e.cfg.Limits.RecheckAfter {
+			return fmt.Sprintf("the session was idle for %s", spokenDuration(idle))
+		}
+	}
+	return ""
+}
+
+func known(boot string) bool { return boot != "" && boot != "unknown" }
 
 // putPos stores an accepted position, replacing an earlier one of the same index.
 func (st *state) putPos(p posStat) {
