@@ -5,6 +5,7 @@ import (
 	"encoding/hex"
 	"errors"
 	"fmt"
+	"io"
 	"math"
 	"os"
 	"path/filepath"
@@ -78,11 +79,50 @@ func (c *Certificate) RelStdUnc() float64 {
 	return c.Expanded / c.CoverageFactor
 }
 
+// Plausible values in a certificate: what no meter or laboratory could
+// have is refused with its file and line, so that a typing slip (or a
+// file made to switch the correction off) never becomes a calibrated
+// reading.
+const (
+	// MinFactor and MaxFactor bound a calibration coefficient: the meters
+	// kermalux reads print air kerma rate and luminance in their units
+	// already, so the coefficient is a correction near 1; one beyond a
+	// factor of two means the meter is broken or the wrong number was
+	// copied (common practice: such a meter goes back for repair, not
+	// into service).
+	MinFactor, MaxFactor = 0.5, 2.0
+	// Reference conditions of a vented chamber: 20 °C (IAEA TRS-398) or
+	// 22 °C (AAPM TG-61) and 101.325 kPa; the bounds leave room for
+	// other stated conditions and nothing more.
+	MinRefTemperature, MaxRefTemperature = 0.0, 40.0
+	MinRefPressure, MaxRefPressure       = 80.0, 110.0
+	// MaxResolution bounds a display resolution in the canonical unit
+	// (µGy/s, µGy, cd/m²): a meter that resolves nothing finer than 100 of
+	// these cannot measure an intensifier.
+	MaxResolution = 100.0
+	// MaxCertificateBytes bounds a certificate file: a transcribed
+	// certificate is a few hundred bytes.
+	MaxCertificateBytes = 64 << 10
+	// MaxTextLen bounds each text field (number, laboratory, model,
+	// serial), in characters; notes may be ten times longer.
+	MaxTextLen = 200
+)
+
+func plausibleFactor(f float64) bool { return f >= MinFactor && f <= MaxFactor }
+
 // LoadCertificate reads and checks a certificate file.
 func LoadCertificate(path string) (*Certificate, error) {
-	data, err := os.ReadFile(path)
+	f, err := os.Open(path)
 	if err != nil {
 		return nil, fmt.Errorf("reading certificate: %w", err)
+	}
+	defer f.Close()
+	data, err := io.ReadAll(io.LimitReader(f, MaxCertificateBytes+1))
+	if err != nil {
+		return nil, fmt.Errorf("reading certificate %s: %w", path, err)
+	}
+	if len(data) > MaxCertificateBytes {
+		return nil, &FileError{File: path, Msg: fmt.Sprintf("larger than %d KiB: not a certificate file", MaxCertificateBytes>>10)}
 	}
 	return ParseCertificate(path, data)
 }
@@ -133,11 +173,16 @@ func ParseCertificate(name string, data []byte) (*Certificate, error) {
 		if ch != nil {
 			c.Vented, _ = ch.boolean("vented", true)
 			if c.Vented {
-				c.RefTemperature, _ = ch.quantity("reference_temperature", units.Temperature, true)
+				t, ok := ch.quantity("reference_temperature", units.Temperature, true)
+				if ok && (t < MinRefTemperature || t > MaxRefTemperature) {
+					_, l, _ := ch.scalar("reference_temperature", false)
+					r.fail(l, "chamber.reference_temperature", "must lie between %g and %g °C (codes of practice use 20 or 22 °C), got %g", MinRefTemperature, MaxRefTemperature, t)
+				}
+				c.RefTemperature = t
 				p, ok := ch.quantity("reference_pressure", units.Pressure, true)
-				if ok && p <= 0 {
+				if ok && (p < MinRefPressure || p > MaxRefPressure) {
 					_, l, _ := ch.scalar("reference_pressure", false)
-					r.fail(l, "chamber.reference_pressure", "must be positive")
+					r.fail(l, "chamber.reference_pressure", "must lie between %g and %g kPa (codes of practice use 101.325 kPa), got %g", MinRefPressure, MaxRefPressure, p)
 				}
 				c.RefPressure = p
 			}
@@ -154,9 +199,9 @@ func ParseCertificate(name string, data []byte) (*Certificate, error) {
 		r.fail(l, "coefficients", "give either coefficient or coefficients, not both")
 	case hasOne:
 		v, ok := top.number("coefficient", true)
-		if ok && v <= 0 {
+		if ok && !plausibleFactor(v) {
 			_, l := top.node("coefficient")
-			r.fail(l, "coefficient", "must be positive, got %g", v)
+			r.fail(l, "coefficient", "must lie between %g and %g (a meter that reads true within a factor of two), got %g", MinFactor, MaxFactor, v)
 		}
 		c.Coefficient = v
 	case hasTable:
@@ -190,9 +235,9 @@ func ParseCertificate(name string, data []byte) (*Certificate, error) {
 	if top.has("resolution") && c.Quantity.Valid() {
 		q := c.Quantity
 		v, ok := top.quantity("resolution", q, false)
-		if ok && v <= 0 {
+		if ok && (v <= 0 || v > MaxResolution) {
 			_, l := top.node("resolution")
-			r.fail(l, "resolution", "must be positive")
+			r.fail(l, "resolution", "must be positive and at most %g %s, got %g", MaxResolution, units.Canonical(q), v)
 		}
 		c.Resolution = v
 	}
@@ -234,8 +279,8 @@ func readTable(r *reader, t *object, c *Certificate) {
 		pt.Quality.HVL, _ = p.number("hvl_mm_al", false)
 		pt.Quality.AddedAl, _ = p.number("added_al_mm", false)
 		f, ok := p.number("factor", true)
-		if ok && f <= 0 {
-			r.fail(pt.Line, path+".factor", "must be positive, got %g", f)
+		if ok && !plausibleFactor(f) {
+			r.fail(pt.Line, path+".factor", "must lie between %g and %g (a meter that reads true within a factor of two), got %g", MinFactor, MaxFactor, f)
 		}
 		pt.Factor = f
 		if r.err != nil {

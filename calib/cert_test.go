@@ -128,7 +128,23 @@ func TestParseErrorsNameLineAndField(t *testing.T) {
 		{"unknown key", func(s string) string { return strings.Replace(s, "laboratory:", "labratory:", 1) }, 2, "labratory", "unknown field"},
 		{"wrong unit", func(s string) string { return strings.Replace(s, "22 °C", "22 kPa", 1) }, 11, "chamber.reference_temperature", "not a unit of temperature"},
 		{"factor not a number", func(s string) string { return strings.Replace(s, "factor: 1.00}", "factor: one}", 1) }, 17, "coefficients.points[1].factor", "number"},
-		{"negative factor", func(s string) string { return strings.Replace(s, "factor: 1.00}", "factor: -1}", 1) }, 17, "coefficients.points[1].factor", "positive"},
+		{"negative factor", func(s string) string { return strings.Replace(s, "factor: 1.00}", "factor: -1}", 1) }, 17, "coefficients.points[1].factor", "between 0.5 and 2"},
+		// Issue 14 item 15: what no meter could have is refused with its line.
+		{"factor 1e308", func(s string) string { return strings.Replace(s, "factor: 1.00}", "factor: 1e308}", 1) }, 17, "coefficients.points[1].factor", "between 0.5 and 2"},
+		{"factor .nan", func(s string) string { return strings.Replace(s, "factor: 1.00}", "factor: .nan}", 1) }, 17, "coefficients.points[1].factor", "number"},
+		{"factor .inf", func(s string) string { return strings.Replace(s, "factor: 1.00}", "factor: .inf}", 1) }, 17, "coefficients.points[1].factor", "number"},
+		{"one coefficient NaN", func(s string) string {
+			return s[:strings.Index(s, "coefficients:")] + "coefficient: NaN\n" + s[strings.Index(s, "uncertainty:"):]
+		}, 13, "coefficient", "number"},
+		{"one coefficient 1e308", func(s string) string {
+			return s[:strings.Index(s, "coefficients:")] + "coefficient: 1e308\n" + s[strings.Index(s, "uncertainty:"):]
+		}, 13, "coefficient", "between 0.5 and 2"},
+		{"serial with right-to-left override", func(s string) string { return strings.Replace(s, "serial: SN-1", "serial: \"SN-\u202E1-NS\"", 1) }, 5, "meter.serial", `U+202E`},
+		{"serial with bell", func(s string) string { return strings.Replace(s, "serial: SN-1", "serial: \"SN-1\\a\"", 1) }, 5, "meter.serial", `U+0007`},
+		{"model with zero-width space", func(s string) string { return strings.Replace(s, "model: Test Meter", "model: \"Test\u200BMeter\"", 1) }, 4, "meter.model", `U+200B`},
+		{"serial too long", func(s string) string { return strings.Replace(s, "serial: SN-1", "serial: "+strings.Repeat("9", 201), 1) }, 5, "meter.serial", "longer than the 200"},
+		{"reference pressure 1e308", func(s string) string { return strings.Replace(s, "101.325 kPa", "1e308 kPa", 1) }, 12, "chamber.reference_pressure", "between 80 and 110"},
+		{"reference temperature 293 °C", func(s string) string { return strings.Replace(s, "22 °C", "293 °C", 1) }, 11, "chamber.reference_temperature", "between 0 and 40"},
 		{"duplicate point", func(s string) string { return strings.Replace(s, "hvl_mm_al: 8", "hvl_mm_al: 4", 1) }, 17, "coefficients.points", "same hvl"},
 		{"no coefficient", func(s string) string {
 			return s[:strings.Index(s, "coefficients:")] + s[strings.Index(s, "uncertainty:"):]
@@ -289,5 +305,37 @@ func TestLoadDirAndPick(t *testing.T) {
 	certs, err = LoadDir(dir)
 	if len(certs) != 1 || err == nil || !strings.Contains(err.Error(), "broken.yaml") {
 		t.Errorf("%d certificates, %v", len(certs), err)
+	}
+}
+
+// TestRefusedTextIsPrintedEscaped: the error that refuses a serial with a
+// text-direction override shows it escaped, so the message itself cannot
+// be reordered on a terminal or in a report (issue 14 item 15).
+func TestRefusedTextIsPrintedEscaped(t *testing.T) {
+	bad := strings.Replace(valid, "serial: SN-1", "serial: \"SN-\u202E1-NS\"", 1)
+	_, err := ParseCertificate("rlo.yaml", []byte(bad))
+	if err == nil {
+		t.Fatal("a serial with U+202E was accepted")
+	}
+	if strings.ContainsRune(err.Error(), '\u202e') || !strings.Contains(err.Error(), `\u202e`) {
+		t.Errorf("error %q must show the override escaped", err)
+	}
+	if !strings.HasPrefix(err.Error(), "rlo.yaml:5:") {
+		t.Errorf("error %q does not name file and line", err)
+	}
+}
+
+// TestLoadCertificateBoundsSize: a file far larger than any certificate is
+// refused before it is parsed.
+func TestLoadCertificateBoundsSize(t *testing.T) {
+	path := filepath.Join(t.TempDir(), "huge.yaml")
+	big := valid + "notes: |\n" + strings.Repeat("  "+strings.Repeat("x", 100)+"\n", 1000)
+	if err := os.WriteFile(path, []byte(big), 0o600); err != nil {
+		t.Fatal(err)
+	}
+	_, err := LoadCertificate(path)
+	var fe *FileError
+	if !errors.As(err, &fe) || !strings.Contains(fe.Msg, "larger than") || fe.File != path {
+		t.Errorf("error = %v, want a file error saying the file is too large", err)
 	}
 }

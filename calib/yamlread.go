@@ -6,6 +6,8 @@ import (
 	"strconv"
 	"strings"
 	"time"
+	"unicode"
+	"unicode/utf8"
 
 	"github.com/goccy/go-yaml"
 	"github.com/goccy/go-yaml/ast"
@@ -118,6 +120,9 @@ func (r *reader) asObject(n ast.Node, path string, line int, allowed ...string) 
 	for _, p := range pairs {
 		key := strings.TrimSpace(keyText(p.Key))
 		if !contains(allowed, key) {
+			if _, _, bad := badRune(key, false); bad {
+				key = strconv.QuoteToASCII(key)
+			}
 			r.fail(lineOf(p.Key), join(path, key), "unknown field (allowed here: %s)", strings.Join(allowed, ", "))
 			continue
 		}
@@ -210,12 +215,59 @@ func (o *object) scalar(key string, required bool) (string, int, bool) {
 	}
 }
 
+// text reads a text field. It refuses control characters and the
+// invisible format characters (text-direction overrides such as U+202E,
+// zero-width joiners, line separators): a serial that prints differently
+// from what it holds must not match a meter's, nor mislead a reader of the
+// report. Free-text notes may hold line breaks and tabs; every other field
+// is one line. Each field is bounded in length ([MaxTextLen]).
 func (o *object) text(key string, required bool) string {
 	s, line, ok := o.scalar(key, required)
-	if ok && s == "" && required {
+	if !ok {
+		return s
+	}
+	if s == "" && required {
 		o.r.fail(line, join(o.path, key), "empty")
 	}
+	limit, multiline := MaxTextLen, false
+	if key == "notes" {
+		limit, multiline = 10*MaxTextLen, true
+	}
+	if n := utf8.RuneCountInString(s); n > limit {
+		o.r.fail(line, join(o.path, key), "%d characters, longer than the %d allowed", n, limit)
+		return ""
+	}
+	if i, r, bad := badRune(s, multiline); bad {
+		o.r.fail(line, join(o.path, key), "character %d is %s, a control or invisible formatting character, which is not allowed here: %s", i, runeName(r), strconv.QuoteToASCII(s))
+		return ""
+	}
 	return s
+}
+
+// badRune finds the first rune of s that is not valid UTF-8, a control
+// character (Unicode Cc; newline and tab allowed when multiline), an
+// invisible format character (Cf: the bidirectional overrides and
+// isolates, zero-width characters, the byte-order mark) or a line or
+// paragraph separator (Zl, Zp). i counts runes from 1.
+func badRune(s string, multiline bool) (i int, r rune, bad bool) {
+	for _, r := range s {
+		i++
+		switch {
+		case r == utf8.RuneError:
+			return i, r, true
+		case multiline && (r == '\n' || r == '\t'):
+		case unicode.IsControl(r), unicode.In(r, unicode.Cf, unicode.Zl, unicode.Zp):
+			return i, r, true
+		}
+	}
+	return 0, 0, false
+}
+
+func runeName(r rune) string {
+	if r == utf8.RuneError {
+		return "not valid UTF-8"
+	}
+	return fmt.Sprintf("%U", r)
 }
 
 func (o *object) number(key string, required bool) (float64, bool) {
