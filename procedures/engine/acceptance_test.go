@@ -65,11 +65,22 @@ func operator(model *benchsim.Model, clk *clock.Manual) (scripted.Responder, fun
 	return ask, say
 }
 
-// The built-in acceptance sequence, checked and flattened by the script
-// package, runs to the end on the simulator's physics, and its results
-// agree with the simulator's truth (the oracle).
-func TestAcceptanceOnSimulator(t *testing.T) {
-	scn, err := benchsim.LoadScenario("../../testdata/scenarios/tollemby-rise-room2.yaml")
+// visitRun is one run of a built-in procedure on the simulator's physics
+// under a manual clock.
+type visitRun struct {
+	sum  Summary
+	pan  *scripted.Panel
+	jr   *memJournal
+	proc Procedure
+	tr   benchsim.Truth
+}
+
+// runBuiltinOnSimulator checks and flattens the built-in name against a
+// bench with the scenario's field modes and runs it to the end with the
+// simulated operator.
+func runBuiltinOnSimulator(t *testing.T, scenario, name string, values map[string]float64) visitRun {
+	t.Helper()
+	scn, err := benchsim.LoadScenario(scenario)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -84,7 +95,7 @@ func TestAcceptanceOnSimulator(t *testing.T) {
 		names = append(names, fm.Name)
 	}
 	env := script.Env{Quantities: map[string][]units.Quantity{Dosimeter: {units.AirKermaRate}, Photometer: {units.Luminance}}, FieldModes: names}
-	p, probs := script.CheckBuiltin("acceptance", env)
+	p, probs := script.CheckBuiltin(name, env)
 	if len(probs) > 0 {
 		t.Fatal(probs)
 	}
@@ -104,7 +115,7 @@ func TestAcceptanceOnSimulator(t *testing.T) {
 			Photometer: &simMeter{role: Photometer, m: model, clk: clk, period: 100 * time.Millisecond, phase: 50 * time.Millisecond},
 		},
 		Panel: pan, Journal: jr, Clock: clk, Limits: DefaultLimits(), FieldModes: modes, ReadInTurn: true,
-		Values: map[string]float64{"temperature": 22, "pressure": 101.3, "lead_disk_diameter": 32},
+		Values: values,
 	}
 	e, err := New(cfg)
 	if err != nil {
@@ -117,7 +128,16 @@ func TestAcceptanceOnSimulator(t *testing.T) {
 	if sum.Outcome != "complete" {
 		t.Fatalf("outcome %s", sum.Outcome)
 	}
-	tr := model.Truth(clk.Mono())
+	return visitRun{sum: sum, pan: pan, jr: jr, proc: proc, tr: model.Truth(clk.Mono())}
+}
+
+// The built-in acceptance sequence, checked and flattened by the script
+// package, runs to the end on the simulator's physics, and its results
+// agree with the simulator's truth (the oracle).
+func TestAcceptanceOnSimulator(t *testing.T) {
+	v := runBuiltinOnSimulator(t, "../../testdata/scenarios/tollemby-rise-room2.yaml", "acceptance",
+		map[string]float64{"temperature": 22, "pressure": 101.3, "lead_disk_diameter": 32})
+	sum, pan, proc, tr := v.sum, v.pan, v.proc, v.tr
 	got := map[string]bool{}
 	for _, r := range sum.Results {
 		got[r.Quantity] = true

@@ -187,13 +187,35 @@ func (e *Engine) compute(ctx context.Context, idx int, s Step) error {
 			}
 		}
 	case "dark_level", "stability":
+		// The input names the meter by its quantity when the reading took
+		// several ("air_kerma_rate: dark"); "reading" takes the one read.
+		role := "reading"
+		for _, q := range []string{"air_kerma_rate", "luminance"} {
+			if _, ok := s.Compute.Inputs[q]; ok {
+				role = q
+			}
+		}
 		var rp []posStat
-		if rp, err = e.input(s, "reading"); err == nil {
+		if rp, err = e.input(s, role); err == nil {
 			p := rp[0]
-			m := measured(p, p.HasL)
+			lum := p.HasL
+			switch role {
+			case "air_kerma_rate":
+				lum = false
+			case "luminance":
+				lum = true
+			}
+			m := measured(p, lum)
 			res = calib.Result{Quantity: fig, Value: m.Samples.Mean, Unit: m.Unit, StdUnc: m.Samples.SDMean(), K: 2, Calibrated: p.Calib}
 			if fig == "stability" {
-				res.Value, res.Unit, res.StdUnc = p.Drift, "1", 0
+				drift, meter := p.Drift, Dosimeter
+				if lum {
+					meter = Photometer
+				}
+				if d, ok := p.Drifts[meter]; ok {
+					drift = d
+				}
+				res.Value, res.Unit, res.StdUnc = drift, "1", 0
 			}
 			if math.IsInf(res.StdUnc, 0) {
 				res.StdUnc = 0

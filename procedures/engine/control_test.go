@@ -3,8 +3,10 @@ package engine
 import (
 	"context"
 	"errors"
+	"strings"
 	"testing"
 
+	"kermalux/drivers"
 	"kermalux/procedures/entry"
 	"kermalux/procedures/panel"
 )
@@ -119,5 +121,37 @@ func TestValueUnits(t *testing.T) {
 	}
 	if p := e.st.values["pressure"]; p < 101.299 || p > 101.301 {
 		t.Errorf("kept %g, want 101.3 kPa", p)
+	}
+}
+
+// The closing summary (each fail, what else needs review, the total
+// beam-on time) is said, and journalled before the session's end record,
+// which the journal closes the session with.
+func TestClosingSummarySaidBeforeEnd(t *testing.T) {
+	steps := cfSteps()
+	// A limit the fake bench's G of 150 cannot meet: one fail.
+	steps[len(steps)-1].Judge.Limits = []JudgeLimit{{Kind: "min", Value: 1000}}
+	r := newRig(steps)
+	calibrated := CorrectorFunc(func(rd drivers.Reading, _ Conditions) Corrected {
+		return Corrected{Value: rd.Value, Calibrated: true, Certificate: "test"}
+	})
+	r.cfg.Correctors = map[string]Corrector{Dosimeter: calibrated, Photometer: calibrated}
+	sum, err := r.run(context.Background())
+	if err != nil {
+		t.Fatal(err)
+	}
+	var last string
+	for _, m := range r.pan.Messages() {
+		last = m.Text
+	}
+	for _, want := range []string{"All steps done.", "One fail: Conversion factor, 32cm field", "Beam-on time"} {
+		if !strings.Contains(last, want) {
+			t.Errorf("last message %q lacks %q", last, want)
+		}
+	}
+	env := r.jr.sessions[sum.Session]
+	if n := len(env); n < 2 || env[n-1].Kind != entry.KindSessionEnd || env[n-2].Kind != entry.KindPrompt ||
+		!strings.Contains(string(env[n-2].Payload), "All steps done") {
+		t.Errorf("the summary is not the record before the session's end")
 	}
 }

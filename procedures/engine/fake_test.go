@@ -191,6 +191,10 @@ func (j *memJournal) Append(ctx context.Context, session string, kind entry.Kind
 	}
 	j.mu.Lock()
 	defer j.mu.Unlock()
+	if j.ended[session] {
+		// As the board journal does (journal.ErrSessionEnded).
+		return 0, fmt.Errorf("session %s already ended", session)
+	}
 	j.n++
 	if j.cutAfter > 0 && j.n == j.cutAfter {
 		j.cancel()

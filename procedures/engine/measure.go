@@ -508,18 +508,14 @@ func (e *Engine) precise(a *attempt) (posStat, bool) {
 // stability).
 func (e *Engine) darkAttempt(ctx context.Context, a *attempt) (posStat, error) {
 	l := e.cfg.Limits
-	text := a.step.Text
-	if text == "" {
-		text = "Keep the beam off. Press the switch to take the dark reading."
-	}
-	if _, err := e.ask(ctx, panel.Prompt{Message: panel.Message{Text: text, Level: panel.Info, Action: panel.ActSetup, Setup: a.setup()}, Step: a.idx, StepID: a.step.ID}); err != nil {
-		return posStat{}, err
-	}
-	e.freshen(a)
 	d := a.spec.Duration
 	if d == 0 {
 		d = l.DarkTime
 	}
+	if _, err := e.ask(ctx, panel.Prompt{Message: panel.Message{Text: darkPrompt(a.step.Text, d), Level: panel.Info, Action: panel.ActSetup, Setup: a.setup()}, Step: a.idx, StepID: a.step.ID}); err != nil {
+		return posStat{}, err
+	}
+	e.freshen(a)
 	a.thresh = math.Inf(1) // no beam detection in a beam-off reading
 	// First let the meters come down from any earlier exposure (the
 	// photometer's response is slower than the dosimeter's): no trend
@@ -544,24 +540,98 @@ func (e *Engine) darkAttempt(ctx context.Context, a *attempt) (posStat, error) {
 	a.settled = 0
 	start := e.cfg.Clock.Mono()
 	a.onAt = start
+	marks := countdownMarks(d)
+	if len(marks) > 0 {
+		if err := e.say(ctx, a.idx, panel.Message{Text: "Dark reading started: " + spokenDuration(d) + ". Keep the beam off.", Level: panel.Info}); err != nil {
+			return posStat{}, err
+		}
+	}
 	for e.cfg.Clock.Mono()-start < d {
 		if err := e.cycle(ctx, a); err != nil {
 			return posStat{}, e.attemptFailed(ctx, a, err)
+		}
+		if left := d - (e.cfg.Clock.Mono() - start); len(marks) > 0 && left <= marks[0] && left > 0 {
+			for len(marks) > 0 && left <= marks[0] {
+				marks = marks[1:]
+			}
+			if err := e.say(ctx, a.idx, panel.Message{Text: spokenDuration(left.Round(5*time.Second)) + " left.", Level: panel.Info}); err != nil {
+				return posStat{}, err
+			}
 		}
 	}
 	p, _ := e.precise(a)
 	p.Dark = true
 	// Drift over a fixed-duration reading: relative change of the trend
-	// line across the reading.
+	// line across the reading, for each meter.
 	for _, role := range a.spec.Meters {
 		if rel, _, ok := trend(a.series[role]); ok {
-			p.Drift = math.Max(p.Drift, math.Abs(rel*d.Seconds()))
+			dr := math.Abs(rel * d.Seconds())
+			if p.Drifts == nil {
+				p.Drifts = map[string]float64{}
+			}
+			p.Drifts[role] = dr
+			p.Drift = math.Max(p.Drift, dr)
 		}
 	}
 	if err := e.flush(ctx, a, true); err != nil {
 		return posStat{}, err
 	}
+	if d >= countdownFrom {
+		// One beep: the fixed-time reading is over.
+		if err := e.say(ctx, a.idx, panel.Message{Text: "Dark reading done.", Level: panel.Good}); err != nil {
+			return posStat{}, err
+		}
+	}
 	return p, nil
+}
+
+// spanAdjective says a duration before a noun: "one-minute", "30-second".
+func spanAdjective(d time.Duration) string {
+	if d%time.Minute == 0 && d >= time.Minute {
+		return strings.ToLower(spellCount(int(d/time.Minute))) + "-minute"
+	}
+	return fmt.Sprintf("%d-second", int(d.Round(time.Second)/time.Second))
+}
+
+// countdownFrom is the shortest fixed-duration reading that is counted
+// down aloud; shorter ones pass before a countdown would help.
+const countdownFrom = 20 * time.Second
+
+// countdownMarks are the times left at which a fixed-duration reading of d
+// says how long is left: every 15 s under a minute (30 and 15 s of a
+// one-minute reading too), every minute above.
+func countdownMarks(d time.Duration) []time.Duration {
+	if d < countdownFrom {
+		return nil
+	}
+	var out []time.Duration
+	for m := (d - time.Second) / time.Minute * time.Minute; m >= time.Minute; m -= time.Minute {
+		out = append(out, m)
+	}
+	for _, s := range []time.Duration{30 * time.Second, 15 * time.Second} {
+		if s < d-5*time.Second {
+			out = append(out, s)
+		}
+	}
+	return out
+}
+
+// darkPrompt is what a beam-off reading asks: the step's words, and,
+// unless they say it, that a press starts the reading and how long it
+// takes. A dark reading waits for the press; it never says "wait".
+func darkPrompt(text string, d time.Duration) string {
+	text = strings.TrimSpace(text)
+	if strings.Contains(strings.ToLower(text), "press") {
+		return text
+	}
+	start := "Press to start the dark reading."
+	if d >= countdownFrom {
+		start = "Press to start the " + spanAdjective(d) + " dark reading."
+	}
+	if text == "" {
+		return "Keep the beam off. " + start
+	}
+	return text + " " + start
 }
 
 // readFor reads every meter of the attempt in turn for d (at least minN

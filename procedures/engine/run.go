@@ -261,6 +261,11 @@ func (e *Engine) finish(ctx context.Context, sum Summary, runErr error) (Summary
 		_ = e.say(ctx, 0, panel.Message{Text: "Paused. Run again to resume where you left off.", Level: panel.Info})
 		return sum, runErr
 	}
+	// The closing summary is said, and journalled, before the session's
+	// end record: the journal takes nothing after it.
+	if runErr == nil {
+		_ = e.say(ctx, 0, panel.Message{Text: closingSummary(sum, st.beamOn), Level: panel.Info})
+	}
 	end := entry.SessionEnd{Finished: e.cfg.Clock.Now(), BeamOn: st.beamOn.Seconds(), Steps: sum.Steps, Outcome: sum.Outcome, Review: sum.Review}
 	if sum.Outcome != "complete" {
 		end.Outcome = "aborted"
@@ -272,39 +277,55 @@ func (e *Engine) finish(ctx context.Context, sum Summary, runErr error) (Summary
 		_ = e.cfg.Panel.Indicate(ctx, panel.Fault)
 		return sum, runErr
 	}
-	text := "All steps done."
-	switch sum.Review {
-	case 0:
-		text += " No results need review."
-	case 1:
-		text += " One result needs review" + reviewWhy(sum.Results) + "."
-	default:
-		text += fmt.Sprintf(" %s results need review%s.", spellCount(sum.Review), reviewWhy(sum.Results))
-	}
-	text += " Beam-on time " + spokenDuration(st.beamOn) + "."
-	_ = e.say(ctx, 0, panel.Message{Text: text, Level: panel.Info})
 	_ = e.cfg.Panel.Indicate(ctx, panel.Ready)
 	return sum, nil
 }
 
-func needsReview(r entry.Result) bool { return r.Verdict == "fail" || !r.Calibrated }
-
-func reviewWhy(rs []entry.Result) string {
-	var why []string
-	for _, r := range rs {
-		if r.Verdict == "fail" {
+// closingSummary is what is said at the end of a complete session: each
+// fail and the limit that decided it, how many other results need review
+// and why, and the total beam-on time.
+func closingSummary(sum Summary, beamOn time.Duration) string {
+	var fails, why []string
+	for _, r := range sum.Results {
+		switch {
+		case r.Verdict == "fail":
 			w := spokenQuantity(r.Quantity)
-			if r.DecidedBy != "" {
-				w += " " + r.DecidedBy
+			if r.FieldMode != "" {
+				w += ", " + r.FieldMode + " field"
 			}
-			why = append(why, w)
+			if r.DecidedBy != "" {
+				w += ", " + r.DecidedBy
+			}
+			fails = append(fails, w)
+		case needsReview(r):
+			why = appendUnique(why, "not calibrated")
 		}
 	}
-	if len(why) == 0 {
-		return ": not calibrated"
+	others := sum.Review - len(fails)
+	text := "All steps done."
+	switch len(fails) {
+	case 0:
+	case 1:
+		text += " One fail: " + fails[0] + "."
+	default:
+		text += fmt.Sprintf(" %s fails: %s.", spellCount(len(fails)), strings.Join(fails, "; "))
 	}
-	return ": " + strings.Join(why, ", ")
+	other := ""
+	if len(fails) > 0 {
+		other = "other "
+	}
+	switch {
+	case others <= 0 && len(fails) == 0:
+		text += " No results need review."
+	case others == 1:
+		text += fmt.Sprintf(" One %sresult needs review: %s.", other, strings.Join(why, ", "))
+	case others > 1:
+		text += fmt.Sprintf(" %s %sresults need review: %s.", spellCount(others), other, strings.Join(why, ", "))
+	}
+	return text + " Beam-on time " + spokenDuration(beamOn) + "."
 }
+
+func needsReview(r entry.Result) bool { return r.Verdict == "fail" || !r.Calibrated }
 
 func spellCount(n int) string {
 	words := []string{"Zero", "One", "Two", "Three", "Four", "Five", "Six", "Seven", "Eight", "Nine", "Ten"}

@@ -18,31 +18,34 @@ import (
 // resumed session can compute results from measurements taken before a
 // power cut without repeating them.
 type posStat struct {
-	Step    string   `json:"step"`  // step ID
-	Index   int      `json:"index"` // position index (0 without positions)
-	Label   string   `json:"label,omitempty"`
-	R       float64  `json:"r,omitempty"`
-	Angle   float64  `json:"angle,omitempty"`
-	HasL    bool     `json:"has_l,omitempty"`
-	L       float64  `json:"l,omitempty"`   // mean luminance, cd/m²
-	LU      float64  `json:"l_u,omitempty"` // standard uncertainty of the mean (type A), cd/m²
-	BL      float64  `json:"l_b,omitempty"` // relative standard uncertainty, type B
-	NL      int      `json:"n_l,omitempty"`
-	HasK    bool     `json:"has_k,omitempty"`
-	K       float64  `json:"k,omitempty"`   // mean kerma rate, µGy/s
-	KU      float64  `json:"k_u,omitempty"` // type A of the mean
-	BK      float64  `json:"k_b,omitempty"`
-	NK      int      `json:"n_k,omitempty"`
-	HasG    bool     `json:"has_g,omitempty"`
-	G       float64  `json:"g,omitempty"`   // mean of time-aligned L/K pairs
-	GU      float64  `json:"g_u,omitempty"` // type A of that mean (autocorrelation allowed for)
-	NG      int      `json:"n_g,omitempty"`
-	Drift   float64  `json:"drift,omitempty"` // relative change over a fixed-duration reading
-	Calib   bool     `json:"calibrated"`
-	Flags   []string `json:"flags,omitempty"`
-	Dark    bool     `json:"dark,omitempty"`
-	Mode    string   `json:"field_mode,omitempty"`
-	BeamOnS float64  `json:"beam_on_s,omitempty"` // beam-on time of the accepted attempt
+	Step  string  `json:"step"`  // step ID
+	Index int     `json:"index"` // position index (0 without positions)
+	Label string  `json:"label,omitempty"`
+	R     float64 `json:"r,omitempty"`
+	Angle float64 `json:"angle,omitempty"`
+	HasL  bool    `json:"has_l,omitempty"`
+	L     float64 `json:"l,omitempty"`   // mean luminance, cd/m²
+	LU    float64 `json:"l_u,omitempty"` // standard uncertainty of the mean (type A), cd/m²
+	BL    float64 `json:"l_b,omitempty"` // relative standard uncertainty, type B
+	NL    int     `json:"n_l,omitempty"`
+	HasK  bool    `json:"has_k,omitempty"`
+	K     float64 `json:"k,omitempty"`   // mean kerma rate, µGy/s
+	KU    float64 `json:"k_u,omitempty"` // type A of the mean
+	BK    float64 `json:"k_b,omitempty"`
+	NK    int     `json:"n_k,omitempty"`
+	HasG  bool    `json:"has_g,omitempty"`
+	G     float64 `json:"g,omitempty"`   // mean of time-aligned L/K pairs
+	GU    float64 `json:"g_u,omitempty"` // type A of that mean (autocorrelation allowed for)
+	NG    int     `json:"n_g,omitempty"`
+	Drift float64 `json:"drift,omitempty"` // relative change over a fixed-duration reading (the largest of Drifts)
+	// Drifts is the relative change of each meter (by role) over a
+	// fixed-duration reading of several meters.
+	Drifts  map[string]float64 `json:"drifts,omitempty"`
+	Calib   bool               `json:"calibrated"`
+	Flags   []string           `json:"flags,omitempty"`
+	Dark    bool               `json:"dark,omitempty"`
+	Mode    string             `json:"field_mode,omitempty"`
+	BeamOnS float64            `json:"beam_on_s,omitempty"` // beam-on time of the accepted attempt
 }
 
 // state is what the engine knows; it is rebuilt from the journal on resume.

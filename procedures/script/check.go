@@ -553,6 +553,16 @@ func (x *expander) compute(prefix string, st *Step, mode string, modes []string)
 			x.errf(st.Fields["from"], "%s needs input %q", c.Figure, r.name)
 		}
 	}
+	if (c.Figure == FigStability || c.Figure == FigDarkLevel) && len(c.Inputs) != 1 {
+		x.errf(st.Fields["from"], "%s takes one input: reading (a step that reads one meter), or air_kerma_rate or luminance (the meter among several read together)", c.Figure)
+	}
+	if c.Figure == FigStability || c.Figure == FigDarkLevel {
+		if in, ok := c.Input("reading"); ok {
+			if i, ok := x.byID[in.Resolved]; ok && x.steps[i].Step.Measure != nil && len(x.steps[i].Step.Measure.Reads) > 1 {
+				x.errf(in.Pos, "%s: %q reads several meters; name the one meant by its quantity (air_kerma_rate: or luminance:) instead of reading:", c.Figure, in.Ref)
+			}
+		}
+	}
 }
 
 func (m *MeasureSpec) reads(q units.Quantity) bool {
@@ -587,6 +597,9 @@ func (x *expander) judge(prefix string, st *Step, mode string, modes []string) {
 		for _, in := range ref.Compute.Inputs {
 			if i, ok := x.byID[in.Resolved]; ok && x.steps[i].Step.Measure != nil && len(x.steps[i].Step.Measure.Reads) > 0 {
 				q = x.steps[i].Step.Measure.Reads[0].Quantity
+			}
+			if in.Role == "air_kerma_rate" || in.Role == "luminance" {
+				q = units.Quantity(in.Role)
 			}
 		}
 	}

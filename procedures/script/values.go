@@ -47,8 +47,11 @@ var figureRoles = map[Figure][]role{
 	FigContrastRatio:    {{"open", units.Luminance, false, 1}, {"disk", units.Luminance, false, 1}, {"dark", units.Luminance, true, -1}},
 	FigInputKermaRate:   {{"air_kerma_rate", units.AirKermaRate, false, 1}},
 	FigKermaRateScaling: {{"air_kerma_rate", units.AirKermaRate, false, 1}, {"reference", units.AirKermaRate, false, 1}},
-	FigStability:        {{"reading", "", false, 0}},
-	FigDarkLevel:        {{"reading", "", false, -1}},
+	// A dark level or a stability takes one input: "reading" for a step
+	// that reads one meter, or the quantity that names the meter among
+	// several read together.
+	FigStability: {{"reading", "", true, 0}, {"air_kerma_rate", units.AirKermaRate, true, 0}, {"luminance", units.Luminance, true, 0}},
+	FigDarkLevel: {{"reading", "", true, -1}, {"air_kerma_rate", units.AirKermaRate, true, -1}, {"luminance", units.Luminance, true, -1}},
 }
 
 // legacyFigures are figure names earlier procedures used, read as the

@@ -1,0 +1,87 @@
+package engine
+
+import (
+	"strings"
+	"testing"
+	"time"
+
+	"kermalux/firmware-host/panel/scripted"
+	"kermalux/procedures/panel"
+)
+
+const room2 = "../../testdata/scenarios/tollemby-rise-room2.yaml"
+
+var room2Values = map[string]float64{"temperature": 22, "pressure": 101.3, "lead_disk_diameter": 32}
+
+// A dark (beam-off) reading waits for a press, so its prompt says so and
+// never tells the engineer to wait: an engineer who waits as told would
+// wait for ever.
+func TestDarkReadingsAskForAPress(t *testing.T) {
+	v := runBuiltinOnSimulator(t, room2, "acceptance", room2Values)
+	n := 0
+	for _, p := range v.pan.Prompts() {
+		low := strings.ToLower(p.Text)
+		if strings.Contains(low, "wait") {
+			t.Errorf("prompt %s says wait while it waits for a press: %q", p.StepID, p.Text)
+		}
+		if strings.HasSuffix(p.StepID, "dark") {
+			n++
+			if !strings.Contains(low, "press to start the") || !strings.Contains(low, "dark reading") {
+				t.Errorf("dark prompt %s does not say a press starts the reading: %q", p.StepID, p.Text)
+			}
+		}
+	}
+	if n < 4 {
+		t.Errorf("%d dark prompts, want the meter checks' and one per part", n)
+	}
+}
+
+// The two one-minute beam-off meter checks run together: one prompt, one
+// minute counted down aloud, one beep at the end, and the whole meter
+// check takes well under the two minutes it took one after the other.
+func TestMeterChecksTogether(t *testing.T) {
+	v := runBuiltinOnSimulator(t, room2, "meter-checks", room2Values)
+	evs := v.pan.Events()
+	var start, end time.Time
+	var said []string
+	beeps := 0
+	for _, e := range evs {
+		switch {
+		case e.Kind == scripted.KindAsk && e.Prompt.StepID == "beam-off":
+			start = e.At
+		case e.Kind == scripted.KindSay && strings.HasPrefix(e.Message.Text, "Meter checks done"):
+			end = e.At
+		case e.Kind == scripted.KindSay:
+			said = append(said, e.Message.Text)
+			if e.Message.Text == "Dark reading done." && e.Message.Level == panel.Good {
+				beeps++
+			}
+		}
+	}
+	darkPrompts := 0
+	for _, p := range v.pan.Prompts() {
+		if strings.Contains(p.Text, "dark reading") {
+			darkPrompts++
+		}
+	}
+	if darkPrompts != 1 {
+		t.Errorf("%d dark-reading prompts, want one for both meters", darkPrompts)
+	}
+	all := strings.Join(said, "\n")
+	for _, want := range []string{"Dark reading started: 1 minute.", "30 seconds left.", "15 seconds left."} {
+		if !strings.Contains(all, want) {
+			t.Errorf("countdown lacks %q:\n%s", want, all)
+		}
+	}
+	if beeps != 1 {
+		t.Errorf("%d end-of-reading beeps (level good), want 1", beeps)
+	}
+	// One minute of reading, the meters' settling and the presses: well
+	// under the 2 minutes two one-minute readings in turn need.
+	if d := end.Sub(start); start.IsZero() || end.IsZero() || d > 90*time.Second {
+		t.Errorf("meter checks took %s, want under 90 s", d)
+	}
+	if len(v.sum.Results) != 4 {
+		t.Errorf("%d results, want the dark level and stability of each meter", len(v.sum.Results))
+	}
+}
