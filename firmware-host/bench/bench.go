@@ -9,8 +9,8 @@ import (
 	"context"
 	"crypto/sha256"
 	"encoding/hex"
-	"errors"
 	"fmt"
+	"io"
 	"os"
 	"path/filepath"
 	"strings"
@@ -120,11 +120,16 @@ type LocalLimits struct {
 	Precision        float64            `yaml:"precision"` // relative expanded uncertainty target, e.g. 0.02
 }
 
-// Load reads and checks a bench file.
+// Load reads and checks a bench file (at most MaxFileSize bytes).
 func Load(path string) (*Bench, error) {
-	data, err := os.ReadFile(path)
+	f, err := os.Open(path)
 	if err != nil {
 		return nil, fmt.Errorf("bench file: %w", err)
+	}
+	defer f.Close()
+	data, err := io.ReadAll(io.LimitReader(f, MaxFileSize+1))
+	if err != nil {
+		return nil, fmt.Errorf("bench file %s: %w", path, err)
 	}
 	b, err := Parse(path, data)
 	if err != nil {
@@ -137,6 +142,9 @@ func Load(path string) (*Bench, error) {
 // Parse reads a bench file's text; name is used in errors.
 func Parse(name string, data []byte) (bench *Bench, err error) {
 	var b Bench
+	if len(data) > MaxFileSize {
+		return nil, fmt.Errorf("bench file %s: larger than %d KiB: not a bench file", name, MaxFileSize>>10)
+	}
 	defer func() {
 		// The YAML decoder panics on some malformed input (found by
 		// fuzzing): report it as a malformed file.
@@ -152,46 +160,10 @@ func Parse(name string, data []byte) (bench *Bench, err error) {
 	if d, err := filepath.Abs(filepath.Dir(name)); err == nil {
 		b.dir = d
 	}
-	if err := b.check(); err != nil {
-		return nil, fmt.Errorf("bench file %s: %w", name, err)
+	if err := b.check(newChecker(name, data)); err != nil {
+		return nil, err
 	}
 	return &b, nil
-}
-
-func (b *Bench) check() error {
-	var errs []error
-	if len(b.Meters) == 0 {
-		errs = append(errs, errors.New("meters: none listed"))
-	}
-	seen := map[string]bool{}
-	for i, m := range b.Meters {
-		where := fmt.Sprintf("meters[%d] (%s)", i, m.Name)
-		if m.Name == "" {
-			errs = append(errs, fmt.Errorf("meters[%d]: name missing", i))
-		}
-		if m.Role != "dosimeter" && m.Role != "photometer" {
-			errs = append(errs, fmt.Errorf("%s: role %q: want dosimeter or photometer", where, m.Role))
-		}
-		if seen[m.Role] {
-			errs = append(errs, fmt.Errorf("%s: a second %s", where, m.Role))
-		}
-		seen[m.Role] = true
-		if (m.Profile == "") == (m.SCPI == nil) {
-			errs = append(errs, fmt.Errorf("%s: give exactly one dialect, profile: FILE or scpi: {...}", where))
-		}
-	}
-	for i, f := range b.Intensifier.FieldModes {
-		if f.Name == "" || f.DiameterMM <= 0 {
-			errs = append(errs, fmt.Errorf("intensifier.field_modes[%d]: name and diameter_mm > 0 needed", i))
-		}
-	}
-	if b.Limits.BaselineFraction < 0 || b.Limits.BaselineFraction > 1 {
-		errs = append(errs, fmt.Errorf("limits.baseline_fraction %g: want a fraction between 0 and 1", b.Limits.BaselineFraction))
-	}
-	if b.Limits.KermaCeiling < 0 {
-		errs = append(errs, fmt.Errorf("limits.kerma_ceiling_ugy_s %g: must be positive", b.Limits.KermaCeiling))
-	}
-	return errors.Join(errs...)
 }
 
 // Rel resolves a path written in the bench file relative to the file's

@@ -188,7 +188,7 @@ func (b *Bench) Config(proc engine.Procedure, meters map[string]drivers.Meter, p
 		Session: entry.Session{Site: b.Site, Room: b.Room, IntensifierModel: b.Intensifier.Model,
 			IntensifierSerial: b.Intensifier.Serial, Engineer: b.Engineer, Procedure: proc.Name,
 			ProcedureHash: proc.Hash, BenchHash: b.SHA256, SoftwareVersion: version, Started: day, Certificates: refs},
-		Values: b.Values(), CertProblems: problems, Limits: lim, BootID: BootID(), FieldModes: b.modeDiameters(),
+		Values: b.Values(), CertProblems: problems, Warnings: b.Warnings(), Limits: lim, BootID: BootID(), FieldModes: b.modeDiameters(),
 	}, nil
 }
 

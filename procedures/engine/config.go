@@ -276,6 +276,10 @@ type Config struct {
 	Values map[string]float64
 	// CertProblems are said aloud at the start (expired or missing certificates).
 	CertProblems []string
+	// Warnings are said aloud (and journalled) at the start of every run,
+	// resumed or not: local settings less safe than the defaults, such as
+	// a kerma ceiling above 50 µGy/s.
+	Warnings []string
 	Limits       Limits
 	BootID       string
 	// ReadInTurn is accepted for compatibility; meters are always read

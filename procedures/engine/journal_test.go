@@ -290,3 +290,21 @@ func countAction(r *rig, a panel.Action) int {
 func containsName(payload []byte, name string) bool {
 	return strings.Contains(string(payload), `"name":"`+name+`"`)
 }
+
+// Config.Warnings (a kerma ceiling set above the default) are said as
+// warnings before the first step, and journalled, on every run.
+func TestSettingWarningsSpokenAndJournalled(t *testing.T) {
+	r := newRig(cfSteps())
+	r.cfg.Warnings = []string{"Caution: the kerma rate ceiling is set to 80 micrograys per second, above the default of 50."}
+	sum, err := r.run(context.Background())
+	if err != nil {
+		t.Fatal(err)
+	}
+	msgs := r.pan.Messages()
+	if len(msgs) < 2 || msgs[1].Level != panel.Warn || msgs[1].Text != r.cfg.Warnings[0] {
+		t.Errorf("messages %+v", msgs[:min(3, len(msgs))])
+	}
+	if ev := events(r.jr, sum.Session, evSettingWarning); len(ev) != 1 || ev[0].Detail != r.cfg.Warnings[0] {
+		t.Errorf("events %+v", ev)
+	}
+}

@@ -30,6 +30,8 @@ const (
 	evMeasured    = "measurement_done"
 	evReadError   = "reading_error"
 	evCertificate = "certificate_problem"
+	// evSettingWarning: a local setting less safe than the default.
+	evSettingWarning = "setting_warning"
 )
 
 // errRetakePrev: the operator asked to redo the last step.
@@ -111,6 +113,12 @@ func (e *Engine) run(ctx context.Context) (Summary, error) {
 		}
 	} else {
 		if err := e.say(ctx, 0, panel.Message{Text: fmt.Sprintf("Starting %s: %d steps. Caution: X-rays are dangerous. Follow your local rules and your radiation safety officer.", title, n), Level: panel.Info}); err != nil {
+			return e.finish(ctx, sum, err)
+		}
+	}
+	for _, w := range cfg.Warnings {
+		_ = e.journal(ctx, entry.KindEvent, entry.Event{Name: evSettingWarning, Detail: w, BeamOn: st.beamOn.Seconds()})
+		if err := e.say(ctx, 0, panel.Message{Text: w, Level: panel.Warn}); err != nil {
 			return e.finish(ctx, sum, err)
 		}
 	}
