@@ -280,8 +280,8 @@ type Config struct {
 	// resumed or not: local settings less safe than the defaults, such as
 	// a kerma ceiling above 50 µGy/s.
 	Warnings []string
-	Limits       Limits
-	BootID       string
+	Limits   Limits
+	BootID   string
 	// ReadInTurn is accepted for compatibility; meters are always read
 	// in turn in the engine's goroutine.
 	ReadInTurn bool
