@@ -34,9 +34,13 @@ type Reading struct {
 	RawValue float64        // the number as the meter printed it
 	RawUnit  string         // the unit as the meter printed it
 	Status   Status
-	Raw      string        // the line the reading came from, without framing
-	Mono     time.Duration // host monotonic time since the clock's origin
-	Wall     time.Time     // host wall-clock time
+	// NoValue is true when the meter printed a marker in place of a
+	// number (SCPI's 9.9E37 overflow or 9.91E37 not-a-number): Value is 0
+	// and means nothing, RawValue keeps the marker as printed.
+	NoValue bool
+	Raw     string        // the line the reading came from, without framing
+	Mono    time.Duration // host monotonic time since the clock's origin
+	Wall    time.Time     // host wall-clock time
 	// AfterReconnect is true on the first reading after the link to the
 	// meter was lost and restored: anything in progress before should be
 	// discarded by the caller.
@@ -90,4 +94,13 @@ var (
 // Discard before it starts sampling.
 type Freshener interface {
 	Discard()
+}
+
+// Queued is a meter whose readings arrive on their own (a streaming meter
+// read by a background reader): Pending is how many have arrived and wait
+// to be read. A caller that reads several meters in turn takes them all,
+// so each keeps the time it arrived and none is paired with another
+// meter's later readings.
+type Queued interface {
+	Pending() int
 }

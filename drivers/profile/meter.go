@@ -42,6 +42,7 @@ type Meter struct {
 var (
 	_ drivers.Meter      = (*Meter)(nil)
 	_ drivers.Identifier = (*Meter)(nil)
+	_ drivers.Queued     = (*Meter)(nil)
 )
 
 // Open opens port with the profile's serial settings and runs its set-up
@@ -273,6 +274,15 @@ func (m *Meter) Discard() {
 	if m.p.Mode == Streaming && m.port.Up() {
 		m.port.Discard()
 	}
+}
+
+// Pending implements drivers.Queued: the lines a streaming meter has sent
+// that wait to be read (0 for a polled meter, which answers when asked).
+func (m *Meter) Pending() int {
+	if m.p.Mode != Streaming || !m.port.Up() {
+		return 0
+	}
+	return m.port.Buffered()
 }
 
 // Close stops a streaming meter (best effort) and closes the port.

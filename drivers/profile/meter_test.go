@@ -10,6 +10,7 @@ import (
 
 	"kermalux/drivers"
 	"kermalux/drivers/profile"
+	"kermalux/drivers/serialline"
 	"kermalux/drivers/units"
 )
 
@@ -307,7 +308,7 @@ func TestOpenReportsSetupFailure(t *testing.T) {
 		t.Fatalf("got %v, want the port, the command and the unexpected reply", err)
 	}
 	_, err = profile.Open(ctx(t), p, "/nonexistent/by-id/meter", profile.Options{Name: "dosimeter", Log: quiet()})
-	if !errors.Is(err, drivers.ErrLinkDown) || !strings.Contains(err.Error(), "/nonexistent/by-id/meter") {
-		t.Fatalf("missing port: got %v", err)
+	if !errors.Is(err, serialline.ErrNoDevice) || errors.Is(err, drivers.ErrLinkDown) || !strings.Contains(err.Error(), "/nonexistent/by-id/meter") {
+		t.Fatalf("missing port: got %v, want no such device (not a lost link: it never was up)", err)
 	}
 }

@@ -3,15 +3,22 @@
 // 488.2, 10.14: maker, model, serial number, firmware), configurable
 // set-up commands, a configurable reading query (READ? by default), the
 // unit queried or configured, and the error queue (SYST:ERR?) drained after
-// every reading so that an instrument error is reported with the reading it
-// spoilt.
+// the set-up (its errors are the set-up's) and after every reading (so
+// that an instrument error is reported with the reading it spoilt).
+//
+// The meter identifies when the link opens and again after every
+// reconnection: another model or serial on the link is
+// drivers.ErrMeterChanged. The unit is asked again while reading, so a
+// meter switched to another unit gives errors, not readings.
 //
 // SCPI (1999.0, Vol. 1, 7.2.1) writes an overflow as 9.9E37 and
-// not-a-number as 9.91E37; they come back as over range and fault.
+// not-a-number as 9.91E37; they come back as over range and fault
+// readings with no value (Reading.NoValue), never converted.
 package scpi
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"log/slog"
 	"math"
@@ -57,7 +64,16 @@ type Config struct {
 	// more often (a faster query returns the same value again, which would
 	// pass repeated values off as independent samples); 100 ms when zero.
 	Period time.Duration
+	// UnitEvery is how many readings may pass between two checks of the
+	// unit with UnitQuery: 0 checks after every reading, a negative value
+	// never. When Unit is given and UnitQuery is not, the unit is never
+	// asked (the meter may have no such query).
+	UnitEvery int
 }
+
+// ErrInstrument is what a meter reported in its error queue; it is
+// wrapped with the entries and with what caused them.
+var ErrInstrument = errors.New("the meter reported errors")
 
 // DefaultInit is the set-up of an air-kerma-rate meter.
 var DefaultInit = []string{"*RST", "*CLS", "CONF:KRAT"}
@@ -82,6 +98,9 @@ func (c *Config) defaults() {
 		c.Query = "READ?"
 	}
 	if c.UnitQuery == "" {
+		if c.Unit != "" && c.UnitEvery == 0 {
+			c.UnitEvery = -1
+		}
 		c.UnitQuery = "UNIT:KRAT?"
 	}
 	if c.ErrorQuery == "" {
@@ -124,6 +143,11 @@ type Meter struct {
 	ourUnit   string        // as package units spells it
 	asked     bool          // queried at least once
 	lastAsk   time.Duration // when, on the meter's clock
+	sinceUnit int           // readings since the unit was last checked
+
+	id      drivers.Identity // the identity first seen on the link
+	idKnown bool
+	changed error // set when a reconnection found another meter
 }
 
 var (
@@ -184,28 +208,81 @@ func (m *Meter) prepare(ctx context.Context) error {
 	}
 	g := m.port.Generation()
 	if g == m.gen {
-		return nil
+		return m.changed
 	}
-	if m.gen != 0 {
+	again := m.gen != 0
+	if again {
 		m.reconnect = true
 		m.o.log.Info("meter reconnected", "meter", m.o.name, "port", m.port.Name())
+	}
+	// Who is on the link, before anything is sent that would change its
+	// state: after a reconnection another meter must not carry on under
+	// the first one's identity (and certificate).
+	if err := m.checkIdentity(ctx, again); err != nil {
+		return err
 	}
 	for _, c := range m.cfg.Init {
 		if err := m.port.WriteLine(ctx, c); err != nil {
 			return m.errorf("sending %q: %w", c, err)
 		}
 	}
+	// Errors the set-up caused are the set-up's, not the first reading's.
+	if errs, err := m.drain(ctx); err != nil {
+		return fmt.Errorf("after the set-up commands %q: %w", m.cfg.Init, err)
+	} else if len(errs) > 0 {
+		return m.errorf("%w after the set-up commands %q: %s (check the set-up; the meter may not know one of them)", ErrInstrument, m.cfg.Init, entries(errs))
+	}
 	if m.cfg.Unit == "" {
 		u, err := m.query(ctx, m.cfg.UnitQuery)
 		if err != nil {
-			return err
+			return fmt.Errorf("asking the unit: %w (a meter without this query needs its unit given: the bench file's unit, or kermalux read --unit)", err)
 		}
 		if err := m.setUnit(u); err != nil {
 			return err
 		}
 	}
 	m.gen = g
+	m.sinceUnit = 0
 	return nil
+}
+
+// checkIdentity asks *IDN? and, after a reconnection, compares the model
+// and serial with the first identity seen. At the first open a meter that
+// does not identify is only logged (Identify reports it); after a
+// reconnection it is an error, since the meter cannot be told from
+// another.
+func (m *Meter) checkIdentity(ctx context.Context, again bool) error {
+	m.changed = nil
+	id, err := m.identify(ctx)
+	if err != nil {
+		if again && m.idKnown {
+			return fmt.Errorf("identifying the meter after the reconnection: %w", err)
+		}
+		m.o.log.Warn("meter does not identify", "meter", m.o.name, "port", m.port.Name(), "err", err)
+		return nil
+	}
+	if !m.idKnown {
+		m.id, m.idKnown = id, true
+		return nil
+	}
+	if !strings.EqualFold(id.Model, m.id.Model) || !strings.EqualFold(id.Serial, m.id.Serial) || !strings.EqualFold(id.Maker, m.id.Maker) {
+		m.changed = m.errorf("%w: it identified as %s %s serial %s when the link opened, and now as %s %s serial %s", drivers.ErrMeterChanged,
+			m.id.Maker, m.id.Model, m.id.Serial, id.Maker, id.Model, id.Serial)
+		m.o.log.Error("another meter on the link", "meter", m.o.name, "port", m.port.Name(), "first", m.id.Raw, "now", id.Raw)
+		return m.changed
+	}
+	return nil
+}
+
+func entries(errs []QueueEntry) string {
+	var b strings.Builder
+	for i, e := range errs {
+		if i > 0 {
+			b.WriteString("; ")
+		}
+		b.WriteString(e.String())
+	}
+	return b.String()
 }
 
 // setUnit accepts a unit in SCPI spelling (case-insensitive mnemonics,
@@ -258,9 +335,43 @@ func (m *Meter) query(ctx context.Context, cmd string) (string, error) {
 	l, err := m.port.ReadLine(ctx)
 	if err != nil {
 		m.dirty = true
-		return "", m.errorf("reply to %q: %w", cmd, err)
+		return "", m.errorf("reply to %q: %w%s", cmd, err, m.explain(ctx, err))
 	}
 	return l.Text, nil
+}
+
+// explain reads the error queue after a query went unanswered: a meter
+// that does not know a query says so there (-113 Undefined header) rather
+// than on the line. It returns "" when there is nothing to add.
+func (m *Meter) explain(ctx context.Context, err error) string {
+	if !errors.Is(err, drivers.ErrTimeout) || m.cfg.ErrorQuery == "-" || ctx.Err() != nil {
+		return ""
+	}
+	m.port.Flush()
+	m.dirty = false
+	if werr := m.port.WriteLine(ctx, m.cfg.ErrorQuery); werr != nil {
+		return ""
+	}
+	var errs []QueueEntry
+	for range maxQueue {
+		l, rerr := m.port.ReadLine(ctx)
+		if rerr != nil {
+			m.dirty = true
+			break
+		}
+		e, perr := ParseError(l.Text)
+		if perr != nil || e.Code == 0 {
+			break
+		}
+		errs = append(errs, e)
+		if m.port.WriteLine(ctx, m.cfg.ErrorQuery) != nil {
+			break
+		}
+	}
+	if len(errs) == 0 {
+		return ""
+	}
+	return fmt.Sprintf("; the meter's error queue says %s", entries(errs))
 }
 
 // Identify sends *IDN? and splits the IEEE 488.2 reply.
@@ -268,6 +379,14 @@ func (m *Meter) Identify(ctx context.Context) (drivers.Identity, error) {
 	if err := m.prepare(ctx); err != nil {
 		return drivers.Identity{}, err
 	}
+	id, err := m.identify(ctx)
+	if err == nil && !m.idKnown {
+		m.id, m.idKnown = id, true
+	}
+	return id, err
+}
+
+func (m *Meter) identify(ctx context.Context) (drivers.Identity, error) {
 	s, err := m.query(ctx, "*IDN?")
 	if err != nil {
 		return drivers.Identity{}, err
@@ -383,8 +502,10 @@ func ParseError(s string) (QueueEntry, error) {
 }
 
 // maxQueue bounds the error-queue drain (a meter repeating the same error
-// forever must not hang the read).
-const maxQueue = 16
+// forever must not hang the read); it is longer than the queues of SCPI
+// meters (SCPI 1999.0 Vol. 2, 21.8 asks for at least two entries; ten to
+// a few dozen is common practice).
+const maxQueue = 64
 
 // drain empties the error queue.
 func (m *Meter) drain(ctx context.Context) ([]QueueEntry, error) {
@@ -407,7 +528,7 @@ func (m *Meter) drain(ctx context.Context) ([]QueueEntry, error) {
 		}
 		out = append(out, e)
 	}
-	return out, nil
+	return out, m.errorf("%w: the error queue did not empty after %d entries: %s", ErrInstrument, maxQueue, entries(out[:3]))
 }
 
 // dataOutOfRange is the SCPI execution error that accompanies an
@@ -444,7 +565,7 @@ func (m *Meter) Read(ctx context.Context) (drivers.Reading, error) {
 	l, err := m.port.ReadLine(ctx)
 	if err != nil {
 		m.dirty = true
-		return drivers.Reading{}, m.errorf("reply to %q: %w", m.cfg.Query, err)
+		return drivers.Reading{}, m.errorf("reply to %q: %w%s", m.cfg.Query, err, m.explain(ctx, err))
 	}
 	r := drivers.Reading{
 		Meter: m.o.name, Quantity: m.cfg.Quantity, Raw: l.Text, Mono: l.Mono, Wall: l.Wall,
@@ -480,13 +601,49 @@ func (m *Meter) Read(ctx context.Context) (drivers.Reading, error) {
 		m.o.log.Warn("meter reported errors", "meter", m.o.name, "port", m.port.Name(), "errors", r.Raw)
 	}
 	r.Status = st
-	c, err := units.ToCanonical(m.cfg.Quantity, v, m.ourUnit)
-	if err != nil {
-		return r, m.errorf("%w: %v", drivers.ErrUnit, err)
+	r.Unit = units.Canonical(m.cfg.Quantity)
+	if err := m.recheckUnit(ctx); err != nil {
+		r.Status = drivers.StatusFault
+		return r, err
 	}
-	r.Value, r.Unit = c, units.Canonical(m.cfg.Quantity)
+	if near(v, Overflow) || near(v, NotANum) || near(v, -Overflow) {
+		// A marker, not a measurement: never converted.
+		r.NoValue = true
+	} else {
+		c, err := units.ToCanonical(m.cfg.Quantity, v, m.ourUnit)
+		if err != nil {
+			return r, m.errorf("%w: %w", drivers.ErrUnit, err)
+		}
+		r.Value = c
+	}
 	m.reconnect = false // marked until a reading gets through
 	return r, nil
+}
+
+// recheckUnit asks the unit again when it is due: a meter switched to
+// another unit (by its front panel, or a reset) must not have its numbers
+// read in the old one.
+func (m *Meter) recheckUnit(ctx context.Context) error {
+	if m.cfg.UnitEvery < 0 {
+		return nil
+	}
+	if m.sinceUnit < m.cfg.UnitEvery {
+		m.sinceUnit++
+		return nil
+	}
+	m.sinceUnit = 0
+	u, err := m.query(ctx, m.cfg.UnitQuery)
+	if err != nil {
+		return fmt.Errorf("checking the unit: %w", err)
+	}
+	ours, err := Unit(m.cfg.Quantity, u)
+	if err != nil {
+		return m.errorf("the unit changed while reading: %w", err)
+	}
+	if ours != m.ourUnit {
+		return m.errorf("%w: the meter now reads in %s, not %s as when it was set up; its readings are not used", drivers.ErrUnit, strings.TrimSpace(u), m.unit)
+	}
+	return nil
 }
 
 // Close closes the port.

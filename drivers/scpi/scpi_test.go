@@ -3,6 +3,7 @@ package scpi_test
 import (
 	"context"
 	"errors"
+	"fmt"
 	"io"
 	"log/slog"
 	"math"
@@ -24,6 +25,10 @@ type dx2 struct {
 	read  string   // READ? reply
 	queue []string // pending SYST:ERR? replies
 	mute  bool
+	idn   string // *IDN? reply; the DX-2 of meters.md when empty
+	// noUnit: the meter has no UNIT:KRAT? query (it queues -113 and
+	// answers nothing, as IEEE 488.2 6.1.6 has an unknown query do).
+	noUnit bool
 }
 
 func (f *dx2) set(fn func(f *dx2)) {
@@ -40,9 +45,17 @@ func (f *dx2) handle(d *linetest.Device, cmd string) {
 	}
 	switch cmd {
 	case "*IDN?":
+		if f.idn != "" {
+			d.Send(f.idn + "\n")
+			return
+		}
 		d.Send("ONDRAKEL,DX-2,DX2-30417,1.08\n")
 	case "*RST", "*CLS", "CONF:KRAT":
 	case "UNIT:KRAT?":
+		if f.noUnit {
+			f.queue = append(f.queue, `-113,"Undefined header"`)
+			return
+		}
 		d.Send(f.unit + "\n")
 	case "READ?":
 		d.Send(f.read + "\n")
@@ -88,7 +101,9 @@ func TestIdentifyAndInit(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if got := strings.Join(d.Commands(), ","); got != "*RST,*CLS,CONF:KRAT,UNIT:KRAT?" {
+	// Identity first (nothing sent yet changes the meter's state), the
+	// set-up, its errors drained, then the unit.
+	if got := strings.Join(d.Commands(), ","); got != "*IDN?,*RST,*CLS,CONF:KRAT,SYST:ERR?,UNIT:KRAT?" {
 		t.Errorf("init sent %q", got)
 	}
 	id, err := m.Identify(ctx(t))
@@ -118,15 +133,20 @@ func TestRead(t *testing.T) {
 		st      drivers.Status
 		rawHas  string
 		wantErr error
+		marker  float64 // a special value: no value, RawValue keeps it
 	}{
 		{name: "ok", unit: "UGY/S", read: "1.2340E-01", want: 0.1234, st: drivers.StatusOK},
 		{name: "NR1", unit: "UGY/S", read: "+2", want: 2, st: drivers.StatusOK},
 		{name: "mR/s", unit: "MR/S", read: "1.0E-02", want: 0.01 * uGyPerMR, st: drivers.StatusOK},
 		{name: "mGy/h", unit: "MGY/H", read: "3.6", want: 1, st: drivers.StatusOK}, // 3.6 mGy/h = 1 µGy/s (SI prefixes)
 		// SCPI 1999.0 Vol. 1, 7.2.1: 9.9E37 overflow, 9.91E37 not a number.
-		{name: "overflow", unit: "UGY/S", read: "9.9E37", st: drivers.StatusOverRange, want: 9.9e37},
-		{name: "overflow with -222", unit: "UGY/S", read: "9.9E37", queue: []string{`-222,"Data out of range"`}, st: drivers.StatusOverRange, want: 9.9e37, rawHas: "Data out of range"},
-		{name: "not a number", unit: "UGY/S", read: "9.91E37", queue: []string{`-230,"Data corrupt or stale"`}, st: drivers.StatusFault, want: 9.91e37, rawHas: `-230,"Data corrupt or stale"`},
+		// They are markers, not numbers: never converted (issue: 9.9E37 mR/s
+		// came out as 8.68e38 µGy/s).
+		{name: "overflow", unit: "UGY/S", read: "9.9E37", st: drivers.StatusOverRange, marker: 9.9e37},
+		{name: "overflow in mR/s", unit: "MR/S", read: "9.9E37", st: drivers.StatusOverRange, marker: 9.9e37},
+		{name: "overflow with -222", unit: "UGY/S", read: "9.9E37", queue: []string{`-222,"Data out of range"`}, st: drivers.StatusOverRange, marker: 9.9e37, rawHas: "Data out of range"},
+		{name: "not a number", unit: "UGY/S", read: "9.91E37", queue: []string{`-230,"Data corrupt or stale"`}, st: drivers.StatusFault, marker: 9.91e37, rawHas: `-230,"Data corrupt or stale"`},
+		{name: "under range", unit: "MR/S", read: "-9.9E37", st: drivers.StatusUnderRange, marker: -9.9e37},
 		{name: "good number, queued error", unit: "UGY/S", read: "1.0E-01", queue: []string{`-222,"Data out of range"`, `-113,"Undefined header"`}, st: drivers.StatusFault, want: 0.1, rawHas: `-113,"Undefined header"`},
 		{name: "garbled", unit: "UGY/S", read: "1.2\x00E-01", wantErr: drivers.ErrGarbled},
 		{name: "text reply", unit: "UGY/S", read: "ONDRAKEL", wantErr: drivers.ErrGarbled},
@@ -153,6 +173,12 @@ func TestRead(t *testing.T) {
 			}
 			if err != nil {
 				t.Fatal(err)
+			}
+			if tc.marker != 0 && (!r.NoValue || r.Value != 0 || r.RawValue != tc.marker) {
+				t.Errorf("got value %v raw %v no-value %v; want no value and the raw marker %v", r.Value, r.RawValue, r.NoValue, tc.marker)
+			}
+			if tc.marker == 0 && r.NoValue {
+				t.Errorf("a number marked as no value: %+v", r)
 			}
 			if math.Abs(r.Value-tc.want) > 1e-9*math.Abs(tc.want) || r.Status != tc.st || r.Unit != "µGy/s" {
 				t.Errorf("got %v %s %s, want %v µGy/s %s", r.Value, r.Unit, r.Status, tc.want, tc.st)
@@ -181,7 +207,7 @@ func TestConfiguredUnitAndQuery(t *testing.T) {
 		t.Fatalf("got %+v, %v; want %v µGy/s", r, err, 0.6/60*uGyPerMR)
 	}
 	// The reply to READ? came after the set-up, so the device saw it all.
-	if got := strings.Join(d.Commands(), ","); !strings.HasPrefix(got, "CONF:KRAT,READ?") {
+	if got := strings.Join(d.Commands(), ","); !strings.HasPrefix(got, "*IDN?,CONF:KRAT,SYST:ERR?,READ?") || strings.Contains(got, "UNIT") {
 		t.Errorf("sent %q; want CONF:KRAT then READ? (a configured unit is not queried)", got)
 	}
 }
@@ -332,4 +358,97 @@ func FuzzParseReplies(f *testing.F) {
 			t.Fatalf("%q: %v", s, err)
 		}
 	})
+}
+
+// Errors the set-up commands cause are reported as the set-up's, all of
+// them, and never land on a reading (issue: they marked reading 1 fault,
+// and with 20 spilled onto reading 2).
+func TestSetupErrorsAreTheSetups(t *testing.T) {
+	_, d := newDX2(t)
+	var init []string
+	for i := range 20 {
+		init = append(init, fmt.Sprintf("BOGUS%d", i))
+	}
+	_, err := open(t, d.Link(), scpi.Config{Init: init, Unit: "UGY/S"})
+	if !errors.Is(err, scpi.ErrInstrument) || !strings.Contains(err.Error(), "set-up") {
+		t.Fatalf("got %v; want the set-up's instrument errors", err)
+	}
+	if n := strings.Count(err.Error(), "-113"); n != 20 {
+		t.Errorf("%d of the 20 errors reported: %v", n, err)
+	}
+}
+
+// A query the meter does not know times out; the error queue then says
+// why, and the message says the unit can be given instead of asked.
+func TestUnansweredQueryExplainedByTheQueue(t *testing.T) {
+	f, d := newDX2(t)
+	f.set(func(f *dx2) { f.noUnit = true })
+	_, err := open(t, d.Link(), scpi.Config{})
+	if !errors.Is(err, drivers.ErrTimeout) || !strings.Contains(err.Error(), `-113,"Undefined header"`) || !strings.Contains(err.Error(), "--unit") {
+		t.Fatalf("got %v; want the timeout, the queue's -113 and the hint to give the unit", err)
+	}
+}
+
+// After a reconnection the meter identifies again: another serial on the
+// link is ErrMeterChanged naming both, on every read until the right meter
+// is back (issue 8, observation 5).
+func TestReconnectToAnotherMeter(t *testing.T) {
+	f, d := newDX2(t)
+	m, err := open(t, d.Link(), scpi.Config{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := m.Read(ctx(t)); err != nil {
+		t.Fatal(err)
+	}
+	d.Pull()
+	if _, err := m.Read(ctx(t)); !errors.Is(err, drivers.ErrLinkDown) {
+		t.Fatalf("pulled: got %v", err)
+	}
+	f.set(func(f *dx2) { f.idn = "ONDRAKEL,DX-2,DX2-99999,1.08" })
+	d.Replug()
+	for i := 0; ; i++ {
+		_, err = m.Read(ctx(t))
+		if !errors.Is(err, drivers.ErrLinkDown) || i > 100 {
+			break
+		}
+	}
+	if !errors.Is(err, drivers.ErrMeterChanged) || !strings.Contains(err.Error(), "DX2-30417") || !strings.Contains(err.Error(), "DX2-99999") {
+		t.Fatalf("got %v; want ErrMeterChanged naming both serials", err)
+	}
+	if _, err := m.Read(ctx(t)); !errors.Is(err, drivers.ErrMeterChanged) {
+		t.Errorf("second read: got %v; the other meter must not give readings", err)
+	}
+	// The first meter back on the link: readings again, marked.
+	d.Pull()
+	f.set(func(f *dx2) { f.idn = "" })
+	d.Replug()
+	var r drivers.Reading
+	for i := 0; ; i++ {
+		r, err = m.Read(ctx(t))
+		if err == nil || i > 100 {
+			break
+		}
+	}
+	if err != nil || !r.AfterReconnect {
+		t.Fatalf("first meter back: %+v, %v", r, err)
+	}
+}
+
+// A meter switched to another unit while reading gives errors, not
+// readings converted from the old unit (issue 8, observation 5).
+func TestUnitRecheckedWhileReading(t *testing.T) {
+	f, d := newDX2(t)
+	m, err := open(t, d.Link(), scpi.Config{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if r, err := m.Read(ctx(t)); err != nil || r.Value != 0.1234 {
+		t.Fatalf("%+v, %v", r, err)
+	}
+	f.set(func(f *dx2) { f.unit = "MR/S" })
+	r, err := m.Read(ctx(t))
+	if !errors.Is(err, drivers.ErrUnit) || !strings.Contains(err.Error(), "MR/S") || r.Usable() {
+		t.Fatalf("got %+v, %v; want ErrUnit naming MR/S and no usable reading", r, err)
+	}
 }

@@ -5,7 +5,9 @@
 // reopening the link.
 //
 // go.bug.st/serial reports a read timeout as (0, nil); this package turns it
-// into drivers.ErrTimeout. A read that fails (EOF, EIO, the library's
+// into drivers.ErrTimeout. A background goroutine reads the device all the
+// time and stamps each line when its end arrives, so readings carry the
+// meter's timing whatever the caller was doing. A read that fails (EOF, EIO, the library's
 // "port closed") or a zero-byte read that comes back well before its
 // timeout means the device is gone: the port is closed, and the next call
 // re-resolves the link, reopens it with a backoff, discards any stale
@@ -80,6 +82,13 @@ const (
 	FlowXONXOFF = "xon-xoff"
 )
 
+// Bounds of the settings: together they bound the memory one port holds
+// (BufferLimit lines of at most MaxLineLimit bytes, and usually far less).
+const (
+	MaxLineLimit = 64 << 10
+	BufferLimit  = 4096
+)
+
 // Config describes one serial link.
 type Config struct {
 	// Port is a device path (/dev/ttyUSB0) or a stable link to one
@@ -100,9 +109,14 @@ type Config struct {
 	SendEnd, ReceiveEnd Framing
 	// ReadTimeout bounds one ReadLine, in real time; 1 s when zero.
 	ReadTimeout time.Duration
-	// MaxLine is the longest line accepted, in bytes; 256 when zero.
-	// A longer line is reported as drivers.ErrGarbled and skipped.
+	// MaxLine is the longest line accepted, in bytes; 256 when zero, at
+	// most MaxLineLimit. A longer line is reported as drivers.ErrGarbled
+	// (once) and skipped.
 	MaxLine int
+	// Buffer is how many received lines are held for the caller; 256 when
+	// zero, at most BufferLimit. When it is full the oldest line is
+	// dropped and counted (Port.Overflows).
+	Buffer int
 	// ReopenMin and ReopenMax bound the backoff between reopen attempts
 	// after the link went down (clock time); 100 ms and 2 s when zero.
 	ReopenMin, ReopenMax time.Duration
@@ -139,6 +153,9 @@ func (c *Config) defaults() {
 	if c.MaxLine <= 0 {
 		c.MaxLine = 256
 	}
+	if c.Buffer <= 0 {
+		c.Buffer = 256
+	}
 	if c.ReopenMin <= 0 {
 		c.ReopenMin = 100 * time.Millisecond
 	}
@@ -163,6 +180,12 @@ func (c Config) Validate() error {
 		if _, err := ParseFraming(string(f)); err != nil {
 			return fmt.Errorf("serial port %s: %w", c.Port, err)
 		}
+	}
+	if c.MaxLine > MaxLineLimit {
+		return fmt.Errorf("serial port %s: longest line %d bytes: expected at most %d", c.Port, c.MaxLine, MaxLineLimit)
+	}
+	if c.Buffer > BufferLimit {
+		return fmt.Errorf("serial port %s: buffer of %d lines: expected at most %d", c.Port, c.Buffer, BufferLimit)
 	}
 	switch c.Flow {
 	case FlowNone:

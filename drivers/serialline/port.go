@@ -1,15 +1,17 @@
 package serialline
 
 import (
-	"bytes"
 	"context"
 	"errors"
 	"fmt"
 	"io"
+	"io/fs"
 	"log/slog"
 	"os"
 	"path/filepath"
 	"sync"
+	"sync/atomic"
+	"syscall"
 	"time"
 
 	"go.bug.st/serial"
@@ -21,9 +23,9 @@ import (
 // Line is one line received, without its framing.
 type Line struct {
 	Text string
-	// Mono and Wall are the clock's times when ReadLine found the line's
-	// end. A reader that falls behind a streaming meter stamps late, so
-	// read such a meter continuously.
+	// Mono and Wall are the clock's times when the line's end arrived: the
+	// port's background reader stamps each line as it comes off the wire,
+	// so a caller that was busy elsewhere still gets the meter's timing.
 	Mono time.Duration
 	Wall time.Time
 	// AfterReconnect is true for the first line read after the link was
@@ -42,8 +44,38 @@ type Options struct {
 	OpenFunc func(path string, mode *serial.Mode) (serial.Port, error)
 }
 
-// Port is a line-framed serial link that survives a pulled cable. A Port
-// is used by one goroutine at a time; Close may be called from another.
+// Errors that say why a port could not be opened; they are wrapped with
+// the port's name and a hint, and (after the link was once up) with
+// drivers.ErrLinkDown. Test them with errors.Is.
+var (
+	ErrNoDevice   = errors.New("no such device")
+	ErrNotSerial  = errors.New("not a serial device")
+	ErrPermission = errors.New("permission denied")
+	ErrBusy       = errors.New("port busy")
+)
+
+// event is what the background reader hands over: a stamped line, or an
+// error (an over-long line, the device gone).
+type event struct {
+	line Line
+	err  error
+	gone bool // err means the device is gone
+}
+
+// reader is the background goroutine of one opened device.
+type reader struct {
+	dev    serial.Port
+	stop   atomic.Bool
+	done   chan struct{}
+	exited bool // set under Port.mu when the goroutine ends
+}
+
+// Port is a line-framed serial link that survives a pulled cable. A
+// background goroutine reads the device continuously, frames lines and
+// stamps each on arrival into a bounded queue (Config.Buffer lines; when
+// it is full the oldest line is dropped and counted, see Overflows).
+// A Port is used by one goroutine at a time; Close may be called from
+// another.
 type Port struct {
 	cfg  Config
 	mode *serial.Mode
@@ -51,34 +83,45 @@ type Port struct {
 	log  *slog.Logger
 	open func(string, *serial.Mode) (serial.Port, error)
 
-	mu     sync.Mutex // guards dev and closed against Close
-	dev    serial.Port
-	closed bool
+	// mu guards what the reader shares: the device, the queue, the line
+	// in progress, the flush epoch, closed.
+	mu       sync.Mutex
+	acked    *sync.Cond // signalled when the reader starts a read or ends
+	dev      serial.Port
+	rd       *reader
+	closed   bool
+	queue    []event // FIFO, at most cfg.Buffer lines
+	partial  []byte  // the line in progress
+	skipping bool    // dropping the rest of a line (too long, or cut by a flush)
+	epoch    uint64  // incremented by Flush
+	ack      uint64  // the epoch the reader's current read started in
+	overflow uint64  // lines dropped because the queue was full
+	spilling bool    // an overflow was logged and the queue has not emptied since
+	notify   chan struct{}
 
-	device     string // the device the link resolved to at the last open
-	gen        uint64 // incremented on every successful open
-	marked     bool   // the next line is the first after a reopen
-	down       bool
-	downErr    error
-	nextTry    time.Duration // clock Mono of the next reopen attempt
-	backoff    time.Duration
-	buf        []byte // received bytes not yet returned: buf[start:end]
-	wbuf       []byte // reused for writing
-	start, end int
-	skipping   bool // discarding the rest of an over-long line
-	term       byte
+	// The rest is the caller's.
+	device  string // the device the link resolved to at the last open
+	gen     uint64 // incremented on every successful open
+	marked  bool   // the next line is the first after a reopen
+	down    bool
+	nextTry time.Duration // clock Mono of the next reopen attempt
+	backoff time.Duration
+	wbuf    []byte // reused for writing
+	term    byte
 }
 
-// Open opens the port described by cfg. It fails (naming the port) when the
-// settings are invalid or the device cannot be opened now; it does not
-// retry, so a wrong path is reported at once.
+// Open opens the port described by cfg. It fails (naming the port and
+// saying why: no such device, not a serial device, permission denied, busy)
+// when the settings are invalid or the device cannot be opened now; it
+// does not retry, so a wrong path is reported at once.
 func Open(ctx context.Context, cfg Config, opts Options) (*Port, error) {
 	if err := cfg.Validate(); err != nil {
 		return nil, err
 	}
 	cfg.defaults()
 	mode, _ := cfg.mode()
-	p := &Port{cfg: cfg, mode: mode, clk: opts.Clock, log: opts.Log, open: opts.OpenFunc}
+	p := &Port{cfg: cfg, mode: mode, clk: opts.Clock, log: opts.Log, open: opts.OpenFunc, notify: make(chan struct{}, 1)}
+	p.acked = sync.NewCond(&p.mu)
 	if p.clk == nil {
 		p.clk = clock.NewReal()
 	}
@@ -92,7 +135,6 @@ func Open(ctx context.Context, cfg Config, opts Options) (*Port, error) {
 	if cfg.ReceiveEnd == CR {
 		p.term = '\r'
 	}
-	p.buf = make([]byte, 2*cfg.MaxLine+512)
 	if err := ctx.Err(); err != nil {
 		return nil, err
 	}
@@ -120,24 +162,71 @@ func (p *Port) Generation() uint64 { return p.gen }
 // Up reports whether the link is currently open.
 func (p *Port) Up() bool { return !p.down }
 
-// reopen resolves the link and opens the device, discarding stale input.
-func (p *Port) reopen() error {
+// Overflows counts the lines dropped, since Open, because the caller did
+// not read them before Config.Buffer more arrived.
+func (p *Port) Overflows() uint64 {
 	p.mu.Lock()
 	defer p.mu.Unlock()
+	return p.overflow
+}
+
+// Buffered returns how many lines (and reported errors) wait to be read.
+func (p *Port) Buffered() int {
+	p.mu.Lock()
+	defer p.mu.Unlock()
+	return len(p.queue)
+}
+
+// openError says why the device at path could not be opened, in words of
+// its own for each cause.
+func (p *Port) openError(path string, err error) error {
+	name := p.cfg.Port
+	if path != name {
+		name = fmt.Sprintf("%s (%s)", p.cfg.Port, path)
+	}
+	var pe *serial.PortError
+	isPE := errors.As(err, &pe)
+	switch {
+	case errors.Is(err, fs.ErrNotExist):
+		return fmt.Errorf("serial port %s: %w (is the adapter plugged in? ls /dev/serial/by-id lists those that are): %w", name, ErrNoDevice, err)
+	case isPE && pe.Code() == serial.PermissionDenied, errors.Is(err, fs.ErrPermission):
+		return fmt.Errorf("serial port %s: %w: this user may not open it (add the user to the group owning it, usually dialout: sudo usermod -aG dialout $USER, then log in again)", name, ErrPermission)
+	case isPE && pe.Code() == serial.PortBusy, errors.Is(err, syscall.EBUSY):
+		return fmt.Errorf("serial port %s: %w: another program has it open (close the terminal program or the other kermalux using it)", name, ErrBusy)
+	}
+	if st, serr := os.Stat(path); serr == nil {
+		switch {
+		case st.IsDir():
+			return fmt.Errorf("serial port %s: %w: it is a directory (give the device in it, such as /dev/serial/by-id/usb-...)", name, ErrNotSerial)
+		case st.Mode().IsRegular():
+			return fmt.Errorf("serial port %s: %w: it is a regular file (expected a device such as /dev/ttyUSB0 or a /dev/serial/by-id link)", name, ErrNotSerial)
+		case st.Mode()&os.ModeCharDevice == 0:
+			return fmt.Errorf("serial port %s: %w: it is neither a terminal nor a serial adapter (%s)", name, ErrNotSerial, st.Mode().Type())
+		}
+	}
+	if isPE && pe.Code() == serial.InvalidSerialPort {
+		return fmt.Errorf("serial port %s: %w: the device does not accept serial settings (%w)", name, ErrNotSerial, err)
+	}
+	return fmt.Errorf("serial port %s: cannot open it: %w", name, err)
+}
+
+// reopen resolves the link and opens the device, discarding stale input,
+// and starts the background reader.
+func (p *Port) reopen() error {
+	p.stopReader()
+	p.mu.Lock()
 	if p.closed {
+		p.mu.Unlock()
 		return fmt.Errorf("serial port %s: %w", p.cfg.Port, os.ErrClosed)
 	}
-	if p.dev != nil {
-		p.dev.Close()
-		p.dev = nil
-	}
+	p.mu.Unlock()
 	dev, err := filepath.EvalSymlinks(p.cfg.Port)
 	if err != nil {
-		return fmt.Errorf("serial port %s: %w: cannot resolve the port (%w)", p.cfg.Port, drivers.ErrLinkDown, err)
+		return p.openError(p.cfg.Port, err)
 	}
 	sp, err := p.open(dev, p.mode)
 	if err != nil {
-		return fmt.Errorf("serial port %s (%s): %w: cannot open it (%v)", p.cfg.Port, dev, drivers.ErrLinkDown, err)
+		return p.openError(dev, err)
 	}
 	if p.cfg.ModemLines {
 		if err := sp.SetDTR(true); err != nil {
@@ -151,45 +240,67 @@ func (p *Port) reopen() error {
 	if err := sp.ResetInputBuffer(); err != nil {
 		p.log.Debug("serial: cannot flush input", "port", p.cfg.Port, "err", err)
 	}
-	p.dev = sp
+	rd := &reader{dev: sp, done: make(chan struct{})}
+	p.mu.Lock()
+	if p.closed {
+		p.mu.Unlock()
+		sp.Close()
+		return fmt.Errorf("serial port %s: %w", p.cfg.Port, os.ErrClosed)
+	}
+	p.dev, p.rd = sp, rd
+	p.queue, p.partial, p.skipping = p.queue[:0], p.partial[:0], false
+	p.ack = p.epoch
+	p.mu.Unlock()
 	p.device = dev
 	p.gen++
 	p.marked = true
 	p.down = false
-	p.downErr = nil
 	p.backoff = 0
-	p.start, p.end, p.skipping = 0, 0, false
+	go p.readLoop(rd)
 	return nil
+}
+
+// stopReader ends the background reader and closes its device.
+func (p *Port) stopReader() {
+	p.mu.Lock()
+	rd := p.rd
+	p.rd, p.dev = nil, nil
+	p.mu.Unlock()
+	if rd == nil {
+		return
+	}
+	rd.stop.Store(true)
+	err := rd.dev.Close()
+	<-rd.done
+	if err != nil {
+		p.log.Debug("serial: closing", "port", p.cfg.Port, "err", err)
+	}
 }
 
 // fail marks the link down after err, closing the device.
 func (p *Port) fail(err error) error {
+	p.stopReader()
 	p.mu.Lock()
-	if p.dev != nil {
-		p.dev.Close()
-		p.dev = nil
-	}
 	closed := p.closed
+	p.queue, p.partial, p.skipping = p.queue[:0], p.partial[:0], false
 	p.mu.Unlock()
 	if closed {
 		return fmt.Errorf("serial port %s: %w", p.cfg.Port, os.ErrClosed)
 	}
-	werr := fmt.Errorf("serial port %s: %w (%w)", p.cfg.Port, drivers.ErrLinkDown, err)
 	if !p.down {
 		p.log.Warn("serial link lost", "port", p.cfg.Port, "device", p.device, "err", err)
 		p.backoff = 0
 		p.nextTry = 0
 	}
 	p.down = true
-	p.downErr = werr
-	p.start, p.end, p.skipping = 0, 0, false
-	return werr
+	return fmt.Errorf("serial port %s: %w (%w)", p.cfg.Port, drivers.ErrLinkDown, err)
 }
 
 // Ensure makes sure the link is open. While it is down, each call waits for
 // the next reopen attempt (backoff from ReopenMin doubling to ReopenMax, on
 // the Port's clock, ending early with ctx), tries once, and returns an error
-// wrapping drivers.ErrLinkDown if the device is still missing.
+// wrapping drivers.ErrLinkDown (and the reason the device cannot be
+// opened) if it is still missing.
 func (p *Port) Ensure(ctx context.Context) error {
 	p.mu.Lock()
 	closed := p.closed
@@ -212,7 +323,10 @@ func (p *Port) Ensure(ctx context.Context) error {
 			p.backoff = p.cfg.ReopenMax
 		}
 		p.nextTry = p.clk.Mono() + p.backoff
-		return err
+		if errors.Is(err, os.ErrClosed) {
+			return err
+		}
+		return fmt.Errorf("%w: %w", drivers.ErrLinkDown, err)
 	}
 	p.log.Info("serial link back", "port", p.cfg.Port, "device", p.device)
 	return nil
@@ -226,8 +340,14 @@ func (p *Port) WriteLine(ctx context.Context, s string) error {
 	b := append(p.wbuf[:0], s...)
 	b = append(b, p.cfg.SendEnd.bytes()...)
 	p.wbuf = b
+	p.mu.Lock()
+	dev := p.dev
+	p.mu.Unlock()
+	if dev == nil {
+		return p.fail(errors.New("port not open"))
+	}
 	for len(b) > 0 {
-		n, err := p.dev.Write(b)
+		n, err := dev.Write(b)
 		if err != nil {
 			return p.fail(fmt.Errorf("writing %q: %w", s, err))
 		}
@@ -239,25 +359,42 @@ func (p *Port) WriteLine(ctx context.Context, s string) error {
 	return nil
 }
 
-// Flush discards input received but not yet read, in this Port's buffer
-// and in the operating system's.
+// Flush discards input received but not yet read, in this Port's queue and
+// in the operating system's. It waits (at most one read slice) until the
+// background reader has begun a read after the call, so that nothing that
+// arrived before the call is returned afterwards. A line that was in
+// progress is dropped up to its end.
 func (p *Port) Flush() {
-	p.start, p.end = 0, 0
-	p.skipping = false
-	if p.dev != nil {
-		p.dev.ResetInputBuffer()
-	}
+	p.flush(false)
 }
 
 // Discard drops input received but not yet read, like Flush, and also the
-// rest of the line in progress, so the next line returned is one that
-// started after the call (a streaming meter's backlog is not passed on as
-// fresh, and a line cut by the flush is not reported as garbled). When the
-// flush happens to fall between two lines, the first whole line after it is
-// dropped too: one reading lost is better than a garbled one.
+// rest of the line in progress even when the flush fell between two
+// reads, so the next line returned is one that started after the call (a
+// streaming meter's backlog is not passed on as fresh, and a line cut by
+// the flush is not reported as garbled). When the flush happens to fall
+// between two lines, the first whole line after it is dropped too: one
+// reading lost is better than a garbled one.
 func (p *Port) Discard() {
-	p.Flush()
-	p.skipping = true
+	p.flush(true)
+}
+
+func (p *Port) flush(skip bool) {
+	p.mu.Lock()
+	defer p.mu.Unlock()
+	p.epoch++
+	p.skipping = skip || p.skipping || len(p.partial) > 0
+	p.queue, p.partial = p.queue[:0], p.partial[:0]
+	p.spilling = false
+	if p.dev != nil {
+		_ = p.dev.ResetInputBuffer()
+	}
+	for rd := p.rd; rd != nil && !rd.exited && p.ack != p.epoch && p.rd == rd; {
+		p.acked.Wait()
+	}
+	// The reader may have taken the flushed bytes into its line before
+	// the epoch turned; the wait made sure they were thrown away.
+	p.queue = p.queue[:0]
 }
 
 // RealTimeout converts a duration of a meter's clock (a scaled clock in the
@@ -274,151 +411,239 @@ func RealTimeout(c clock.Clock, d time.Duration) time.Duration {
 	return r
 }
 
-// slice is the longest single read, so ctx is honoured promptly.
-const slice = 100 * time.Millisecond
+// slice is the longest single read of the background reader, so that a
+// flush or a close is honoured promptly.
+const slice = 50 * time.Millisecond
+
+// readLoop is the background reader: it reads the device until told to
+// stop or the device fails, framing and stamping lines as they arrive.
+func (p *Port) readLoop(rd *reader) {
+	defer func() {
+		p.mu.Lock()
+		rd.exited = true
+		p.acked.Broadcast()
+		p.mu.Unlock()
+		close(rd.done)
+	}()
+	buf := make([]byte, 4096)
+	for !rd.stop.Load() {
+		p.mu.Lock()
+		ep := p.epoch
+		p.ack = ep
+		p.acked.Broadcast()
+		p.mu.Unlock()
+		if err := rd.dev.SetReadTimeout(slice); err != nil {
+			p.gone(rd, fmt.Errorf("setting read timeout: %w", err))
+			return
+		}
+		began := time.Now()
+		n, err := rd.dev.Read(buf)
+		mono, wall := p.clk.Mono(), p.clk.Now()
+		if rd.stop.Load() {
+			return
+		}
+		if err != nil {
+			var pe *serial.PortError
+			switch {
+			case errors.Is(err, io.EOF):
+				err = errors.New("end of file: device removed")
+			case errors.As(err, &pe) && pe.Code() == serial.PortClosed:
+				err = errors.New("device removed or port closed")
+			}
+			p.gone(rd, err)
+			return
+		}
+		if n == 0 && time.Since(began) < slice/2 {
+			// A timeout that came back far too early: the device is gone.
+			p.gone(rd, errors.New("zero-byte read before the timeout: device removed"))
+			return
+		}
+		if n == 0 {
+			continue
+		}
+		p.mu.Lock()
+		if p.epoch == ep && p.rd == rd {
+			p.frame(buf[:n], mono, wall)
+		}
+		p.mu.Unlock()
+	}
+}
+
+// gone queues the news that the device failed.
+func (p *Port) gone(rd *reader, err error) {
+	p.mu.Lock()
+	if p.rd == rd {
+		p.queue = append(p.queue, event{err: err, gone: true})
+	}
+	p.mu.Unlock()
+	p.wake()
+}
+
+func (p *Port) wake() {
+	select {
+	case p.notify <- struct{}{}:
+	default:
+	}
+}
+
+// frame splits received bytes into lines, stamped mono and wall. The
+// caller holds p.mu.
+func (p *Port) frame(data []byte, mono time.Duration, wall time.Time) {
+	pushed := false
+	for _, c := range data {
+		if c == p.term {
+			if p.skipping {
+				p.skipping = false
+				p.partial = p.partial[:0]
+				continue
+			}
+			line := p.partial
+			switch p.cfg.ReceiveEnd {
+			case CRLF, LF:
+				if n := len(line); n > 0 && line[n-1] == '\r' {
+					line = line[:n-1]
+				}
+			case CR:
+				if len(line) > 0 && line[0] == '\n' {
+					line = line[1:]
+				}
+			}
+			if len(line) > 0 { // blank lines (a CR LF pair split oddly) carry nothing
+				p.push(event{line: Line{Text: string(line), Mono: mono, Wall: wall}})
+				pushed = true
+			}
+			p.partial = p.partial[:0]
+			continue
+		}
+		if p.skipping {
+			continue
+		}
+		// One byte of slack: the CR of a CR LF end is not part of the line.
+		if len(p.partial) > p.cfg.MaxLine {
+			p.push(event{err: fmt.Errorf("serial port %s: %w: line longer than %d bytes (expected lines ending in %s; the rest of it is skipped)", p.cfg.Port, drivers.ErrGarbled, p.cfg.MaxLine, p.cfg.ReceiveEnd)})
+			pushed = true
+			p.partial = p.partial[:0]
+			p.skipping = true
+			continue
+		}
+		p.partial = append(p.partial, c)
+	}
+	if pushed {
+		p.wake()
+	}
+}
+
+// push appends an event, dropping the oldest line when the queue is full.
+// The caller holds p.mu.
+func (p *Port) push(e event) {
+	if len(p.queue) >= p.cfg.Buffer {
+		drop := 0
+		for i, q := range p.queue { // keep errors: they are few and matter
+			if q.err == nil {
+				drop = i
+				break
+			}
+		}
+		p.queue = append(p.queue[:drop], p.queue[drop+1:]...)
+		p.overflow++
+		if !p.spilling {
+			p.spilling = true
+			p.log.Warn("serial: lines arrive faster than they are read; dropping the oldest", "port", p.cfg.Port, "buffer", p.cfg.Buffer, "dropped", p.overflow)
+		}
+	}
+	p.queue = append(p.queue, e)
+}
+
+// pop takes the oldest event. The caller holds p.mu.
+func (p *Port) pop() (event, bool) {
+	if len(p.queue) == 0 {
+		p.spilling = false
+		return event{}, false
+	}
+	e := p.queue[0]
+	n := copy(p.queue, p.queue[1:])
+	p.queue[n] = event{}
+	p.queue = p.queue[:n]
+	return e, true
+}
 
 // ReadLine returns the next complete line. It fails with drivers.ErrTimeout
-// when no line ends within the read timeout (or the deadline of ctx, if
-// sooner), with drivers.ErrGarbled for a line longer than MaxLine (the rest
-// of it is skipped), and with drivers.ErrLinkDown when the device is gone.
+// when no line ends within the read timeout, with the context's error when
+// ctx ends first, with drivers.ErrGarbled for a line longer than MaxLine
+// (reported once; the rest of it is skipped), and with drivers.ErrLinkDown
+// when the device is gone.
 func (p *Port) ReadLine(ctx context.Context) (Line, error) {
 	return p.ReadLineTimeout(ctx, p.cfg.ReadTimeout)
 }
 
 // ReadLineTimeout is ReadLine with a timeout other than the configured one
-// (real time).
+// (real time). A deadline of ctx that comes before the timeout is not a
+// timeout: the call returns ctx's error when ctx ends, never before.
 func (p *Port) ReadLineTimeout(ctx context.Context, timeout time.Duration) (Line, error) {
 	if err := p.Ensure(ctx); err != nil {
 		return Line{}, err
 	}
-	deadline := time.Now().Add(timeout)
-	if d, ok := ctx.Deadline(); ok && d.Before(deadline) {
-		deadline = d
-	}
+	start := time.Now()
+	timer := time.NewTimer(timeout)
+	defer timer.Stop()
+	expired := false
 	for {
-		if l, ok, err := p.scan(); ok || err != nil {
-			return l, err
+		p.mu.Lock()
+		e, ok := p.pop()
+		p.mu.Unlock()
+		if ok {
+			switch {
+			case e.gone:
+				return Line{}, p.fail(e.err)
+			case e.err != nil:
+				return Line{}, e.err
+			}
+			l := e.line
+			l.AfterReconnect = p.marked
+			p.marked = false
+			return l, nil
 		}
 		if err := ctx.Err(); err != nil {
-			return Line{}, err
+			return Line{}, fmt.Errorf("serial port %s: waiting for a line: %w", p.cfg.Port, err)
 		}
-		left := time.Until(deadline)
-		if left <= 0 {
-			return Line{}, p.timeout(timeout)
+		if expired {
+			return Line{}, p.timeout(timeout, time.Since(start))
 		}
-		if left > slice {
-			left = slice
-		}
-		if err := p.fill(left); err != nil {
-			return Line{}, err
+		select {
+		case <-p.notify:
+		case <-ctx.Done():
+		case <-timer.C:
+			expired = true
 		}
 	}
 }
 
-func (p *Port) timeout(timeout time.Duration) error {
-	if p.end > p.start && !p.skipping {
-		partial := string(p.buf[p.start:p.end])
-		p.start, p.end = 0, 0
-		return fmt.Errorf("serial port %s: %w: no line end (%s) within %v after the partial line %q", p.cfg.Port, drivers.ErrTimeout, p.cfg.ReceiveEnd, timeout, partial)
+// timeout reports that no line came in waited (the timeout was limit),
+// showing the line in progress, which is dropped.
+func (p *Port) timeout(limit, waited time.Duration) error {
+	p.mu.Lock()
+	partial := ""
+	if !p.skipping {
+		partial = string(p.partial)
+		p.partial = p.partial[:0]
 	}
-	return fmt.Errorf("serial port %s: %w: no line (ending in %s) within %v", p.cfg.Port, drivers.ErrTimeout, p.cfg.ReceiveEnd, timeout)
-}
-
-// scan looks for a complete line in the buffer.
-func (p *Port) scan() (Line, bool, error) {
-	for {
-		data := p.buf[p.start:p.end]
-		i := bytes.IndexByte(data, p.term)
-		if i < 0 {
-			if len(data) > p.cfg.MaxLine || (p.skipping && len(data) > 0) {
-				// Too long: drop what we have and skip to the next line end.
-				first := !p.skipping
-				p.start, p.end = 0, 0
-				p.skipping = true
-				if first {
-					return Line{}, false, fmt.Errorf("serial port %s: %w: line longer than %d bytes (expected lines ending in %s)", p.cfg.Port, drivers.ErrGarbled, p.cfg.MaxLine, p.cfg.ReceiveEnd)
-				}
-			}
-			return Line{}, false, nil
-		}
-		line := data[:i]
-		p.start += i + 1
-		if p.skipping {
-			p.skipping = false
-			continue
-		}
-		switch p.cfg.ReceiveEnd {
-		case CRLF, LF:
-			line = bytes.TrimSuffix(line, []byte{'\r'})
-		case CR:
-			line = bytes.TrimPrefix(line, []byte{'\n'})
-		}
-		if len(line) > p.cfg.MaxLine {
-			return Line{}, false, fmt.Errorf("serial port %s: %w: line longer than %d bytes", p.cfg.Port, drivers.ErrGarbled, p.cfg.MaxLine)
-		}
-		if len(line) == 0 {
-			continue // blank lines (a CR LF pair split oddly) carry nothing
-		}
-		l := Line{Text: string(line), Mono: p.clk.Mono(), Wall: p.clk.Now(), AfterReconnect: p.marked}
-		p.marked = false
-		if p.start == p.end {
-			p.start, p.end = 0, 0
-		}
-		return l, true, nil
+	p.mu.Unlock()
+	w := waited.Round(time.Millisecond)
+	if partial != "" {
+		return fmt.Errorf("serial port %s: %w: no line end (%s) in %v (timeout %v) after the partial line %q", p.cfg.Port, drivers.ErrTimeout, p.cfg.ReceiveEnd, w, limit, partial)
 	}
-}
-
-// fill reads once, waiting at most d.
-func (p *Port) fill(d time.Duration) error {
-	if p.start > 0 && p.end == len(p.buf) {
-		n := copy(p.buf, p.buf[p.start:p.end])
-		p.start, p.end = 0, n
-	}
-	if p.end == len(p.buf) {
-		// Cannot happen while MaxLine bounds the buffered line; be safe.
-		p.start, p.end = 0, 0
-	}
-	dev := p.dev
-	if dev == nil {
-		return p.fail(errors.New("port not open"))
-	}
-	if err := dev.SetReadTimeout(d); err != nil {
-		return p.fail(fmt.Errorf("setting read timeout: %w", err))
-	}
-	began := time.Now()
-	n, err := dev.Read(p.buf[p.end:])
-	if err != nil {
-		if errors.Is(err, io.EOF) {
-			return p.fail(errors.New("end of file: device removed"))
-		}
-		var pe *serial.PortError
-		if errors.As(err, &pe) && pe.Code() == serial.PortClosed {
-			return p.fail(errors.New("device removed or port closed"))
-		}
-		return p.fail(err)
-	}
-	if n == 0 && time.Since(began) < d/2 {
-		// A timeout that came back far too early: the device is gone.
-		return p.fail(errors.New("zero-byte read before the timeout: device removed"))
-	}
-	p.end += n
-	return nil
+	return fmt.Errorf("serial port %s: %w: no line (ending in %s) in %v (timeout %v)", p.cfg.Port, drivers.ErrTimeout, p.cfg.ReceiveEnd, w, limit)
 }
 
 // Close closes the port; later calls fail with os.ErrClosed.
 func (p *Port) Close() error {
 	p.mu.Lock()
-	defer p.mu.Unlock()
 	if p.closed {
+		p.mu.Unlock()
 		return nil
 	}
 	p.closed = true
-	if p.dev != nil {
-		err := p.dev.Close()
-		p.dev = nil
-		if err != nil {
-			return fmt.Errorf("serial port %s: closing: %w", p.cfg.Port, err)
-		}
-	}
+	p.mu.Unlock()
+	p.stopReader()
 	return nil
 }

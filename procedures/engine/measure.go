@@ -642,45 +642,61 @@ func (e *Engine) readFor(ctx context.Context, a *attempt, d time.Duration, minN 
 	start := e.cfg.Clock.Mono()
 	for e.cfg.Clock.Mono()-start < d || len(out[a.signal]) < minN {
 		for _, role := range a.roles {
-			r, c, err := e.readOne(ctx, a, role)
-			if err != nil {
-				return nil, err
-			}
-			if err := e.guard(ctx, a, role, r, c); errors.Is(err, errIgnore) {
-				continue
-			} else if err != nil {
-				return nil, err
-			}
-			v := c.Value
-			if r.Status == drivers.StatusUnderRange {
-				v = 0 // below the meter's range: nothing to speak of
-			}
-			out[role] = append(out[role], v)
-			if err := e.record(ctx, a, role, r, c, false); err != nil {
-				return nil, err
+			for n := e.takes(role); n > 0; n-- {
+				r, c, err := e.readOne(ctx, a, role)
+				if err != nil {
+					return nil, err
+				}
+				if err := e.guard(ctx, a, role, r, c); errors.Is(err, errIgnore) {
+					continue
+				} else if err != nil {
+					return nil, err
+				}
+				v := c.Value
+				if r.Status == drivers.StatusUnderRange {
+					v = 0 // below the meter's range: nothing to speak of
+				}
+				out[role] = append(out[role], v)
+				if err := e.record(ctx, a, role, r, c, false); err != nil {
+					return nil, err
+				}
 			}
 		}
 	}
 	return out, nil
 }
 
-// cycle reads each meter of the attempt once and updates the beam state.
+// cycle reads each meter of the attempt once (a streaming meter: every
+// reading that has arrived, see takes) and updates the beam state.
 func (e *Engine) cycle(ctx context.Context, a *attempt) error {
 	for _, role := range a.roles {
-		r, c, err := e.readOne(ctx, a, role)
-		if err != nil {
-			return err
-		}
-		if err := e.guard(ctx, a, role, r, c); errors.Is(err, errIgnore) {
-			continue
-		} else if err != nil {
-			return err
-		}
-		if err := e.observe(ctx, a, role, r, c); err != nil {
-			return err
+		for n := e.takes(role); n > 0; n-- {
+			r, c, err := e.readOne(ctx, a, role)
+			if err != nil {
+				return err
+			}
+			if err := e.guard(ctx, a, role, r, c); errors.Is(err, errIgnore) {
+				continue
+			} else if err != nil {
+				return err
+			}
+			if err := e.observe(ctx, a, role, r, c); err != nil {
+				return err
+			}
 		}
 	}
 	return nil
+}
+
+// takes is how many readings to take from role's meter in one turn: one,
+// plus those a streaming meter has already received (drivers.Queued), so
+// that its readings, stamped on arrival, are neither left to pile up nor
+// paired with another meter's readings from later (at most 64 a turn).
+func (e *Engine) takes(role string) int {
+	if q, ok := e.cfg.Meters[role].(drivers.Queued); ok {
+		return 1 + min(q.Pending(), 63)
+	}
+	return 1
 }
 
 // readOne reads one meter and corrects the reading. Single timeouts and
