@@ -102,12 +102,28 @@ func ContrastRatio(open, disk Measured, diskDiameter, fieldDiameter, p float64) 
 	d := &ContrastDetail{Open: open.Samples.Mean, Disk: disk.Samples.Mean, DiskDiameter: diskDiameter, FieldDiameter: fieldDiameter}
 	if fieldDiameter > 0 && diskDiameter > 0 {
 		d.DiskFraction = diskDiameter / fieldDiameter
-		if math.Abs(d.DiskFraction-0.10) > 0.02 {
-			r.Flags = appendFlag(r.Flags, Flag{FlagDiskSize, fmt.Sprintf("lead disk %.0f mm is %.0f %% of the %.0f mm field, not 10 %%", diskDiameter, 100*d.DiskFraction, fieldDiameter)})
+		if note, wrong := LeadDiskNote(diskDiameter, fieldDiameter); wrong {
+			r.Flags = appendFlag(r.Flags, Flag{FlagDiskSize, note})
 		}
 	}
 	r.Detail = d
 	return r
+}
+
+// LeadDiskNote says whether a lead disk of diskDiameter (mm) is far from
+// the 10 % of the input field diameter (mm) that the contrast ratio is
+// defined with (more than 2 points of percent off), and if so how far, in
+// the words of the result's note. The board says it when the diameter is
+// entered, before the exposure with the disk.
+func LeadDiskNote(diskDiameter, fieldDiameter float64) (string, bool) {
+	if fieldDiameter <= 0 || diskDiameter <= 0 {
+		return "", false
+	}
+	f := diskDiameter / fieldDiameter
+	if math.Abs(f-0.10) <= 0.02 {
+		return "", false
+	}
+	return fmt.Sprintf("lead disk %.0f mm is %.0f %% of the %.0f mm field, not 10 %%", diskDiameter, 100*f, fieldDiameter), true
 }
 
 // Spot is one luminance measurement position on the output window.

@@ -103,6 +103,9 @@ type Defaults struct {
 	PressureKPa  float64 `yaml:"pressure_kpa"`
 	TubeVoltage  float64 `yaml:"tube_voltage_kv"`
 	TubeCurrent  float64 `yaml:"tube_current_ma"`
+	// LeadDiskDiameter is the diameter of the bench's lead disk for the
+	// contrast ratio, in mm.
+	LeadDiskDiameter float64 `yaml:"lead_disk_diameter_mm"`
 	// Standard uncertainties of the room thermometer (°C) and barometer
 	// (kPa), for the k_TP row of the budget. Zero: 0.29 °C and 0.12 kPa,
 	// a thermometer good to ±0.5 °C and a barometer to ±0.2 kPa read as
@@ -277,6 +280,7 @@ func (b *Bench) Values() map[string]float64 {
 	set("pressure", b.Defaults.PressureKPa)
 	set("tube_voltage", b.Defaults.TubeVoltage)
 	set("tube_current", b.Defaults.TubeCurrent)
+	set("lead_disk_diameter", b.Defaults.LeadDiskDiameter)
 	return v
 }
 

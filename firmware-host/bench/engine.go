@@ -124,7 +124,9 @@ func (b *Bench) Env() script.Env {
 			q[m.Name] = q[m.Role]
 		}
 	}
-	return script.Env{Quantities: q, FieldModes: b.ModeNames()}
+	// A foot-switch panel cannot enter a number: the checker then wants a
+	// default for every value asked.
+	return script.Env{Quantities: q, FieldModes: b.ModeNames(), Values: b.Values(), HandsFree: b.Panel.Kind == "gpio"}
 }
 
 // Procedure loads the procedure name (a built-in's name or a script path;

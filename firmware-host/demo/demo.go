@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"io"
 	"io/fs"
+	"math"
 	"os"
 	"path/filepath"
 	"sort"
@@ -346,6 +347,10 @@ func writeBench(dir string, scn *benchsim.Scenario, day time.Time) (string, erro
 	}
 	sb.WriteString("panel:\n  kind: terminal\n  speech: false\njournal: journal.db\nkeys: board-key\nsequence: acceptance\n")
 	sb.WriteString("defaults:\n  temperature_c: 20\n  pressure_kpa: 101.325\n  tube_voltage_kv: 70\n")
+	// The bench's lead disk for the contrast ratio: a tenth of the largest
+	// field's diameter (IEC 61262-6 as recalled, unverified: see
+	// procedures/builtin/contrast-ratio.yaml).
+	fmt.Fprintf(&sb, "  lead_disk_diameter_mm: %g\n", math.Round(largest))
 	// Invented local action levels: act when the conversion factor falls
 	// below 60 % of the data sheet's minimum, or the input kerma rate
 	// exceeds 2 µGy/s in any mode.

@@ -105,21 +105,22 @@ func (o *Operator) Respond(p panel.Prompt) panel.Response {
 	}
 	r := panel.Response{Answer: panel.Ack, At: o.clk.Now()}
 	if p.Value != nil {
-		r.Value = o.value(p.Value)
+		r.Value, r.Entered = o.value(p.Value)
 	}
 	return r
 }
 
-// value is what the operator reads off for a value prompt.
-func (o *Operator) value(v *panel.ValueRequest) float64 {
+// value is what the operator reads off for a value prompt, and whether
+// it was read off (entered) rather than the offered default accepted.
+func (o *Operator) value(v *panel.ValueRequest) (float64, bool) {
 	if x, ok := o.Readings[v.Name]; ok && (v.Min == v.Max || (x >= v.Min && x <= v.Max)) {
 		o.did("enter " + v.Name + " " + strconv.FormatFloat(x, 'g', -1, 64))
-		return x
+		return x, true
 	}
 	if v.HasDef {
-		return v.Default
+		return v.Default, false
 	}
-	return (v.Min + v.Max) / 2
+	return (v.Min + v.Max) / 2, true
 }
 
 // Heard reacts to what the board says: "release the beam".

@@ -758,6 +758,13 @@ func (e *Engine) correct(a *attempt, role string, r drivers.Reading) Corrected {
 			c.Corrections = append(c.Corrections, entry.Correction{Name: "dark", Factor: 1, Offset: -cond.Dark})
 		}
 	}
+	if role == Dosimeter && a.spec.Quality == "" {
+		// The coefficient is taken at the tube voltage entered: say where
+		// that value came from when nobody read it off for this reading.
+		if note := e.kvNote(a); note != "" {
+			c.Flags = append(c.Flags, note)
+		}
+	}
 	if a.inStep[role] {
 		if !c.Calibrated {
 			a.calib = false
@@ -775,6 +782,36 @@ func (e *Engine) correct(a *attempt, role string, r drivers.Reading) Corrected {
 		}
 	}
 	return c
+}
+
+// kvNote is the note a dosimeter reading carries when its coefficient is
+// interpolated at a tube voltage nobody read off for it: a bench default
+// accepted with a press, a default never asked for, or a value entered for
+// another field mode or earlier part. Empty when the tube voltage was read
+// off in this reading's field mode, or is not used.
+func (e *Engine) kvNote(a *attempt) string {
+	if _, ok := e.st.values["tube_voltage"]; !ok {
+		return ""
+	}
+	o, ok := e.st.origins["tube_voltage"]
+	switch {
+	case !ok:
+		return fmt.Sprintf("dosimeter coefficient taken at the bench's default tube voltage, %s kV, not read off", fmtNum(e.st.values["tube_voltage"]))
+	case o.unconfirmed:
+		return "dosimeter coefficient taken at a tube voltage nobody read off: " + o.text
+	case o.mode != a.step.FieldMode || !samePart(e.cfg.Procedure.Steps, o.step, a.idx):
+		return fmt.Sprintf("dosimeter coefficient taken at the tube voltage entered at step %d (%s), not read off for this reading", o.step, o.text)
+	}
+	return ""
+}
+
+// samePart reports whether steps i and j (1-based) were written in the same
+// procedure.
+func samePart(steps []Step, i, j int) bool {
+	if i < 1 || j < 1 || i > len(steps) || j > len(steps) {
+		return false
+	}
+	return steps[i-1].Procedure == steps[j-1].Procedure
 }
 
 // guard applies the safety stop and the status checks to a reading.

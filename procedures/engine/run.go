@@ -5,9 +5,11 @@ import (
 	"errors"
 	"fmt"
 	"log/slog"
+	"math"
 	"strings"
 	"time"
 
+	"kermalux/calib"
 	"kermalux/drivers/units"
 	"kermalux/procedures/entry"
 	"kermalux/procedures/panel"
@@ -32,6 +34,7 @@ const (
 	evCertificate = "certificate_problem"
 	// evSettingWarning: a local setting less safe than the default.
 	evSettingWarning = "setting_warning"
+	evDiskSize       = "lead_disk_size"
 )
 
 // errRetakePrev: the operator asked to redo the last step.
@@ -515,7 +518,7 @@ func (e *Engine) enter(ctx context.Context, idx int, s Step, base panel.Prompt) 
 		return fmt.Errorf("step %d (%s): enter step without a value", idx, s.ID)
 	}
 	req := &panel.ValueRequest{Name: v.Name, Unit: v.Unit, Default: v.Default, HasDef: v.HasDef, Min: v.Min, Max: v.Max}
-	source := "bench default"
+	offered := "procedure default"
 	q, qerr := units.QuantityOf(v.Unit)
 	if d, ok := e.cfg.Values[v.Name]; ok {
 		// Bench defaults are canonical; offer them in the unit asked.
@@ -525,9 +528,11 @@ func (e *Engine) enter(ctx context.Context, idx int, s Step, base panel.Prompt) 
 			}
 		}
 		req.Default, req.HasDef = d, true
-	} else if !v.HasDef {
-		source = "operator"
+		offered = "bench default"
 	}
+	// A value read off the console is confirmed only when someone enters
+	// it; a press that accepts the offered default is recorded as such.
+	readOff := v.Source == "" || v.Source == "operator"
 	for attempt := 0; ; attempt++ {
 		p := base
 		text := s.Text
@@ -541,12 +546,10 @@ func (e *Engine) enter(ctx context.Context, idx int, s Step, base panel.Prompt) 
 			return err
 		}
 		val := r.Value
-		if req.HasDef && val == req.Default {
-			// accepted as offered
-		} else if req.HasDef && val == 0 && (req.Min > 0 || req.Max < 0) {
-			val = req.Default // a plain press accepts the default
-		} else {
-			source = "operator"
+		source := "operator"
+		accepted := !r.Entered && req.HasDef && (val == req.Default || (val == 0 && (req.Min > 0 || req.Max < 0)))
+		if accepted {
+			val, source = req.Default, offered // a plain press accepts the default
 		}
 		if (req.Min != 0 || req.Max != 0) && (val < req.Min || val > req.Max) {
 			if err := e.say(ctx, idx, panel.Message{Text: fmt.Sprintf("%s %s is outside %s to %s %s. Please enter it again.", fmtNum(val), v.Unit, fmtNum(req.Min), fmtNum(req.Max), v.Unit), Level: panel.Retry}); err != nil {
@@ -557,6 +560,10 @@ func (e *Engine) enter(ctx context.Context, idx int, s Step, base panel.Prompt) 
 			}
 			continue
 		}
+		unconfirmed := accepted && readOff
+		if unconfirmed {
+			source += ", not read off"
+		}
 		// Kept canonical (°C, kPa, kV, mm) for the corrections.
 		canon := val
 		if qerr == nil {
@@ -565,6 +572,40 @@ func (e *Engine) enter(ctx context.Context, idx int, s Step, base panel.Prompt) 
 			}
 		}
 		e.st.values[v.Name] = canon
-		return e.journal(ctx, entry.KindValue, entry.Value{Step: idx, Name: v.Name, Value: val, Unit: v.Unit, Source: source})
+		e.st.origins[v.Name] = valueOrigin{step: idx, mode: s.FieldMode, text: fmtNum(val) + " " + v.Unit + ", " + source, unconfirmed: unconfirmed}
+		if err := e.journal(ctx, entry.KindValue, entry.Value{Step: idx, Name: v.Name, Value: val, Unit: v.Unit, Source: source, Unconfirmed: unconfirmed, FieldMode: s.FieldMode}); err != nil {
+			return err
+		}
+		if v.Name == "lead_disk_diameter" {
+			return e.checkDisk(ctx, idx, s, canon)
+		}
+		return nil
 	}
+}
+
+// checkDisk says at once when the lead disk entered is far from a tenth of
+// the input field it will be used in (the largest, unless the step is in a
+// field mode), rather than only in the contrast ratio's notes.
+func (e *Engine) checkDisk(ctx context.Context, idx int, s Step, disk float64) error {
+	mode := s.FieldMode
+	if mode == "" {
+		mode = "largest"
+	}
+	field := e.cfg.FieldModes[resolveMode(e.cfg.FieldModes, mode)]
+	if _, wrong := calib.LeadDiskNote(disk, field); !wrong {
+		return nil
+	}
+	text := fmt.Sprintf("Check the lead disk. %g mm is %.0f %% of the %g mm field. The contrast ratio needs a disk of %g mm, a tenth of the field. A result with this disk carries a note.",
+		disk, 100*disk/field, field, math.Round(field/10))
+	_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: idx, Name: evDiskSize, Detail: fmt.Sprintf("lead disk %g mm for a %g mm field", disk, field), BeamOn: e.st.beamOn.Seconds()})
+	return e.say(ctx, idx, panel.Message{Text: text, Level: panel.Warn})
+}
+
+// valueOrigin is where an entered value came from, for the notes of the
+// corrections that use it.
+type valueOrigin struct {
+	step        int
+	mode        string
+	text        string // "70 kV, bench default, not read off"
+	unconfirmed bool
 }

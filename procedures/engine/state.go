@@ -54,6 +54,7 @@ type state struct {
 	done      map[int]bool
 	checklist bool // a pre-exposure safety checklist was acknowledged
 	values    map[string]float64
+	origins   map[string]valueOrigin  // how each entered value was obtained
 	meas      map[string][]posStat    // by measure step ID, per position
 	results   map[string]entry.Result // by compute step ID
 	order     []string                // compute step IDs in order of computation
@@ -67,7 +68,7 @@ type state struct {
 
 func newState(l Limits) *state {
 	return &state{
-		done: map[int]bool{}, values: map[string]float64{}, meas: map[string][]posStat{},
+		done: map[int]bool{}, values: map[string]float64{}, origins: map[string]valueOrigin{}, meas: map[string][]posStat{},
 		results: map[string]entry.Result{}, darks: map[string]float64{},
 		nextSpeak: l.SpeakEvery, nextWarn: l.BeamWarn, nextAlarm: l.BeamAlarm,
 	}
@@ -190,6 +191,7 @@ func (e *Engine) rebuild(ctx context.Context, id string) (*state, resumeInfo, er
 					}
 				}
 				st.values[v.Name] = val
+				st.origins[v.Name] = valueOrigin{step: v.Step, mode: v.FieldMode, text: fmtNum(v.Value) + " " + v.Unit + ", " + v.Source, unconfirmed: v.Unconfirmed}
 			}
 		case entry.KindEvent:
 			var ev entry.Event

@@ -6,6 +6,7 @@ import (
 	"time"
 
 	"kermalux/firmware-host/panel/scripted"
+	"kermalux/procedures/entry"
 	"kermalux/procedures/panel"
 )
 
@@ -83,5 +84,74 @@ func TestMeterChecksTogether(t *testing.T) {
 	}
 	if len(v.sum.Results) != 4 {
 		t.Errorf("%d results, want the dark level and stability of each meter", len(v.sum.Results))
+	}
+}
+
+// A value to be read off the console (the tube voltage the brightness
+// control chose) that was only accepted at its bench default says so in
+// the record, and the dosimeter readings whose coefficient used it carry
+// a note: it never feeds a correction silently.
+func TestReadOffValueNotReplacedSilently(t *testing.T) {
+	vals := map[string]float64{"temperature": 22, "pressure": 101.3, "tube_voltage": 70, "tube_current": 1.2}
+	v := runBuiltinOnSimulator(t, room2, "input-kerma-rate", vals)
+	n := 0
+	for _, x := range records[entry.Value](v.jr, v.sum.Session, entry.KindValue) {
+		if x.Name != "tube_voltage" {
+			continue
+		}
+		n++
+		if !x.Unconfirmed || !strings.Contains(x.Source, "not read off") {
+			t.Errorf("tube voltage %g %s recorded as %q, unconfirmed %v", x.Value, x.Unit, x.Source, x.Unconfirmed)
+		}
+	}
+	if n != 3 {
+		t.Errorf("%d tube voltages recorded, want one per field mode", n)
+	}
+	rates := 0
+	for _, r := range v.sum.Results {
+		if r.Quantity != "input_kerma_rate" {
+			continue
+		}
+		rates++
+		noted := false
+		for _, f := range r.Flags {
+			noted = noted || strings.Contains(f, "dosimeter coefficient taken at")
+		}
+		if !noted {
+			t.Errorf("input kerma rate %s: no note on the tube voltage its coefficient used: %v", r.FieldMode, r.Flags)
+		}
+	}
+	if rates != 3 {
+		t.Errorf("%d input kerma rates", rates)
+	}
+}
+
+// A lead disk of the wrong size for the field is said when its diameter is
+// entered, before the exposure with the disk; the right size says nothing.
+func TestWrongLeadDiskSaidAtEntry(t *testing.T) {
+	for _, c := range []struct {
+		disk float64
+		warn bool
+	}{{50, true}, {32, false}} {
+		vals := map[string]float64{"temperature": 22, "pressure": 101.3, "lead_disk_diameter": c.disk}
+		v := runBuiltinOnSimulator(t, room2, "contrast-ratio", vals)
+		var after string
+		seenValue := false
+		for _, e := range v.pan.Events() {
+			if e.Kind == scripted.KindAsk && e.Prompt.Value != nil && e.Prompt.Value.Name == "lead_disk_diameter" {
+				seenValue = true
+				continue
+			}
+			if seenValue && e.Kind != scripted.KindIndicate {
+				if e.Kind == scripted.KindSay && e.Message.Level == panel.Warn {
+					after = e.Message.Text
+				}
+				break
+			}
+		}
+		got := strings.Contains(after, "Check the lead disk. 50 mm is 16 % of the 320 mm field")
+		if got != c.warn {
+			t.Errorf("disk %g mm: said after entry %q, want warning %v", c.disk, after, c.warn)
+		}
 	}
 }

@@ -105,7 +105,11 @@ type Value struct {
 	Name   string  `json:"name"`
 	Value  float64 `json:"value"`
 	Unit   string  `json:"unit"`
-	Source string  `json:"source"` // "operator", "bench default", "sensor"
+	Source string  `json:"source"` // "operator", "bench default", "procedure default", "sensor"; ", not read off" added when unconfirmed
+	// Unconfirmed: the value is to be read off (the console's kV, mA) but
+	// only an offered default was accepted with a press; nobody entered it.
+	Unconfirmed bool   `json:"unconfirmed,omitempty"`
+	FieldMode   string `json:"field_mode,omitempty"` // the field mode of the step that asked for it
 }
 
 // Correction is one correction applied to a reading, in the order applied.

@@ -82,7 +82,10 @@ const (
 type Response struct {
 	Answer Answer
 	Value  float64 // for value prompts
-	At     time.Time
+	// Entered: the operator entered Value (typed it, or read it off);
+	// false for a plain press that accepts the offered default.
+	Entered bool
+	At      time.Time
 }
 
 // Indicator is the board's status shown on LEDs (and the terminal).

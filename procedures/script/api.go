@@ -63,4 +63,11 @@ type Env struct {
 	// Resolver finds included procedures; nil: the built-ins and files
 	// next to the including one.
 	Resolver Resolver
+	// Values are the values the bench file gives for enter steps, by
+	// value name (canonical units); nil: not known, the checks of
+	// bench-sourced values are skipped.
+	Values map[string]float64
+	// HandsFree: the bench's panel is a foot switch, which cannot enter a
+	// number, so every value asked needs a default (with Values known).
+	HandsFree bool
 }

@@ -203,3 +203,55 @@ func TestReadMeterNotDeclared(t *testing.T) {
 		t.Errorf("got:\n%s", list(got))
 	}
 }
+
+// A value the script takes from the bench must be in the bench file, and
+// on a foot-switch panel (which cannot enter a number) every value asked
+// needs a default: otherwise the built-in acceptance would stop at the
+// lead disk diameter after its first exposures.
+func TestEnterValuesOnBench(t *testing.T) {
+	full := map[string]float64{"temperature": 22, "pressure": 101.3, "tube_voltage": 70, "tube_current": 1.2, "lead_disk_diameter": 32}
+	without := func(k string) map[string]float64 {
+		m := map[string]float64{}
+		for n, v := range full {
+			if n != k {
+				m[n] = v
+			}
+		}
+		return m
+	}
+	tests := []struct {
+		name      string
+		values    map[string]float64
+		handsFree bool
+		want      string // part of the one problem expected; "" none
+	}{
+		{"values not known", nil, true, ""},
+		{"everything on the bench", full, true, ""},
+		{"no lead disk on the bench", without("lead_disk_diameter"), false, "lead_disk_diameter comes from the bench file (source: bench), which gives no value for it (defaults: lead_disk_diameter_mm)"},
+		{"no tube current, keyboard", without("tube_current"), false, ""},
+		{"no tube current, foot switch", without("tube_current"), true, "tube_current has no default and the bench's panel is a foot switch"},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			env := Env{FieldModes: []string{"32cm", "25cm", "17cm"}, Values: tc.values, HandsFree: tc.handsFree}
+			_, probs := CheckBuiltin("acceptance", env)
+			if tc.want == "" {
+				if len(probs) > 0 {
+					t.Fatalf("unexpected problems: %v", probs)
+				}
+				return
+			}
+			found := false
+			for _, p := range probs {
+				if strings.Contains(p.Reason, tc.want) {
+					found = true
+				} else {
+					t.Errorf("other problem: %v", p)
+				}
+			}
+			if !found {
+				t.Errorf("no problem %q in %v", tc.want, probs)
+			}
+		})
+	}
+}

@@ -280,7 +280,9 @@ func (p *Panel) Ask(ctx context.Context, pr panel.Prompt) (panel.Response, error
 			fmt.Fprintf(p.out, "%s%s\n", indent, msg)
 			continue
 		}
-		return p.answer(panel.Ack, x), nil
+		r := p.answer(panel.Ack, x)
+		r.Entered = key != "" // Enter alone accepts the default
+		return r, nil
 	}
 }
 
