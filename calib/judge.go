@@ -62,6 +62,21 @@ type Verdict struct {
 	DecidedBy string // which limit decided it, in words
 	Marginal  bool   // a limit lies within the expanded uncertainty of the value
 	Notes     []string
+	// Checks are the limits compared, in the order checked, as absolute
+	// values with the margin to each (for the report).
+	Checks []Check
+}
+
+// Check is one limit compared with a value: the limit in the value's unit
+// (a baseline fraction times the baseline), the margin (positive inside
+// the limit, negative outside) and whether the limit lies within the
+// expanded uncertainty.
+type Check struct {
+	Limit    Limit
+	Absolute float64
+	Margin   float64
+	Passed   bool
+	WithinU  bool
 }
 
 // Judge judges r against limits. baseline is the intensifier's baseline
@@ -105,7 +120,9 @@ func Judge(r Result, baseline float64, limits []Limit) Verdict {
 		if l.Bound == AtMost {
 			ok, margin = r.Value <= limit, limit-r.Value
 		}
-		if math.Abs(r.Value-limit) <= r.ExpUnc {
+		within := math.Abs(r.Value-limit) <= r.ExpUnc
+		v.Checks = append(v.Checks, Check{Limit: l, Absolute: limit, Margin: margin, Passed: ok, WithinU: within})
+		if within {
 			v.Marginal = true
 			v.Notes = append(v.Notes, fmt.Sprintf("%s lies within the expanded uncertainty (±%.2g)", w, r.ExpUnc))
 		}

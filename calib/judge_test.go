@@ -47,3 +47,40 @@ func TestJudge(t *testing.T) {
 		t.Errorf("uncalibrated: %+v", v)
 	}
 }
+
+// TestJudgeReportsEveryLimit: every limit compared is returned as an
+// absolute value with its margin, not only the one that decided
+// (arithmetic on the definitions: margin = value − limit for a minimum,
+// limit − value for a maximum; a baseline limit is fraction × baseline).
+func TestJudgeReportsEveryLimit(t *testing.T) {
+	r := Result{Quantity: QConversionFactor, Value: 150, Unit: UnitConversion, ExpUnc: 5, Calibrated: true}
+	v := Judge(r, 180, []Limit{
+		{Kind: KindActionLevel, Bound: AtLeast, Value: 100},
+		{Kind: KindSpecification, Bound: AtLeast, Value: 120},
+		{Kind: KindBaseline, Bound: AtLeast, Value: 0.8},
+		{Kind: KindSpecification, Bound: AtMost, Value: 153},
+	})
+	want := []struct {
+		kind             string
+		absolute, margin float64
+		passed, withinU  bool
+	}{
+		{KindSpecification, 120, 30, true, false},
+		{KindSpecification, 153, 3, true, true},
+		{KindBaseline, 144, 6, true, false},
+		{KindActionLevel, 100, 50, true, false},
+	}
+	if len(v.Checks) != len(want) {
+		t.Fatalf("%d checks, want %d: %+v", len(v.Checks), len(want), v.Checks)
+	}
+	for i, w := range want {
+		c := v.Checks[i]
+		if c.Limit.Kind != w.kind || c.Absolute != w.absolute || c.Margin != w.margin || c.Passed != w.passed || c.WithinU != w.withinU {
+			t.Errorf("check %d: %+v, want %+v", i, c, w)
+		}
+	}
+	fail := Judge(Result{Value: 110, ExpUnc: 3, Calibrated: true}, 0, []Limit{{Kind: KindSpecification, Bound: AtLeast, Value: 120}})
+	if len(fail.Checks) != 1 || fail.Checks[0].Passed || fail.Checks[0].Margin != -10 {
+		t.Errorf("failed limit: %+v", fail.Checks)
+	}
+}

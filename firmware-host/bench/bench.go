@@ -30,18 +30,22 @@ import (
 
 // Bench is a parsed bench file.
 type Bench struct {
-	Site        string         `yaml:"site"`
-	Room        string         `yaml:"room"`
-	Engineer    string         `yaml:"engineer"`
-	Intensifier Intensifier    `yaml:"intensifier"`
-	Meters      []Meter        `yaml:"meters"`
-	Chamber     Chamber        `yaml:"chamber"`
-	Panel       compose.Config `yaml:"panel"`
-	Journal     string         `yaml:"journal"`
-	Keys        string         `yaml:"keys"` // directory of the board's signing key
-	Sequence    string         `yaml:"sequence"`
-	Defaults    Defaults       `yaml:"defaults"`
-	Limits      LocalLimits    `yaml:"limits"`
+	Site        string      `yaml:"site"`
+	Room        string      `yaml:"room"`
+	Engineer    string      `yaml:"engineer"`
+	Intensifier Intensifier `yaml:"intensifier"`
+	// TestType is why the test is made: acceptance, yearly or after repair.
+	TestType string `yaml:"test_type"`
+	// XRay is the fluoroscopy system the intensifier belongs to.
+	XRay     XRaySystem     `yaml:"xray_system"`
+	Meters   []Meter        `yaml:"meters"`
+	Chamber  Chamber        `yaml:"chamber"`
+	Panel    compose.Config `yaml:"panel"`
+	Journal  string         `yaml:"journal"`
+	Keys     string         `yaml:"keys"` // directory of the board's signing key
+	Sequence string         `yaml:"sequence"`
+	Defaults Defaults       `yaml:"defaults"`
+	Limits   LocalLimits    `yaml:"limits"`
 
 	// Path is the file the bench was read from; SHA256 its hex digest
 	// (journalled with each session).
@@ -51,7 +55,24 @@ type Bench struct {
 	// in the file is resolved against it, whatever the current directory
 	// is then or later.
 	dir string
+	// Simulated is set by the demo, whose meters are the bench simulator:
+	// its sessions and results are marked simulated, and only such a
+	// bench accepts a simulated results.json as its baseline.
+	Simulated bool `yaml:"-"`
 }
+
+// XRaySystem names the X-ray system, its generator and its tube.
+type XRaySystem struct {
+	Model           string `yaml:"model"`
+	Serial          string `yaml:"serial"`
+	Generator       string `yaml:"generator"`
+	GeneratorSerial string `yaml:"generator_serial"`
+	Tube            string `yaml:"tube"`
+	TubeSerial      string `yaml:"tube_serial"`
+}
+
+// TestTypes are the reasons for a test a bench file may give.
+var TestTypes = []string{"acceptance", "yearly", "after repair"}
 
 // Intensifier is the tube under test.
 type Intensifier struct {

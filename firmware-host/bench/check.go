@@ -4,6 +4,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"slices"
 	"strconv"
 	"strings"
 	"unicode"
@@ -136,6 +137,13 @@ func (b *Bench) check(c *checker) error {
 	}
 	for k, s := range map[string]string{"site": b.Site, "room": b.Room, "engineer": b.Engineer} {
 		c.text(p(k), s)
+	}
+	if b.TestType != "" && !slices.Contains(TestTypes, b.TestType) {
+		c.errf(p("test_type"), "%q: want one of %s", b.TestType, strings.Join(TestTypes, ", "))
+	}
+	x := b.XRay
+	for k, s := range map[string]string{"model": x.Model, "serial": x.Serial, "generator": x.Generator, "generator_serial": x.GeneratorSerial, "tube": x.Tube, "tube_serial": x.TubeSerial} {
+		c.text(p("xray_system", k), s)
 	}
 	c.text(p("intensifier", "model"), b.Intensifier.Model)
 	c.text(p("intensifier", "serial"), b.Intensifier.Serial)

@@ -1,6 +1,7 @@
 package bench
 
 import (
+	"errors"
 	"fmt"
 	"math"
 	"os"
@@ -20,6 +21,11 @@ import (
 // legacyQuantities are result names bench files of earlier releases used
 // in limits, with the name of the same quantity today.
 var legacyQuantities = map[string]string{"kerma_mode_scaling": calib.QKermaScaling}
+
+// ErrSimulatedBaseline refuses a simulated session's results.json as the
+// baseline of a real bench: it has the shape of a real one, but its
+// figures are the simulator's.
+var ErrSimulatedBaseline = errors.New("the results of a simulated session (the demo) are not measurements and cannot be the baseline of a real intensifier; use the results.json of a real session")
 
 // EngineLimits turns the bench's specification, action levels and baseline
 // into the engine's limits (defaults for what the bench leaves out).
@@ -78,6 +84,9 @@ func (b *Bench) EngineLimits() (engine.Limits, error) {
 		rf, err := engine.ReadResults(b.Rel(b.Intensifier.Baseline))
 		if err != nil {
 			return l, fmt.Errorf("bench %s: intensifier.baseline: %w", b.Path, err)
+		}
+		if rf.Simulated && !b.Simulated {
+			return l, fmt.Errorf("bench %s: intensifier.baseline %s: %w", b.Path, b.Intensifier.Baseline, ErrSimulatedBaseline)
 		}
 		l.Baseline = engine.Baselines(rf)
 	}
@@ -189,7 +198,8 @@ func (b *Bench) Config(proc engine.Procedure, meters map[string]drivers.Meter, p
 		Procedure: proc, Meters: meters, Correctors: corr, Panel: pan, Journal: j, Clock: clk,
 		Session: entry.Session{Site: b.Site, Room: b.Room, IntensifierModel: b.Intensifier.Model,
 			IntensifierSerial: b.Intensifier.Serial, Engineer: b.Engineer, Procedure: proc.Name,
-			ProcedureHash: proc.Hash, BenchHash: b.SHA256, SoftwareVersion: version, Started: day, Certificates: refs},
+			ProcedureHash: proc.Hash, BenchHash: b.SHA256, SoftwareVersion: version, Started: day, Certificates: refs,
+			Simulated: b.Simulated, TestType: b.TestType, XRay: b.xray(), Geometry: b.geometryRecord()},
 		Values: b.Values(), CertProblems: problems, Warnings: b.Warnings(), Limits: lim, BootID: BootID(), FieldModes: b.modeDiameters(),
 	}, nil
 }
@@ -235,4 +245,21 @@ func (b *Bench) modeDiameters() map[string]float64 {
 		m[f.Name] = f.DiameterMM
 	}
 	return m
+}
+
+// xray is the session's record of the X-ray system (nil when the bench
+// names none).
+func (b *Bench) xray() *entry.XRaySystem {
+	if b.XRay == (XRaySystem{}) {
+		return nil
+	}
+	x := entry.XRaySystem(b.XRay)
+	return &x
+}
+
+// geometryRecord is the session's record of the chamber's position.
+func (b *Bench) geometryRecord() *entry.Geometry {
+	c := b.Chamber
+	return &entry.Geometry{SourceToChamberMM: c.SourceToChamberMM, SourceToInputMM: c.SourceToInputMM,
+		AgainstFace: c.AgainstFace, Backscatter: c.Backscatter, GridRemoved: c.GridRemoved}
 }

@@ -125,6 +125,7 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	if err != nil {
 		return nil, err
 	}
+	b.Simulated = true // the session, its results and its report say so
 	proc, err := b.Procedure(o.Procedure)
 	if err != nil {
 		return nil, err
@@ -324,6 +325,10 @@ func writeBench(dir string, scn *benchsim.Scenario, day time.Time) (string, erro
 	if _, err := os.Stat(filepath.Join(dir, "demo-files", "baselines", in.Serial+".json")); err == nil {
 		fmt.Fprintf(&sb, "  baseline: %s\n", q("demo-files/baselines/"+in.Serial+".json"))
 	}
+	// The X-ray system around the intensifier and the reason for the
+	// test, as a bench file states them for the report (invented).
+	sb.WriteString("test_type: yearly\nxray_system:\n  model: \"Pellucor Imaging FL-700 (demo)\"\n  serial: \"FL7-0042\"\n" +
+		"  generator: \"Pellucor Imaging HF-80 (demo)\"\n  generator_serial: \"HF80-1311\"\n  tube: \"Pellucor Imaging RT-12 (demo)\"\n  tube_serial: \"RT12-7730\"\n")
 	sb.WriteString("meters:\n")
 	switch scn.Dosimeter.Protocol {
 	case benchsim.ProtocolOndrakel:

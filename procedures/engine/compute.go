@@ -323,6 +323,14 @@ func (e *Engine) applyVerdict(r *entry.Result, res calib.Result, limits []calib.
 	res.Value, res.ExpUnc, res.Unit, res.Calibrated = r.Value, r.ExpUnc, r.Unit, r.Calibrated
 	v := calib.Judge(res, r.Baseline, limits)
 	r.Verdict, r.DecidedBy = v.Verdict, v.DecidedBy
+	r.Limits = nil
+	for _, c := range v.Checks {
+		lc := entry.LimitCheck{Kind: c.Limit.Kind, Bound: string(c.Limit.Bound), Value: c.Absolute, Margin: c.Margin, Passed: c.Passed, WithinU: c.WithinU}
+		if c.Limit.Kind == calib.KindBaseline {
+			lc.Fraction = c.Limit.Value
+		}
+		r.Limits = append(r.Limits, lc)
+	}
 	if v.Marginal {
 		r.Flags = appendUnique(r.Flags, "marginal")
 	}

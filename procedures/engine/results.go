@@ -6,8 +6,11 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"math"
 	"os"
 	"path/filepath"
+	"strconv"
+	"strings"
 
 	"kermalux/procedures/entry"
 )
@@ -24,7 +27,16 @@ type ResultsFile struct {
 	Outcome   string       `json:"outcome"`
 	Results   []ResultLine `json:"results"`
 	BeamOn    float64      `json:"beam_on_s"`
+	// Simulated is true when the readings came from the bench simulator
+	// (the demo): the figures are not measurements, and such a file is
+	// refused as the baseline of a real bench.
+	Simulated bool `json:"simulated"`
+	// Note says so in words, for a person who opens the file.
+	Note string `json:"note,omitempty"`
 }
+
+// SimulatedNote is what a simulated results file says of itself.
+const SimulatedNote = "simulated session: the readings came from the bench simulator; these figures are not measurements"
 
 // ResultLine is one figure of merit in results.json.
 type ResultLine struct {
@@ -47,7 +59,10 @@ func NewResultsFile(s Summary, sess entry.Session) ResultsFile {
 	rf := ResultsFile{
 		Session: s.Session, Site: sess.Site, Room: sess.Room, Model: sess.IntensifierModel,
 		Serial: sess.IntensifierSerial, Procedure: sess.Procedure, Outcome: s.Outcome,
-		Results: []ResultLine{}, BeamOn: s.BeamOn.Seconds(),
+		Results: []ResultLine{}, BeamOn: s.BeamOn.Seconds(), Simulated: sess.Simulated,
+	}
+	if sess.Simulated {
+		rf.Note = SimulatedNote
 	}
 	for _, r := range s.Results {
 		rf.Results = append(rf.Results, ResultLine{
@@ -136,3 +151,62 @@ func limitKey(quantity, mode string) string {
 	}
 	return quantity + "@" + mode
 }
+
+// RoundToUncertainty writes a value and its uncertainty the way
+// JCGM 100:2008 asks (7.2.6: an uncertainty with at most two significant
+// digits; the value rounded to the same decimal place): u is rounded to
+// two significant digits first, so 0.0996 becomes "0.10", not "0.100".
+// Both are in fixed notation, never with an exponent. Without an
+// uncertainty (u ≤ 0, NaN or infinite) the value has four significant
+// digits and unc is "".
+func RoundToUncertainty(v, u float64) (value, unc string) {
+	if !(u > 0) || math.IsInf(u, 0) {
+		return FourDigits(v), ""
+	}
+	if place := tensPlace(u); place > 0 {
+		// u ≥ 100: two significant digits end left of the decimal point.
+		p := math.Pow10(place)
+		return strconv.FormatFloat(math.Round(v/p)*p, 'f', 0, 64), strconv.FormatFloat(math.Round(u/p)*p, 'f', 0, 64)
+	}
+	d := decimalsFor(u)
+	return strconv.FormatFloat(v, 'f', d, 64), strconv.FormatFloat(u, 'f', d, 64)
+}
+
+// tensPlace is the power of ten of u's second significant digit when
+// that lies left of the units (u ≥ 100), else 0.
+func tensPlace(u float64) int {
+	s := strconv.FormatFloat(u, 'e', 1, 64)
+	exp, err := strconv.Atoi(s[strings.IndexByte(s, 'e')+1:])
+	if err != nil || exp < 2 {
+		return 0
+	}
+	return exp - 1
+}
+
+// decimalsFor is the number of decimals that shows u rounded to two
+// significant digits (0 for u ≥ 10; at most 12).
+func decimalsFor(u float64) int {
+	s := strconv.FormatFloat(u, 'e', 1, 64) // "d.de±XX", rounded to two digits
+	exp, err := strconv.Atoi(s[strings.IndexByte(s, 'e')+1:])
+	if err != nil {
+		return 0
+	}
+	return min(max(1-exp, 0), 12)
+}
+
+// FourDigits writes v with four significant digits in fixed notation,
+// keeping trailing zeros (they are significant): 0.03004, 120.0, 12350.
+func FourDigits(v float64) string {
+	if v == 0 || math.IsNaN(v) || math.IsInf(v, 0) {
+		return strconv.FormatFloat(v, 'f', -1, 64)
+	}
+	s := strconv.FormatFloat(v, 'e', 3, 64)
+	exp, err := strconv.Atoi(s[strings.IndexByte(s, 'e')+1:])
+	if err != nil {
+		return s
+	}
+	return strconv.FormatFloat(v, 'f', min(max(3-exp, 0), 15), 64)
+}
+
+// CoverageFactor writes k with two decimals, the same in every table.
+func CoverageFactor(k float64) string { return strconv.FormatFloat(k, 'f', 2, 64) }

@@ -46,3 +46,63 @@ func FuzzParseResults(f *testing.F) {
 		}
 	})
 }
+
+// TestSimulatedResultsSayIt: a simulated session's results.json carries
+// "simulated": true and a note, a real one "simulated": false.
+func TestSimulatedResultsSayIt(t *testing.T) {
+	sum := Summary{Session: "s1", Outcome: "complete", Results: []entry.Result{{Quantity: "conversion_factor", Value: 152}}}
+	for _, sim := range []bool{true, false} {
+		var buf bytes.Buffer
+		if err := WriteResults(&buf, NewResultsFile(sum, entry.Session{Simulated: sim})); err != nil {
+			t.Fatal(err)
+		}
+		rf, err := ParseResults("r.json", buf.Bytes())
+		if err != nil {
+			t.Fatal(err)
+		}
+		want := `"simulated": false`
+		if sim {
+			want = `"simulated": true`
+		}
+		if rf.Simulated != sim || !strings.Contains(buf.String(), want) || (sim && !strings.Contains(rf.Note, "not measurements")) {
+			t.Errorf("simulated %v: %s", sim, buf.String())
+		}
+	}
+}
+
+// TestRoundToUncertainty: the uncertainty keeps two significant digits,
+// the value is rounded to the same place (JCGM 100:2008 7.2.6), in fixed
+// notation. The first two rows are the GUM's own examples of a stated
+// result (7.2.2: m = 100.021 47 g, u = 0.35 mg; 7.2.4: U = 0.79 mg;
+// quoted from memory of the text).
+func TestRoundToUncertainty(t *testing.T) {
+	for _, c := range []struct {
+		v, u         float64
+		wantV, wantU string
+	}{
+		{100.02147, 0.00035, "100.02147", "0.00035"},
+		{100.02147, 0.00079, "100.02147", "0.00079"},
+		{95.17, 3.5, "95.2", "3.5"},                  // the demo summary printed "95.17 ± 3.5"
+		{0.03004, 5.4e-06, "0.0300400", "0.0000054"}, // and "0.03 ± 5.4e-06"
+		{151.47, 5.43, "151.5", "5.4"},
+		{0.0804, 0.00996, "0.080", "0.010"}, // U rounds up to 0.010: two digits, not three
+		{1234.6, 47, "1235", "47"},
+		{1234.5, 470, "1230", "470"},
+		{24.07, 0, "24.07", ""},
+		{0.03004, 0, "0.03004", ""},
+		{120, 0, "120.0", ""},
+	} {
+		v, u := RoundToUncertainty(c.v, c.u)
+		if v != c.wantV || u != c.wantU {
+			t.Errorf("RoundToUncertainty(%g, %g) = %q, %q; want %q, %q", c.v, c.u, v, u, c.wantV, c.wantU)
+		}
+	}
+	for _, c := range []struct {
+		k    float64
+		want string
+	}{{2.002, "2.00"}, {2.01, "2.01"}, {2, "2.00"}, {2.128, "2.13"}} {
+		if got := CoverageFactor(c.k); got != c.want {
+			t.Errorf("CoverageFactor(%g) = %q, want %q", c.k, got, c.want)
+		}
+	}
+}

@@ -42,6 +42,39 @@ type Session struct {
 	BoardKey          string    `json:"board_key"` // hex ed25519 public key of the board
 	Started           time.Time `json:"started"`
 	Certificates      []CertRef `json:"certificates,omitempty"`
+	// Simulated is true when the meters are the bench simulator (the
+	// demo): nothing of the session is a measurement.
+	Simulated bool `json:"simulated,omitempty"`
+	// TestType is why the test is made: "acceptance", "yearly",
+	// "after repair" (the bench file's test_type; empty when not said).
+	TestType string `json:"test_type,omitempty"`
+	// XRay is the X-ray system the intensifier belongs to, as the bench
+	// file describes it.
+	XRay *XRaySystem `json:"xray_system,omitempty"`
+	// Geometry is where the chamber sat, as the bench file describes it.
+	Geometry *Geometry `json:"geometry,omitempty"`
+}
+
+// XRaySystem identifies the fluoroscopy system the intensifier is part of.
+type XRaySystem struct {
+	Model           string `json:"model,omitempty"`
+	Serial          string `json:"serial,omitempty"`
+	Generator       string `json:"generator,omitempty"`
+	GeneratorSerial string `json:"generator_serial,omitempty"`
+	Tube            string `json:"tube,omitempty"`
+	TubeSerial      string `json:"tube_serial,omitempty"`
+}
+
+// Geometry is the dosimeter chamber's position: distances from the focal
+// spot in mm (0: not stated), whether it sat against the intensifier's
+// face (backscatter then enters the reading), the backscatter factor
+// divided out, and whether the anti-scatter grid was removed.
+type Geometry struct {
+	SourceToChamberMM float64 `json:"source_to_chamber_mm,omitempty"`
+	SourceToInputMM   float64 `json:"source_to_input_mm,omitempty"`
+	AgainstFace       bool    `json:"against_face"`
+	Backscatter       float64 `json:"backscatter,omitempty"`
+	GridRemoved       bool    `json:"grid_removed"`
 }
 
 // CertRef identifies a calibration certificate used in a session.
@@ -184,6 +217,20 @@ type Result struct {
 	BaselineFrac float64     `json:"baseline_fraction,omitempty"`
 	Budget       []BudgetRow `json:"budget,omitempty"`
 	Detail       any         `json:"detail,omitempty"` // e.g. the radial profile or the uniformity map
+	// Limits are every limit the result was compared with, as absolute
+	// values in the result's unit, with the margin to each.
+	Limits []LimitCheck `json:"limits,omitempty"`
+}
+
+// LimitCheck is one limit a result was compared with.
+type LimitCheck struct {
+	Kind     string  `json:"kind"`               // "specification", "baseline", "action level"
+	Bound    string  `json:"bound"`              // "at_least" or "at_most"
+	Value    float64 `json:"value"`              // the limit in the result's unit
+	Fraction float64 `json:"fraction,omitempty"` // baseline limits: the fraction of baseline
+	Margin   float64 `json:"margin"`             // how far inside the limit the value lies (negative: outside)
+	Passed   bool    `json:"passed"`
+	WithinU  bool    `json:"within_uncertainty,omitempty"` // the limit lies within the expanded uncertainty
 }
 
 // SessionEnd closes a session.
