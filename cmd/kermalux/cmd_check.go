@@ -1,6 +1,7 @@
 package main
 
 import (
+	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
@@ -40,19 +41,22 @@ Exit status: 0 valid, 1 invalid, 2 wrong command line.`,
 
 	var showSteps string
 	var showModes []string
+	var procsJSON bool
 	procs := &cobra.Command{
 		Use:   "procedures [--steps NAME]",
 		Short: "List the built-in procedures, or the steps of one",
 		Args:  cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if showSteps != "" {
-				return runShowSteps(cmd.OutOrStdout(), showSteps, showModes)
+				return runShowSteps(cmd.OutOrStdout(), showSteps, showModes, procsJSON)
 			}
-			return runListProcedures(cmd.OutOrStdout())
+			return runListProcedures(cmd.OutOrStdout(), procsJSON)
 		},
 	}
 	procs.Flags().StringVar(&showSteps, "steps", "", "show the flattened steps of the built-in procedure NAME")
 	procs.Flags().StringSliceVar(&showModes, "modes", []string{"full", "medium", "small"}, "field modes to expand per_field_mode blocks with")
+	procs.Flags().BoolVar(&procsJSON, "json", false, "print the list, or the steps, as JSON")
+	_ = procs.RegisterFlagCompletionFunc("steps", completeProcedures)
 	register(check, procs)
 }
 
@@ -114,18 +118,63 @@ func summary(p *script.Procedure, env script.Env) string {
 	return s
 }
 
-func runListProcedures(w io.Writer) error {
+// procedureJSON is one built-in procedure in `procedures --json`.
+type procedureJSON struct {
+	Name       string  `json:"name"`
+	Title      string  `json:"title"`
+	Version    string  `json:"version"`
+	BeamBudget float64 `json:"beam_budget_s"`
+}
+
+// stepsJSON is `procedures --steps NAME --json`.
+type stepsJSON struct {
+	procedureJSON
+	FieldModes []string   `json:"field_modes"`
+	BeamMax    float64    `json:"beam_max_s"` // the flattened steps' beam-on budget
+	Steps      []stepJSON `json:"steps"`
+}
+
+type stepJSON struct {
+	Index     int               `json:"index"`
+	Of        int               `json:"of"`
+	ID        string            `json:"id"`
+	Kind      string            `json:"kind"`
+	FieldMode string            `json:"field_mode,omitempty"`
+	Procedure string            `json:"procedure"`
+	Text      string            `json:"text,omitempty"`
+	Items     []string          `json:"items,omitempty"`
+	Setup     map[string]string `json:"setup,omitempty"`
+	MaxBeam   float64           `json:"max_beam_s,omitempty"`
+}
+
+func writeJSON(w io.Writer, v any) error {
+	enc := json.NewEncoder(w)
+	enc.SetIndent("", "  ")
+	if err := enc.Encode(v); err != nil {
+		return withCode(exitFailure, fmt.Errorf("JSON: %w", err))
+	}
+	return nil
+}
+
+func runListProcedures(w io.Writer, asJSON bool) error {
+	list := []procedureJSON{}
 	for _, n := range builtin.Names() {
 		p, err := script.LoadBuiltin(n)
 		if err != nil {
 			return withCode(exitFailure, fmt.Errorf("built-in %s: %w", n, err))
 		}
-		fmt.Fprintf(w, "%-22s %s\n", n, p.Title)
+		list = append(list, procedureJSON{Name: n, Title: p.Title, Version: p.Version, BeamBudget: p.BeamBudget.Seconds()})
+	}
+	if asJSON {
+		return writeJSON(w, list)
+	}
+	for _, p := range list {
+		fmt.Fprintf(w, "%-22s %s\n", p.Name, p.Title)
 	}
 	return nil
 }
 
-func runShowSteps(w io.Writer, name string, modes []string) error {
+func runShowSteps(w io.Writer, name string, modes []string, asJSON bool) error {
 	p, err := script.LoadBuiltin(name)
 	if err != nil {
 		return withCode(exitFailure, err)
@@ -133,6 +182,19 @@ func runShowSteps(w io.Writer, name string, modes []string) error {
 	f, err := script.Flatten(p, script.Env{FieldModes: modes})
 	if err != nil {
 		return withCode(exitFailure, err)
+	}
+	if asJSON {
+		out := stepsJSON{procedureJSON: procedureJSON{Name: name, Title: p.Title, Version: p.Version, BeamBudget: p.BeamBudget.Seconds()},
+			FieldModes: modes, BeamMax: f.BeamBudget.Seconds(), Steps: []stepJSON{}}
+		for _, s := range f.Steps {
+			sj := stepJSON{Index: s.Index, Of: s.Of, ID: s.ID, Kind: string(s.Step.Kind), FieldMode: s.FieldMode, Procedure: s.Procedure,
+				Text: strings.Join(strings.Fields(s.Step.Text), " "), MaxBeam: s.MaxBeam().Seconds(), Setup: s.Step.Setup.Map()}
+			for _, it := range s.Step.Items {
+				sj.Items = append(sj.Items, it.Text)
+			}
+			out.Steps = append(out.Steps, sj)
+		}
+		return writeJSON(w, out)
 	}
 	fmt.Fprintf(w, "%s: %d steps, beam-on budget %g s\n", p.Title, len(f.Steps), f.BeamBudget.Seconds())
 	for _, s := range f.Steps {

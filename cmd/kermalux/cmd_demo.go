@@ -6,11 +6,15 @@ import (
 	"io"
 	"os"
 	"os/signal"
+	"strings"
 	"syscall"
+	"unicode/utf8"
 
 	"github.com/spf13/cobra"
 
 	"kermalux/firmware-host/demo"
+	"kermalux/procedures/engine"
+	"kermalux/procedures/entry"
 )
 
 type demoOptions struct {
@@ -78,19 +82,9 @@ func runDemo(parent context.Context, w io.Writer, o demoOptions, hasSeed bool) e
 
 func printDemoSummary(w io.Writer, out *demo.Outcome) {
 	s := out.Summary
-	fmt.Fprintf(w, "\nSession %s: %s, %d of %d steps, beam-on %.0f s, %s simulated in %s.\n",
+	fmt.Fprintf(w, "\nSession %s (SIMULATED): %s, %d of %d steps, beam-on %.0f s, %s simulated in %s.\n",
 		s.Session, s.Outcome, s.Steps, s.Of, s.BeamOn.Seconds(), out.Elapsed.Round(1e9), out.Wall.Round(1e8))
-	for _, r := range s.Results {
-		mode := r.FieldMode
-		if mode == "" {
-			mode = "-"
-		}
-		cal := ""
-		if !r.Calibrated {
-			cal = " (not calibrated)"
-		}
-		fmt.Fprintf(w, "  %-18s %-6s %10.4g ± %-8.2g %-22s %s%s\n", r.Quantity, mode, r.Value, r.ExpUnc, r.Unit, r.Verdict, cal)
-	}
+	writeSummaryTable(w, s.Results)
 	if s.Review > 0 {
 		fmt.Fprintf(w, "%d result(s) need review.\n", s.Review)
 	}
@@ -104,4 +98,55 @@ func printDemoSummary(w io.Writer, out *demo.Outcome) {
 		fmt.Fprintf(w, "Report:  not rendered by this build; at the office: kermalux report --journal %s --out DIR\n", out.Journal)
 	}
 	fmt.Fprintln(w, "Simulated bench: these figures are not measurements.")
+}
+
+// writeSummaryTable prints the results of a run as a table with a header:
+// the value rounded to its expanded uncertainty's two significant digits
+// (JCGM 100:2008 7.2.6), U, the coverage factor k with two decimals, the
+// unit and the verdict. Text columns are aligned left, numbers right.
+func writeSummaryTable(w io.Writer, results []entry.Result) {
+	rows := [][]string{{"quantity", "field", "value", "U", "k", "unit", "verdict"}}
+	for _, r := range results {
+		mode := r.FieldMode
+		if mode == "" {
+			mode = "-"
+		}
+		val, unc := engine.RoundToUncertainty(r.Value, r.ExpUnc)
+		k := engine.CoverageFactor(r.K)
+		if unc == "" {
+			unc, k = "not evaluated", "-"
+		} else {
+			unc = "± " + unc
+		}
+		verdict := r.Verdict
+		if !r.Calibrated {
+			verdict += " (not calibrated)"
+		}
+		unit := r.Unit
+		if unit == "1" {
+			unit = "ratio"
+		}
+		rows = append(rows, []string{r.Quantity, mode, val, unc, k, unit, verdict})
+	}
+	width := make([]int, len(rows[0]))
+	for _, row := range rows {
+		for i, c := range row {
+			width[i] = max(width[i], utf8.RuneCountInString(c))
+		}
+	}
+	right := []bool{false, false, true, true, true, false, false}
+	for _, row := range rows {
+		var b strings.Builder
+		b.WriteString(" ")
+		for i, c := range row {
+			pad := strings.Repeat(" ", width[i]-utf8.RuneCountInString(c))
+			b.WriteString(" ")
+			if right[i] {
+				b.WriteString(pad + c)
+			} else {
+				b.WriteString(c + pad)
+			}
+		}
+		fmt.Fprintln(w, strings.TrimRight(b.String(), " "))
+	}
 }

@@ -15,7 +15,7 @@ import (
 func init() {
 	var storePath, session, serial, journalPath, out, formats string
 	var latest bool
-	var actionLevel float64
+	var actionLevels []float64
 	cmd := &cobra.Command{
 		Use:   "report (--store PATH (--session ID | --serial SERIAL [--latest]) | --journal FILE) --out DIR",
 		Short: "Render the acceptance report of a session as HTML, PDF and CSV",
@@ -68,7 +68,7 @@ Files are written to DIR as report-<serial>-<date>-<session>.html, .pdf,
 					return withCode(exitFailure, err)
 				}
 				defer st.Close()
-				reports, err = report.FromStore(cmd.Context(), st, report.Selection{Session: session, Serial: serial, Latest: latest}, actionLevel)
+				reports, err = report.FromStore(cmd.Context(), st, report.Selection{Session: session, Serial: serial, Latest: latest}, actionLevels...)
 				if err != nil {
 					return withCode(exitFailure, err)
 				}
@@ -93,7 +93,7 @@ Files are written to DIR as report-<serial>-<date>-<session>.html, .pdf,
 	f.StringVar(&journalPath, "journal", "", "board journal file, or its JSON-lines export")
 	f.StringVar(&out, "out", "", "directory to write the report into")
 	f.StringVar(&formats, "format", "html,pdf,csv", "comma-separated formats: html, pdf, csv")
-	f.Float64Var(&actionLevel, "action-level", report.DefaultActionLevel, "action level for the trend, as a fraction of baseline (a local decision)")
+	f.Float64SliceVar(&actionLevels, "action-level", nil, "the trend also projects to this fraction of baseline (repeatable; the recorded limits are always projected)")
 	_ = cmd.MarkFlagRequired("out")
 	register(cmd)
 }

@@ -13,22 +13,33 @@ import (
 
 func init() {
 	var storePath, quantity, mode, plot string
-	var actionLevel float64
-	var csvOut bool
+	var actionLevels []float64
+	var csvOut, jsonOut bool
 	cmd := &cobra.Command{
 		Use:   "trend SERIAL --store PATH [--quantity conversion_factor] [--plot FILE.png|.svg]",
-		Short: "Show one intensifier's results over the years and when it reaches the action level",
+		Short: "Show one intensifier's results over the years and when it reaches each configured limit",
 		Long: `trend prints an intensifier's history of one quantity (by default the
 conversion factor), one table per field mode: date, site and room, value with
-its expanded uncertainty, fraction of baseline and verdict; then the annual
-rate of change from a least-squares line and the date that line reaches the
-action level (a fraction of baseline; a local decision, 0.5 unless set).
+its expanded uncertainty, fraction of baseline and verdict (simulated sessions
+are marked, shown and not fitted); then the annual rate of change from a
+least-squares line with its uncertainty, and for every limit the latest result
+was judged against (the bench's specification, action levels and baseline
+rule, journalled with each result) the month the line reaches it with the
+95 % confidence band of that date. --action-level adds a fraction of baseline
+(a local decision; repeat it for several).
 With --plot it also draws the chart (one file per field mode when there are
-several). With --csv it prints the history as CSV instead of the table.`,
-		Args: cobra.ExactArgs(1),
+several). With --csv it prints the history as CSV, with --json everything as
+one JSON document, instead of the table.`,
+		Args:              exactArgs(1, "the intensifier's serial number, e.g. kermalux trend HV-2291 --store office.db"),
+		ValidArgsFunction: completeSerials(&storePath),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			if actionLevel <= 0 || actionLevel >= 10 {
-				return withCode(exitUsage, fmt.Errorf("--action-level %g: give a fraction of baseline such as 0.5", actionLevel))
+			for _, a := range actionLevels {
+				if a <= 0 || a >= 10 {
+					return withCode(exitUsage, fmt.Errorf("--action-level %g: give a fraction of baseline such as 0.5", a))
+				}
+			}
+			if csvOut && jsonOut {
+				return withCode(exitUsage, fmt.Errorf("give --csv or --json, not both"))
 			}
 			if !store.Exists(storePath) {
 				return withCode(exitFailure, fmt.Errorf("store %s does not exist (receive or import sessions first)", storePath))
@@ -38,16 +49,19 @@ several). With --csv it prints the history as CSV instead of the table.`,
 				return withCode(exitFailure, err)
 			}
 			defer st.Close()
-			trends, err := report.LoadTrends(cmd.Context(), report.StoreHistory{Store: st}, args[0], quantity, actionLevel)
+			trends, err := report.LoadTrends(cmd.Context(), report.StoreHistory{Store: st}, args[0], quantity, actionLevels...)
 			if err != nil {
 				return withCode(exitFailure, err)
 			}
 			if trends = report.FilterMode(trends, mode); len(trends) == 0 {
 				return withCode(exitFailure, fmt.Errorf("intensifier %s has no %s results in field mode %q", args[0], quantity, mode))
 			}
-			if csvOut {
+			switch {
+			case csvOut:
 				err = report.WriteTrendCSV(cmd.OutOrStdout(), trends)
-			} else {
+			case jsonOut:
+				err = report.WriteTrendJSON(cmd.OutOrStdout(), trends)
+			default:
 				err = report.WriteTrendText(cmd.OutOrStdout(), trends)
 			}
 			if err != nil {
@@ -70,8 +84,11 @@ several). With --csv it prints the history as CSV instead of the table.`,
 	f.StringVar(&quantity, "quantity", "conversion_factor", "result quantity: conversion_factor, contrast_ratio, non_uniformity, input_kerma_rate, ...")
 	f.StringVar(&mode, "field-mode", "", "only this field mode")
 	f.StringVar(&plot, "plot", "", "write the chart to FILE.png or FILE.svg")
-	f.Float64Var(&actionLevel, "action-level", report.DefaultActionLevel, "action level as a fraction of baseline")
+	f.Float64SliceVar(&actionLevels, "action-level", nil, "also project to this fraction of baseline (repeatable; the recorded limits are always projected)")
 	f.BoolVar(&csvOut, "csv", false, "print the history as CSV")
+	f.BoolVar(&jsonOut, "json", false, "print the history, fit and projections as JSON")
+	_ = cmd.RegisterFlagCompletionFunc("quantity", completeQuantities)
+	_ = cmd.RegisterFlagCompletionFunc("store", cobra.FixedCompletions(nil, cobra.ShellCompDirectiveDefault))
 	_ = cmd.MarkFlagRequired("store")
 	register(cmd)
 }

@@ -12,7 +12,9 @@ import (
 	"io"
 	"log/slog"
 	"os"
+	"runtime/debug"
 	"strings"
+	"sync"
 
 	"github.com/spf13/cobra"
 )
@@ -34,7 +36,47 @@ CAUTION: X-rays are dangerous. kermalux does not replace the judgement of a
 qualified medical physicist or radiation safety officer, nor local regulations.`,
 	SilenceUsage:  true,
 	SilenceErrors: true,
-	Version:       version,
+	Version:       versionLine(),
+}
+
+func init() {
+	root.SetVersionTemplate("kermalux {{.Version}}\n")
+}
+
+// versionLine is what --version prints: the version, the build flavour
+// (board or workstation, from the board build tag), and the commit and
+// its time as the Go toolchain recorded them (runtime/debug.ReadBuildInfo;
+// "+changes" when the tree had uncommitted changes).
+func versionLine() string {
+	s := version + " (" + buildFlavour
+	if bi, ok := debug.ReadBuildInfo(); ok {
+		set := map[string]string{}
+		for _, kv := range bi.Settings {
+			set[kv.Key] = kv.Value
+		}
+		if rev := set["vcs.revision"]; rev != "" {
+			if len(rev) > 12 {
+				rev = rev[:12]
+			}
+			s += ", commit " + rev
+			if set["vcs.modified"] == "true" {
+				s += "+changes"
+			}
+			if t := set["vcs.time"]; t != "" {
+				s += " of " + t
+			}
+		} else {
+			s += ", commit unknown"
+		}
+		s += ", " + bi.GoVersion
+		if arch := set["GOARCH"]; arch != "" {
+			s += " " + set["GOOS"] + "/" + arch
+			if arm := set["GOARM"]; arm != "" {
+				s += "v" + arm
+			}
+		}
+	}
+	return s + ")"
 }
 
 // register adds a subcommand; each cmd_<name>.go calls it from init.
@@ -67,12 +109,16 @@ func main() {
 // execute runs the command line args and returns the exit code.
 func execute(args []string, stdout, stderr io.Writer) int {
 	root.SetFlagErrorFunc(func(c *cobra.Command, err error) error { return withCode(exitUsage, err) })
+	completionOnce.Do(wireCompletion)
 	root.SetArgs(args)
 	root.SetOut(stdout)
 	root.SetErr(stderr)
 	err := root.Execute()
 	if err == nil {
 		return exitOK
+	}
+	if missing := missingArgument(args, err); missing != "" {
+		err = withCode(exitUsage, errors.New(missing))
 	}
 	fmt.Fprintln(stderr, "kermalux:", err)
 	var ee *exitError
@@ -83,6 +129,41 @@ func execute(args []string, stdout, stderr io.Writer) int {
 		return exitUsage
 	}
 	return exitFailure
+}
+
+var completionOnce sync.Once
+
+// exactArgs wants n arguments and names what is missing: "missing the
+// intensifier's serial number, e.g. ...".
+func exactArgs(n int, what string) cobra.PositionalArgs {
+	return func(c *cobra.Command, args []string) error {
+		switch {
+		case len(args) < n:
+			return withCode(exitUsage, fmt.Errorf("%s: missing %s (usage: %s)", c.CommandPath(), what, c.UseLine()))
+		case len(args) > n:
+			return withCode(exitUsage, fmt.Errorf("%s: %d arguments, want %d: %s (usage: %s)", c.CommandPath(), len(args), n, what, c.UseLine()))
+		}
+		return nil
+	}
+}
+
+// missingArgument turns cobra's bare "accepts 1 arg(s), received 0" or
+// "requires at least 1 arg(s)" into a message that says which command
+// wanted what, from its usage line; "" for any other error.
+func missingArgument(args []string, err error) string {
+	msg := err.Error()
+	if !strings.Contains(msg, "received 0") && !strings.HasPrefix(msg, "requires at least") {
+		return ""
+	}
+	c, _, ferr := root.Find(args)
+	if ferr != nil || c == nil {
+		return ""
+	}
+	want := strings.TrimSpace(strings.TrimPrefix(c.Use, c.Name()))
+	if want == "" {
+		want = "an argument"
+	}
+	return fmt.Sprintf("%s: missing argument: %s (usage: %s; kermalux help %s)", c.CommandPath(), want, c.UseLine(), strings.TrimPrefix(c.CommandPath(), "kermalux "))
 }
 
 // isUsage recognises cobra's own argument errors.

@@ -10,3 +10,6 @@ import "context"
 func reportRenderer(formats string) (func(ctx context.Context, journal, session, dir string) ([]string, error), error) {
 	return nil, nil
 }
+
+// buildFlavour names the build in --version.
+const buildFlavour = "board build"

@@ -23,3 +23,6 @@ func reportRenderer(formats string) (func(ctx context.Context, journal, session,
 		return rep.WriteFiles(dir, fs, report.Options{Version: version})
 	}, nil
 }
+
+// buildFlavour names the build in --version.
+const buildFlavour = "workstation build"

@@ -425,52 +425,86 @@ func trendSpec(t Trend) (chartSpec, error) {
 	}
 	xmin, xmax := pts[0].X, pts[len(pts)-1].X
 	if t.Fitted {
-		end := t.Points[len(t.Points)-1].Date
-		if t.HasCrossing && t.Crossing.After(end) && t.Crossing.Sub(end) < 40*365*24*time.Hour {
-			end = t.Crossing
+		last := t.Points[len(t.Points)-1].Date
+		end := last
+		for _, pr := range t.Projections {
+			if pr.HasCrossing && pr.Crossing.After(end) && pr.Crossing.Sub(last) < 25*365*24*time.Hour {
+				end = pr.Crossing
+			}
 		}
-		x0, x1 := decimalYear(t.Origin), decimalYear(end)
-		y := func(x time.Time) float64 { return t.Intercept + t.Slope*years(x.Sub(t.Origin)) }
-		fit, err := plotter.NewLine(plotter.XYs{{X: x0, Y: y(t.Origin)}, {X: x1, Y: y(end)}})
+		x0, x1 := 0.0, years(end.Sub(t.Origin))
+		var line, upper, lower plotter.XYs
+		const steps = 40
+		for i := 0; i <= steps; i++ {
+			x := x0 + (x1-x0)*float64(i)/steps
+			X := decimalYear(t.Origin) + x
+			y := t.Line.At(x)
+			line = append(line, plotter.XY{X: X, Y: y})
+			if t.Line.DoF > 0 {
+				h := t.Line.T * t.Line.SE(x)
+				upper = append(upper, plotter.XY{X: X, Y: y + h})
+				lower = append(lower, plotter.XY{X: X, Y: y - h})
+				ymin, ymax = math.Min(ymin, y-h), math.Max(ymax, y+h)
+			}
+			ymin = math.Min(ymin, y)
+		}
+		fit, err := plotter.NewLine(line)
 		if err != nil {
 			return chartSpec{}, err
 		}
 		fit.Color, fit.Width, fit.Dashes = fitColor, vg.Points(1.2), []vg.Length{vg.Points(5), vg.Points(3)}
 		p.Add(fit)
 		p.Legend.Add(fmt.Sprintf("least-squares line (%+.1f %% of baseline a year)", 100*t.FracPerYear), fit)
-		xmax = math.Max(xmax, x1)
-		ymin = math.Min(ymin, y(end))
+		if len(upper) > 0 {
+			for i, b := range []plotter.XYs{upper, lower} {
+				bl, err := plotter.NewLine(b)
+				if err != nil {
+					return chartSpec{}, err
+				}
+				bl.Color, bl.Width, bl.Dashes = fitColor, vg.Points(0.7), []vg.Length{vg.Points(1.5), vg.Points(2)}
+				p.Add(bl)
+				if i == 0 {
+					p.Legend.Add(fmt.Sprintf("%.0f %% confidence band of the line", 100*BandLevel), bl)
+				}
+			}
+		}
+		xmax = math.Max(xmax, decimalYear(end))
 	}
-	if t.ActionValue > 0 {
-		al, err := plotter.NewLine(plotter.XYs{{X: xmin - 0.5, Y: t.ActionValue}, {X: xmax + 0.5, Y: t.ActionValue}})
+	for i, pr := range t.Projections {
+		c := limitColor(pr.Kind)
+		al, err := plotter.NewLine(plotter.XYs{{X: xmin - 0.5, Y: pr.Value}, {X: xmax + 0.5, Y: pr.Value}})
 		if err != nil {
 			return chartSpec{}, err
 		}
-		al.Color, al.Width = failColor, vg.Points(1.2)
+		al.Color, al.Width = c, vg.Points(1.1)
+		if i%2 == 1 {
+			al.Dashes = []vg.Length{vg.Points(6), vg.Points(2)}
+		}
 		p.Add(al)
-		p.Legend.Add(fmt.Sprintf("action level (%.0f %% of baseline)", 100*t.ActionLevel), al)
-		ymin = math.Min(ymin, t.ActionValue)
-	}
-	if t.HasCrossing && t.Crossing.After(t.Points[len(t.Points)-1].Date) && decimalYear(t.Crossing) <= xmax+0.01 {
-		x := decimalYear(t.Crossing)
-		vl, err := plotter.NewLine(plotter.XYs{{X: x, Y: 0}, {X: x, Y: t.ActionValue}})
+		p.Legend.Add(limitWords(pr.Kind, pr.Bound, pr.Fraction, pr.Value, t.Unit), al)
+		ymin, ymax = math.Min(ymin, pr.Value), math.Max(ymax, pr.Value)
+		if !pr.HasCrossing || !pr.Crossing.After(t.Points[len(t.Points)-1].Date) || decimalYear(pr.Crossing) > xmax+0.01 {
+			continue
+		}
+		x := decimalYear(pr.Crossing)
+		mk, err := plotter.NewScatter(plotter.XYs{{X: x, Y: pr.Value}})
 		if err != nil {
 			return chartSpec{}, err
 		}
-		vl.Color, vl.Width, vl.Dashes = failColor, vg.Points(0.8), []vg.Length{vg.Points(2), vg.Points(2)}
-		p.Add(vl)
+		mk.GlyphStyle.Color, mk.GlyphStyle.Radius, mk.GlyphStyle.Shape = c, vg.Points(3), draw.CrossGlyph{}
+		p.Add(mk)
 		lb, err := plotter.NewLabels(plotter.XYLabels{
-			XYs:    plotter.XYs{{X: x, Y: t.ActionValue}},
-			Labels: []string{"projected " + t.Crossing.Format("Jan 2006")},
+			XYs:    plotter.XYs{{X: x, Y: pr.Value}},
+			Labels: []string{"projected " + crossingWords(pr)},
 		})
 		if err != nil {
 			return chartSpec{}, err
 		}
-		lb.TextStyle[0].Font = sansStyle(9)
-		lb.TextStyle[0].Color = failColor
+		lb.TextStyle[0].Font = sansStyle(8)
+		lb.TextStyle[0].Color = c
 		lb.TextStyle[0].XAlign = draw.XRight
 		lb.TextStyle[0].YAlign = draw.YTop
-		lb.Offset = vg.Point{X: vg.Points(-3), Y: vg.Points(-4)}
+		lb.Offset = vg.Point{X: vg.Points(-4), Y: vg.Points(-4)}
 		p.Add(lb)
 	}
 	sc, eb, err := pointsWithBars(pts, errs, 3.5)
@@ -485,7 +519,7 @@ func trendSpec(t Trend) (chartSpec, error) {
 	p.X.Min, p.X.Max = math.Floor(xmin-0.3), math.Ceil(xmax+0.3)
 	p.Y.Min = math.Max(0, ymin-0.1*(ymax-ymin+1))
 	p.Y.Max = ymax + 0.35*(ymax-p.Y.Min)
-	caption := "Dashed: least-squares line through all sessions, extended to the projected date at the action level."
+	caption := fmt.Sprintf("Dashed: least-squares line through the measured sessions, with its %.0f %% confidence band (dotted), extended to the projected dates at the configured limits.", 100*BandLevel)
 	return chartSpec{p: p, name: "trend-" + slug(t.FieldMode), title: title, caption: caption, w: 6 * vg.Inch, h: 3.4 * vg.Inch}, nil
 }
 
@@ -568,4 +602,15 @@ func pointsWithBars(pts plotter.XYs, errs plotter.YErrors, radius float64) (*plo
 	}
 	eb.Color = accentColor
 	return sc, eb, nil
+}
+
+// limitColor tells the kinds of limit apart on charts.
+func limitColor(kind string) color.Color {
+	switch kind {
+	case "specification":
+		return failColor
+	case "baseline":
+		return color.RGBA{0x8a, 0x4b, 0x0f, 0xff}
+	}
+	return color.RGBA{0x7a, 0x2a, 0x8a, 0xff}
 }

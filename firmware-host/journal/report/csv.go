@@ -7,6 +7,8 @@ import (
 	"strconv"
 	"strings"
 	"time"
+
+	"kermalux/procedures/entry"
 )
 
 func g(v float64) string { return strconv.FormatFloat(v, 'g', -1, 64) }
@@ -16,7 +18,7 @@ func g(v float64) string { return strconv.FormatFloat(v, 'g', -1, 64) }
 func (r *Report) WriteResultsCSV(w io.Writer) error {
 	cw := csv.NewWriter(w)
 	head := []string{"session", "site", "room", "intensifier_serial", "started", "step", "field_mode", "quantity", "value", "unit",
-		"standard_uncertainty", "expanded_uncertainty", "coverage_factor", "verdict", "decided_by", "calibrated", "baseline", "baseline_fraction", "flags", "review"}
+		"standard_uncertainty", "expanded_uncertainty", "coverage_factor", "verdict", "decided_by", "calibrated", "baseline", "baseline_fraction", "flags", "review", "limits", "simulated"}
 	if err := cw.Write(head); err != nil {
 		return fmt.Errorf("results CSV: %w", err)
 	}
@@ -24,7 +26,7 @@ func (r *Report) WriteResultsCSV(w io.Writer) error {
 	for _, res := range r.Results {
 		row := []string{s.ID, s.Site, s.Room, s.IntensifierSerial, s.Started.Format(time.RFC3339), strconv.Itoa(res.Step), res.FieldMode, res.Quantity,
 			g(res.Value), res.Unit, g(res.StdUnc), g(res.ExpUnc), g(res.K), res.Verdict, res.DecidedBy, strconv.FormatBool(res.Calibrated),
-			optional(res.Baseline), optional(res.BaselineFrac), strings.Join(res.Flags, "; "), res.Review}
+			optional(res.Baseline), optional(res.BaselineFrac), strings.Join(res.Flags, "; "), res.Review, limitsCSV(res.Limits), strconv.FormatBool(r.Simulated)}
 		if err := cw.Write(row); err != nil {
 			return fmt.Errorf("results CSV: %w", err)
 		}
@@ -41,7 +43,7 @@ func (r *Report) WriteResultsCSV(w io.Writer) error {
 func (r *Report) WriteReadingsCSV(w io.Writer) error {
 	cw := csv.NewWriter(w)
 	head := []string{"session", "seq", "wall", "mono_ns", "boot_id", "step", "step_id", "field_mode", "position", "meter", "quantity",
-		"raw", "raw_value", "raw_unit", "corrections", "value", "unit", "status", "used", "calibrated", "certificate", "flags"}
+		"raw", "raw_value", "raw_unit", "corrections", "value", "unit", "status", "used", "calibrated", "certificate", "flags", "simulated"}
 	if err := cw.Write(head); err != nil {
 		return fmt.Errorf("readings CSV: %w", err)
 	}
@@ -53,7 +55,7 @@ func (r *Report) WriteReadingsCSV(w io.Writer) error {
 		row := []string{r.Session.ID, strconv.FormatInt(rd.Seq, 10), rd.Wall.Format(time.RFC3339Nano), strconv.FormatInt(int64(rd.Mono), 10), rd.BootID,
 			strconv.Itoa(rd.Step), rd.StepID, rd.FieldMode, rd.Position, rd.Meter, rd.Quantity, rd.Raw, g(rd.RawValue), rd.RawUnit,
 			strings.Join(cs, "; "), g(rd.Value), rd.Unit, rd.Status, strconv.FormatBool(rd.Used), strconv.FormatBool(rd.Calibrated), rd.Certificate,
-			strings.Join(rd.Flags, "; ")}
+			strings.Join(rd.Flags, "; "), strconv.FormatBool(r.Simulated)}
 		if err := cw.Write(row); err != nil {
 			return fmt.Errorf("readings CSV: %w", err)
 		}
@@ -68,13 +70,13 @@ func (r *Report) WriteReadingsCSV(w io.Writer) error {
 // WriteTrendCSV writes one row per session of each trend.
 func WriteTrendCSV(w io.Writer, trends []Trend) error {
 	cw := csv.NewWriter(w)
-	if err := cw.Write([]string{"serial", "quantity", "field_mode", "session", "date", "site", "room", "value", "unit", "expanded_uncertainty", "coverage_factor", "baseline_fraction", "verdict"}); err != nil {
+	if err := cw.Write([]string{"serial", "quantity", "field_mode", "session", "date", "site", "room", "value", "unit", "expanded_uncertainty", "coverage_factor", "baseline_fraction", "verdict", "simulated"}); err != nil {
 		return fmt.Errorf("trend CSV: %w", err)
 	}
 	for _, t := range trends {
 		for _, p := range t.Points {
 			if err := cw.Write([]string{t.Serial, t.Quantity, t.FieldMode, p.Session, p.Date.Format(time.RFC3339), p.Site, p.Room, g(p.Value), t.Unit,
-				g(p.ExpUnc), g(p.K), g(p.Fraction), p.Verdict}); err != nil {
+				g(p.ExpUnc), g(p.K), g(p.Fraction), p.Verdict, strconv.FormatBool(p.Simulated)}); err != nil {
 				return fmt.Errorf("trend CSV: %w", err)
 			}
 		}
@@ -91,4 +93,15 @@ func optional(v float64) string {
 		return ""
 	}
 	return g(v)
+}
+
+// limitsCSV writes a result's limits as "kind bound value margin m",
+// separated by "; " (bound: at_least or at_most; numbers in full
+// precision, in the result's unit).
+func limitsCSV(ls []entry.LimitCheck) string {
+	var parts []string
+	for _, l := range ls {
+		parts = append(parts, fmt.Sprintf("%s %s %s margin %s", l.Kind, l.Bound, g(l.Value), g(l.Margin)))
+	}
+	return strings.Join(parts, "; ")
 }

@@ -7,56 +7,77 @@ import (
 	"strings"
 	"time"
 
+	"kermalux/procedures/engine"
 	"kermalux/procedures/entry"
 )
 
 // ValueWithUnc writes v ± u with u rounded to two significant digits and v
-// to the same decimal place (JCGM 100:2008 7.2.6: no more than two
-// significant digits in an uncertainty).
+// to the same decimal place (JCGM 100:2008 7.2.6), in fixed notation;
+// without an uncertainty, v alone with four significant digits.
 func ValueWithUnc(v, u float64) string {
-	if u <= 0 || math.IsNaN(u) || math.IsInf(u, 0) {
-		return Number(v)
+	val, unc := engine.RoundToUncertainty(v, u)
+	if unc == "" {
+		return val
 	}
-	dec := decimalsFor(u)
-	return strconv.FormatFloat(v, 'f', dec, 64) + " ± " + strconv.FormatFloat(u, 'f', dec, 64)
+	return val + " ± " + unc
 }
 
-// decimalsFor is the number of decimals that shows u with two significant
-// digits (never negative).
-func decimalsFor(u float64) int {
-	e := int(math.Floor(math.Log10(u)))
-	d := 1 - e
-	if d < 0 {
-		d = 0
+// Number writes a measured v with four significant digits in fixed
+// notation, trailing zeros kept (they are significant).
+func Number(v float64) string { return engine.FourDigits(v) }
+
+// Exact writes a configured number (a limit, a fraction) as it was given:
+// the shortest decimal that reads back the same, never with an exponent.
+func Exact(v float64) string { return strconv.FormatFloat(v, 'f', -1, 64) }
+
+// Signed is Number with a sign.
+func Signed(v float64) string {
+	s := Number(v)
+	if v > 0 {
+		s = "+" + s
 	}
-	if d > 9 {
-		d = 9
-	}
-	return d
+	return strings.Replace(s, "-", "−", 1)
 }
 
-// Number writes v with four significant digits, without exponent for
-// everyday magnitudes.
-func Number(v float64) string {
-	if v == 0 {
-		return "0"
+// DoF writes degrees of freedom: whole numbers as such, Welch–Satterthwaite
+// fractions with one decimal.
+func DoF(v float64) string {
+	if v == math.Trunc(v) {
+		return strconv.FormatFloat(v, 'f', 0, 64)
 	}
-	if math.IsNaN(v) || math.IsInf(v, 0) {
-		return fmt.Sprint(v)
+	return strconv.FormatFloat(v, 'f', 1, 64)
+}
+
+// Kf writes a coverage factor with two decimals.
+func Kf(k float64) string { return engine.CoverageFactor(k) }
+
+// unitWords writes a unit for people: a dimensionless ratio gets no unit
+// symbol ("1" reads as a number), the caller says "ratio" where a column
+// needs a word.
+func unitWords(u string) string {
+	if u == "1" {
+		return ""
 	}
-	a := math.Abs(v)
-	if a >= 1e-4 && a < 1e7 {
-		d := 3 - int(math.Floor(math.Log10(a)))
-		if d < 0 {
-			d = 0
-		}
-		s := strconv.FormatFloat(v, 'f', d, 64)
-		if strings.Contains(s, ".") {
-			s = strings.TrimRight(strings.TrimRight(s, "0"), ".")
-		}
-		return s
+	return u
+}
+
+// unitForQuantity is what the unit column says: the unit, or for a
+// dimensionless figure what kind of number it is.
+func unitForQuantity(q, u string) string {
+	if u != "1" && u != "" {
+		return u
 	}
-	return strconv.FormatFloat(v, 'g', 4, 64)
+	switch q {
+	case "non_uniformity", "stability":
+		return "fraction"
+	case "contrast_ratio":
+		return "ratio (open : disk)"
+	case "kerma_rate_scaling", "kerma_mode_scaling":
+		return "ratio to the largest field"
+	case "edge_centre_ratio":
+		return "ratio to the centre"
+	}
+	return "ratio"
 }
 
 // Factor writes a correction factor with five decimals (corrections are

@@ -36,6 +36,9 @@ var htmlTemplate = template.Must(template.New("report").Funcs(template.FuncMap{
 	"clock":         Clock,
 	"short":         short,
 	"num":           Number,
+	"exact":         Exact,
+	"kf":            Kf,
+	"dof":           DoF,
 	"valu":          ValueWithUnc,
 	"pct":           Percent,
 	"pctSigned":     func(f float64) string { return fmt.Sprintf("%+.1f %%", 100*f) },
@@ -50,6 +53,7 @@ var htmlTemplate = template.Must(template.New("report").Funcs(template.FuncMap{
 	"neg":           func(n int) int { return -n },
 	"inc":           func(n int) int { return n + 1 },
 	"unit":          unitShown,
+	"unitq":         unitForQuantity,
 	"join":          func(s []string) string { return strings.Join(s, ", ") },
 	"trendSentence": trendSentence,
 	"rel":           func(u, v float64) float64 { return u / math.Abs(v) },
@@ -181,9 +185,4 @@ func certClass(status string) string {
 }
 
 // unitShown hides the unit "1" of dimensionless quantities.
-func unitShown(u string) string {
-	if u == "1" {
-		return ""
-	}
-	return u
-}
+func unitShown(u string) string { return unitWords(u) }

@@ -274,6 +274,9 @@ func Build(envs []entry.Envelope) (*Report, error) {
 			r.Results = append(r.Results, Result{Result: res, Seq: env.Seq})
 		}
 	}
+	if r.Session.Simulated {
+		r.Simulated = true
+	}
 	if !haveSession {
 		return nil, fmt.Errorf("report: session %s has no opening session record (seq of first record: %d)", envs[0].Session, envs[0].Seq)
 	}

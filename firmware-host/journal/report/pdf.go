@@ -4,7 +4,6 @@ import (
 	"bytes"
 	"fmt"
 	"io"
-	"strconv"
 	"strings"
 
 	"codeberg.org/go-fonts/liberation/liberationmonoregular"
@@ -303,7 +302,7 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 		if !res.Calibrated {
 			notes = append([]string{"not calibrated"}, notes...)
 		}
-		rows = append(rows, []string{quantityWords(res.Quantity), res.FieldMode, ValueWithUnc(res.Value, res.ExpUnc), unitShown(res.Unit), strconv.FormatFloat(res.K, 'f', 2, 64), of, strings.ToUpper(res.Verdict), res.DecidedBy, strings.Join(notes, "; ")})
+		rows = append(rows, []string{quantityWords(res.Quantity), res.FieldMode, ValueWithUnc(res.Value, res.ExpUnc), unitForQuantity(res.Quantity, res.Unit), Kf(res.K), of, strings.ToUpper(res.Verdict), res.DecidedBy, strings.Join(notes, "; ")})
 	}
 	d.table([]pdfCol{{"Result", .15, false}, {"Field", .06, false}, {"Value ± U", .12, true}, {"Unit", .11, false}, {"k", .07, true}, {"Of baseline", .12, true}, {"Verdict", .07, false}, {"Decided by", .18, false}, {"Notes", .12, false}}, rows)
 	d.para("U is the expanded uncertainty with coverage factor k (JCGM 100:2008). A verdict compares the value itself with the limit named under “Decided by”.", 7.5)
@@ -317,7 +316,7 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 		for _, p := range m.Points {
 			rr, aa, fr := "?", "", ""
 			if p.Placed {
-				rr, aa = Number(p.R)+" r", Number(p.AngleDeg)+"°"
+				rr, aa = Exact(p.R)+" r", Exact(p.AngleDeg)+"°"
 			}
 			if p.Fraction != 0 {
 				fr = Percent(p.Fraction)
@@ -373,7 +372,7 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 		d.subheading("Values entered")
 		var rows [][]string
 		for _, val := range r.Values {
-			rows = append(rows, []string{Clock(val.Wall), fmt.Sprint(val.Step), val.Name, Number(val.Value.Value) + " " + val.Unit, val.Source})
+			rows = append(rows, []string{Clock(val.Wall), fmt.Sprint(val.Step), val.Name, Exact(val.Value.Value) + " " + val.Unit, val.Source})
 		}
 		d.table([]pdfCol{{"Time", .15, false}, {"Step", .1, true}, {"Quantity", .3, false}, {"Value", .2, true}, {"Source", .25, false}}, rows)
 	}
@@ -383,12 +382,12 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 		if len(res.Budget) == 0 {
 			continue
 		}
-		d.subheading(fmt.Sprintf("%s%s: %s %s (k = %s)", quantityWords(res.Quantity), prefixed(", ", res.FieldMode), ValueWithUnc(res.Value, res.ExpUnc), unitShown(res.Unit), Number(res.K)))
+		d.subheading(fmt.Sprintf("%s%s: %s %s (k = %s)", quantityWords(res.Quantity), prefixed(", ", res.FieldMode), ValueWithUnc(res.Value, res.ExpUnc), unitShown(res.Unit), Kf(res.K)))
 		var rows [][]string
 		for _, b := range res.Budget {
 			dof := "∞"
 			if b.DoF != 0 {
-				dof = Number(b.DoF)
+				dof = DoF(b.DoF)
 			}
 			rows = append(rows, []string{b.Source, b.Type, Number(b.Value) + " " + unitShown(b.Unit), Number(b.StdUnc), Percent(b.RelStdUnc), Number(b.Sensitivity), Percent(b.Contribution), dof})
 		}
@@ -396,7 +395,7 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 		if res.Value != 0 {
 			rel = Percent(res.StdUnc / abs(res.Value))
 		}
-		rows = append(rows, []string{"Combined standard uncertainty of the result", "", "", Number(res.StdUnc), rel, "", "U = " + Number(res.ExpUnc), "k = " + Number(res.K)})
+		rows = append(rows, []string{"Combined standard uncertainty of the result", "", "", Number(res.StdUnc), rel, "", "U = " + Number(res.ExpUnc), "k = " + Kf(res.K)})
 		d.table([]pdfCol{{"Source", .32, false}, {"Type", .06, false}, {"Estimate", .14, true}, {"Std. unc.", .12, true}, {"Relative", .09, true}, {"Sens.", .07, true}, {"Contrib.", .1, true}, {"DoF", .1, true}}, rows)
 	}
 
@@ -549,20 +548,86 @@ func certStanding(c Certificate) string {
 	return fmt.Sprintf("%s (%d days left)", c.Status, c.DaysToDue)
 }
 
-// trendSentence says a trend's fit and projection in one paragraph.
+// trendSentence says a trend's fit and projections in one paragraph.
 func trendSentence(t Trend) string {
-	s := fmt.Sprintf("Baseline %s %s (%s).", Number(t.Baseline), t.Unit, t.BaselineFrom)
+	s := fmt.Sprintf("Baseline %s %s (%s).", Number(t.Baseline), unitWords(t.Unit), t.BaselineFrom)
+	if t.Simulated {
+		s += " Every session here is simulated: the line is no measurement."
+	} else if t.FitPoints < len(t.Points) {
+		s += fmt.Sprintf(" The line is fitted through the %d measured sessions; simulated sessions are shown, not fitted.", t.FitPoints)
+	}
 	if t.Fitted {
-		s += fmt.Sprintf(" Rate of change %s %s a year (%+.1f %% of baseline a year).", Number(t.Slope), t.Unit, 100*t.FracPerYear)
+		s += fmt.Sprintf(" Rate of change %s %s a year", Signed(t.Slope), unitWords(t.Unit))
+		if t.Line.DoF > 0 {
+			s += fmt.Sprintf(" (standard uncertainty %s, %d degrees of freedom)", Number(t.Line.SlopeSE()), t.Line.DoF)
+		}
+		if t.Baseline != 0 {
+			s += ", " + strings.Replace(fmt.Sprintf("%+.1f", 100*t.FracPerYear), "-", "−", 1) + " % of baseline a year"
+		}
+		s += "."
 	}
-	s += fmt.Sprintf(" Action level %s of baseline = %s %s", Percent(t.ActionLevel), Number(t.ActionValue), t.Unit)
-	if t.HasCrossing {
-		s += ": projected to be reached on " + Day(t.Crossing)
+	for _, pr := range t.Projections {
+		s += " " + capital(limitWords(pr.Kind, pr.Bound, pr.Fraction, pr.Value, t.Unit))
+		if pr.From == "command line" {
+			s += " (given on the command line)"
+		}
+		if pr.HasCrossing {
+			s += ": projected " + crossingWords(pr)
+		}
+		if pr.Note != "" {
+			if pr.HasCrossing {
+				s += "; " + pr.Note
+			} else {
+				s += ": " + pr.Note
+			}
+		}
+		s += "."
 	}
-	if t.CrossingNote != "" {
-		s += " (" + t.CrossingNote + ")"
+	if t.Note != "" {
+		s += " " + capital(t.Note) + "."
 	}
-	return s + "."
+	return s
+}
+
+// crossingWords gives a projected date to the month with its band:
+// "March 2031 (95 % band June 2029 to January 2034)".
+func crossingWords(pr Projection) string {
+	const month = "January 2006"
+	s := pr.Crossing.Format(month)
+	switch {
+	case pr.HasEarly && pr.HasLate:
+		s += fmt.Sprintf(" (%.0f %% band %s to %s)", 100*BandLevel, pr.Early.Format(month), pr.Late.Format(month))
+	case pr.HasEarly:
+		s += fmt.Sprintf(" (%.0f %% band from %s, no latest date)", 100*BandLevel, pr.Early.Format(month))
+	case pr.HasLate:
+		s += fmt.Sprintf(" (%.0f %% band up to %s)", 100*BandLevel, pr.Late.Format(month))
+	}
+	return s
+}
+
+// limitWords says a limit with its absolute value: "specification
+// minimum 120 cd·m⁻²/(µGy·s⁻¹)", "baseline rule minimum 80 % of baseline
+// = 134.4 cd·m⁻²/(µGy·s⁻¹)".
+func limitWords(kind, bound string, fraction, value float64, unit string) string {
+	side := "minimum"
+	if bound == "at_most" {
+		side = "maximum"
+	}
+	u := unitWords(unit)
+	if u != "" {
+		u = " " + u
+	}
+	if kind == "baseline" {
+		return fmt.Sprintf("baseline rule %s %s of baseline = %s%s", side, Percent(fraction), Number(value), u)
+	}
+	return fmt.Sprintf("%s %s %s%s", kind, side, Exact(value), u)
+}
+
+func capital(s string) string {
+	if s == "" {
+		return s
+	}
+	return strings.ToUpper(s[:1]) + s[1:]
 }
 
 // cautions are the radiation-safety and scope cautions every report

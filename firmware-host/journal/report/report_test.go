@@ -2,12 +2,15 @@ package report
 
 import (
 	"bytes"
+	"encoding/csv"
 	"encoding/json"
 	"flag"
+	"io"
 	"math"
 	"os"
 	"path/filepath"
 	"regexp"
+	"slices"
 	"strings"
 	"testing"
 	"time"
@@ -449,5 +452,43 @@ func TestRejudgedResultSupersedes(t *testing.T) {
 	ts := Fit("HV-2291", "conversion_factor", hs, 0.5)
 	if len(ts[0].Points) != 3 || ts[0].Points[1].Verdict != "fail" {
 		t.Errorf("history with a re-judged result: %d points, verdict %s", len(ts[0].Points), ts[0].Points[1].Verdict)
+	}
+}
+
+// TestSimulatedSessionRecordMarksEveryOutput: a session record that says
+// simulated marks the report and both CSV files, row by row.
+func TestSimulatedSessionRecordMarksEveryOutput(t *testing.T) {
+	envs := sampleSession()
+	var s entry.Session
+	if err := json.Unmarshal(envs[0].Payload, &s); err != nil {
+		t.Fatal(err)
+	}
+	s.Simulated = true
+	envs[0].Payload, _ = json.Marshal(s)
+	r, err := Build(envs)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !r.Simulated || !strings.Contains(renderHTML(t, r), "SIMULATED SESSION") {
+		t.Fatalf("report not marked simulated")
+	}
+	for name, write := range map[string]func(io.Writer) error{"results": r.WriteResultsCSV, "readings": r.WriteReadingsCSV} {
+		var b bytes.Buffer
+		if err := write(&b); err != nil {
+			t.Fatal(err)
+		}
+		rows, err := csv.NewReader(&b).ReadAll()
+		if err != nil {
+			t.Fatal(err)
+		}
+		col := slices.Index(rows[0], "simulated")
+		if col < 0 {
+			t.Fatalf("%s CSV has no simulated column: %v", name, rows[0])
+		}
+		for i, row := range rows[1:] {
+			if row[col] != "true" {
+				t.Errorf("%s CSV row %d: simulated %q", name, i+2, row[col])
+			}
+		}
 	}
 }

@@ -2,6 +2,7 @@ package report
 
 import (
 	"context"
+	"encoding/json"
 	"fmt"
 	"io"
 	"os"
@@ -23,8 +24,8 @@ type Selection struct {
 
 // FromStore builds the reports of the selected sessions, each with its
 // intensifier's conversion factor history up to and including that
-// session (actionLevel as in Fit).
-func FromStore(ctx context.Context, st *store.Store, sel Selection, actionLevel float64) ([]*Report, error) {
+// session (actionLevels as in Fit).
+func FromStore(ctx context.Context, st *store.Store, sel Selection, actionLevels ...float64) ([]*Report, error) {
 	var ids []string
 	switch {
 	case sel.Session != "":
@@ -65,7 +66,7 @@ func FromStore(ctx context.Context, st *store.Store, sel Selection, actionLevel 
 			}
 			histories[serial] = hs
 		}
-		r.AttachHistory(Until(hs, r.Session.Started), actionLevel)
+		r.AttachHistory(Until(hs, r.Session.Started), actionLevels...)
 		out = append(out, r)
 	}
 	return out, nil
@@ -101,6 +102,111 @@ func FromJournal(ctx context.Context, path, session string) (*Report, error) {
 	return r, nil
 }
 
+// WriteTrendJSON prints trends as one JSON document (the fields of
+// TrendJSON), for scripts.
+func WriteTrendJSON(w io.Writer, trends []Trend) error {
+	doc := TrendsJSON{Trends: []TrendJSON{}, BandLevel: BandLevel}
+	for _, t := range trends {
+		tj := TrendJSON{Serial: t.Serial, Quantity: t.Quantity, FieldMode: t.FieldMode, Unit: t.Unit, Baseline: t.Baseline,
+			BaselineFrom: t.BaselineFrom, Simulated: t.Simulated, Note: t.Note, Points: []TrendPointJSON{}, Projections: []ProjectionJSON{}}
+		for _, p := range t.Points {
+			tj.Points = append(tj.Points, TrendPointJSON{Session: p.Session, Date: p.Date, Site: p.Site, Room: p.Room, Value: p.Value,
+				ExpUnc: p.ExpUnc, K: p.K, Fraction: p.Fraction, Verdict: p.Verdict, Calibrated: p.Calibrated, Simulated: p.Simulated})
+			if p.Simulated {
+				doc.Simulated = true
+			}
+		}
+		if t.Fitted {
+			tj.Fit = &FitJSON{Origin: t.Origin, Intercept: t.Intercept, Slope: t.Slope, FracPerYear: t.FracPerYear, Points: t.FitPoints,
+				DoF: t.Line.DoF, ResidualSD: t.Line.ResidualSD, SlopeSE: t.Line.SlopeSE(), T: t.Line.T}
+		}
+		for _, pr := range t.Projections {
+			pj := ProjectionJSON{Kind: pr.Kind, Bound: pr.Bound, Fraction: pr.Fraction, Value: pr.Value, From: pr.From, Note: pr.Note}
+			if pr.HasCrossing {
+				pj.Crossing = &pr.Crossing
+			}
+			if pr.HasEarly {
+				pj.Early = &pr.Early
+			}
+			if pr.HasLate {
+				pj.Late = &pr.Late
+			}
+			tj.Projections = append(tj.Projections, pj)
+		}
+		doc.Trends = append(doc.Trends, tj)
+	}
+	enc := json.NewEncoder(w)
+	enc.SetIndent("", "  ")
+	if err := enc.Encode(doc); err != nil {
+		return fmt.Errorf("trend JSON: %w", err)
+	}
+	return nil
+}
+
+// TrendsJSON is `kermalux trend --json`.
+type TrendsJSON struct {
+	Simulated bool        `json:"simulated"` // some session is simulated (each point says which)
+	BandLevel float64     `json:"band_level"`
+	Trends    []TrendJSON `json:"trends"`
+}
+
+// TrendJSON is one field mode's trend.
+type TrendJSON struct {
+	Serial       string           `json:"intensifier_serial"`
+	Quantity     string           `json:"quantity"`
+	FieldMode    string           `json:"field_mode"`
+	Unit         string           `json:"unit"`
+	Baseline     float64          `json:"baseline"`
+	BaselineFrom string           `json:"baseline_from"`
+	Simulated    bool             `json:"simulated"` // every session is simulated
+	Points       []TrendPointJSON `json:"points"`
+	Fit          *FitJSON         `json:"fit,omitempty"`
+	Projections  []ProjectionJSON `json:"projections"`
+	Note         string           `json:"note,omitempty"`
+}
+
+// TrendPointJSON is one session of a trend.
+type TrendPointJSON struct {
+	Session    string    `json:"session"`
+	Date       time.Time `json:"date"`
+	Site       string    `json:"site"`
+	Room       string    `json:"room"`
+	Value      float64   `json:"value"`
+	ExpUnc     float64   `json:"expanded_uncertainty"`
+	K          float64   `json:"coverage_factor"`
+	Fraction   float64   `json:"baseline_fraction"`
+	Verdict    string    `json:"verdict"`
+	Calibrated bool      `json:"calibrated"`
+	Simulated  bool      `json:"simulated"`
+}
+
+// FitJSON is the least-squares line: value = intercept + slope × years
+// since origin.
+type FitJSON struct {
+	Origin      time.Time `json:"origin"`
+	Intercept   float64   `json:"intercept"`
+	Slope       float64   `json:"slope_per_year"`
+	SlopeSE     float64   `json:"slope_standard_uncertainty"`
+	FracPerYear float64   `json:"baseline_fraction_per_year"`
+	Points      int       `json:"sessions_fitted"`
+	DoF         int       `json:"degrees_of_freedom"`
+	ResidualSD  float64   `json:"residual_sd"`
+	T           float64   `json:"t_quantile"`
+}
+
+// ProjectionJSON is where the line and its band reach one limit.
+type ProjectionJSON struct {
+	Kind     string     `json:"kind"`
+	Bound    string     `json:"bound"`
+	Fraction float64    `json:"fraction,omitempty"`
+	Value    float64    `json:"value"`
+	From     string     `json:"from"`
+	Crossing *time.Time `json:"crossing,omitempty"`
+	Early    *time.Time `json:"band_early,omitempty"`
+	Late     *time.Time `json:"band_late,omitempty"`
+	Note     string     `json:"note,omitempty"`
+}
+
 // WriteTrendText prints trends as a table per trend followed by the rate
 // of change and the projected date at the action level.
 func WriteTrendText(w io.Writer, trends []Trend) error {
@@ -119,6 +225,9 @@ func WriteTrendText(w io.Writer, trends []Trend) error {
 			cal := ""
 			if !p.Calibrated {
 				cal = " (not calibrated)"
+			}
+			if p.Simulated {
+				cal += " SIMULATED, not a measurement"
 			}
 			fmt.Fprintf(tw, "%s\t%s / %s\t%s\t%s\t%s%s\t\n", Day(p.Date), p.Site, p.Room, ValueWithUnc(p.Value, p.ExpUnc), Percent(p.Fraction), p.Verdict, cal)
 		}

@@ -25,9 +25,18 @@ func (s StoreHistory) History(ctx context.Context, serial string) ([]HistoryPoin
 	if err != nil {
 		return nil, err
 	}
+	// The session records say which sessions were simulated.
+	infos, err := s.Store.Sessions(ctx, store.Query{Serial: serial})
+	if err != nil {
+		return nil, err
+	}
+	sim := map[string]bool{}
+	for _, in := range infos {
+		sim[in.ID] = in.Session.Simulated
+	}
 	out := make([]HistoryPoint, len(hs))
 	for i, h := range hs {
-		out[i] = HistoryPoint(h)
+		out[i] = HistoryPoint{Session: h.Session, Date: h.Date, Site: h.Site, Room: h.Room, Result: h.Result, Simulated: sim[h.Session]}
 	}
 	return out, nil
 }

@@ -141,11 +141,15 @@ func TestReportFromStore(t *testing.T) {
 	}
 	wantYears := (0.5*177.536 - 177.536) / -4.256
 	want := tr.Origin.Add(time.Duration(wantYears * 365.25 * 24 * float64(time.Hour)))
-	if d := tr.Crossing.Sub(want); d < -36*time.Hour || d > 36*time.Hour {
-		t.Errorf("crossing %s, want about %s", tr.Crossing.Format(time.DateOnly), want.Format(time.DateOnly))
+	if len(tr.Projections) != 1 || !tr.Projections[0].HasCrossing || tr.Projections[0].From != "command line" {
+		t.Fatalf("projections %+v, want the command line's 0.5 of baseline", tr.Projections)
+	}
+	pr := tr.Projections[0]
+	if d := pr.Crossing.Sub(want); d < -36*time.Hour || d > 36*time.Hour {
+		t.Errorf("crossing %s, want about %s", pr.Crossing.Format(time.DateOnly), want.Format(time.DateOnly))
 	}
 	html := renderHTML(t, rs[0])
-	if !strings.Contains(html, "History of this intensifier") || !strings.Contains(html, "projected to be reached on "+Day(tr.Crossing)) {
+	if !strings.Contains(html, "History of this intensifier") || !strings.Contains(html, "projected "+pr.Crossing.Format("January 2006")) {
 		t.Errorf("report lacks the history or the projected date")
 	}
 
@@ -174,7 +178,7 @@ func TestReportFromStore(t *testing.T) {
 	if err := WriteTrendText(&text, rs[0].Trends); err != nil {
 		t.Fatal(err)
 	}
-	if !strings.Contains(text.String(), "Conversion factor of HV-2291, 32cm field") || !strings.Contains(text.String(), "projected to be reached on") {
+	if !strings.Contains(text.String(), "Conversion factor of HV-2291, 32cm field") || !strings.Contains(text.String(), "projected September 2041") {
 		t.Errorf("trend text:\n%s", text.String())
 	}
 	charts, err := WriteTrendCharts(filepath.Join(out, "trend.svg"), rs[0].Trends)

@@ -1,0 +1,93 @@
+package main
+
+import (
+	"bytes"
+	"strings"
+	"testing"
+
+	"kermalux/procedures/entry"
+)
+
+// runCLI runs a command line through the binary's entry point.
+func runCLI(t *testing.T, args ...string) (code int, stdout, stderr string) {
+	t.Helper()
+	var out, errb bytes.Buffer
+	resetFlags(root)
+	code = execute(args, &out, &errb)
+	return code, out.String(), errb.String()
+}
+
+// TestMissingArgumentSaysWhat: a command missing its argument names what
+// is missing and exits 2, instead of cobra's bare "accepts 1 arg(s)".
+func TestMissingArgumentSaysWhat(t *testing.T) {
+	for _, c := range []struct {
+		args []string
+		want string
+	}{
+		{[]string{"trend", "--store", "x.db"}, "missing the intensifier's serial number"},
+		{[]string{"import", "--store", "x.db"}, "missing argument"},
+		{[]string{"certs"}, "missing"},
+	} {
+		code, _, stderr := runCLI(t, c.args...)
+		if code != exitUsage || !strings.Contains(stderr, c.want) || strings.Contains(stderr, "received 0") {
+			t.Errorf("kermalux %s: exit %d, stderr %q; want exit 2 saying %q", strings.Join(c.args, " "), code, stderr, c.want)
+		}
+	}
+}
+
+// TestVersionSaysBuild: --version names the build flavour and the commit
+// (or says it is unknown, as in a test binary).
+func TestVersionSaysBuild(t *testing.T) {
+	code, stdout, _ := runCLI(t, "--version")
+	if code != exitOK || !strings.Contains(stdout, "workstation build") || !strings.Contains(stdout, "commit ") || !strings.Contains(stdout, "go1.") {
+		t.Errorf("--version: exit %d, %q", code, stdout)
+	}
+}
+
+// TestCompletionOffersNames: shell completion offers the built-in
+// procedures and the result quantities (cobra's hidden __complete
+// command is what the shell scripts call).
+func TestCompletionOffersNames(t *testing.T) {
+	for _, c := range []struct {
+		args []string
+		want []string
+	}{
+		{[]string{"__complete", "procedures", "--steps", ""}, []string{"acceptance", "conversion-factor"}},
+		{[]string{"__complete", "run", ""}, []string{"acceptance", "meter-checks"}},
+		{[]string{"__complete", "trend", "HV-1", "--quantity", "con"}, []string{"conversion_factor", "contrast_ratio"}},
+	} {
+		_, stdout, stderr := runCLI(t, c.args...)
+		for _, w := range c.want {
+			if !strings.Contains(stdout, w+"\n") {
+				t.Errorf("completion of %q lacks %s:\n%s%s", strings.Join(c.args, " "), w, stdout, stderr)
+			}
+		}
+	}
+}
+
+// TestDemoSummaryTable: a header with k; values rounded to the
+// uncertainty's two significant digits (JCGM 100:2008 7.2.6), k with two
+// decimals, no exponent.
+func TestDemoSummaryTable(t *testing.T) {
+	var b bytes.Buffer
+	writeSummaryTable(&b, []entry.Result{
+		{Quantity: "conversion_factor", FieldMode: "25cm", Value: 95.17, ExpUnc: 3.5, K: 2.002, Unit: "cd·m⁻²/(µGy·s⁻¹)", Verdict: "pass", Calibrated: true},
+		{Quantity: "dark_level", Value: 0.03004, ExpUnc: 5.4e-06, K: 2, Unit: "cd/m²", Verdict: "pass", Calibrated: true},
+		{Quantity: "stability", Value: 0.00378, Unit: "1", Verdict: "info", Calibrated: true},
+	})
+	out := b.String()
+	lines := strings.Split(strings.TrimSpace(out), "\n")
+	if len(lines) != 4 || !strings.Contains(lines[0], "quantity") || !strings.Contains(lines[0], " k ") || !strings.Contains(lines[0], "U") {
+		t.Fatalf("no header with k:\n%s", out)
+	}
+	for _, want := range []string{"95.2", "± 3.5", "2.00", "0.0300400", "± 0.0000054", "not evaluated", "ratio"} {
+		if !strings.Contains(out, want) {
+			t.Errorf("summary lacks %q:\n%s", want, out)
+		}
+	}
+	for _, bad := range []string{"95.17", "e-0", "2.002"} {
+		if strings.Contains(out, bad) {
+			t.Errorf("summary has %q:\n%s", bad, out)
+		}
+	}
+}
