@@ -84,8 +84,9 @@ func register(cmds ...*cobra.Command) { root.AddCommand(cmds...) }
 
 // exitError carries an exit code chosen by a subcommand.
 type exitError struct {
-	code int
-	err  error
+	code   int
+	err    error
+	logged bool // already written to standard error
 }
 
 func (e *exitError) Error() string { return e.err.Error() }
@@ -93,6 +94,10 @@ func (e *exitError) Unwrap() error { return e.err }
 
 // withCode marks err so that main exits with code.
 func withCode(code int, err error) error { return &exitError{code: code, err: err} }
+
+// withCodeLogged is withCode for an error the subcommand has already
+// written to standard error in its own log format: it is not printed again.
+func withCodeLogged(code int, err error) error { return &exitError{code: code, err: err, logged: true} }
 
 // Exit codes, in one place.
 const (
@@ -120,11 +125,14 @@ func execute(args []string, stdout, stderr io.Writer) int {
 	if missing := missingArgument(args, err); missing != "" {
 		err = withCode(exitUsage, errors.New(missing))
 	}
-	fmt.Fprintln(stderr, "kermalux:", err)
 	var ee *exitError
 	if errors.As(err, &ee) {
+		if !ee.logged {
+			fmt.Fprintln(stderr, "kermalux:", err)
+		}
 		return ee.code
 	}
+	fmt.Fprintln(stderr, "kermalux:", err)
 	if isUsage(err) {
 		return exitUsage
 	}
