@@ -247,7 +247,9 @@ func TestReadGivesUp(t *testing.T) {
 	// Gone for good: pulled and never plugged back.
 	f2 := &scpiFake{reads: []string{"1.0E-02"}}
 	d2 := linetest.New(t, "ondrakel-DX2-30418", '\n', f2.handle)
-	go func() { done <- runReadCmd(t, "--scpi", "--port", d2.Link(), "--count", "5", "--give-up", "2s", "--unit", "MR/S") }()
+	go func() {
+		done <- runReadCmd(t, "--scpi", "--port", d2.Link(), "--count", "5", "--give-up", "2s", "--unit", "MR/S")
+	}()
 	waitCommands(t, d2, "READ?")
 	d2.Pull()
 	select {
