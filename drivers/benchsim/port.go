@@ -13,6 +13,7 @@ import (
 	"unsafe"
 
 	"github.com/creack/pty"
+	"golang.org/x/sys/unix"
 )
 
 // port serves one meter on a pseudo-terminal pair.
@@ -181,16 +182,23 @@ func (p *port) read(f *os.File, done chan struct{}) {
 	if end == '\n' {
 		other = '\r'
 	}
+	overrun := false
 	for {
 		n, err := f.Read(buf)
 		for _, c := range buf[:n] {
 			switch {
 			case c == end:
-				p.handle(string(line))
-				line = line[:0]
+				if overrun {
+					p.overrun()
+				} else {
+					p.handle(string(line))
+				}
+				line, overrun = line[:0], false
 			case c == other:
-			case len(line) < 256:
+			case len(line) < maxCommand:
 				line = append(line, c)
+			default:
+				overrun = true // the input buffer is full: the rest is lost
 			}
 		}
 		if err != nil {
@@ -201,11 +209,36 @@ func (p *port) read(f *os.File, done chan struct{}) {
 	}
 }
 
+// overrun answers a command that did not fit the meter's input buffer.
+func (p *port) overrun() {
+	if _, _, ok := p.b.fault(p.role, FaultStalled); ok {
+		return
+	}
+	p.dmu.Lock()
+	replies := p.d.overrun()
+	p.dmu.Unlock()
+	for _, r := range replies {
+		p.send(r)
+	}
+}
+
 func (p *port) handle(cmd string) {
 	if _, _, ok := p.b.fault(p.role, FaultStalled); ok {
 		return // a stalled meter ignores what it is sent
 	}
+	if !p.lineMatches() {
+		// At another speed or framing the meter cannot make out the
+		// command; what it sends back reaches the host as noise.
+		p.sendNoise()
+		return
+	}
 	p.dmu.Lock()
+	if in, ok := p.d.(interrupter); ok && p.unread() > 0 {
+		// A new message while the last reply is unread: the reply is
+		// thrown away and the meter says so (IEEE 488.2, 6.3.2.3).
+		p.flushUnread()
+		in.interrupted()
+	}
 	was := p.d.streamPeriod()
 	replies := p.d.command(cmd)
 	now := p.d.streamPeriod()
@@ -230,6 +263,9 @@ func (p *port) send(line string) {
 	out := line + p.d.outEnd()
 	if _, _, ok := p.b.fault(p.role, FaultGarbage); ok {
 		out = p.garble(line)
+	}
+	if !p.lineMatches() {
+		out = p.noiseBytes(len(out))
 	}
 	p.mu.Lock()
 	defer p.mu.Unlock()
@@ -306,4 +342,107 @@ func makeRaw(fd uintptr) error {
 		return e
 	}
 	return nil
+}
+
+// lineMatches reports whether the host set the line as the meter's: the
+// speed and the character frame (8 data bits, no parity, 1 stop bit) the
+// client set on its end of the pseudo-terminal, read from the slave,
+// which the simulator holds open. A speed that cannot be told (a
+// non-standard rate) is taken as matching.
+func (p *port) lineMatches() bool {
+	p.mu.Lock()
+	slave := p.slave
+	p.mu.Unlock()
+	if slave == nil {
+		return true
+	}
+	t, err := unix.IoctlGetTermios(int(slave.Fd()), unix.TCGETS)
+	if err != nil {
+		return true
+	}
+	baud, known := termiosBaud(t.Cflag)
+	if known && baud != baudOf(p.spec.Protocol) {
+		return false
+	}
+	return t.Cflag&unix.CSIZE == unix.CS8 && t.Cflag&unix.PARENB == 0 && t.Cflag&unix.CSTOPB == 0
+}
+
+// termiosBaud decodes the speed bits of a termios c_cflag (Linux CBAUD).
+func termiosBaud(cflag uint32) (int, bool) {
+	switch cflag & unix.CBAUD {
+	case unix.B1200:
+		return 1200, true
+	case unix.B2400:
+		return 2400, true
+	case unix.B4800:
+		return 4800, true
+	case unix.B9600:
+		return 9600, true
+	case unix.B19200:
+		return 19200, true
+	case unix.B38400:
+		return 38400, true
+	case unix.B57600:
+		return 57600, true
+	case unix.B115200:
+		return 115200, true
+	case unix.B230400:
+		return 230400, true
+	}
+	return 0, false
+}
+
+// unread is how many bytes the meter sent that the host has not read
+// (the slave's input queue).
+func (p *port) unread() int {
+	p.mu.Lock()
+	defer p.mu.Unlock()
+	if p.slave == nil {
+		return 0
+	}
+	n, err := unix.IoctlGetInt(int(p.slave.Fd()), unix.TIOCINQ)
+	if err != nil {
+		return 0
+	}
+	return n
+}
+
+// flushUnread throws away what the host has not read (TCFLSH, TCIFLUSH on
+// the slave).
+func (p *port) flushUnread() {
+	p.mu.Lock()
+	defer p.mu.Unlock()
+	if p.slave != nil {
+		_ = unix.IoctlSetInt(int(p.slave.Fd()), unix.TCFLSH, unix.TCIFLUSH)
+	}
+}
+
+// noise is what n bytes sent at another speed look like at the far end:
+// bytes with the high bit set mostly, and no line end.
+func (p *port) noiseBytes(n int) string {
+	p.dmu.Lock()
+	defer p.dmu.Unlock()
+	b := make([]byte, max(2, n/2+p.noise.IntN(n+1)))
+	for i := range b {
+		c := byte(p.noise.IntN(256)) | 0x80
+		if p.noise.IntN(4) == 0 {
+			c &^= 0x80
+		}
+		if c == '\r' || c == '\n' {
+			c = 0xfe
+		}
+		b[i] = c
+	}
+	return string(b)
+}
+
+func (p *port) sendNoise() {
+	out := p.noiseBytes(8 + len(p.role))
+	p.mu.Lock()
+	defer p.mu.Unlock()
+	if p.master == nil {
+		return
+	}
+	_ = p.master.SetWriteDeadline(time.Now().Add(200 * time.Millisecond))
+	_, _ = p.master.Write([]byte(out))
 }

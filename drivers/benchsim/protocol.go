@@ -68,6 +68,20 @@ type dialect interface {
 	streamLine() string
 	// reset returns the meter to its power-on state (after re-plugging).
 	reset()
+	// overrun answers a command longer than the meter's input buffer
+	// (maxCommand bytes), whose rest was dropped; nil = silence.
+	overrun() []string
+}
+
+// maxCommand is the longest command a simulated meter takes; longer ones
+// are dropped and answered by overrun.
+const maxCommand = 256
+
+// interrupter is a dialect that must know when a new command arrives
+// while its last reply is unread (IEEE 488.2, 6.3.2.3: query
+// interrupted); the unread reply has been thrown away.
+type interrupter interface {
+	interrupted()
 }
 
 func newDialect(b *Bench, role string, spec MeterSpec) dialect {
@@ -109,6 +123,7 @@ func (v *veltrane) outEnd() string              { return "\r\n" }
 func (v *veltrane) streamPeriod() time.Duration { return 0 }
 func (v *veltrane) streamLine() string          { return "" }
 func (v *veltrane) reset()                      { v.unit = v.spec.Unit }
+func (v *veltrane) overrun() []string           { return []string{"ERR 10"} }
 func (v *veltrane) command(cmd string) []string {
 	c := strings.ToUpper(strings.TrimSpace(cmd))
 	switch {
@@ -163,126 +178,6 @@ func toUnit(q units.Quantity, v float64, unit string) float64 {
 	return out
 }
 
-// ondrakel is the DX-2 SCPI dialect: LF-terminated, IEEE 488.2 common
-// commands, an error queue, 9.9E37 for over range and 9.91E37 for a fault.
-type ondrakel struct {
-	b      *Bench
-	role   string
-	spec   MeterSpec
-	unit   string // UGY/S, MR/S, MR/MIN
-	errors []string
-}
-
-// SCPI overflow and not-a-number conventions (SCPI-99, Vol. 1, 7.2.1).
-const (
-	scpiOverflow = "9.9E37"
-	scpiNaN      = "9.91E37"
-)
-
-func (h *ondrakel) inEnd() byte                 { return '\n' }
-func (h *ondrakel) outEnd() string              { return "\n" }
-func (h *ondrakel) streamPeriod() time.Duration { return 0 }
-func (h *ondrakel) streamLine() string          { return "" }
-func (h *ondrakel) reset()                      { h.unit, h.errors = h.spec.Unit, nil }
-
-func (h *ondrakel) push(e string) {
-	if len(h.errors) >= 10 {
-		h.errors[9] = `-350,"Queue overflow"`
-		return
-	}
-	h.errors = append(h.errors, e)
-}
-
-// scpiHeader reports whether hdr (upper case, no leading colon) matches
-// the nodes, each given in long form with its short form as the upper
-// case prefix length: SCPI accepts either form, case-insensitively.
-func scpiHeader(hdr string, nodes ...[2]string) bool {
-	parts := strings.Split(strings.TrimPrefix(hdr, ":"), ":")
-	if len(parts) != len(nodes) {
-		return false
-	}
-	for i, n := range nodes {
-		if parts[i] != n[0] && parts[i] != n[1] {
-			return false
-		}
-	}
-	return true
-}
-
-var (
-	nConf = [2]string{"CONF", "CONFIGURE"}
-	nKrat = [2]string{"KRAT", "KRATE"}
-	nUnit = [2]string{"UNIT", "UNIT"}
-	nSyst = [2]string{"SYST", "SYSTEM"}
-	nErr  = [2]string{"ERR", "ERROR"}
-	nRead = [2]string{"READ", "READ"}
-)
-
-func (h *ondrakel) command(cmd string) []string {
-	var out []string
-	for _, one := range strings.Split(cmd, ";") {
-		out = append(out, h.one(strings.TrimSpace(one))...)
-	}
-	return out
-}
-
-func (h *ondrakel) one(cmd string) []string {
-	if cmd == "" {
-		return nil
-	}
-	hdr, arg, _ := strings.Cut(strings.ToUpper(cmd), " ")
-	arg = strings.TrimSpace(arg)
-	query := strings.HasSuffix(hdr, "?")
-	hdr = strings.TrimSuffix(hdr, "?")
-	switch {
-	case hdr == "*IDN" && query:
-		return []string{fmt.Sprintf("ONDRAKEL,DX-2,%s,%s", h.spec.Serial, h.spec.Firmware)}
-	case hdr == "*RST" && !query:
-		h.unit = h.spec.Unit
-		return nil
-	case hdr == "*CLS" && !query:
-		h.errors = nil
-		return nil
-	case scpiHeader(hdr, nConf, nKrat) && !query:
-		return nil
-	case scpiHeader(hdr, nUnit, nKrat) && query:
-		d := h.b.display(h.role)
-		if d.wrongUnit != "" {
-			return []string{strings.ToUpper(d.wrongUnit)}
-		}
-		return []string{h.unit}
-	case scpiHeader(hdr, nUnit, nKrat) && !query:
-		switch arg {
-		case "UGY/S", "MR/S", "MR/MIN":
-			h.unit = arg
-		default:
-			h.push(`-224,"Illegal parameter value"`)
-		}
-		return nil
-	case scpiHeader(hdr, nRead) && query:
-		d := h.b.display(h.role)
-		switch d.status {
-		case drivers.StatusOverRange:
-			h.push(`-222,"Data out of range"`)
-			return []string{scpiOverflow}
-		case drivers.StatusFault:
-			h.push(`-240,"Hardware error"`)
-			return []string{scpiNaN}
-		}
-		val := toUnit(units.AirKermaRate, d.value, ondrakelUnit(h.unit))
-		return []string{fmt.Sprintf("%.4E", val)}
-	case scpiHeader(hdr, nSyst, nErr) && query:
-		if len(h.errors) == 0 {
-			return []string{`0,"No error"`}
-		}
-		e := h.errors[0]
-		h.errors = h.errors[1:]
-		return []string{e}
-	}
-	h.push(`-113,"Undefined header"`)
-	return nil
-}
-
 func ondrakelUnit(u string) string {
 	switch u {
 	case "MR/S":
@@ -305,6 +200,7 @@ type vessoric struct {
 func (o *vessoric) inEnd() byte    { return '\n' }
 func (o *vessoric) outEnd() string { return "\n" }
 func (o *vessoric) reset()         { o.rateHz = 0 }
+func (o *vessoric) overrun() []string { return []string{"ERR"} }
 func (o *vessoric) streamPeriod() time.Duration {
 	if o.rateHz == 0 {
 		return 0

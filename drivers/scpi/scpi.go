@@ -537,8 +537,8 @@ const dataOutOfRange = -222
 
 // Read queries a reading and drains the error queue. Error-queue entries
 // make the status fault and are appended to Raw after " | " (an over-range
-// reading whose only entries are -222 "Data out of range" stays over
-// range).
+// or under-range reading whose only entries are -222 "Data out of range"
+// keeps its status).
 func (m *Meter) Read(ctx context.Context) (drivers.Reading, error) {
 	if err := m.prepare(ctx); err != nil {
 		return drivers.Reading{}, err
@@ -595,7 +595,7 @@ func (m *Meter) Read(ctx context.Context) (drivers.Reading, error) {
 			}
 		}
 		r.Raw = b.String()
-		if !(st == drivers.StatusOverRange && onlyRange) {
+		if !((st == drivers.StatusOverRange || st == drivers.StatusUnderRange) && onlyRange) {
 			st = drivers.StatusFault
 		}
 		m.o.log.Warn("meter reported errors", "meter", m.o.name, "port", m.port.Name(), "errors", r.Raw)

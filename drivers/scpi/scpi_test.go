@@ -147,6 +147,7 @@ func TestRead(t *testing.T) {
 		{name: "overflow with -222", unit: "UGY/S", read: "9.9E37", queue: []string{`-222,"Data out of range"`}, st: drivers.StatusOverRange, marker: 9.9e37, rawHas: "Data out of range"},
 		{name: "not a number", unit: "UGY/S", read: "9.91E37", queue: []string{`-230,"Data corrupt or stale"`}, st: drivers.StatusFault, marker: 9.91e37, rawHas: `-230,"Data corrupt or stale"`},
 		{name: "under range", unit: "MR/S", read: "-9.9E37", st: drivers.StatusUnderRange, marker: -9.9e37},
+		{name: "under range with -222", unit: "UGY/S", read: "-9.9E37", queue: []string{`-222,"Data out of range"`}, st: drivers.StatusUnderRange, marker: -9.9e37, rawHas: "Data out of range"},
 		{name: "good number, queued error", unit: "UGY/S", read: "1.0E-01", queue: []string{`-222,"Data out of range"`, `-113,"Undefined header"`}, st: drivers.StatusFault, want: 0.1, rawHas: `-113,"Undefined header"`},
 		{name: "garbled", unit: "UGY/S", read: "1.2\x00E-01", wantErr: drivers.ErrGarbled},
 		{name: "text reply", unit: "UGY/S", read: "ONDRAKEL", wantErr: drivers.ErrGarbled},
