@@ -197,9 +197,9 @@ type vessoric struct {
 	rateHz int
 }
 
-func (o *vessoric) inEnd() byte    { return '\n' }
-func (o *vessoric) outEnd() string { return "\n" }
-func (o *vessoric) reset()         { o.rateHz = 0 }
+func (o *vessoric) inEnd() byte       { return '\n' }
+func (o *vessoric) outEnd() string    { return "\n" }
+func (o *vessoric) reset()            { o.rateHz = 0 }
 func (o *vessoric) overrun() []string { return []string{"ERR"} }
 func (o *vessoric) streamPeriod() time.Duration {
 	if o.rateHz == 0 {
