@@ -60,11 +60,16 @@ const (
 type Verdict struct {
 	Verdict   string // Pass, Fail or Info
 	DecidedBy string // which limit decided it, in words
-	Marginal  bool   // a limit lies within the expanded uncertainty of the value
+	Marginal  bool   // the deciding limit lies within the expanded uncertainty of the value
 	Notes     []string
 	// Checks are the limits compared, in the order checked, as absolute
 	// values with the margin to each (for the report).
 	Checks []Check
+	// Decided is the limit that decided the verdict, and DecidedAt its
+	// value in the result's unit (for a baseline limit, the fraction times
+	// the baseline); Decided.Kind is empty when no limit was checked.
+	Decided   Limit
+	DecidedAt float64
 }
 
 // Check is one limit compared with a value: the limit in the value's unit
@@ -97,6 +102,9 @@ func Judge(r Result, baseline float64, limits []Limit) Verdict {
 	var v Verdict
 	var failed *Limit
 	var failedWords string
+	var failedAt, closestAt float64
+	var failedNear, closestNear bool
+	var closestLimit Limit
 	closest, closestWords := math.Inf(1), ""
 	checked := 0
 	for i := range ls {
@@ -120,26 +128,27 @@ func Judge(r Result, baseline float64, limits []Limit) Verdict {
 		if l.Bound == AtMost {
 			ok, margin = r.Value <= limit, limit-r.Value
 		}
-		within := math.Abs(r.Value-limit) <= r.ExpUnc
-		v.Checks = append(v.Checks, Check{Limit: l, Absolute: limit, Margin: margin, Passed: ok, WithinU: within})
-		if within {
-			v.Marginal = true
+		near := math.Abs(r.Value-limit) <= r.ExpUnc
+		v.Checks = append(v.Checks, Check{Limit: l, Absolute: limit, Margin: margin, Passed: ok, WithinU: near})
+		if near {
 			v.Notes = append(v.Notes, fmt.Sprintf("%s lies within the expanded uncertainty (±%.2g)", w, r.ExpUnc))
 		}
 		if !ok && failed == nil {
-			failed, failedWords = &ls[i], w
+			failed, failedWords, failedAt, failedNear = &ls[i], w, limit, near
 		}
 		if ok && margin < closest {
-			closest, closestWords = margin, w
+			closest, closestWords, closestAt, closestNear, closestLimit = margin, w, limit, near, l
 		}
 	}
+	// Marginal is said of the limit that decided: a limit far from the
+	// value is not made doubtful by another one near it.
 	switch {
 	case checked == 0:
 		v.Verdict, v.DecidedBy = Info, "no limit set"
 	case failed != nil:
-		v.Verdict, v.DecidedBy = Fail, failedWords
+		v.Verdict, v.DecidedBy, v.Decided, v.DecidedAt, v.Marginal = Fail, failedWords, *failed, failedAt, failedNear
 	default:
-		v.Verdict, v.DecidedBy = Pass, closestWords
+		v.Verdict, v.DecidedBy, v.Decided, v.DecidedAt, v.Marginal = Pass, closestWords, closestLimit, closestAt, closestNear
 	}
 	if !r.Calibrated && v.Verdict != Info {
 		v.Notes = append(v.Notes, fmt.Sprintf("would be %s on %s", v.Verdict, v.DecidedBy))

@@ -84,3 +84,33 @@ func TestJudgeReportsEveryLimit(t *testing.T) {
 		t.Errorf("failed limit: %+v", fail.Checks)
 	}
 }
+
+// "Marginal" is said only of the limit that decided: a fail against a
+// specification minimum of 100 is not marginal because an action level of
+// 60 lies within the uncertainty of a value of 61 (common practice,
+// simple acceptance: each limit is compared with the value itself).
+func TestMarginalOnlyForTheDecidingLimit(t *testing.T) {
+	r := Result{Quantity: QConversionFactor, Value: 61, ExpUnc: 3, Unit: UnitConversion, Calibrated: true}
+	limits := []Limit{{Kind: KindSpecification, Bound: AtLeast, Value: 100}, {Kind: KindActionLevel, Bound: AtLeast, Value: 60}}
+	v := Judge(r, 0, limits)
+	if v.Verdict != Fail || v.Marginal || v.Decided.Kind != KindSpecification || v.DecidedAt != 100 {
+		t.Errorf("got %s by %q (%s at %g), marginal %v; want a plain fail by the specification at 100", v.Verdict, v.DecidedBy, v.Decided.Kind, v.DecidedAt, v.Marginal)
+	}
+	// The near action level is still noted for the report.
+	noted := false
+	for _, n := range v.Notes {
+		noted = noted || strings.Contains(n, "action level minimum 60")
+	}
+	if !noted {
+		t.Errorf("notes %v do not mention the near action level", v.Notes)
+	}
+	// Near the deciding limit: marginal.
+	r.Value = 101
+	if v := Judge(r, 0, limits); v.Verdict != Pass || !v.Marginal || v.DecidedAt != 100 {
+		t.Errorf("101 ± 3 against 100: %s marginal %v at %g", v.Verdict, v.Marginal, v.DecidedAt)
+	}
+	// A baseline limit is decided at its absolute value.
+	if v := Judge(Result{Value: 150, ExpUnc: 5, Unit: UnitConversion, Calibrated: true}, 168, []Limit{{Kind: KindBaseline, Bound: AtLeast, Value: 0.8}}); v.DecidedAt != 0.8*168 {
+		t.Errorf("baseline limit decided at %g, want %g", v.DecidedAt, 0.8*168)
+	}
+}

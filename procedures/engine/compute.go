@@ -257,7 +257,7 @@ func (e *Engine) compute(ctx context.Context, idx int, s Step) error {
 	if err := e.journal(ctx, entry.KindResult, r); err != nil {
 		return err
 	}
-	return e.say(ctx, idx, panel.Message{Text: spokenResult(r), Level: panel.Info})
+	return e.say(ctx, idx, panel.Message{Text: spokenResult(r, e.resultMeter(s.ID)), Level: panel.Info})
 }
 
 func firstRole(m map[string]string) string {
@@ -319,7 +319,7 @@ func (e *Engine) benchLimits(q, mode string) []calib.Limit {
 	return out
 }
 
-func (e *Engine) applyVerdict(r *entry.Result, res calib.Result, limits []calib.Limit) {
+func (e *Engine) applyVerdict(r *entry.Result, res calib.Result, limits []calib.Limit) calib.Verdict {
 	res.Value, res.ExpUnc, res.Unit, res.Calibrated = r.Value, r.ExpUnc, r.Unit, r.Calibrated
 	v := calib.Judge(res, r.Baseline, limits)
 	r.Verdict, r.DecidedBy = v.Verdict, v.DecidedBy
@@ -337,6 +337,7 @@ func (e *Engine) applyVerdict(r *entry.Result, res calib.Result, limits []calib.
 	for _, n := range v.Notes {
 		r.Flags = appendUnique(r.Flags, n)
 	}
+	return v
 }
 
 // judge judges a computed result against the step's limits.
@@ -384,28 +385,42 @@ func (e *Engine) judge(ctx context.Context, idx int, s Step) error {
 	if len(limits) == 0 {
 		limits = e.benchLimits(r.Quantity, r.FieldMode)
 	}
-	e.applyVerdict(&r, calib.Result{}, limits)
+	v := e.applyVerdict(&r, calib.Result{}, limits)
 	e.storeResult(j.Result, r)
 	if err := e.journal(ctx, entry.KindResult, r); err != nil {
 		return err
-	}
-	text := fmt.Sprintf("%s: %s", spokenQuantity(r.Quantity), r.Verdict)
-	if r.DecidedBy != "" {
-		text += ", " + r.DecidedBy
 	}
 	lv := panel.Good
 	if r.Verdict == calib.Fail {
 		lv = panel.Warn
 	}
-	return e.say(ctx, idx, panel.Message{Text: text + ".", Level: lv})
+	return e.say(ctx, idx, panel.Message{Text: spokenVerdict(r, e.resultMeter(j.Result), v), Level: lv})
 }
 
-func spokenQuantity(q string) string {
-	s := strings.ReplaceAll(q, "_", " ")
-	if s == "" {
-		return s
+// resultMeter is the meter a dark level or a stability was read with (the
+// role its compute step names, or the meter its measurement read), for the
+// spoken name; "" for the other figures.
+func (e *Engine) resultMeter(computeID string) string {
+	for _, s := range e.cfg.Procedure.Steps {
+		if s.ID != computeID || s.Compute == nil {
+			continue
+		}
+		if f := s.Compute.Figure; f != "dark_level" && f != "stability" {
+			return ""
+		}
+		if _, ok := s.Compute.Inputs["air_kerma_rate"]; ok {
+			return Dosimeter
+		}
+		if _, ok := s.Compute.Inputs["luminance"]; ok {
+			return Photometer
+		}
+		for _, m := range e.cfg.Procedure.Steps {
+			if m.ID == s.Compute.Inputs["reading"] && m.Measure != nil && len(m.Measure.Meters) == 1 {
+				return m.Measure.Meters[0]
+			}
+		}
 	}
-	return strings.ToUpper(s[:1]) + s[1:]
+	return ""
 }
 
 // fmtNum writes v with three significant figures, as one would say it.
@@ -419,33 +434,4 @@ func fmtNum(v float64) string {
 		return strconv.FormatFloat(math.Round(v/p)*p, 'f', 0, 64)
 	}
 	return strconv.FormatFloat(v, 'f', d, 64)
-}
-
-// spokenResult: "Conversion factor, 32cm field: 152, last year 168, 90
-// percent of baseline."
-func spokenResult(r entry.Result) string {
-	var b strings.Builder
-	b.WriteString(spokenQuantity(r.Quantity))
-	if r.FieldMode != "" {
-		b.WriteString(", " + r.FieldMode + " field")
-	}
-	b.WriteString(": " + fmtNum(valueForSpeech(r)))
-	if r.Unit == "1" && r.Quantity == "non_uniformity" {
-		b.WriteString(" percent")
-	}
-	if r.Baseline != 0 {
-		fmt.Fprintf(&b, ", last time %s, %.0f percent of baseline", fmtNum(r.Baseline), 100*r.BaselineFrac)
-	}
-	if !r.Calibrated {
-		b.WriteString(", not calibrated")
-	}
-	b.WriteString(".")
-	return b.String()
-}
-
-func valueForSpeech(r entry.Result) float64 {
-	if r.Unit == "1" && r.Quantity == "non_uniformity" {
-		return 100 * r.Value
-	}
-	return r.Value
 }

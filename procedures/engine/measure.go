@@ -858,7 +858,7 @@ func (e *Engine) guard(ctx context.Context, a *attempt, role string, r drivers.R
 func (e *Engine) kermaStop(ctx context.Context, a *attempt, v, ceil float64) error {
 	_ = e.cfg.Panel.Indicate(ctx, panel.Fault)
 	_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: a.idx, Name: evKermaRange, Detail: fmt.Sprintf("%.4g µGy/s at the chamber, above %.4g µGy/s", v, ceil), BeamOn: e.st.beamOn.Seconds()})
-	msg := fmt.Sprintf("Release the beam now. The kerma rate at the chamber is %s micro-gray per second, far above what an intensifier input sees. Check that the chamber is not in the direct beam. The session is stopped.", fmtNum(v))
+	msg := fmt.Sprintf("Release the beam now. The kerma rate at the chamber is %s µGy/s, far above what an intensifier input sees. Check that the chamber is not in the direct beam. The session is stopped.", fmtNum(v))
 	_ = e.say(ctx, a.idx, panel.Message{Text: msg, Level: panel.Alarm, Action: panel.ActBeamOff})
 	a.beamOn = a.beamOn || true
 	if a.lastSig == 0 {

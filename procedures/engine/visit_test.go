@@ -5,7 +5,9 @@ import (
 	"testing"
 	"time"
 
+	"kermalux/calib"
 	"kermalux/firmware-host/panel/scripted"
+	"kermalux/firmware-host/panel/speech"
 	"kermalux/procedures/entry"
 	"kermalux/procedures/panel"
 )
@@ -152,6 +154,77 @@ func TestWrongLeadDiskSaidAtEntry(t *testing.T) {
 		got := strings.Contains(after, "Check the lead disk. 50 mm is 16 % of the 320 mm field")
 		if got != c.warn {
 			t.Errorf("disk %g mm: said after entry %q, want warning %v", c.disk, after, c.warn)
+		}
+	}
+}
+
+// Results are said with their units, a relative figure in percent for its
+// value and its limits alike, the deciding limit in plain words with its
+// value, and "marginal" only of the limit that decided. The unit words are
+// what the speaking panels make of them (speech.ForEar).
+func TestSpokenResultsAndVerdicts(t *testing.T) {
+	cf := calib.Limit{Kind: calib.KindSpecification, Bound: calib.AtLeast, Value: 100}
+	tests := []struct {
+		r             entry.Result
+		limits        []calib.Limit
+		result, ear   string
+		verdict, vEar string
+	}{
+		{
+			r:       entry.Result{Quantity: calib.QConversionFactor, FieldMode: "32cm", Value: 151, ExpUnc: 5, Unit: calib.UnitConversion, Calibrated: true, Baseline: 168, BaselineFrac: 151.0 / 168},
+			limits:  []calib.Limit{cf, {Kind: calib.KindBaseline, Bound: calib.AtLeast, Value: 0.8}},
+			result:  "Conversion factor, 32cm field: 151 cd/m² per µGy/s, last time 168, 90 % of baseline.",
+			ear:     "Conversion factor, 32 centimetre field: 151 candelas per square metre per microgray per second, last time 168, 90 percent of baseline.",
+			verdict: "Conversion factor, 32cm field: pass. Nearest limit: at least 80 % of the baseline, 134 cd/m² per µGy/s.",
+		},
+		{
+			r:       entry.Result{Quantity: calib.QNonUniformity, Value: 0.0846, ExpUnc: 0.009, Unit: calib.UnitRatio, Calibrated: true},
+			limits:  []calib.Limit{{Kind: calib.KindSpecification, Bound: calib.AtMost, Value: 0.25}},
+			result:  "Luminance non-uniformity: 8.46 %.",
+			verdict: "Luminance non-uniformity: pass. Nearest limit: the specification maximum of 25 %.",
+			vEar:    "Luminance non-uniformity: pass. Nearest limit: the specification maximum of 25 percent.",
+		},
+		{
+			r:       entry.Result{Quantity: calib.QInputKermaRate, FieldMode: "32cm", Value: 0.444, ExpUnc: 0.012, Unit: "µGy/s", Calibrated: true},
+			limits:  []calib.Limit{{Kind: calib.KindActionLevel, Bound: calib.AtMost, Value: 2}},
+			result:  "Input air kerma rate, 32cm field: 0.444 µGy/s.",
+			ear:     "Input air kerma rate, 32 centimetre field: 0.444 micrograys per second.",
+			verdict: "Input air kerma rate, 32cm field: pass. Nearest limit: the action level maximum of 2 µGy/s.",
+		},
+		{
+			// A fail against the specification of 100 is not marginal
+			// because the action level of 60 is near.
+			r:       entry.Result{Quantity: calib.QConversionFactor, FieldMode: "17cm", Value: 61, ExpUnc: 3, Unit: calib.UnitConversion, Calibrated: true},
+			limits:  []calib.Limit{cf, {Kind: calib.KindActionLevel, Bound: calib.AtLeast, Value: 60}},
+			verdict: "Conversion factor, 17cm field: fail, below the specification minimum of 100 cd/m² per µGy/s.",
+		},
+		{
+			r:       entry.Result{Quantity: calib.QContrastRatio, Value: 24.1, ExpUnc: 0.5, Unit: calib.UnitRatio, Calibrated: true},
+			limits:  []calib.Limit{{Kind: calib.KindSpecification, Bound: calib.AtLeast, Value: 15}},
+			result:  "Contrast ratio: 24.1 to 1.",
+			verdict: "Contrast ratio: pass. Nearest limit: the specification minimum of 15 to 1.",
+		},
+	}
+	for _, tc := range tests {
+		res := calib.Result{Value: tc.r.Value, ExpUnc: tc.r.ExpUnc, Unit: tc.r.Unit, Calibrated: true}
+		v := calib.Judge(res, tc.r.Baseline, tc.limits)
+		if tc.result != "" {
+			if got := spokenResult(tc.r, ""); got != tc.result {
+				t.Errorf("result\n got %q\nwant %q", got, tc.result)
+			}
+		}
+		if tc.ear != "" {
+			if got := speech.ForEar(spokenResult(tc.r, "")); got != tc.ear {
+				t.Errorf("result by ear\n got %q\nwant %q", got, tc.ear)
+			}
+		}
+		if got := spokenVerdict(tc.r, "", v); got != tc.verdict {
+			t.Errorf("verdict\n got %q\nwant %q", got, tc.verdict)
+		}
+		if tc.vEar != "" {
+			if got := speech.ForEar(spokenVerdict(tc.r, "", v)); got != tc.vEar {
+				t.Errorf("verdict by ear\n got %q\nwant %q", got, tc.vEar)
+			}
 		}
 	}
 }

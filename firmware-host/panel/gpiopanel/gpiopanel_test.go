@@ -350,7 +350,7 @@ func TestSayBeepsByLevel(t *testing.T) {
 		if got := len(b.buzzer.beeps(false)); got != tc.beeps {
 			t.Errorf("%s: %d beeps, want %d", tc.level, got, tc.beeps)
 		}
-		want := "Luminance 102 candela per square metre"
+		want := "Luminance 102 candelas per square metre"
 		if tc.level == panel.Alarm {
 			want = "URGENT " + want
 		}

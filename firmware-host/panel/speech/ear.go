@@ -7,42 +7,62 @@ import (
 	"unicode/utf8"
 )
 
-// spoken is one written form and how it is said. Forms marked afterNumber
-// are rewritten only right after a number ("6 s" but not the word "s").
+// spoken is one written form and how it is said: one (after the number 1,
+// before a noun such as "field", and after "per") and many (after any other
+// number). Forms marked afterNumber are rewritten only right after a number
+// ("6 s" but not the word "s"). Unit names follow NIST SP 811 (2008) 9.3
+// and 9.7: the plural is formed on the unit name ("candelas per square
+// metre", "micrograys per second"); spelled the British way, as the board
+// speaks with an English voice.
 type spoken struct {
-	written, said string
-	afterNumber   bool
+	written     string
+	one, many   string
+	afterNumber bool
 }
 
 // earTable lists written forms in the order they are tried: longer forms
 // first, so "µGy/s" wins over "µGy".
 var earTable = []spoken{
-	{"cd/m²", "candela per square metre", false},
-	{"cd/m2", "candela per square metre", false},
-	{"µGy/s", "micro-gray per second", false},
-	{"nGy/s", "nano-gray per second", false},
-	{"mGy/s", "milli-gray per second", false},
-	{"µGy", "micro-gray", false},
-	{"nGy", "nano-gray", false},
-	{"mGy", "milli-gray", false},
-	{"°C", "degrees Celsius", false},
-	{"kPa", "kilopascal", false},
-	{"hPa", "hectopascal", false},
-	{"mmAl", "millimetre aluminium", false},
-	{"mm", "millimetre", true},
-	{"cm", "centimetre", true},
-	{"kVp", "kilovolt peak", false},
-	{"kV", "kilovolt", true},
-	{"mAs", "milliampere second", true},
-	{"mA", "milliampere", true},
-	{"ms", "milliseconds", true},
-	{"min", "minutes", true},
-	{"s", "seconds", true},
-	{"m", "metre", true},
-	{"%", "percent", true},
-	{"k_TP", "k T P", false},
-	{"RQA5", "R Q A 5", false},
-	{"±", "plus or minus", false},
+	{"cd·m⁻²/(µGy·s⁻¹)", "candela per square metre per microgray per second", "candelas per square metre per microgray per second", false},
+	{"cd/m²", "candela per square metre", "candelas per square metre", false},
+	{"cd/m2", "candela per square metre", "candelas per square metre", false},
+	{"cd·m⁻²", "candela per square metre", "candelas per square metre", false},
+	{"µGy·s⁻¹", "microgray per second", "micrograys per second", false},
+	{"µGy/s", "microgray per second", "micrograys per second", false},
+	{"nGy/s", "nanogray per second", "nanograys per second", false},
+	{"mGy/s", "milligray per second", "milligrays per second", false},
+	{"µGy", "microgray", "micrograys", false},
+	{"nGy", "nanogray", "nanograys", false},
+	{"mGy", "milligray", "milligrays", false},
+	{"mR/min", "milliroentgen per minute", "milliroentgens per minute", false},
+	{"mR/s", "milliroentgen per second", "milliroentgens per second", false},
+	{"mR/h", "milliroentgen per hour", "milliroentgens per hour", false},
+	{"°C", "degree Celsius", "degrees Celsius", false},
+	{"°F", "degree Fahrenheit", "degrees Fahrenheit", false},
+	{"kPa", "kilopascal", "kilopascals", false},
+	{"hPa", "hectopascal", "hectopascals", false},
+	{"mbar", "millibar", "millibars", true},
+	{"mm Al", "millimetre of aluminium", "millimetres of aluminium", true},
+	{"mmAl", "millimetre of aluminium", "millimetres of aluminium", true},
+	{"mm Cu", "millimetre of copper", "millimetres of copper", true},
+	{"mm Pb", "millimetre of lead", "millimetres of lead", true},
+	{"fL", "foot-lambert", "foot-lamberts", true},
+	{"mm", "millimetre", "millimetres", true},
+	{"cm", "centimetre", "centimetres", true},
+	{"kVp", "kilovolt peak", "kilovolts peak", false},
+	{"kV", "kilovolt", "kilovolts", true},
+	{"mAs", "milliampere second", "milliampere seconds", true},
+	{"mA", "milliampere", "milliamperes", true},
+	{"ms", "millisecond", "milliseconds", true},
+	{"min", "minute", "minutes", true},
+	{"deg", "degree", "degrees", true},
+	{"s", "second", "seconds", true},
+	{"m", "metre", "metres", true},
+	{"r", "of the radius", "of the radius", true},
+	{"%", "percent", "percent", true},
+	{"k_TP", "k T P", "k T P", false},
+	{"RQA5", "R Q A 5", "R Q A 5", false},
+	{"±", "plus or minus", "plus or minus", false},
 }
 
 var earPattern = func() *regexp.Regexp {
@@ -61,12 +81,20 @@ var earIndex = func() map[string]spoken {
 	return m
 }()
 
+// nounAfter are words before which a unit is an adjective and stays
+// singular: "the 32 centimetre field".
+var nounAfter = map[string]bool{"field": true, "mode": true, "filter": true, "disk": true, "dark": true, "reading": true,
+	"aluminium": true, "copper": true, "lead": true, "phantom": true}
+
 // ForEar rewrites text written for the eye into text for a speech
-// synthesiser: unit symbols become words ("cd/m²" → "candela per square
-// metre", "32cm" → "32 centimetre"), dashes become pauses, and characters a
-// synthesiser reads badly (control characters) are dropped. A unit symbol
-// is rewritten only when it stands alone (not inside a longer word), and
-// short symbols such as "s" and "m" only right after a number.
+// synthesiser: unit symbols become words ("cd/m²" → "candelas per square
+// metre", "32cm field" → "32 centimetre field", "70 kV" → "70 kilovolts",
+// "21 mm Al" → "21 millimetres of aluminium", "0.9 r" → "0.9 of the
+// radius"), dashes become pauses, and characters a synthesiser reads badly
+// (control characters) are dropped. A unit symbol is rewritten only when
+// it stands alone (not inside a longer word), and short symbols such as
+// "s", "m" and "r" only right after a number. A unit is said in the
+// singular after the number 1, after "per" and before a noun it qualifies.
 func ForEar(text string) string {
 	text = strings.NewReplacer(
 		"μ", "µ", // Greek mu to micro sign
@@ -86,6 +114,9 @@ func ForEar(text string) string {
 	last := 0
 	for _, loc := range earPattern.FindAllStringIndex(text, -1) {
 		s, e := loc[0], loc[1]
+		if s < last {
+			continue
+		}
 		form := earIndex[text[s:e]]
 		before, _ := utf8.DecodeLastRuneInString(text[:s])
 		after, _ := utf8.DecodeRuneInString(text[e:])
@@ -95,28 +126,62 @@ func ForEar(text string) string {
 		if e == len(text) {
 			after = ' '
 		}
-		if unicode.IsLetter(before) || before == '_' || unicode.IsLetter(after) || unicode.IsDigit(after) || after == '_' {
+		if unicode.IsLetter(before) || before == '_' || unicode.IsLetter(after) || unicode.IsDigit(after) || after == '_' || (after == '-' && form.afterNumber) {
 			continue // part of a longer word
 		}
-		numBefore := unicode.IsDigit(before)
+		head := text[:s]
 		if before == ' ' && s > 0 {
-			numBefore = endsWithDigit(text[:s-1])
+			head = text[:s-1]
 		}
-		if form.afterNumber && !numBefore {
+		num := trailingNumber(head)
+		if form.afterNumber && num == "" {
 			continue
+		}
+		said := form.many
+		switch {
+		case nounAfter[nextWord(text[e:])] && num != "":
+			said = strings.Replace(form.one, " of ", " ", 1) // "the 21 millimetre aluminium filter"
+		case num == "1" || num == "" || strings.HasSuffix(strings.TrimSpace(head), " per"):
+			said = form.one
 		}
 		b.WriteString(text[last:s])
 		if unicode.IsDigit(before) {
 			b.WriteByte(' ')
 		}
-		b.WriteString(form.said)
+		b.WriteString(said)
 		last = e
 	}
 	b.WriteString(text[last:])
 	return strings.Join(strings.Fields(b.String()), " ")
 }
 
-func endsWithDigit(s string) bool {
-	r, _ := utf8.DecodeLastRuneInString(s)
-	return unicode.IsDigit(r)
+// trailingNumber is the number text ends with ("0.5" of "up 0.5"), or "".
+func trailingNumber(text string) string {
+	i := len(text)
+	for i > 0 {
+		r, n := utf8.DecodeLastRuneInString(text[:i])
+		if !unicode.IsDigit(r) && r != '.' && r != ',' {
+			break
+		}
+		i -= n
+	}
+	num := strings.TrimLeft(text[i:], ".,")
+	if num == "" || !unicode.IsDigit(rune(num[len(num)-1])) {
+		return ""
+	}
+	if i > 0 {
+		if r, _ := utf8.DecodeLastRuneInString(text[:i]); unicode.IsLetter(r) {
+			return "" // a name such as "RQA5"
+		}
+	}
+	return num
+}
+
+// nextWord is the first word of text, in lower case, without punctuation.
+func nextWord(text string) string {
+	f := strings.Fields(text)
+	if len(f) == 0 {
+		return ""
+	}
+	return strings.ToLower(strings.TrimFunc(f[0], func(r rune) bool { return !unicode.IsLetter(r) }))
 }

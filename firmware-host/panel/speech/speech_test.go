@@ -17,18 +17,36 @@ func TestForEar(t *testing.T) {
 	// edition, 2019), tables 2 and 4 (candela, gray, pascal, metre, degree
 	// Celsius) and its prefixes (table 7: micro, milli, nano, kilo, hecto).
 	tests := []struct{ in, want string }{
-		{"Luminance 102 cd/m²", "Luminance 102 candela per square metre"},
-		{"Luminance 102 cd/m2.", "Luminance 102 candela per square metre."},
-		{"Kerma rate 0.87 µGy/s", "Kerma rate 0.87 micro-gray per second"},
-		{"Kerma rate 0.87 μGy/s", "Kerma rate 0.87 micro-gray per second"}, // Greek mu
-		{"Kerma rate 0.87 uGy/s", "Kerma rate 0.87 micro-gray per second"},
-		{"Dose 12 µGy", "Dose 12 micro-gray"},
+		{"Luminance 102 cd/m²", "Luminance 102 candelas per square metre"},
+		{"Luminance 102 cd/m2.", "Luminance 102 candelas per square metre."},
+		{"Kerma rate 0.87 µGy/s", "Kerma rate 0.87 micrograys per second"},
+		{"Kerma rate 0.87 μGy/s", "Kerma rate 0.87 micrograys per second"}, // Greek mu
+		{"Kerma rate 0.87 uGy/s", "Kerma rate 0.87 micrograys per second"},
+		{"Dose 12 µGy", "Dose 12 micrograys"},
 		{"Select the 32cm field.", "Select the 32 centimetre field."},
 		{"Select the 32 cm field.", "Select the 32 centimetre field."},
-		{"Set 70 kV, manual mode.", "Set 70 kilovolt, manual mode."},
-		{"Room 21.5 °C, 101.3 kPa", "Room 21.5 degrees Celsius, 101.3 kilopascal"},
+		{"Set 70 kV, manual mode.", "Set 70 kilovolts, manual mode."},
+		{"Room 21.5 °C, 101.3 kPa", "Room 21.5 degrees Celsius, 101.3 kilopascals"},
 		{"Hang the 21 mm aluminium filter", "Hang the 21 millimetre aluminium filter"},
 		{"90% of baseline", "90 percent of baseline"},
+		// Plurals and full unit names (NIST SP 811 9.3, 9.7): after a
+		// number other than 1, singular after 1, after "per" and before
+		// the noun a unit qualifies.
+		{"Set 1 kV more.", "Set 1 kilovolt more."},
+		{"Hang the 21 mm Al filter.", "Hang the 21 millimetre aluminium filter."},
+		{"RQA5: 70 kV, 21 mm Al.", "R Q A 5: 70 kilovolts, 21 millimetres of aluminium."},
+		{"position 3 of 13: up 0.5 r.", "position 3 of 13: up 0.5 of the radius."},
+		{"Input kerma rate: 0.455 µGy/s.", "Input kerma rate: 0.455 micrograys per second."},
+		{"Conversion factor: 151 cd/m² per µGy/s.", "Conversion factor: 151 candelas per square metre per microgray per second."},
+		{"151 cd·m⁻²/(µGy·s⁻¹)", "151 candelas per square metre per microgray per second"},
+		{"0.72 µGy·s⁻¹", "0.72 micrograys per second"},
+		{"Dosimeter printed 5.1 mR/s.", "Dosimeter printed 5.1 milliroentgens per second."},
+		{"Photometer printed 30 fL.", "Photometer printed 30 foot-lamberts."},
+		{"1 fL is 3.426 cd/m².", "1 foot-lambert is 3.426 candelas per square metre."},
+		{"the 32cm field", "the 32 centimetre field"},
+		{"Lead disk 32 mm.", "Lead disk 32 millimetres."},
+		{"1.5 mA", "1.5 milliamperes"},
+		{"90 deg", "90 degrees"},
 		{"Beam on for 6 s.", "Beam on for 6 seconds."},
 		{"after 4 min 30 s", "after 4 minutes 30 seconds"},
 		{"step 5 of 31 — next: lead disk", "step 5 of 31, next: lead disk"},
