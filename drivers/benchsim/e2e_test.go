@@ -7,6 +7,7 @@ import (
 	"log/slog"
 	"os"
 	"path/filepath"
+	"strings"
 	"testing"
 	"time"
 
@@ -154,10 +155,57 @@ func TestEndToEndSCPI(t *testing.T) {
 	near(t, "mean of pulsed readings", mean(xs), tr.ChamberKermaRate*(1+tr.Dosimeter.CalibrationError), 0.15)
 	r.b.SetBeam(false)
 	r.sleep(2 * time.Second)
-	// SCPI has no under-range code: the DX-2 prints the small number.
+	// Below its range the DX-2 prints SCPI's negative overflow with -222:
+	// an under-range reading with no value, not a small number.
 	rd, err := m.Read(ctx)
-	if err != nil || rd.Value > tr.Dosimeter.Range.Min {
-		t.Errorf("beam off: %+v %v, want a reading below the %g µGy/s range", rd, err, tr.Dosimeter.Range.Min)
+	if err != nil || rd.Status != drivers.StatusUnderRange || !rd.NoValue {
+		t.Errorf("beam off: %+v %v, want under range with no value (range from %g µGy/s)", rd, err, tr.Dosimeter.Range.Min)
+	}
+}
+
+// The project's SCPI driver against a meter that follows IEEE 488.2
+// strictly (-410 for a reply left unread, -108 for a parameter where none
+// is allowed, -109 for a missing one, -113 for an unknown header): over
+// 100 readings and a reconnection the meter's error queue never holds an
+// entry the driver caused, so every reading is usable.
+func TestSCPIDriverAgainstStrictMeter(t *testing.T) {
+	r := startRig(t, "pelverton-pulsed-scpi.yaml", e2eSpeed, nil)
+	ctx, cancel := context.WithTimeout(context.Background(), 30*time.Second)
+	defer cancel()
+	m, err := scpi.Open(ctx, r.ports.Dosimeter.Link, scpi.Config{}, scpi.WithClock(r.clk), scpi.WithName(RoleDosimeter), scpi.WithLogger(quietLog))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer m.Close()
+	if _, err := m.Identify(ctx); err != nil {
+		t.Fatal(err)
+	}
+	r.b.SetBeam(true)
+	r.sleep(3 * time.Second)
+	for i := range 100 {
+		rd, err := m.Read(ctx)
+		if err != nil || !rd.Usable() || strings.Contains(rd.Raw, "|") {
+			t.Fatalf("reading %d: %+v, %v", i, rd, err)
+		}
+		if i == 50 {
+			if err := r.b.InjectFault(FaultSpec{Kind: FaultCablePulled, Meter: RoleDosimeter, Duration: time.Second}); err != nil {
+				t.Fatal(err)
+			}
+			for {
+				if _, err := m.Read(ctx); errors.Is(err, drivers.ErrLinkDown) {
+					break
+				}
+			}
+			for j := 0; ; j++ {
+				rd, err = m.Read(ctx)
+				if err == nil || !errors.Is(err, drivers.ErrLinkDown) || j > 200 {
+					break
+				}
+			}
+			if err != nil || !rd.AfterReconnect || !rd.Usable() {
+				t.Fatalf("after the reconnection: %+v, %v", rd, err)
+			}
+		}
 	}
 }
 

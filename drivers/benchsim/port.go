@@ -183,16 +183,18 @@ func (p *port) read(f *os.File, done chan struct{}) {
 		other = '\r'
 	}
 	overrun := false
+	type received struct {
+		cmd     string
+		overrun bool
+	}
+	var got []received
 	for {
 		n, err := f.Read(buf)
+		got = got[:0]
 		for _, c := range buf[:n] {
 			switch {
 			case c == end:
-				if overrun {
-					p.overrun()
-				} else {
-					p.handle(string(line))
-				}
+				got = append(got, received{string(line), overrun})
 				line, overrun = line[:0], false
 			case c == other:
 			case len(line) < maxCommand:
@@ -200,6 +202,17 @@ func (p *port) read(f *os.File, done chan struct{}) {
 			default:
 				overrun = true // the input buffer is full: the rest is lost
 			}
+		}
+		// Commands that came in together were all sent before any reply
+		// to the first of them existed: a reply followed by another
+		// command of the same read was never read by the host.
+		held := false
+		for i, r := range got {
+			if r.overrun {
+				p.overrun()
+				continue
+			}
+			held = p.handle(r.cmd, held, i < len(got)-1)
 		}
 		if err != nil {
 			// Closed by unplug or shutdown. (EIO, "no client", cannot
@@ -222,18 +235,24 @@ func (p *port) overrun() {
 	}
 }
 
-func (p *port) handle(cmd string) {
+// handle answers one command. unreadReply says the previous command's
+// reply was held back because this command came with it (the host cannot
+// have read it); more says another command follows in the same read, so
+// a reply to this one is held back in turn. It reports whether it held a
+// reply back. Only an interrupter dialect holds replies back.
+func (p *port) handle(cmd string, unreadReply, more bool) (held bool) {
 	if _, _, ok := p.b.fault(p.role, FaultStalled); ok {
-		return // a stalled meter ignores what it is sent
+		return false // a stalled meter ignores what it is sent
 	}
 	if !p.lineMatches() {
 		// At another speed or framing the meter cannot make out the
 		// command; what it sends back reaches the host as noise.
 		p.sendNoise()
-		return
+		return false
 	}
 	p.dmu.Lock()
-	if in, ok := p.d.(interrupter); ok && p.unread() > 0 {
+	in, interrupts := p.d.(interrupter)
+	if interrupts && (unreadReply || p.unread() > 0) {
 		// A new message while the last reply is unread: the reply is
 		// thrown away and the meter says so (IEEE 488.2, 6.3.2.3).
 		p.flushUnread()
@@ -243,6 +262,10 @@ func (p *port) handle(cmd string) {
 	replies := p.d.command(cmd)
 	now := p.d.streamPeriod()
 	p.dmu.Unlock()
+	if interrupts && more && len(replies) > 0 {
+		held = true
+		replies = nil
+	}
 	for _, r := range replies {
 		p.send(r)
 	}
@@ -252,6 +275,7 @@ func (p *port) handle(cmd string) {
 		default:
 		}
 	}
+	return held
 }
 
 // send writes one line, unless the meter is stalled; during a garbage
