@@ -2,15 +2,20 @@ package main
 
 import (
 	"bufio"
+	"context"
+	"crypto/ed25519"
+	"encoding/hex"
 	"encoding/json"
 	"errors"
 	"fmt"
+	"io"
 	"os"
 	"text/tabwriter"
 
 	"github.com/spf13/cobra"
 
 	"kermalux/firmware-host/journal"
+	"kermalux/firmware-host/journal/store"
 )
 
 // defaultJournal is where the board keeps its journal.
@@ -49,27 +54,41 @@ func init() {
 		Short: "Check, list and export the board's session journal; show the board key",
 	}
 
-	var verifyKey string
+	var verifyKey, verifyStore string
 	var verifyJSON bool
 	verify := &cobra.Command{
 		Use:   "verify FILE",
-		Short: "Check a journal's schema, hash chain and signatures; name the first bad record",
-		Long: `verify re-reads every record of a journal file and checks the schema version,
-each session's hash chain, every record's signature and each session's signed
-head (which catches records cut from the end). It names the first bad record
-of each session (sequence number, kind, what is wrong, a hint) and exits 1 if
-anything is wrong, 0 if the journal is good.`,
+		Short: "Check a journal's schema, hash chain, signatures and high-water mark; name the first bad record",
+		Long: `verify re-reads every record of a journal file and checks SQLite's integrity,
+the schema version, each session's hash chain, every record's signature, each
+session's signed head (which catches records cut from the end) and the
+journal's high-water mark (journal.db.mark beside it, which catches a deleted,
+cut or damaged -wal file and a journal cut to nothing). It says which board
+key signed the journal; with --key it requires that key, with --store it
+requires the key to be enrolled in that workstation store and the journal to
+hold at least what the store holds of each session. It names the first bad
+record of each session (sequence number, kind, what is wrong, a hint) and
+exits 1 if anything is wrong, 0 if the journal is good. It opens the file
+read-only: it never checkpoints or deletes the -wal file.`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			var pub []byte
+			var opts journal.VerifyOptions
 			if verifyKey != "" {
 				k, err := journal.ParsePublicKey(verifyKey)
 				if err != nil {
 					return withCode(exitUsage, err)
 				}
-				pub = k
+				opts.Key = k
 			}
-			rep, err := journal.VerifyKey(cmd.Context(), args[0], pub)
+			if verifyStore != "" {
+				st, err := openStoreForVerify(verifyStore)
+				if err != nil {
+					return withCode(exitFailure, err)
+				}
+				defer st.Close()
+				opts.Enrolled, opts.StoreHead = st.enrolled, st.head
+			}
+			rep, err := journal.VerifyWith(cmd.Context(), args[0], opts)
 			if err != nil {
 				return withCode(exitFailure, err)
 			}
@@ -82,8 +101,20 @@ anything is wrong, 0 if the journal is good.`,
 				for _, p := range rep.Problems {
 					fmt.Fprintln(out, "BAD", p)
 				}
-				fmt.Fprintf(out, "%s: schema %d, board key %s, %d sessions (%d unfinished), %d records\n",
-					args[0], rep.Schema, rep.BoardKey, rep.Sessions, len(rep.Unfinished), rep.Records)
+				fmt.Fprintf(out, "%s: schema %d, %d sessions (%d unfinished), %d records\n",
+					args[0], rep.Schema, rep.Sessions, len(rep.Unfinished), rep.Records)
+				switch {
+				case rep.BoardKey == "":
+				case rep.EnrolledAs != "":
+					fmt.Fprintf(out, "signed by board key %s, enrolled in %s as %q\n", rep.BoardKey, verifyStore, rep.EnrolledAs)
+				case opts.Key != nil && rep.OK():
+					fmt.Fprintf(out, "signed by board key %s, the key given\n", rep.BoardKey)
+				default:
+					fmt.Fprintf(out, "signed by board key %s\n", rep.BoardKey)
+					if opts.Key == nil && verifyStore == "" {
+						fmt.Fprintln(out, "not compared with an enrolled key: give --store STORE or --key KEY to know the board that signed it is yours")
+					}
+				}
 			}
 			if !rep.OK() {
 				return withCode(exitFailure, fmt.Errorf("journal %s is bad: %d problem(s)", args[0], len(rep.Problems)))
@@ -95,19 +126,25 @@ anything is wrong, 0 if the journal is good.`,
 		},
 	}
 	verify.Flags().StringVar(&verifyKey, "key", "", "also require this board public key (hex)")
+	verify.Flags().StringVar(&verifyStore, "store", "", "workstation store: require the key enrolled there, and the journal to hold what the store holds")
 	verify.Flags().BoolVar(&verifyJSON, "json", false, "print the report as JSON")
 
-	var exportJSON bool
+	var exportJSON, exportUnverified bool
 	export := &cobra.Command{
 		Use:   "export FILE --json",
 		Short: "Print every record of a journal, one JSON object per line",
 		Long: `export prints every record of a journal file, session by session, one JSON
 object per line: the envelope fields (seq, session, kind, wall, mono_ns,
-boot_id, payload) with prev, hash and sig. It does not check them; run verify.`,
+boot_id, payload) with prev, hash and sig. It verifies the journal first (as
+journal verify does) and refuses one that does not verify, naming the first
+bad record; --unverified exports it anyway, for examining the damage.`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if !exportJSON {
 				return withCode(exitUsage, errors.New("export writes JSON lines only: add --json"))
+			}
+			if err := verifyFirst(cmd.Context(), args[0], exportUnverified, cmd.ErrOrStderr()); err != nil {
+				return err
 			}
 			w := bufio.NewWriter(cmd.OutOrStdout())
 			enc := json.NewEncoder(w)
@@ -122,6 +159,7 @@ boot_id, payload) with prev, hash and sig. It does not check them; run verify.`,
 		},
 	}
 	export.Flags().BoolVar(&exportJSON, "json", false, "one JSON object per record per line")
+	export.Flags().BoolVar(&exportUnverified, "unverified", false, "export a journal that does not verify (its records cannot be trusted)")
 
 	sessions := &cobra.Command{
 		Use:   "sessions FILE",
@@ -152,8 +190,23 @@ boot_id, payload) with prev, hash and sig. It does not check them; run verify.`,
 		Short: "Print the board's public key (creating the key on first use), for enrolling at the workstation",
 		Args:  cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {
-			priv, err := journal.LoadOrCreateKey(kf.options().KeyFile(kf.journal))
-			if err != nil {
+			keyFile := kf.options().KeyFile(kf.journal)
+			var priv ed25519.PrivateKey
+			var err error
+			if _, serr := os.Stat(kf.journal); serr == nil {
+				// The journal exists: its key must exist too, and be the one
+				// the journal was written with (never a fresh one).
+				if priv, err = journal.LoadKey(keyFile); err != nil {
+					return withCode(exitFailure, err)
+				}
+				owner, err := journal.FileKey(cmd.Context(), kf.journal)
+				if err != nil {
+					return withCode(exitFailure, err)
+				}
+				if pub := hex.EncodeToString(priv.Public().(ed25519.PublicKey)); owner != "" && owner != pub {
+					return withCode(exitFailure, fmt.Errorf("%w: journal %s was written with board key %s, the key file %s holds %s", journal.ErrWrongBoard, kf.journal, owner, keyFile, pub))
+				}
+			} else if priv, err = journal.LoadOrCreateKey(keyFile); err != nil {
 				return withCode(exitFailure, err)
 			}
 			fmt.Fprintf(cmd.OutOrStdout(), "%x\n", priv.Public())
@@ -164,4 +217,58 @@ boot_id, payload) with prev, hash and sig. It does not check them; run verify.`,
 
 	parent.AddCommand(verify, export, sessions, key)
 	register(parent)
+}
+
+// verifyFirst verifies the journal at path before its records are read
+// for anything: a journal that does not verify is refused, naming its
+// first problem, unless unverified is set; then the problems are printed
+// to warn and the caller goes on.
+func verifyFirst(ctx context.Context, path string, unverified bool, warn io.Writer) error {
+	rep, err := journal.Verify(ctx, path)
+	if err != nil {
+		return withCode(exitFailure, err)
+	}
+	if rep.OK() {
+		return nil
+	}
+	if !unverified {
+		return withCode(exitFailure, fmt.Errorf("journal %s does not verify, refused: %s (run kermalux journal verify %s)", path, rep.Problems[0], path))
+	}
+	for _, p := range rep.Problems {
+		fmt.Fprintln(warn, "NOT VERIFIED:", p)
+	}
+	return nil
+}
+
+// verifyStore is a workstation store as journal verify --store consults it.
+type verifyStore struct{ *store.Store }
+
+func openStoreForVerify(path string) (verifyStore, error) {
+	if !store.Exists(path) {
+		return verifyStore{}, fmt.Errorf("store %s does not exist", path)
+	}
+	st, err := store.Open(path)
+	return verifyStore{st}, err
+}
+
+func (s verifyStore) enrolled(ctx context.Context, key string) (string, bool, error) {
+	boards, err := s.Boards(ctx)
+	if err != nil {
+		return "", false, err
+	}
+	for _, b := range boards {
+		if b.Key == key {
+			return b.Name, true, nil
+		}
+	}
+	return "", false, nil
+}
+
+func (s verifyStore) head(ctx context.Context, session string) (int64, string, error) {
+	recs, err := s.Records(ctx, session, 0, 0)
+	if err != nil || len(recs) == 0 {
+		return 0, "", err
+	}
+	last := recs[len(recs)-1]
+	return last.Seq, last.Hash, nil
 }

@@ -89,6 +89,8 @@ type Journal struct {
 	// stale entry (another process appending to the same session) cannot
 	// fork the chain: the unique (session, seq) index refuses the insert.
 	heads map[string]headState
+	// mark keeps the high-water mark file (mark.go) behind each commit.
+	mark *markWriter
 }
 
 // headState is a session's last record: its seq and hash, and whether it
@@ -129,6 +131,10 @@ CREATE TABLE IF NOT EXISTS heads(
 
 func dsn(path string, write bool) string {
 	q := "_pragma=busy_timeout(10000)"
+	if !write {
+		// A reader never writes: no checkpoint, no deleting the -wal.
+		q = "mode=ro&" + q
+	}
 	if write {
 		// The board appends; a small page cache (512 KiB) keeps its memory low.
 		q += "&_pragma=journal_mode(WAL)&_pragma=synchronous(FULL)&_pragma=cache_size(-512)&_txlock=immediate"
@@ -178,7 +184,42 @@ func Open(path string, opts Options) (*Journal, error) {
 			return nil, fmt.Errorf("open journal %s: %w", path, err)
 		}
 	}
+	if j.mark, err = j.openMark(); err != nil {
+		j.Close()
+		return nil, fmt.Errorf("open journal %s: %w", path, err)
+	}
 	return j, nil
+}
+
+// openMark checks the journal against its high-water mark and starts
+// keeping the mark. A journal without the marked record (a lost -wal, a
+// file cut or replaced), or holding records but no mark, is refused: its
+// sessions must not be resumed or appended to, which would fork them from
+// what the board had acknowledged and pushed.
+func (j *Journal) openMark() (*markWriter, error) {
+	ctx := context.Background()
+	m, err := ReadMark(j.path, j.pub)
+	if err != nil {
+		return nil, fmt.Errorf("%w: %w", ErrRolledBack, err)
+	}
+	if m != nil {
+		what, err := checkMark(ctx, j.db, m)
+		if err != nil {
+			return nil, fmt.Errorf("check the high-water mark: %w", err)
+		}
+		if what != "" {
+			return nil, fmt.Errorf("%w: %s (run kermalux journal verify; to go on, move the journal and its %s file aside and start a new journal)", ErrRolledBack, what, MarkSuffix)
+		}
+	} else {
+		var n int64
+		if err := j.db.QueryRowContext(ctx, `SELECT count(*) FROM records`).Scan(&n); err != nil {
+			return nil, fmt.Errorf("count records: %w", err)
+		}
+		if n > 0 {
+			return nil, fmt.Errorf("%w: the journal holds %d records but its high-water mark %s is missing (copy it with the journal, or move the journal aside and start a new one)", ErrRolledBack, n, MarkPath(j.path))
+		}
+	}
+	return startMarkWriter(MarkPath(j.path), j.priv, m)
 }
 
 func (j *Journal) init() error {
@@ -237,12 +278,19 @@ func (j *Journal) BoardKey() string { return j.pubHex }
 // Sign signs msg with the board key (used for batches and bundles).
 func (j *Journal) Sign(msg []byte) []byte { return ed25519.Sign(j.priv, msg) }
 
-// Close closes the journal.
+// Close writes the high-water mark of the last commit and closes the
+// journal.
 func (j *Journal) Close() error {
-	for _, st := range []*sql.Stmt{j.head, j.insert, j.update} {
-		st.Close()
+	var merr error
+	if j.mark != nil {
+		merr = j.mark.close()
 	}
-	return j.db.Close()
+	for _, st := range []*sql.Stmt{j.head, j.insert, j.update} {
+		if st != nil {
+			st.Close()
+		}
+	}
+	return errors.Join(j.db.Close(), merr)
 }
 
 // NewSessionID returns a fresh session id: UTC start time, the first 8 hex
@@ -422,6 +470,7 @@ func (j *Journal) appendItems(ctx context.Context, session string, items []Item,
 	}
 	committed = true
 	j.heads[session] = headState{seq: seq, hash: prev, ended: isEnd}
+	j.mark.note(session, seq, prev)
 	return seq, nil
 }
 

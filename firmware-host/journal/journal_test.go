@@ -181,6 +181,9 @@ func tamper(t *testing.T, src string, f func(db *sql.DB, path string)) Report {
 		t.Fatal(err)
 	}
 	os.WriteFile(dst, b, 0o600)
+	if m, err := os.ReadFile(MarkPath(src)); err == nil {
+		os.WriteFile(MarkPath(dst), m, 0o600)
+	}
 	db, err := sql.Open("sqlite", dst)
 	if err != nil {
 		t.Fatal(err)

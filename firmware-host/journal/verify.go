@@ -1,6 +1,7 @@
 package journal
 
 import (
+	"bytes"
 	"context"
 	"crypto/ed25519"
 	"database/sql"
@@ -8,7 +9,9 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"io/fs"
 	"os"
+	"path/filepath"
 	"strings"
 
 	"kermalux/procedures/entry"
@@ -53,8 +56,9 @@ type Report struct {
 	BoardKey   string    `json:"board_key"`
 	Sessions   int       `json:"sessions"`
 	Records    int64     `json:"records"`
-	Unfinished []string  `json:"unfinished,omitempty"` // sessions without session_end
-	Problems   []Problem `json:"problems,omitempty"`   // the first problem of each bad session, and file-level problems
+	EnrolledAs string    `json:"enrolled_as,omitempty"` // the store's name of the board key, when a store was given
+	Unfinished []string  `json:"unfinished,omitempty"`  // sessions without session_end
+	Problems   []Problem `json:"problems,omitempty"`    // the first problem of each bad session, and file-level problems
 }
 
 // OK reports whether nothing is wrong.
@@ -84,26 +88,74 @@ func openRead(path string) (*sql.DB, error) {
 // every signature against the board key recorded in the file. A Report
 // with problems means the journal is bad; an error means it could not be
 // read at all.
-func Verify(ctx context.Context, path string) (Report, error) { return VerifyKey(ctx, path, nil) }
+func Verify(ctx context.Context, path string) (Report, error) {
+	return VerifyWith(ctx, path, VerifyOptions{})
+}
 
 // VerifyKey is Verify, additionally requiring the journal to be signed by
 // pub (when not nil), e.g. the key enrolled for the board.
 func VerifyKey(ctx context.Context, path string, pub ed25519.PublicKey) (Report, error) {
+	return VerifyWith(ctx, path, VerifyOptions{Key: pub})
+}
+
+// VerifyOptions add outside references to what Verify compares the
+// journal with.
+type VerifyOptions struct {
+	// Key, when set, is the key the journal must be signed with.
+	Key ed25519.PublicKey
+	// Enrolled, when set, looks up a board key (hex) among the boards a
+	// workstation store has enrolled: its name, or ok false.
+	Enrolled func(ctx context.Context, key string) (name string, ok bool, err error)
+	// StoreHead, when set, gives the last record of session a workstation
+	// store holds (seq 0: none) and that record's hash. A store holding
+	// more of a session than the journal, or other records, shows the
+	// journal rolled back or rewritten after the push.
+	StoreHead func(ctx context.Context, session string) (seq int64, hash string, err error)
+}
+
+// VerifyWith checks the journal at path as Verify does, then against its
+// high-water mark file and, as opts give them, a required key, a store's
+// enrolled boards and a store's records. It opens the file read-only:
+// it never checkpoints, never deletes the -wal file, never writes.
+// SQLite's own integrity check runs first; a damaged file is reported as
+// such, before anything read through its damaged indexes.
+func VerifyWith(ctx context.Context, path string, opts VerifyOptions) (Report, error) {
 	rep := Report{Path: path}
 	db, err := openRead(path)
 	if err != nil {
 		return rep, err
 	}
 	defer db.Close()
+	if err := db.PingContext(ctx); err == nil {
+		var n int
+		if err := db.QueryRowContext(ctx, `SELECT count(*) FROM sqlite_master`).Scan(&n); needsRecovery(err) {
+			// A hot rollback journal or a WAL index to rebuild (a cut
+			// first start): reading it needs a write, so read a copy.
+			db.Close()
+			return verifyCopy(ctx, path, opts)
+		}
+	}
 	fileProblem := func(what, hint string) (Report, error) {
 		rep.Problems = append(rep.Problems, Problem{What: what, Hint: hint})
 		return rep, nil
 	}
 	// A file created by a first start that was cut before the schema was
-	// committed is an empty journal: nothing was ever acknowledged in it.
+	// committed is an empty journal: nothing was ever acknowledged in it,
+	// unless its high-water mark says otherwise (a file cut to nothing).
 	var tables int
 	if err := db.QueryRowContext(ctx, `SELECT count(*) FROM sqlite_master`).Scan(&tables); err == nil && tables == 0 {
+		if m := unverifiedMark(path, opts.Key); m != nil && m.Seq > 0 {
+			return fileProblem(fmt.Sprintf("%s: the journal is empty, but its high-water mark names record %d of session %s: the board's records are gone", ErrRolledBack, m.Seq, m.Session), hintRolledBack)
+		}
 		return rep, nil
+	}
+	if bad, err := integrity(ctx, db); needsRecovery(err) {
+		db.Close()
+		return verifyCopy(ctx, path, opts)
+	} else if err != nil {
+		return fileProblem(fmt.Sprintf("not a journal (SQLite cannot read it): %v", err), hintNotJourn)
+	} else if bad != "" {
+		return fileProblem("the SQLite integrity check failed, so no record read from the file can be trusted: "+bad, hintCorrupt)
 	}
 	if err := db.QueryRowContext(ctx, `SELECT version FROM schema_version`).Scan(&rep.Schema); err != nil {
 		if strings.Contains(err.Error(), "no such table") || strings.Contains(err.Error(), "not a database") {
@@ -121,8 +173,19 @@ func VerifyKey(ctx context.Context, path string, pub ed25519.PublicKey) (Report,
 	if err != nil {
 		return fileProblem(err.Error(), hintCorrupt)
 	}
-	if pub != nil && !pub.Equal(fileKey) {
-		return fileProblem(fmt.Sprintf("journal names board key %s, expected %s", short(rep.BoardKey), short(hex.EncodeToString(pub))), hintKey)
+	if pub := opts.Key; pub != nil && !pub.Equal(fileKey) {
+		return fileProblem(fmt.Sprintf("journal is signed by board key %s, expected %s", rep.BoardKey, hex.EncodeToString(pub)), hintKey)
+	}
+	if opts.Enrolled != nil {
+		name, ok, err := opts.Enrolled(ctx, rep.BoardKey)
+		switch {
+		case err != nil:
+			return rep, fmt.Errorf("journal %s: enrolled boards: %w", path, err)
+		case !ok:
+			rep.Problems = append(rep.Problems, Problem{What: fmt.Sprintf("journal is signed by board key %s, which the store has not enrolled: it was not written (or was re-signed) by a known board", rep.BoardKey), Hint: hintKey})
+		default:
+			rep.EnrolledAs = name
+		}
 	}
 	heads := map[string]headRow{}
 	var order []string
@@ -175,9 +238,154 @@ func VerifyKey(ctx context.Context, path string, pub ed25519.PublicKey) (Report,
 		}
 		if p := h.check(fileKey, recs); p != nil {
 			rep.Problems = append(rep.Problems, *p)
+			continue
+		}
+		if opts.StoreHead != nil {
+			p, err := compareStore(ctx, opts.StoreHead, s, recs)
+			if err != nil {
+				return rep, fmt.Errorf("journal %s: %w", path, err)
+			}
+			if p != nil {
+				rep.Problems = append(rep.Problems, *p)
+			}
 		}
 	}
+	rep.Problems = append(rep.Problems, markProblems(ctx, db, path, fileKey, rep.Records)...)
 	return rep, nil
+}
+
+// needsRecovery reports SQLite's "read-only and must recover first"
+// errors (SQLITE_READONLY_RECOVERY 264, SQLITE_READONLY_ROLLBACK 776).
+func needsRecovery(err error) bool {
+	var c interface{ Code() int }
+	if errors.As(err, &c) {
+		return c.Code() == 264 || c.Code() == 776
+	}
+	return err != nil && (strings.HasSuffix(err.Error(), "(776)") || strings.HasSuffix(err.Error(), "(264)"))
+}
+
+// verifyCopy verifies a copy of the journal's files (journal, -wal,
+// -journal, mark) in a temporary folder, so that SQLite may recover the
+// copy while the original stays untouched.
+func verifyCopy(ctx context.Context, path string, opts VerifyOptions) (Report, error) {
+	dir, err := os.MkdirTemp("", "kermalux-verify-")
+	if err != nil {
+		return Report{Path: path}, fmt.Errorf("journal %s: %w", path, err)
+	}
+	defer os.RemoveAll(dir)
+	cp := filepath.Join(dir, "journal.db")
+	for _, suf := range []string{"", "-wal", "-journal", MarkSuffix} {
+		data, err := os.ReadFile(path + suf)
+		if errors.Is(err, fs.ErrNotExist) {
+			continue
+		}
+		if err == nil {
+			err = os.WriteFile(cp+suf, data, 0o600)
+		}
+		if err != nil {
+			return Report{Path: path}, fmt.Errorf("journal %s: copy for verification: %w", path, err)
+		}
+	}
+	db, err := sql.Open("sqlite", dsn(cp, true))
+	if err != nil {
+		return Report{Path: path}, fmt.Errorf("journal %s: %w", path, err)
+	}
+	var n int
+	err = db.QueryRowContext(ctx, `SELECT count(*) FROM sqlite_master`).Scan(&n) // recovers the copy
+	db.Close()
+	if err != nil && !strings.Contains(err.Error(), "not a database") {
+		return Report{Path: path}, fmt.Errorf("journal %s: recover a copy: %w", path, err)
+	}
+	rep, err := VerifyWith(ctx, cp, opts)
+	rep.Path = path
+	return rep, err
+}
+
+const hintRolledBack = "the journal lost records the board had committed (a deleted, cut or damaged journal.db-wal, or a journal file replaced by an older copy); keep this file, find the board's untouched copy or the workstation store's records, and tell your physicist"
+
+// markProblems compares the journal with its high-water mark.
+func markProblems(ctx context.Context, db *sql.DB, path string, key ed25519.PublicKey, records int64) []Problem {
+	m, err := ReadMark(path, key)
+	switch {
+	case err != nil:
+		return []Problem{{What: fmt.Sprintf("%v: the high-water mark cannot vouch for the journal", err), Hint: "the mark was damaged or replaced; copy journal.db.mark from the board with the journal"}}
+	case m == nil && records > 0:
+		return []Problem{{What: fmt.Sprintf("no high-water mark (%s) beside a journal of %d records: a rollback of its last records cannot be ruled out", MarkPath(path), records), Hint: "copy journal.db.mark from the board with the journal; a board never runs without it"}}
+	case m == nil:
+		return nil
+	}
+	what, err := checkMark(ctx, db, m)
+	if err != nil {
+		return []Problem{{What: fmt.Sprintf("cannot check the high-water mark: %v", err), Hint: hintCorrupt}}
+	}
+	if what != "" {
+		return []Problem{{Session: m.Session, Seq: m.Seq, What: ErrRolledBack.Error() + ": " + what, Hint: hintRolledBack}}
+	}
+	return nil
+}
+
+// unverifiedMark reads the mark of a journal whose key is not known (an
+// empty file): with key nil its signature is not checked, which is enough
+// to refuse calling the journal good, never to call it good.
+func unverifiedMark(path string, key ed25519.PublicKey) *Mark {
+	if key != nil {
+		m, _ := ReadMark(path, key)
+		return m
+	}
+	data, err := os.ReadFile(MarkPath(path))
+	if err != nil || len(data) > 2*markSlot {
+		return nil
+	}
+	var best *Mark
+	for off := 0; off < len(data); off += markSlot {
+		var m markJSON
+		if json.Unmarshal(bytes.Trim(data[off:min(off+markSlot, len(data))], " \n\x00"), &m) == nil && (best == nil || m.N > best.N) {
+			best = &m.Mark
+		}
+	}
+	return best
+}
+
+// integrity runs SQLite's integrity check; it returns "" when the file is
+// sound, else the first lines of what SQLite found (an index page that
+// does not match its table, a page used twice...).
+func integrity(ctx context.Context, db *sql.DB) (string, error) {
+	rows, err := db.QueryContext(ctx, `PRAGMA integrity_check(5)`)
+	if err != nil {
+		return "", err
+	}
+	defer rows.Close()
+	var lines []string
+	for rows.Next() {
+		var l string
+		if err := rows.Scan(&l); err != nil {
+			return "", err
+		}
+		lines = append(lines, l)
+	}
+	if err := rows.Err(); err != nil {
+		return "", err
+	}
+	if len(lines) == 1 && lines[0] == "ok" {
+		return "", nil
+	}
+	return strings.Join(lines, "; "), nil
+}
+
+// compareStore checks a verified session against what a store holds of it.
+func compareStore(ctx context.Context, head func(context.Context, string) (int64, string, error), session string, recs []Record) (*Problem, error) {
+	seq, hash, err := head(ctx, session)
+	if err != nil || seq == 0 {
+		return nil, err
+	}
+	last := recs[len(recs)-1]
+	switch {
+	case seq > last.Seq:
+		return &Problem{Session: session, Seq: last.Seq, Kind: last.Kind, What: fmt.Sprintf("%s: the store holds this session up to record %d, the journal only up to record %d", ErrRolledBack, seq, last.Seq), Hint: hintRolledBack}, nil
+	case recs[seq-1].Hash != hash:
+		return &Problem{Session: session, Seq: seq, Kind: recs[seq-1].Kind, What: fmt.Sprintf("record %d hashes to %s in the journal but %s in the store: the journal and the store hold different sessions under one id (a fork)", seq, short(recs[seq-1].Hash), short(hash)), Hint: hintEdited}, nil
+	}
+	return nil, nil
 }
 
 type headRow struct {
@@ -341,7 +549,8 @@ func (j *Journal) VerifySession(ctx context.Context, session string) error {
 	h := headRow{session: session}
 	err = j.db.QueryRowContext(ctx, `SELECT seq, hash, head_sig, ended FROM heads WHERE session = ?`, session).Scan(&h.seq, &h.hash, &h.sig, &h.ended)
 	if errors.Is(err, sql.ErrNoRows) {
-		return &VerifyError{Path: j.path, Problem: Problem{Session: session, What: "records without a session head (the head row was deleted)", Hint: hintMissing}}
+		last := recs[len(recs)-1]
+		return &VerifyError{Path: j.path, Problem: Problem{Session: session, Seq: last.Seq, Kind: last.Kind, What: "the last record has no signed session head (the head row was deleted)", Hint: hintMissing}}
 	}
 	if err != nil {
 		return fmt.Errorf("verify session %s: read head: %w", session, err)
@@ -350,4 +559,26 @@ func (j *Journal) VerifySession(ctx context.Context, session string) error {
 		return &VerifyError{Path: j.path, Problem: *p}
 	}
 	return nil
+}
+
+// FileKey returns the board key (hex) recorded in the journal at path,
+// read-only; "" for a journal with no schema yet.
+func FileKey(ctx context.Context, path string) (string, error) {
+	db, err := openRead(path)
+	if err != nil {
+		return "", err
+	}
+	defer db.Close()
+	var tables int
+	if err := db.QueryRowContext(ctx, `SELECT count(*) FROM sqlite_master WHERE name = 'board'`).Scan(&tables); err != nil {
+		return "", fmt.Errorf("journal %s: %w", path, err)
+	}
+	if tables == 0 {
+		return "", nil
+	}
+	var key string
+	if err := db.QueryRowContext(ctx, `SELECT public_key FROM board WHERE id = 1`).Scan(&key); err != nil && !errors.Is(err, sql.ErrNoRows) {
+		return "", fmt.Errorf("journal %s: board key: %w", path, err)
+	}
+	return key, nil
 }

@@ -158,16 +158,17 @@ func TestResumeWithBoardJournal(t *testing.T) {
 }
 
 // A session that does not verify is not resumed: a record edited after
-// the kill (a dark reading multiplied by 1000, a "checklist done" record
-// forged with a fresh hash but no signature) makes run refuse, naming the
-// record, before anything is said or asked.
+// the kill (a dark reading multiplied by 1000), a record deleted, the
+// signed head deleted make run refuse, naming the record, before anything
+// is said or asked. (Records cut from the end are refused earlier, when
+// the journal is opened: its high-water mark names them.)
 func TestResumeRefusesTamperedJournal(t *testing.T) {
 	for _, tc := range []struct {
 		name, sql, want string
 	}{
 		{"dark edited", `UPDATE records SET payload = replace(payload, '\"l\":', '\"l\":1000') WHERE kind = 'event' AND payload LIKE '%measurement_done%'`, "hash mismatch"},
 		{"record deleted", `DELETE FROM records WHERE seq = 5`, "missing"},
-		{"last record cut", `DELETE FROM records WHERE seq = (SELECT max(seq) FROM records)`, "signed head"},
+		{"head deleted", `DELETE FROM heads`, "no signed session head"},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			dir := t.TempDir()

@@ -403,6 +403,7 @@ func TestWorkstationRefusesTamperedJournal(t *testing.T) {
 	j := board(t, dir, 1, 3, false)
 	j.Close()
 	src, _ := os.ReadFile(filepath.Join(dir, "journal.db"))
+	mark, _ := os.ReadFile(journal.MarkPath(filepath.Join(dir, "journal.db")))
 	for _, c := range []struct{ name, sql, want string }{
 		{"edit a value", `UPDATE records SET payload = replace(payload, '21.5', '25.5') WHERE seq = 5`, "record 5"},
 		{"delete a record", `DELETE FROM records WHERE seq = 9`, "missing"},
@@ -413,6 +414,7 @@ func TestWorkstationRefusesTamperedJournal(t *testing.T) {
 		t.Run(c.name, func(t *testing.T) {
 			cp := filepath.Join(t.TempDir(), "copy.db")
 			os.WriteFile(cp, src, 0o600)
+			os.WriteFile(journal.MarkPath(cp), mark, 0o600)
 			db, err := sql.Open("sqlite", cp)
 			if err != nil {
 				t.Fatal(err)
