@@ -263,9 +263,9 @@ func (t *dialogue) ask(p panel.Prompt) {
 	if p.Action == panel.ActCheck {
 		kind = "check"
 	}
-	text := p.Text
-	if p.Step > 0 && p.Of > 0 {
-		text = fmt.Sprintf("[%d/%d] %s", p.Step, p.Of, text)
+	text := p.Spoken()
+	if p.Tasks > 0 && p.Task > 0 {
+		text = fmt.Sprintf("[%d/%d] %s", p.Task, p.Tasks, text)
 	}
 	t.line(kind, text)
 }

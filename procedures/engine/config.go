@@ -50,9 +50,13 @@ type Step struct {
 	ID        string
 	Kind      StepKind
 	Procedure string // the (included) procedure the step comes from
-	FieldMode string
-	Text      string
-	Setup     map[string]string // machine-readable bench state, passed in panel.Prompt.Setup
+	// Part and PartTitle name the part of a sequence the step belongs to
+	// (the top-level include: "cf", "Conversion factor in each field
+	// mode"); empty for the sequence's own steps.
+	Part, PartTitle string
+	FieldMode       string
+	Text            string
+	Setup           map[string]string // machine-readable bench state, passed in panel.Prompt.Setup
 
 	Items  []string // checklist lines
 	Safety bool     // a pre-exposure safety checklist

@@ -22,8 +22,9 @@ var (
 
 // Engine runs one session.
 type Engine struct {
-	cfg Config
-	st  *state
+	cfg  Config
+	st   *state
+	prog progress
 }
 
 // New checks cfg and returns an engine ready to Run.
@@ -62,7 +63,7 @@ func New(cfg Config) (*Engine, error) {
 		steps[i].FieldMode = resolveMode(cfg.FieldModes, steps[i].FieldMode)
 	}
 	cfg.Procedure.Steps = steps
-	return &Engine{cfg: cfg}, nil
+	return &Engine{cfg: cfg, prog: newProgress(cfg.Procedure, cfg.Limits)}, nil
 }
 
 // Run walks the procedure until it is done, aborted, paused or stopped

@@ -16,7 +16,7 @@ func FromFlat(f *script.Flat) Procedure {
 	}
 	for _, fs := range f.Steps {
 		s := fs.Step
-		st := Step{ID: fs.ID, Procedure: fs.Procedure, FieldMode: fs.FieldMode, Text: s.Text, Setup: s.Setup.Map()}
+		st := Step{ID: fs.ID, Procedure: fs.Procedure, Part: fs.Part, PartTitle: fs.PartTitle, FieldMode: fs.FieldMode, Text: s.Text, Setup: s.Setup.Map()}
 		switch s.Kind {
 		case script.KindSay:
 			st.Kind = Announce

@@ -107,7 +107,7 @@ func (e *Engine) run(ctx context.Context) (Summary, error) {
 		if first < n {
 			_ = e.journal(ctx, entry.KindStep, entry.Step{Index: first + 1, Of: n, ID: steps[first].ID, Kind: string(steps[first].Kind), FieldMode: steps[first].FieldMode, State: entry.StepResumed})
 		}
-		text := fmt.Sprintf("Resuming %s at step %d of %d.", where, min(first+1, n), n)
+		text := fmt.Sprintf("Resuming %s at step %d of %d.", where, e.prog.taskAt(first), e.prog.tasks)
 		if recheck != "" {
 			text += " " + recheck
 		}
@@ -115,7 +115,7 @@ func (e *Engine) run(ctx context.Context) (Summary, error) {
 			return e.finish(ctx, sum, err)
 		}
 	} else {
-		if err := e.say(ctx, 0, panel.Message{Text: fmt.Sprintf("Starting %s: %d steps. Caution: X-rays are dangerous. Follow your local rules and your radiation safety officer.", title, n), Level: panel.Info}); err != nil {
+		if err := e.say(ctx, 0, panel.Message{Text: e.opening(title), Level: panel.Info}); err != nil {
 			return e.finish(ctx, sum, err)
 		}
 	}
@@ -133,6 +133,9 @@ func (e *Engine) run(ctx context.Context) (Summary, error) {
 	}
 	_ = cfg.Panel.Indicate(ctx, panel.Ready)
 
+	// Each part of a sequence is introduced once, at its first step
+	// (not again after a retake into it, nor when resumed inside it).
+	introduced := map[int]bool{}
 	i := first
 	for i < n {
 		if st.done[i+1] {
@@ -141,6 +144,12 @@ func (e *Engine) run(ctx context.Context) (Summary, error) {
 		}
 		step := steps[i]
 		idx := i + 1
+		if k := e.prog.part[i]; k > 0 && !introduced[k] && (i == 0 || e.prog.part[i-1] != k) {
+			introduced[k] = true
+			if err := e.say(ctx, idx, panel.Message{Text: e.partIntro(i), Level: panel.Info}); err != nil {
+				return e.finish(ctx, sum, err)
+			}
+		}
 		rec := entry.Step{Index: idx, Of: n, ID: step.ID, Kind: string(step.Kind), FieldMode: step.FieldMode, State: entry.StepStarted}
 		if err := e.journal(ctx, entry.KindStep, rec); err != nil {
 			return e.finish(ctx, sum, err)
@@ -169,7 +178,7 @@ func (e *Engine) run(ctx context.Context) (Summary, error) {
 					}
 				}
 			}
-			_ = e.say(ctx, j+1, panel.Message{Text: fmt.Sprintf("Retaking step %d of %d.", j+1, n), Level: panel.Retry})
+			_ = e.say(ctx, j+1, panel.Message{Text: fmt.Sprintf("Retaking step %d of %d.", e.prog.taskAt(j), e.prog.tasks), Level: panel.Retry})
 			i = j
 			continue
 		default:
@@ -402,6 +411,7 @@ func (e *Engine) ask(ctx context.Context, p panel.Prompt) (panel.Response, error
 	if p.Of == 0 {
 		p.Of = len(e.cfg.Procedure.Steps)
 	}
+	e.withProgress(&p)
 	if p.Next == "" {
 		p.Next = e.nextText(p.Step)
 	}
@@ -492,6 +502,7 @@ func (e *Engine) doStep(ctx context.Context, idx int, s Step) error {
 		for k, item := range s.Items {
 			p := base
 			p.Message = panel.Message{Text: item, Level: panel.Info, Action: panel.ActCheck}
+			p.Line, p.Lines = k+1, len(s.Items)
 			if s.Safety {
 				p.Message.Setup = map[string]string{"checklist": "pre-exposure", "item": fmt.Sprint(k + 1)}
 			}

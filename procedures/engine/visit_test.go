@@ -1,6 +1,7 @@
 package engine
 
 import (
+	"fmt"
 	"strings"
 	"testing"
 	"time"
@@ -226,5 +227,60 @@ func TestSpokenResultsAndVerdicts(t *testing.T) {
 				t.Errorf("verdict by ear\n got %q\nwant %q", got, tc.vEar)
 			}
 		}
+	}
+}
+
+// Progress by ear: the start says the parts, exposures, time and beam-on
+// budget; each part says what it takes and what is left after it; a
+// checklist says its line numbers; the step count is the operator's own,
+// silent computations not counted.
+func TestProgressByEar(t *testing.T) {
+	v := runBuiltinOnSimulator(t, room2, "acceptance", room2Values)
+	msgs := v.pan.Messages()
+	if len(msgs) == 0 || !strings.HasPrefix(msgs[0].Text, "Starting Acceptance") {
+		t.Fatalf("no opening message")
+	}
+	open := msgs[0].Text
+	for _, want := range []string{"7 parts", "exposures", "minutes", "Beam-on budget"} {
+		if !strings.Contains(open, want) {
+			t.Errorf("opening %q lacks %q", open, want)
+		}
+	}
+	parts := 0
+	for _, m := range msgs {
+		if strings.HasPrefix(m.Text, "Part ") {
+			parts++
+			if !strings.Contains(m.Text, fmt.Sprintf("Part %d of 7: ", parts)) || !(strings.Contains(m.Text, "After it:") || strings.Contains(m.Text, "last part")) {
+				t.Errorf("part intro %q", m.Text)
+			}
+		}
+	}
+	if parts != 7 {
+		t.Errorf("%d part intros, want 7", parts)
+	}
+	computes := 0
+	for _, s := range v.proc.Steps {
+		if s.Kind == Compute || s.Kind == Judge || s.Kind == Announce {
+			computes++
+		}
+	}
+	lines, last := 0, 0
+	for _, p := range v.pan.Prompts() {
+		if p.Tasks == 0 || p.Tasks != len(v.proc.Steps)-computes {
+			t.Fatalf("prompt %q: %d operator steps, want %d of %d steps without the silent ones", p.Text, p.Tasks, len(v.proc.Steps)-computes, len(v.proc.Steps))
+		}
+		if p.Task < last || p.Task > p.Tasks {
+			t.Errorf("prompt %q: step %d after %d of %d", p.Text, p.Task, last, p.Tasks)
+		}
+		last = p.Task
+		if p.Action == panel.ActCheck {
+			lines++
+			if want := fmt.Sprintf("Line %d of 4. ", lines); p.Lines != 4 || !strings.HasPrefix(p.Spoken(), want) {
+				t.Errorf("checklist line said %q, want it to start %q", p.Spoken(), want)
+			}
+		}
+	}
+	if lines != 4 {
+		t.Errorf("%d checklist lines", lines)
 	}
 }

@@ -13,6 +13,7 @@ package panel
 import (
 	"context"
 	"errors"
+	"fmt"
 	"time"
 )
 
@@ -66,6 +67,24 @@ type Prompt struct {
 	StepID   string // the step's id in the procedure
 	Next     string // what comes next, for the progress line
 	Value    *ValueRequest
+	// Progress for the ear and the eye: the operator's own step Task of
+	// Tasks (the steps that ask something; silent computations are not
+	// counted), the part Part of Parts of a sequence with its title, and
+	// for a checklist the line Line of Lines. Zero when not known.
+	Task, Tasks int
+	Part, Parts int
+	PartTitle   string
+	Line, Lines int
+}
+
+// Spoken is what a speaking panel says for the prompt: its words, after
+// the line number of a checklist line ("Line 2 of 4. Door warning light
+// on."), so a list heard line by line says where it stands.
+func (p Prompt) Spoken() string {
+	if p.Lines > 1 && p.Line > 0 {
+		return fmt.Sprintf("Line %d of %d. %s", p.Line, p.Lines, p.Text)
+	}
+	return p.Text
 }
 
 // Answer is how the operator answered a prompt.

@@ -80,6 +80,9 @@ func Flatten(p *Procedure, env Env) (*Flat, error) {
 	for i := range x.steps {
 		x.steps[i].Index = i + 1
 		x.steps[i].Of = len(x.steps)
+		if part, _, ok := strings.Cut(x.steps[i].ID, "/"); ok {
+			x.steps[i].Part, x.steps[i].PartTitle = part, x.partTitles[part]
+		}
 	}
 	return &Flat{Procedure: p, BeamBudget: p.BeamBudget, Steps: x.steps}, nil
 }
@@ -182,14 +185,16 @@ type expander struct {
 	steps  []FlatStep
 	byID   map[string]int
 	// origin maps a flat id to the written step it came from.
-	origin    map[string]*Step
-	checked   map[*Procedure]bool
-	included  map[string]bool
-	stack     []string
-	entered   map[string]bool
-	safetyAt  *Pos
-	safetyAll []Pos // every safety checklist, for the "comes later" hint
-	earlyBeam []Pos // beam steps before any safety checklist
+	origin   map[string]*Step
+	checked  map[*Procedure]bool
+	included map[string]bool
+	stack    []string
+	entered  map[string]bool
+	// partTitles are the titles of the top-level includes, by include id.
+	partTitles map[string]string
+	safetyAt   *Pos
+	safetyAll  []Pos // every safety checklist, for the "comes later" hint
+	earlyBeam  []Pos // beam steps before any safety checklist
 }
 
 func newExpander(env Env, forRun bool) *expander {
@@ -198,7 +203,7 @@ func newExpander(env Env, forRun bool) *expander {
 		res = &DefaultResolver{}
 	}
 	return &expander{env: env, res: res, forRun: forRun, byID: map[string]int{}, origin: map[string]*Step{},
-		checked: map[*Procedure]bool{}, included: map[string]bool{}, entered: map[string]bool{}}
+		checked: map[*Procedure]bool{}, included: map[string]bool{}, entered: map[string]bool{}, partTitles: map[string]string{}}
 }
 
 func (x *expander) errf(p Pos, format string, args ...any) {
@@ -386,6 +391,9 @@ func (x *expander) include(p *Procedure, prefix string, s *Step) time.Duration {
 		return 0
 	}
 	x.included[inc.Name] = true
+	if prefix == "" {
+		x.partTitles[s.ID] = inc.Title
+	}
 	x.stack = append(x.stack, inc.Name)
 	defer func() { x.stack = x.stack[:len(x.stack)-1] }()
 	return x.proc(inc, prefix+s.ID+"/")

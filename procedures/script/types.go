@@ -380,7 +380,12 @@ type FlatStep struct {
 	ID        string // stable: include path, step id and field mode ("cf/light@32 cm")
 	FieldMode string // empty outside per_field_mode
 	Procedure string // name of the procedure the step was written in
-	Step      Step
+	// Part is the id of the top-level include the step comes from (the
+	// part of a sequence such as acceptance: "cf" of "cf/light@32 cm"),
+	// and PartTitle that procedure's title; both empty for the steps
+	// written in the top-level procedure itself.
+	Part, PartTitle string
+	Step            Step
 }
 
 // MaxBeam returns the longest beam-on time the step may use (0 for a step

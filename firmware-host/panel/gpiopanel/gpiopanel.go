@@ -246,9 +246,9 @@ func (p *Panel) Ask(ctx context.Context, pr panel.Prompt) (panel.Response, error
 // prompt the default a press will accept.
 func spokenPrompt(pr panel.Prompt) string {
 	if v := pr.Value; v != nil && v.HasDef {
-		return fmt.Sprintf("%s %g %s. Press to accept.", pr.Text, v.Default, v.Unit)
+		return fmt.Sprintf("%s %g %s. Press to accept.", pr.Spoken(), v.Default, v.Unit)
 	}
-	return pr.Text
+	return pr.Spoken()
 }
 
 // ledPattern is which LEDs are lit for each indicator.

@@ -195,11 +195,26 @@ func (p *Panel) isClosed() bool {
 
 // Progress is the progress line of a prompt: "step 5 of 31 — next: lead
 // disk", or "" when the prompt carries no progress.
+//
+// The step counted is the operator's own (silent computations are not
+// counted) when the prompt carries it, with the part of a sequence and the
+// line of a checklist: "part 4 of 7, Conversion factor in each field mode;
+// step 12 of 41 — next: ...", "step 2 of 41, line 3 of 4".
 func Progress(pr panel.Prompt) string {
-	if pr.Of <= 0 {
+	step, of := pr.Step, pr.Of
+	if pr.Tasks > 0 {
+		step, of = pr.Task, pr.Tasks
+	}
+	if of <= 0 {
 		return ""
 	}
-	s := fmt.Sprintf("step %d of %d", pr.Step, pr.Of)
+	s := fmt.Sprintf("step %d of %d", step, of)
+	if pr.Lines > 1 && pr.Line > 0 {
+		s += fmt.Sprintf(", line %d of %d", pr.Line, pr.Lines)
+	}
+	if pr.Parts > 1 && pr.Part > 0 {
+		s = fmt.Sprintf("part %d of %d, %s; ", pr.Part, pr.Parts, pr.PartTitle) + s
+	}
 	if pr.Next != "" {
 		s += " — next: " + pr.Next
 	}
@@ -228,7 +243,7 @@ func (p *Panel) Ask(ctx context.Context, pr panel.Prompt) (panel.Response, error
 	}
 	p.line(l.tag, l.color, pr.Text)
 	if p.opt.Voice != nil {
-		p.opt.Voice.Say(speech.ForEar(pr.Text), pr.Level == panel.Alarm)
+		p.opt.Voice.Say(speech.ForEar(pr.Spoken()), pr.Level == panel.Alarm)
 	}
 	v := pr.Value
 	if v == nil {
