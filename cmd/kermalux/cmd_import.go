@@ -1,3 +1,5 @@
+//go:build !board
+
 package main
 
 import (
@@ -8,17 +10,20 @@ import (
 
 	"kermalux/firmware-host/journal/store"
 	"kermalux/firmware-host/journal/transfer"
+	"kermalux/firmware-host/journal/transfer/receive"
 )
 
 func init() {
-	var path string
+	var target string
 	cmd := &cobra.Command{
-		Use:   "import --store PATH FILE",
+		Use:   "import --store STORE FILE",
 		Short: "Apply a bundle written by 'kermalux bundle' to the workstation store",
-		Long: `import checks a bundle (its closing signature, every batch's signature and
-chain, the board enrolled, continuity with what is stored) and stores it in one
+		Long: `import reads a bundle as a stream and checks it (the board enrolled and not
+revoked, every segment's signed head and hash chain, continuity with what is
+stored, the closing signature over all segments) and stores it in one
 transaction: a bundle with anything wrong stores nothing and the error names
-the line. Records already stored are skipped, so importing twice is harmless.`,
+the segment and record. Records already stored are skipped, so importing twice
+is harmless. STORE is an SQLite file or a postgres:// URL.`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			f, err := os.Open(args[0])
@@ -26,16 +31,17 @@ the line. Records already stored are skipped, so importing twice is harmless.`,
 				return withCode(exitFailure, err)
 			}
 			defer f.Close()
-			b, err := transfer.ReadBundle(f, args[0])
-			if err != nil {
-				return withCode(exitFailure, err)
+			var size int64
+			if fi, err := f.Stat(); err == nil {
+				size = fi.Size()
 			}
-			st, err := store.Open(path)
+			st, err := store.Open(target)
 			if err != nil {
 				return withCode(exitFailure, err)
 			}
 			defer st.Close()
-			sum, err := transfer.Import(cmd.Context(), st, b, args[0], transfer.NewProgress(os.Stderr, b.Records, "import"))
+			prog := transfer.NewProgress(os.Stderr, size/40, "import") // about 40 bytes a record
+			sum, err := receive.Import(cmd.Context(), st, f, args[0], prog)
 			if err != nil {
 				return withCode(exitFailure, err)
 			}
@@ -43,7 +49,7 @@ the line. Records already stored are skipped, so importing twice is harmless.`,
 			return nil
 		},
 	}
-	cmd.Flags().StringVar(&path, "store", "", "workstation store file")
+	cmd.Flags().StringVar(&target, "store", "", "workstation store: SQLite file or postgres:// URL")
 	_ = cmd.MarkFlagRequired("store")
 	register(cmd)
 }

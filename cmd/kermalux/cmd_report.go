@@ -86,7 +86,7 @@ Files are written to DIR as report-<serial>-<date>-<session>.html, .pdf,
 		},
 	}
 	f := cmd.Flags()
-	f.StringVar(&storePath, "store", "", "workstation store file")
+	f.StringVar(&storePath, "store", "", "workstation store: SQLite file or postgres:// URL")
 	f.StringVar(&session, "session", "", "session id")
 	f.StringVar(&serial, "serial", "", "intensifier serial number: report its sessions")
 	f.BoolVar(&latest, "latest", false, "with --serial: only the newest session")

@@ -80,7 +80,7 @@ one JSON document, instead of the table.`,
 		},
 	}
 	f := cmd.Flags()
-	f.StringVar(&storePath, "store", "", "workstation store file")
+	f.StringVar(&storePath, "store", "", "workstation store: SQLite file or postgres:// URL")
 	f.StringVar(&quantity, "quantity", "conversion_factor", "result quantity: conversion_factor, contrast_ratio, non_uniformity, input_kerma_rate, ...")
 	f.StringVar(&mode, "field-mode", "", "only this field mode")
 	f.StringVar(&plot, "plot", "", "write the chart to FILE.png or FILE.svg")

@@ -287,24 +287,6 @@ func TestAppendAll(t *testing.T) {
 	}
 }
 
-// TestBatchEncodeJSON: the hand-written batch encoder gives the bytes
-// encoding/json gives (the reference encoder).
-func TestBatchEncodeJSON(t *testing.T) {
-	ctx := context.Background()
-	j := openTest(t, t.TempDir())
-	defer j.Close()
-	id, _ := j.Begin(ctx, journaltest.Session(0))
-	journaltest.WriteSession(ctx, j, id, 2, true, nil)
-	b, err := j.NextBatch(ctx, id, 0, 0)
-	if err != nil {
-		t.Fatal(err)
-	}
-	want, _ := json.Marshal(b)
-	if got := b.EncodeJSON(); !bytes.Equal(got, want) {
-		t.Errorf("EncodeJSON differs from json.Marshal:\n got %.300s\nwant %.300s", got, want)
-	}
-}
-
 func TestWriteJSONString(t *testing.T) {
 	for _, s := range []string{"", "plain-id_09:.Z", "quote\"back\\slash", "<&>", "tab\there", "µGy/s", "\u2028", "del\x7f", "bad\xffutf8"} {
 		var b bytes.Buffer

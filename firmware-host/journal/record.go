@@ -19,12 +19,11 @@ import (
 const HashSize = sha256.Size
 
 // Signature domains: each signed message starts with one of these so that a
-// signature made for one purpose can never be replayed as another.
+// signature made for one purpose can never be replayed as another (the sync
+// stream's segment and bundle domains are in package transfer/wire).
 const (
 	recordDomain = "kermalux record v1\x00"
 	headDomain   = "kermalux head v1\x00"
-	batchDomain  = "kermalux batch v1\x00"
-	bundleDomain = "kermalux bundle v1\x00"
 )
 
 // WallFormat is how wall times are written in records: RFC 3339 with

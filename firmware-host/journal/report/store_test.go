@@ -16,6 +16,7 @@ import (
 	"kermalux/drivers/clock"
 	"kermalux/firmware-host/journal"
 	"kermalux/firmware-host/journal/store"
+	"kermalux/firmware-host/journal/transfer/wire"
 	"kermalux/procedures/entry"
 )
 
@@ -85,15 +86,25 @@ func buildStore(tb testing.TB, dir string, intensifiers, years int) string {
 	if err := st.Enroll(ctx, j.PublicKey(), "bench board"); err != nil {
 		tb.Fatal(err)
 	}
-	var batches []*journal.Batch
+	tx, err := st.Begin(ctx)
+	if err != nil {
+		tb.Fatal(err)
+	}
+	defer tx.Rollback()
 	for _, id := range ids {
-		b, err := j.NextBatch(ctx, id, 0, 100000)
+		recs, err := j.Records(ctx, id, 0, 0)
 		if err != nil {
 			tb.Fatal(err)
 		}
-		batches = append(batches, b)
+		seg, err := wire.Seal(j, st.ID(), recs)
+		if err != nil {
+			tb.Fatal(err)
+		}
+		if _, err := tx.Apply(ctx, seg, store.ApplyOptions{}); err != nil {
+			tb.Fatal(err)
+		}
 	}
-	if _, err := st.ApplyAll(ctx, batches, store.ApplyOptions{}); err != nil {
+	if err := tx.Commit(); err != nil {
 		tb.Fatal(err)
 	}
 	return path

@@ -5,6 +5,7 @@ import (
 	"encoding/json"
 	"fmt"
 	"math/rand/v2"
+	"path/filepath"
 	"testing"
 	"time"
 
@@ -23,7 +24,7 @@ func fillFixture(b *testing.B, st *Store, intensifiers, years int) {
 	}
 	defer tx.Rollback()
 	board := fmt.Sprintf("%064x", 1)
-	tx.Exec(`INSERT INTO boards VALUES (?, 'bench', '2026-01-01T00:00:00Z')`, board)
+	tx.Exec(`INSERT INTO boards(key, name, enrolled) VALUES (?, 'bench', '2026-01-01T00:00:00Z')`, board)
 	sess, _ := tx.Prepare(`INSERT INTO sessions(id, board, site, room, model, serial, started_ns, payload, high, head, ended, received) VALUES (?,?,?,?,?,?,?,?,?,?,1,'')`)
 	res, _ := tx.Prepare(`INSERT INTO results VALUES (?,?,?,?,?,?,?,?,?)`)
 	quantities := []string{"conversion_factor", "non_uniformity", "contrast_ratio", "input_kerma_rate"}
@@ -85,4 +86,14 @@ func BenchmarkQueries(b *testing.B) {
 			}
 		}
 	})
+}
+
+func openStore(t testing.TB) *Store {
+	t.Helper()
+	st, err := Open(filepath.Join(t.TempDir(), "store.db"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(func() { st.Close() })
+	return st
 }

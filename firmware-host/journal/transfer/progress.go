@@ -14,10 +14,14 @@ type Progress interface {
 	Finish()
 }
 
-type silent struct{}
+// Silent is a Progress that shows nothing.
+type Silent struct{}
 
-func (silent) Add(int) {}
-func (silent) Finish() {}
+// Add implements Progress.
+func (Silent) Add(int) {}
+
+// Finish implements Progress.
+func (Silent) Finish() {}
 
 type bar struct{ b *progressbar.ProgressBar }
 
@@ -28,7 +32,7 @@ func (p bar) Finish()   { p.b.Finish() }
 // time left) when f is a terminal, and a silent Progress otherwise.
 func NewProgress(f *os.File, total int64, what string) Progress {
 	if f == nil || total <= 0 || !isTerminal(f) {
-		return silent{}
+		return Silent{}
 	}
 	return bar{progressbar.NewOptions64(total,
 		progressbar.OptionSetWriter(f),

@@ -1,0 +1,323 @@
+// Package receive is the workstation's side of sync: the HTTP receiver
+// that stores what enrolled boards push, and the import of bundle files.
+// Both read the wire format as a stream, segment by segment: memory stays
+// bounded whatever a sender sends, and an unenrolled or revoked board is
+// refused from the stream's first bytes.
+package receive
+
+import (
+	"context"
+	"crypto/tls"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io"
+	"log/slog"
+	"net"
+	"net/http"
+	"strconv"
+	"time"
+
+	"kermalux/firmware-host/journal/store"
+	"kermalux/firmware-host/journal/transfer"
+	"kermalux/firmware-host/journal/transfer/wire"
+)
+
+// Limits of the receiver: none can be switched off, only set.
+const (
+	DefaultConcurrent = 8       // pushes served at once; more wait for a slot, then are told to retry
+	DefaultMaxBody    = 1 << 30 // compressed bytes of one push (about ten million readings)
+	slotWait          = 5 * time.Second
+)
+
+// Options configure the handler.
+type Options struct {
+	Log        *slog.Logger // nil: slog.Default()
+	Concurrent int          // default DefaultConcurrent
+	MaxBody    int64        // default DefaultMaxBody
+}
+
+// Handler serves the sync protocol over st.
+func Handler(st *store.Store, opts Options) http.Handler {
+	if opts.Log == nil {
+		opts.Log = slog.Default()
+	}
+	if opts.Concurrent <= 0 {
+		opts.Concurrent = DefaultConcurrent
+	}
+	if opts.MaxBody <= 0 {
+		opts.MaxBody = DefaultMaxBody
+	}
+	h := &handler{st: st, opts: opts, slots: make(chan struct{}, opts.Concurrent)}
+	mux := http.NewServeMux()
+	mux.HandleFunc("POST "+wire.PathMarks, h.marks)
+	mux.HandleFunc("POST "+wire.PathPush, h.push)
+	return mux
+}
+
+type handler struct {
+	st    *store.Store
+	opts  Options
+	slots chan struct{}
+}
+
+// acquire takes a slot or answers 503.
+func (h *handler) acquire(w http.ResponseWriter, r *http.Request) bool {
+	t := time.NewTimer(slotWait)
+	defer t.Stop()
+	select {
+	case h.slots <- struct{}{}:
+		return true
+	case <-t.C:
+	case <-r.Context().Done():
+	}
+	w.Header().Set("Retry-After", "2")
+	refuse(w, http.StatusServiceUnavailable, "busy", fmt.Sprintf("the receiver is serving %d pushes; try again shortly", h.opts.Concurrent))
+	return false
+}
+
+func (h *handler) release() { <-h.slots }
+
+func (h *handler) marks(w http.ResponseWriter, r *http.Request) {
+	if !h.acquire(w, r) {
+		return
+	}
+	defer h.release()
+	body, err := io.ReadAll(http.MaxBytesReader(w, r.Body, wire.MaxMarksBody))
+	if err != nil {
+		var mbe *http.MaxBytesError
+		if errors.As(err, &mbe) {
+			refuse(w, http.StatusRequestEntityTooLarge, "too_large", fmt.Sprintf("marks request over %d bytes", wire.MaxMarksBody))
+			return
+		}
+		refuse(w, http.StatusBadRequest, "malformed", fmt.Sprintf("marks request cut short: %v", err))
+		return
+	}
+	var req wire.MarksRequest
+	if err := json.Unmarshal(body, &req); err != nil {
+		refuse(w, http.StatusBadRequest, "malformed", fmt.Sprintf("marks request: %v", err))
+		return
+	}
+	if len(req.Sessions) > wire.MaxMarksSessions {
+		refuse(w, http.StatusBadRequest, "malformed", fmt.Sprintf("marks request for %d sessions, at most %d", len(req.Sessions), wire.MaxMarksSessions))
+		return
+	}
+	if _, err := store.ParseKey(req.Board); err != nil {
+		refuse(w, http.StatusBadRequest, "malformed", err.Error())
+		return
+	}
+	marks, err := h.st.Marks(r.Context(), req.Board, req.Sessions)
+	if err != nil {
+		h.storeError(w, r, err)
+		return
+	}
+	writeJSON(w, http.StatusOK, wire.MarksResponse{Store: h.st.ID(), Marks: marks})
+}
+
+func (h *handler) push(w http.ResponseWriter, r *http.Request) {
+	if !h.acquire(w, r) {
+		return
+	}
+	defer h.release()
+	body := http.MaxBytesReader(w, r.Body, h.opts.MaxBody)
+	rd, err := wire.ReadPreamble(body, "push")
+	if err != nil {
+		h.readError(w, r, err)
+		return
+	}
+	pre := rd.Preamble()
+	if pre.Kind != wire.KindPush {
+		refuse(w, http.StatusBadRequest, "malformed", "push: the stream is a bundle; import it with kermalux import")
+		return
+	}
+	// The board is checked before anything else is read.
+	if err := h.st.CheckBoard(r.Context(), pre.Board, r.RemoteAddr); err != nil {
+		h.storeError(w, r, err)
+		return
+	}
+	if pre.Audience != h.st.ID() {
+		h.storeError(w, r, fmt.Errorf("%w: the push is signed for store %q, this store is %q", store.ErrAudience, pre.Audience, h.st.ID()))
+		return
+	}
+	resp := wire.PushResponse{High: map[string]int64{}}
+	for {
+		seg, err := rd.Next()
+		if errors.Is(err, io.EOF) {
+			break
+		}
+		if err != nil {
+			h.readError(w, r, err)
+			return
+		}
+		a, err := h.st.Apply(r.Context(), seg, store.ApplyOptions{})
+		if err != nil {
+			h.storeError(w, r, fmt.Errorf("push: segment %d: %w", seg.Index, err))
+			return
+		}
+		resp.Stored += int64(a.Stored)
+		resp.Duplicates += int64(a.Duplicates)
+		resp.High[seg.Session] = a.High
+	}
+	segs, recs := rd.Counts()
+	h.opts.Log.Info("push stored", "board", pre.BoardHex()[:16], "from", r.RemoteAddr, "segments", segs, "records", recs, "stored", resp.Stored)
+	writeJSON(w, http.StatusOK, resp)
+}
+
+// readError answers a stream that does not decode: a record that does not
+// match its proof is refused (403, named); a cut or garbled body is 400.
+func (h *handler) readError(w http.ResponseWriter, r *http.Request, err error) {
+	var mbe *http.MaxBytesError
+	switch {
+	case errors.As(err, &mbe):
+		refuse(w, http.StatusRequestEntityTooLarge, "too_large", fmt.Sprintf("push over %d bytes; push again (it resumes)", h.opts.MaxBody))
+	case errors.Is(err, wire.ErrProof):
+		h.opts.Log.Warn("push refused", "from", r.RemoteAddr, "reason", err)
+		refuse(w, http.StatusForbidden, "refused", err.Error())
+	default:
+		refuse(w, http.StatusBadRequest, "malformed", err.Error())
+	}
+}
+
+func (h *handler) storeError(w http.ResponseWriter, r *http.Request, err error) {
+	code, kind := http.StatusInternalServerError, "internal"
+	switch {
+	case errors.Is(err, store.ErrNotEnrolled):
+		code, kind = http.StatusForbidden, "not_enrolled"
+	case errors.Is(err, store.ErrRevoked):
+		code, kind = http.StatusForbidden, "revoked"
+	case errors.Is(err, store.ErrAudience):
+		code, kind = http.StatusForbidden, "audience"
+	case errors.Is(err, store.ErrConflict):
+		code, kind = http.StatusForbidden, "conflict"
+	case errors.Is(err, store.ErrRefused):
+		code, kind = http.StatusForbidden, "refused"
+	case errors.Is(err, store.ErrReplay):
+		code, kind = http.StatusConflict, "replay"
+	case errors.Is(err, store.ErrGap):
+		code, kind = http.StatusConflict, "gap"
+	}
+	h.opts.Log.Warn("sync request refused", "from", r.RemoteAddr, "path", r.URL.Path, "status", code, "reason", err)
+	refuse(w, code, kind, err.Error())
+}
+
+func refuse(w http.ResponseWriter, code int, kind, reason string) {
+	if code >= 400 {
+		// Whatever is left of the body is not read: close the connection.
+		w.Header().Set("Connection", "close")
+	}
+	writeJSON(w, code, wire.Refusal{Error: kind, Reason: reason})
+}
+
+func writeJSON(w http.ResponseWriter, code int, v any) {
+	b, _ := json.Marshal(v)
+	w.Header().Set("Content-Type", "application/json")
+	w.Header().Set("Content-Length", strconv.Itoa(len(b)+1))
+	w.WriteHeader(code)
+	w.Write(append(b, '\n'))
+}
+
+// ServeOptions configure Serve.
+type ServeOptions struct {
+	Options
+	CertFile, KeyFile string              // both set: serve HTTPS
+	Ready             func(addr net.Addr) // called once listening
+}
+
+// Serve listens on addr and serves the sync protocol over st until ctx ends.
+func Serve(ctx context.Context, addr string, st *store.Store, opts ServeOptions) error {
+	ln, err := net.Listen("tcp", addr)
+	if err != nil {
+		return fmt.Errorf("listen on %s: %w", addr, err)
+	}
+	srv := &http.Server{Handler: Handler(st, opts.Options), ReadHeaderTimeout: 10 * time.Second, IdleTimeout: 2 * time.Minute,
+		MaxHeaderBytes: 64 << 10}
+	if opts.CertFile != "" || opts.KeyFile != "" {
+		cert, err := tls.LoadX509KeyPair(opts.CertFile, opts.KeyFile)
+		if err != nil {
+			ln.Close()
+			return fmt.Errorf("TLS certificate %s / key %s: %w", opts.CertFile, opts.KeyFile, err)
+		}
+		srv.TLSConfig = &tls.Config{Certificates: []tls.Certificate{cert}, MinVersion: tls.VersionTLS12}
+		ln = tls.NewListener(ln, srv.TLSConfig)
+	}
+	if opts.Ready != nil {
+		opts.Ready(ln.Addr())
+	}
+	errc := make(chan error, 1)
+	go func() { errc <- srv.Serve(ln) }()
+	select {
+	case <-ctx.Done():
+		sctx, cancel := context.WithTimeout(context.Background(), 5*time.Second)
+		defer cancel()
+		srv.Shutdown(sctx)
+		return nil
+	case err := <-errc:
+		return fmt.Errorf("serve %s: %w", addr, err)
+	}
+}
+
+// ImportSummary says what an import stored.
+type ImportSummary struct {
+	Segments   int64
+	Records    int64
+	Stored     int64
+	Duplicates int64
+}
+
+func (s ImportSummary) String() string {
+	return fmt.Sprintf("imported %d new records from %d segments (%d already stored)", s.Stored, s.Segments, s.Duplicates)
+}
+
+// Import reads a bundle from r as a stream and applies it to the store in
+// one transaction: every segment passes the same checks as a push (board
+// enrolled and not revoked, signed head, chain continuity with what is
+// stored), the closing signature over all segments holds, or nothing of
+// the bundle is stored. Segments already stored count as duplicates:
+// importing the same bundle twice stores nothing new. name labels errors.
+func Import(ctx context.Context, st *store.Store, r io.Reader, name string, prog transfer.Progress) (ImportSummary, error) {
+	var sum ImportSummary
+	if prog == nil {
+		prog = transfer.Silent{}
+	}
+	defer prog.Finish()
+	rd, err := wire.ReadPreamble(r, name)
+	if err != nil {
+		return sum, err
+	}
+	pre := rd.Preamble()
+	if pre.Kind != wire.KindBundle {
+		return sum, fmt.Errorf("%s: a push stream, not a bundle", name)
+	}
+	if err := st.CheckBoard(ctx, pre.Board, name); err != nil {
+		return sum, fmt.Errorf("%s: %w (nothing from this bundle was stored)", name, err)
+	}
+	if pre.Audience != "" && pre.Audience != st.ID() {
+		return sum, fmt.Errorf("%s: %w: the bundle was written for store %q, this store is %q (nothing from this bundle was stored)", name, store.ErrAudience, pre.Audience, st.ID())
+	}
+	tx, err := st.Begin(ctx)
+	if err != nil {
+		return sum, err
+	}
+	defer tx.Rollback()
+	for {
+		seg, err := rd.Next()
+		if errors.Is(err, io.EOF) {
+			break
+		}
+		if err != nil {
+			return ImportSummary{}, fmt.Errorf("%w (nothing from this bundle was stored)", err)
+		}
+		a, err := tx.Apply(ctx, seg, store.ApplyOptions{AnyAudience: true, SkipReplays: true})
+		if err != nil {
+			return ImportSummary{}, fmt.Errorf("%s: segment %d: %w (nothing from this bundle was stored)", name, seg.Index, err)
+		}
+		sum.Stored += int64(a.Stored)
+		sum.Duplicates += int64(a.Duplicates)
+		prog.Add(len(seg.Records))
+	}
+	sum.Segments, sum.Records = rd.Counts()
+	if err := tx.Commit(); err != nil {
+		return ImportSummary{}, fmt.Errorf("%s: %w", name, err)
+	}
+	return sum, nil
+}
