@@ -230,7 +230,8 @@ func TestLinesDeterministic(t *testing.T) {
 // FuzzCommands: no command makes a dialect panic or print a line with a
 // line end inside it.
 func FuzzCommands(f *testing.F) {
-	for _, c := range []string{"ID?", "RD?", "UNIT MR/S", "*IDN?", "READ?;SYST:ERR?", ":UNIT:KRAT MR/MIN", "STREAM 50", "STOP", "IDN", "\x00\xff"} {
+	for _, c := range []string{"ID?", "RD?", "UNIT MR/S", "*IDN?", "READ?;SYST:ERR?", ":UNIT:KRAT MR/MIN", "STREAM 50", "STOP", "IDN", "\x00\xff",
+		"*IDN?;*OPC?", "*ESE 36;*ESE?", "*SRE 300", "*RST 5", "UNIT:KRAT MR/S;KRAT?", "SYST:ERR:NEXT?", "'a;b';*STB?", "::X", ":"} {
 		f.Add(c)
 	}
 	b, clk := manualBench(f, "tollemby-rise-room2.yaml", nil)

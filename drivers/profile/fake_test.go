@@ -36,12 +36,13 @@ func load(t testing.TB, name string) *profile.Profile {
 // kr40 is a fake polled dosimeter speaking the KR-40 protocol: commands
 // end in CR, replies in CR LF.
 type kr40 struct {
-	mu    sync.Mutex
-	unit  string // as printed: uGy/s, mR/s, mR/min
-	reply string // when set, the RD? reply verbatim (framing included)
-	value float64
-	state string // OK, OVR, UND, ERR
-	mute  bool   // answer nothing (stalled meter)
+	mu     sync.Mutex
+	unit   string // as printed: uGy/s, mR/s, mR/min
+	reply  string // when set, the RD? reply verbatim (framing included)
+	value  float64
+	state  string // OK, OVR, UND, ERR
+	mute   bool   // answer nothing (stalled meter)
+	serial string // KR40-1187 when empty
 }
 
 func (k *kr40) set(f func(k *kr40)) {
@@ -58,7 +59,11 @@ func (k *kr40) handle(d *linetest.Device, cmd string) {
 	}
 	switch {
 	case cmd == "ID?":
-		d.Send("VELTRANE KR-40 SN=KR40-1187 FW=2.3\r\n")
+		sn := k.serial
+		if sn == "" {
+			sn = "KR40-1187"
+		}
+		d.Send("VELTRANE KR-40 SN=" + sn + " FW=2.3\r\n")
 	case cmd == "REMOTE":
 		d.Send("OK\r\n")
 	case strings.HasPrefix(cmd, "UNIT "):

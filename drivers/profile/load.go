@@ -98,6 +98,9 @@ func Parse(name string, data []byte) (*Profile, error) {
 	if name == "" {
 		name = "profile"
 	}
+	if len(data) > MaxFileSize {
+		return nil, &Error{File: name, Line: 1, Column: 1, Msg: fmt.Sprintf("%d bytes: a profile is at most %d bytes", len(data), MaxFileSize)}
+	}
 	file, err := parser.ParseBytes(data, 0)
 	if err != nil {
 		return nil, yamlError(name, err)
@@ -167,6 +170,24 @@ func kindName(t reflect.Type) string {
 	return t.Kind().String()
 }
 
+// Bounds of the profile format: every size and count is bounded, so no
+// profile can make kermalux hold more than a little memory or wait
+// unreasonably (issue: a longest_line of 2^34 exhausted memory at open).
+const (
+	MaxFileSize      = 64 << 10                // bytes of the file
+	MaxLongestLine   = serialline.MaxLineLimit // serial.longest_line, bytes
+	MaxCommand       = 256                     // a command sent (identify, setup, reading.send, start, stop)
+	MaxPattern       = 1024                    // a regular expression, bytes
+	MaxSetup         = 32                      // set-up exchanges
+	MaxUnits         = 16                      // units listed
+	MaxTokens        = 32                      // status tokens in each list
+	MaxToken         = 64                      // bytes of a status token
+	MaxSilentPeriods = 1000                    // reading.silent_periods
+	MaxName          = 128                     // name, maker, model
+	MaxDuration      = 10 * time.Minute        // reading.period and reading.reply_timeout
+	MinDuration      = time.Millisecond        // the same, from below
+)
+
 // checker turns the file form into a Profile, keeping the first error.
 type checker struct {
 	name string
@@ -221,12 +242,34 @@ func (c *checker) duration(key, s string, def time.Duration) time.Duration {
 		c.fail(key, "%q: expected a positive duration such as 500ms or 2s", s)
 		return def
 	}
+	if d < MinDuration || d > MaxDuration {
+		c.fail(key, "%q: expected %v to %v", s, MinDuration, MaxDuration)
+		return def
+	}
 	return d
+}
+
+// text checks the length of a string value.
+func (c *checker) text(key, s string, limit int) {
+	if len(s) > limit {
+		c.fail(key, "%d bytes: expected at most %d", len(s), limit)
+	}
+}
+
+// count checks the length of a list.
+func (c *checker) count(key string, n, limit int) {
+	if n > limit {
+		c.fail(key, "%d entries: expected at most %d", n, limit)
+	}
 }
 
 func (c *checker) regexp(key, s string, required ...string) *regexp.Regexp {
 	if s == "" {
 		c.fail(key, "missing: expected a regular expression")
+		return nil
+	}
+	if len(s) > MaxPattern {
+		c.fail(key, "%d bytes: expected a regular expression of at most %d", len(s), MaxPattern)
 		return nil
 	}
 	re, err := regexp.Compile(s)
@@ -245,6 +288,9 @@ func (c *checker) regexp(key, s string, required ...string) *regexp.Regexp {
 
 func (c *checker) build(fp *fileProfile) *Profile {
 	p := &Profile{Name: fp.Name, Maker: fp.Maker, Model: fp.Model}
+	c.text("name", fp.Name, MaxName)
+	c.text("maker", fp.Maker, MaxName)
+	c.text("model", fp.Model, MaxName)
 	if p.Name == "" {
 		p.Name = strings.TrimSpace(fp.Maker + " " + fp.Model)
 	}
@@ -280,8 +326,8 @@ func (c *checker) build(fp *fileProfile) *Profile {
 		}
 		*f.dst = fr
 	}
-	if s.LongestLine < 0 {
-		c.fail("serial.longest_line", "%d: expected a positive number of bytes", s.LongestLine)
+	if s.LongestLine < 0 || s.LongestLine > MaxLongestLine {
+		c.fail("serial.longest_line", "%d: expected 1 to %d bytes", s.LongestLine, MaxLongestLine)
 	}
 	probe := p.Line
 	probe.Port = "probe"
@@ -311,6 +357,7 @@ func (c *checker) build(fp *fileProfile) *Profile {
 		if id.Expect != "" {
 			c.fail("identify.expect", "not used here: give the reply pattern as identify.reply")
 		}
+		c.text("identify.send", id.Send, MaxCommand)
 		p.Identify = id.Send
 		p.IdentifyPattern = c.regexp("identify.reply", id.Reply)
 		if re := p.IdentifyPattern; re != nil {
@@ -323,8 +370,11 @@ func (c *checker) build(fp *fileProfile) *Profile {
 			}
 		}
 	}
+	c.count("setup", len(fp.Setup), MaxSetup)
 	for i, x := range fp.Setup {
 		key := fmt.Sprintf("setup[%d]", i)
+		c.text(key+".send", x.Send, MaxCommand)
+		c.text(key+".expect", x.Expect, serialline.MaxLineLimit)
 		if x.Send == "" {
 			c.fail(key+".send", "missing: expected a command to send")
 		}
@@ -346,6 +396,7 @@ func (c *checker) build(fp *fileProfile) *Profile {
 		if r.Start != nil || r.Stop != "" || r.SilentPeriods != 0 {
 			c.fail("reading", "start, stop and silent_periods are for mode: streaming")
 		}
+		c.text("reading.send", r.Send, MaxCommand)
 		p.Query = r.Send
 		// How often the meter updates its reading: it is not asked more
 		// often (asking faster returns the same value again, which would
@@ -356,14 +407,19 @@ func (c *checker) build(fp *fileProfile) *Profile {
 		if r.Send != "" {
 			c.fail("reading.send", "not used in mode: streaming (give the start command as reading.start.send)")
 		}
-		if r.Start == nil || r.Start.Send == "" {
-			c.fail("reading.start.send", "missing: a streaming meter needs its start command")
-		} else {
+		// A meter that streams unprompted has no start command.
+		if r.Start != nil {
+			if r.Start.Send == "" {
+				c.fail("reading.start.send", "missing: give the command that starts the stream, or leave reading.start out for a meter that streams by itself")
+			}
 			if r.Start.Reply != "" {
 				c.fail("reading.start.reply", "not used here: give the exact acknowledgement as expect")
 			}
+			c.text("reading.start.send", r.Start.Send, MaxCommand)
+			c.text("reading.start.expect", r.Start.Expect, serialline.MaxLineLimit)
 			p.Start = Exchange{Send: r.Start.Send, Expect: r.Start.Expect}
 		}
+		c.text("reading.stop", r.Stop, MaxCommand)
 		p.Stop = r.Stop
 		if r.Period == "" {
 			c.fail("reading.period", "missing: expected the streaming interval, such as 100ms")
@@ -372,8 +428,8 @@ func (c *checker) build(fp *fileProfile) *Profile {
 		p.SilentPeriods = r.SilentPeriods
 		if r.SilentPeriods == 0 {
 			p.SilentPeriods = 5
-		} else if r.SilentPeriods < 1 {
-			c.fail("reading.silent_periods", "%d: expected a whole number of periods, 1 or more", r.SilentPeriods)
+		} else if r.SilentPeriods < 1 || r.SilentPeriods > MaxSilentPeriods {
+			c.fail("reading.silent_periods", "%d: expected a whole number of periods, 1 to %d", r.SilentPeriods, MaxSilentPeriods)
 		}
 	case "":
 		c.fail("reading.mode", "missing: expected polled or streaming")
@@ -398,8 +454,11 @@ func (c *checker) build(fp *fileProfile) *Profile {
 		if p.unitIdx >= 0 && r.Unit != "" {
 			c.fail("reading.unit", "not used: the reply pattern has a (?P<unit>...) group")
 		}
-		if p.statusIdx >= 0 && len(fp.Status.OK) == 0 {
-			c.fail("status.ok", "missing: the reply pattern has a (?P<status>...) group, so list the tokens that mean ok")
+		// The status group may be optional in the pattern (a status word
+		// printed in place of the value or unit): absent means ok, so
+		// status.ok may be empty, but some token must be listed.
+		if p.statusIdx >= 0 && len(fp.Status.OK)+len(fp.Status.OverRange)+len(fp.Status.UnderRange)+len(fp.Status.Fault) == 0 {
+			c.fail("status", "missing: the reply pattern has a (?P<status>...) group, so list the tokens the meter prints (status.ok, status.over_range, ...)")
 		}
 		if p.statusIdx < 0 && (len(fp.Status.OK)+len(fp.Status.OverRange)+len(fp.Status.UnderRange)+len(fp.Status.Fault)) > 0 {
 			c.fail("status", "not used: the reply pattern has no (?P<status>...) group")
@@ -411,6 +470,7 @@ func (c *checker) build(fp *fileProfile) *Profile {
 	if len(fp.Units) == 0 {
 		c.fail("units", "missing: list the units the meter may print, such as [uGy/s]")
 	}
+	c.count("units", len(fp.Units), MaxUnits)
 	for i, u := range fp.Units {
 		if q, err := units.QuantityOf(u); err != nil || (p.Quantity != "" && q != p.Quantity) {
 			c.fail(fmt.Sprintf("units[%d]", i), "%q: expected a unit of %s (convertible to %s)", u, p.Quantity, units.Canonical(p.Quantity))
@@ -466,8 +526,10 @@ func (c *checker) build(fp *fileProfile) *Profile {
 		toks []string
 		st   drivers.Status
 	}{{"status.ok", fp.Status.OK, drivers.StatusOK}, {"status.over_range", fp.Status.OverRange, drivers.StatusOverRange}, {"status.under_range", fp.Status.UnderRange, drivers.StatusUnderRange}, {"status.fault", fp.Status.Fault, drivers.StatusFault}} {
+		c.count(g.key, len(g.toks), MaxTokens)
 		for i, tok := range g.toks {
 			key := g.key + "[" + strconv.Itoa(i) + "]"
+			c.text(key, tok, MaxToken)
 			if tok == "" {
 				c.fail(key, "empty status token")
 			}

@@ -73,6 +73,19 @@ func TestMalformed(t *testing.T) {
 		{"list for mapping", "serial:\n  baud: 9600\n  send_line_end: cr\n  receive_line_end: crlf", "serial: [9600]"},
 		{"empty file", minimal, ""},
 		{"streaming without period", "  mode: polled\n  send: \"RD?\"", "  mode: streaming\n  start:\n    send: GO"},
+		// Every size and count is bounded (issue 14, item 11: 2^34 for
+		// longest_line exhausted memory at open).
+		{"huge longest line", "  receive_line_end: crlf", "  receive_line_end: crlf\n  longest_line: 17179869184"},
+		{"longest line above the limit", "  receive_line_end: crlf", "  receive_line_end: crlf\n  longest_line: 65537"},
+		{"too many set-up commands", "reading:", "setup:\n" + strings.Repeat("  - {send: X}\n", 33) + "reading:"},
+		{"over-long command", "  send: \"RD?\"", "  send: \"" + strings.Repeat("R", 257) + "\""},
+		{"over-long pattern", `(?P<status>\S+)$`, `(?P<status>\S+)` + strings.Repeat("x?", 520) + `$`},
+		{"too many units", "units: [uGy/s]", "units: [" + strings.Repeat("uGy/s, ", 16) + "uGy/s]"},
+		{"too many status tokens", "over_range: [OVR]", "over_range: [" + strings.Repeat("O, ", 32) + "O]"},
+		{"over-long name", "name: Test meter", "name: " + strings.Repeat("n", 129)},
+		{"silent periods above the limit", "  mode: polled\n  send: \"RD?\"", "  mode: streaming\n  period: 100ms\n  silent_periods: 100000"},
+		{"period of a day", "  mode: polled", "  mode: polled\n  period: 24h"},
+		{"streaming start without send", "  mode: polled\n  send: \"RD?\"", "  mode: streaming\n  period: 100ms\n  start: {expect: ACK}"},
 	}
 	var golden strings.Builder
 	for _, tc := range cases {
@@ -230,5 +243,59 @@ func TestFormatExample(t *testing.T) {
 	}
 	if _, _, st, err := p.ParseLine("RD +1.2340E-01 uGy/s OK"); err != nil || st != drivers.StatusOK {
 		t.Errorf("example profile reads a meters.md line as %s, %v", st, err)
+	}
+}
+
+// A file larger than the format allows is refused before it is parsed.
+func TestProfileFileSizeBounded(t *testing.T) {
+	big := minimal + "# " + strings.Repeat("x", profile.MaxFileSize) + "\n"
+	_, err := profile.Parse("big.yaml", []byte(big))
+	var pe *profile.Error
+	if !errors.As(err, &pe) || pe.Line != 1 || !strings.Contains(err.Error(), "at most") {
+		t.Fatalf("got %v; want big.yaml:1:1 and the limit", err)
+	}
+}
+
+// A meter that streams unprompted needs no start command (issue:
+// reading.start was documented as optional but refused).
+func TestStreamingWithoutStart(t *testing.T) {
+	src := strings.Replace(minimal, "  mode: polled\n  send: \"RD?\"", "  mode: streaming\n  period: 100ms", 1)
+	p, err := profile.Parse("unprompted.yaml", []byte(src))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if p.Mode != profile.Streaming || p.Start.Send != "" {
+		t.Errorf("parsed %+v", p)
+	}
+}
+
+// A status word in place of the unit or the value is described with an
+// alternative in the pattern: the reading has that status and no value.
+func TestStatusWordInPlaceOfUnit(t *testing.T) {
+	src := strings.Replace(minimal, `'^RD (?P<value>\S+) (?P<unit>\S+) (?P<status>\S+)$'`,
+		`'^RD (?:(?P<value>[-+0-9.E]+) (?:(?P<unit>uGy/s)|(?P<status>OVER|UNDER))|(?P<status2>x)?(?P<status>OVER))$'`, 1)
+	if _, err := profile.Parse("status.yaml", []byte(src)); err == nil {
+		t.Fatal("a group named status2 accepted")
+	}
+	src = strings.Replace(minimal, `'^RD (?P<value>\S+) (?P<unit>\S+) (?P<status>\S+)$'`,
+		`'^RD (?P<value>[-+0-9.E]+) (?:(?P<unit>uGy/s)|(?P<status>OVER|UNDER))$'`, 1)
+	src = strings.Replace(src, "status:\n  ok: [OK]\n  over_range: [OVR]\n", "status:\n  over_range: [OVER]\n  under_range: [UNDER]\n", 1)
+	p, err := profile.Parse("status.yaml", []byte(src))
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, tc := range []struct {
+		line    string
+		st      drivers.Status
+		noValue bool
+	}{
+		{"RD +1.5E+00 uGy/s", drivers.StatusOK, false},
+		{"RD +9.9999E+02 OVER", drivers.StatusOverRange, true},
+		{"RD +0.0000E+00 UNDER", drivers.StatusUnderRange, true},
+	} {
+		v, u, st, err := p.ParseLine(tc.line)
+		if st != tc.st || errors.Is(err, profile.ErrNoValue) != tc.noValue || (!tc.noValue && (err != nil || v != 1.5 || u != "uGy/s")) {
+			t.Errorf("%q → %v %q %s %v; want %s (no value %v)", tc.line, v, u, st, err, tc.st, tc.noValue)
+		}
 	}
 }

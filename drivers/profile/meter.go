@@ -37,6 +37,10 @@ type Meter struct {
 	streaming bool          // the start command has been acknowledged
 	asked     bool          // a polled meter has been queried
 	lastAsk   time.Duration // when, on the meter's clock
+
+	id      drivers.Identity // the identity first seen on the link
+	idKnown bool
+	changed error // set when a reconnection found another meter
 }
 
 var (
@@ -90,12 +94,17 @@ func (m *Meter) prepare(ctx context.Context) error {
 	}
 	g := m.port.Generation()
 	if g == m.gen {
-		return nil
+		return m.changed
 	}
-	if m.gen != 0 {
+	again := m.gen != 0
+	if again {
 		m.reconnect = true
 		m.streaming = false
 		m.opts.Log.Info("meter reconnected", "meter", m.opts.Name, "port", m.port.Name(), "device", m.port.Device())
+	}
+	if err := m.checkIdentity(ctx, again); err != nil {
+		m.gen = g
+		return err
 	}
 	for _, x := range m.p.Setup {
 		if err := m.exchange(ctx, x); err != nil {
@@ -113,9 +122,43 @@ func (m *Meter) prepare(ctx context.Context) error {
 	return nil
 }
 
+// checkIdentity identifies the meter when the link opens (the identity
+// is kept) and after every reconnection, where another model or serial is
+// drivers.ErrMeterChanged naming both (kept until the next reconnection).
+// A profile without an identify command cannot tell meters apart.
+func (m *Meter) checkIdentity(ctx context.Context, again bool) error {
+	m.changed = nil
+	if m.p.Identify == "" {
+		return nil
+	}
+	id, err := m.identify(ctx)
+	if err != nil {
+		if again && m.idKnown {
+			return m.errorf("identifying the meter after the reconnection: %w", err)
+		}
+		m.opts.Log.Warn("meter does not identify", "meter", m.opts.Name, "port", m.port.Name(), "err", err)
+		return nil
+	}
+	if !m.idKnown {
+		m.id, m.idKnown = id, true
+		return nil
+	}
+	if id.Model != m.id.Model || id.Serial != m.id.Serial || id.Maker != m.id.Maker {
+		m.changed = m.errorf("%w: it identified as %s %s serial %s when the link opened, and now as %s %s serial %s", drivers.ErrMeterChanged,
+			m.id.Maker, m.id.Model, m.id.Serial, id.Maker, id.Model, id.Serial)
+		m.opts.Log.Error("another meter on the link", "meter", m.opts.Name, "port", m.port.Name(), "first", m.id.Raw, "now", id.Raw)
+		return m.changed
+	}
+	return nil
+}
+
 // exchange sends a command and waits for its exact reply, skipping lines
-// that are readings (a streaming meter may still be talking).
+// that are readings (a streaming meter may still be talking). An empty
+// command (a meter that streams unprompted) sends nothing.
 func (m *Meter) exchange(ctx context.Context, x Exchange) error {
+	if x.Send == "" {
+		return nil
+	}
 	if err := m.port.WriteLine(ctx, x.Send); err != nil {
 		return m.errorf("sending %q: %w", x.Send, err)
 	}
@@ -156,6 +199,15 @@ func (m *Meter) Identify(ctx context.Context) (drivers.Identity, error) {
 	if err := m.prepare(ctx); err != nil {
 		return id, err
 	}
+	id, err := m.identify(ctx)
+	if err == nil && !m.idKnown {
+		m.id, m.idKnown = id, true
+	}
+	return id, err
+}
+
+func (m *Meter) identify(ctx context.Context) (drivers.Identity, error) {
+	id := drivers.Identity{Maker: m.p.Maker, Model: m.p.Model}
 	if err := m.port.WriteLine(ctx, m.p.Identify); err != nil {
 		return id, m.errorf("sending %q: %w", m.p.Identify, err)
 	}
@@ -254,6 +306,11 @@ func (m *Meter) reading(l serialline.Line) (drivers.Reading, error) {
 	}
 	v, unit, st, err := m.p.ParseLine(l.Text)
 	r.RawValue, r.RawUnit = v, unit
+	if errors.Is(err, ErrNoValue) {
+		r.Status, r.NoValue, r.Unit = st, true, unitsCanonical(m.p)
+		m.reconnect = false
+		return r, nil
+	}
 	if err != nil {
 		m.dirty = true
 		return r, m.errorf("%w", err)

@@ -35,7 +35,8 @@ func ctx(t *testing.T) context.Context {
 func TestPolledIdentifyAndSetup(t *testing.T) {
 	_, d := newKR40(t)
 	m := openMeter(t, load(t, "veltrane-kr40.yaml"), d.Link(), "dosimeter")
-	if got, want := strings.Join(d.Commands(), ","), "REMOTE,UNIT UGY/S"; got != want {
+	// Identified first (kept, to compare after a reconnection), then set up.
+	if got, want := strings.Join(d.Commands(), ","), "ID?,REMOTE,UNIT UGY/S"; got != want {
 		t.Errorf("set-up sent %q, want %q", got, want)
 	}
 	id, err := m.Identify(ctx(t))
@@ -182,8 +183,8 @@ func TestPolledPulledCable(t *testing.T) {
 func TestStreaming(t *testing.T) {
 	f, d := newLM9(t)
 	m := openMeter(t, load(t, "vessoric-lm9.yaml"), d.Link(), "photometer")
-	if c := d.Commands(); len(c) != 1 || c[0] != "STREAM 10" {
-		t.Fatalf("start sent %q, want [STREAM 10]", c)
+	if c := d.Commands(); len(c) != 2 || c[0] != "IDN" || c[1] != "STREAM 10" {
+		t.Fatalf("start sent %q, want [IDN STREAM 10]", c)
 	}
 	id, err := m.Identify(ctx(t))
 	if err != nil {
@@ -310,5 +311,52 @@ func TestOpenReportsSetupFailure(t *testing.T) {
 	_, err = profile.Open(ctx(t), p, "/nonexistent/by-id/meter", profile.Options{Name: "dosimeter", Log: quiet()})
 	if !errors.Is(err, serialline.ErrNoDevice) || errors.Is(err, drivers.ErrLinkDown) || !strings.Contains(err.Error(), "/nonexistent/by-id/meter") {
 		t.Fatalf("missing port: got %v, want no such device (not a lost link: it never was up)", err)
+	}
+}
+
+// After a reconnection a profile meter identifies again: another serial
+// on the link is ErrMeterChanged naming both (issue 8, observation 5).
+func TestReconnectToAnotherMeterProfile(t *testing.T) {
+	k, d := newKR40(t)
+	m := openMeter(t, load(t, "veltrane-kr40.yaml"), d.Link(), "dosimeter")
+	if _, err := m.Read(ctx(t)); err != nil {
+		t.Fatal(err)
+	}
+	d.Pull()
+	if _, err := m.Read(ctx(t)); !errors.Is(err, drivers.ErrLinkDown) {
+		t.Fatalf("pulled: got %v", err)
+	}
+	k.set(func(k *kr40) { k.serial = "KR40-2290" })
+	d.Replug()
+	var err error
+	for i := 0; ; i++ {
+		_, err = m.Read(ctx(t))
+		if !errors.Is(err, drivers.ErrLinkDown) || i > 100 {
+			break
+		}
+	}
+	if !errors.Is(err, drivers.ErrMeterChanged) || !strings.Contains(err.Error(), "KR40-1187") || !strings.Contains(err.Error(), "KR40-2290") {
+		t.Fatalf("got %v; want ErrMeterChanged naming both serials", err)
+	}
+	if _, err := m.Read(ctx(t)); !errors.Is(err, drivers.ErrMeterChanged) {
+		t.Errorf("second read: %v; the other meter must give no readings", err)
+	}
+}
+
+// A meter that streams unprompted (no reading.start) is read as it comes.
+func TestStreamingUnprompted(t *testing.T) {
+	f, d := newLM9(t)
+	f.set(func(m *lm9) { m.rate = 10 })
+	p := load(t, "vessoric-lm9.yaml")
+	p.Start = profile.Exchange{}
+	m := openMeter(t, p, d.Link(), "photometer")
+	r, err := m.Read(ctx(t))
+	if err != nil || r.Value != 123.45 {
+		t.Fatalf("%+v, %v", r, err)
+	}
+	for _, c := range d.Commands() {
+		if strings.HasPrefix(c, "STREAM") || c == "" {
+			t.Errorf("sent %q to a meter that streams by itself", c)
+		}
 	}
 }

@@ -11,6 +11,7 @@
 package profile
 
 import (
+	"errors"
 	"fmt"
 	"regexp"
 	"strings"
@@ -111,6 +112,11 @@ func (p *Profile) Watchdog() time.Duration {
 	return p.Period * time.Duration(p.SilentPeriods)
 }
 
+// ErrNoValue is returned by ParseLine for a line that carries a status
+// other than ok in place of its value or unit (such as "RD OVR"): the
+// status is valid, the value means nothing.
+var ErrNoValue = errors.New("status word in place of the value or unit")
+
 // ParseLine parses one reply line (without framing) into the value and
 // unit as printed and the status. It is a pure function. A line that does
 // not match the pattern, a malformed number or an unknown status token is
@@ -134,13 +140,22 @@ func (p *Profile) ParseLine(line string) (value float64, unit string, status dri
 		}
 		status = s
 	}
-	text, _ := group(p.valueIdx)
+	text, hasValue := group(p.valueIdx)
+	u, hasUnit := group(p.unitIdx)
+	if status != drivers.StatusOK && (!hasValue || (p.unitIdx >= 0 && !hasUnit)) {
+		// A status word in place of the value or the unit: a reading
+		// with that status and no value.
+		if hasValue {
+			value, _ = p.Numbers.Parse(text)
+		}
+		return value, u, status, ErrNoValue
+	}
 	value, err = p.Numbers.Parse(text)
 	if err != nil {
 		return 0, "", status, fmt.Errorf("%w: value in %q: %w", drivers.ErrGarbled, line, err)
 	}
 	unit = p.FixedUnit
-	if u, ok := group(p.unitIdx); ok {
+	if hasUnit {
 		unit = u
 	}
 	if !p.listsUnit(unit) {

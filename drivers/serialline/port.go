@@ -508,7 +508,10 @@ func (p *Port) frame(data []byte, mono time.Duration, wall time.Time) {
 					line = line[1:]
 				}
 			}
-			if len(line) > 0 { // blank lines (a CR LF pair split oddly) carry nothing
+			if len(line) > p.cfg.MaxLine {
+				p.push(event{err: fmt.Errorf("serial port %s: %w: line longer than %d bytes (expected lines ending in %s)", p.cfg.Port, drivers.ErrGarbled, p.cfg.MaxLine, p.cfg.ReceiveEnd)})
+				pushed = true
+			} else if len(line) > 0 { // blank lines (a CR LF pair split oddly) carry nothing
 				p.push(event{line: Line{Text: string(line), Mono: mono, Wall: wall}})
 				pushed = true
 			}

@@ -9,6 +9,7 @@ of the published texts). Prints one line per check and exits 1 on the
 first failure.
 """
 import sys
+import time
 
 import pyvisa
 
@@ -22,6 +23,16 @@ def check(what, got, want):
         print(f"FAIL {what}: got {got!r}, want {want!r}")
         sys.exit(1)
     print(f"ok   {what}: {got!r}")
+
+
+def wait_for(inst, cond):
+    """Polls the bytes waiting in the client's input buffer until cond."""
+    for _ in range(1000):
+        if cond(inst.bytes_in_buffer):
+            return
+        time.sleep(0.005)
+    print(f"FAIL waiting: {inst.bytes_in_buffer} bytes in the input buffer")
+    sys.exit(1)
 
 
 def main():
@@ -78,8 +89,12 @@ def main():
     inst.query("SYST:ERR?")  # READ? may queue -222 (out of range)
     inst.write("*CLS")
     # 488.2 6.3.2.3: a new message while a reply is unread interrupts it.
+    # Wait (on events, not for a time) until the reply is waiting unread,
+    # then until the meter has taken the new query and thrown it away.
     inst.write("*IDN?")
+    wait_for(inst, lambda n: n >= len("ONDRAKEL,DX-2,"))
     inst.write("*OPC?")
+    wait_for(inst, lambda n: n == len("1\n"))
     check("after an interrupted query, the new reply only", inst.read(), "1")
     check("-410 query interrupted", inst.query("SYST:ERR?"), '-410,"Query INTERRUPTED"')
     # A command longer than the input buffer is reported, not lost.
