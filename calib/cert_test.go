@@ -142,7 +142,9 @@ func TestParseErrorsNameLineAndField(t *testing.T) {
 		{"serial with right-to-left override", func(s string) string { return strings.Replace(s, "serial: SN-1", "serial: \"SN-\u202E1-NS\"", 1) }, 5, "meter.serial", `U+202E`},
 		{"serial with bell", func(s string) string { return strings.Replace(s, "serial: SN-1", "serial: \"SN-1\\a\"", 1) }, 5, "meter.serial", `U+0007`},
 		{"model with zero-width space", func(s string) string { return strings.Replace(s, "model: Test Meter", "model: \"Test\u200BMeter\"", 1) }, 4, "meter.model", `U+200B`},
-		{"serial too long", func(s string) string { return strings.Replace(s, "serial: SN-1", "serial: "+strings.Repeat("9", 201), 1) }, 5, "meter.serial", "longer than the 200"},
+		{"serial too long", func(s string) string {
+			return strings.Replace(s, "serial: SN-1", "serial: "+strings.Repeat("9", 201), 1)
+		}, 5, "meter.serial", "longer than the 200"},
 		{"reference pressure 1e308", func(s string) string { return strings.Replace(s, "101.325 kPa", "1e308 kPa", 1) }, 12, "chamber.reference_pressure", "between 80 and 110"},
 		{"reference temperature 293 °C", func(s string) string { return strings.Replace(s, "22 °C", "293 °C", 1) }, 11, "chamber.reference_temperature", "between 0 and 40"},
 		{"duplicate point", func(s string) string { return strings.Replace(s, "hvl_mm_al: 8", "hvl_mm_al: 4", 1) }, 17, "coefficients.points", "same hvl"},

@@ -41,19 +41,22 @@ type FlagCode string
 
 // Flag codes.
 const (
-	FlagNoCertificate  FlagCode = "no_certificate"        // no certificate for the meter
-	FlagExpired        FlagCode = "certificate_expired"   // certificate out of date on the day
-	FlagWrongQuantity  FlagCode = "certificate_quantity"  // certificate is for another quantity
-	FlagOutsideQuality FlagCode = "quality_outside_table" // beam quality outside the certificate's table
-	FlagNoQuality      FlagCode = "quality_unknown"       // beam quality not given but the table needs it
-	FlagNoAirDensity   FlagCode = "air_density_missing"   // T or P missing or implausible for a vented chamber
-	FlagGeometry       FlagCode = "geometry_invalid"      // distances missing or impossible
-	FlagNoBackscatter  FlagCode = "backscatter_unknown"   // chamber on the face but no backscatter factor
-	FlagDueSoon        FlagCode = "certificate_due_soon"  // informational: does not uncalibrate
-	FlagUnusable       FlagCode = "reading_unusable"      // the meter reported over/under range or a fault
-	FlagFewSamples     FlagCode = "too_few_samples"       // fewer than two samples: no type A estimate
-	FlagDiskSize       FlagCode = "disk_size"             // informational: lead disk not 10 % of the field
-	FlagInput          FlagCode = "input_invalid"         // an input of a figure of merit is missing or not positive
+	FlagNoCertificate  FlagCode = "no_certificate"          // no certificate for the meter
+	FlagExpired        FlagCode = "certificate_expired"     // certificate out of date on the day
+	FlagWrongQuantity  FlagCode = "certificate_quantity"    // certificate is for another quantity
+	FlagOutsideQuality FlagCode = "quality_outside_table"   // beam quality outside the certificate's table
+	FlagNoQuality      FlagCode = "quality_unknown"         // beam quality not given but the table needs it
+	FlagNoAirDensity   FlagCode = "air_density_missing"     // T or P missing or implausible for a vented chamber
+	FlagGeometry       FlagCode = "geometry_invalid"        // distances missing or impossible
+	FlagNoBackscatter  FlagCode = "backscatter_unknown"     // chamber on the face but no backscatter factor
+	FlagDueSoon        FlagCode = "certificate_due_soon"    // informational: does not uncalibrate
+	FlagUnusable       FlagCode = "reading_unusable"        // the meter reported over/under range or a fault
+	FlagFewSamples     FlagCode = "too_few_samples"         // fewer than two samples: no type A estimate
+	FlagDiskSize       FlagCode = "disk_size"               // informational: lead disk not 10 % of the field
+	FlagInput          FlagCode = "input_invalid"           // an input of a figure of merit is missing or not positive
+	FlagOtherMeter     FlagCode = "certificate_other_meter" // the meter identified as another model or serial than the certificate names
+	FlagNotIdentified  FlagCode = "meter_not_identified"    // the meter did not identify itself: its certificate cannot be confirmed
+	FlagUnderRange     FlagCode = "under_range"             // the value lies below the meter's range floor: only an upper bound is known
 )
 
 // Flag is a code and a sentence to say and print.
@@ -73,7 +76,7 @@ func (f Flag) informational() bool {
 // read with that one meter does not depend on.
 func (f Flag) certificateFlag() bool {
 	switch f.Code {
-	case FlagNoCertificate, FlagExpired, FlagWrongQuantity, FlagOutsideQuality, FlagNoQuality, FlagDueSoon:
+	case FlagNoCertificate, FlagExpired, FlagWrongQuantity, FlagOutsideQuality, FlagNoQuality, FlagDueSoon, FlagOtherMeter, FlagNotIdentified:
 		return true
 	}
 	return false
@@ -131,7 +134,52 @@ type Setup struct {
 	Quality  Quality      // beam quality (dosimeter)
 	Air      Air          // room air (vented chambers)
 	Geometry Geometry     // dosimeter position
-	Dark     float64      // beam-off luminance, canonical (photometer); 0 when none
+	// Meter is what the meter reported when asked who it is
+	// (drivers.Identifier), nil when it was not identified. A certificate
+	// applies only to the meter whose model and serial it names
+	// ([Certificate.AppliesTo]); otherwise none of it is applied and the
+	// reading is not calibrated.
+	Meter *drivers.Identity
+	// Dark is the meter's beam-off level in its own scale (photometer);
+	// nil when there is none.
+	Dark *Dark
+}
+
+// Dark is a meter's beam-off level (stray light, afterglow, meter
+// offset) in the meter's own scale: the mean of its readings as the meter
+// gave them, canonical unit, before any correction. It is subtracted
+// before the coefficient is applied, L = N·(M − M_dark), so the
+// coefficient acts once on the beam's light; a dark that had already been
+// multiplied by N would leave N·(M − N·M_dark).
+type Dark struct {
+	Value  float64 // mean beam-off reading, uncorrected
+	StdUnc float64 // standard uncertainty of Value, same scale ([DarkUncertainty])
+	DoF    float64 // degrees of freedom of StdUnc; 0 = infinite
+	Note   string  // where it comes from ("beam-off reading at this position")
+}
+
+// DarkUncertainty is the standard uncertainty of a dark level read as the
+// mean of s.N readings with experimental standard deviation s.SD on a
+// display of resolution δ (0: not known): the type A part s/√n (JCGM
+// 100:2008 4.2.3) and the display's rectangular part δ/√12 (F.2.2.1),
+// combined in quadrature (5.1.2), with the Welch–Satterthwaite degrees of
+// freedom (G.2b; 0 = infinite). The resolution part does not shrink with
+// n: a display that shows 0.03 cannot tell 0.0300 from 0.0349, however
+// often it is read, so a dark from a 0.01-resolution meter is never known
+// better than ±0.0029 (one standard uncertainty).
+func DarkUncertainty(s Summary, resolution float64) (u, dof float64) {
+	var uA float64
+	nuA := math.Inf(1)
+	if s.N >= 2 {
+		uA = s.SD / math.Sqrt(float64(s.N))
+		nuA = float64(s.N - 1)
+	}
+	uR := 0.0
+	if resolution > 0 {
+		uR = ResolutionComponent(resolution).Abs
+	}
+	u = math.Hypot(uA, uR)
+	return u, dofOut(WelchSatterthwaite([]float64{uA, uR}, []float64{nuA, math.Inf(1)}))
 }
 
 // Corrected is a reading after corrections.
@@ -307,10 +355,31 @@ func Correct(value float64, q units.Quantity, s Setup) Corrected {
 		out.Applied = append(out.Applied, a)
 	}
 	c := s.Cert
-	if q == units.Luminance && s.Dark != 0 {
-		apply(Applied{Name: CorrDark, Factor: 1, Offset: -s.Dark, Note: fmt.Sprintf("beam-off reading %.4g cd/m² subtracted", s.Dark)})
+	dark := q == units.Luminance && s.Dark != nil
+	if dark {
+		note := fmt.Sprintf("beam-off reading %.4g cd/m² (±%.2g) subtracted before the coefficient", s.Dark.Value, s.Dark.StdUnc)
+		if s.Dark.Note != "" {
+			note += "; " + s.Dark.Note
+		}
+		apply(Applied{Name: CorrDark, Factor: 1, Offset: -s.Dark.Value, Note: note})
+	}
+	refused := false
+	if c != nil {
+		var why error
+		code := FlagOtherMeter
+		if s.Meter == nil {
+			why, code = fmt.Errorf("the meter was not identified, so certificate %s cannot be confirmed as its own", c.Number), FlagNotIdentified
+		} else {
+			why = c.AppliesTo(*s.Meter)
+		}
+		if why != nil {
+			flag(code, "%v: reading not calibrated", why)
+			c, refused = nil, true
+		}
 	}
 	switch {
+	case refused:
+		// a certificate for another meter: already flagged
 	case c == nil:
 		flag(FlagNoCertificate, "no calibration certificate for this meter: reading not calibrated")
 	case c.Quantity != q && !(c.ForDosimeter() && (q == units.AirKerma || q == units.AirKermaRate)):
@@ -346,6 +415,9 @@ func Correct(value float64, q units.Quantity, s Setup) Corrected {
 	}
 	if q != units.AirKermaRate && q != units.AirKerma {
 		out.addResolution(c)
+		if dark {
+			out.addDark(*s.Dark)
+		}
 		return out
 	}
 	if c != nil && c.ForDosimeter() && c.Vented {
@@ -428,6 +500,21 @@ func (out *Corrected) addResolution(c *Certificate) {
 	r := ResolutionComponent(c.Resolution * math.Abs(f))
 	r.Source = "display resolution, " + c.Model
 	out.TypeB = append(out.TypeB, r)
+}
+
+// addDark adds the dark level's uncertainty, carried through the
+// corrections' factors (the coefficient) into the corrected value's unit.
+// It is the same for every reading that the dark was subtracted from, so
+// it does not average away: it is a type B component of their mean.
+func (out *Corrected) addDark(d Dark) {
+	if !(d.StdUnc > 0) {
+		return
+	}
+	f := 1.0
+	for _, a := range out.Applied {
+		f *= a.Factor
+	}
+	out.TypeB = append(out.TypeB, Component{Source: "dark (beam-off) level subtracted", Abs: d.StdUnc * math.Abs(f), DoF: d.DoF})
 }
 
 // CorrectReading corrects a meter reading; a reading the meter reported

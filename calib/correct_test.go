@@ -49,6 +49,12 @@ func TestInverseSquareAndBackscatter(t *testing.T) {
 	}
 }
 
+// own is the identity the meter of certificate c reports: its model
+// and serial, as a dialect would return them.
+func own(c *Certificate) *drivers.Identity {
+	return &drivers.Identity{Model: c.Model, Serial: c.Serial}
+}
+
 func hasFlag(c Corrected, code FlagCode) bool {
 	for _, f := range c.Flags {
 		if f.Code == code {
@@ -62,6 +68,7 @@ func TestCorrectDosimeterOrderAndRecord(t *testing.T) {
 	c := load(t, "veltrane-kr40-1187.yaml")
 	s := Setup{
 		Cert:     c,
+		Meter:    own(c),
 		Day:      day("2026-12-02"),
 		Quality:  Quality{Name: "RQA5"},
 		Air:      Air{Temperature: 24, Pressure: 98.0},
@@ -90,7 +97,7 @@ func TestCorrectDosimeterOrderAndRecord(t *testing.T) {
 
 func TestCorrectPhotometer(t *testing.T) {
 	p := load(t, "vessoric-lm9-5521.yaml")
-	got := Correct(100.5, units.Luminance, Setup{Cert: p, Day: day("2026-12-02"), Dark: 0.5})
+	got := Correct(100.5, units.Luminance, Setup{Cert: p, Meter: own(p), Day: day("2026-12-02"), Dark: &Dark{Value: 0.5}})
 	// (100.5 − 0.5) × 1.012 = 101.2
 	if !got.Calibrated || math.Abs(got.Value-101.2) > 1e-9 || len(got.Applied) != 2 || got.Applied[0].Name != CorrDark || got.Applied[0].Offset != -0.5 {
 		t.Errorf("got %+v", got)
@@ -102,7 +109,7 @@ func TestCorrectPhotometer(t *testing.T) {
 func TestCorrectFlagsInsteadOfCalibrating(t *testing.T) {
 	good := load(t, "veltrane-kr40-1187.yaml")
 	old := load(t, "veltrane-kr40-1187-expired.yaml")
-	base := Setup{Cert: good, Day: day("2026-12-02"), Quality: Quality{Name: "RQA5"}, Air: Air{Temperature: 21, Pressure: 100.9}}
+	base := Setup{Cert: good, Meter: own(good), Day: day("2026-12-02"), Quality: Quality{Name: "RQA5"}, Air: Air{Temperature: 21, Pressure: 100.9}}
 	tests := []struct {
 		name  string
 		edit  func(*Setup)
@@ -118,7 +125,7 @@ func TestCorrectFlagsInsteadOfCalibrating(t *testing.T) {
 		{"pressure in the wrong unit", func(s *Setup) { s.Air.Pressure = 1013 }, FlagNoAirDensity, "pressure"},
 		{"on the face, no backscatter", func(s *Setup) { s.Cert = old; s.Day = day("2024-06-01"); s.Geometry.OnFace = true }, FlagNoBackscatter, "backscatter"},
 		{"negative distance", func(s *Setup) { s.Geometry = Geometry{SourceToChamber: -5, SourceToInput: 1000} }, FlagGeometry, "positive"},
-		{"photometer certificate on a dosimeter", func(s *Setup) { s.Cert = load(t, "vessoric-lm9-5521.yaml") }, FlagWrongQuantity, "luminance"},
+		{"photometer certificate on a dosimeter", func(s *Setup) { s.Cert = load(t, "vessoric-lm9-5521.yaml"); s.Meter = own(s.Cert) }, FlagWrongQuantity, "luminance"},
 	}
 	if c := Correct(1, units.AirKermaRate, base); !c.Calibrated {
 		t.Fatalf("the unedited set-up must calibrate: %v", c.Flags)
@@ -133,7 +140,7 @@ func TestCorrectFlagsInsteadOfCalibrating(t *testing.T) {
 	}
 	// A sealed detector needs no air density: missing T and P are fine.
 	h := load(t, "ondrakel-dx2-30417.yaml")
-	c := Correct(1, units.AirKermaRate, Setup{Cert: h, Day: day("2026-12-02"), Quality: Quality{TubeVoltage: 70}})
+	c := Correct(1, units.AirKermaRate, Setup{Cert: h, Meter: own(h), Day: day("2026-12-02"), Quality: Quality{TubeVoltage: 70}})
 	if !c.Calibrated || !hasFlag(c, FlagDueSoon) {
 		t.Errorf("sealed detector, due in 16 days: calibrated %v flags %v", c.Calibrated, c.Flags)
 	}
@@ -141,7 +148,7 @@ func TestCorrectFlagsInsteadOfCalibrating(t *testing.T) {
 
 func TestCorrectedTypeBAndCollect(t *testing.T) {
 	c := load(t, "veltrane-kr40-1187.yaml")
-	s := Setup{Cert: c, Day: day("2026-12-02"), Quality: Quality{Name: "RQA5"},
+	s := Setup{Cert: c, Meter: own(c), Day: day("2026-12-02"), Quality: Quality{Name: "RQA5"},
 		Air:      Air{Temperature: 24, Pressure: 98.0, TemperatureUnc: 0.3, PressureUnc: 0.1},
 		Geometry: Geometry{SourceToChamber: 900, SourceToInput: 1000, DistanceUnc: 2}}
 	var rs []Corrected
@@ -183,12 +190,12 @@ func TestCorrectedTypeBAndCollect(t *testing.T) {
 func TestCorrectReadingOverRange(t *testing.T) {
 	p := load(t, "vessoric-lm9-5521.yaml")
 	r := drivers.Reading{Meter: "photometer", Quantity: units.Luminance, Value: 9999, Status: drivers.StatusOverRange}
-	c := CorrectReading(r, Setup{Cert: p, Day: day("2026-12-02")})
+	c := CorrectReading(r, Setup{Cert: p, Meter: own(p), Day: day("2026-12-02")})
 	if c.Calibrated || !hasFlag(c, FlagUnusable) || !strings.Contains(c.Flags[0].Text, "over range") {
 		t.Errorf("%+v", c)
 	}
 	r.Status = drivers.StatusOK
-	if c := CorrectReading(r, Setup{Cert: p, Day: day("2026-12-02")}); !c.Calibrated {
+	if c := CorrectReading(r, Setup{Cert: p, Meter: own(p), Day: day("2026-12-02")}); !c.Calibrated {
 		t.Errorf("ok reading: %+v", c.Flags)
 	}
 }
@@ -196,7 +203,7 @@ func TestCorrectReadingOverRange(t *testing.T) {
 func TestGridStateAlwaysRecorded(t *testing.T) {
 	h := load(t, "ondrakel-dx2-30417.yaml")
 	for _, removed := range []bool{true, false} {
-		c := Correct(1, units.AirKermaRate, Setup{Cert: h, Day: day("2026-12-02"), Quality: Quality{TubeVoltage: 70}, Geometry: Geometry{GridRemoved: removed}})
+		c := Correct(1, units.AirKermaRate, Setup{Cert: h, Meter: own(h), Day: day("2026-12-02"), Quality: Quality{TubeVoltage: 70}, Geometry: Geometry{GridRemoved: removed}})
 		last := c.Applied[len(c.Applied)-1]
 		want := map[bool]string{true: "grid removed", false: "grid in place"}[removed]
 		if last.Name != CorrGeometry || last.Factor != 1 || !strings.Contains(last.Note, want) || c.Value != 1 {

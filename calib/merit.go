@@ -278,15 +278,7 @@ func Uniformity(spots []Spot, p float64) (Result, error) {
 	}
 	addInput(mx, 2*lmin/(sum*sum))
 	addInput(mn, -2*lmax/(sum*sum))
-	var u2 float64
-	for _, c := range contrib {
-		u2 += c * c
-	}
-	res.StdUnc = math.Sqrt(u2)
-	nuEff := WelchSatterthwaite(contrib, dofs)
-	res.K = CoverageFactor(nuEff, p)
-	res.ExpUnc = res.K * res.StdUnc
-	res.DoF = dofOut(nuEff)
+	res.combine(contrib, dofs, 1, p)
 	return res, nil
 }
 
@@ -344,4 +336,56 @@ func ModeScaling(modes []Mode, p float64) ([]Result, error) {
 		out = append(out, r)
 	}
 	return out, nil
+}
+
+// Quantities of level results.
+const (
+	QDarkLevel = "dark_level"
+)
+
+// Level is a meter's mean reading as a result (a dark level, an offset),
+// with an absolute uncertainty budget: the type A standard deviation of
+// the mean, s/√n with n − 1 degrees of freedom (JCGM 100:2008 4.2.3), and
+// each type B component of the corrected readings in the value's unit
+// (the display resolution δ/√12 among them, F.2.2.1, which no number of
+// readings removes), combined in quadrature (5.1.2) and expanded with
+// Student's t at the Welch–Satterthwaite degrees of freedom (G.4.1). A
+// level near or at zero is a value like any other here, unlike the
+// inputs of a ratio.
+func Level(quantity string, m Measured, p float64) Result {
+	if p == 0 {
+		p = Coverage
+	}
+	mean := m.Samples.Mean
+	res := Result{Quantity: quantity, Value: mean, Unit: m.Unit, Calibrated: m.Calibrated, Coverage: p}
+	for _, f := range m.Flags {
+		res.Flags = appendFlag(res.Flags, f)
+	}
+	ua, dof := m.Samples.SDMean(), float64(m.Samples.N-1)
+	if m.Samples.N < 2 {
+		ua, dof = 0, 1
+		res.Calibrated = false
+		res.Flags = appendFlag(res.Flags, Flag{FlagFewSamples, m.Name + ": fewer than two samples, repeatability unknown"})
+	}
+	rel := func(u float64) float64 {
+		if mean == 0 {
+			return 0
+		}
+		return u / math.Abs(mean)
+	}
+	res.Budget = append(res.Budget, BudgetRow{Source: m.Name + ", repeatability", Type: "A", Value: mean, Unit: m.Unit,
+		StdUnc: ua, RelStdUnc: rel(ua), Sensitivity: 1, Contribution: ua, DoF: dof})
+	contrib, dofs := []float64{ua}, []float64{dof}
+	for _, b := range m.TypeB {
+		u := b.Abs + b.Rel*math.Abs(mean)
+		res.Budget = append(res.Budget, BudgetRow{Source: b.Source, Type: "B", Value: mean, Unit: m.Unit,
+			StdUnc: u, RelStdUnc: rel(u), Sensitivity: 1, Contribution: u, DoF: b.DoF})
+		d := b.DoF
+		if d == 0 {
+			d = math.Inf(1)
+		}
+		contrib, dofs = append(contrib, u), append(dofs, d)
+	}
+	res.combine(contrib, dofs, 1, p)
+	return res
 }

@@ -351,16 +351,25 @@ func product(quantity, unit string, value float64, inputs []Measured, powers []f
 			dofs = append(dofs, d)
 		}
 	}
-	var rel2 float64
+	res.combine(contrib, dofs, math.Abs(value), p)
+	return res
+}
+
+// combine sets the combined standard uncertainty from the budget's
+// contributions (root sum of squares, JCGM 100:2008 5.1.2; for a product
+// model the contributions are relative and scale multiplies them back into
+// the result's unit), the Welch–Satterthwaite degrees of freedom (G.4.1)
+// and the expanded uncertainty with [CoverageFactor].
+func (res *Result) combine(contrib, dofs []float64, scale, p float64) {
+	var u2 float64
 	for _, c := range contrib {
-		rel2 += c * c
+		u2 += c * c
 	}
-	res.StdUnc = math.Sqrt(rel2) * math.Abs(value)
+	res.StdUnc = math.Sqrt(u2) * scale
 	nu := WelchSatterthwaite(contrib, dofs)
 	res.K = CoverageFactor(nu, p)
 	res.ExpUnc = res.K * res.StdUnc
 	res.DoF = dofOut(nu)
-	return res
 }
 
 func appendFlag(list []Flag, f Flag) []Flag {

@@ -24,11 +24,15 @@ type CalibCorrector struct {
 	// Standard uncertainties of the room thermometer (°C) and barometer
 	// (kPa) whose readings enter k_TP; 0: no budget row.
 	TemperatureUnc, PressureUnc float64
+	// Meter is what the meter reported about itself (set by
+	// BindIdentity at the start of a session); nil: not identified, and
+	// then the certificate is not applied.
+	Meter *drivers.Identity
 }
 
 // Correct implements Corrector.
 func (cc CalibCorrector) Correct(r drivers.Reading, c Conditions) Corrected {
-	s := calib.Setup{Cert: cc.Cert, Day: cc.Day, Geometry: cc.Geometry}
+	s := calib.Setup{Cert: cc.Cert, Day: cc.Day, Geometry: cc.Geometry, Meter: cc.Meter}
 	if s.Day.IsZero() {
 		s.Day = r.Wall
 	}
@@ -45,14 +49,22 @@ func (cc CalibCorrector) Correct(r drivers.Reading, c Conditions) Corrected {
 	if p, ok := c.Values["pressure"]; ok {
 		s.Air.Pressure = p
 	}
-	if c.HasDark && r.Quantity == units.Luminance {
-		s.Dark = c.Dark
+	if c.Dark != nil && r.Quantity == units.Luminance {
+		res := c.Dark.Resolution
+		if res == 0 && cc.Cert != nil && cc.Meter != nil && cc.Cert.AppliesTo(*cc.Meter) == nil {
+			res = cc.Cert.Resolution
+		}
+		u, dof := calib.DarkUncertainty(calib.Summary{N: c.Dark.N, Mean: c.Dark.Mean, SD: c.Dark.SD}, res)
+		s.Dark = &calib.Dark{Value: c.Dark.Mean, StdUnc: u, DoF: dof, Note: c.Dark.Note}
 	}
 	if r.Quantity != units.AirKermaRate && r.Quantity != units.AirKerma {
 		s.Geometry = calib.Geometry{}
 	}
 	out := calib.Correct(r.Value, r.Quantity, s)
-	res := Corrected{Value: out.Value, Certificate: out.Certificate, Calibrated: out.Calibrated, Flags: calib.FlagTexts(out.Flags)}
+	res := Corrected{Value: out.Value, Certificate: out.Certificate, Calibrated: out.Calibrated, Flags: calib.FlagTexts(out.Flags), TypeB: out.TypeB}
+	if out.Certificate != "" && cc.Cert != nil {
+		res.Resolution = cc.Cert.Resolution
+	}
 	for _, a := range out.Applied {
 		res.Corrections = append(res.Corrections, entry.Correction{Name: a.Name, Factor: a.Factor, Offset: a.Offset, Note: a.Note})
 	}
@@ -67,11 +79,11 @@ func measured(p posStat, lum bool) calib.Measured {
 	if lum {
 		return calib.Measured{Name: "output luminance", Unit: units.Canonical(units.Luminance),
 			Samples: calib.Summary{N: p.NL, Mean: p.L, SD: p.LU * math.Sqrt(float64(p.NL))},
-			TypeB:   relB("photometer calibration and resolution", p.BL), Calibrated: p.Calib}
+			TypeB:   p.parts(Photometer, p.BL, "photometer calibration and resolution"), Calibrated: p.Calib}
 	}
 	return calib.Measured{Name: "input air kerma rate", Unit: units.Canonical(units.AirKermaRate),
 		Samples: calib.Summary{N: p.NK, Mean: p.K, SD: p.KU * math.Sqrt(float64(p.NK))},
-		TypeB:   relB("dosimeter calibration, resolution and air density (k_TP)", p.BK), Calibrated: p.Calib}
+		TypeB:   p.parts(Dosimeter, p.BK, "dosimeter calibration, resolution and air density (k_TP)"), Calibrated: p.Calib}
 }
 
 // settledMeasure is measured for a beam reading, with the residual of
@@ -206,7 +218,9 @@ func (e *Engine) compute(ctx context.Context, idx int, s Step) error {
 				lum = true
 			}
 			m := measured(p, lum)
-			res = calib.Result{Quantity: fig, Value: m.Samples.Mean, Unit: m.Unit, StdUnc: m.Samples.SDMean(), K: 2, Calibrated: p.Calib}
+			// The level with its resolution and type B in the budget
+			// (calib.Level); stability is a relative change, below.
+			res = calib.Level(fig, m, 0)
 			if fig == "stability" {
 				drift, meter := p.Drift, Dosimeter
 				if lum {
@@ -215,12 +229,8 @@ func (e *Engine) compute(ctx context.Context, idx int, s Step) error {
 				if d, ok := p.Drifts[meter]; ok {
 					drift = d
 				}
-				res.Value, res.Unit, res.StdUnc = drift, "1", 0
+				res = calib.Result{Quantity: fig, Value: drift, Unit: "1", K: 2, Calibrated: p.Calib}
 			}
-			if math.IsInf(res.StdUnc, 0) {
-				res.StdUnc = 0
-			}
-			res.ExpUnc = 2 * res.StdUnc
 		}
 	default:
 		err = fmt.Errorf("figure %q is not known to the engine", fig)

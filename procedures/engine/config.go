@@ -18,6 +18,7 @@ import (
 	"context"
 	"time"
 
+	"kermalux/calib"
 	"kermalux/drivers"
 	"kermalux/drivers/clock"
 	"kermalux/procedures/entry"
@@ -155,8 +156,10 @@ type Conditions struct {
 	Values    map[string]float64 // entered values: temperature (°C), pressure (kPa), tube_voltage (kV)...
 	Quality   string
 	FieldMode string
-	Dark      float64 // dark reading of this meter, canonical unit (0 if none)
-	HasDark   bool
+	// Dark is this meter's beam-off level in its own scale (before any
+	// correction), nil when none was taken: the corrector subtracts it
+	// before applying the coefficient.
+	Dark *DarkLevel
 }
 
 // Corrected is a reading after calibration.
@@ -169,6 +172,13 @@ type Corrected struct {
 	// RelStdUncB is the relative standard uncertainty of type B of the
 	// corrected value (certificate, resolution), for the stopping rule.
 	RelStdUncB float64
+	// TypeB are those components one by one, each saying whether it is
+	// the meter's calibration (which cancels in a ratio of two readings of
+	// the same meter) or not (resolution, dark, air density).
+	TypeB []calib.Component
+	// Resolution is the meter's display resolution in its own scale,
+	// from the certificate that applies; 0 when not known.
+	Resolution float64
 }
 
 // Corrector applies a meter's calibration to its readings (calib does the

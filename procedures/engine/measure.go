@@ -297,6 +297,7 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (posStat, error) {
 		stat.Flags = append(stat.Flags, short)
 	}
 	stat.BeamOnS = (a.lastSig - a.onAt).Seconds()
+	e.finishStat(&stat, a)
 	// Accept: keep the held readings as used, then release the beam.
 	if err := e.flush(ctx, a, true); err != nil {
 		return posStat{}, err
@@ -573,6 +574,7 @@ func (e *Engine) darkAttempt(ctx context.Context, a *attempt) (posStat, error) {
 			p.Drift = math.Max(p.Drift, dr)
 		}
 	}
+	e.finishStat(&p, a)
 	if err := e.flush(ctx, a, true); err != nil {
 		return posStat{}, err
 	}
@@ -709,6 +711,9 @@ func (e *Engine) readOne(ctx context.Context, a *attempt, role string) (drivers.
 			if ctx.Err() != nil {
 				return r, Corrected{}, ctx.Err()
 			}
+			if ch := isMeterChanged(role, err); ch != nil {
+				return r, Corrected{}, ch
+			}
 			if errors.Is(err, drivers.ErrLinkDown) {
 				return r, Corrected{}, &lostError{role: role, err: err}
 			}
@@ -745,17 +750,17 @@ func (e *Engine) readOne(ctx context.Context, a *attempt, role string) (drivers.
 // correct applies the meter's calibration, with the session's conditions.
 func (e *Engine) correct(a *attempt, role string, r drivers.Reading) Corrected {
 	cond := Conditions{Values: e.st.values, Quality: a.spec.Quality, FieldMode: a.step.FieldMode}
-	if d, ok := e.st.darks[role]; ok && a.spec.Beam {
-		cond.Dark, cond.HasDark = d, true
+	if d, ok := e.st.darkFor(role, a.label); ok && a.spec.Beam {
+		cond.Dark = &d
 	}
 	var c Corrected
 	if cr := e.cfg.Correctors[role]; cr != nil {
 		c = cr.Correct(r, cond)
 	} else {
 		c = Corrected{Value: r.Value, Flags: []string{"no calibration certificate"}}
-		if cond.HasDark && role == Photometer {
-			c.Value -= cond.Dark
-			c.Corrections = append(c.Corrections, entry.Correction{Name: "dark", Factor: 1, Offset: -cond.Dark})
+		if cond.Dark != nil && role == Photometer {
+			c.Value -= cond.Dark.Mean
+			c.Corrections = append(c.Corrections, entry.Correction{Name: "dark", Factor: 1, Offset: -cond.Dark.Mean})
 		}
 	}
 	if role == Dosimeter && a.spec.Quality == "" {
@@ -967,7 +972,10 @@ func (e *Engine) attemptFailed(ctx context.Context, a *attempt, err error) error
 	}
 	var lost *lostError
 	var re *retryError
+	var ch *changedError
 	switch {
+	case errors.As(err, &ch):
+		return e.meterChanged(ctx, a, ch)
 	case errors.As(err, &lost):
 		if rerr := e.waitMeter(ctx, a, lost); rerr != nil {
 			return rerr
@@ -1016,6 +1024,9 @@ func (e *Engine) waitMeter(ctx context.Context, a *attempt, lost *lostError) err
 			return err
 		}
 		r, err := e.next(ctx, lost.role)
+		if ch := isMeterChanged(lost.role, err); ch != nil {
+			return e.meterChanged(ctx, a, ch)
+		}
 		if err == nil {
 			c := e.correct(a, lost.role, r)
 			_ = e.record(ctx, a, lost.role, r, c, false)

@@ -125,6 +125,13 @@ func (e *Engine) run(ctx context.Context) (Summary, error) {
 			return e.finish(ctx, sum, err)
 		}
 	}
+	// Who is on each link, and whether its certificate is its own: said
+	// before the first exposure (calibration.go).
+	for _, p := range e.identify(ctx) {
+		if err := e.say(ctx, 0, panel.Message{Text: p, Level: panel.Warn}); err != nil {
+			return e.finish(ctx, sum, err)
+		}
+	}
 	for _, p := range cfg.CertProblems {
 		_ = e.journal(ctx, entry.KindEvent, entry.Event{Name: evCertificate, Detail: p, BeamOn: st.beamOn.Seconds()})
 		if err := e.say(ctx, 0, panel.Message{Text: p + " Results will be flagged as not calibrated.", Level: panel.Warn}); err != nil {

@@ -40,12 +40,13 @@ type posStat struct {
 	Drift float64 `json:"drift,omitempty"` // relative change over a fixed-duration reading (the largest of Drifts)
 	// Drifts is the relative change of each meter (by role) over a
 	// fixed-duration reading of several meters.
-	Drifts  map[string]float64 `json:"drifts,omitempty"`
-	Calib   bool               `json:"calibrated"`
-	Flags   []string           `json:"flags,omitempty"`
-	Dark    bool               `json:"dark,omitempty"`
-	Mode    string             `json:"field_mode,omitempty"`
-	BeamOnS float64            `json:"beam_on_s,omitempty"` // beam-on time of the accepted attempt
+	Drifts    map[string]float64 `json:"drifts,omitempty"`
+	Calib     bool               `json:"calibrated"`
+	Flags     []string           `json:"flags,omitempty"`
+	Dark      bool               `json:"dark,omitempty"`
+	Mode      string             `json:"field_mode,omitempty"`
+	BeamOnS   float64            `json:"beam_on_s,omitempty"` // beam-on time of the accepted attempt
+	calibStat                    // raw readings, type B parts, dark used (calibration.go)
 }
 
 // state is what the engine knows; it is rebuilt from the journal on resume.
@@ -58,7 +59,7 @@ type state struct {
 	meas      map[string][]posStat    // by measure step ID, per position
 	results   map[string]entry.Result // by compute step ID
 	order     []string                // compute step IDs in order of computation
-	darks     map[string]float64      // role → latest dark mean
+	darks     map[string]DarkLevel    // role, and role@position, → latest dark level (raw scale)
 	beamOn    time.Duration
 	nextSpeak time.Duration
 	nextWarn  time.Duration
@@ -69,7 +70,7 @@ type state struct {
 func newState(l Limits) *state {
 	return &state{
 		done: map[int]bool{}, values: map[string]float64{}, origins: map[string]valueOrigin{}, meas: map[string][]posStat{},
-		results: map[string]entry.Result{}, darks: map[string]float64{},
+		results: map[string]entry.Result{}, darks: map[string]DarkLevel{},
 		nextSpeak: l.SpeakEvery, nextWarn: l.BeamWarn, nextAlarm: l.BeamAlarm,
 	}
 }
@@ -255,12 +256,7 @@ func (st *state) putPos(p posStat) {
 	ps[p.Index] = p
 	st.meas[p.Step] = ps
 	if p.Dark {
-		if p.HasL {
-			st.darks[Photometer] = p.L
-		}
-		if p.HasK {
-			st.darks[Dosimeter] = p.K
-		}
+		st.putDark(p)
 	}
 }
 

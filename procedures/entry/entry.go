@@ -183,6 +183,24 @@ type Event struct {
 	Name   string  `json:"name"` // "beam_on", "beam_off", "meter_lost", "meter_back", "beam_alarm", "beam_warning", "kerma_out_of_range", "samples_discarded", "paused", "aborted"
 	Detail string  `json:"detail,omitempty"`
 	BeamOn float64 `json:"beam_on_s"` // cumulative beam-on seconds at the event
+	// Meter is what a meter said about itself ("meter_identified" events).
+	Meter *MeterIdentity `json:"meter,omitempty"`
+}
+
+// MeterIdentity records a meter's identification at the start of a
+// session (and of a resumed one) and whether its certificate applies.
+type MeterIdentity struct {
+	Role     string `json:"role"` // "dosimeter", "photometer"
+	Maker    string `json:"maker,omitempty"`
+	Model    string `json:"model,omitempty"`
+	Serial   string `json:"serial,omitempty"`
+	Firmware string `json:"firmware,omitempty"`
+	Raw      string `json:"raw,omitempty"`   // the identification reply as received
+	Error    string `json:"error,omitempty"` // why the meter could not be identified
+	// CertificateApplies: the meter reported the model and serial its
+	// certificate names; Reason says why not.
+	CertificateApplies bool   `json:"certificate_applies"`
+	Reason             string `json:"reason,omitempty"`
 }
 
 // BudgetRow is one line of an uncertainty budget (JCGM 100:2008).
