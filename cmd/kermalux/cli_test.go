@@ -2,6 +2,9 @@ package main
 
 import (
 	"bytes"
+	"encoding/json"
+	"os"
+	"path/filepath"
 	"strings"
 	"testing"
 
@@ -89,5 +92,68 @@ func TestDemoSummaryTable(t *testing.T) {
 		if strings.Contains(out, bad) {
 			t.Errorf("summary has %q:\n%s", bad, out)
 		}
+	}
+}
+
+// TestJournalCommandsAsDocumented: export needs no --json (JSON lines is
+// its only format), sessions takes FILE or --journal and prints JSON with
+// --json, key takes FILE as README writes it, and prints the journal's
+// own key for a copy with no key beside it.
+func TestJournalCommandsAsDocumented(t *testing.T) {
+	dir := t.TempDir()
+	p, key := boardJournal(t, dir)
+	if code, out, errb := runCLI(t, "journal", "export", p); code != exitOK || !strings.Contains(out, `"kind":"session"`) {
+		t.Errorf("export without --json: exit %d, %s %s", code, out, errb)
+	}
+	for _, args := range [][]string{{"journal", "sessions", p, "--json"}, {"journal", "sessions", "--journal", p, "--json"}} {
+		code, out, errb := runCLI(t, args...)
+		var list []map[string]any
+		if code != exitOK || json.Unmarshal([]byte(out), &list) != nil || len(list) != 1 || list[0]["state"] != "complete" {
+			t.Errorf("%v: exit %d, %s %s", args, code, out, errb)
+		}
+	}
+	if code, _, _ := runCLI(t, "journal", "sessions", p, "--journal", p); code != exitUsage {
+		t.Errorf("sessions FILE --journal FILE: exit %d, want 2", code)
+	}
+	if code, out, errb := runCLI(t, "journal", "key", p); code != exitOK || strings.TrimSpace(out) != key {
+		t.Errorf("journal key FILE: exit %d, %q (want %s) %s", code, out, key, errb)
+	}
+	// A copy of the journal with no key beside it: the key it records.
+	cp := filepath.Join(t.TempDir(), "copy.db")
+	data, err := os.ReadFile(p)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := os.WriteFile(cp, data, 0o600); err != nil {
+		t.Fatal(err)
+	}
+	if code, out, errb := runCLI(t, "journal", "key", cp); code != exitOK || strings.TrimSpace(out) != key {
+		t.Errorf("journal key COPY: exit %d, %q (want %s) %s", code, out, key, errb)
+	}
+	if _, err := os.Stat(filepath.Join(filepath.Dir(cp), "board-key")); err == nil {
+		t.Errorf("journal key COPY created a key beside the copy")
+	}
+}
+
+// TestJSONOutputs: certs and procedures print JSON with --json.
+func TestJSONOutputs(t *testing.T) {
+	code, out, errb := runCLI(t, "certs", "--json", "--on", "2026-12-02", "../../testdata/certificates")
+	var certs struct {
+		Certificates []map[string]any `json:"certificates"`
+	}
+	if code != exitOK || json.Unmarshal([]byte(out), &certs) != nil || len(certs.Certificates) < 2 {
+		t.Errorf("certs --json: exit %d, %s %s", code, out, errb)
+	}
+	code, out, errb = runCLI(t, "procedures", "--json")
+	var procs []map[string]any
+	if code != exitOK || json.Unmarshal([]byte(out), &procs) != nil || len(procs) < 5 {
+		t.Errorf("procedures --json: exit %d, %s %s", code, out, errb)
+	}
+	code, out, errb = runCLI(t, "procedures", "--steps", "acceptance", "--modes", "32cm,25cm,17cm", "--json")
+	var steps struct {
+		Steps []map[string]any `json:"steps"`
+	}
+	if code != exitOK || json.Unmarshal([]byte(out), &steps) != nil || len(steps.Steps) < 20 {
+		t.Errorf("procedures --steps --json: exit %d, %.300s %s", code, out, errb)
 	}
 }

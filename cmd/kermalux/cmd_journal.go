@@ -11,6 +11,7 @@ import (
 	"io"
 	"os"
 	"text/tabwriter"
+	"time"
 
 	"github.com/spf13/cobra"
 
@@ -130,18 +131,16 @@ read-only: it never checkpoints or deletes the -wal file.`,
 
 	var exportJSON, exportUnverified bool
 	export := &cobra.Command{
-		Use:   "export FILE --json",
+		Use:   "export FILE",
 		Short: "Print every record of a journal, one JSON object per line",
 		Long: `export prints every record of a journal file, session by session, one JSON
-object per line: the envelope fields (seq, session, kind, wall, mono_ns,
+object per line (its only format; --json is accepted and changes nothing):
+the envelope fields (seq, session, kind, wall, mono_ns,
 boot_id, payload) with prev, hash and sig. It verifies the journal first (as
 journal verify does) and refuses one that does not verify, naming the first
 bad record; --unverified exports it anyway, for examining the damage.`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			if !exportJSON {
-				return withCode(exitUsage, errors.New("export writes JSON lines only: add --json"))
-			}
 			if err := verifyFirst(cmd.Context(), args[0], exportUnverified, cmd.ErrOrStderr()); err != nil {
 				return err
 			}
@@ -157,17 +156,35 @@ bad record; --unverified exports it anyway, for examining the damage.`,
 			return nil
 		},
 	}
-	export.Flags().BoolVar(&exportJSON, "json", false, "one JSON object per record per line")
+	export.Flags().BoolVar(&exportJSON, "json", true, "one JSON object per record per line (the only format)")
 	export.Flags().BoolVar(&exportUnverified, "unverified", false, "export a journal that does not verify (its records cannot be trusted)")
 
+	var sessionsJournal string
+	var sessionsJSON bool
 	sessions := &cobra.Command{
 		Use:   "sessions FILE",
-		Short: "List a journal's sessions",
-		Args:  cobra.ExactArgs(1),
+		Short: "List a journal's sessions (FILE or --journal FILE)",
+		Args:  cobra.MaximumNArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			list, err := journal.ListSessions(cmd.Context(), args[0])
+			path, err := journalArg(args, sessionsJournal, cmd.Flags().Changed("journal"))
+			if err != nil {
+				return err
+			}
+			list, err := journal.ListSessions(cmd.Context(), path)
 			if err != nil {
 				return withCode(exitFailure, err)
+			}
+			if sessionsJSON {
+				out := []sessionJSON{}
+				for _, s := range list {
+					sj := sessionJSON{ID: s.ID, Started: s.Session.Started, Site: s.Session.Site, Room: s.Session.Room,
+						Serial: s.Session.IntensifierSerial, Procedure: s.Session.Procedure, Records: s.Last, State: "unfinished", Simulated: s.Session.Simulated}
+					if s.End != nil {
+						sj.State = s.End.Outcome
+					}
+					out = append(out, sj)
+				}
+				return writeJSON(cmd.OutOrStdout(), out)
 			}
 			tw := tabwriter.NewWriter(cmd.OutOrStdout(), 2, 4, 2, ' ', 0)
 			fmt.Fprintln(tw, "SESSION\tSTARTED\tSITE\tROOM\tSERIAL\tRECORDS\tSTATE")
@@ -182,16 +199,32 @@ bad record; --unverified exports it anyway, for examining the damage.`,
 			return tw.Flush()
 		},
 	}
+	sessions.Flags().StringVar(&sessionsJournal, "journal", defaultJournal, "board journal file (instead of FILE)")
+	sessions.Flags().BoolVar(&sessionsJSON, "json", false, "print the sessions as a JSON array")
 
 	var kf boardFlags
 	key := &cobra.Command{
-		Use:   "key",
+		Use:   "key [FILE]",
 		Short: "Print the board's public key (creating the key on first use), for enrolling at the workstation",
-		Args:  cobra.NoArgs,
+		Long: `key prints the public key of the board whose journal is FILE (or --journal):
+the key beside the journal (board-key/, or --key-dir / --key-file), created on
+first use. For a journal copied away from its board, with no key beside it, it
+prints the board key the journal records.`,
+		Args: cobra.MaximumNArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
+			path, err := journalArg(args, kf.journal, cmd.Flags().Changed("journal"))
+			if err != nil {
+				return err
+			}
+			kf.journal = path
 			keyFile := kf.options().KeyFile(kf.journal)
+			if _, serr := os.Stat(keyFile); len(args) == 1 && errors.Is(serr, os.ErrNotExist) {
+				if owner, ferr := journal.FileKey(cmd.Context(), kf.journal); ferr == nil && owner != "" {
+					fmt.Fprintln(cmd.OutOrStdout(), owner)
+					return nil
+				}
+			}
 			var priv ed25519.PrivateKey
-			var err error
 			if _, serr := os.Stat(kf.journal); serr == nil {
 				// The journal exists: its key must exist too, and be the one
 				// the journal was written with (never a fresh one).
@@ -237,4 +270,29 @@ func verifyFirst(ctx context.Context, path string, unverified bool, warn io.Writ
 		fmt.Fprintln(warn, "NOT VERIFIED:", p)
 	}
 	return nil
+}
+
+// sessionJSON is one session in `journal sessions --json`.
+type sessionJSON struct {
+	ID        string    `json:"session"`
+	Started   time.Time `json:"started"`
+	Site      string    `json:"site"`
+	Room      string    `json:"room"`
+	Serial    string    `json:"intensifier_serial"`
+	Procedure string    `json:"procedure"`
+	Records   int64     `json:"records"`
+	State     string    `json:"state"` // complete, aborted, unfinished
+	Simulated bool      `json:"simulated"`
+}
+
+// journalArg is the journal a command reads: its FILE argument or
+// --journal, not both.
+func journalArg(args []string, flag string, flagSet bool) (string, error) {
+	switch {
+	case len(args) == 1 && flagSet:
+		return "", withCode(exitUsage, errors.New("give the journal as FILE or --journal FILE, not both"))
+	case len(args) == 1:
+		return args[0], nil
+	}
+	return flag, nil
 }

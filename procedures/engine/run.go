@@ -422,7 +422,7 @@ func (e *Engine) ask(ctx context.Context, p panel.Prompt) (panel.Response, error
 	if p.Next == "" {
 		p.Next = e.nextText(p.Step)
 	}
-	seq, err := e.appendSeq(ctx, entry.KindPrompt, entry.Prompt{Step: p.Step, Level: string(p.Level), Action: string(p.Action), Text: p.Text, Asked: true})
+	seq, err := e.appendSeq(ctx, entry.KindPrompt, entry.Prompt{Step: p.Step, Level: string(p.Level), Action: string(p.Action), Text: p.Text, Asked: true, Setup: p.Setup})
 	if err != nil {
 		return panel.Response{}, err
 	}

@@ -121,6 +121,10 @@ type Prompt struct {
 	Action string `json:"action,omitempty"`
 	Text   string `json:"text"`
 	Asked  bool   `json:"asked"` // waited for an answer
+	// Setup is the bench state the prompt asked for (field_mode,
+	// brightness_control, tube_voltage, filter...), as the procedure
+	// states it, so a report can say it per step.
+	Setup map[string]string `json:"setup,omitempty"`
 }
 
 // Ack records the operator's answer to a prompt.

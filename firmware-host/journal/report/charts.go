@@ -6,6 +6,7 @@ import (
 	"image/color"
 	"math"
 	"regexp"
+	"strconv"
 	"strings"
 	"time"
 
@@ -235,35 +236,19 @@ func mapSpec(m LuminanceMap) (chartSpec, error) {
 		if m.Centre > 0 {
 			c = fractionColor(fracs[i])
 		}
-		return draw.GlyphStyle{Color: c, Radius: vg.Points(9), Shape: draw.CircleGlyph{}}
+		return draw.GlyphStyle{Color: c, Radius: vg.Points(12), Shape: draw.CircleGlyph{}}
 	}
 	p.Add(sc)
-	// Labels go below a disc, except for discs near the vertical axis,
-	// whose labels go to their right, clear of the discs above and below.
-	lpts := make(plotter.XYs, len(pts))
-	right := make([]bool, len(pts))
-	for i, q := range pts {
-		if math.Hypot(q.X, q.Y) > 0.05 && math.Abs(q.X) < 0.3*math.Hypot(q.X, q.Y) {
-			lpts[i], right[i] = plotter.XY{X: q.X + 0.12, Y: q.Y}, true
-			continue
-		}
-		x := q.X
-		if math.Abs(x) > 0.7 { // keep labels near the edge inside the face
-			x -= math.Copysign(0.07, x)
-		}
-		lpts[i] = plotter.XY{X: x, Y: q.Y - 0.19}
-	}
-	lb, err := plotter.NewLabels(plotter.XYLabels{XYs: lpts, Labels: labels})
+	// Each label sits inside its disc, in white: it can touch neither its
+	// own disc's edge nor a neighbour.
+	lb, err := plotter.NewLabels(plotter.XYLabels{XYs: pts, Labels: labels})
 	if err != nil {
 		return chartSpec{}, err
 	}
 	for i := range lb.TextStyle {
-		lb.TextStyle[i].Font = sansStyle(9)
-		lb.TextStyle[i].Color = inkColor
+		lb.TextStyle[i].Font = sansStyle(8)
+		lb.TextStyle[i].Color = color.White
 		lb.TextStyle[i].XAlign = draw.XCenter
-		if right[i] {
-			lb.TextStyle[i].XAlign = draw.XLeft
-		}
 		lb.TextStyle[i].YAlign = draw.YCenter
 	}
 	p.Add(lb)
@@ -282,7 +267,7 @@ func mapSpec(m LuminanceMap) (chartSpec, error) {
 		dirs.TextStyle[i].YAlign = draw.YCenter
 	}
 	p.Add(dirs)
-	caption := "Each disc is a photometer position; its label is the luminance there as a percentage of the centre. Dashed rings: 0.5 and 0.9 of the output radius."
+	caption := "Each disc is a photometer position; the figure in it is the luminance there as a percentage of the centre. Dashed rings: 0.5 and 0.9 of the output radius."
 	return chartSpec{p: p, name: "map-" + slug(m.FieldMode), title: title, caption: caption, w: 3.5 * vg.Inch, h: 3.7 * vg.Inch}, nil
 }
 
@@ -326,10 +311,12 @@ func conversionSpec(results []Result) (chartSpec, error) {
 	var errs plotter.YErrors
 	var fails []bool
 	unit := ""
+	var cf []Result
 	for _, r := range results {
 		if r.Quantity != "conversion_factor" {
 			continue
 		}
+		cf = append(cf, r)
 		names = append(names, orDash(r.FieldMode))
 		pts = append(pts, plotter.XY{X: float64(len(pts)), Y: r.Value})
 		errs = append(errs, struct{ Low, High float64 }{r.ExpUnc, r.ExpUnc})
@@ -361,17 +348,96 @@ func conversionSpec(results []Result) (chartSpec, error) {
 		return chartSpec{}, err
 	}
 	eb.Color, eb.Width, eb.CapWidth = inkColor, vg.Points(1), vg.Points(8)
-	p.Add(eb, sc)
-	p.NominalX(names...)
-	p.X.Min, p.X.Max = -0.6, float64(len(pts))-0.4
-	p.Y.Min = 0
 	top := 0.0
 	for i := range pts {
 		top = math.Max(top, pts[i].Y+errs[i].High)
 	}
-	p.Y.Max = 1.12 * top
-	caption := "Bars: expanded uncertainty U. Red: the result fails a limit."
-	return chartSpec{p: p, name: "conversion-factor", title: title, caption: caption, w: 5 * vg.Inch, h: 3.2 * vg.Inch}, nil
+	// Each field mode's limits as short lines across its column, and its
+	// baseline as an open diamond; one legend entry per kind.
+	legend := map[string]bool{}
+	for i, r := range cf {
+		x := float64(i)
+		for _, l := range r.Limits {
+			ln, err := plotter.NewLine(plotter.XYs{{X: x - 0.32, Y: l.Value}, {X: x + 0.32, Y: l.Value}})
+			if err != nil {
+				return chartSpec{}, err
+			}
+			ln.Color, ln.Width = limitColor(l.Kind), vg.Points(1.6)
+			if l.Kind == "action level" {
+				ln.Dashes = []vg.Length{vg.Points(4), vg.Points(2)}
+			}
+			p.Add(ln)
+			if !legend[l.Kind] {
+				legend[l.Kind] = true
+				name := l.Kind + " limit"
+				if l.Kind == "baseline" {
+					name = fmt.Sprintf("baseline rule (%s of baseline)", Percent(l.Fraction))
+				}
+				p.Legend.Add(name, ln)
+			}
+			top = math.Max(top, l.Value)
+		}
+		if r.Baseline > 0 {
+			bm, err := plotter.NewScatter(plotter.XYs{{X: x + 0.2, Y: r.Baseline}})
+			if err != nil {
+				return chartSpec{}, err
+			}
+			bm.GlyphStyle = draw.GlyphStyle{Color: fitColor, Radius: vg.Points(3.5), Shape: draw.PyramidGlyph{}}
+			p.Add(bm)
+			if !legend["baseline value"] {
+				legend["baseline value"] = true
+				p.Legend.Add("baseline (the earlier session)", bm)
+			}
+			top = math.Max(top, r.Baseline)
+		}
+	}
+	p.Add(eb, sc)
+	p.Legend.Add("result, bars: U", sc)
+	p.Legend.Top = true
+	p.Legend.TextStyle.Font = sansStyle(8)
+	p.NominalX(names...)
+	// The legend gets the empty room right of the last column.
+	p.X.Min, p.X.Max = -0.6, float64(len(pts))+1.3
+	p.Y.Min = 0
+	p.Y.Max = 1.1 * top
+	p.Y.Tick.Marker = niceTicks{n: 7}
+	caption := "Bars: expanded uncertainty U. Lines across each column: that field mode's limits (specification, action level, baseline rule); triangle: its baseline. Red: the result fails a limit."
+	return chartSpec{p: p, name: "conversion-factor", title: title, caption: caption, w: 6 * vg.Inch, h: 3.4 * vg.Inch}, nil
+}
+
+// niceTicks labels about n round values (1, 2 or 5 times a power of ten)
+// with unlabelled ticks between, so a value axis reads without guessing.
+type niceTicks struct{ n int }
+
+func (t niceTicks) Ticks(min, max float64) []plot.Tick {
+	if !(max > min) {
+		return plot.DefaultTicks{}.Ticks(min, max)
+	}
+	raw := (max - min) / float64(t.n)
+	p := math.Pow10(int(math.Floor(math.Log10(raw))))
+	step := p
+	for _, m := range []float64{1, 2, 5, 10} {
+		if m*p >= raw {
+			step = m * p
+			break
+		}
+	}
+	var ts []plot.Tick
+	dec := max0(-int(math.Floor(math.Log10(step))))
+	for v := math.Ceil(min/step) * step; v <= max+step*1e-9; v += step {
+		ts = append(ts, plot.Tick{Value: v, Label: strconv.FormatFloat(v, 'f', dec, 64)})
+		if h := v + step/2; h < max {
+			ts = append(ts, plot.Tick{Value: h})
+		}
+	}
+	return ts
+}
+
+func max0(i int) int {
+	if i < 0 {
+		return 0
+	}
+	return i
 }
 
 // decimalYear converts a date to a fractional year for the trend axis.

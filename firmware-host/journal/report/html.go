@@ -38,6 +38,8 @@ var htmlTemplate = template.Must(template.New("report").Funcs(template.FuncMap{
 	"num":           Number,
 	"exact":         Exact,
 	"kf":            Kf,
+	"nw":            noBreak,
+	"right":         func(t infoTable, i int) bool { return i < len(t.Right) && t.Right[i] },
 	"dof":           DoF,
 	"valu":          ValueWithUnc,
 	"pct":           Percent,
@@ -84,6 +86,19 @@ type htmlView struct {
 	Version    string
 	Cautions   []string
 	Groups     []ReadingGroup
+	Signing    []infoTable
+	// The same blocks where the page shows them: the test, meters, beam
+	// and geometry before the results; the limits after them; the set-up
+	// per step and the formulas after the corrections.
+	SigningPre, SigningLimits, SigningPost []infoTable
+	Budgets                                []budgetView
+}
+
+// budgetView is one result's budget with the expected components that
+// are not in it.
+type budgetView struct {
+	Result
+	Gaps []budgetGap
 }
 
 // chartUse says which chart formats a rendering needs.
@@ -113,6 +128,13 @@ func (r *Report) view(opt Options, use chartUse) htmlView {
 	}
 	v.Exposures = r.Exposures()
 	v.Groups = r.ReadingGroups()
+	v.Signing = r.signing()
+	v.SigningPre, v.SigningLimits, v.SigningPost = v.Signing[:4], v.Signing[6:7], v.Signing[4:6]
+	for _, res := range r.Results {
+		if len(res.Budget) > 0 {
+			v.Budgets = append(v.Budgets, budgetView{Result: res, Gaps: r.budgetGaps(res)})
+		}
+	}
 	for _, e := range r.Events {
 		// Beam on/off are in the exposures table; the beam-time
 		// announcements and the engine's measurement bookkeeping (for
@@ -163,11 +185,11 @@ func verdictClass(v string) string {
 func verdictWords(v string) string {
 	switch v {
 	case "pass":
-		return "Pass"
+		return "Within the configured limits"
 	case "fail":
-		return "Fail"
+		return "Outside a configured limit"
 	case "review":
-		return "Pass, with review"
+		return "Within the configured limits; items need review"
 	case "incomplete":
 		return "Incomplete"
 	}
@@ -186,3 +208,23 @@ func certClass(status string) string {
 
 // unitShown hides the unit "1" of dimensionless quantities.
 func unitShown(u string) string { return unitWords(u) }
+
+// noBreak escapes s for HTML and keeps each word that holds a hyphen or
+// a digit (serials, certificate numbers, dates, times, step ids) on one
+// line: browsers otherwise break "KR40-1187" or "2026-11-18" at the
+// hyphen.
+func noBreak(s string) template.HTML {
+	var b strings.Builder
+	for i, w := range strings.Split(s, " ") {
+		if i > 0 {
+			b.WriteByte(' ')
+		}
+		e := template.HTMLEscapeString(w)
+		if strings.ContainsAny(w, "-0123456789") {
+			b.WriteString(`<span class="nw">` + e + `</span>`)
+		} else {
+			b.WriteString(e)
+		}
+	}
+	return template.HTML(b.String())
+}

@@ -43,7 +43,17 @@ type Report struct {
 	BeamOn       float64
 	Maps         []LuminanceMap
 	Review       []string // what needs the physicist's attention, in plain words
-	Trends       []Trend  // optional: this intensifier's history (see AttachHistory)
+	Setups       []Setup  // the bench set-up each prompt asked for, in order
+	// Meters are the meters as they identified themselves ("meter_identified"
+	// events), the latest of each role, in order of first identification.
+	Meters []entry.MeterIdentity
+	Trends []Trend // optional: this intensifier's history (see AttachHistory)
+}
+
+// Setup is the bench state one prompt asked for.
+type Setup struct {
+	Step  int
+	Setup map[string]string
 }
 
 // Certificate is a calibration certificate used in the session, with its
@@ -190,6 +200,9 @@ func Build(envs []entry.Envelope) (*Report, error) {
 				return nil, fail(err)
 			}
 			prompts[env.Seq] = p
+			if len(p.Setup) > 0 {
+				r.Setups = append(r.Setups, Setup{Step: p.Step, Setup: p.Setup})
+			}
 		case entry.KindAck:
 			var a entry.Ack
 			if err := json.Unmarshal(env.Payload, &a); err != nil {
@@ -253,6 +266,9 @@ func Build(envs []entry.Envelope) (*Report, error) {
 			if e.BeamOn > r.BeamOn {
 				r.BeamOn = e.BeamOn
 			}
+			if e.Meter != nil {
+				r.addMeter(*e.Meter)
+			}
 			r.Events = append(r.Events, Event{Event: e, Seq: env.Seq, Wall: env.Wall})
 		case entry.KindResult:
 			var res entry.Result
@@ -294,6 +310,17 @@ func Build(envs []entry.Envelope) (*Report, error) {
 	return r, nil
 }
 
+// addMeter keeps the latest identification of each meter role.
+func (r *Report) addMeter(m entry.MeterIdentity) {
+	for i := range r.Meters {
+		if r.Meters[i].Role == m.Role {
+			r.Meters[i] = m
+			return
+		}
+	}
+	r.Meters = append(r.Meters, m)
+}
+
 func certificate(c entry.CertRef, day time.Time) Certificate {
 	out := Certificate{CertRef: c}
 	if !c.Due.IsZero() && !day.IsZero() {
@@ -312,15 +339,25 @@ func certificate(c entry.CertRef, day time.Time) Certificate {
 	return out
 }
 
-// review fills Result.Review and Report.Review: everything a physicist
-// should look at before signing.
+// review fills Result.Review and Report.Review: only what a physicist
+// must look at before signing, in plain words, each thing once. A flag
+// that several results share ("tube voltage not read off") is one item
+// naming the results; what is information only (no baseline yet, no type
+// A uncertainty of a zero dark reading, a limit the value is near, said
+// as "marginal") is left to the results table.
 func (r *Report) review() {
+	type shared struct {
+		text    string
+		results []string
+	}
+	var flagOrder []string
+	flags := map[string]*shared{}
 	for i := range r.Results {
 		res := &r.Results[i]
 		var why []string
 		switch strings.ToLower(res.Verdict) {
 		case "fail":
-			why = append(why, "fails "+orDash(res.DecidedBy))
+			why = append(why, "outside the "+orDash(res.DecidedBy))
 		case "pass", "info":
 		default:
 			why = append(why, fmt.Sprintf("verdict %q", res.Verdict))
@@ -329,18 +366,42 @@ func (r *Report) review() {
 			why = append(why, "not calibrated")
 		}
 		for _, f := range res.Flags {
-			if !contains(why, f) {
-				why = append(why, f)
+			text, ok := reviewFlag(f)
+			if !ok {
+				continue
 			}
+			if !contains(why, text) {
+				why = append(why, text)
+			}
+			sh, seen := flags[text]
+			if !seen {
+				sh = &shared{text: text}
+				flags[text] = sh
+				flagOrder = append(flagOrder, text)
+			}
+			sh.results = append(sh.results, resultName(res.Result))
 		}
 		if len(why) > 0 {
 			res.Review = strings.Join(why, "; ")
-			r.Review = append(r.Review, fmt.Sprintf("%s: %s", resultName(res.Result), res.Review))
 		}
+		// Fails and uncalibrated results are named one by one.
+		var own []string
+		for _, w := range why {
+			if _, isShared := flags[w]; !isShared {
+				own = append(own, w)
+			}
+		}
+		if len(own) > 0 {
+			r.Review = append(r.Review, fmt.Sprintf("%s: %s", resultName(res.Result), strings.Join(own, "; ")))
+		}
+	}
+	for _, text := range flagOrder {
+		sh := flags[text]
+		r.Review = append(r.Review, fmt.Sprintf("%s (%s)", capital(sh.text), strings.Join(sh.results, ", ")))
 	}
 	for _, c := range r.Certificates {
 		if c.Status == "expired" || c.Status == "not valid" {
-			r.Review = append(r.Review, fmt.Sprintf("certificate %s (%s %s) %s on the session day", c.ID, c.Model, c.Serial, c.Status))
+			r.Review = append(r.Review, fmt.Sprintf("Certificate %s (%s %s) was %s on the session day", c.ID, c.Model, c.Serial, c.Status))
 		}
 	}
 	counts := map[string]int{}
@@ -349,23 +410,45 @@ func (r *Report) review() {
 	}
 	for _, name := range []string{"beam_alarm", "kerma_out_of_range", "beam_refused", "certificate_problem", "aborted", "meter_lost", "reading_error"} {
 		if n := counts[name]; n > 0 {
-			r.Review = append(r.Review, fmt.Sprintf("%s (%s) happened %d time%s", eventWords(name), name, n, plural(n)))
+			r.Review = append(r.Review, fmt.Sprintf("%s: %d time%s", capital(eventWords(name)), n, plural(n)))
 		}
 	}
 	for _, s := range r.Steps {
-		if s.State == entry.StepSkipped || s.State == entry.StepAborted {
-			r.Review = append(r.Review, fmt.Sprintf("step %d %s was %s%s", s.Index, s.ID, s.State, reasonSuffix(s.Reason)))
+		if (s.State == entry.StepSkipped || s.State == entry.StepAborted) && !skippedByDesign(s.Reason) {
+			r.Review = append(r.Review, fmt.Sprintf("Step %d was %s%s", s.Index, s.State, reasonSuffix(s.Reason)))
 		}
 	}
 	switch {
 	case r.End == nil:
-		r.Review = append(r.Review, "the session has no end record: it was interrupted and not finished")
+		r.Review = append(r.Review, "The session has no end record: it was interrupted and not finished")
 	case r.End.Outcome != "" && r.End.Outcome != "complete":
-		r.Review = append(r.Review, fmt.Sprintf("the session ended %q", r.End.Outcome))
+		r.Review = append(r.Review, fmt.Sprintf("The session ended %q", r.End.Outcome))
 	}
 	if r.Simulated {
-		r.Review = append(r.Review, "readings came from the bench simulator: the results are not measurements")
+		r.Review = append(r.Review, "Readings came from the bench simulator: the results are not measurements")
 	}
+}
+
+// reviewFlag says a result flag in the words of the review list, and
+// whether it needs a person at all.
+func reviewFlag(f string) (string, bool) {
+	l := strings.ToLower(f)
+	switch {
+	case strings.HasPrefix(l, "no baseline"),
+		strings.HasPrefix(l, "no type a uncertainty"),
+		strings.Contains(l, "lies within the expanded uncertainty"),
+		strings.HasPrefix(l, "would be "):
+		return "", false
+	case l == "marginal":
+		return "a limit lies within the expanded uncertainty: the verdict could go either way", true
+	}
+	return f, true
+}
+
+// skippedByDesign recognises steps the procedure skips on purpose (the
+// scaling of the reference field mode against itself).
+func skippedByDesign(reason string) bool {
+	return strings.Contains(reason, "reference field mode itself")
 }
 
 // Verdict sums the session up in one word: "fail" if any result fails,

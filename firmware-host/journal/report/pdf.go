@@ -75,14 +75,49 @@ func (d *pdfDoc) para(s string, size float64) {
 	d.f.Ln(1)
 }
 
+// info draws one of the signing blocks: a heading, its sentences, a
+// table (two columns without a header: label and value) and notes.
+func (d *pdfDoc) info(t infoTable) {
+	d.heading(t.Title)
+	for _, s := range t.Intro {
+		d.para(s, 7.5)
+	}
+	if len(t.Rows) > 0 {
+		cols := make([]pdfCol, len(t.Head))
+		for i, h := range t.Head {
+			cols[i] = pdfCol{head: h, width: 1 / float64(len(t.Head)), right: i < len(t.Right) && t.Right[i]}
+		}
+		if len(cols) == 2 && cols[0].head == "" {
+			cols[0].width, cols[1].width = 0.28, 0.72
+			d.tableSized(cols, t.Rows, 8, false)
+		} else {
+			d.tableSized(cols, t.Rows, 7.5, true)
+		}
+	}
+	for _, n := range t.Notes {
+		d.f.SetTextColor(0xa8, 0x62, 0x00)
+		d.para(n, 8)
+		d.f.SetTextColor(0x1d, 0x26, 0x30)
+	}
+}
+
 // table draws a table with wrapped cells, repeating the header on each
 // new page.
-func (d *pdfDoc) table(cols []pdfCol, rows [][]string) { d.tableSized(cols, rows, 7.5) }
+func (d *pdfDoc) table(cols []pdfCol, rows [][]string) { d.tableSized(cols, rows, 7.5, true) }
 
-// tableSized is table with a font size in points.
-func (d *pdfDoc) tableSized(cols []pdfCol, rows [][]string, size float64) {
+// tableSized is table with a font size in points, and without a header
+// row when head is false. Columns are widened to hold their longest word
+// (a number, serial, certificate number or hash is never broken inside a
+// cell), taking the room from columns that have some; when even that
+// cannot fit, the type is made smaller.
+func (d *pdfDoc) tableSized(cols []pdfCol, rows [][]string, size float64, head bool) {
 	lh, pad := size*0.48, 1.1
+	cols, size = d.fitColumns(cols, rows, size, pad, head)
+	lh = size * 0.48
 	header := func() {
+		if !head {
+			return
+		}
 		d.font("B", size)
 		d.f.SetFillColor(0xf0, 0xf2, 0xf5)
 		y := d.f.GetY()
@@ -94,6 +129,7 @@ func (d *pdfDoc) tableSized(cols []pdfCol, rows [][]string, size float64) {
 	}
 	d.ensure(14)
 	header()
+	d.font("", size)
 	for _, row := range rows {
 		h := d.rowHeight(cols, row, lh, pad, false)
 		if d.f.GetY()+h > d.bottom {
@@ -107,6 +143,70 @@ func (d *pdfDoc) tableSized(cols []pdfCol, rows [][]string, size float64) {
 		d.f.SetY(y + h)
 	}
 	d.f.Ln(2)
+}
+
+// fitColumns returns the columns with widths that hold every cell's
+// longest word, and the font size that makes them fit the page.
+func (d *pdfDoc) fitColumns(cols []pdfCol, rows [][]string, size, pad float64, head bool) ([]pdfCol, float64) {
+	out := append([]pdfCol(nil), cols...)
+	for try := 0; try < 10; try++ {
+		mins := make([]float64, len(cols))
+		for i := range cols {
+			if head {
+				d.font("B", size)
+				mins[i] = d.longestWord(d.cellText(cols, nil, i, true))
+			}
+			d.font("", size)
+			for _, row := range rows {
+				mins[i] = max(mins[i], d.longestWord(d.cellText(cols, row, i, false)))
+			}
+			// MultiCell keeps its own cell margin on each side.
+			mins[i] += 2*pad + 2*d.f.GetCellMargin() + 0.5
+		}
+		total := 0.0
+		for _, m := range mins {
+			total += m
+		}
+		if total > d.w && size > 5 {
+			size = max(5, size*max(0.8, d.w/total))
+			continue
+		}
+		widths := make([]float64, len(cols))
+		need, slack := 0.0, 0.0
+		for i, c := range cols {
+			widths[i] = c.width * d.w
+			if widths[i] < mins[i] {
+				need += mins[i] - widths[i]
+				widths[i] = mins[i]
+			} else {
+				slack += widths[i] - mins[i]
+			}
+		}
+		for i := range widths {
+			if need > 0 && slack > 0 && widths[i] > mins[i] {
+				widths[i] -= need * (widths[i] - mins[i]) / slack
+			}
+			out[i].width = widths[i] / d.w
+		}
+		return out, size
+	}
+	return out, size
+}
+
+// longestWord is the width in mm of the widest space-separated word of s
+// in the current font.
+// pdfValue is ValueWithUnc with no-break spaces around ±, so a cell
+// breaks, if it must, only between whole figures.
+func pdfValue(v, u float64) string {
+	return strings.ReplaceAll(ValueWithUnc(v, u), " ± ", "\u00a0±\u00a0")
+}
+
+func (d *pdfDoc) longestWord(s string) float64 {
+	w := 0.0
+	for _, word := range strings.Split(s, " ") { // fpdf breaks lines at ' ' only
+		w = max(w, d.f.GetStringWidth(word))
+	}
+	return w
 }
 
 func (d *pdfDoc) cellText(cols []pdfCol, row []string, i int, head bool) string {
@@ -221,7 +321,7 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 	// Summary box.
 	y0 := f.GetY()
 	f.SetXY(d.left+4, y0+4)
-	d.font("B", 16)
+	d.font("B", 13)
 	switch v.Verdict {
 	case "pass":
 		f.SetTextColor(0x1e, 0x7a, 0x46)
@@ -230,13 +330,16 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 	default:
 		f.SetTextColor(0xa8, 0x62, 0x00)
 	}
-	f.MultiCell(62, 7, strings.ToUpper(verdictWords(v.Verdict)), "", "L", false)
+	f.MultiCell(62, 6, verdictWords(v.Verdict), "", "L", false)
 	f.SetTextColor(0x5b, 0x67, 0x75)
 	d.font("", 9)
 	f.SetX(d.left + 4)
 	f.CellFormat(60, 5, fmt.Sprintf("%d pass · %d fail · %d for information", v.Pass, v.Fail, v.Info), "", 2, "L", false, 0, "")
 	f.SetX(d.left + 4)
 	f.CellFormat(60, 5, "Beam on: "+BeamTime(r.BeamOn)+" in total", "", 2, "L", false, 0, "")
+	f.SetX(d.left + 4)
+	d.font("", 8)
+	f.MultiCell(60, 4, "Acceptance is the medical physicist's decision, recorded in the signature box at the end.", "", "L", false)
 	leftEnd := f.GetY()
 	f.SetTextColor(0x1d, 0x26, 0x30)
 	f.SetXY(d.left+70, y0+4)
@@ -291,6 +394,10 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 		f.SetY(bottom + 1.5)
 	}
 
+	for _, t := range v.SigningPre {
+		d.info(t)
+	}
+
 	d.heading("Results")
 	var rows [][]string
 	for _, res := range r.Results {
@@ -302,10 +409,13 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 		if !res.Calibrated {
 			notes = append([]string{"not calibrated"}, notes...)
 		}
-		rows = append(rows, []string{quantityWords(res.Quantity), res.FieldMode, ValueWithUnc(res.Value, res.ExpUnc), unitForQuantity(res.Quantity, res.Unit), Kf(res.K), of, strings.ToUpper(res.Verdict), res.DecidedBy, strings.Join(notes, "; ")})
+		rows = append(rows, []string{quantityWords(res.Quantity), res.FieldMode, pdfValue(res.Value, res.ExpUnc), unitForQuantity(res.Quantity, res.Unit), Kf(res.K), of, strings.ToUpper(res.Verdict), res.DecidedBy, strings.Join(notes, "; ")})
 	}
-	d.table([]pdfCol{{"Result", .15, false}, {"Field", .06, false}, {"Value ± U", .12, true}, {"Unit", .11, false}, {"k", .07, true}, {"Of baseline", .12, true}, {"Verdict", .07, false}, {"Decided by", .18, false}, {"Notes", .12, false}}, rows)
-	d.para("U is the expanded uncertainty with coverage factor k (JCGM 100:2008). A verdict compares the value itself with the limit named under “Decided by”.", 7.5)
+	d.table([]pdfCol{{"Result", .12, false}, {"Field", .05, false}, {"Value ± U", .12, true}, {"Unit", .1, false}, {"k", .05, true}, {"Of baseline", .1, true}, {"Verdict", .07, false}, {"Decided by", .17, false}, {"Notes", .22, false}}, rows)
+	d.para("U is the expanded uncertainty with coverage factor k (JCGM 100:2008). A verdict compares the value itself with every limit; “Decided by” names the one that failed, or the closest. Every limit and its margin follow.", 7.5)
+	for _, t := range v.SigningLimits {
+		d.info(t)
+	}
 
 	if len(v.Charts) > 0 {
 		d.pdfCharts(v.Charts)
@@ -332,7 +442,11 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 			d.subheading(quantityWords(t.Quantity) + ", " + orDash(t.FieldMode) + " field")
 			var rows [][]string
 			for _, p := range t.Points {
-				rows = append(rows, []string{Day(p.Date), p.Site + " / " + p.Room, ValueWithUnc(p.Value, p.ExpUnc), Percent(p.Fraction), strings.ToUpper(p.Verdict)})
+				day := Day(p.Date)
+				if p.Simulated {
+					day += " (simulated)"
+				}
+				rows = append(rows, []string{day, p.Site + " / " + p.Room, pdfValue(p.Value, p.ExpUnc), Percent(p.Fraction), strings.ToUpper(p.Verdict)})
 			}
 			d.table([]pdfCol{{"Date", .15, false}, {"Site / room", .4, false}, {"Value ± U", .17, true}, {"Of baseline", .15, true}, {"Verdict", .13, false}}, rows)
 			d.para(trendSentence(t), 8.5)
@@ -377,11 +491,13 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 		d.table([]pdfCol{{"Time", .15, false}, {"Step", .1, true}, {"Quantity", .3, false}, {"Value", .2, true}, {"Source", .25, false}}, rows)
 	}
 
+	for _, t := range v.SigningPost {
+		d.info(t)
+	}
+
 	d.heading("Uncertainty budgets")
-	for _, res := range r.Results {
-		if len(res.Budget) == 0 {
-			continue
-		}
+	for _, bv := range v.Budgets {
+		res := bv.Result
 		d.subheading(fmt.Sprintf("%s%s: %s %s (k = %s)", quantityWords(res.Quantity), prefixed(", ", res.FieldMode), ValueWithUnc(res.Value, res.ExpUnc), unitShown(res.Unit), Kf(res.K)))
 		var rows [][]string
 		for _, b := range res.Budget {
@@ -397,6 +513,13 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 		}
 		rows = append(rows, []string{"Combined standard uncertainty of the result", "", "", Number(res.StdUnc), rel, "", "U = " + Number(res.ExpUnc), "k = " + Kf(res.K)})
 		d.table([]pdfCol{{"Source", .32, false}, {"Type", .06, false}, {"Estimate", .14, true}, {"Std. unc.", .12, true}, {"Relative", .09, true}, {"Sens.", .07, true}, {"Contrib.", .1, true}, {"DoF", .1, true}}, rows)
+		if len(bv.Gaps) > 0 {
+			var gaps [][]string
+			for _, g := range bv.Gaps {
+				gaps = append(gaps, []string{g.Source, g.Why})
+			}
+			d.tableSized([]pdfCol{{"Also weighed, not in the rows above", .32, false}, {"Why", .68, false}}, gaps, 7, true)
+		}
 	}
 
 	d.heading("Safety acknowledgements")
@@ -495,7 +618,7 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 		}
 		rows = append(rows, []string{fmt.Sprint(g.Step), g.StepID, g.FieldMode, g.Position, g.Meter, fmt.Sprint(g.N), fmt.Sprint(g.Used), mean, rng, g.Unit, strings.Join(g.Corrections, ", "), strings.Join(notes, "; ")})
 	}
-	d.tableSized([]pdfCol{{"Step", .04, true}, {"Step id", .12, false}, {"Field", .05, false}, {"Position", .07, false}, {"Meter", .08, false}, {"Readings", .06, true}, {"Used", .05, true}, {"Mean", .07, true}, {"Lowest – highest", .12, true}, {"Unit", .06, false}, {"Corrections", .18, false}, {"Notes", .1, false}}, rows, 7)
+	d.tableSized([]pdfCol{{"Step", .04, true}, {"Step id", .12, false}, {"Field", .05, false}, {"Position", .07, false}, {"Meter", .08, false}, {"Readings", .06, true}, {"Used", .05, true}, {"Mean", .07, true}, {"Lowest – highest", .12, true}, {"Unit", .06, false}, {"Corrections", .18, false}, {"Notes", .1, false}}, rows, 7, true)
 	if len(r.Readings) <= pdfReadingsMax {
 		d.subheading("Every reading")
 		rows = rows[:0]
@@ -512,7 +635,7 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 			}
 			rows = append(rows, []string{fmt.Sprint(rd.Seq), Clock(rd.Wall), rd.StepID, rd.FieldMode, rd.Position, rd.Meter, rd.Raw, correctionsText(rd.Corrections), Number(rd.Value) + " " + rd.Unit, st})
 		}
-		d.tableSized([]pdfCol{{"Seq", .04, true}, {"Time", .06, false}, {"Step", .11, false}, {"Field", .05, false}, {"Position", .07, false}, {"Meter", .07, false}, {"Raw line", .14, false}, {"Corrections", .24, false}, {"Corrected", .09, true}, {"Status", .13, false}}, rows, 6.5)
+		d.tableSized([]pdfCol{{"Seq", .04, true}, {"Time", .06, false}, {"Step", .11, false}, {"Field", .05, false}, {"Position", .07, false}, {"Meter", .07, false}, {"Raw line", .14, false}, {"Corrections", .24, false}, {"Corrected", .09, true}, {"Status", .13, false}}, rows, 6.5, true)
 	} else {
 		d.para(fmt.Sprintf("The %d readings one by one (raw line, each correction, corrected value) are in the readings CSV and the HTML report: more than %d would not make a readable PDF.", len(r.Readings), pdfReadingsMax), 8)
 	}

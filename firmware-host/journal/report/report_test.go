@@ -187,14 +187,14 @@ func TestReportShowsTheRecord(t *testing.T) {
 	}
 
 	for _, c := range sampleCerts() {
-		row := rowOf(html, "<td>"+c.ID+"</td>")
-		if row == "" || !strings.Contains(row, Day(c.Due)) || !strings.Contains(row, Day(c.Calibrated)) {
+		row := rowOf(html, `<td><span class="nw">`+c.ID+`</span></td><td>`+c.Meter+`</td>`)
+		if row == "" || !strings.Contains(row, Day(c.Due)) || !strings.Contains(row, Day(c.Calibrated)) || !strings.Contains(row, `<span class="nw">`+Day(c.Due)+`</span>`) {
 			t.Errorf("certificate %s with due date %s not shown: %q", c.ID, Day(c.Due), row)
 		}
 	}
 	// The photometer certificate is due 13 days after the session day
 	// (2026-11-18 to 2026-12-01): within the month's warning.
-	if row := rowOf(html, "<td>NCL-P-24190</td>"); !strings.Contains(row, "due soon (12 days left)") && !strings.Contains(row, "due soon (13 days left)") {
+	if row := rowOf(html, `<td><span class="nw">NCL-P-24190</span></td><td>photometer</td>`); !strings.Contains(row, "due soon (12 days left)") && !strings.Contains(row, "due soon (13 days left)") {
 		t.Errorf("photometer certificate not marked due soon: %s", row)
 	}
 
@@ -232,10 +232,10 @@ func TestReportShowsTheRecord(t *testing.T) {
 			t.Errorf("%s %s: verdict %s decided by %q not shown: %s", res.Quantity, res.FieldMode, res.Verdict, res.DecidedBy, row)
 		}
 	}
-	if r.Verdict() != "fail" || !strings.Contains(html, "Contrast ratio (32cm): fails specification: at least 15") {
+	if r.Verdict() != "fail" || !strings.Contains(html, "Contrast ratio (32cm): outside the specification: at least 15") {
 		t.Errorf("summary does not say the contrast ratio fails: verdict %s", r.Verdict())
 	}
-	for _, want := range []string{"qualified medical physicist", "radiation safety officer", "X-rays are dangerous", "Signature", "meter_lost", "Step conversion-25cm retake"} {
+	for _, want := range []string{"qualified medical physicist", "radiation safety officer", "X-rays are dangerous", "Signature", "A meter was lost: 1 time", "Step conversion-25cm retake"} {
 		if !strings.Contains(html, want) {
 			t.Errorf("report lacks %q", want)
 		}
