@@ -181,3 +181,16 @@ func TestLegacyScalingLimitName(t *testing.T) {
 		}
 	}
 }
+
+// The example board has the pause on: two presses pause (the pause menu
+// then offers going on, stopping and skipping the field mode) and three
+// say the prompt again; with the gap off, neither gesture exists.
+func TestExampleBoardPauses(t *testing.T) {
+	b, err := Load("../../testdata/bench/tollemby-rise-room2.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if b.Panel.Kind != "gpio" || b.Panel.DoublePress <= 0 {
+		t.Errorf("panel %s with double_press %s: the example board has no pause", b.Panel.Kind, b.Panel.DoublePress)
+	}
+}

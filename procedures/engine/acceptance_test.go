@@ -80,6 +80,13 @@ type visitRun struct {
 // simulated operator.
 func runBuiltinOnSimulator(t *testing.T, scenario, name string, values map[string]float64) visitRun {
 	t.Helper()
+	return runBuiltinOnSimulatorWith(t, scenario, name, values, nil)
+}
+
+// runBuiltinOnSimulatorWith is runBuiltinOnSimulator with the test's own
+// answers first (reply returns false to leave a prompt to the operator).
+func runBuiltinOnSimulatorWith(t *testing.T, scenario, name string, values map[string]float64, reply func(panel.Prompt) (panel.Response, bool)) visitRun {
+	t.Helper()
 	scn, err := benchsim.LoadScenario(scenario)
 	if err != nil {
 		t.Fatal(err)
@@ -106,7 +113,16 @@ func runBuiltinOnSimulator(t *testing.T, scenario, name string, values map[strin
 	proc := FromFlat(flat)
 	clk := clock.NewManual(time.Date(2026, 3, 4, 9, 0, 0, 0, time.UTC))
 	ask, say := operator(model, clk)
-	pan := scripted.New(clk, scripted.WithThinkTime(300*time.Millisecond), scripted.WithResponder(ask), scripted.OnSay(say))
+	respond := ask
+	if reply != nil {
+		respond = func(p panel.Prompt) panel.Response {
+			if r, ok := reply(p); ok {
+				return r
+			}
+			return ask(p)
+		}
+	}
+	pan := scripted.New(clk, scripted.WithThinkTime(300*time.Millisecond), scripted.WithResponder(respond), scripted.OnSay(say))
 	jr := newMemJournal(clk)
 	cfg := Config{
 		Procedure: proc,

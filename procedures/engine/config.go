@@ -314,6 +314,8 @@ type Summary struct {
 	Steps   int // steps done
 	Of      int
 	Review  int // results that need review
+	// Skipped are the field modes the operator chose to skip.
+	Skipped []string
 }
 
 // fillLimits puts the defaults into every zero setting.

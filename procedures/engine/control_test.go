@@ -47,7 +47,9 @@ func TestRetakeLastStep(t *testing.T) {
 	}
 }
 
-// Pause leaves the session unfinished (resumable); abort ends it.
+// Pause leaves the session unfinished (resumable); abort ends it. A
+// pause gesture brings the pause menu, where the pause gesture again
+// stops.
 func TestPauseAndAbort(t *testing.T) {
 	for _, c := range []struct {
 		answer  panel.Answer
@@ -57,7 +59,7 @@ func TestPauseAndAbort(t *testing.T) {
 	}{{panel.Pause, ErrPaused, "paused", false}, {panel.Abort, ErrAborted, "aborted", true}} {
 		r := newRig(cfSteps())
 		r.reply = func(p panel.Prompt) (panel.Response, bool) {
-			if p.Action == panel.ActValue {
+			if p.Action == panel.ActValue || p.Action == panel.ActMenu {
 				return panel.Response{Answer: c.answer}, true
 			}
 			return panel.Response{}, false

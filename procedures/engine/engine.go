@@ -4,6 +4,8 @@ import (
 	"context"
 	"errors"
 	"fmt"
+
+	"kermalux/procedures/panel"
 )
 
 // Errors Run returns (wrapped); test with errors.Is.
@@ -25,6 +27,9 @@ type Engine struct {
 	cfg  Config
 	st   *state
 	prog progress
+	// sinceAsk are the messages said since the last answered prompt, for
+	// an operator who asks to hear them again.
+	sinceAsk []panel.Message
 }
 
 // New checks cfg and returns an engine ready to Run.

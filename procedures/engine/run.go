@@ -163,12 +163,33 @@ func (e *Engine) run(ctx context.Context) (Summary, error) {
 		}
 		err := e.doStep(ctx, idx, step)
 		var skip *skipError
+		var skipMode *errSkipMode
 		switch {
 		case err == nil:
 			rec.State = entry.StepDone
 		case errors.As(err, &skip):
 			rec.State = entry.StepSkipped
 			rec.Reason = skip.reason
+		case errors.As(err, &skipMode):
+			// The rest of this field mode's steps are skipped, each
+			// journalled with the reason; the sequence goes on after them.
+			j := i
+			for j < n && steps[j].FieldMode == step.FieldMode && steps[j].Part == step.Part && steps[j].Procedure == step.Procedure {
+				if !st.done[j+1] {
+					s := steps[j]
+					if err := e.journal(ctx, entry.KindStep, entry.Step{Index: j + 1, Of: n, ID: s.ID, Kind: string(s.Kind), FieldMode: s.FieldMode, State: entry.StepSkipped, Reason: skipMode.Error()}); err != nil {
+						return e.finish(ctx, sum, err)
+					}
+					st.done[j+1] = true
+				}
+				j++
+			}
+			sum.Skipped = appendUnique(sum.Skipped, step.FieldMode)
+			if err := e.say(ctx, idx, panel.Message{Text: fmt.Sprintf("Skipping the %s field.", step.FieldMode), Level: panel.Info}); err != nil {
+				return e.finish(ctx, sum, err)
+			}
+			i = j
+			continue
 		case errors.Is(err, errRetakePrev):
 			j := e.previousRetakable(i)
 			if j < 0 {
@@ -349,6 +370,9 @@ func closingSummary(sum Summary, beamOn time.Duration) string {
 	case others > 1:
 		text += fmt.Sprintf(" %s %sresults need review: %s.", spellCount(others), other, strings.Join(why, ", "))
 	}
+	for _, m := range sum.Skipped {
+		text += " Skipped: the " + m + " field."
+	}
 	return text + " Beam-on time " + spokenDuration(beamOn) + "."
 }
 
@@ -400,6 +424,7 @@ func (e *Engine) appendSeq(ctx context.Context, kind entry.Kind, payload any) (i
 
 // say shows and speaks m, and journals it.
 func (e *Engine) say(ctx context.Context, step int, m panel.Message) error {
+	e.sinceAsk = append(e.sinceAsk, m)
 	if err := e.journal(ctx, entry.KindPrompt, entry.Prompt{Step: step, Level: string(m.Level), Action: string(m.Action), Text: m.Text}); err != nil {
 		return err
 	}
@@ -422,6 +447,37 @@ func (e *Engine) ask(ctx context.Context, p panel.Prompt) (panel.Response, error
 	if p.Next == "" {
 		p.Next = e.nextText(p.Step)
 	}
+	for {
+		r, err := e.askOnce(ctx, p)
+		if err != nil {
+			return r, err
+		}
+		switch r.Answer {
+		case panel.Repeat:
+			// Say again what was said since the last answer, then ask again.
+			if err := e.sayAgain(ctx, p.Step); err != nil {
+				return r, err
+			}
+			continue
+		case panel.Pause:
+			again, err := e.pauseMenu(ctx, p)
+			if err != nil || !again {
+				return r, err
+			}
+			continue
+		case panel.Abort:
+			_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: p.Step, Name: evAborted, BeamOn: e.st.beamOn.Seconds()})
+			return r, ErrAborted
+		case panel.Retake:
+			return r, errRetakePrev
+		}
+		e.sinceAsk = nil
+		return r, nil
+	}
+}
+
+// askOnce asks p once and journals the prompt and the answer.
+func (e *Engine) askOnce(ctx context.Context, p panel.Prompt) (panel.Response, error) {
 	seq, err := e.appendSeq(ctx, entry.KindPrompt, entry.Prompt{Step: p.Step, Level: string(p.Level), Action: string(p.Action), Text: p.Text, Asked: true, Setup: p.Setup})
 	if err != nil {
 		return panel.Response{}, err
@@ -437,17 +493,67 @@ func (e *Engine) ask(ctx context.Context, p panel.Prompt) (panel.Response, error
 	if err := e.journal(ctx, entry.KindAck, entry.Ack{Step: p.Step, PromptSeq: seq, Answer: string(r.Answer), Text: p.Text, At: at}); err != nil {
 		return r, err
 	}
-	switch r.Answer {
-	case panel.Pause:
-		_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: p.Step, Name: evPaused, BeamOn: e.st.beamOn.Seconds()})
-		return r, ErrPaused
-	case panel.Abort:
-		_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: p.Step, Name: evAborted, BeamOn: e.st.beamOn.Seconds()})
-		return r, ErrAborted
-	case panel.Retake:
-		return r, errRetakePrev
-	}
 	return r, nil
+}
+
+// sayAgain repeats the messages said since the last answered prompt (a
+// result, a warning), for an operator who asked to hear them again.
+func (e *Engine) sayAgain(ctx context.Context, step int) error {
+	again := e.sinceAsk
+	e.sinceAsk = nil
+	for _, m := range again {
+		m.Action = panel.ActNone // a "release the beam" said again is not a new one
+		if err := e.say(ctx, step, m); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+// errSkipMode: the operator chose to skip the field mode of the step at a
+// pause.
+type errSkipMode struct{ mode string }
+
+func (e *errSkipMode) Error() string {
+	return "the " + e.mode + " field mode was skipped by the operator"
+}
+
+// pauseMenu is asked after a pause gesture: go on (a press), stop here to
+// resume later (the pause gesture again), or, in a field mode of a
+// per-field-mode block, skip the rest of that mode (a long press). It
+// reports whether p is to be asked again.
+func (e *Engine) pauseMenu(ctx context.Context, p panel.Prompt) (bool, error) {
+	mode := ""
+	if i := p.Step - 1; i >= 0 && i < len(e.cfg.Procedure.Steps) {
+		mode = e.cfg.Procedure.Steps[i].FieldMode
+	}
+	text := "Paused. Press to go on. Double press again to stop here; run again to resume."
+	if mode != "" {
+		text = fmt.Sprintf("Paused. Press to go on. Hold to skip the %s field. Double press again to stop here; run again to resume.", mode)
+	}
+	menu := panel.Prompt{Message: panel.Message{Text: text, Level: panel.Info, Action: panel.ActMenu}, Step: p.Step, Of: p.Of, StepID: p.StepID}
+	e.withProgress(&menu)
+	for {
+		r, err := e.askOnce(ctx, menu)
+		if err != nil {
+			return false, err
+		}
+		switch r.Answer {
+		case panel.Repeat:
+			continue
+		case panel.Pause:
+			_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: p.Step, Name: evPaused, BeamOn: e.st.beamOn.Seconds()})
+			return false, ErrPaused
+		case panel.Abort:
+			_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: p.Step, Name: evAborted, BeamOn: e.st.beamOn.Seconds()})
+			return false, ErrAborted
+		case panel.Retake:
+			if mode != "" {
+				return false, &errSkipMode{mode: mode}
+			}
+		}
+		return true, nil
+	}
 }
 
 // nextText is the progress line: what comes after step idx, and the

@@ -284,3 +284,58 @@ func TestProgressByEar(t *testing.T) {
 		t.Errorf("%d checklist lines", lines)
 	}
 }
+
+// The operator can hear the last prompt again (with what was said since
+// the previous answer), and skip a field mode from the pause menu: the
+// mode's steps are journalled as skipped with the reason, and the rest of
+// the visit goes on.
+func TestSayAgainAndSkipFieldMode(t *testing.T) {
+	scn := room2
+	var repeated, skipped bool
+	v := runBuiltinOnSimulatorWith(t, scn, "conversion-factor", room2Values, func(p panel.Prompt) (panel.Response, bool) {
+		switch {
+		case p.StepID == "select@32cm" && !repeated:
+			repeated = true
+			return panel.Response{Answer: panel.Repeat}, true
+		case p.StepID == "select@25cm" && p.Action == panel.ActSetup && !skipped:
+			return panel.Response{Answer: panel.Pause}, true
+		case p.Action == panel.ActMenu && !skipped:
+			skipped = true
+			return panel.Response{Answer: panel.Retake}, true
+		}
+		return panel.Response{}, false
+	})
+	asked := 0
+	for _, p := range v.pan.Prompts() {
+		if p.StepID == "select@32cm" {
+			asked++
+		}
+	}
+	if asked != 2 {
+		t.Errorf("the repeated prompt was asked %d times, want 2", asked)
+	}
+	for _, r := range v.sum.Results {
+		if r.FieldMode == "25cm" {
+			t.Errorf("a result in the skipped mode: %+v", r)
+		}
+	}
+	n := 0
+	for _, s := range records[entry.Step](v.jr, v.sum.Session, entry.KindStep) {
+		if s.State == entry.StepSkipped && s.FieldMode == "25cm" {
+			n++
+			if !strings.Contains(s.Reason, "skipped by the operator") {
+				t.Errorf("skip reason %q", s.Reason)
+			}
+		}
+	}
+	if n != 5 {
+		t.Errorf("%d steps of the 25cm mode journalled as skipped, want its 5", n)
+	}
+	msgs := v.pan.Messages()
+	if last := msgs[len(msgs)-1].Text; !strings.Contains(last, "Skipped: the 25cm field.") {
+		t.Errorf("closing summary %q does not say the skipped mode", last)
+	}
+	if len(v.sum.Skipped) != 1 || v.sum.Skipped[0] != "25cm" {
+		t.Errorf("summary skipped %v", v.sum.Skipped)
+	}
+}

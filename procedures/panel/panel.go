@@ -39,6 +39,7 @@ const (
 	ActBeamOn      Action = "beam_on"     // acknowledge, then switch the beam on
 	ActBeamOff     Action = "beam_off"    // release the beam now
 	ActAcknowledge Action = "acknowledge" // plain press to continue
+	ActMenu        Action = "menu"        // the pause menu: press to go on, the pause gesture to stop, hold to skip the field mode
 )
 
 // Message is something to show and say; it does not wait.
@@ -95,6 +96,9 @@ const (
 	Retake Answer = "retake" // long press / r: redo the last step
 	Pause  Answer = "pause"
 	Abort  Answer = "abort"
+	// Repeat: say the last prompt (and what was said since the previous
+	// answer) again, then wait for the answer as before.
+	Repeat Answer = "repeat"
 )
 
 // Response is the operator's answer to a prompt.

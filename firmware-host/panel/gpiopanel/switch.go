@@ -61,8 +61,9 @@ func (s *footSwitch) settle(ctx context.Context, want bool, deadline time.Durati
 
 // press waits for one gesture and says what it meant: a short press is
 // Ack, a press held for the long-press time is Retake (reported as soon as
-// the time is reached, so the operator hears it while still pressing), and
-// two short presses close together are Pause. A switch already held when
+// the time is reached, so the operator hears it while still pressing), two
+// short presses close together are Pause, and three are Repeat (say it
+// again). Pause and Repeat need the double-press gap set. A switch already held when
 // press is called must be released first, so a stuck or resting foot
 // cannot acknowledge a string of prompts; held is called once if that
 // takes longer than the long-press time.
@@ -101,10 +102,27 @@ func (s *footSwitch) press(ctx context.Context, held func()) (panel.Answer, erro
 	if s.double <= 0 {
 		return panel.Ack, nil
 	}
-	if _, ok, err = s.settle(ctx, true, up+s.double); err != nil {
+	down2, ok, err := s.settle(ctx, true, up+s.double)
+	if err != nil {
 		return "", err
 	} else if !ok {
 		return panel.Ack, nil
 	}
-	return panel.Pause, nil
+	// A third short press within the same gap: say the prompt again.
+	up2, ok, err := s.settle(ctx, false, down2+s.long)
+	if err != nil {
+		return "", err
+	}
+	if !ok {
+		return panel.Pause, nil // the second press held: a pause all the same
+	}
+	if _, ok, err = s.settle(ctx, true, up2+s.double); err != nil {
+		return "", err
+	} else if !ok {
+		return panel.Pause, nil
+	}
+	if _, _, err := s.settle(ctx, false, 0); err != nil {
+		return "", err
+	}
+	return panel.Repeat, nil
 }

@@ -221,7 +221,10 @@ func Progress(pr panel.Prompt) string {
 	return s
 }
 
-const keysLine = "Enter = done, r = retake, p = pause, q = abort"
+const keysLine = "Enter = done, a = again, r = retake, p = pause, q = abort"
+
+// menuKeysLine is shown at the pause menu.
+const menuKeysLine = "Enter = go on, p = stop here (resume later), r = skip this field mode, q = abort"
 
 // Ask prints pr and waits for a key (or a value) on the input.
 func (p *Panel) Ask(ctx context.Context, pr panel.Prompt) (panel.Response, error) {
@@ -246,14 +249,17 @@ func (p *Panel) Ask(ctx context.Context, pr panel.Prompt) (panel.Response, error
 		p.opt.Voice.Say(speech.ForEar(pr.Spoken()), pr.Level == panel.Alarm)
 	}
 	v := pr.Value
-	if v == nil {
+	switch {
+	case pr.Action == panel.ActMenu:
+		fmt.Fprintf(p.out, "%s%s\n", indent, menuKeysLine)
+	case v == nil:
 		fmt.Fprintf(p.out, "%s%s\n", indent, keysLine)
-	} else {
+	default:
 		def := "no default: type a number"
 		if v.HasDef {
 			def = fmt.Sprintf("Enter = %s", fmtNum(v.Default))
 		}
-		fmt.Fprintf(p.out, "%s%s in %s, %s to %s; %s; r = retake, p = pause, q = abort\n",
+		fmt.Fprintf(p.out, "%s%s in %s, %s to %s; %s; a = again, r = retake, p = pause, q = abort\n",
 			indent, v.Name, v.Unit, fmtNum(v.Min), fmtNum(v.Max), def)
 	}
 
@@ -270,6 +276,8 @@ func (p *Panel) Ask(ctx context.Context, pr panel.Prompt) (panel.Response, error
 			return p.answer(panel.Retake, 0), nil
 		case "p":
 			return p.answer(panel.Pause, 0), nil
+		case "a":
+			return p.answer(panel.Repeat, 0), nil
 		case "q":
 			fmt.Fprintf(p.out, "%sAbort the session? Type q again to abort, Enter to carry on.\n> ", indent)
 			s, err := p.readLine(ctx)
