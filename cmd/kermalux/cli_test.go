@@ -157,3 +157,35 @@ func TestJSONOutputs(t *testing.T) {
 		t.Errorf("procedures --steps --json: exit %d, %.300s %s", code, out, errb)
 	}
 }
+
+// TestRunRefusesMissingOutBeforeTheFirstStep: a results folder that does
+// not exist stops run before the journal, the panel or a meter is opened.
+func TestRunRefusesMissingOutBeforeTheFirstStep(t *testing.T) {
+	dir := t.TempDir()
+	jp := filepath.Join(dir, "j.db")
+	code, _, errb := runCLI(t, "run", "meter-checks", "--bench", "../../testdata/bench/demo-sim.yaml", "--panel", "terminal",
+		"--journal", jp, "--out", filepath.Join(dir, "missing"))
+	if code != exitUsage || !strings.Contains(errb, "--out") || !strings.Contains(errb, "missing") {
+		t.Errorf("run --out missing: exit %d, %s", code, errb)
+	}
+	if _, err := os.Stat(jp); err == nil {
+		t.Errorf("the journal was opened before --out was checked")
+	}
+}
+
+// TestDemoJSON: demo --json prints only a JSON summary, marked simulated.
+func TestDemoJSON(t *testing.T) {
+	if testing.Short() {
+		t.Skip("runs a short demo (meter checks) in scaled real time")
+	}
+	out := t.TempDir()
+	code, stdout, errb := runCLI(t, "demo", "--out", out, "--procedure", "meter-checks", "--format", "csv", "--json")
+	var doc struct {
+		Simulated bool             `json:"simulated"`
+		Results   []map[string]any `json:"results"`
+		Journal   string           `json:"journal"`
+	}
+	if code != exitOK || json.Unmarshal([]byte(stdout), &doc) != nil || !doc.Simulated || len(doc.Results) == 0 || doc.Journal == "" {
+		t.Errorf("demo --json: exit %d\n%.500s\n%s", code, stdout, errb)
+	}
+}

@@ -2,6 +2,7 @@ package main
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"io"
 	"os"
@@ -25,6 +26,19 @@ type demoOptions struct {
 	procedure string
 	formats   string
 	quiet     bool
+	asJSON    bool
+}
+
+// demoJSON is `demo --json`: the results file (simulated: true) and
+// where everything was written.
+type demoJSON struct {
+	engine.ResultsFile
+	ResultsPath string   `json:"results_path"`
+	Journal     string   `json:"journal"`
+	Bench       string   `json:"bench"`
+	Reports     []string `json:"reports"`
+	SimulatedS  float64  `json:"simulated_s"` // session time on the simulated clock
+	WallS       float64  `json:"wall_s"`
 }
 
 func init() {
@@ -52,6 +66,7 @@ The simulator's figures are invented: they are not measurements.`,
 	f.StringVar(&o.procedure, "procedure", "", "procedure to run (default: acceptance)")
 	f.StringVar(&o.formats, "format", "html,pdf,csv", "report formats")
 	f.BoolVarP(&o.quiet, "quiet", "q", false, "print only the summary")
+	f.BoolVar(&o.asJSON, "json", false, "print only the summary, as JSON (the results file and the paths written)")
 	register(cmd)
 }
 
@@ -67,17 +82,38 @@ func runDemo(parent context.Context, w io.Writer, o demoOptions, hasSeed bool) e
 	}
 	opts := demo.Options{Out: o.out, Scenario: o.scenario, Seed: o.seed, HasSeed: hasSeed, Speed: o.speed,
 		Procedure: o.procedure, Render: render, Version: version}
-	if !o.quiet {
+	if !o.quiet && !o.asJSON {
 		opts.Dialogue = w
 	}
 	out, runErr := demo.Run(ctx, opts)
-	if out != nil {
+	switch {
+	case out != nil && o.asJSON:
+		if err := printDemoJSON(w, out); err != nil {
+			return withCode(exitFailure, errors.Join(runErr, err))
+		}
+	case out != nil:
 		printDemoSummary(w, out)
 	}
 	if runErr != nil {
 		return withCode(exitFailure, runErr)
 	}
 	return nil
+}
+
+func printDemoJSON(w io.Writer, out *demo.Outcome) error {
+	doc := demoJSON{ResultsPath: out.Results, Journal: out.Journal, Bench: out.Bench, Reports: out.Reports,
+		SimulatedS: out.Elapsed.Seconds(), WallS: out.Wall.Seconds()}
+	if doc.Reports == nil {
+		doc.Reports = []string{}
+	}
+	if out.Results != "" {
+		rf, err := engine.ReadResults(out.Results)
+		if err != nil {
+			return err
+		}
+		doc.ResultsFile = rf
+	}
+	return writeJSON(w, doc)
 }
 
 func printDemoSummary(w io.Writer, out *demo.Outcome) {

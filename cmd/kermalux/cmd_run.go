@@ -25,6 +25,7 @@ type runOptions struct {
 	bench   string
 	panel   string
 	out     string
+	asJSON  bool // print the results file on stdout at the end
 	journal string
 	standby bool
 	fresh   bool
@@ -58,7 +59,8 @@ medical physicist or radiation safety officer.`,
 	f := cmd.Flags()
 	f.StringVar(&o.bench, "bench", "", "bench file (required)")
 	f.StringVar(&o.panel, "panel", "", "panel: terminal or gpio (default: the bench file's)")
-	f.StringVar(&o.out, "out", ".", "directory for results.json")
+	f.StringVar(&o.out, "out", ".", "directory for results.json (must exist: checked before the first step)")
+	f.BoolVar(&o.asJSON, "json", false, "at the end, print the results (as in results.json) on stdout")
 	f.StringVar(&o.journal, "journal", "", "journal file (default: the bench file's)")
 	f.BoolVar(&o.standby, "standby", false, "wait at the ready for a foot-switch press before starting")
 	f.BoolVar(&o.fresh, "new", false, "start a new session even if an unfinished one exists")
@@ -76,6 +78,10 @@ func runRun(parent context.Context, o runOptions, name string) error {
 	b, err := bench.Load(o.bench)
 	if err != nil {
 		return withCode(exitFailure, err)
+	}
+	// Before the first step: results.json must have somewhere to go.
+	if err := engine.CheckResultsDir(o.out); err != nil {
+		return withCode(exitUsage, fmt.Errorf("--out: %w", err))
 	}
 	proc, err := b.Procedure(name)
 	if err != nil {
@@ -161,6 +167,11 @@ func runRun(parent context.Context, o runOptions, name string) error {
 			return withCode(exitFailure, errors.Join(runErr, err))
 		}
 		fmt.Fprintf(os.Stderr, "session %s: %s, %d results, %d to review, beam-on %.0f s; %s\n", sum.Session, sum.Outcome, len(sum.Results), sum.Review, sum.BeamOn.Seconds(), path)
+		if o.asJSON {
+			if err := engine.WriteResults(os.Stdout, engine.NewResultsFile(sum, cfg.Session)); err != nil {
+				return withCode(exitFailure, errors.Join(runErr, err))
+			}
+		}
 	}
 	if runErr != nil {
 		return withCode(exitFailure, runErr)

@@ -210,3 +210,27 @@ func FourDigits(v float64) string {
 
 // CoverageFactor writes k with two decimals, the same in every table.
 func CoverageFactor(k float64) string { return strconv.FormatFloat(k, 'f', 2, 64) }
+
+// CheckResultsDir makes sure results.json can be written into dir before
+// a session starts: the folder exists, is a folder and takes a file. A
+// session must not run its exposures only to find at the end that its
+// results have nowhere to go.
+func CheckResultsDir(dir string) error {
+	st, err := os.Stat(dir)
+	switch {
+	case err != nil:
+		return fmt.Errorf("results folder %s: %w (create it first)", dir, err)
+	case !st.IsDir():
+		return fmt.Errorf("results folder %s is not a folder", dir)
+	}
+	f, err := os.CreateTemp(dir, ".results-check-*")
+	if err != nil {
+		return fmt.Errorf("results folder %s cannot take a file: %w", dir, err)
+	}
+	name := f.Name()
+	f.Close()
+	if err := os.Remove(name); err != nil {
+		return fmt.Errorf("results folder %s: %w", dir, err)
+	}
+	return nil
+}

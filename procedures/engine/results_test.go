@@ -2,6 +2,9 @@ package engine
 
 import (
 	"bytes"
+	"errors"
+	"os"
+	"path/filepath"
 	"strings"
 	"testing"
 
@@ -103,6 +106,35 @@ func TestRoundToUncertainty(t *testing.T) {
 	}{{2.002, "2.00"}, {2.01, "2.01"}, {2, "2.00"}, {2.128, "2.13"}} {
 		if got := CoverageFactor(c.k); got != c.want {
 			t.Errorf("CoverageFactor(%g) = %q, want %q", c.k, got, c.want)
+		}
+	}
+}
+
+// TestCheckResultsDir: a missing folder, a file in its place and a
+// read-only folder are refused before any session starts.
+func TestCheckResultsDir(t *testing.T) {
+	dir := t.TempDir()
+	if err := CheckResultsDir(dir); err != nil {
+		t.Errorf("writable folder: %v", err)
+	}
+	missing := filepath.Join(dir, "no-such-folder")
+	if err := CheckResultsDir(missing); err == nil || !strings.Contains(err.Error(), "no-such-folder") || !errors.Is(err, os.ErrNotExist) {
+		t.Errorf("missing folder: %v", err)
+	}
+	file := filepath.Join(dir, "a-file")
+	if err := os.WriteFile(file, nil, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	if err := CheckResultsDir(file); err == nil || !strings.Contains(err.Error(), "not a folder") {
+		t.Errorf("a file: %v", err)
+	}
+	if os.Geteuid() != 0 { // root writes anywhere
+		ro := filepath.Join(dir, "ro")
+		if err := os.Mkdir(ro, 0o500); err != nil {
+			t.Fatal(err)
+		}
+		if err := CheckResultsDir(ro); err == nil {
+			t.Errorf("read-only folder accepted")
 		}
 	}
 }

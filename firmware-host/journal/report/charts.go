@@ -520,7 +520,7 @@ func trendSpec(t Trend) (chartSpec, error) {
 		}
 		fit.Color, fit.Width, fit.Dashes = fitColor, vg.Points(1.2), []vg.Length{vg.Points(5), vg.Points(3)}
 		p.Add(fit)
-		p.Legend.Add(fmt.Sprintf("least-squares line (%+.1f %% of baseline a year)", 100*t.FracPerYear), fit)
+		p.Legend.Add(fmt.Sprintf("least-squares line, %s %% of baseline a year", strings.Replace(fmt.Sprintf("%+.1f", 100*t.FracPerYear), "-", "−", 1)), fit)
 		if len(upper) > 0 {
 			for i, b := range []plotter.XYs{upper, lower} {
 				bl, err := plotter.NewLine(b)
@@ -530,7 +530,7 @@ func trendSpec(t Trend) (chartSpec, error) {
 				bl.Color, bl.Width, bl.Dashes = fitColor, vg.Points(0.7), []vg.Length{vg.Points(1.5), vg.Points(2)}
 				p.Add(bl)
 				if i == 0 {
-					p.Legend.Add(fmt.Sprintf("%.0f %% confidence band of the line", 100*BandLevel), bl)
+					p.Legend.Add(fmt.Sprintf("%.0f %% band of the line", 100*BandLevel), bl)
 				}
 			}
 		}
@@ -547,31 +547,23 @@ func trendSpec(t Trend) (chartSpec, error) {
 			al.Dashes = []vg.Length{vg.Points(6), vg.Points(2)}
 		}
 		p.Add(al)
-		p.Legend.Add(limitWords(pr.Kind, pr.Bound, pr.Fraction, pr.Value, t.Unit), al)
+		// The legend names the limit and the projected month with its
+		// band; labels inside the plot would squeeze the data area.
+		name := pdfText(limitShort(pr.Kind, pr.Fraction, pr.Value))
+		if pr.HasCrossing {
+			name += ": " + crossingShort(pr)
+		}
+		p.Legend.Add(name, al)
 		ymin, ymax = math.Min(ymin, pr.Value), math.Max(ymax, pr.Value)
 		if !pr.HasCrossing || !pr.Crossing.After(t.Points[len(t.Points)-1].Date) || decimalYear(pr.Crossing) > xmax+0.01 {
 			continue
 		}
-		x := decimalYear(pr.Crossing)
-		mk, err := plotter.NewScatter(plotter.XYs{{X: x, Y: pr.Value}})
+		mk, err := plotter.NewScatter(plotter.XYs{{X: decimalYear(pr.Crossing), Y: pr.Value}})
 		if err != nil {
 			return chartSpec{}, err
 		}
-		mk.GlyphStyle.Color, mk.GlyphStyle.Radius, mk.GlyphStyle.Shape = c, vg.Points(3), draw.CrossGlyph{}
+		mk.GlyphStyle.Color, mk.GlyphStyle.Radius, mk.GlyphStyle.Shape = c, vg.Points(4), draw.CrossGlyph{}
 		p.Add(mk)
-		lb, err := plotter.NewLabels(plotter.XYLabels{
-			XYs:    plotter.XYs{{X: x, Y: pr.Value}},
-			Labels: []string{"projected " + crossingWords(pr)},
-		})
-		if err != nil {
-			return chartSpec{}, err
-		}
-		lb.TextStyle[0].Font = sansStyle(8)
-		lb.TextStyle[0].Color = c
-		lb.TextStyle[0].XAlign = draw.XRight
-		lb.TextStyle[0].YAlign = draw.YTop
-		lb.Offset = vg.Point{X: vg.Points(-4), Y: vg.Points(-4)}
-		p.Add(lb)
 	}
 	sc, eb, err := pointsWithBars(pts, errs, 3.5)
 	if err != nil {
@@ -580,13 +572,16 @@ func trendSpec(t Trend) (chartSpec, error) {
 	p.Add(eb, sc)
 	p.Legend.Add("session (bars: U)", sc)
 	p.Legend.Top = true
-	p.Legend.XOffs, p.Legend.YOffs = -vg.Points(8), -vg.Points(6)
-	p.Legend.Padding = vg.Points(2)
+	p.Legend.TextStyle.Font = sansStyle(8)
+	p.Legend.XOffs, p.Legend.YOffs = -vg.Points(6), -vg.Points(4)
+	p.Legend.Padding = vg.Points(1.5)
 	p.X.Min, p.X.Max = math.Floor(xmin-0.3), math.Ceil(xmax+0.3)
 	p.Y.Min = math.Max(0, ymin-0.1*(ymax-ymin+1))
-	p.Y.Max = ymax + 0.35*(ymax-p.Y.Min)
+	p.Y.Tick.Marker = niceTicks{n: 6}
+	// Room above the points for the legend, one line per entry.
+	p.Y.Max = ymax + (0.12+0.09*float64(len(t.Projections)+3))*(ymax-p.Y.Min)
 	caption := fmt.Sprintf("Dashed: least-squares line through the measured sessions, with its %.0f %% confidence band (dotted), extended to the projected dates at the configured limits.", 100*BandLevel)
-	return chartSpec{p: p, name: "trend-" + slug(t.FieldMode), title: title, caption: caption, w: 6 * vg.Inch, h: 3.4 * vg.Inch}, nil
+	return chartSpec{p: p, name: "trend-" + slug(t.FieldMode), title: title, caption: caption, w: 6.5 * vg.Inch, h: 4 * vg.Inch}, nil
 }
 
 // unitText writes a canonical unit for chart axes.
@@ -679,4 +674,27 @@ func limitColor(kind string) color.Color {
 		return color.RGBA{0x8a, 0x4b, 0x0f, 0xff}
 	}
 	return color.RGBA{0x7a, 0x2a, 0x8a, 0xff}
+}
+
+// limitShort names a limit for a chart legend: "specification 120",
+// "baseline rule 80 % = 144.0".
+func limitShort(kind string, fraction, value float64) string {
+	if kind == "baseline" {
+		return fmt.Sprintf("baseline rule %.0f %% = %s", 100*fraction, Number(value))
+	}
+	return kind + " " + Exact(value)
+}
+
+// crossingShort is a projected month with its band, for a legend:
+// "Jul 2030 (Apr 2029 to Jun 2032)".
+func crossingShort(pr Projection) string {
+	const m = "Jan 2006"
+	s := pr.Crossing.Format(m)
+	switch {
+	case pr.HasEarly && pr.HasLate:
+		s += " (" + pr.Early.Format(m) + " to " + pr.Late.Format(m) + ")"
+	case pr.HasEarly:
+		s += " (from " + pr.Early.Format(m) + ")"
+	}
+	return s
 }

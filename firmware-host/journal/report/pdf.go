@@ -83,9 +83,23 @@ func (d *pdfDoc) info(t infoTable) {
 		d.para(s, 7.5)
 	}
 	if len(t.Rows) > 0 {
+		// Widths follow the longest text of each column (within reason),
+		// then fitColumns makes room for the longest word.
 		cols := make([]pdfCol, len(t.Head))
+		total := 0.0
 		for i, h := range t.Head {
-			cols[i] = pdfCol{head: h, width: 1 / float64(len(t.Head)), right: i < len(t.Right) && t.Right[i]}
+			n := len([]rune(h))
+			for _, row := range t.Rows {
+				if i < len(row) {
+					n = max(n, len([]rune(row[i])))
+				}
+			}
+			w := float64(min(max(n, 4), 60))
+			cols[i] = pdfCol{head: h, width: w, right: i < len(t.Right) && t.Right[i]}
+			total += w
+		}
+		for i := range cols {
+			cols[i].width /= total
 		}
 		if len(cols) == 2 && cols[0].head == "" {
 			cols[0].width, cols[1].width = 0.28, 0.72

@@ -22,6 +22,7 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"math"
 	"net/url"
 	"os"
 	"strings"
@@ -662,7 +663,7 @@ func (s *Store) Sessions(ctx context.Context, q Query) ([]SessionInfo, error) {
 // them through the chain).
 func (s *Store) Records(ctx context.Context, session string, after int64, limit int) ([]journal.Record, error) {
 	if limit <= 0 {
-		limit = 1 << 62
+		limit = math.MaxInt // not 1 << 62: int is 32 bits on ARMv6 and v7
 	}
 	rows, err := s.db.QueryContext(ctx, s.q(`SELECT session, seq, kind, wall, mono_ns, boot_id, payload, prev, hash, sig
 		FROM records WHERE session = ? AND seq > ? ORDER BY seq LIMIT ?`), session, after, limit)
