@@ -221,7 +221,7 @@ func mapSpec(m LuminanceMap) (chartSpec, error) {
 		if m.Centre > 0 {
 			labels = append(labels, fmt.Sprintf("%.0f %%", 100*q.Fraction))
 		} else {
-			labels = append(labels, fmt.Sprintf("%.3g", q.Mean))
+			labels = append(labels, Number(q.Mean))
 		}
 	}
 	if len(pts) == 0 {

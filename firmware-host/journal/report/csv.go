@@ -11,7 +11,9 @@ import (
 	"kermalux/procedures/entry"
 )
 
-func g(v float64) string { return strconv.FormatFloat(v, 'g', -1, 64) }
+// g writes v in full precision (the shortest decimal that reads back the
+// same) in fixed notation: 0.0000054, never 5.4e-06.
+func g(v float64) string { return strconv.FormatFloat(v, 'f', -1, 64) }
 
 // WriteResultsCSV writes one row per result, for spreadsheets: numbers in
 // full precision with a dot as decimal separator, times in RFC 3339.
@@ -50,7 +52,11 @@ func (r *Report) WriteReadingsCSV(w io.Writer) error {
 	for _, rd := range r.Readings {
 		var cs []string
 		for _, c := range rd.Corrections {
-			cs = append(cs, fmt.Sprintf("%s*%s%+g", c.Name, g(c.Factor), c.Offset))
+			off := g(c.Offset)
+			if c.Offset >= 0 {
+				off = "+" + off
+			}
+			cs = append(cs, c.Name+"*"+g(c.Factor)+off)
 		}
 		row := []string{r.Session.ID, strconv.FormatInt(rd.Seq, 10), rd.Wall.Format(time.RFC3339Nano), strconv.FormatInt(int64(rd.Mono), 10), rd.BootID,
 			strconv.Itoa(rd.Step), rd.StepID, rd.FieldMode, rd.Position, rd.Meter, rd.Quantity, rd.Raw, g(rd.RawValue), rd.RawUnit,

@@ -157,7 +157,7 @@ func correctionsText(cs []entry.Correction) string {
 			p += " ×" + Factor(c.Factor)
 		}
 		if c.Offset != 0 {
-			p += fmt.Sprintf(" %+g", c.Offset)
+			p += " " + Signed(c.Offset)
 		}
 		parts = append(parts, p)
 	}

@@ -2,6 +2,7 @@ package report
 
 import (
 	"encoding/json"
+	"regexp"
 	"strings"
 	"testing"
 
@@ -193,5 +194,50 @@ func TestPDFColumnsHoldTheirLongestWord(t *testing.T) {
 	}
 	if size != 7.5 {
 		t.Errorf("font shrunk to %.2f though the columns could fit", size)
+	}
+}
+
+// TestNoExponentsAnywhere: small uncertainties and offsets are written in
+// fixed notation in the CSV files and the HTML (the demo once printed
+// "0.03 ± 5.4e-06").
+func TestNoExponentsAnywhere(t *testing.T) {
+	envs := sampleSession()
+	for i, env := range envs {
+		switch env.Kind {
+		case entry.KindResult:
+			var r entry.Result
+			_ = json.Unmarshal(env.Payload, &r)
+			r.StdUnc, r.ExpUnc = 2.7e-06, 5.4e-06
+			envs[i].Payload, _ = json.Marshal(r)
+		case entry.KindReading:
+			var rd entry.Reading
+			_ = json.Unmarshal(env.Payload, &rd)
+			rd.Corrections = append(rd.Corrections, entry.Correction{Name: "dark", Factor: 1, Offset: -1.2e-05})
+			envs[i].Payload, _ = json.Marshal(rd)
+		}
+	}
+	r, err := Build(envs)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var b strings.Builder
+	if err := r.WriteResultsCSV(&b); err != nil {
+		t.Fatal(err)
+	}
+	if err := r.WriteReadingsCSV(&b); err != nil {
+		t.Fatal(err)
+	}
+	exp := regexp.MustCompile(`\d[eE][-+]\d\d`) // Go writes exponents as e-06, e+07
+	if m := exp.FindString(b.String()); m != "" {
+		t.Errorf("CSV has an exponent: %q", m)
+	}
+	if !strings.Contains(b.String(), "0.0000054") || !strings.Contains(b.String(), "dark*1-0.000012") {
+		t.Errorf("CSV lacks the small values in fixed notation")
+	}
+	html := renderHTML(t, r)
+	body := html[strings.Index(html, "<body>"):]
+	body = regexp.MustCompile(`(?s)<svg.*?</svg>`).ReplaceAllString(body, "")
+	if m := exp.FindString(body); m != "" {
+		t.Errorf("HTML has an exponent: %q", m)
 	}
 }
