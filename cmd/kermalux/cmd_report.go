@@ -27,8 +27,8 @@ cautions and a place for the physicist's comment and signature.
 
 From the workstation store, choose one session (--session) or an intensifier
 (--serial: all its sessions, or only the newest with --latest); the report then
-includes the intensifier's conversion factor history with the projected date
-at the action level. From a board journal file (--journal: the SQLite journal
+includes the intensifier's conversion factor history with the projected month,
+and its 95 % band, at every limit the results were judged against. From a board journal file (--journal: the SQLite journal
 or its "journal export --json" output), the last session is rendered unless
 --session names another.
 
