@@ -14,7 +14,7 @@ import (
 
 func init() {
 	var storePath, session, serial, journalPath, out, formats string
-	var latest bool
+	var latest, unverified bool
 	var actionLevels []float64
 	cmd := &cobra.Command{
 		Use:   "report (--store PATH (--session ID | --serial SERIAL [--latest]) | --journal FILE) --out DIR",
@@ -54,7 +54,7 @@ Files are written to DIR as report-<serial>-<date>-<session>.html, .pdf,
 			}
 			var reports []*report.Report
 			if journalPath != "" {
-				r, err := report.FromJournal(cmd.Context(), journalPath, session)
+				r, err := report.FromJournalChecked(cmd.Context(), journalPath, session, unverified)
 				if err != nil {
 					return withCode(exitFailure, err)
 				}
@@ -68,7 +68,7 @@ Files are written to DIR as report-<serial>-<date>-<session>.html, .pdf,
 					return withCode(exitFailure, err)
 				}
 				defer st.Close()
-				reports, err = report.FromStore(cmd.Context(), st, report.Selection{Session: session, Serial: serial, Latest: latest}, actionLevels...)
+				reports, err = report.FromStore(cmd.Context(), st, report.Selection{Session: session, Serial: serial, Latest: latest, AllowUnverified: unverified}, actionLevels...)
 				if err != nil {
 					return withCode(exitFailure, err)
 				}
@@ -86,6 +86,7 @@ Files are written to DIR as report-<serial>-<date>-<session>.html, .pdf,
 		},
 	}
 	f := cmd.Flags()
+	f.BoolVar(&unverified, "unverified", false, "render records that do not verify, stamped NOT VERIFIED on every page (default: refuse them)")
 	f.StringVar(&storePath, "store", "", "workstation store: SQLite file or postgres:// URL")
 	f.StringVar(&session, "session", "", "session id")
 	f.StringVar(&serial, "serial", "", "intensifier serial number: report its sessions")

@@ -14,7 +14,7 @@ import (
 func init() {
 	var storePath, quantity, mode, plot string
 	var actionLevels []float64
-	var csvOut, jsonOut bool
+	var csvOut, jsonOut, unverified bool
 	cmd := &cobra.Command{
 		Use:   "trend SERIAL --store PATH [--quantity conversion_factor] [--plot FILE.png|.svg]",
 		Short: "Show one intensifier's results over the years and when it reaches each configured limit",
@@ -49,6 +49,18 @@ one JSON document, instead of the table.`,
 				return withCode(exitFailure, err)
 			}
 			defer st.Close()
+			// A trend is computed from stored results: verify every session
+			// of the intensifier first.
+			problems, err := report.VerifyStoreSerial(cmd.Context(), st, args[0])
+			if err != nil {
+				return withCode(exitFailure, err)
+			}
+			if len(problems) > 0 && !unverified {
+				return withCode(exitFailure, &report.UnverifiedError{Source: "store " + storePath + " intensifier " + args[0], Problems: problems})
+			}
+			for _, p := range problems {
+				fmt.Fprintln(cmd.ErrOrStderr(), "NOT VERIFIED:", p)
+			}
 			trends, err := report.LoadTrends(cmd.Context(), report.StoreHistory{Store: st}, args[0], quantity, actionLevels...)
 			if err != nil {
 				return withCode(exitFailure, err)
@@ -80,6 +92,7 @@ one JSON document, instead of the table.`,
 		},
 	}
 	f := cmd.Flags()
+	f.BoolVar(&unverified, "unverified", false, "show the trend even when stored sessions do not verify (each problem printed first)")
 	f.StringVar(&storePath, "store", "", "workstation store: SQLite file or postgres:// URL")
 	f.StringVar(&quantity, "quantity", "conversion_factor", "result quantity: conversion_factor, contrast_ratio, non_uniformity, input_kerma_rate, ...")
 	f.StringVar(&mode, "field-mode", "", "only this field mode")

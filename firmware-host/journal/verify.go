@@ -582,3 +582,17 @@ func FileKey(ctx context.Context, path string) (string, error) {
 	}
 	return key, nil
 }
+
+// CheckHashChain checks a whole session's records (from seq 1) for their
+// hashes and links alone, for records whose signatures are not kept (a
+// store proves them by signed heads): it returns the first problem, or
+// nil. The caller must check the head that vouches for the last hash.
+func CheckHashChain(recs []Record) *Problem {
+	if len(recs) == 0 {
+		return &Problem{What: "session has no records", Hint: hintMissing}
+	}
+	if i, err := checkChain(nil, 0, zeroHashHex(), recs, false); err != nil {
+		return recordProblem(recs[0].Session, recs[i], err)
+	}
+	return nil
+}

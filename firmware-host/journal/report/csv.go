@@ -19,6 +19,7 @@ func g(v float64) string { return strconv.FormatFloat(v, 'f', -1, 64) }
 // full precision with a dot as decimal separator, times in RFC 3339.
 func (r *Report) WriteResultsCSV(w io.Writer) error {
 	cw := csv.NewWriter(w)
+	r.stampCSV(cw)
 	head := []string{"session", "site", "room", "intensifier_serial", "started", "step", "field_mode", "quantity", "value", "unit",
 		"standard_uncertainty", "expanded_uncertainty", "coverage_factor", "verdict", "decided_by", "calibrated", "baseline", "baseline_fraction", "flags", "review", "limits", "simulated"}
 	if err := cw.Write(head); err != nil {
@@ -44,6 +45,7 @@ func (r *Report) WriteResultsCSV(w io.Writer) error {
 // value, every correction in order and the corrected value.
 func (r *Report) WriteReadingsCSV(w io.Writer) error {
 	cw := csv.NewWriter(w)
+	r.stampCSV(cw)
 	head := []string{"session", "seq", "wall", "mono_ns", "boot_id", "step", "step_id", "field_mode", "position", "meter", "quantity",
 		"raw", "raw_value", "raw_unit", "corrections", "value", "unit", "status", "used", "calibrated", "certificate", "flags", "simulated"}
 	if err := cw.Write(head); err != nil {
@@ -110,4 +112,12 @@ func limitsCSV(ls []entry.LimitCheck) string {
 		parts = append(parts, fmt.Sprintf("%s %s %s margin %s", l.Kind, l.Bound, g(l.Value), g(l.Margin)))
 	}
 	return strings.Join(parts, "; ")
+}
+
+// stampCSV puts the NOT VERIFIED stamp, alone on the first line, before
+// the header of a CSV from records that do not verify.
+func (r *Report) stampCSV(cw *csv.Writer) {
+	if t := r.UnverifiedText(); t != "" {
+		_ = cw.Write([]string{t})
+	}
 }

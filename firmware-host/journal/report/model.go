@@ -48,6 +48,10 @@ type Report struct {
 	// events), the latest of each role, in order of first identification.
 	Meters []entry.MeterIdentity
 	Trends []Trend // optional: this intensifier's history (see AttachHistory)
+	// Unverified lists what is wrong with the records when the report was
+	// forced from a source that does not verify (empty: verified). Every
+	// page carries the stamp (UnverifiedText).
+	Unverified []string
 }
 
 // Setup is the bench state one prompt asked for.

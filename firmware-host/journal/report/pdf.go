@@ -299,6 +299,20 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 	f.AliasNbPages("{nb}")
 	pw, ph := f.GetPageSize()
 	d := &pdfDoc{f: f, w: pw - 28, left: 14, bottom: ph - 18, simulated: r.Simulated}
+	if stamp := r.UnverifiedText(); stamp != "" {
+		// Every page, above its content: a forced report of records that
+		// do not verify must not pass for a trusted one on any page.
+		f.SetHeaderFunc(func() {
+			d.font("B", 9)
+			f.SetTextColor(0xb0, 0x2a, 0x2a)
+			f.SetDrawColor(0xb0, 0x2a, 0x2a)
+			f.SetLineWidth(0.6)
+			f.MultiCell(d.w, 4.5, stamp, "1", "L", false)
+			f.SetLineWidth(0.2)
+			f.SetTextColor(0x1d, 0x26, 0x30)
+			f.Ln(2)
+		})
+	}
 	f.SetFooterFunc(func() {
 		f.SetY(-12)
 		d.font("", 7.5)
@@ -306,6 +320,9 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 		left := fmt.Sprintf("%s · %s · session %s", r.Session.IntensifierSerial, Day(r.Session.Started), r.Session.ID)
 		if r.Simulated {
 			left = "SIMULATED, NOT A MEASUREMENT · " + left
+		}
+		if len(r.Unverified) > 0 {
+			left = "NOT VERIFIED · " + left
 		}
 		f.CellFormat(d.w*0.8, 5, left, "T", 0, "L", false, 0, "")
 		f.CellFormat(d.w*0.2, 5, fmt.Sprintf("page %d of {nb}", f.PageNo()), "T", 0, "R", false, 0, "")

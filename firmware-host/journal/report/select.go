@@ -20,6 +20,9 @@ type Selection struct {
 	Session string
 	Serial  string
 	Latest  bool
+	// AllowUnverified renders sessions whose records do not verify,
+	// stamped NOT VERIFIED on every page, instead of refusing them.
+	AllowUnverified bool
 }
 
 // FromStore builds the reports of the selected sessions, each with its
@@ -50,6 +53,13 @@ func FromStore(ctx context.Context, st *store.Store, sel Selection, actionLevels
 	histories := map[string][]HistoryPoint{}
 	var out []*Report
 	for _, id := range ids {
+		problems, err := VerifyStoreSession(ctx, st, id)
+		if err != nil {
+			return nil, err
+		}
+		if err := gate("store "+st.Path()+" session "+id, problems, sel.AllowUnverified); err != nil {
+			return nil, err
+		}
 		envs, err := st.Envelopes(ctx, id)
 		if err != nil {
 			return nil, err
@@ -58,6 +68,7 @@ func FromStore(ctx context.Context, st *store.Store, sel Selection, actionLevels
 		if err != nil {
 			return nil, fmt.Errorf("store %s: %w", st.Path(), err)
 		}
+		r.stamp(problems)
 		serial := r.Session.IntensifierSerial
 		hs, ok := histories[serial]
 		if !ok {
@@ -85,8 +96,23 @@ func Until(hs []HistoryPoint, t time.Time) []HistoryPoint {
 }
 
 // FromJournal builds the report of one session of a board journal file
-// (or its JSON-lines export); session "" means the last one.
+// (or its JSON-lines export); session "" means the last one. The journal is
+// verified first (VerifyJournalFile): one that does not verify is refused
+// with an *UnverifiedError.
 func FromJournal(ctx context.Context, path, session string) (*Report, error) {
+	return FromJournalChecked(ctx, path, session, false)
+}
+
+// FromJournalChecked is FromJournal; with allowUnverified a journal that
+// does not verify is rendered, stamped NOT VERIFIED on every page.
+func FromJournalChecked(ctx context.Context, path, session string, allowUnverified bool) (*Report, error) {
+	problems, err := VerifyJournalFile(ctx, path)
+	if err != nil {
+		return nil, err
+	}
+	if err := gate("journal "+path, problems, allowUnverified); err != nil {
+		return nil, err
+	}
 	sessions, err := JournalSessions(ctx, path)
 	if err != nil {
 		return nil, err
@@ -99,6 +125,7 @@ func FromJournal(ctx context.Context, path, session string) (*Report, error) {
 	if err != nil {
 		return nil, fmt.Errorf("journal %s: %w", path, err)
 	}
+	r.stamp(problems)
 	return r, nil
 }
 
