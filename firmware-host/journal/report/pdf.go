@@ -233,9 +233,12 @@ func (d *pdfDoc) cellText(cols []pdfCol, row []string, i int, head bool) string 
 	return ""
 }
 
-// pdfText replaces characters the embedded fonts lack: the superscript
-// minus of units such as cd·m⁻²/(µGy·s⁻¹).
+// pdfText replaces characters the embedded fonts lack or fpdf cannot set:
+// the superscript minus of units such as cd·m⁻²/(µGy·s⁻¹), combining marks.
 func pdfText(s string) string {
+	// fpdf does not place combining marks: the dot of K̇ (kerma rate)
+	// would sit beside the K.
+	s = strings.ReplaceAll(s, "K̇", "dK/dt")
 	if !strings.ContainsRune(s, '⁻') {
 		return s
 	}
@@ -615,7 +618,17 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 	f.SetDrawColor(0x9a, 0xa4, 0xae)
 	f.Rect(d.left, y, d.w, 38, "D")
 	f.SetY(y + 42)
-	d.para("☐ Accepted     ☐ Accepted with conditions     ☐ Not accepted", 9.5)
+	// Tick boxes drawn as squares: the embedded fonts have no U+2610.
+	d.font("", 9.5)
+	x, yb := d.left, f.GetY()
+	for _, lab := range []string{"Accepted", "Accepted with conditions", "Not accepted"} {
+		f.SetDrawColor(0x1d, 0x26, 0x30)
+		f.Rect(x, yb+0.6, 3.4, 3.4, "D")
+		f.SetXY(x+5, yb)
+		f.CellFormat(f.GetStringWidth(lab)+2, 4.6, lab, "", 0, "L", false, 0, "")
+		x += 5 + f.GetStringWidth(lab) + 12
+	}
+	f.SetY(yb + 6)
 	f.Ln(10)
 	y = f.GetY()
 	f.SetDrawColor(0x1d, 0x26, 0x30)
