@@ -12,7 +12,7 @@ build() {
 	out=$dist/kermalux-linux-$1
 	echo "building $out"
 	CGO_ENABLED=0 GOOS=linux GOARCH=$2 GOARM=$3 \
-		go build -trimpath -tags board -ldflags "-s -w" -o "$out" ./cmd/kermalux
+		go build -trimpath -tags board -ldflags "-s -w -X main.version=$version" -o "$out" ./cmd/kermalux
 }
 build armv6 arm 6
 build armv7 arm 7

@@ -245,6 +245,7 @@ var setupKeysShown = []string{"field_mode", "brightness_control"}
 
 func (r *Report) setupTable() infoTable {
 	t := infoTable{Title: "Set-up per step", Head: []string{"Step", "Field mode", "Brightness control", "Other settings asked for"}, Right: []bool{true}}
+	lastBC, lastStep := "", 0
 	for _, s := range r.Setups {
 		var other []string
 		keys := make([]string, 0, len(s.Setup))
@@ -257,12 +258,22 @@ func (r *Report) setupTable() infoTable {
 		for _, k := range keys {
 			other = append(other, strings.ReplaceAll(k, "_", " ")+" "+s.Setup[k])
 		}
-		bc := s.Setup["brightness_control"]
-		switch bc {
-		case "off":
+		// A step that does not state the brightness control keeps the
+		// state the last one set.
+		bc, stated := s.Setup["brightness_control"], true
+		if bc == "" {
+			bc, stated = lastBC, false
+		} else {
+			lastBC, lastStep = bc, s.Step
+		}
+		switch {
+		case bc == "":
+			bc = "not stated"
+		case bc == "off":
 			bc = "off (manual kV and mA)"
-		case "":
-			bc = "—"
+		}
+		if !stated && lastBC != "" {
+			bc += fmt.Sprintf(", as set at step %d", lastStep)
 		}
 		t.Rows = append(t.Rows, []string{fmt.Sprint(s.Step), orDash(s.Setup["field_mode"]), bc, orDash(strings.Join(other, "; "))})
 	}
