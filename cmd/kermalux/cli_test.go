@@ -189,3 +189,30 @@ func TestDemoJSON(t *testing.T) {
 		t.Errorf("demo --json: exit %d\n%.500s\n%s", code, stdout, errb)
 	}
 }
+
+// TestCompletionOffersSerialsFromTheStore: with --store given, the trend
+// argument and report --serial complete to the store's intensifiers.
+func TestCompletionOffersSerialsFromTheStore(t *testing.T) {
+	dir := t.TempDir()
+	p, key := boardJournal(t, dir)
+	sp := filepath.Join(dir, "office.db")
+	bp := filepath.Join(dir, "b.bundle")
+	for _, args := range [][]string{
+		{"enroll", "--store", sp, "--key", key, "--name", "van-1"},
+		{"bundle", "--journal", p, "--out", bp},
+		{"import", "--store", sp, bp},
+	} {
+		if code, out, errb := runCLI(t, args...); code != exitOK {
+			t.Fatalf("%v: exit %d\n%s%s", args, code, out, errb)
+		}
+	}
+	for _, args := range [][]string{
+		{"__complete", "trend", "--store", sp, "LX"},
+		{"__complete", "report", "--store", sp, "--serial", "LX"},
+	} {
+		_, out, errb := runCLI(t, args...)
+		if !strings.Contains(out, "LX23-0100\n") {
+			t.Errorf("%v: no serial offered:\n%s%s", args, out, errb)
+		}
+	}
+}

@@ -185,6 +185,25 @@ func circle(r float64, n int) plotter.XYs {
 	return pts
 }
 
+// mapDiscRadius is the radius of a position's disc on the luminance map.
+const mapDiscRadius = 13 // points
+
+// mapLabels puts each label inside its disc, centred, in white: it can
+// touch neither its own disc's edge nor a neighbour.
+func mapLabels(pts plotter.XYs, labels []string) (*plotter.Labels, error) {
+	lb, err := plotter.NewLabels(plotter.XYLabels{XYs: pts, Labels: labels})
+	if err != nil {
+		return nil, err
+	}
+	for i := range lb.TextStyle {
+		lb.TextStyle[i].Font = sansStyle(7.5)
+		lb.TextStyle[i].Color = color.White
+		lb.TextStyle[i].XAlign = draw.XCenter
+		lb.TextStyle[i].YAlign = draw.YCenter
+	}
+	return lb, nil
+}
+
 func mapSpec(m LuminanceMap) (chartSpec, error) {
 	title := "Output face luminance"
 	if m.FieldMode != "" {
@@ -236,20 +255,12 @@ func mapSpec(m LuminanceMap) (chartSpec, error) {
 		if m.Centre > 0 {
 			c = fractionColor(fracs[i])
 		}
-		return draw.GlyphStyle{Color: c, Radius: vg.Points(12), Shape: draw.CircleGlyph{}}
+		return draw.GlyphStyle{Color: c, Radius: mapDiscRadius, Shape: draw.CircleGlyph{}}
 	}
 	p.Add(sc)
-	// Each label sits inside its disc, in white: it can touch neither its
-	// own disc's edge nor a neighbour.
-	lb, err := plotter.NewLabels(plotter.XYLabels{XYs: pts, Labels: labels})
+	lb, err := mapLabels(pts, labels)
 	if err != nil {
 		return chartSpec{}, err
-	}
-	for i := range lb.TextStyle {
-		lb.TextStyle[i].Font = sansStyle(8)
-		lb.TextStyle[i].Color = color.White
-		lb.TextStyle[i].XAlign = draw.XCenter
-		lb.TextStyle[i].YAlign = draw.YCenter
 	}
 	p.Add(lb)
 	// Direction words around the face so the map reads without a legend.
@@ -400,12 +411,12 @@ func conversionSpec(results []Result) (chartSpec, error) {
 	p.X.Min, p.X.Max = -0.6, float64(len(pts))+1.3
 	p.Y.Min = 0
 	p.Y.Max = 1.1 * top
-	p.Y.Tick.Marker = niceTicks{n: 7}
+	p.Y.Tick.Marker = niceTicks{n: 8}
 	caption := "Bars: expanded uncertainty U. Lines across each column: that field mode's limits (specification, action level, baseline rule); triangle: its baseline. Red: the result fails a limit."
 	return chartSpec{p: p, name: "conversion-factor", title: title, caption: caption, w: 6 * vg.Inch, h: 3.4 * vg.Inch}, nil
 }
 
-// niceTicks labels about n round values (1, 2 or 5 times a power of ten)
+// niceTicks labels about n round values (1, 2, 2.5 or 5 times a power of ten)
 // with unlabelled ticks between, so a value axis reads without guessing.
 type niceTicks struct{ n int }
 
@@ -416,14 +427,17 @@ func (t niceTicks) Ticks(min, max float64) []plot.Tick {
 	raw := (max - min) / float64(t.n)
 	p := math.Pow10(int(math.Floor(math.Log10(raw))))
 	step := p
-	for _, m := range []float64{1, 2, 5, 10} {
+	for _, m := range []float64{1, 2, 2.5, 5, 10} {
 		if m*p >= raw {
 			step = m * p
 			break
 		}
 	}
 	var ts []plot.Tick
-	dec := max0(-int(math.Floor(math.Log10(step))))
+	dec := 0 // decimals that write the step exactly (0.25 needs two)
+	for dec < 10 && math.Abs(step*math.Pow10(dec)-math.Round(step*math.Pow10(dec))) > 1e-9*step*math.Pow10(dec) {
+		dec++
+	}
 	for v := math.Ceil(min/step) * step; v <= max+step*1e-9; v += step {
 		ts = append(ts, plot.Tick{Value: v, Label: strconv.FormatFloat(v, 'f', dec, 64)})
 		if h := v + step/2; h < max {
@@ -433,12 +447,6 @@ func (t niceTicks) Ticks(min, max float64) []plot.Tick {
 	return ts
 }
 
-func max0(i int) int {
-	if i < 0 {
-		return 0
-	}
-	return i
-}
 
 // decimalYear converts a date to a fractional year for the trend axis.
 func decimalYear(t time.Time) float64 {

@@ -9,6 +9,9 @@ import (
 	"codeberg.org/go-fonts/liberation/liberationsansbold"
 	"codeberg.org/go-fonts/liberation/liberationsansregular"
 	"codeberg.org/go-pdf/fpdf"
+	"gonum.org/v1/plot/plotter"
+	"gonum.org/v1/plot/vg"
+	"gonum.org/v1/plot/vg/draw"
 
 	"kermalux/procedures/entry"
 )
@@ -239,5 +242,101 @@ func TestNoExponentsAnywhere(t *testing.T) {
 	body = regexp.MustCompile(`(?s)<svg.*?</svg>`).ReplaceAllString(body, "")
 	if m := exp.FindString(body); m != "" {
 		t.Errorf("HTML has an exponent: %q", m)
+	}
+}
+
+// TestConversionChartShowsLimitsAndBaseline: the chart draws each field
+// mode's limits and its baseline, names them in the legend, and labels
+// at least five values on its axis.
+func TestConversionChartShowsLimitsAndBaseline(t *testing.T) {
+	r, err := Build(signingSession(t))
+	if err != nil {
+		t.Fatal(err)
+	}
+	spec, err := conversionSpec(r.Results)
+	if err != nil {
+		t.Fatal(err)
+	}
+	c, err := spec.render(true, false)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, want := range []string{"specification limit", "baseline rule (80.0 % of baseline)", "action level limit", "baseline (the earlier session)"} {
+		if !strings.Contains(c.SVG, want) {
+			t.Errorf("conversion factor chart lacks %q", want)
+		}
+	}
+	labelled := 0
+	for _, tk := range spec.p.Y.Tick.Marker.Ticks(spec.p.Y.Min, spec.p.Y.Max) {
+		if tk.Label != "" {
+			labelled++
+		}
+	}
+	if labelled < 5 {
+		t.Errorf("%d labelled ticks on the value axis, want at least 5", labelled)
+	}
+}
+
+// TestNiceTicks: round steps of 1, 2, 2.5 or 5 times a power of ten, in
+// fixed notation with the decimals the step needs.
+func TestNiceTicks(t *testing.T) {
+	for _, c := range []struct {
+		min, max float64
+		want     string
+	}{
+		// 186/5 = 37.2: the step is 50 (the first of 10, 20, 25, 50 at least 37.2).
+		{0, 186, "0 50 100 150"},
+		// 1.2/5 = 0.24: the step is 0.25, written with two decimals.
+		{0, 1.2, "0.00 0.25 0.50 0.75 1.00"},
+		// 0.0093/5 = 0.00186: the step is 0.002.
+		{0, 0.0093, "0.000 0.002 0.004 0.006 0.008"},
+	} {
+		var labels []string
+		for _, tk := range (niceTicks{n: 5}).Ticks(c.min, c.max) {
+			if tk.Label != "" {
+				labels = append(labels, tk.Label)
+			}
+		}
+		if got := strings.Join(labels, " "); got != c.want {
+			t.Errorf("ticks %g..%g: %q, want %q", c.min, c.max, got, c.want)
+		}
+		for _, l := range labels {
+			if strings.ContainsAny(l, "eE") {
+				t.Errorf("tick label %q has an exponent", l)
+			}
+		}
+	}
+}
+
+// TestMapLabelsInsideTheirDiscs: each percentage is drawn at its disc's
+// centre, narrower than the disc, so it touches neither its disc's edge
+// nor a neighbour.
+func TestMapLabelsInsideTheirDiscs(t *testing.T) {
+	r := sampleReport(t)
+	if len(r.Maps) == 0 {
+		t.Fatal("no map")
+	}
+	if _, err := mapSpec(r.Maps[0]); err != nil {
+		t.Fatal(err)
+	}
+	pts := plotter.XYs{{X: 0, Y: 0}, {X: 0.9, Y: 0}}
+	labels, err := mapLabels(pts, []string{"100 %", "78 %"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	disc := vg.Length(mapDiscRadius)
+	for i := range pts {
+		if labels.XYs[i] != pts[i] {
+			t.Errorf("label %d at %v, its disc at %v", i, labels.XYs[i], pts[i])
+		}
+	}
+	for i, l := range labels.Labels {
+		w := labels.TextStyle[i].Width(l)
+		if w >= 2*disc-vg.Points(2) {
+			t.Errorf("label %q is %.1f pt wide, the disc %.1f pt", l, w.Points(), (2 * disc).Points())
+		}
+		if labels.TextStyle[i].XAlign != draw.XCenter || labels.TextStyle[i].YAlign != draw.YCenter {
+			t.Errorf("label %q is not centred on its disc", l)
+		}
 	}
 }
