@@ -447,7 +447,6 @@ func (t niceTicks) Ticks(min, max float64) []plot.Tick {
 	return ts
 }
 
-
 // decimalYear converts a date to a fractional year for the trend axis.
 func decimalYear(t time.Time) float64 {
 	y := t.Year()
