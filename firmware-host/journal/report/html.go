@@ -8,6 +8,8 @@ import (
 	"math"
 	"strings"
 	"time"
+	"unicode"
+	"unicode/utf8"
 
 	"kermalux/procedures/entry"
 )
@@ -142,8 +144,7 @@ func (r *Report) view(opt Options, use chartUse) htmlView {
 		if e.Name == "beam_on" || e.Name == "beam_off" || e.Name == "beam_time" || e.Name == "measurement_done" {
 			continue
 		}
-		what := eventWords(e.Name)
-		v.Events = append(v.Events, eventRow{Event: e, What: strings.ToUpper(what[:1]) + what[1:], Beam: true})
+		v.Events = append(v.Events, eventRow{Event: e, What: capitalised(eventWords(e.Name)), Beam: true})
 	}
 	for _, s := range r.Steps {
 		what := fmt.Sprintf("Step %s %s", s.ID, s.State)
@@ -227,4 +228,14 @@ func noBreak(s string) template.HTML {
 		}
 	}
 	return template.HTML(b.String())
+}
+
+// capitalised is s with its first letter upper-case; an event with an
+// empty or odd name must not break the report.
+func capitalised(s string) string {
+	if s == "" {
+		return "An event without a name"
+	}
+	r, n := utf8.DecodeRuneInString(s)
+	return string(unicode.ToUpper(r)) + s[n:]
 }

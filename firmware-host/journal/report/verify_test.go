@@ -13,6 +13,7 @@ import (
 
 	"kermalux/firmware-host/journal"
 	"kermalux/firmware-host/journal/store"
+	"kermalux/procedures/entry"
 )
 
 // tamperResult edits the first conversion factor result of the journal at
@@ -149,4 +150,26 @@ func TestReportRefusesUnverifiedStore(t *testing.T) {
 func jsonLine(r journal.Record) ([]byte, error) {
 	b, err := json.Marshal(r)
 	return append(b, '\n'), err
+}
+
+// An event with an empty name (or one starting with a multi-byte letter)
+// renders; it used to panic with a slice out of range, found by FuzzBuild.
+func TestEventWithoutName(t *testing.T) {
+	for _, name := range []string{"", "é_event", "x"} {
+		envs := sampleSession()
+		for i, e := range envs {
+			if e.Kind == entry.KindEvent {
+				envs[i].Payload = json.RawMessage(`{"step":1,"name":"` + name + `","beam_on_s":0}`)
+				break
+			}
+		}
+		r, err := Build(envs)
+		if err != nil {
+			t.Fatalf("%q: %v", name, err)
+		}
+		var b bytes.Buffer
+		if err := r.writeHTML(&b, fixedOpts, noCharts); err != nil {
+			t.Fatalf("%q: %v", name, err)
+		}
+	}
 }
