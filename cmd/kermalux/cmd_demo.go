@@ -26,6 +26,7 @@ type demoOptions struct {
 	procedure string
 	formats   string
 	quiet     bool
+	fresh     bool
 	asJSON    bool
 }
 
@@ -66,6 +67,7 @@ The simulator's figures are invented: they are not measurements.`,
 	f.StringVar(&o.procedure, "procedure", "", "procedure to run (default: acceptance)")
 	f.StringVar(&o.formats, "format", "html,pdf,csv", "report formats")
 	f.BoolVarP(&o.quiet, "quiet", "q", false, "print only the summary")
+	f.BoolVar(&o.fresh, "new", false, "start a new session even if the journal in --out holds an unfinished one (default: resume it)")
 	f.BoolVar(&o.asJSON, "json", false, "print only the summary, as JSON (the results file and the paths written)")
 	register(cmd)
 }
@@ -81,7 +83,7 @@ func runDemo(parent context.Context, w io.Writer, o demoOptions, hasSeed bool) e
 		return withCode(exitUsage, err)
 	}
 	opts := demo.Options{Out: o.out, Scenario: o.scenario, Seed: o.seed, HasSeed: hasSeed, Speed: o.speed,
-		Procedure: o.procedure, Render: render, Version: version}
+		Procedure: o.procedure, Render: render, Version: version, Fresh: o.fresh}
 	if !o.quiet && !o.asJSON {
 		opts.Dialogue = w
 	}

@@ -140,7 +140,7 @@ func runRun(parent context.Context, o runOptions, name string) error {
 		return withCode(exitFailure, err)
 	}
 	if !o.fresh {
-		if id, err := unfinished(ctx, jr, cfg); err != nil {
+		if id, err := jr.Resumable(ctx, cfg.Session); err != nil {
 			return withCode(exitFailure, err)
 		} else if id != "" {
 			cfg.Resume = id
@@ -177,22 +177,6 @@ func runRun(parent context.Context, o runOptions, name string) error {
 		return withCode(exitFailure, runErr)
 	}
 	return nil
-}
-
-// unfinished finds an unfinished session of the same procedure on the
-// same intensifier to resume.
-func unfinished(ctx context.Context, jr *journal.Journal, cfg engine.Config) (string, error) {
-	ss, err := jr.Unfinished(ctx)
-	if err != nil {
-		return "", err
-	}
-	id := ""
-	for _, s := range ss {
-		if s.Session.Procedure == cfg.Session.Procedure && s.Session.IntensifierSerial == cfg.Session.IntensifierSerial && s.Session.ProcedureHash == cfg.Session.ProcedureHash {
-			id = s.ID // the latest one
-		}
-	}
-	return id, nil
 }
 
 func closeMeters(ms map[string]drivers.Meter) {

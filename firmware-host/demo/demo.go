@@ -13,6 +13,7 @@ import (
 	"sort"
 	"strings"
 	"sync"
+	"syscall"
 	"time"
 
 	"kermalux/calib"
@@ -56,6 +57,13 @@ type Options struct {
 	// Hook, when set, is called with the running bench and clock before the
 	// session starts (tests use it to inject events).
 	Hook func(b *benchsim.Bench, clk clock.Clock)
+	// OnRecord, when set, is called after each record the engine appends
+	// is durable (tests kill the process at chosen records with it).
+	OnRecord func(kind entry.Kind, seq int64)
+	// Fresh starts a new session even when the journal in Out holds an
+	// unfinished one of the same procedure and intensifier; by default
+	// that session is resumed, as on the board.
+	Fresh bool
 }
 
 // Outcome is what a demo run produced.
@@ -107,7 +115,7 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 		return nil, fmt.Errorf("demo: %w", err)
 	}
 	defer sim.Close()
-	simDir, err := os.MkdirTemp("", "kermalux-demo-sim-")
+	simDir, err := simFolder()
 	if err != nil {
 		return nil, fmt.Errorf("demo: %w", err)
 	}
@@ -169,11 +177,23 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 			m.Close()
 		}
 	}()
-	cfg, err := b.Config(proc, meters, pan, simJournal{jr, scn, clk}, clk, o.Version)
+	cfg, err := b.Config(proc, meters, pan, simJournal{jr, scn, clk, o.OnRecord}, clk, o.Version)
 	if err != nil {
 		return nil, err
 	}
-	ready := "Ready. " + b.Found(meters, clk.Now()) + " Press the switch to start " + proc.Title + "."
+	verb := "start"
+	if !o.Fresh {
+		// A demo killed on this --out folder resumes, as the board does.
+		id, err := jr.Resumable(ctx, cfg.Session)
+		if err != nil {
+			return nil, fmt.Errorf("demo: %w", err)
+		}
+		cfg.Resume, verb = id, "resume"
+		if id == "" {
+			verb = "start"
+		}
+	}
+	ready := "Ready. " + b.Found(meters, clk.Now()) + " Press the switch to " + verb + " " + proc.Title + "."
 	if _, err := pan.Ask(ctx, panel.Prompt{Message: panel.Message{Text: ready, Level: panel.Info, Action: panel.ActAcknowledge}}); err != nil {
 		return nil, err
 	}
@@ -211,6 +231,16 @@ type simJournal struct {
 	*journal.Journal
 	scn *benchsim.Scenario
 	clk clock.Clock
+	on  func(kind entry.Kind, seq int64)
+}
+
+// Append appends through the journal, then tells Options.OnRecord.
+func (j simJournal) Append(ctx context.Context, session string, kind entry.Kind, payload any) (int64, error) {
+	seq, err := j.Journal.Append(ctx, session, kind, payload)
+	if err == nil && j.on != nil {
+		j.on(kind, seq)
+	}
+	return seq, err
 }
 
 func (j simJournal) Begin(ctx context.Context, s entry.Session) (string, error) {
@@ -254,8 +284,43 @@ func (t *dialogue) line(kind, text string) {
 	if !t.began {
 		t.start, t.began = t.clk.Mono(), true
 	}
-	el := t.clk.Mono() - t.start
-	fmt.Fprintf(t.w, "%02d:%04.1f %-5s %s\n", int(el.Minutes()), el.Seconds()-60*float64(int(el.Minutes())), kind, text)
+	fmt.Fprintf(t.w, "%s %-5s %s\n", clockText(t.clk.Mono()-t.start), kind, text)
+}
+
+// clockText is the dialogue's clock, minutes and seconds to a tenth:
+// rounded once, so 7 min 59.96 s reads 08:00.0, never 07:60.0.
+func clockText(d time.Duration) string {
+	d = d.Round(100 * time.Millisecond)
+	m := d / time.Minute
+	return fmt.Sprintf("%02d:%04.1f", int(m), (d - m*time.Minute).Seconds())
+}
+
+// simFolder makes the folder for the simulator's pty links, named with
+// this process's id, and first removes those left by demos that were
+// killed (their process is gone), which no deferred clean-up reached.
+func simFolder() (string, error) {
+	const prefix = "kermalux-demo-sim-"
+	old, _ := filepath.Glob(filepath.Join(os.TempDir(), prefix+"*-*"))
+	for _, d := range old {
+		var pid int
+		if _, err := fmt.Sscanf(strings.TrimPrefix(filepath.Base(d), prefix), "%d-", &pid); err != nil || pid <= 0 || pid == os.Getpid() {
+			continue
+		}
+		if !processAlive(pid) {
+			os.RemoveAll(d)
+		}
+	}
+	return os.MkdirTemp("", fmt.Sprintf("%s%d-", prefix, os.Getpid()))
+}
+
+// processAlive reports whether a process pid exists (signal 0 probes it).
+func processAlive(pid int) bool {
+	p, err := os.FindProcess(pid)
+	if err != nil {
+		return false
+	}
+	err = p.Signal(syscall.Signal(0))
+	return err == nil || errors.Is(err, syscall.EPERM)
 }
 
 func (t *dialogue) ask(p panel.Prompt) {

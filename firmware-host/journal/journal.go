@@ -582,3 +582,20 @@ func listSessions(ctx context.Context, db querier, unfinished bool) ([]SessionSu
 	}
 	return out, rows.Err()
 }
+
+// Resumable returns the latest unfinished session of the same procedure
+// (name and text hash) on the same intensifier as s, to resume after a
+// restart; "" if there is none.
+func (j *Journal) Resumable(ctx context.Context, s entry.Session) (string, error) {
+	ss, err := j.Unfinished(ctx)
+	if err != nil {
+		return "", err
+	}
+	id := ""
+	for _, u := range ss {
+		if u.Session.Procedure == s.Procedure && u.Session.IntensifierSerial == s.IntensifierSerial && u.Session.ProcedureHash == s.ProcedureHash {
+			id = u.ID // the latest one
+		}
+	}
+	return id, nil
+}

@@ -86,8 +86,17 @@ func ReadMark(journalPath string, pub ed25519.PublicKey) (*Mark, error) {
 	if err != nil {
 		return nil, fmt.Errorf("high-water mark %s: %w", p, err)
 	}
+	m, err := parseMark(data, pub)
+	if err != nil {
+		return nil, fmt.Errorf("high-water mark %s: %w", p, err)
+	}
+	return m, nil
+}
+
+// parseMark decodes the bytes of a mark file (see ReadMark).
+func parseMark(data []byte, pub ed25519.PublicKey) (*Mark, error) {
 	if len(data) > 2*markSlot {
-		return nil, fmt.Errorf("high-water mark %s: %d bytes, a mark file has at most %d", p, len(data), 2*markSlot)
+		return nil, fmt.Errorf("%d bytes, a mark file has at most %d", len(data), 2*markSlot)
 	}
 	var best *Mark
 	var why error
@@ -111,7 +120,7 @@ func ReadMark(journalPath string, pub ed25519.PublicKey) (*Mark, error) {
 		return nil, nil // created, never written: a first start cut short
 	}
 	if best == nil {
-		return nil, fmt.Errorf("high-water mark %s: no good slot: %w", p, why)
+		return nil, fmt.Errorf("no good slot: %w", why)
 	}
 	return best, nil
 }
