@@ -2,116 +2,133 @@ package engine
 
 import (
 	"context"
-	"fmt"
 	"os"
 	"os/exec"
 	"path/filepath"
+	"strconv"
+	"strings"
+	"syscall"
 	"testing"
-	"time"
 
 	"kermalux/firmware-host/journal"
-	"kermalux/firmware-host/panel/scripted"
 	"kermalux/procedures/entry"
-	"kermalux/procedures/panel"
 )
 
-const childEnv = "KERMALUX_ENGINE_KILL_CHILD"
+const (
+	childEnv  = "KERMALUX_ENGINE_KILL_CHILD" // the child's journal path
+	killAtEnv = "KERMALUX_ENGINE_KILL_AT"    // "kind:N": SIGKILL right after the Nth record of kind
+)
+
+// killingJournal kills its process (SIGKILL, as a power cut would end it)
+// right after the Nth record of a kind is durable.
+type killingJournal struct {
+	*journal.Journal
+	kind entry.Kind
+	n    int
+	seen map[entry.Kind]int
+}
+
+func (k *killingJournal) Append(ctx context.Context, s string, kind entry.Kind, p any) (int64, error) {
+	seq, err := k.Journal.Append(ctx, s, kind, p)
+	if err == nil {
+		k.seen[kind]++
+		if kind == k.kind && k.seen[kind] == k.n {
+			syscall.Kill(os.Getpid(), syscall.SIGKILL)
+			select {}
+		}
+	}
+	return seq, err
+}
 
 // TestKillChild is the child of TestKilledAndResumed: it runs a session
-// into the board journal until it is killed.
+// into the board journal and is killed at the journal event it is given.
 func TestKillChild(t *testing.T) {
 	path := os.Getenv(childEnv)
 	if path == "" {
 		t.Skip("child of TestKilledAndResumed")
 	}
 	r := newRig(cfSteps())
-	// Pace the child in real time so that a kill lands anywhere in it.
-	r.pan = scripted.New(r.clk, scripted.WithResponder(func(p panel.Prompt) panel.Response {
-		if p.Action == panel.ActBeamOn {
-			r.phys.schedule(true, r.phys.onDelay)
-		}
-		return scripted.AckAll(p)
-	}), scripted.OnSay(func(m panel.Message) {
-		if m.Action == panel.ActBeamOff {
-			r.phys.schedule(false, r.phys.offDelay)
-		}
-	}))
-	r.cfg.Panel = r.pan
 	jr, err := journal.Open(path, journal.Options{KeyDir: filepath.Join(filepath.Dir(path), "keys"), Clock: r.clk})
 	if err != nil {
 		t.Fatal(err)
 	}
-	r.cfg.Journal = jr
+	k, c, _ := strings.Cut(os.Getenv(killAtEnv), ":")
+	n, _ := strconv.Atoi(c)
+	r.cfg.Journal = &killingJournal{Journal: jr, kind: entry.Kind(k), n: n, seen: map[entry.Kind]int{}}
 	if _, err := r.run(context.Background()); err != nil {
 		t.Fatal(err)
 	}
 }
 
-// A board killed (SIGKILL) at random moments of a session: every time,
-// the journal verifies, the session is found unfinished (unless it had
-// finished), and resuming it completes it with each measurement accepted
-// exactly once.
+// A board killed (SIGKILL) at journal events of a session (a checklist
+// answer, the first and a late reading, the dark measurement accepted,
+// the beam on, a step record): every time the journal verifies, the
+// session is unfinished, and resuming it completes it with the earlier
+// records an unchanged prefix and each measurement accepted exactly once.
+// A kill that no longer lands (the event is gone) fails the test: no
+// vacuous passes.
 func TestKilledAndResumed(t *testing.T) {
 	if testing.Short() {
 		t.Skip("re-executes the test binary")
 	}
-	for i, delay := range []time.Duration{30, 60, 90, 120, 160, 220} {
-		dir := t.TempDir()
-		path := filepath.Join(dir, "journal.db")
-		cmd := exec.Command(os.Args[0], "-test.run", "^TestKillChild$")
-		cmd.Env = append(os.Environ(), childEnv+"="+path)
-		if err := cmd.Start(); err != nil {
-			t.Fatal(err)
-		}
-		time.Sleep(delay * time.Millisecond)
-		_ = cmd.Process.Kill()
-		_ = cmd.Wait()
-		if _, err := os.Stat(path); err != nil {
-			continue // killed before the journal existed
-		}
-		rep, err := journal.Verify(context.Background(), path)
-		if err != nil || !rep.OK() {
-			t.Fatalf("kill %d: verify: %v %+v", i, err, rep.Problems)
-		}
-		jr, err := journal.Open(path, journal.Options{KeyDir: filepath.Join(dir, "keys")})
-		if err != nil {
-			t.Fatal(err)
-		}
-		un, err := jr.Unfinished(context.Background())
-		if err != nil {
-			t.Fatal(err)
-		}
-		ss, _ := jr.Sessions(context.Background())
-		if len(un) == 0 {
-			t.Logf("kill %d after %s: nothing to resume (%d sessions)", i, delay*time.Millisecond, len(ss))
-			jr.Close()
-			if len(ss) > 1 {
-				t.Fatalf("kill %d: %d sessions", i, len(ss))
+	for _, at := range []string{"ack:3", "reading:1", "reading:40", "event:1", "event:3", "step:9", "prompt:9"} {
+		t.Run(at, func(t *testing.T) {
+			dir := t.TempDir()
+			path := filepath.Join(dir, "journal.db")
+			cmd := exec.Command(os.Args[0], "-test.run", "^TestKillChild$")
+			cmd.Env = append(os.Environ(), childEnv+"="+path, killAtEnv+"="+at)
+			var out strings.Builder
+			cmd.Stdout, cmd.Stderr = &out, &out
+			_ = cmd.Run()
+			if ws, ok := cmd.ProcessState.Sys().(syscall.WaitStatus); !ok || !ws.Signaled() {
+				t.Fatalf("the child was not killed at %s: %s", at, out.String())
 			}
-			continue // finished before the kill, or killed before Begin
-		}
-		r := newRig(cfSteps())
-		r.cfg.Journal = jr
-		r.cfg.Resume = un[0].ID
-		sum, err := r.run(context.Background())
-		if err != nil {
-			t.Fatalf("kill %d: resume: %v", i, err)
-		}
-		envs, _ := jr.Envelopes(context.Background(), sum.Session)
-		n := 0
-		for _, e := range envs {
-			if e.Kind == entry.KindEvent && containsName(e.Payload, evMeasured) {
-				n++
+			ctx := context.Background()
+			rep, err := journal.Verify(ctx, path)
+			if err != nil || !rep.OK() || len(rep.Unfinished) != 1 {
+				t.Fatalf("verify after the kill: %v %+v", err, rep)
 			}
-		}
-		jr.Close()
-		t.Logf("kill %d after %s: resumed from record %d", i, delay*time.Millisecond, un[0].Last)
-		if n != 2 || sum.Outcome != "complete" {
-			t.Errorf("kill %d after %s: %d measurements accepted, outcome %s", i, fmt.Sprint(delay*time.Millisecond), n, sum.Outcome)
-		}
-		rep, err = journal.Verify(context.Background(), path)
-		if err != nil || !rep.OK() {
-			t.Fatalf("kill %d: verify after resume: %v %+v", i, err, rep.Problems)
-		}
+			jr, err := journal.Open(path, journal.Options{KeyDir: filepath.Join(dir, "keys")})
+			if err != nil {
+				t.Fatal(err)
+			}
+			defer jr.Close()
+			un, err := jr.Unfinished(ctx)
+			if err != nil || len(un) != 1 {
+				t.Fatalf("unfinished %v %v", un, err)
+			}
+			before, _ := jr.Records(ctx, un[0].ID, 0, 0)
+			kind, _, _ := strings.Cut(at, ":")
+			if last := before[len(before)-1]; string(last.Kind) != kind {
+				t.Errorf("the journal ends with a %s record, want the %s the kill came after", last.Kind, at)
+			}
+			r := newRig(cfSteps())
+			r.cfg.Journal = jr
+			r.cfg.Resume = un[0].ID
+			sum, err := r.run(ctx)
+			if err != nil || sum.Outcome != "complete" || sum.Session != un[0].ID {
+				t.Fatalf("resume: %v, outcome %s", err, sum.Outcome)
+			}
+			after, _ := jr.Records(ctx, un[0].ID, 0, 0)
+			for i, rec := range before {
+				if after[i].Hash != rec.Hash {
+					t.Fatalf("record %d changed by the resume", rec.Seq)
+				}
+			}
+			n, resumed := 0, false
+			for _, rec := range after {
+				if rec.Kind == entry.KindEvent && containsName(rec.Payload, evMeasured) {
+					n++
+				}
+				resumed = resumed || (rec.Seq > int64(len(before)) && rec.Kind == entry.KindStep && strings.Contains(string(rec.Payload), `"state":"resumed"`))
+			}
+			if n != 2 || !resumed {
+				t.Errorf("%d measurements accepted (want 2, the dark and the conversion factor), resumed record %v", n, resumed)
+			}
+			if rep, err := journal.Verify(ctx, path); err != nil || !rep.OK() || len(rep.Unfinished) != 0 {
+				t.Fatalf("verify after the resume: %v %+v", err, rep)
+			}
+			t.Logf("killed after record %d (%s), resumed to record %d", len(before), at, len(after))
+		})
 	}
 }
