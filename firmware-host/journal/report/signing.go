@@ -247,6 +247,9 @@ func (r *Report) setupTable() infoTable {
 	t := infoTable{Title: "Set-up per step", Head: []string{"Step", "Field mode", "Brightness control", "Other settings asked for"}, Right: []bool{true}}
 	lastBC, lastStep := "", 0
 	for _, s := range r.Setups {
+		if checklistOnly(s.Setup) {
+			continue // a checklist line, not a bench set-up
+		}
 		var other []string
 		keys := make([]string, 0, len(s.Setup))
 		for k := range s.Setup {
@@ -404,6 +407,16 @@ func (r *Report) budgetGaps(res Result) []budgetGap {
 func (r *Report) hvlNotMeasured() bool {
 	for _, v := range r.Values {
 		if v.Name == "half_value_layer" || v.Name == "hvl" {
+			return false
+		}
+	}
+	return true
+}
+
+// checklistOnly: the set-up only numbers a checklist line.
+func checklistOnly(m map[string]string) bool {
+	for k := range m {
+		if k != "checklist" && k != "item" {
 			return false
 		}
 	}

@@ -40,6 +40,8 @@ func signingSession(t *testing.T) []entry.Envelope {
 	add(entry.KindEvent, entry.Event{Name: "meter_identified", Meter: &entry.MeterIdentity{Role: "dosimeter", Maker: "VELTRANE", Model: "KR-40", Serial: "KR40-1187", Firmware: "2.3", CertificateApplies: true}})
 	add(entry.KindPrompt, entry.Prompt{Step: 12, Level: "instruction", Action: "setup", Text: "Select the 25 cm field.", Asked: true,
 		Setup: map[string]string{"field_mode": "25cm", "brightness_control": "off", "tube_voltage": "70 kV", "filter": "21 mm Al"}})
+	add(entry.KindPrompt, entry.Prompt{Step: 3, Level: "instruction", Action: "check", Text: "Apron on.", Asked: true,
+		Setup: map[string]string{"checklist": "pre-exposure", "item": "1"}})
 	add(entry.KindValue, entry.Value{Step: 13, Name: "tube_voltage", Value: 70, Unit: "kV", Source: "bench default", Unconfirmed: true, FieldMode: "25cm"})
 	for i, env := range envs {
 		if env.Kind != entry.KindResult {
@@ -86,6 +88,9 @@ func TestReportSaysWhatAPhysicistSigns(t *testing.T) {
 		if !strings.Contains(html, want) {
 			t.Errorf("report lacks %q", want)
 		}
+	}
+	if strings.Contains(html, "checklist pre-exposure") {
+		t.Errorf("a checklist line is listed as a bench set-up")
 	}
 	// The 32 cm conversion factor (152.0 ± 5.3) lies 32.0 above the
 	// specification's 120: the margin is rounded like the value.
