@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"math"
 	"os"
+	"reflect"
 	"strings"
 	"time"
 
@@ -372,6 +373,9 @@ var meterDefaults = map[string]struct{ serial, firmware, link string }{
 }
 
 func (s *Scenario) check() error {
+	if err := checkFinite("$", reflect.ValueOf(s).Elem()); err != nil {
+		return err
+	}
 	if a := s.Air; a != nil {
 		if a.TemperatureC < -10 || a.TemperatureC > 50 {
 			return bad("$.room_air.temperature_c", "must be -10..50 °C, got %g", a.TemperatureC)

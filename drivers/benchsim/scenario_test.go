@@ -80,6 +80,10 @@ func TestScenarioErrors(t *testing.T) {
 		{"bad duration", good + "dosimeter:\n  response_time: soon\n", 5, ""},
 		{"decoder panic (found by fuzzing)", "faults: ! ", 0, "malformed YAML"},
 		{"pulse too wide", good + "  pulsed: {rate_hz: 30, width: 40ms}\n", 4, "width"},
+		// NaN passes every range check written as "x < lo || x > hi".
+		{"NaN conversion factor", "intensifier:\n  field_modes:\n    - {name: 32cm, diameter_cm: 32, conversion_factor: .nan, kerma_rate: 0.5}\n", 3, "field_modes[0].conversion_factor: NaN is not a number"},
+		{"infinite kerma rate", "intensifier:\n  field_modes:\n    - name: 32cm\n      diameter_cm: 32\n      conversion_factor: 150\n      kerma_rate: .inf\n", 6, "kerma_rate: +Inf"},
+		{"NaN air", good + "room_air:\n  temperature_c: .nan\n  pressure_kpa: 101\n", 5, "room_air.temperature_c: NaN"},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			_, err := ParseScenario("room.yaml", []byte(tc.yaml))
