@@ -243,7 +243,9 @@ func (x *expander) proc(p *Procedure, prefix string) time.Duration {
 	for i := range p.Steps {
 		sum += x.step(p, prefix, &p.Steps[i], "", nil)
 	}
-	if sum > p.BeamBudget {
+	// A budget that could not be read (its own error says why) is not
+	// compared: "budget of 0 s exceeded" would only confuse.
+	if p.BeamBudget > 0 && sum > p.BeamBudget {
 		pos := p.Pos
 		if fp, ok := p.Fields["beam_budget"]; ok {
 			pos = fp

@@ -47,6 +47,9 @@ func TestBadScripts(t *testing.T) {
 		}},
 		{"no-safety.yaml", Env{}, []want{{14, 5, "beam step with no pre-exposure safety checklist before it"}}},
 		{"safety-after.yaml", Env{}, []want{{16, 5, "beam step comes before the pre-exposure safety checklist (the checklist at line 21"}}},
+		// An unreadable budget is said once, for what it is (it used to
+		// add "beam-on budget of 0 s is exceeded").
+		{"bad-budget.yaml", Env{}, []want{{4, 14, `beam_budget: "soon" is not a number with a unit`}}},
 		{"budget-repeat.yaml", Env{}, []want{{4, 1, `beam-on budget of 40 s is exceeded: the steps may use up to 45 s of beam ("modes" repeats 3 times)`}}},
 		{"unmeasurable.yaml", dosimeterOnly, []want{{17, 7, "no configured meter reports luminance"}}},
 		{"dangling-ref.yaml", Env{}, []want{
