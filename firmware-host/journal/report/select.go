@@ -245,7 +245,7 @@ func WriteTrendText(w io.Writer, trends []Trend) error {
 		if t.FieldMode != "" {
 			title += ", " + t.FieldMode + " field"
 		}
-		fmt.Fprintf(w, "%s (%s)\n", title, t.Unit)
+		fmt.Fprintf(w, "%s (%s)\n", title, unitForQuantity(t.Quantity, t.Unit))
 		tw := tabwriter.NewWriter(w, 0, 4, 2, ' ', 0)
 		fmt.Fprintln(tw, "date\tsite / room\tvalue ± U\tof baseline\tverdict\t")
 		for _, p := range t.Points {

@@ -84,6 +84,7 @@ func TestReportSaysWhatAPhysicistSigns(t *testing.T) {
 		"(L_max − L_min) / (L_max + L_min)",
 		"Every limit, with its margin", "specification at least", "baseline rule (80.0 % of 168.0) at least", "action level at least",
 		"dosimeter energy dependence", "photometer spectral match", "dark reading",
+		"<td>ratio (open : disk)</td>", "<td>fraction</td>",
 	} {
 		if !strings.Contains(html, want) {
 			t.Errorf("report lacks %q", want)
