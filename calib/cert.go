@@ -59,7 +59,10 @@ type Certificate struct {
 
 	Backscatter float64 // optional backscatter factor B (> 1) for the chamber on the input face; 0 = not stated
 	Resolution  float64 // optional display resolution, canonical unit of Quantity; 0 = not stated
-	Notes       string
+	// RangeFloor is the lowest value the meter reads (below it, it reports
+	// under range), canonical unit; 0 = not stated.
+	RangeFloor float64
+	Notes      string
 
 	File   string // path it was read from
 	SHA256 string // hex SHA-256 of the file's bytes
@@ -137,7 +140,7 @@ func ParseCertificate(name string, data []byte) (*Certificate, error) {
 	r := &reader{file: name}
 	top := r.asObject(body, "", 1, "certificate", "laboratory", "meter", "quantity",
 		"calibrated", "due", "chamber", "coefficient", "coefficients", "uncertainty",
-		"backscatter_factor", "resolution", "notes")
+		"backscatter_factor", "resolution", "range_floor", "notes")
 	if r.err != nil {
 		return nil, r.err
 	}
@@ -240,6 +243,15 @@ func ParseCertificate(name string, data []byte) (*Certificate, error) {
 			r.fail(l, "resolution", "must be positive and at most %g %s, got %g", MaxResolution, units.Canonical(q), v)
 		}
 		c.Resolution = v
+	}
+	if top.has("range_floor") && c.Quantity.Valid() {
+		q := c.Quantity
+		v, ok := top.quantity("range_floor", q, false)
+		if ok && (v <= 0 || v > MaxResolution) {
+			_, l := top.node("range_floor")
+			r.fail(l, "range_floor", "must be positive and at most %g %s, got %g", MaxResolution, units.Canonical(q), v)
+		}
+		c.RangeFloor = v
 	}
 	c.Notes = top.text("notes", false)
 	if r.err != nil {

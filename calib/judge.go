@@ -49,18 +49,26 @@ func (l Limit) words(unit string) string {
 	return strings.TrimSpace(fmt.Sprintf("%s %s %.4g %s", l.Kind, side, l.Value, unit))
 }
 
-// Verdicts.
+// Outcome is what a judgement concluded; its text is the journal's
+// (entry.Result.Verdict).
+type Outcome string
+
+// Outcomes.
 const (
-	Pass = "pass"
-	Fail = "fail"
-	Info = "info"
+	Pass Outcome = "pass"
+	Fail Outcome = "fail"
+	Info Outcome = "info" // not judged: no limit, or the result is not calibrated
+	// NotMeasurable: the meter cannot show on which side of a limit the
+	// value lies (its range floor is above the limit, or it read under
+	// range with no known floor). Never a pass or a fail.
+	NotMeasurable Outcome = "not_measurable"
 )
 
 // Verdict is a judged result.
 type Verdict struct {
-	Verdict   string // Pass, Fail or Info
-	DecidedBy string // which limit decided it, in words
-	Marginal  bool   // the deciding limit lies within the expanded uncertainty of the value
+	Verdict   Outcome // Pass, Fail, Info or NotMeasurable
+	DecidedBy string  // which limit decided it, in words
+	Marginal  bool    // the deciding limit lies within the expanded uncertainty of the value
 	Notes     []string
 	// Checks are the limits compared, in the order checked, as absolute
 	// values with the margin to each (for the report).
@@ -95,6 +103,14 @@ type Check struct {
 // failed decides a Fail. When all pass, the one with the smallest margin
 // is named. A result that is not calibrated is never Pass or Fail: it is
 // Info, and the note says what the comparison would have given.
+//
+// The meter's range floor (r.Floor) bounds what can be shown: a value the
+// meter read under range (r.BelowFloor) is only known to lie below the
+// floor, so it passes a maximum at or above the floor and fails a minimum
+// at or above it; a limit below the floor can never be passed, however the
+// readings were averaged: such a limit, and any limit when the floor is
+// not known, makes the result NotMeasurable, with the reason. A fail on
+// another limit still decides a Fail.
 func Judge(r Result, baseline float64, limits []Limit) Verdict {
 	order := map[string]int{KindSpecification: 0, KindBaseline: 1, KindActionLevel: 2}
 	ls := append([]Limit(nil), limits...)
@@ -107,6 +123,7 @@ func Judge(r Result, baseline float64, limits []Limit) Verdict {
 	var closestLimit Limit
 	closest, closestWords := math.Inf(1), ""
 	checked := 0
+	unmeasurable := ""
 	for i := range ls {
 		l := ls[i]
 		limit := l.Value
@@ -123,10 +140,21 @@ func Judge(r Result, baseline float64, limits []Limit) Verdict {
 		}
 		checked++
 		w := l.words(r.Unit)
+		if why := floorBlocks(r, l.Bound, limit, w); why != "" {
+			if unmeasurable == "" {
+				unmeasurable = why
+			}
+			continue
+		}
 		ok := r.Value >= limit
 		margin := r.Value - limit
 		if l.Bound == AtMost {
 			ok, margin = r.Value <= limit, limit-r.Value
+		}
+		if r.BelowFloor {
+			// Below a floor at or inside the limit: the side is known,
+			// and the margin is at least the floor's distance.
+			ok, margin = l.Bound == AtMost, math.Abs(limit-r.Floor)
 		}
 		near := math.Abs(r.Value-limit) <= r.ExpUnc
 		v.Checks = append(v.Checks, Check{Limit: l, Absolute: limit, Margin: margin, Passed: ok, WithinU: near})
@@ -147,10 +175,12 @@ func Judge(r Result, baseline float64, limits []Limit) Verdict {
 		v.Verdict, v.DecidedBy = Info, "no limit set"
 	case failed != nil:
 		v.Verdict, v.DecidedBy, v.Decided, v.DecidedAt, v.Marginal = Fail, failedWords, *failed, failedAt, failedNear
+	case unmeasurable != "":
+		v.Verdict, v.DecidedBy = NotMeasurable, unmeasurable
 	default:
 		v.Verdict, v.DecidedBy, v.Decided, v.DecidedAt, v.Marginal = Pass, closestWords, closestLimit, closestAt, closestNear
 	}
-	if !r.Calibrated && v.Verdict != Info {
+	if !r.Calibrated && v.Verdict != Info && v.Verdict != NotMeasurable {
 		v.Notes = append(v.Notes, fmt.Sprintf("would be %s on %s", v.Verdict, v.DecidedBy))
 		reason := "result not calibrated"
 		if t := FlagTexts(r.Flags); len(t) > 0 {
@@ -158,10 +188,25 @@ func Judge(r Result, baseline float64, limits []Limit) Verdict {
 		}
 		v.Verdict, v.DecidedBy = Info, reason
 	}
-	if v.Marginal && v.Verdict != Info {
+	if v.Marginal && (v.Verdict == Pass || v.Verdict == Fail) {
 		v.DecidedBy += " (marginal)"
 	}
 	return v
+}
+
+// floorBlocks says why a limit cannot be judged against the meter's range
+// floor ("" when it can): the meter read under range and its floor is not
+// known, or the limit lies below the floor where no reading can show a
+// value under it. A minimum below the floor is no obstacle to a value
+// read above the floor.
+func floorBlocks(r Result, b Bound, limit float64, words string) string {
+	switch {
+	case r.BelowFloor && !(r.Floor > 0):
+		return fmt.Sprintf("the meter read under range and its range floor is not known: %s cannot be judged", words)
+	case r.Floor > 0 && limit < r.Floor && (b == AtMost || r.BelowFloor):
+		return fmt.Sprintf("the meter's range floor %.4g lies above the %s: not measurable with this meter", r.Floor, words)
+	}
+	return ""
 }
 
 // Dated is a value of a figure of merit on a day.

@@ -17,7 +17,7 @@ func TestJudge(t *testing.T) {
 		r        Result
 		baseline float64
 		limits   []Limit
-		verdict  string
+		verdict  Outcome
 		by       string
 		marginal bool
 	}{
@@ -112,5 +112,38 @@ func TestMarginalOnlyForTheDecidingLimit(t *testing.T) {
 	// A baseline limit is decided at its absolute value.
 	if v := Judge(Result{Value: 150, ExpUnc: 5, Unit: UnitConversion, Calibrated: true}, 168, []Limit{{Kind: KindBaseline, Bound: AtLeast, Value: 0.8}}); v.DecidedAt != 0.8*168 {
 		t.Errorf("baseline limit decided at %g, want %g", v.DecidedAt, 0.8*168)
+	}
+}
+
+// TestJudgeRangeFloor (observation 4: a photometer whose range floor is
+// above the dark limit reported "dark 0 ± 0, pass" while the true dark was
+// six times the limit): a maximum below the meter's range floor can never
+// be passed, whatever value the readings averaged to; a value read under
+// range passes a maximum at or above the floor and fails a minimum at or
+// above it; an unknown floor leaves it not measurable. A fail on another
+// limit still decides. (Logic of the bound, no outside value needed.)
+func TestJudgeRangeFloor(t *testing.T) {
+	maxL := func(v float64) Limit { return Limit{Kind: KindSpecification, Bound: AtMost, Value: v} }
+	minL := func(v float64) Limit { return Limit{Kind: KindSpecification, Bound: AtLeast, Value: v} }
+	for _, tc := range []struct {
+		name   string
+		r      Result
+		limits []Limit
+		want   Outcome
+		words  string
+	}{
+		{"zeros averaged under a floor above the limit", Result{Value: 0, Floor: 0.1, BelowFloor: true, Calibrated: true}, []Limit{maxL(0.05)}, NotMeasurable, "range floor 0.1"},
+		{"a value read below a limit that lies under the floor", Result{Value: 0.03, Floor: 0.1, Calibrated: true}, []Limit{maxL(0.05)}, NotMeasurable, "range floor"},
+		{"under range, floor inside the maximum", Result{Value: 0, Floor: 0.1, BelowFloor: true, Calibrated: true}, []Limit{maxL(0.5)}, Pass, ""},
+		{"under range, floor inside the minimum", Result{Value: 0, Floor: 0.1, BelowFloor: true, Calibrated: true}, []Limit{minL(0.5)}, Fail, ""},
+		{"under range, floor unknown", Result{Value: 0, BelowFloor: true, Calibrated: true}, []Limit{maxL(0.5)}, NotMeasurable, "floor is not known"},
+		{"read above the floor, minimum below it", Result{Value: 2, Floor: 0.1, Calibrated: true}, []Limit{minL(0.05)}, Pass, ""},
+		{"not measurable on one, fail on another", Result{Value: 0.2, Floor: 0.1, Calibrated: true}, []Limit{maxL(0.05), minL(1)}, Fail, ""},
+		{"not calibrated stays not measurable", Result{Value: 0, Floor: 0.1, BelowFloor: true}, []Limit{maxL(0.05)}, NotMeasurable, "range floor"},
+	} {
+		v := Judge(tc.r, 0, tc.limits)
+		if v.Verdict != tc.want || !strings.Contains(v.DecidedBy, tc.words) {
+			t.Errorf("%s: %s (%s), want %s mentioning %q", tc.name, v.Verdict, v.DecidedBy, tc.want, tc.words)
+		}
 	}
 }

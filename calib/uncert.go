@@ -181,6 +181,12 @@ type Result struct {
 	Calibrated bool
 	Flags      []Flag
 	Detail     any // figure-specific detail, e.g. *UniformityDetail
+	// Floor is the lowest value the meter reads, in the result's unit
+	// (below it the meter reports under range); 0 when not known.
+	// BelowFloor: the meter read under range, so the value is only known
+	// to lie below Floor. [Judge] refuses to pass a limit below the floor.
+	Floor      float64
+	BelowFloor bool
 }
 
 // RelExpUnc is U / |value|.

@@ -36,6 +36,9 @@ type DarkLevel struct {
 	N          int
 	Resolution float64 // 0: not known
 	Note       string  // where it was taken ("at position up 0.9 r")
+	// Unknown: the meter read under range and its range floor is not
+	// known, so the dark cannot be subtracted.
+	Unknown bool
 }
 
 // identify asks every meter who it is, journals the answer (maker, model,
@@ -179,6 +182,8 @@ type rawStat struct {
 	N          int     `json:"n"`
 	Resolution float64 `json:"resolution,omitempty"`
 	Under      int     `json:"under_range,omitempty"` // readings below the meter's range
+	Floor      float64 `json:"floor,omitempty"`       // the meter's range floor, own scale; 0 unknown
+	Scale      float64 `json:"scale,omitempty"`       // corrected = raw × Scale (+ offsets); 0 unknown
 }
 
 // typeB is a calib.Component as journalled.
@@ -205,6 +210,10 @@ func (e *Engine) finishStat(p *posStat, a *attempt) {
 		var st rawStat
 		var cs []calib.Corrected
 		for _, h := range hs {
+			st.Floor = math.Max(st.Floor, h.c.Floor)
+			if h.c.Scale > 0 {
+				st.Scale = h.c.Scale
+			}
 			switch {
 			case h.r.Status == drivers.StatusUnderRange:
 				st.Under++
@@ -253,7 +262,16 @@ func (st *state) darkFor(role, label string) (DarkLevel, bool) {
 func (st *state) putDark(p posStat) {
 	for _, role := range []string{Photometer, Dosimeter} {
 		var d DarkLevel
-		if r, ok := p.Raw[role]; ok && r.N > 0 {
+		if r, ok := p.Raw[role]; ok && r.Under > 0 {
+			// Under range: the dark lies somewhere between 0 and the
+			// floor; taken as its middle with a rectangular uncertainty
+			// of that width (JCGM 100:2008 4.3.7), which is what a
+			// display whose only step is the floor gives (δ/√12).
+			d = DarkLevel{Mean: r.Floor / 2, N: 1, Resolution: r.Floor, Note: fmt.Sprintf("under range: half the range floor %.4g", r.Floor)}
+			if !(r.Floor > 0) {
+				d = DarkLevel{Unknown: true, Note: "under range, range floor not known"}
+			}
+		} else if r, ok := p.Raw[role]; ok && r.N > 0 {
 			d = DarkLevel{Mean: r.Mean, SD: r.SD, N: r.N, Resolution: r.Resolution}
 		} else if role == Photometer && p.HasL {
 			d = DarkLevel{Mean: p.L, N: p.NL, Note: "dark recorded as corrected (older journal)"}

@@ -24,6 +24,7 @@ type idMeter struct {
 	*fakeMeter
 	id       drivers.Identity
 	changeAt time.Duration // 0: never
+	floor    float64       // readings below it come back under range, with no value
 }
 
 func (m *idMeter) Identify(ctx context.Context) (drivers.Identity, error) { return m.id, nil }
@@ -33,7 +34,11 @@ func (m *idMeter) Read(ctx context.Context) (drivers.Reading, error) {
 		m.p.clk.Advance(m.period)
 		return drivers.Reading{}, fmt.Errorf("%s: reconnected: serial LM9-9999 where LM9-5521 was: %w", m.name, drivers.ErrMeterChanged)
 	}
-	return m.fakeMeter.Read(ctx)
+	r, err := m.fakeMeter.Read(ctx)
+	if err == nil && m.floor > 0 && r.Value < m.floor {
+		r.Status, r.Value, r.RawValue, r.Raw = drivers.StatusUnderRange, 0, 0, "UND"
+	}
+	return r, err
 }
 
 // testCerts are an invented photometer and dosimeter certificate (demo
@@ -189,5 +194,41 @@ func TestMeterChangedStopsStep(t *testing.T) {
 	}
 	if !ev {
 		t.Error("no meter_changed event journalled")
+	}
+}
+
+// TestDarkUnderRangeFloor (observation 4: a photometer whose range floor is
+// above the dark limit reported dark "0 ± 0, pass", the dark was never
+// subtracted): the dark read under range is judged "not measurable"
+// against a limit below the certificate's range floor, and the beam
+// readings have half the floor subtracted (the middle of 0 to the floor,
+// JCGM 100:2008 4.3.7) with that rectangular uncertainty, still calibrated.
+func TestDarkUnderRangeFloor(t *testing.T) {
+	steps := cfSteps()
+	steps = append(steps,
+		Step{ID: "dark-level", Kind: Compute, Compute: &ComputeSpec{Figure: "dark_level", Inputs: map[string]string{"reading": "dark"}}},
+		Step{ID: "dark-check", Kind: Judge, Judge: &JudgeSpec{Result: "dark-level", Limits: []JudgeLimit{{Kind: "max", Value: 0.05}}}})
+	r, phot := calibRig(steps, "LM9-5521")
+	phot.floor = 0.1 // the rig's dark light is 0.05 cd/m²
+	r.cfg.Correctors[Photometer].(CalibCorrector).Cert.RangeFloor = 0.1
+	if _, err := r.run(context.Background()); err != nil {
+		t.Fatalf("run: %v\n%s", err, r.pan.Dialogue())
+	}
+	var level *entry.Result
+	for _, res := range records[entry.Result](r.jr, "s1", entry.KindResult) {
+		if res.Quantity == "dark_level" {
+			level = &res
+		}
+	}
+	if level == nil || level.Verdict != string(calib.NotMeasurable) || !strings.Contains(level.DecidedBy, "range floor") {
+		t.Fatalf("dark level result %+v, want not_measurable by the range floor", level)
+	}
+	for _, rd := range records[entry.Reading](r.jr, "s1", entry.KindReading) {
+		if rd.StepID != "cf@32cm" || rd.Quantity != string(units.Luminance) || !rd.Used {
+			continue
+		}
+		if len(rd.Corrections) == 0 || rd.Corrections[0].Name != "dark" || math.Abs(rd.Corrections[0].Offset+0.05) > 1e-12 || !rd.Calibrated {
+			t.Fatalf("beam reading corrections %+v calibrated %v, want the dark taken as 0.05 (half the floor)", rd.Corrections, rd.Calibrated)
+		}
 	}
 }

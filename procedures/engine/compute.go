@@ -63,7 +63,15 @@ func (cc CalibCorrector) Correct(r drivers.Reading, c Conditions) Corrected {
 	out := calib.Correct(r.Value, r.Quantity, s)
 	res := Corrected{Value: out.Value, Certificate: out.Certificate, Calibrated: out.Calibrated, Flags: calib.FlagTexts(out.Flags), TypeB: out.TypeB}
 	if out.Certificate != "" && cc.Cert != nil {
-		res.Resolution = cc.Cert.Resolution
+		res.Resolution, res.Floor = cc.Cert.Resolution, cc.Cert.RangeFloor
+	}
+	res.Scale = 1
+	for _, a := range out.Applied {
+		res.Scale *= a.Factor
+	}
+	if c.Dark != nil && c.Dark.Unknown && r.Quantity == units.Luminance {
+		res.Calibrated = false
+		res.Flags = append(res.Flags, "the dark reading was under range and the meter's range floor is not known: the dark light could not be subtracted, reading not calibrated")
 	}
 	for _, a := range out.Applied {
 		res.Corrections = append(res.Corrections, entry.Correction{Name: a.Name, Factor: a.Factor, Offset: a.Offset, Note: a.Note})
@@ -103,6 +111,13 @@ func (e *Engine) settledMeasure(p posStat, lum bool) calib.Measured {
 		m.TypeB = append(m.TypeB, calib.Component{Source: "residual settling of the reading", Rel: a / math.Sqrt(3)})
 	}
 	return m
+}
+
+func roleOf(lum bool) string {
+	if lum {
+		return Photometer
+	}
+	return Dosimeter
 }
 
 func relB(src string, rel float64) []calib.Component {
@@ -221,6 +236,11 @@ func (e *Engine) compute(ctx context.Context, idx int, s Step) error {
 			// The level with its resolution and type B in the budget
 			// (calib.Level); stability is a relative change, below.
 			res = calib.Level(fig, m, 0)
+			if raw, ok := p.Raw[roleOf(lum)]; ok {
+				// The meter's range floor bounds what the level can show.
+				res.Floor = raw.Floor * raw.Scale
+				res.BelowFloor = raw.Under > 0
+			}
 			if fig == "stability" {
 				drift, meter := p.Drift, Dosimeter
 				if lum {
@@ -241,7 +261,8 @@ func (e *Engine) compute(ctx context.Context, idx int, s Step) error {
 	}
 	r := entry.Result{Step: idx, Procedure: s.Procedure, FieldMode: s.FieldMode, Quantity: res.Quantity,
 		Value: res.Value, Unit: res.Unit, StdUnc: res.StdUnc, ExpUnc: res.ExpUnc, K: res.K,
-		Calibrated: res.Calibrated, Flags: calib.FlagTexts(res.Flags), Detail: res.Detail, Verdict: calib.Info}
+		Calibrated: res.Calibrated, Flags: calib.FlagTexts(res.Flags), Detail: res.Detail, Verdict: string(calib.Info),
+		RangeFloor: res.Floor, BelowRangeFloor: res.BelowFloor}
 	if r.Quantity == "" {
 		r.Quantity = fig
 	}
@@ -331,8 +352,9 @@ func (e *Engine) benchLimits(q, mode string) []calib.Limit {
 
 func (e *Engine) applyVerdict(r *entry.Result, res calib.Result, limits []calib.Limit) calib.Verdict {
 	res.Value, res.ExpUnc, res.Unit, res.Calibrated = r.Value, r.ExpUnc, r.Unit, r.Calibrated
+	res.Floor, res.BelowFloor = r.RangeFloor, r.BelowRangeFloor
 	v := calib.Judge(res, r.Baseline, limits)
-	r.Verdict, r.DecidedBy = v.Verdict, v.DecidedBy
+	r.Verdict, r.DecidedBy = string(v.Verdict), v.DecidedBy
 	r.Limits = nil
 	for _, c := range v.Checks {
 		lc := entry.LimitCheck{Kind: c.Limit.Kind, Bound: string(c.Limit.Bound), Value: c.Absolute, Margin: c.Margin, Passed: c.Passed, WithinU: c.WithinU}
@@ -401,7 +423,7 @@ func (e *Engine) judge(ctx context.Context, idx int, s Step) error {
 		return err
 	}
 	lv := panel.Good
-	if r.Verdict == calib.Fail {
+	if r.Verdict == string(calib.Fail) {
 		lv = panel.Warn
 	}
 	return e.say(ctx, idx, panel.Message{Text: spokenVerdict(r, e.resultMeter(j.Result), v), Level: lv})

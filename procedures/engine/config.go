@@ -179,6 +179,11 @@ type Corrected struct {
 	// Resolution is the meter's display resolution in its own scale,
 	// from the certificate that applies; 0 when not known.
 	Resolution float64
+	// Floor is the lowest value the meter reads, in its own scale (from
+	// the certificate's range_floor); 0 when not known. Scale is the
+	// product of the corrections' factors (corrected = raw × Scale +
+	// offsets); 0 when not known.
+	Floor, Scale float64
 }
 
 // Corrector applies a meter's calibration to its readings (calib does the

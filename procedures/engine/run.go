@@ -376,7 +376,9 @@ func closingSummary(sum Summary, beamOn time.Duration) string {
 	return text + " Beam-on time " + spokenDuration(beamOn) + "."
 }
 
-func needsReview(r entry.Result) bool { return r.Verdict == "fail" || !r.Calibrated }
+func needsReview(r entry.Result) bool {
+	return r.Verdict == string(calib.Fail) || r.Verdict == string(calib.NotMeasurable) || !r.Calibrated
+}
 
 func spellCount(n int) string {
 	words := []string{"Zero", "One", "Two", "Three", "Four", "Five", "Six", "Seven", "Eight", "Nine", "Ten"}

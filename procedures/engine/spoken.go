@@ -121,6 +121,9 @@ func spokenVerdict(r entry.Result, meter string, v calib.Verdict) string {
 		}
 		return text
 	}
+	if v.Verdict == calib.NotMeasurable {
+		return name + ": not measurable, " + v.DecidedBy + "."
+	}
 	if v.DecidedBy == "no limit set" {
 		return name + ": no limit set, no verdict."
 	}

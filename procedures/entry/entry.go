@@ -242,6 +242,11 @@ type Result struct {
 	// Limits are every limit the result was compared with, as absolute
 	// values in the result's unit, with the margin to each.
 	Limits []LimitCheck `json:"limits,omitempty"`
+	// RangeFloor is the lowest value the meter reads, in the result's unit
+	// (0: not known); BelowRangeFloor: it read under range, so the value
+	// is only known to lie below RangeFloor.
+	RangeFloor      float64 `json:"range_floor,omitempty"`
+	BelowRangeFloor bool    `json:"below_range_floor,omitempty"`
 }
 
 // LimitCheck is one limit a result was compared with.
