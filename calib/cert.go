@@ -235,29 +235,27 @@ func ParseCertificate(name string, data []byte) (*Certificate, error) {
 		}
 		c.Backscatter = b
 	}
-	if top.has("resolution") && c.Quantity.Valid() {
-		q := c.Quantity
-		v, ok := top.quantity("resolution", q, false)
-		if ok && (v <= 0 || v > MaxResolution) {
-			_, l := top.node("resolution")
-			r.fail(l, "resolution", "must be positive and at most %g %s, got %g", MaxResolution, units.Canonical(q), v)
-		}
-		c.Resolution = v
-	}
-	if top.has("range_floor") && c.Quantity.Valid() {
-		q := c.Quantity
-		v, ok := top.quantity("range_floor", q, false)
-		if ok && (v <= 0 || v > MaxResolution) {
-			_, l := top.node("range_floor")
-			r.fail(l, "range_floor", "must be positive and at most %g %s, got %g", MaxResolution, units.Canonical(q), v)
-		}
-		c.RangeFloor = v
-	}
+	c.Resolution = smallQuantity(r, top, "resolution", c.Quantity)
+	c.RangeFloor = smallQuantity(r, top, "range_floor", c.Quantity)
 	c.Notes = top.text("notes", false)
 	if r.err != nil {
 		return nil, r.err
 	}
 	return c, nil
+}
+
+// smallQuantity reads an optional positive value of q no larger than
+// MaxResolution (a display resolution, a range floor); 0 when absent.
+func smallQuantity(r *reader, top *object, key string, q units.Quantity) float64 {
+	if !top.has(key) || !q.Valid() {
+		return 0
+	}
+	v, ok := top.quantity(key, q, false)
+	if ok && (v <= 0 || v > MaxResolution) {
+		_, l := top.node(key)
+		r.fail(l, key, "must be positive and at most %g %s, got %g", MaxResolution, units.Canonical(q), v)
+	}
+	return v
 }
 
 func readTable(r *reader, t *object, c *Certificate) {

@@ -57,6 +57,7 @@ const (
 	FlagOtherMeter     FlagCode = "certificate_other_meter" // the meter identified as another model or serial than the certificate names
 	FlagNotIdentified  FlagCode = "meter_not_identified"    // the meter did not identify itself: its certificate cannot be confirmed
 	FlagUnderRange     FlagCode = "under_range"             // the value lies below the meter's range floor: only an upper bound is known
+	FlagDarkModel      FlagCode = "dark_model"              // informational: a position's dark was modelled from the centre's
 )
 
 // Flag is a code and a sentence to say and print.
@@ -69,7 +70,7 @@ func (f Flag) String() string { return f.Text }
 
 // informational flags do not stop a reading being calibrated.
 func (f Flag) informational() bool {
-	return f.Code == FlagDueSoon || f.Code == FlagDiskSize
+	return f.Code == FlagDueSoon || f.Code == FlagDiskSize || f.Code == FlagDarkModel
 }
 
 // certificateFlag reports flags about a meter's calibration, which a ratio
@@ -500,6 +501,29 @@ func (out *Corrected) addResolution(c *Certificate) {
 	r := ResolutionComponent(c.Resolution * math.Abs(f))
 	r.Source = "display resolution, " + c.Model
 	out.TypeB = append(out.TypeB, r)
+}
+
+// PositionDark is the dark level kermalux takes at a position of the
+// output window that has no beam-off reading of its own, from the centre's
+// dark (all in the meter's own scale). Beam-off light there lies between
+// two models: the centre dark unchanged (a meter offset, light that does
+// not vignette) and the centre dark scaled by the position's share of the
+// centre's beam light ρ = (M_pos − D)/(M_centre − D) (stray light and
+// afterglow that vignette as the image does). With no reason to prefer
+// either, the estimate is the middle of the two and its standard
+// uncertainty that of a rectangular distribution over them (JCGM
+// 100:2008 4.3.7):
+//
+//	D_pos = D·(1 + ρ)/2,   u = D·|1 − ρ| / (2√3)
+//
+// It returns the centre dark and no uncertainty when ρ cannot be formed.
+func PositionDark(centreDark, rawPos, rawCentre float64) (d, u float64) {
+	den := rawCentre - centreDark
+	if !(den > 0) || math.IsNaN(rawPos) {
+		return centreDark, 0
+	}
+	rho := (rawPos - centreDark) / den
+	return centreDark * (1 + rho) / 2, math.Abs(centreDark*(1-rho)) / (2 * math.Sqrt(3))
 }
 
 // addDark adds the dark level's uncertainty, carried through the

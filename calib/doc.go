@@ -11,13 +11,19 @@
 // [Correct] applies, in this order, and records each step as an [Applied]:
 //
 //	photometer (luminance):
-//	  1. dark          L' = M − M_dark            (beam-off reading subtracted)
+//	  1. dark          L' = M − M_dark            (beam-off reading, meter's own scale)
 //	  2. calibration   L  = N · L'                (certificate coefficient)
 //	dosimeter (air kerma rate or air kerma):
 //	  1. calibration   K' = N_K(Q) · M            (coefficient at beam quality Q)
 //	  2. k_tp          K'' = k_TP · K'            (vented chambers only)
 //	  3. backscatter   K''' = K'' / B             (chamber against the input face)
 //	  4. inverse_square K = K''' · (d_chamber/d_input)²
+//
+// A certificate applies only to the meter that reported the model and
+// serial it names ([Certificate.AppliesTo], [Setup.Meter]); for any other
+// meter, or one not identified, nothing of it is applied. The dark is in
+// the meter's own scale ([Dark]), its uncertainty from its spread and the
+// display resolution ([DarkUncertainty]).
 //
 // Unit normalisation happened earlier, in drivers: values arrive canonical.
 // A reading that cannot be corrected fully (no certificate, an expired one,
@@ -56,5 +62,6 @@
 // [Judge] compares the value itself with each limit (common practice,
 // "simple acceptance"); a limit inside the expanded uncertainty marks the
 // verdict marginal for review. A result that is not calibrated is never
-// pass or fail, only info.
+// pass or fail, only info. A limit below the meter's range floor is never
+// passed: the outcome is [NotMeasurable], with the reason.
 package calib

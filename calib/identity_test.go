@@ -114,3 +114,26 @@ func TestLevelCarriesResolution(t *testing.T) {
 		t.Errorf("zero level: calibrated %v u %v flags %v", r.Calibrated, r.StdUnc, r.Flags)
 	}
 }
+
+// TestPositionDark (observation 6: one centre dark subtracted at every
+// position made non-uniformity 5.7-9.3 U high with vignetted dark light):
+// a position without its own dark gets the middle of "centre dark
+// unchanged" and "centre dark scaled by the position's light", with the
+// rectangular uncertainty over the two (JCGM 100:2008 4.3.7). By hand:
+// D = 0.3, centre 100.3, position 80.3 give ρ = 80/100 = 0.8, D_pos =
+// 0.3·1.8/2 = 0.27 and u = 0.3·0.2/(2√3) = 0.017321.
+func TestPositionDark(t *testing.T) {
+	d, u := PositionDark(0.3, 80.3, 100.3)
+	if math.Abs(d-0.27) > 1e-12 || math.Abs(u-0.017321) > 5e-7 {
+		t.Errorf("PositionDark = %v ± %v, want 0.27 ± 0.017321", d, u)
+	}
+	// The truth under either model lies within √3·u of the estimate.
+	for _, truth := range []float64{0.3, 0.3 * 0.8} {
+		if math.Abs(truth-d) > math.Sqrt(3)*u+1e-12 {
+			t.Errorf("model %v lies outside the interval %v ± √3·%v", truth, d, u)
+		}
+	}
+	if d, u := PositionDark(0.3, 100.3, 100.3); d != 0.3 || u != 0 {
+		t.Errorf("at the centre's level: %v ± %v, want the centre dark", d, u)
+	}
+}

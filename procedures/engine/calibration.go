@@ -310,3 +310,49 @@ func isMeterChanged(role string, err error) *changedError {
 	}
 	return nil
 }
+
+// modelledDark is a position's dark correction from the centre's dark.
+type modelledDark struct {
+	calib.Component         // its uncertainty, corrected scale
+	shift           float64 // added to the position's corrected mean
+}
+
+// positionDarks returns, for each luminance position of a uniformity map
+// that had the meter's (centre) dark subtracted rather than its own, the
+// change calib.PositionDark makes to it: the centre dark was subtracted,
+// the model's D_pos is used instead, so N·(D − D_pos) is added to the
+// corrected mean, with N·u as a type B component (not the calibration's:
+// it does not cancel in the ratio). Positions with their own dark, and
+// the centre, are left as they are.
+func (e *Engine) positionDarks(ps []posStat) map[int]modelledDark {
+	d, ok := e.st.darks[Photometer]
+	if !ok || d.Unknown || d.Mean == 0 {
+		return nil
+	}
+	centre := -1
+	for i, p := range ps {
+		if p.R == 0 && centre < 0 {
+			centre = i
+		}
+	}
+	if centre < 0 {
+		return nil
+	}
+	rc, ok := ps[centre].Raw[Photometer]
+	if !ok || rc.N == 0 {
+		return nil
+	}
+	out := map[int]modelledDark{}
+	for i, p := range ps {
+		r, ok := p.Raw[Photometer]
+		if i == centre || p.DarkFrom != "" || !ok || r.N == 0 || !(r.Scale > 0) {
+			continue
+		}
+		dp, u := calib.PositionDark(d.Mean, r.Mean, rc.Mean)
+		out[i] = modelledDark{
+			Component: calib.Component{Source: "dark at this position, modelled from the centre's", Abs: r.Scale * u},
+			shift:     r.Scale * (d.Mean - dp),
+		}
+	}
+	return out
+}

@@ -188,10 +188,19 @@ func (e *Engine) compute(ctx context.Context, idx int, s Step) error {
 		var lp []posStat
 		if lp, err = e.input(s, "luminance"); err == nil {
 			var spots []calib.Spot
-			for _, p := range lp {
-				spots = append(spots, calib.Spot{Label: p.Label, Radius: p.R, Angle: p.Angle, Luminance: e.settledMeasure(p, true)})
+			modelled := e.positionDarks(lp)
+			for i, p := range lp {
+				m := e.settledMeasure(p, true)
+				if md := modelled[i]; md.Source != "" {
+					m.Samples.Mean += md.shift
+					m.TypeB = append(m.TypeB, md.Component)
+				}
+				spots = append(spots, calib.Spot{Label: p.Label, Radius: p.R, Angle: p.Angle, Luminance: m})
 			}
 			res, err = calib.Uniformity(spots, 0)
+			if err == nil && len(modelled) > 0 {
+				res.Flags = append(res.Flags, calib.Flag{Code: calib.FlagDarkModel, Text: "positions without their own dark reading: dark modelled from the centre's, between unchanged and scaled by each position's light (calib.PositionDark)"})
+			}
 		}
 	case calib.QKermaScaling, "kerma_mode_scaling": // the older name of the same figure
 		if s.Compute.Inputs["air_kerma_rate"] == s.Compute.Inputs["reference"] {
