@@ -42,7 +42,7 @@ func TestMissingArgumentSaysWhat(t *testing.T) {
 // (or says it is unknown, as in a test binary).
 func TestVersionSaysBuild(t *testing.T) {
 	code, stdout, _ := runCLI(t, "--version")
-	if code != exitOK || !strings.Contains(stdout, "workstation build") || !strings.Contains(stdout, "commit ") || !strings.Contains(stdout, "go1.") {
+	if code != exitOK || !strings.Contains(stdout, buildFlavour) || !strings.Contains(stdout, "commit ") || !strings.Contains(stdout, "go1.") {
 		t.Errorf("--version: exit %d, %q", code, stdout)
 	}
 }
