@@ -9,6 +9,7 @@ import (
 
 	"kermalux/drivers"
 	"kermalux/drivers/clock"
+	"kermalux/drivers/poller"
 	"kermalux/drivers/serialline"
 )
 
@@ -22,6 +23,12 @@ type Options struct {
 	Clock clock.Clock
 	// Log receives link and protocol events; slog.Default() when nil.
 	Log *slog.Logger
+	// Background, for a polled meter, asks it in a goroutine at its own
+	// pace (reading.period) and queues the readings (package poller), so
+	// the caller takes every reading the meter gave, stamped when it
+	// came, however slow the caller is; Pending and Discard then work as
+	// for a streaming meter. Read no longer asks the meter itself.
+	Background bool
 }
 
 // Meter is a meter driven by a profile over a serial line. It implements
@@ -41,6 +48,8 @@ type Meter struct {
 	id      drivers.Identity // the identity first seen on the link
 	idKnown bool
 	changed error // set when a reconnection found another meter
+
+	bg *poller.Poller // the background reader of a polled meter, or nil
 }
 
 var (
@@ -73,6 +82,9 @@ func Open(ctx context.Context, p *Profile, port string, opts Options) (*Meter, e
 	if err := m.prepare(ctx); err != nil {
 		sp.Close()
 		return nil, err
+	}
+	if opts.Background && p.Mode == Polled {
+		m.bg = poller.New(opts.Name, m.read, 0, serialline.RealTimeout(opts.Clock, 5*p.Period), opts.Log)
 	}
 	return m, nil
 }
@@ -196,12 +208,20 @@ func (m *Meter) Identify(ctx context.Context) (drivers.Identity, error) {
 	if m.p.Identify == "" {
 		return id, nil
 	}
-	if err := m.prepare(ctx); err != nil {
-		return id, err
+	var err error
+	run := func() {
+		if err = m.prepare(ctx); err != nil {
+			return
+		}
+		id, err = m.identify(ctx)
+		if err == nil && !m.idKnown {
+			m.id, m.idKnown = id, true
+		}
 	}
-	id, err := m.identify(ctx)
-	if err == nil && !m.idKnown {
-		m.id, m.idKnown = id, true
+	if m.bg != nil {
+		m.bg.Exclusive(run)
+	} else {
+		run()
 	}
 	return id, err
 }
@@ -244,6 +264,13 @@ func (m *Meter) identify(ctx context.Context) (drivers.Identity, error) {
 // error wrapping drivers.ErrGarbled or drivers.ErrUnit, and a lost link
 // drivers.ErrLinkDown (the next call reconnects).
 func (m *Meter) Read(ctx context.Context) (drivers.Reading, error) {
+	if m.bg != nil {
+		return m.bg.Next(ctx)
+	}
+	return m.read(ctx)
+}
+
+func (m *Meter) read(ctx context.Context) (drivers.Reading, error) {
 	if err := m.prepare(ctx); err != nil {
 		return drivers.Reading{}, err
 	}
@@ -328,6 +355,10 @@ func (m *Meter) reading(l serialline.Line) (drivers.Reading, error) {
 // waiting in the buffers (and the line in progress), so the next reading is
 // one sent after the call. A polled meter's readings are always fresh.
 func (m *Meter) Discard() {
+	if m.bg != nil {
+		m.bg.Discard()
+		return
+	}
 	if m.p.Mode == Streaming && m.port.Up() {
 		m.port.Discard()
 	}
@@ -336,6 +367,9 @@ func (m *Meter) Discard() {
 // Pending implements drivers.Queued: the lines a streaming meter has sent
 // that wait to be read (0 for a polled meter, which answers when asked).
 func (m *Meter) Pending() int {
+	if m.bg != nil {
+		return m.bg.Pending()
+	}
 	if m.p.Mode != Streaming || !m.port.Up() {
 		return 0
 	}
@@ -344,6 +378,9 @@ func (m *Meter) Pending() int {
 
 // Close stops a streaming meter (best effort) and closes the port.
 func (m *Meter) Close() error {
+	if m.bg != nil {
+		m.bg.Stop()
+	}
 	if m.p.Mode == Streaming && m.p.Stop != "" && m.port.Up() {
 		ctx, cancel := context.WithTimeout(context.Background(), 200*time.Millisecond)
 		m.port.WriteLine(ctx, m.p.Stop)

@@ -28,6 +28,7 @@ import (
 
 	"kermalux/drivers"
 	"kermalux/drivers/clock"
+	"kermalux/drivers/poller"
 	"kermalux/drivers/serialline"
 	"kermalux/drivers/units"
 )
@@ -115,10 +116,17 @@ func (c *Config) defaults() {
 type Option func(*options)
 
 type options struct {
-	name string
-	clk  clock.Clock
-	log  *slog.Logger
+	name       string
+	clk        clock.Clock
+	log        *slog.Logger
+	background bool
 }
+
+// WithBackground has a goroutine ask the meter at its own pace (Period)
+// and queue the readings (package poller), so the caller takes every
+// reading the meter gave, stamped when it came, however slow the caller
+// is; Pending and Discard then work as for a streaming meter.
+func WithBackground() Option { return func(o *options) { o.background = true } }
 
 // WithName sets the meter's role ("dosimeter"), copied into readings.
 func WithName(name string) Option { return func(o *options) { o.name = name } }
@@ -148,11 +156,15 @@ type Meter struct {
 	id      drivers.Identity // the identity first seen on the link
 	idKnown bool
 	changed error // set when a reconnection found another meter
+
+	bg *poller.Poller // the background reader, or nil
 }
 
 var (
 	_ drivers.Meter      = (*Meter)(nil)
 	_ drivers.Identifier = (*Meter)(nil)
+	_ drivers.Queued     = (*Meter)(nil)
+	_ drivers.Freshener  = (*Meter)(nil)
 )
 
 // Open opens the port, sends the set-up commands and learns the unit.
@@ -189,7 +201,31 @@ func Open(ctx context.Context, port string, cfg Config, opts ...Option) (*Meter,
 		sp.Close()
 		return nil, err
 	}
+	if o.background {
+		period := cfg.Period
+		if period <= 0 {
+			period = 100 * time.Millisecond
+		}
+		m.bg = poller.New(o.name, m.read, 0, serialline.RealTimeout(o.clk, 5*period), o.log)
+	}
 	return m, nil
+}
+
+// Pending implements drivers.Queued: readings the background reader has
+// taken that wait to be read (0 without WithBackground).
+func (m *Meter) Pending() int {
+	if m.bg == nil {
+		return 0
+	}
+	return m.bg.Pending()
+}
+
+// Discard implements drivers.Freshener: with WithBackground, the queued
+// readings are dropped so the next one was asked after the call.
+func (m *Meter) Discard() {
+	if m.bg != nil {
+		m.bg.Discard()
+	}
 }
 
 // Port returns the transport.
@@ -375,13 +411,20 @@ func (m *Meter) explain(ctx context.Context, err error) string {
 }
 
 // Identify sends *IDN? and splits the IEEE 488.2 reply.
-func (m *Meter) Identify(ctx context.Context) (drivers.Identity, error) {
-	if err := m.prepare(ctx); err != nil {
-		return drivers.Identity{}, err
+func (m *Meter) Identify(ctx context.Context) (id drivers.Identity, err error) {
+	run := func() {
+		if err = m.prepare(ctx); err != nil {
+			return
+		}
+		id, err = m.identify(ctx)
+		if err == nil && !m.idKnown {
+			m.id, m.idKnown = id, true
+		}
 	}
-	id, err := m.identify(ctx)
-	if err == nil && !m.idKnown {
-		m.id, m.idKnown = id, true
+	if m.bg != nil {
+		m.bg.Exclusive(run)
+	} else {
+		run()
 	}
 	return id, err
 }
@@ -540,6 +583,13 @@ const dataOutOfRange = -222
 // or under-range reading whose only entries are -222 "Data out of range"
 // keeps its status).
 func (m *Meter) Read(ctx context.Context) (drivers.Reading, error) {
+	if m.bg != nil {
+		return m.bg.Next(ctx)
+	}
+	return m.read(ctx)
+}
+
+func (m *Meter) read(ctx context.Context) (drivers.Reading, error) {
 	if err := m.prepare(ctx); err != nil {
 		return drivers.Reading{}, err
 	}
@@ -598,7 +648,11 @@ func (m *Meter) Read(ctx context.Context) (drivers.Reading, error) {
 		if !((st == drivers.StatusOverRange || st == drivers.StatusUnderRange) && onlyRange) {
 			st = drivers.StatusFault
 		}
-		m.o.log.Warn("meter reported errors", "meter", m.o.name, "port", m.port.Name(), "errors", r.Raw)
+		if onlyRange {
+			m.o.log.Debug("meter reported out of range", "meter", m.o.name, "port", m.port.Name(), "errors", r.Raw)
+		} else {
+			m.o.log.Warn("meter reported errors", "meter", m.o.name, "port", m.port.Name(), "errors", r.Raw)
+		}
 	}
 	r.Status = st
 	r.Unit = units.Canonical(m.cfg.Quantity)
@@ -646,5 +700,10 @@ func (m *Meter) recheckUnit(ctx context.Context) error {
 	return nil
 }
 
-// Close closes the port.
-func (m *Meter) Close() error { return m.port.Close() }
+// Close stops the background reader and closes the port.
+func (m *Meter) Close() error {
+	if m.bg != nil {
+		m.bg.Stop()
+	}
+	return m.port.Close()
+}

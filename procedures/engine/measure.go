@@ -298,11 +298,14 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (posStat, error) {
 	}
 	stat.BeamOnS = (a.lastSig - a.onAt).Seconds()
 	e.finishStat(&stat, a)
-	// Accept: keep the held readings as used, then release the beam.
-	if err := e.flush(ctx, a, true); err != nil {
+	// Accept: release the beam at once, then keep the held readings as
+	// used (journalling them first would add the journal's write time to
+	// every exposure, and more of it on a slow board).
+	if err := e.release(ctx, a, panel.Good, "Release the beam."); err != nil {
+		_ = e.flush(ctx, a, true)
 		return posStat{}, err
 	}
-	if err := e.release(ctx, a, panel.Good, "Release the beam."); err != nil {
+	if err := e.flush(ctx, a, true); err != nil {
 		return posStat{}, err
 	}
 	return stat, nil

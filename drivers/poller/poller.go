@@ -1,0 +1,208 @@
+// Package poller reads a polled meter in the background: a goroutine asks
+// the meter at its own pace (the dialect's Read waits out the meter's
+// update period) and queues each reading, stamped when its reply arrived,
+// in a bounded queue. The caller then takes readings as a streaming
+// meter's: every one the meter gave, whatever the caller was doing in the
+// meantime, so the number of samples per second of the meter's clock does
+// not depend on how fast the host is (a slow journal write, a loaded
+// board, the demo's scaled clock).
+package poller
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"log/slog"
+	"sync"
+	"time"
+
+	"kermalux/drivers"
+)
+
+// DefaultSize is the queue's length when New is given 0: at 10 readings a
+// second, 25 s of readings.
+const DefaultSize = 256
+
+// errorPause is the least real time between two reads when the first
+// failed.
+const errorPause = 50 * time.Millisecond
+
+type item struct {
+	r   drivers.Reading
+	err error
+}
+
+// Poller owns the reading goroutine of one meter.
+type Poller struct {
+	read func(context.Context) (drivers.Reading, error)
+	size int
+	idle time.Duration
+	log  *slog.Logger
+	name string
+
+	turn   sync.Mutex // held by the goroutine for each read; Exclusive takes it
+	mu     sync.Mutex
+	queue  []item
+	lost   uint64
+	active bool      // the caller is taking readings
+	last   time.Time // when the caller last asked for one
+	wake   chan struct{}
+	notify chan struct{}
+	cancel context.CancelFunc
+	done   chan struct{}
+}
+
+// New starts polling with read (a dialect's own Read). size bounds the
+// queue (DefaultSize when 0); when it is full the oldest reading is
+// dropped and counted (Lost). Polling runs while the caller takes
+// readings: when it has asked for none for idle (real time; a few of the
+// meter's periods), polling pauses, and the next Next drops what was
+// queued and waits for a reading asked after it, as a direct query would.
+func New(name string, read func(context.Context) (drivers.Reading, error), size int, idle time.Duration, log *slog.Logger) *Poller {
+	if size <= 0 {
+		size = DefaultSize
+	}
+	if log == nil {
+		log = slog.Default()
+	}
+	ctx, cancel := context.WithCancel(context.Background())
+	p := &Poller{read: read, size: size, idle: idle, log: log, name: name, notify: make(chan struct{}, 1), wake: make(chan struct{}, 1), cancel: cancel, done: make(chan struct{})}
+	go p.loop(ctx)
+	return p
+}
+
+func (p *Poller) loop(ctx context.Context) {
+	defer close(p.done)
+	for ctx.Err() == nil {
+		p.mu.Lock()
+		if p.active && time.Since(p.last) > p.idle {
+			p.active = false
+		}
+		active := p.active
+		p.mu.Unlock()
+		if !active {
+			select {
+			case <-ctx.Done():
+				return
+			case <-p.wake:
+			}
+			continue
+		}
+		began := time.Now()
+		p.turn.Lock()
+		r, err := p.read(ctx)
+		if ctx.Err() != nil {
+			p.turn.Unlock()
+			return
+		}
+		p.push(item{r, err}) // under turn: Discard cannot fall in between
+		p.turn.Unlock()
+		if err != nil {
+			// A meter that fails at once (another meter on the link, a
+			// garbled reply) is not asked again in a tight loop.
+			if wait := errorPause - time.Since(began); wait > 0 {
+				t := time.NewTimer(wait)
+				select {
+				case <-ctx.Done():
+				case <-t.C:
+				}
+				t.Stop()
+			}
+		}
+	}
+}
+
+func (p *Poller) push(it item) {
+	p.mu.Lock()
+	if len(p.queue) >= p.size {
+		copy(p.queue, p.queue[1:])
+		p.queue = p.queue[:len(p.queue)-1]
+		p.lost++
+		if p.lost == 1 || p.lost%1000 == 0 {
+			p.log.Warn("meter readings not taken in time; dropping the oldest", "meter", p.name, "dropped", p.lost)
+		}
+	}
+	p.queue = append(p.queue, it)
+	p.mu.Unlock()
+	select {
+	case p.notify <- struct{}{}:
+	default:
+	}
+}
+
+// Next returns the oldest queued reading (or the error the read gave),
+// waiting for one until ctx ends.
+func (p *Poller) Next(ctx context.Context) (drivers.Reading, error) {
+	p.mu.Lock()
+	p.last = time.Now()
+	if !p.active {
+		// Back after a pause: what is queued is old.
+		p.active = true
+		p.queue = p.queue[:0]
+		select {
+		case p.wake <- struct{}{}:
+		default:
+		}
+	}
+	p.mu.Unlock()
+	for {
+		p.mu.Lock()
+		if len(p.queue) > 0 {
+			it := p.queue[0]
+			n := copy(p.queue, p.queue[1:])
+			p.queue[n] = item{}
+			p.queue = p.queue[:n]
+			p.mu.Unlock()
+			return it.r, it.err
+		}
+		p.mu.Unlock()
+		select {
+		case <-ctx.Done():
+			return drivers.Reading{}, fmt.Errorf("%s: waiting for a reading: %w", p.name, ctx.Err())
+		case <-p.done:
+			return drivers.Reading{}, fmt.Errorf("%s: %w", p.name, errStopped)
+		case <-p.notify:
+		}
+	}
+}
+
+var errStopped = errors.New("meter closed")
+
+// Pending is how many readings wait (drivers.Queued).
+func (p *Poller) Pending() int {
+	p.mu.Lock()
+	defer p.mu.Unlock()
+	return len(p.queue)
+}
+
+// Lost counts the readings dropped because the queue was full.
+func (p *Poller) Lost() uint64 {
+	p.mu.Lock()
+	defer p.mu.Unlock()
+	return p.lost
+}
+
+// Discard drops the queued readings and waits until the read in progress
+// (which may have been asked before the call) is over and dropped too, so
+// the next reading is one asked after the call (drivers.Freshener).
+func (p *Poller) Discard() {
+	p.turn.Lock()
+	p.mu.Lock()
+	p.queue = p.queue[:0]
+	p.mu.Unlock()
+	p.turn.Unlock()
+}
+
+// Exclusive runs f between two reads (identification, a command): the
+// meter's port is f's alone meanwhile.
+func (p *Poller) Exclusive(f func()) {
+	p.turn.Lock()
+	defer p.turn.Unlock()
+	f()
+}
+
+// Stop ends the goroutine and waits for it.
+func (p *Poller) Stop() {
+	p.cancel()
+	<-p.done
+}
