@@ -83,6 +83,15 @@ func (f Flag) certificateFlag() bool {
 	return false
 }
 
+// FlagCodes returns the flags' codes, for the journal.
+func FlagCodes(flags []Flag) []string {
+	var out []string
+	for _, f := range flags {
+		out = append(out, string(f.Code))
+	}
+	return out
+}
+
 // FlagTexts returns the flags' sentences, for the journal.
 func FlagTexts(flags []Flag) []string {
 	if len(flags) == 0 {

@@ -214,3 +214,14 @@ func TestCoverageFactorLargeDoF(t *testing.T) {
 		}
 	}
 }
+
+// TestCoverageFactorGUMExampleH1: JCGM 100:2008 H.1 (end-gauge
+// calibration) expands u_c = 32 nm with ν_eff = 16 at p = 99 % using
+// t_99(16) = 2.92, giving U_99 = 93 nm (values from memory of the
+// example; t_99(16) = 2.921 in any two-sided t table).
+func TestCoverageFactorGUMExampleH1(t *testing.T) {
+	k := CoverageFactor(16, 0.99)
+	if math.Abs(k-2.92) > 0.005 || math.Round(k*32) != 93 {
+		t.Errorf("t_99(16) = %.4f (U = %.1f nm), want 2.92 and 93 nm", k, k*32)
+	}
+}

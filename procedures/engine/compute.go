@@ -271,7 +271,7 @@ func (e *Engine) compute(ctx context.Context, idx int, s Step) error {
 	r := entry.Result{Step: idx, Procedure: s.Procedure, FieldMode: s.FieldMode, Quantity: res.Quantity,
 		Value: res.Value, Unit: res.Unit, StdUnc: res.StdUnc, ExpUnc: res.ExpUnc, K: res.K,
 		Calibrated: res.Calibrated, Flags: calib.FlagTexts(res.Flags), Detail: res.Detail, Verdict: string(calib.Info),
-		RangeFloor: res.Floor, BelowRangeFloor: res.BelowFloor}
+		RangeFloor: res.Floor, BelowRangeFloor: res.BelowFloor, FlagCodes: calib.FlagCodes(res.Flags)}
 	if r.Quantity == "" {
 		r.Quantity = fig
 	}

@@ -222,19 +222,22 @@ type BudgetRow struct {
 
 // Result is a figure of merit as judged.
 type Result struct {
-	Step         int         `json:"step"`
-	Procedure    string      `json:"procedure"`
-	FieldMode    string      `json:"field_mode,omitempty"`
-	Quantity     string      `json:"quantity"` // conversion_factor, non_uniformity, contrast_ratio, input_kerma_rate, ...
-	Value        float64     `json:"value"`
-	Unit         string      `json:"unit"`
-	StdUnc       float64     `json:"standard_uncertainty"`
-	ExpUnc       float64     `json:"expanded_uncertainty"`
-	K            float64     `json:"coverage_factor"`
-	Verdict      string      `json:"verdict"`    // pass, fail, info
-	DecidedBy    string      `json:"decided_by"` // which limit decided the verdict
-	Calibrated   bool        `json:"calibrated"`
-	Flags        []string    `json:"flags,omitempty"`
+	Step       int      `json:"step"`
+	Procedure  string   `json:"procedure"`
+	FieldMode  string   `json:"field_mode,omitempty"`
+	Quantity   string   `json:"quantity"` // conversion_factor, non_uniformity, contrast_ratio, input_kerma_rate, ...
+	Value      float64  `json:"value"`
+	Unit       string   `json:"unit"`
+	StdUnc     float64  `json:"standard_uncertainty"`
+	ExpUnc     float64  `json:"expanded_uncertainty"`
+	K          float64  `json:"coverage_factor"`
+	Verdict    string   `json:"verdict"`    // pass, fail, info
+	DecidedBy  string   `json:"decided_by"` // which limit decided the verdict
+	Calibrated bool     `json:"calibrated"`
+	Flags      []string `json:"flags,omitempty"`
+	// FlagCodes are the machine-readable codes of calib's flags on the
+	// result ("certificate_other_meter", "dark_model"...), beside the texts.
+	FlagCodes    []string    `json:"flag_codes,omitempty"`
 	Baseline     float64     `json:"baseline,omitempty"`
 	BaselineFrac float64     `json:"baseline_fraction,omitempty"`
 	Budget       []BudgetRow `json:"budget,omitempty"`
