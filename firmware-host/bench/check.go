@@ -32,7 +32,6 @@ const MaxKermaCeiling = 100.0
 // plausible is the range a number of the bench file may take; zero is
 // always allowed where the key is optional (the default applies).
 type plausible struct {
-	key      string // dotted key, as written in the file
 	v        float64
 	min, max float64
 	zeroOK   bool
