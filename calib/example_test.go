@@ -24,7 +24,7 @@ func ExampleConversionFactor() {
 		{Kind: calib.KindBaseline, Bound: calib.AtLeast, Value: 0.8},
 	})
 	fmt.Printf("G = %.1f ± %.1f %s (k = %.2f)\n", g.Value, g.ExpUnc, g.Unit, g.K)
-	fmt.Printf("%s, decided by %s\n", v.Verdict, v.DecidedBy)
+	fmt.Printf("%s, decided by %s\n", v.Outcome, v.DecidedBy)
 	// Output:
 	// G = 150.0 ± 5.2 cd·m⁻²/(µGy·s⁻¹) (k = 2.01)
 	// pass, decided by baseline minimum 80 % of baseline

@@ -64,9 +64,9 @@ const (
 	NotMeasurable Outcome = "not_measurable"
 )
 
-// Verdict is a judged result.
-type Verdict struct {
-	Verdict   Outcome // Pass, Fail, Info or NotMeasurable
+// Judgement is a judged result.
+type Judgement struct {
+	Outcome   Outcome // Pass, Fail, Info or NotMeasurable
 	DecidedBy string  // which limit decided it, in words
 	Marginal  bool    // the deciding limit lies within the expanded uncertainty of the value
 	Notes     []string
@@ -111,11 +111,11 @@ type Check struct {
 // readings were averaged: such a limit, and any limit when the floor is
 // not known, makes the result NotMeasurable, with the reason. A fail on
 // another limit still decides a Fail.
-func Judge(r Result, baseline float64, limits []Limit) Verdict {
+func Judge(r Result, baseline float64, limits []Limit) Judgement {
 	order := map[string]int{KindSpecification: 0, KindBaseline: 1, KindActionLevel: 2}
 	ls := append([]Limit(nil), limits...)
 	sort.SliceStable(ls, func(i, j int) bool { return order[ls[i].Kind] < order[ls[j].Kind] })
-	var v Verdict
+	var v Judgement
 	var failed *Limit
 	var failedWords string
 	var failedAt, closestAt float64
@@ -172,23 +172,23 @@ func Judge(r Result, baseline float64, limits []Limit) Verdict {
 	// value is not made doubtful by another one near it.
 	switch {
 	case checked == 0:
-		v.Verdict, v.DecidedBy = Info, "no limit set"
+		v.Outcome, v.DecidedBy = Info, "no limit set"
 	case failed != nil:
-		v.Verdict, v.DecidedBy, v.Decided, v.DecidedAt, v.Marginal = Fail, failedWords, *failed, failedAt, failedNear
+		v.Outcome, v.DecidedBy, v.Decided, v.DecidedAt, v.Marginal = Fail, failedWords, *failed, failedAt, failedNear
 	case unmeasurable != "":
-		v.Verdict, v.DecidedBy = NotMeasurable, unmeasurable
+		v.Outcome, v.DecidedBy = NotMeasurable, unmeasurable
 	default:
-		v.Verdict, v.DecidedBy, v.Decided, v.DecidedAt, v.Marginal = Pass, closestWords, closestLimit, closestAt, closestNear
+		v.Outcome, v.DecidedBy, v.Decided, v.DecidedAt, v.Marginal = Pass, closestWords, closestLimit, closestAt, closestNear
 	}
-	if !r.Calibrated && v.Verdict != Info && v.Verdict != NotMeasurable {
-		v.Notes = append(v.Notes, fmt.Sprintf("would be %s on %s", v.Verdict, v.DecidedBy))
+	if !r.Calibrated && v.Outcome != Info && v.Outcome != NotMeasurable {
+		v.Notes = append(v.Notes, fmt.Sprintf("would be %s on %s", v.Outcome, v.DecidedBy))
 		reason := "result not calibrated"
 		if t := FlagTexts(r.Flags); len(t) > 0 {
 			reason += ": " + t[0]
 		}
-		v.Verdict, v.DecidedBy = Info, reason
+		v.Outcome, v.DecidedBy = Info, reason
 	}
-	if v.Marginal && (v.Verdict == Pass || v.Verdict == Fail) {
+	if v.Marginal && (v.Outcome == Pass || v.Outcome == Fail) {
 		v.DecidedBy += " (marginal)"
 	}
 	return v

@@ -34,7 +34,7 @@ func TestJudge(t *testing.T) {
 	}
 	for _, tc := range tests {
 		v := Judge(tc.r, tc.baseline, tc.limits)
-		if v.Verdict != tc.verdict || !strings.Contains(v.DecidedBy, tc.by) || v.Marginal != tc.marginal {
+		if v.Outcome != tc.verdict || !strings.Contains(v.DecidedBy, tc.by) || v.Marginal != tc.marginal {
 			t.Errorf("%s: %+v; want %s by %q marginal %v", tc.name, v, tc.verdict, tc.by, tc.marginal)
 		}
 	}
@@ -43,7 +43,7 @@ func TestJudge(t *testing.T) {
 	r.Calibrated = false
 	r.Flags = []Flag{{FlagExpired, "certificate X expired on 2025-03-04: reading not calibrated"}}
 	v := Judge(r, 0, []Limit{spec})
-	if v.Verdict != Info || !strings.Contains(v.DecidedBy, "expired") || !strings.Contains(strings.Join(v.Notes, ";"), "would be fail") {
+	if v.Outcome != Info || !strings.Contains(v.DecidedBy, "expired") || !strings.Contains(strings.Join(v.Notes, ";"), "would be fail") {
 		t.Errorf("uncalibrated: %+v", v)
 	}
 }
@@ -93,8 +93,8 @@ func TestMarginalOnlyForTheDecidingLimit(t *testing.T) {
 	r := Result{Quantity: QConversionFactor, Value: 61, ExpUnc: 3, Unit: UnitConversion, Calibrated: true}
 	limits := []Limit{{Kind: KindSpecification, Bound: AtLeast, Value: 100}, {Kind: KindActionLevel, Bound: AtLeast, Value: 60}}
 	v := Judge(r, 0, limits)
-	if v.Verdict != Fail || v.Marginal || v.Decided.Kind != KindSpecification || v.DecidedAt != 100 {
-		t.Errorf("got %s by %q (%s at %g), marginal %v; want a plain fail by the specification at 100", v.Verdict, v.DecidedBy, v.Decided.Kind, v.DecidedAt, v.Marginal)
+	if v.Outcome != Fail || v.Marginal || v.Decided.Kind != KindSpecification || v.DecidedAt != 100 {
+		t.Errorf("got %s by %q (%s at %g), marginal %v; want a plain fail by the specification at 100", v.Outcome, v.DecidedBy, v.Decided.Kind, v.DecidedAt, v.Marginal)
 	}
 	// The near action level is still noted for the report.
 	noted := false
@@ -106,8 +106,8 @@ func TestMarginalOnlyForTheDecidingLimit(t *testing.T) {
 	}
 	// Near the deciding limit: marginal.
 	r.Value = 101
-	if v := Judge(r, 0, limits); v.Verdict != Pass || !v.Marginal || v.DecidedAt != 100 {
-		t.Errorf("101 ± 3 against 100: %s marginal %v at %g", v.Verdict, v.Marginal, v.DecidedAt)
+	if v := Judge(r, 0, limits); v.Outcome != Pass || !v.Marginal || v.DecidedAt != 100 {
+		t.Errorf("101 ± 3 against 100: %s marginal %v at %g", v.Outcome, v.Marginal, v.DecidedAt)
 	}
 	// A baseline limit is decided at its absolute value.
 	if v := Judge(Result{Value: 150, ExpUnc: 5, Unit: UnitConversion, Calibrated: true}, 168, []Limit{{Kind: KindBaseline, Bound: AtLeast, Value: 0.8}}); v.DecidedAt != 0.8*168 {
@@ -142,8 +142,8 @@ func TestJudgeRangeFloor(t *testing.T) {
 		{"not calibrated stays not measurable", Result{Value: 0, Floor: 0.1, BelowFloor: true}, []Limit{maxL(0.05)}, NotMeasurable, "range floor"},
 	} {
 		v := Judge(tc.r, 0, tc.limits)
-		if v.Verdict != tc.want || !strings.Contains(v.DecidedBy, tc.words) {
-			t.Errorf("%s: %s (%s), want %s mentioning %q", tc.name, v.Verdict, v.DecidedBy, tc.want, tc.words)
+		if v.Outcome != tc.want || !strings.Contains(v.DecidedBy, tc.words) {
+			t.Errorf("%s: %s (%s), want %s mentioning %q", tc.name, v.Outcome, v.DecidedBy, tc.want, tc.words)
 		}
 	}
 }

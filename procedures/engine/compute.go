@@ -359,11 +359,11 @@ func (e *Engine) benchLimits(q, mode string) []calib.Limit {
 	return out
 }
 
-func (e *Engine) applyVerdict(r *entry.Result, res calib.Result, limits []calib.Limit) calib.Verdict {
+func (e *Engine) applyVerdict(r *entry.Result, res calib.Result, limits []calib.Limit) calib.Judgement {
 	res.Value, res.ExpUnc, res.Unit, res.Calibrated = r.Value, r.ExpUnc, r.Unit, r.Calibrated
 	res.Floor, res.BelowFloor = r.RangeFloor, r.BelowRangeFloor
 	v := calib.Judge(res, r.Baseline, limits)
-	r.Verdict, r.DecidedBy = string(v.Verdict), v.DecidedBy
+	r.Verdict, r.DecidedBy = string(v.Outcome), v.DecidedBy
 	r.Limits = nil
 	for _, c := range v.Checks {
 		lc := entry.LimitCheck{Kind: c.Limit.Kind, Bound: string(c.Limit.Bound), Value: c.Absolute, Margin: c.Margin, Passed: c.Passed, WithinU: c.WithinU}

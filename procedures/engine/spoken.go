@@ -105,9 +105,9 @@ func spokenResult(r entry.Result, meter string) string {
 // spokenVerdict: "Conversion factor, 32cm field: pass. Nearest limit: at
 // least 80 % of the baseline, 134 cd/m² per µGy/s." or "Input air kerma
 // rate, 17cm field: fail, above the action level maximum of 2 µGy/s."
-func spokenVerdict(r entry.Result, meter string, v calib.Verdict) string {
+func spokenVerdict(r entry.Result, meter string, v calib.Judgement) string {
 	name := resultName(r, meter)
-	switch v.Verdict {
+	switch v.Outcome {
 	case calib.Pass:
 		text := fmt.Sprintf("%s: pass. Nearest limit: %s.", name, limitWords(r, v, false))
 		if v.Marginal {
@@ -121,7 +121,7 @@ func spokenVerdict(r entry.Result, meter string, v calib.Verdict) string {
 		}
 		return text
 	}
-	if v.Verdict == calib.NotMeasurable {
+	if v.Outcome == calib.NotMeasurable {
 		return name + ": not measurable, " + v.DecidedBy + "."
 	}
 	if v.DecidedBy == "no limit set" {
@@ -134,7 +134,7 @@ func spokenVerdict(r entry.Result, meter string, v calib.Verdict) string {
 // unit: "the specification minimum of 100 cd/m² per µGy/s", "at least
 // 80 % of the baseline, 134 cd/m² per µGy/s"; failed, it says which side
 // the value is on: "below the specification minimum of 100 ...".
-func limitWords(r entry.Result, v calib.Verdict, failed bool) string {
+func limitWords(r entry.Result, v calib.Judgement, failed bool) string {
 	l := v.Decided
 	at := quantityWithUnit(r, v.DecidedAt, l.Kind != calib.KindBaseline)
 	if l.Kind == calib.KindBaseline {
