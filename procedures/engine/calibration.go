@@ -6,6 +6,8 @@ import (
 	"fmt"
 	"math"
 	"sort"
+	"strconv"
+	"strings"
 
 	"kermalux/calib"
 	"kermalux/drivers"
@@ -181,9 +183,10 @@ type rawStat struct {
 	SD         float64 `json:"sd"`
 	N          int     `json:"n"`
 	Resolution float64 `json:"resolution,omitempty"`
-	Under      int     `json:"under_range,omitempty"` // readings below the meter's range
-	Floor      float64 `json:"floor,omitempty"`       // the meter's range floor, own scale; 0 unknown
-	Scale      float64 `json:"scale,omitempty"`       // corrected = raw × Scale (+ offsets); 0 unknown
+	Under      int     `json:"under_range,omitempty"`        // readings below the meter's range
+	Printed    bool    `json:"resolution_printed,omitempty"` // Resolution read from the printed digits, not a certificate
+	Floor      float64 `json:"floor,omitempty"`              // the meter's range floor, own scale; 0 unknown
+	Scale      float64 `json:"scale,omitempty"`              // corrected = raw × Scale (+ offsets); 0 unknown
 }
 
 // typeB is a calib.Component as journalled.
@@ -209,6 +212,7 @@ func (e *Engine) finishStat(p *posStat, a *attempt) {
 		var r calib.Running
 		var st rawStat
 		var cs []calib.Corrected
+		printed := 0.0 // the finest step the meter printed, own scale
 		for _, h := range hs {
 			st.Floor = math.Max(st.Floor, h.c.Floor)
 			if h.c.Scale > 0 {
@@ -220,8 +224,18 @@ func (e *Engine) finishStat(p *posStat, a *attempt) {
 			case h.r.Usable():
 				r.Add(h.r.Value)
 				st.Resolution = math.Max(st.Resolution, h.c.Resolution)
+				if p := printedStep(h.r); p > 0 && (printed == 0 || p < printed) {
+					printed = p
+				}
 				cs = append(cs, calib.Corrected{Value: h.c.Value, TypeB: h.c.TypeB, Calibrated: true})
 			}
+		}
+		if st.Resolution == 0 {
+			// No certificate states it: the finest step of the printed
+			// numbers is the display's resolution (a number that ends in a
+			// zero shows a coarser step, so the smallest over the readings
+			// is taken).
+			st.Resolution, st.Printed = printed, printed > 0
 		}
 		s := r.Summary()
 		st.Mean, st.SD, st.N = s.Mean, s.SD, s.N
@@ -355,4 +369,20 @@ func (e *Engine) positionDarks(ps []posStat) map[int]modelledDark {
 		}
 	}
 	return out
+}
+
+// printedStep is the step of the last digit the meter printed, in the
+// reading's canonical unit: "0.03" cd/m² gives 0.01 cd/m²; a value printed
+// in foot-lamberts is converted with the reading's own ratio of canonical
+// to printed value. 0 when it cannot be told.
+func printedStep(r drivers.Reading) float64 {
+	if r.RawValue == 0 || r.Value == 0 || math.IsNaN(r.RawValue) || math.IsInf(r.RawValue, 0) {
+		return 0
+	}
+	s := strconv.FormatFloat(math.Abs(r.RawValue), 'f', -1, 64)
+	dec := 0
+	if i := strings.IndexByte(s, '.'); i >= 0 {
+		dec = len(s) - i - 1
+	}
+	return math.Pow(10, -float64(dec)) * math.Abs(r.Value/r.RawValue)
 }

@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"strconv"
 	"strings"
 	"testing"
 	"time"
@@ -25,6 +26,7 @@ type idMeter struct {
 	id       drivers.Identity
 	changeAt time.Duration // 0: never
 	floor    float64       // readings below it come back under range, with no value
+	decimals int           // > 0: the meter prints this many decimals
 }
 
 func (m *idMeter) Identify(ctx context.Context) (drivers.Identity, error) { return m.id, nil }
@@ -35,6 +37,11 @@ func (m *idMeter) Read(ctx context.Context) (drivers.Reading, error) {
 		return drivers.Reading{}, fmt.Errorf("%s: reconnected: serial LM9-9999 where LM9-5521 was: %w", m.name, drivers.ErrMeterChanged)
 	}
 	r, err := m.fakeMeter.Read(ctx)
+	if err == nil && m.decimals > 0 {
+		p := math.Pow(10, float64(m.decimals))
+		r.Value = math.Round(r.Value*p) / p
+		r.RawValue, r.Raw = r.Value, strconv.FormatFloat(r.Value, 'f', m.decimals, 64)
+	}
 	if err == nil && m.floor > 0 && r.Value < m.floor {
 		r.Status, r.Value, r.RawValue, r.Raw = drivers.StatusUnderRange, 0, 0, "UND"
 	}
@@ -231,4 +238,31 @@ func TestDarkUnderRangeFloor(t *testing.T) {
 			t.Fatalf("beam reading corrections %+v calibrated %v, want the dark taken as 0.05 (half the floor)", rd.Corrections, rd.Calibrated)
 		}
 	}
+}
+
+// TestDarkLevelPrintedResolution (observation 6: "0.0300031 ± 0.0000054
+// cd/m²" from a meter that prints two decimals): with no resolution on the
+// certificate, the step of the printed digits is the display's resolution
+// and enters the dark level's U: at least 2 × 0.01/√12 (JCGM 100:2008
+// F.2.2.1) times the coefficient 1.25.
+func TestDarkLevelPrintedResolution(t *testing.T) {
+	steps := cfSteps()
+	steps = append(steps, Step{ID: "dark-level", Kind: Compute, Compute: &ComputeSpec{Figure: "dark_level", Inputs: map[string]string{"reading": "dark"}}})
+	r, phot := calibRig(steps, "LM9-5521")
+	phot.decimals = 2
+	r.cfg.Correctors[Photometer].(CalibCorrector).Cert.Resolution = 0
+	r.phys.darkL = 0.03
+	if _, err := r.run(context.Background()); err != nil {
+		t.Fatalf("run: %v", err)
+	}
+	for _, res := range records[entry.Result](r.jr, "s1", entry.KindResult) {
+		if res.Quantity != "dark_level" {
+			continue
+		}
+		if min := 2 * 0.01 / math.Sqrt(12) * 1.25 * 0.999; res.ExpUnc < min {
+			t.Errorf("dark level %v ± %v, want U of at least %v from the printed resolution", res.Value, res.ExpUnc, min)
+		}
+		return
+	}
+	t.Fatal("no dark level result")
 }

@@ -244,8 +244,15 @@ func (e *Engine) compute(ctx context.Context, idx int, s Step) error {
 			m := measured(p, lum)
 			// The level with its resolution and type B in the budget
 			// (calib.Level); stability is a relative change, below.
+			raw, haveRaw := p.Raw[roleOf(lum)]
+			if haveRaw && raw.Printed && raw.Scale > 0 {
+				// No certificate gave the resolution: the printed one.
+				c := calib.ResolutionComponent(raw.Resolution * raw.Scale)
+				c.Source = "display resolution (from the printed digits)"
+				m.TypeB = append(m.TypeB, c)
+			}
 			res = calib.Level(fig, m, 0)
-			if raw, ok := p.Raw[roleOf(lum)]; ok {
+			if haveRaw {
 				// The meter's range floor bounds what the level can show.
 				res.Floor = raw.Floor * raw.Scale
 				res.BelowFloor = raw.Under > 0
