@@ -46,8 +46,10 @@ type DarkLevel struct {
 // identify asks every meter who it is, journals the answer (maker, model,
 // serial, firmware) and binds each corrector to it. Problems (a meter that
 // does not answer, a certificate of another meter) are returned as
-// sentences to say before the first exposure.
-func (e *Engine) identify(ctx context.Context) []string {
+// sentences to say before the first exposure. A journal write that fails
+// is returned: the session must not go on without its record of who was
+// measured.
+func (e *Engine) identify(ctx context.Context) ([]string, error) {
 	roles := make([]string, 0, len(e.cfg.Meters))
 	for role, m := range e.cfg.Meters {
 		if m != nil {
@@ -84,10 +86,12 @@ func (e *Engine) identify(ctx context.Context) []string {
 				problems = append(problems, problem)
 			}
 		}
-		_ = e.journal(ctx, entry.KindEvent, entry.Event{Name: evIdentified, Detail: identityWords(role, rec), Meter: &rec, BeamOn: e.st.beamOn.Seconds()})
+		if err := e.journal(ctx, entry.KindEvent, entry.Event{Name: evIdentified, Detail: identityWords(role, rec), Meter: &rec, BeamOn: e.st.beamOn.Seconds()}); err != nil {
+			return nil, fmt.Errorf("record the %s's identity: %w", role, err)
+		}
 	}
 	e.cfg.Correctors = bound
-	return problems
+	return problems, nil
 }
 
 func identityWords(role string, r entry.MeterIdentity) string {

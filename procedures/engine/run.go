@@ -127,7 +127,11 @@ func (e *Engine) run(ctx context.Context) (Summary, error) {
 	}
 	// Who is on each link, and whether its certificate is its own: said
 	// before the first exposure (calibration.go).
-	for _, p := range e.identify(ctx) {
+	problems, err := e.identify(ctx)
+	if err != nil {
+		return e.finish(ctx, sum, err)
+	}
+	for _, p := range problems {
 		if err := e.say(ctx, 0, panel.Message{Text: p, Level: panel.Warn}); err != nil {
 			return e.finish(ctx, sum, err)
 		}
