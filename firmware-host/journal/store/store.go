@@ -78,7 +78,7 @@ func Open(target string) (*Store, error) {
 		if strings.ContainsRune(target, '?') {
 			return nil, fmt.Errorf("open store %s: a '?' in the path is not supported", target)
 		}
-		s.db, err = sql.Open("sqlite", "file:"+target+"?_pragma=busy_timeout(10000)&_pragma=journal_mode(WAL)&_pragma=synchronous(FULL)&_pragma=foreign_keys(1)&_txlock=immediate")
+		s.db, err = sql.Open("sqlite", "file:"+target+"?_pragma=busy_timeout(10000)&_pragma=journal_mode(WAL)&_pragma=synchronous(FULL)&_pragma=foreign_keys(1)&_pragma=cache_size(-32768)&_txlock=immediate")
 		if err == nil {
 			s.db.SetMaxOpenConns(1) // one writer; queries wait their turn
 		}
@@ -405,6 +405,23 @@ const rowsPerInsert = 64
 // (unless opts.SkipReplays); one that overlaps what is stored and
 // continues it stores only the new records (each record is stored once).
 func (t *Tx) Apply(ctx context.Context, seg *wire.Segment, opts ApplyOptions) (Applied, error) {
+	// A savepoint keeps the segments applied before in this transaction
+	// when this one is refused half way (PostgreSQL aborts the whole
+	// transaction on an error otherwise).
+	if _, err := t.tx.ExecContext(ctx, `SAVEPOINT segment`); err != nil {
+		return Applied{}, fmt.Errorf("store %s: %w", t.s.name, err)
+	}
+	a, err := t.apply(ctx, seg, opts)
+	if err != nil {
+		t.tx.ExecContext(ctx, `ROLLBACK TO SAVEPOINT segment`)
+	}
+	if _, rerr := t.tx.ExecContext(ctx, `RELEASE SAVEPOINT segment`); rerr != nil && err == nil {
+		return Applied{}, fmt.Errorf("store %s: %w", t.s.name, rerr)
+	}
+	return a, err
+}
+
+func (t *Tx) apply(ctx context.Context, seg *wire.Segment, opts ApplyOptions) (Applied, error) {
 	s, tx := t.s, t.tx
 	var a Applied
 	if len(seg.Records) == 0 {
@@ -537,9 +554,6 @@ func (t *Tx) Apply(ctx context.Context, seg *wire.Segment, opts ApplyOptions) (A
 		default:
 			if r.Seq == 1 {
 				return refuse(ErrRefused, "record 1 is a %s record, expected the session record", r.Kind)
-			}
-			if !json.Valid(r.Payload) {
-				return refuse(ErrRefused, "record %d: payload is not JSON", r.Seq)
 			}
 		}
 	}

@@ -139,28 +139,114 @@ func (h *handler) push(w http.ResponseWriter, r *http.Request) {
 		h.storeError(w, r, fmt.Errorf("%w: the push is signed for store %q, this store is %q", store.ErrAudience, pre.Audience, h.st.ID()))
 		return
 	}
-	resp := wire.PushResponse{High: map[string]int64{}}
-	for {
-		seg, err := rd.Next()
-		if errors.Is(err, io.EOF) {
-			break
+	resp, err := h.apply(r.Context(), rd)
+	if err != nil {
+		var re readErr
+		if errors.As(err, &re) {
+			h.readError(w, r, re.error)
+		} else {
+			h.storeError(w, r, err)
 		}
-		if err != nil {
-			h.readError(w, r, err)
-			return
-		}
-		a, err := h.st.Apply(r.Context(), seg, store.ApplyOptions{})
-		if err != nil {
-			h.storeError(w, r, fmt.Errorf("push: segment %d: %w", seg.Index, err))
-			return
-		}
-		resp.Stored += int64(a.Stored)
-		resp.Duplicates += int64(a.Duplicates)
-		resp.High[seg.Session] = a.High
+		return
 	}
 	segs, recs := rd.Counts()
 	h.opts.Log.Info("push stored", "board", pre.BoardHex()[:16], "from", r.RemoteAddr, "segments", segs, "records", recs, "stored", resp.Stored)
 	writeJSON(w, http.StatusOK, resp)
+}
+
+// maxGroup is the most segments committed together.
+const maxGroup = 16
+
+// readErr marks a failure to read the stream (not the store's).
+type readErr struct{ error }
+
+// apply stores the stream's segments as they arrive. One goroutine decodes
+// (inflate, hash) while this one applies, so both cores work; segments
+// that are already waiting are committed together (at most maxGroup), and
+// a segment is committed at once when no other waits, so that a slow link
+// never holds a transaction open while the next segment trickles in. A
+// refused segment leaves nothing of itself; the segments before it stay.
+func (h *handler) apply(ctx context.Context, rd *wire.Reader) (wire.PushResponse, error) {
+	resp := wire.PushResponse{High: map[string]int64{}}
+	ctx, cancel := context.WithCancel(ctx)
+	defer cancel()
+	segs := make(chan *wire.Segment, 2)
+	rerr := make(chan error, 1)
+	go func() {
+		defer close(segs)
+		for {
+			seg, err := rd.Next()
+			if err != nil {
+				if errors.Is(err, io.EOF) {
+					err = nil
+				}
+				rerr <- err
+				return
+			}
+			select {
+			case segs <- seg:
+			case <-ctx.Done():
+				rerr <- ctx.Err()
+				return
+			}
+		}
+	}()
+	var tx *store.Tx
+	var pending wire.PushResponse
+	grouped := 0
+	commit := func() error {
+		if tx == nil {
+			return nil
+		}
+		err := tx.Commit()
+		tx, grouped = nil, 0
+		if err != nil {
+			return err
+		}
+		resp.Stored += pending.Stored
+		resp.Duplicates += pending.Duplicates
+		for id, hi := range pending.High {
+			resp.High[id] = hi
+		}
+		pending = wire.PushResponse{High: map[string]int64{}}
+		return nil
+	}
+	defer func() {
+		if tx != nil {
+			tx.Rollback()
+		}
+	}()
+	pending.High = map[string]int64{}
+	for seg := range segs {
+		if tx == nil {
+			var err error
+			if tx, err = h.st.Begin(ctx); err != nil {
+				return resp, err
+			}
+		}
+		a, err := tx.Apply(ctx, seg, store.ApplyOptions{})
+		if err != nil {
+			if cerr := commit(); cerr != nil {
+				return resp, cerr
+			}
+			return resp, fmt.Errorf("push: segment %d: %w", seg.Index, err)
+		}
+		pending.Stored += int64(a.Stored)
+		pending.Duplicates += int64(a.Duplicates)
+		pending.High[seg.Session] = a.High
+		if grouped++; len(segs) == 0 || grouped >= maxGroup {
+			if err := commit(); err != nil {
+				return resp, err
+			}
+		}
+	}
+	if err := commit(); err != nil {
+		return resp, err
+	}
+	if err := <-rerr; err != nil {
+		return resp, readErr{err}
+	}
+	return resp, nil
 }
 
 // readError answers a stream that does not decode: a record that does not

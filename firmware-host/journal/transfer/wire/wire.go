@@ -482,6 +482,9 @@ func (r *Reader) record(session string, seq, mono *int64, prev string) (journal.
 	if _, err := io.ReadFull(r.r, payload); err != nil {
 		return rec, err
 	}
+	if !utf8.Valid(payload) || bytes.IndexByte(payload, 0) >= 0 {
+		return rec, fmt.Errorf("%w: payload is not UTF-8 text", ErrCorrupt)
+	}
 	rec.Payload = payload
 	var fp [fingerprintSize]byte
 	if _, err := io.ReadFull(r.r, fp[:]); err != nil {
