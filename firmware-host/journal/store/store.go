@@ -47,6 +47,17 @@ var (
 	ErrConflict    = errors.New("record differs from the stored record with the same number")
 )
 
+// IsRefusal reports whether err is a refusal of a segment (which wrote
+// nothing) rather than a failure of the database.
+func IsRefusal(err error) bool {
+	for _, e := range []error{ErrNotEnrolled, ErrRevoked, ErrRefused, ErrAudience, ErrReplay, ErrGap, ErrConflict} {
+		if errors.Is(err, e) {
+			return true
+		}
+	}
+	return false
+}
+
 // Store is an open workstation store.
 type Store struct {
 	name    string // file path, or the URL without its password
@@ -78,7 +89,7 @@ func Open(target string) (*Store, error) {
 		if strings.ContainsRune(target, '?') {
 			return nil, fmt.Errorf("open store %s: a '?' in the path is not supported", target)
 		}
-		s.db, err = sql.Open("sqlite", "file:"+target+"?_pragma=busy_timeout(10000)&_pragma=journal_mode(WAL)&_pragma=synchronous(FULL)&_pragma=foreign_keys(1)&_pragma=cache_size(-32768)&_txlock=immediate")
+		s.db, err = sql.Open("sqlite", "file:"+target+"?_pragma=busy_timeout(10000)&_pragma=journal_mode(WAL)&_pragma=synchronous(FULL)&_pragma=foreign_keys(1)&_pragma=cache_size(-16384)&_txlock=immediate")
 		if err == nil {
 			s.db.SetMaxOpenConns(1) // one writer; queries wait their turn
 		}
@@ -373,8 +384,31 @@ func (s *Store) Apply(ctx context.Context, seg *wire.Segment, opts ApplyOptions)
 // Tx is a store transaction holding any number of segments: all are
 // stored at Commit, or none.
 type Tx struct {
-	s  *Store
-	tx *sql.Tx
+	s      *Store
+	tx     *sql.Tx
+	stmts  map[string]*sql.Stmt         // prepared once per transaction
+	boards map[string]ed25519.PublicKey // enrolled keys already checked
+}
+
+// stmt returns the prepared form of query (written with ? placeholders).
+func (t *Tx) stmt(ctx context.Context, query string) (*sql.Stmt, error) {
+	if st, ok := t.stmts[query]; ok {
+		return st, nil
+	}
+	st, err := t.tx.PrepareContext(ctx, t.s.q(query))
+	if err != nil {
+		return nil, err
+	}
+	t.stmts[query] = st
+	return st, nil
+}
+
+func (t *Tx) exec(ctx context.Context, query string, args ...any) error {
+	st, err := t.stmt(ctx, query)
+	if err == nil {
+		_, err = st.ExecContext(ctx, args...)
+	}
+	return err
 }
 
 // Begin starts a transaction for applying segments.
@@ -383,7 +417,7 @@ func (s *Store) Begin(ctx context.Context) (*Tx, error) {
 	if err != nil {
 		return nil, fmt.Errorf("store %s: %w", s.name, err)
 	}
-	return &Tx{s: s, tx: tx}, nil
+	return &Tx{s: s, tx: tx, stmts: map[string]*sql.Stmt{}, boards: map[string]ed25519.PublicKey{}}, nil
 }
 
 // Commit stores what the transaction applied.
@@ -404,24 +438,10 @@ const rowsPerInsert = 64
 // segment whose records are all already stored is refused with ErrReplay
 // (unless opts.SkipReplays); one that overlaps what is stored and
 // continues it stores only the new records (each record is stored once).
+// A refusal (ErrRefused, ErrConflict, ErrGap, ...) writes nothing, so
+// the transaction may go on and commit the segments applied before; any
+// other error (the database's) leaves it to be rolled back.
 func (t *Tx) Apply(ctx context.Context, seg *wire.Segment, opts ApplyOptions) (Applied, error) {
-	// A savepoint keeps the segments applied before in this transaction
-	// when this one is refused half way (PostgreSQL aborts the whole
-	// transaction on an error otherwise).
-	if _, err := t.tx.ExecContext(ctx, `SAVEPOINT segment`); err != nil {
-		return Applied{}, fmt.Errorf("store %s: %w", t.s.name, err)
-	}
-	a, err := t.apply(ctx, seg, opts)
-	if err != nil {
-		t.tx.ExecContext(ctx, `ROLLBACK TO SAVEPOINT segment`)
-	}
-	if _, rerr := t.tx.ExecContext(ctx, `RELEASE SAVEPOINT segment`); rerr != nil && err == nil {
-		return Applied{}, fmt.Errorf("store %s: %w", t.s.name, rerr)
-	}
-	return a, err
-}
-
-func (t *Tx) apply(ctx context.Context, seg *wire.Segment, opts ApplyOptions) (Applied, error) {
 	s, tx := t.s, t.tx
 	var a Applied
 	if len(seg.Records) == 0 {
@@ -432,9 +452,13 @@ func (t *Tx) apply(ctx context.Context, seg *wire.Segment, opts ApplyOptions) (A
 		return Applied{}, fmt.Errorf("%w: %s: "+format, append([]any{kind, what}, args...)...)
 	}
 	board := hex.EncodeToString(seg.Board)
-	pub, err := s.boardKey(ctx, tx, board)
-	if err != nil {
-		return Applied{}, err
+	pub, ok := t.boards[board]
+	if !ok {
+		var err error
+		if pub, err = s.boardKey(ctx, tx, board); err != nil {
+			return Applied{}, err
+		}
+		t.boards[board] = pub
 	}
 	if seg.Audience != s.id && !(opts.AnyAudience && seg.Audience == "") {
 		return refuse(ErrAudience, "signed for store %q, this store is %q", seg.Audience, s.id)
@@ -460,8 +484,11 @@ func (t *Tx) apply(ctx context.Context, seg *wire.Segment, opts ApplyOptions) (A
 	if s.dialect == postgres {
 		lock = " FOR UPDATE"
 	}
-	err = tx.QueryRowContext(ctx, s.q(`SELECT board, high, head, ended, serial, started_ns FROM sessions WHERE id = ?`+lock), seg.Session).
-		Scan(&owner, &high, &head, &ended, &serial, &startedNs)
+	sel, err := t.stmt(ctx, `SELECT board, high, head, ended, serial, started_ns FROM sessions WHERE id = ?`+lock)
+	if err != nil {
+		return Applied{}, fmt.Errorf("store %s: %s: %w", s.name, what, err)
+	}
+	err = sel.QueryRowContext(ctx, seg.Session).Scan(&owner, &high, &head, &ended, &serial, &startedNs)
 	switch {
 	case errors.Is(err, sql.ErrNoRows):
 		high, head = 0, journal.ZeroHash()
@@ -514,6 +541,13 @@ func (t *Tx) apply(ctx context.Context, seg *wire.Segment, opts ApplyOptions) (A
 	if ended != 0 {
 		return refuse(ErrRefused, "the session already ended at record %d", high)
 	}
+	// Every check first, then the writes: a refused segment has written
+	// nothing, so the transaction goes on with the segments before it.
+	var (
+		sess    *entry.Session
+		results = map[int64]entry.Result{}
+		end     json.RawMessage
+	)
 	for i := range fresh {
 		r := &fresh[i]
 		if i < len(fresh)-1 && r.Kind == entry.KindSessionEnd {
@@ -524,48 +558,61 @@ func (t *Tx) apply(ctx context.Context, seg *wire.Segment, opts ApplyOptions) (A
 			if r.Seq != 1 {
 				return refuse(ErrRefused, "record %d: a session record after record 1", r.Seq)
 			}
-			var ss entry.Session
-			if err := json.Unmarshal(r.Payload, &ss); err != nil {
+			sess = new(entry.Session)
+			if err := json.Unmarshal(r.Payload, sess); err != nil {
 				return refuse(ErrRefused, "record 1: session payload: %w", err)
-			}
-			serial, startedNs = ss.IntensifierSerial, ss.Started.UnixNano()
-			if _, err := tx.ExecContext(ctx, s.q(`INSERT INTO sessions(id, board, site, room, model, serial, started_ns, payload, high, head, received)
-				VALUES (?,?,?,?,?,?,?,?,0,?,?)`), seg.Session, board, ss.Site, ss.Room, ss.IntensifierModel, ss.IntensifierSerial,
-				startedNs, string(r.Payload), journal.ZeroHash(), time.Now().UTC().Format(time.RFC3339)); err != nil {
-				return Applied{}, fmt.Errorf("store %s: %s: store session: %w", s.name, what, err)
 			}
 		case entry.KindResult:
 			var res entry.Result
 			if err := json.Unmarshal(r.Payload, &res); err != nil {
 				return refuse(ErrRefused, "record %d: result payload: %w", r.Seq, err)
 			}
-			if _, err := tx.ExecContext(ctx, s.q(`INSERT INTO results VALUES (?,?,?,?,?,?,?,?,?)`), r.Session, r.Seq, serial, startedNs,
-				res.Quantity, res.FieldMode, res.Value, res.Verdict, string(r.Payload)); err != nil {
-				return Applied{}, fmt.Errorf("store %s: %s: store result %d: %w", s.name, what, r.Seq, err)
-			}
+			results[r.Seq] = res
 		case entry.KindSessionEnd:
 			var se entry.SessionEnd
 			if err := json.Unmarshal(r.Payload, &se); err != nil {
 				return refuse(ErrRefused, "record %d: session_end payload: %w", r.Seq, err)
 			}
-			if _, err := tx.ExecContext(ctx, s.q(`UPDATE sessions SET ended = 1, end_payload = ? WHERE id = ?`), string(r.Payload), seg.Session); err != nil {
-				return Applied{}, fmt.Errorf("store %s: %s: store session end: %w", s.name, what, err)
-			}
+			end = r.Payload
 		default:
 			if r.Seq == 1 {
 				return refuse(ErrRefused, "record 1 is a %s record, expected the session record", r.Kind)
 			}
 		}
 	}
-	if err := s.insertRecords(ctx, tx, fresh); err != nil {
+	if sess != nil {
+		serial, startedNs = sess.IntensifierSerial, sess.Started.UnixNano()
+		if err := t.exec(ctx, `INSERT INTO sessions(id, board, site, room, model, serial, started_ns, payload, high, head, received)
+			VALUES (?,?,?,?,?,?,?,?,0,?,?)`, seg.Session, board, sess.Site, sess.Room, sess.IntensifierModel, sess.IntensifierSerial,
+			startedNs, string(fresh[0].Payload), journal.ZeroHash(), time.Now().UTC().Format(time.RFC3339)); err != nil {
+			return Applied{}, fmt.Errorf("store %s: %s: store session: %w", s.name, what, err)
+		}
+	}
+	for i := range fresh {
+		r := &fresh[i]
+		res, ok := results[r.Seq]
+		if !ok {
+			continue
+		}
+		if err := t.exec(ctx, `INSERT INTO results VALUES (?,?,?,?,?,?,?,?,?)`, r.Session, r.Seq, serial, startedNs,
+			res.Quantity, res.FieldMode, res.Value, res.Verdict, string(r.Payload)); err != nil {
+			return Applied{}, fmt.Errorf("store %s: %s: store result %d: %w", s.name, what, r.Seq, err)
+		}
+	}
+	if end != nil {
+		if err := t.exec(ctx, `UPDATE sessions SET ended = 1, end_payload = ? WHERE id = ?`, string(end), seg.Session); err != nil {
+			return Applied{}, fmt.Errorf("store %s: %s: store session end: %w", s.name, what, err)
+		}
+	}
+	if err := t.insertRecords(ctx, fresh); err != nil {
 		return Applied{}, fmt.Errorf("store %s: %s: %w", s.name, what, err)
 	}
 	a.Stored = len(fresh)
 	last := fresh[len(fresh)-1]
-	if _, err := tx.ExecContext(ctx, s.q(`UPDATE sessions SET high = ?, head = ? WHERE id = ?`), last.Seq, last.Hash, seg.Session); err != nil {
+	if err := t.exec(ctx, `UPDATE sessions SET high = ?, head = ? WHERE id = ?`, last.Seq, last.Hash, seg.Session); err != nil {
 		return Applied{}, fmt.Errorf("store %s: %s: %w", s.name, what, err)
 	}
-	if _, err := tx.ExecContext(ctx, s.q(`INSERT INTO proofs VALUES (?,?,?,?,?,?)`), seg.Session, seg.First(), seg.Last(), seg.Head(),
+	if err := t.exec(ctx, `INSERT INTO proofs VALUES (?,?,?,?,?,?)`, seg.Session, seg.First(), seg.Last(), seg.Head(),
 		seg.Audience, hex.EncodeToString(seg.Sig)); err != nil {
 		return Applied{}, fmt.Errorf("store %s: %s: store the signed head: %w", s.name, what, err)
 	}
@@ -574,7 +621,7 @@ func (t *Tx) apply(ctx context.Context, seg *wire.Segment, opts ApplyOptions) (A
 }
 
 // insertRecords inserts recs, rowsPerInsert to a statement.
-func (s *Store) insertRecords(ctx context.Context, tx *sql.Tx, recs []journal.Record) error {
+func (t *Tx) insertRecords(ctx context.Context, recs []journal.Record) error {
 	args := make([]any, 0, 10*rowsPerInsert)
 	for len(recs) > 0 {
 		n := min(len(recs), rowsPerInsert)
@@ -583,7 +630,7 @@ func (s *Store) insertRecords(ctx context.Context, tx *sql.Tx, recs []journal.Re
 			r := &recs[i]
 			args = append(args, r.Session, r.Seq, string(r.Kind), r.Wall, r.Mono, r.BootID, string(r.Payload), r.Prev, r.Hash, r.Sig)
 		}
-		if _, err := tx.ExecContext(ctx, s.insertSQL(n), args...); err != nil {
+		if err := t.exec(ctx, insertSQL(n), args...); err != nil {
 			return fmt.Errorf("store records %d..%d: %w", recs[0].Seq, recs[n-1].Seq, err)
 		}
 		recs = recs[n:]
@@ -591,7 +638,7 @@ func (s *Store) insertRecords(ctx context.Context, tx *sql.Tx, recs []journal.Re
 	return nil
 }
 
-func (s *Store) insertSQL(n int) string {
+func insertSQL(n int) string {
 	var b strings.Builder
 	b.WriteString(`INSERT INTO records VALUES `)
 	for i := 0; i < n; i++ {
@@ -600,7 +647,7 @@ func (s *Store) insertSQL(n int) string {
 		}
 		b.WriteString(`(?,?,?,?,?,?,?,?,?,?)`)
 	}
-	return s.q(b.String())
+	return b.String()
 }
 
 // Query selects sessions; empty fields and zero times match everything.

@@ -170,27 +170,7 @@ func (h *handler) apply(ctx context.Context, rd *wire.Reader) (wire.PushResponse
 	resp := wire.PushResponse{High: map[string]int64{}}
 	ctx, cancel := context.WithCancel(ctx)
 	defer cancel()
-	segs := make(chan *wire.Segment, 2)
-	rerr := make(chan error, 1)
-	go func() {
-		defer close(segs)
-		for {
-			seg, err := rd.Next()
-			if err != nil {
-				if errors.Is(err, io.EOF) {
-					err = nil
-				}
-				rerr <- err
-				return
-			}
-			select {
-			case segs <- seg:
-			case <-ctx.Done():
-				rerr <- ctx.Err()
-				return
-			}
-		}
-	}()
+	segs, rerr := decode(ctx, rd)
 	var tx *store.Tx
 	var pending wire.PushResponse
 	grouped := 0
@@ -226,8 +206,10 @@ func (h *handler) apply(ctx context.Context, rd *wire.Reader) (wire.PushResponse
 		}
 		a, err := tx.Apply(ctx, seg, store.ApplyOptions{})
 		if err != nil {
-			if cerr := commit(); cerr != nil {
-				return resp, cerr
+			if store.IsRefusal(err) { // it wrote nothing: keep the segments before it
+				if cerr := commit(); cerr != nil {
+					return resp, cerr
+				}
 			}
 			return resp, fmt.Errorf("push: segment %d: %w", seg.Index, err)
 		}
@@ -247,6 +229,40 @@ func (h *handler) apply(ctx context.Context, rd *wire.Reader) (wire.PushResponse
 		return resp, readErr{err}
 	}
 	return resp, nil
+}
+
+// decode reads segments from rd in a goroutine, verifying each one's
+// signature with the stream's board key (enrolled: checked from the
+// preamble), at most two ahead of the consumer. The error channel gets
+// nil after the closing frame.
+func decode(ctx context.Context, rd *wire.Reader) (<-chan *wire.Segment, <-chan error) {
+	segs := make(chan *wire.Segment, 2)
+	rerr := make(chan error, 1)
+	go func() {
+		defer close(segs)
+		for {
+			seg, err := rd.Next()
+			if err == nil {
+				if err = seg.Verify(rd.Preamble().Board); err != nil {
+					err = fmt.Errorf("%s: segment %d: %w", rd.Name(), seg.Index, err)
+				}
+			}
+			if err != nil {
+				if errors.Is(err, io.EOF) {
+					err = nil
+				}
+				rerr <- err
+				return
+			}
+			select {
+			case segs <- seg:
+			case <-ctx.Done():
+				rerr <- ctx.Err()
+				return
+			}
+		}
+	}()
+	return segs, rerr
 }
 
 // readError answers a stream that does not decode: a record that does not
@@ -385,14 +401,10 @@ func Import(ctx context.Context, st *store.Store, r io.Reader, name string, prog
 		return sum, err
 	}
 	defer tx.Rollback()
-	for {
-		seg, err := rd.Next()
-		if errors.Is(err, io.EOF) {
-			break
-		}
-		if err != nil {
-			return ImportSummary{}, fmt.Errorf("%w (nothing from this bundle was stored)", err)
-		}
+	ctx, cancel := context.WithCancel(ctx)
+	defer cancel()
+	segs, rerr := decode(ctx, rd)
+	for seg := range segs {
 		a, err := tx.Apply(ctx, seg, store.ApplyOptions{AnyAudience: true, SkipReplays: true})
 		if err != nil {
 			return ImportSummary{}, fmt.Errorf("%s: segment %d: %w (nothing from this bundle was stored)", name, seg.Index, err)
@@ -400,6 +412,9 @@ func Import(ctx context.Context, st *store.Store, r io.Reader, name string, prog
 		sum.Stored += int64(a.Stored)
 		sum.Duplicates += int64(a.Duplicates)
 		prog.Add(len(seg.Records))
+	}
+	if err := <-rerr; err != nil {
+		return ImportSummary{}, fmt.Errorf("%w (nothing from this bundle was stored)", err)
 	}
 	sum.Segments, sum.Records = rd.Counts()
 	if err := tx.Commit(); err != nil {

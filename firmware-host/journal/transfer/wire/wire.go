@@ -89,6 +89,8 @@ type Segment struct {
 	Records  []journal.Record
 	Sig      []byte // ed25519 over Message()
 	Index    int    // 1-based position in the stream, for messages
+
+	verified []byte // the key, message and signature Verify last accepted
 }
 
 // First is the first record's seq.
@@ -127,11 +129,19 @@ func (s *Segment) Message() []byte {
 }
 
 // Verify checks the segment signature against pub (the enrolled key).
+// A segment already verified with pub is not verified again (a receiver
+// verifies in its decoding goroutine, the store checks again for free).
 func (s *Segment) Verify(pub ed25519.PublicKey) error {
-	if !ed25519.Verify(pub, s.Message(), s.Sig) {
+	msg := s.Message()
+	memo := append(append(append([]byte(nil), pub...), s.Sig...), msg...)
+	if s.verified != nil && bytes.Equal(s.verified, memo) {
+		return nil
+	}
+	if !ed25519.Verify(pub, msg, s.Sig) {
 		return fmt.Errorf("%w: the signature over session %s records %d..%d (head %s) does not verify with board key %s",
 			ErrProof, s.Session, s.First(), s.Last(), short(s.Head()), short(hex.EncodeToString(pub)))
 	}
+	s.verified = memo
 	return nil
 }
 
@@ -333,6 +343,9 @@ func ReadPreamble(r io.Reader, name string) (*Reader, error) {
 	rd.digest.Write(appendPreamble(nil, pre))
 	return rd, nil
 }
+
+// Name is the name the stream's errors carry.
+func (r *Reader) Name() string { return r.name }
 
 // Preamble returns the stream's preamble.
 func (r *Reader) Preamble() Preamble { return r.pre }
