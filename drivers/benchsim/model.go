@@ -5,6 +5,8 @@ import (
 	"math"
 	"math/rand/v2"
 	"time"
+
+	"kermalux/drivers"
 )
 
 // Model is the physics of the simulated bench: a pure, deterministic
@@ -22,6 +24,8 @@ type Model struct {
 	beam        bool
 	beamOnAt    time.Duration
 	beamOnCount int
+	beamTotal   time.Duration // true beam-on time of the exposures that ended
+	beamLog     []BeamSpan
 	mode        FieldMode
 	kv          float64
 	phantom     bool
@@ -250,6 +254,10 @@ func (m *Model) SetBeam(t time.Duration, on bool) int {
 			return
 		}
 		m.beam = on
+		if !on {
+			m.beamTotal += t - m.beamOnAt
+			m.beamLog = append(m.beamLog, BeamSpan{On: m.beamOnAt, Off: t})
+		}
 		if on {
 			m.beamOnCount++
 			m.beamOnAt = t
@@ -315,6 +323,45 @@ func (m *Model) SetPhotometerPosition(t time.Duration, rFrac, angleDeg float64) 
 	}
 	m.at(t, func(time.Duration) { m.photR, m.photAngle = rFrac, angleDeg })
 	return nil
+}
+
+// BeamOnTime is the true cumulative beam-on time up to t: the beam log
+// an ideal fluoroscopy timer would keep.
+func (m *Model) BeamOnTime(t time.Duration) time.Duration {
+	m.advance(t)
+	total := m.beamTotal
+	if m.beam {
+		total += m.now - m.beamOnAt
+	}
+	return total
+}
+
+// BeamSpan is one exposure of the true beam log.
+type BeamSpan struct{ On, Off time.Duration }
+
+// BeamLog is every exposure that has ended, in order.
+func (m *Model) BeamLog() []BeamSpan { return append([]BeamSpan(nil), m.beamLog...) }
+
+// Show is what role's meter (RoleDosimeter or RolePhotometer) displays at
+// t, range included: above its range it shows the range maximum with
+// drivers.StatusOverRange, below it drivers.StatusUnderRange (the value is
+// then not a measurement). Faults are the Bench's.
+func (m *Model) Show(role string, t time.Duration) (MeterValue, drivers.Status) {
+	var mv MeterValue
+	spec := m.scn.Photometer
+	if role == RoleDosimeter {
+		mv, spec = m.DoseReading(t), m.scn.Dosimeter
+	} else {
+		mv = m.LumReading(t)
+	}
+	switch {
+	case mv.Value > spec.Range.Max:
+		mv.Value = spec.Range.Max
+		return mv, drivers.StatusOverRange
+	case mv.Value < spec.Range.Min:
+		return mv, drivers.StatusUnderRange
+	}
+	return mv, drivers.StatusOK
 }
 
 // BeamOnCount is how many times the beam has been switched on.
