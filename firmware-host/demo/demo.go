@@ -125,16 +125,7 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 		return nil, fmt.Errorf("demo: starting the simulator: %w", err)
 	}
 
-	benchPath, err := writeBench(o.Out, scn, clk.Now())
-	if err != nil {
-		return nil, err
-	}
-	b, err := bench.Load(benchPath)
-	if err != nil {
-		return nil, err
-	}
-	b.Simulated = true // the session, its results and its report say so
-	proc, err := b.Procedure(o.Procedure)
+	benchPath, b, proc, err := benchFor(o.Out, scn, clk.Now(), o.Procedure)
 	if err != nil {
 		return nil, err
 	}

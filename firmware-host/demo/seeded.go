@@ -1,0 +1,305 @@
+package demo
+
+import (
+	"context"
+	"encoding/json"
+	"fmt"
+	"sort"
+	"sync"
+	"time"
+
+	"kermalux/drivers"
+	"kermalux/drivers/benchsim"
+	"kermalux/drivers/clock"
+	"kermalux/drivers/units"
+	"kermalux/firmware-host/bench"
+	"kermalux/firmware-host/panel/scripted"
+	"kermalux/procedures/engine"
+	"kermalux/procedures/entry"
+	"kermalux/procedures/panel"
+)
+
+// SeededOptions configure Seeded.
+type SeededOptions struct {
+	Dir       string // where the bench file and its example files are written
+	Scenario  string // scenario file; empty: the embedded default
+	Seed      int64  // the scenario's seed when HasSeed
+	HasSeed   bool
+	Procedure string // empty: the acceptance sequence
+	// Period is each simulated meter's reading period (0: 100 ms).
+	Period time.Duration
+	// Journal records the session; nil: an in-memory journal (returned).
+	Journal engine.Journal
+	// Wrap, when set, wraps the journal and the panel the engine is given
+	// (the live view's tees).
+	Wrap func(j engine.Journal, p panel.Panel, clk clock.Clock) (engine.Journal, panel.Panel)
+	// Config, when set, may change the engine's configuration before the
+	// run (a room-air sensor, other values).
+	Config func(cfg *engine.Config, clk clock.Clock)
+	// OnAsk is called with each prompt before the simulated operator
+	// answers it (a test may wait there, as a slow operator would).
+	OnAsk func(p panel.Prompt)
+	// OnSay is called with each message before the operator hears it.
+	OnSay func(m panel.Message)
+}
+
+// SeededOutcome is what Seeded produced.
+type SeededOutcome struct {
+	Summary  engine.Summary
+	Journal  engine.Journal
+	Readings int // meter readings taken
+	Config   engine.Config
+}
+
+// Seeded runs a procedure against the simulator's physics model in this
+// process, on a manual clock, with a simulated operator who acts at once
+// and switches the beam at fixed delays: the same options and seed give
+// the same session, reading for reading. It is the demo's wiring (bench
+// file, certificates, corrections, engine) without pseudo-terminals or
+// real time, for tests and benchmarks that compare two runs.
+func Seeded(ctx context.Context, o SeededOptions) (*SeededOutcome, error) {
+	scn, err := loadScenario(o.Scenario)
+	if err != nil {
+		return nil, err
+	}
+	if o.HasSeed {
+		scn.Seed = o.Seed
+	}
+	model, err := benchsim.NewModel(scn)
+	if err != nil {
+		return nil, fmt.Errorf("demo: %w", err)
+	}
+	clk := clock.NewManual(time.Date(2026, 9, 1, 9, 0, 0, 0, time.UTC)) // within the demo certificates' dates
+	_, b, proc, err := benchFor(o.Dir, scn, clk.Now(), o.Procedure)
+	if err != nil {
+		return nil, err
+	}
+	period := o.Period
+	if period <= 0 {
+		period = 100 * time.Millisecond
+	}
+	var count countReads
+	meters := map[string]drivers.Meter{
+		engine.Dosimeter:  &modelMeter{role: engine.Dosimeter, m: model, clk: clk, period: period, n: &count},
+		engine.Photometer: &modelMeter{role: engine.Photometer, m: model, clk: clk, period: period, phase: period / 2, n: &count},
+	}
+	air := map[string]float64{"temperature": 20, "pressure": 101.325}
+	if a := scn.Air; a != nil {
+		air["temperature"], air["pressure"] = a.TemperatureC, a.PressureKPa
+	}
+	mb := modelBench{m: model, clk: clk}
+	op := &Operator{bench: mb, Readings: air}
+	pan := scripted.New(clk, scripted.WithThinkTime(300*time.Millisecond),
+		scripted.WithResponder(func(p panel.Prompt) panel.Response {
+			if o.OnAsk != nil {
+				o.OnAsk(p)
+			}
+			if p.Action == panel.ActSetup || p.Action == panel.ActBeamOn {
+				op.arrange(p.Setup)
+			}
+			if p.Action == panel.ActBeamOn {
+				model.SetBeam(clk.Mono()+500*time.Millisecond, true)
+			}
+			r := panel.Response{Answer: panel.Ack, At: clk.Now()}
+			if p.Value != nil {
+				r.Value, r.Entered = op.value(p.Value)
+			}
+			return r
+		}),
+		scripted.OnSay(func(m panel.Message) {
+			if o.OnSay != nil {
+				o.OnSay(m)
+			}
+			if m.Action == panel.ActBeamOff {
+				model.SetBeam(clk.Mono()+300*time.Millisecond, false)
+			}
+		}))
+	defer pan.Close()
+	j := o.Journal
+	if j == nil {
+		j = NewMemJournal(clk)
+	}
+	var ej engine.Journal = seededJournal{j, scn}
+	var ep panel.Panel = pan
+	if o.Wrap != nil {
+		ej, ep = o.Wrap(ej, ep, clk)
+	}
+	cfg, err := b.Config(proc, meters, ep, ej, clk, "seeded")
+	if err != nil {
+		return nil, err
+	}
+	cfg.BootID = "seeded"
+	if o.Config != nil {
+		o.Config(&cfg, clk)
+	}
+	eng, err := engine.New(cfg)
+	if err != nil {
+		return nil, err
+	}
+	sum, err := eng.Run(ctx)
+	return &SeededOutcome{Summary: sum, Journal: j, Readings: count.get(), Config: cfg}, err
+}
+
+type countReads struct {
+	mu sync.Mutex
+	n  int
+}
+
+func (c *countReads) add() { c.mu.Lock(); c.n++; c.mu.Unlock() }
+func (c *countReads) get() int {
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	return c.n
+}
+
+// modelMeter reads the physics model in-process; Read advances the manual
+// clock to the meter's next sample time.
+type modelMeter struct {
+	role   string
+	m      *benchsim.Model
+	clk    *clock.Manual
+	period time.Duration
+	next   time.Duration
+	phase  time.Duration
+	n      *countReads
+}
+
+func (s *modelMeter) Read(ctx context.Context) (drivers.Reading, error) {
+	if err := ctx.Err(); err != nil {
+		return drivers.Reading{}, err
+	}
+	now := s.clk.Mono()
+	if s.next <= now {
+		s.next = (now/s.period+1)*s.period + s.phase
+	}
+	s.clk.Advance(s.next - now)
+	t := s.next
+	s.next += s.period
+	q, mv := units.AirKermaRate, s.m.DoseReading(t)
+	if s.role == engine.Photometer {
+		q, mv = units.Luminance, s.m.LumReading(t)
+	}
+	s.n.add()
+	return drivers.Reading{Meter: s.role, Quantity: q, Value: mv.Value, Unit: units.Canonical(q), RawValue: mv.Value,
+		RawUnit: units.Canonical(q), Status: drivers.StatusOK, Raw: fmt.Sprintf("%g", mv.Value), Mono: t, Wall: s.clk.Now()}, nil
+}
+
+func (s *modelMeter) Close() error { return nil }
+
+// modelBench is the operator's Bench on the model, acting at the clock's now.
+type modelBench struct {
+	m   *benchsim.Model
+	clk clock.Clock
+}
+
+func (b modelBench) SetBeam(on bool)                 { b.m.SetBeam(b.clk.Mono(), on) }
+func (b modelBench) SetFieldMode(name string) error  { return b.m.SetFieldMode(b.clk.Mono(), name) }
+func (b modelBench) SetLeadDisk(in bool)             { b.m.SetLeadDisk(b.clk.Mono(), in) }
+func (b modelBench) SetTubeVoltage(kv float64) error { return b.m.SetTubeVoltage(b.clk.Mono(), kv) }
+func (b modelBench) SetPhantom(in bool)              { b.m.SetPhantom(b.clk.Mono(), in) }
+func (b modelBench) SetBrightnessControl(on bool)    { b.m.SetBrightnessControl(b.clk.Mono(), on) }
+func (b modelBench) SetPhotometerPosition(r, a float64) error {
+	return b.m.SetPhotometerPosition(b.clk.Mono(), r, a)
+}
+
+// MemJournal is an in-memory engine.Journal (not durable, not signed) for
+// seeded sessions.
+type MemJournal struct {
+	mu   sync.Mutex
+	clk  clock.Clock
+	n    int
+	recs map[string][]entry.Envelope
+}
+
+// NewMemJournal returns an empty in-memory journal stamping records with clk.
+func NewMemJournal(clk clock.Clock) *MemJournal {
+	return &MemJournal{clk: clk, recs: map[string][]entry.Envelope{}}
+}
+
+// Begin implements engine.Journal.
+func (j *MemJournal) Begin(ctx context.Context, s entry.Session) (string, error) {
+	j.mu.Lock()
+	j.n++
+	id := fmt.Sprintf("seeded-%d", j.n)
+	j.mu.Unlock()
+	s.ID = id
+	_, err := j.Append(ctx, id, entry.KindSession, s)
+	return id, err
+}
+
+// Append implements engine.Journal.
+func (j *MemJournal) Append(ctx context.Context, session string, kind entry.Kind, payload any) (int64, error) {
+	data, err := json.Marshal(payload)
+	if err != nil {
+		return 0, fmt.Errorf("memory journal: %s record: %w", kind, err)
+	}
+	j.mu.Lock()
+	defer j.mu.Unlock()
+	seq := int64(len(j.recs[session]) + 1)
+	j.recs[session] = append(j.recs[session], entry.Envelope{Seq: seq, Session: session, Kind: kind, Wall: j.clk.Now(), Mono: j.clk.Mono(), BootID: "seeded", Payload: data})
+	return seq, nil
+}
+
+// Envelopes implements engine.Journal.
+func (j *MemJournal) Envelopes(ctx context.Context, session string) ([]entry.Envelope, error) {
+	j.mu.Lock()
+	defer j.mu.Unlock()
+	return append([]entry.Envelope(nil), j.recs[session]...), nil
+}
+
+// VerifySession implements engine.Journal: nothing is signed here, and a
+// record cannot be tampered with in memory.
+func (j *MemJournal) VerifySession(ctx context.Context, session string) error {
+	j.mu.Lock()
+	defer j.mu.Unlock()
+	if _, ok := j.recs[session]; !ok {
+		return fmt.Errorf("memory journal: no session %q", session)
+	}
+	return nil
+}
+
+// Sessions lists the sessions begun, in order.
+func (j *MemJournal) Sessions() []string {
+	j.mu.Lock()
+	defer j.mu.Unlock()
+	var ids []string
+	for id := range j.recs {
+		ids = append(ids, id)
+	}
+	sort.Strings(ids)
+	return ids
+}
+
+// seededJournal marks each session it begins as a simulator session.
+type seededJournal struct {
+	engine.Journal
+	scn *benchsim.Scenario
+}
+
+func (j seededJournal) Begin(ctx context.Context, s entry.Session) (string, error) {
+	id, err := j.Journal.Begin(ctx, s)
+	if err != nil {
+		return id, err
+	}
+	_, err = j.Journal.Append(ctx, id, entry.KindEvent, entry.Event{
+		Name:   "simulated_bench",
+		Detail: fmt.Sprintf("readings come from the bench simulator's model in-process (scenario %s, seed %d): not measurements", j.scn.Source, j.scn.Seed),
+	})
+	return id, err
+}
+
+// benchFor writes the simulated bench's file into dir, loads it (marked
+// simulated) and the procedure name (empty: the bench's sequence).
+func benchFor(dir string, scn *benchsim.Scenario, day time.Time, name string) (string, *bench.Bench, engine.Procedure, error) {
+	path, err := writeBench(dir, scn, day)
+	if err != nil {
+		return "", nil, engine.Procedure{}, err
+	}
+	b, err := bench.Load(path)
+	if err != nil {
+		return "", nil, engine.Procedure{}, err
+	}
+	b.Simulated = true // the session, its results and its report say so
+	proc, err := b.Procedure(name)
+	return path, b, proc, err
+}

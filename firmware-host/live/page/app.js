@@ -1,0 +1,257 @@
+// kermalux live view: reads server-sent events (journal records and panel
+// calls) and shows them. It sends nothing back but the GET of the stream.
+"use strict";
+(function () {
+  const TREND = 60;      // readings kept per meter for the trend line
+  const SAID = 12;       // messages kept in "what the board said"
+  let S;
+  function reset(keep) {
+    S = {
+      session: null, info: null, steps: keep ? keep.steps : [], title: keep ? keep.title : "",
+      warn: keep ? keep.warn : 270, alarm: keep ? keep.alarm : 300,
+      step: 0, of: 0, stepID: "", prompt: "", next: "", waiting: false,
+      beam: false, beamS: 0, beamMono: 0, lastMono: 0, beamNote: "",
+      meters: {}, order: [], air: {}, results: [], retakes: [], acks: [], prompts: {}, said: [],
+      lastRetry: "", outcome: null,
+    };
+  }
+  reset();
+
+  const $ = (id) => document.getElementById(id);
+  function el(tag, cls, text) {
+    const e = document.createElement(tag);
+    if (cls) e.className = cls;
+    if (text !== undefined && text !== null) e.textContent = String(text);
+    return e;
+  }
+  function clear(e) { while (e.firstChild) e.removeChild(e.firstChild); }
+  function fmt(v) {
+    if (typeof v !== "number" || !isFinite(v)) return "–";
+    const a = Math.abs(v);
+    if (a !== 0 && (a >= 1e5 || a < 1e-3)) return v.toExponential(3);
+    return String(Number(v.toPrecision(4)));
+  }
+  function mmss(s) {
+    s = Math.max(0, Math.floor(s));
+    return Math.floor(s / 60) + ":" + String(s % 60).padStart(2, "0");
+  }
+  function clock(wall) {
+    if (!wall) return "";
+    const d = new Date(wall);
+    return isNaN(d) ? "" : d.toLocaleTimeString([], { hour: "2-digit", minute: "2-digit", second: "2-digit" });
+  }
+  const words = (s) => String(s || "").replace(/_/g, " ");
+  function said(text, level, wall) {
+    S.said.push({ text, level, wall });
+    if (S.said.length > SAID) S.said.shift();
+  }
+
+  function apply(ev) {
+    const p = ev.payload || {};
+    if (ev.mono_ns) S.lastMono = Math.max(S.lastMono, ev.mono_ns);
+    switch (ev.kind) {
+      case "live_hello":
+        if (!p.after) reset({ steps: p.steps || [], title: p.title, warn: p.beam_warn_s, alarm: p.beam_alarm_s });
+        S.steps = p.steps || S.steps; S.title = p.title || S.title;
+        S.warn = p.beam_warn_s || S.warn; S.alarm = p.beam_alarm_s || S.alarm;
+        if (p.session) S.session = p.session;
+        break;
+      case "live_session":
+        if (S.session && S.session !== p.id) reset(S);
+        S.session = p.id;
+        break;
+      case "session":
+        S.info = p;
+        break;
+      case "step":
+        if (p.state === "started" || p.state === "resumed") {
+          S.step = p.index; S.of = p.of; S.stepID = p.id;
+          if (S.steps[p.index - 1] && !S.waiting) S.prompt = S.steps[p.index - 1].text;
+          S.next = "";
+        } else if (p.state === "retake") {
+          S.retakes.push({ step: p.index, id: p.id, mode: p.field_mode, reason: p.reason || S.lastRetry || "retaken", wall: ev.wall });
+        }
+        break;
+      case "prompt":
+        if (ev.seq) S.prompts[ev.seq] = p;
+        if (p.level === "retry") S.lastRetry = p.text;
+        said(p.text, p.level, ev.wall);
+        if (p.asked) { S.prompt = p.text; S.waiting = true; if (p.step) S.step = p.step; }
+        break;
+      case "ack": {
+        S.waiting = false;
+        const pr = S.prompts[p.prompt_seq];
+        if (pr && pr.action === "check") S.acks.push({ text: p.text, at: p.at || ev.wall, answer: p.answer });
+        break;
+      }
+      case "value":
+        if (p.name === "temperature" || p.name === "pressure" || p.name === "humidity") S.air[p.name] = p;
+        break;
+      case "reading": {
+        const key = p.meter || p.quantity;
+        let m = S.meters[key];
+        if (!m) { m = S.meters[key] = { hist: [] }; S.order.push(key); }
+        m.value = p.value; m.unit = p.unit; m.status = p.status; m.quantity = p.quantity;
+        m.used = p.used; m.position = p.position; m.calibrated = p.calibrated;
+        if (typeof p.value === "number" && isFinite(p.value)) { m.hist.push(p.value); if (m.hist.length > TREND) m.hist.shift(); }
+        break;
+      }
+      case "event":
+        switch (p.name) {
+          case "beam_on": S.beam = true; S.beamS = p.beam_on_s || 0; S.beamMono = ev.mono_ns || S.lastMono; break;
+          case "beam_off": S.beam = false; S.beamS = p.beam_on_s || S.beamS; break;
+          case "beam_warning": S.beamNote = "Warning: " + words(p.detail || "cumulative beam-on near the alarm"); S.beamS = p.beam_on_s || S.beamS; break;
+          case "beam_alarm": S.beamNote = "ALARM: " + words(p.detail || "five minutes of beam-on"); S.beamS = p.beam_on_s || S.beamS; break;
+          case "kerma_out_of_range": S.beamNote = "Stopped: kerma rate far out of range"; break;
+          case "samples_discarded": case "meter_lost": case "meter_back": case "reading_error":
+            said(words(p.name) + (p.detail ? ": " + p.detail : ""), "retry", ev.wall); break;
+        }
+        break;
+      case "result": {
+        // A judged result is journalled again with its verdict: replace.
+        const key = [p.procedure, p.step, p.quantity, p.field_mode || ""].join("|");
+        const i = S.results.findIndex((r) => r._key === key);
+        p._key = key;
+        if (i >= 0) S.results[i] = p; else S.results.push(p);
+        break;
+      }
+      case "session_end":
+        S.outcome = p; S.prompt = p.outcome === "complete" ? "All steps done." : "Session " + words(p.outcome) + ".";
+        S.next = "the end"; S.waiting = false; S.beam = false; S.beamS = p.beam_on_s || S.beamS;
+        break;
+      case "panel_ask":
+        S.prompt = p.text; S.waiting = true;
+        if (p.step) { S.step = p.step; S.of = p.of || S.of; }
+        S.next = p.next || "";
+        break;
+      case "panel_say":
+        break; // journalled as a prompt record, shown from there
+      case "panel_indicate":
+        if (p.on === "beam_on") S.beam = true;
+        break;
+    }
+  }
+
+  function beamSeconds() {
+    let s = S.beamS;
+    if (S.beam && S.lastMono > S.beamMono) s += (S.lastMono - S.beamMono) / 1e9;
+    return s;
+  }
+
+  function nextText() {
+    if (S.next) return S.next;
+    if (!S.step) return S.steps.length ? S.steps[0].text : "–";
+    const n = S.steps[S.step];
+    return n ? (n.text || words(n.kind)) : "the end";
+  }
+
+  function trend(hist) {
+    const svg = document.createElementNS("http://www.w3.org/2000/svg", "svg");
+    svg.setAttribute("viewBox", "0 0 100 40");
+    svg.setAttribute("preserveAspectRatio", "none");
+    if (hist.length > 1) {
+      let lo = Math.min(...hist), hi = Math.max(...hist);
+      if (hi - lo < 1e-12) { lo -= 1; hi += 1; }
+      const pts = hist.map((v, i) => (i * 100 / (TREND - 1)).toFixed(2) + "," + (37 - 34 * (v - lo) / (hi - lo)).toFixed(2));
+      const pl = document.createElementNS("http://www.w3.org/2000/svg", "polyline");
+      pl.setAttribute("points", pts.join(" "));
+      svg.appendChild(pl);
+    }
+    return svg;
+  }
+
+  function render() {
+    pending = false;
+    const i = S.info;
+    $("where").textContent = i ? [i.site, i.room, i.intensifier_model, i.intensifier_serial].filter(Boolean).join(" · ") : (S.title || "waiting for the board…");
+    $("progress").textContent = S.of ? "Step " + S.step + " of " + S.of + (S.title ? " · " + S.title : "") : (S.title || "no session yet");
+    $("progress-bar").style.width = S.of ? (100 * S.step / S.of) + "%" : "0";
+    $("prompt").textContent = S.prompt || "";
+    $("next").textContent = nextText();
+
+    const bs = beamSeconds();
+    const st = $("beam-state");
+    st.textContent = S.beam ? "BEAM ON" : "beam off";
+    st.className = "pill " + (S.beam ? "on" : "off");
+    $("beam-time").textContent = mmss(bs);
+    document.querySelector(".beamtime .of").textContent = "of " + mmss(S.alarm) + " cumulative";
+    $("beam-bar").style.width = Math.min(100, 100 * bs / S.alarm) + "%";
+    $("beam-warn").style.left = (100 * S.warn / S.alarm) + "%";
+    $("beam-bar").parentNode.classList.toggle("alarm", bs >= S.alarm);
+    $("beam-note").textContent = S.beamNote;
+
+    const ms = $("meters"); clear(ms);
+    if (!S.order.length) ms.appendChild(el("p", "empty", "no readings yet"));
+    for (const k of S.order) {
+      const m = S.meters[k];
+      const d = el("div", "meter"); d.dataset.meter = k;
+      d.appendChild(el("span", "name", words(k)));
+      const v = el("span", "val", fmt(m.value)); v.appendChild(el("span", "unit", " " + (m.unit || ""))); d.appendChild(v);
+      d.appendChild(trend(m.hist));
+      d.appendChild(el("span", "status", [words(m.status), m.used ? "used" : "settling or dark", m.position].filter(Boolean).join(" · ")));
+      ms.appendChild(d);
+    }
+
+    const air = $("air"); clear(air);
+    const names = Object.keys(S.air);
+    if (!names.length) air.appendChild(el("p", "empty", "not entered yet"));
+    for (const n of names) {
+      const a = S.air[n];
+      const d = el("div", "", fmt(a.value) + " " + a.unit); d.dataset.air = n;
+      d.appendChild(el("small", "", words(n) + " · " + (a.source || "")));
+      air.appendChild(d);
+    }
+
+    const rs = $("results"); clear(rs);
+    if (!S.results.length) rs.appendChild(el("p", "empty", "none computed yet"));
+    else {
+      const t = el("table", "results");
+      const hr = el("tr"); ["Figure", "Value ± U", "Verdict", "Decided by"].forEach((h) => hr.appendChild(el("th", "", h)));
+      const th = el("thead"); th.appendChild(hr); t.appendChild(th);
+      const tb = el("tbody");
+      for (const r of S.results) {
+        const tr = el("tr"); tr.dataset.quantity = r.quantity;
+        tr.appendChild(el("td", "q", words(r.quantity) + (r.field_mode ? ", " + r.field_mode : "")));
+        tr.appendChild(el("td", "num", fmt(r.value) + " ± " + fmt(r.expanded_uncertainty) + " " + (r.unit || "")));
+        const vd = el("td"); vd.appendChild(el("span", "verdict " + (r.verdict || "info"), r.verdict || "info")); tr.appendChild(vd);
+        tr.appendChild(el("td", "dec", words(r.decided_by) + (r.calibrated === false ? " (not calibrated)" : "")));
+        tb.appendChild(tr);
+      }
+      t.appendChild(tb); rs.appendChild(t);
+    }
+
+    const rt = $("retakes"); clear(rt);
+    if (!S.retakes.length) rt.appendChild(el("li", "empty", "none"));
+    for (const r of S.retakes) {
+      const li = el("li"); li.appendChild(el("time", "", clock(r.wall)));
+      li.appendChild(document.createTextNode("step " + r.step + (r.mode ? " (" + r.mode + ")" : "") + ": " + r.reason));
+      rt.appendChild(li);
+    }
+
+    const ak = $("acks"); clear(ak);
+    if (!S.acks.length) ak.appendChild(el("li", "empty", "none yet"));
+    for (const a of S.acks) {
+      const li = el("li"); li.appendChild(el("time", "", clock(a.at))); li.appendChild(document.createTextNode("✓ " + a.text)); ak.appendChild(li);
+    }
+
+    const sd = $("said"); clear(sd);
+    for (const m of S.said.slice().reverse()) {
+      const li = el("li", m.level || ""); li.appendChild(el("time", "", clock(m.wall))); li.appendChild(document.createTextNode(m.text)); sd.appendChild(li);
+    }
+  }
+
+  let pending = false;
+  function schedule() { if (!pending) { pending = true; requestAnimationFrame(render); } }
+
+  function connect() {
+    const es = new EventSource("/events");
+    es.onopen = () => { const l = $("link"); l.textContent = "live"; l.className = "link"; };
+    es.onerror = () => { const l = $("link"); l.textContent = "reconnecting"; l.className = "link off"; };
+    es.onmessage = (m) => {
+      try { apply(JSON.parse(m.data)); } catch (e) { return; }
+      schedule();
+    };
+  }
+  render();
+  connect();
+})();
