@@ -313,4 +313,4 @@ func (c *counting) Append(_ context.Context, _ string, _ entry.Kind, p any) (int
 	return c.n, nil
 }
 func (c *counting) Envelopes(context.Context, string) ([]entry.Envelope, error) { return nil, nil }
-func (c *counting) VerifySession(context.Context, string) error { return nil }
+func (c *counting) VerifySession(context.Context, string) error                 { return nil }
