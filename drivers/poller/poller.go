@@ -45,6 +45,7 @@ type Poller struct {
 	queue  []item
 	lost   uint64
 	active bool      // the caller is taking readings
+	waiters int      // callers blocked in Next: polling never pauses under them
 	last   time.Time // when the caller last asked for one
 	wake   chan struct{}
 	notify chan struct{}
@@ -75,7 +76,7 @@ func (p *Poller) loop(ctx context.Context) {
 	defer close(p.done)
 	for ctx.Err() == nil {
 		p.mu.Lock()
-		if p.active && time.Since(p.last) > p.idle {
+		if p.active && p.waiters == 0 && time.Since(p.last) > p.idle {
 			p.active = false
 		}
 		active := p.active
@@ -144,7 +145,13 @@ func (p *Poller) Next(ctx context.Context) (drivers.Reading, error) {
 		default:
 		}
 	}
+	p.waiters++
 	p.mu.Unlock()
+	defer func() {
+		p.mu.Lock()
+		p.waiters--
+		p.mu.Unlock()
+	}()
 	for {
 		p.mu.Lock()
 		if len(p.queue) > 0 {
