@@ -40,17 +40,17 @@ type Poller struct {
 	log  *slog.Logger
 	name string
 
-	turn   sync.Mutex // held by the goroutine for each read; Exclusive takes it
-	mu     sync.Mutex
-	queue  []item
-	lost   uint64
-	active bool      // the caller is taking readings
-	waiters int      // callers blocked in Next: polling never pauses under them
-	last   time.Time // when the caller last asked for one
-	wake   chan struct{}
-	notify chan struct{}
-	cancel context.CancelFunc
-	done   chan struct{}
+	turn    sync.Mutex // held by the goroutine for each read; Exclusive takes it
+	mu      sync.Mutex
+	queue   []item
+	lost    uint64
+	active  bool      // the caller is taking readings
+	waiters int       // callers blocked in Next: polling never pauses under them
+	last    time.Time // when the caller last asked for one
+	wake    chan struct{}
+	notify  chan struct{}
+	cancel  context.CancelFunc
+	done    chan struct{}
 }
 
 // New starts polling with read (a dialect's own Read). size bounds the
