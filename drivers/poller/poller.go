@@ -201,8 +201,13 @@ func (p *Poller) Discard() {
 }
 
 // Exclusive runs f between two reads (identification, a command): the
-// meter's port is f's alone meanwhile.
+// meter's port is f's alone meanwhile. On a nil Poller (a meter read
+// directly, without background polling) it just runs f.
 func (p *Poller) Exclusive(f func()) {
+	if p == nil {
+		f()
+		return
+	}
 	p.turn.Lock()
 	defer p.turn.Unlock()
 	f()

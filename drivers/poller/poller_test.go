@@ -60,3 +60,14 @@ func TestQueueBoundedAndCounted(t *testing.T) {
 		t.Error("no dropped reading counted after 40 readings into a queue of 8")
 	}
 }
+
+// TestExclusiveOnNilRuns: a meter without background polling has a nil
+// Poller; Exclusive must still run f.
+func TestExclusiveOnNilRuns(t *testing.T) {
+	var p *Poller
+	ran := false
+	p.Exclusive(func() { ran = true })
+	if !ran {
+		t.Error("f did not run on a nil Poller")
+	}
+}

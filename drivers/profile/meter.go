@@ -218,11 +218,7 @@ func (m *Meter) Identify(ctx context.Context) (drivers.Identity, error) {
 			m.id, m.idKnown = id, true
 		}
 	}
-	if m.bg != nil {
-		m.bg.Exclusive(run)
-	} else {
-		run()
-	}
+	m.bg.Exclusive(run)
 	return id, err
 }
 

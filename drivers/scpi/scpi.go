@@ -421,11 +421,7 @@ func (m *Meter) Identify(ctx context.Context) (id drivers.Identity, err error) {
 			m.id, m.idKnown = id, true
 		}
 	}
-	if m.bg != nil {
-		m.bg.Exclusive(run)
-	} else {
-		run()
-	}
+	m.bg.Exclusive(run)
 	return id, err
 }
 
