@@ -13,9 +13,12 @@ import (
 
 	"github.com/spf13/cobra"
 
+	"kermalux/drivers/clock"
 	"kermalux/firmware-host/demo"
+	"kermalux/firmware-host/live"
 	"kermalux/procedures/engine"
 	"kermalux/procedures/entry"
+	"kermalux/procedures/panel"
 )
 
 type demoOptions struct {
@@ -28,6 +31,7 @@ type demoOptions struct {
 	quiet     bool
 	fresh     bool
 	asJSON    bool
+	live      string
 }
 
 // demoJSON is `demo --json`: the results file (simulated: true) and
@@ -53,10 +57,14 @@ presses the switch and works the beam pedal when told. Writes results.json, the
 journal, the bench file it used and the report (HTML, PDF, CSV) into --out, and
 prints what the board says as it goes and a short summary.
 
+With --live ADDR the demo serves the board's read-only live view on ADDR, as
+'kermalux run --live' does (pair with the code it prints and says, or the token
+link printed once), and keeps it up after the session until interrupted.
+
 The simulator's figures are invented: they are not measurements.`,
 		Args: cobra.NoArgs,
 		RunE: func(c *cobra.Command, args []string) error {
-			return runDemo(c.Context(), c.OutOrStdout(), o, c.Flags().Changed("seed"))
+			return runDemo(c.Context(), c.OutOrStdout(), c.ErrOrStderr(), o, c.Flags().Changed("seed"))
 		},
 	}
 	f := cmd.Flags()
@@ -69,10 +77,11 @@ The simulator's figures are invented: they are not measurements.`,
 	f.BoolVarP(&o.quiet, "quiet", "q", false, "print only the summary")
 	f.BoolVar(&o.fresh, "new", false, "start a new session even if the journal in --out holds an unfinished one (default: resume it)")
 	f.BoolVar(&o.asJSON, "json", false, "print only the summary, as JSON (the results file and the paths written)")
+	f.StringVar(&o.live, "live", "", "serve the read-only live view on ADDR (HOST:PORT or :PORT) and keep it up after the session until interrupted; --speed 1 to watch in real time")
 	register(cmd)
 }
 
-func runDemo(parent context.Context, w io.Writer, o demoOptions, hasSeed bool) error {
+func runDemo(parent context.Context, w, errw io.Writer, o demoOptions, hasSeed bool) error {
 	if parent == nil {
 		parent = context.Background()
 	}
@@ -87,6 +96,29 @@ func runDemo(parent context.Context, w io.Writer, o demoOptions, hasSeed bool) e
 	if !o.quiet && !o.asJSON {
 		opts.Dialogue = w
 	}
+	var view *live.View
+	if o.live != "" {
+		if view, err = live.Listen(o.live, live.Options{}); errors.Is(err, live.ErrBadAddress) {
+			return withCode(exitUsage, fmt.Errorf("--live: %w", err))
+		} else if err != nil {
+			return withCode(exitFailure, fmt.Errorf("--live: %w", err))
+		}
+		defer view.Close()
+		lctx, cancel := context.WithCancel(ctx)
+		defer func() { cancel(); _ = view.Wait() }()
+		opts.Wrap = func(j engine.Journal, p panel.Panel, clk clock.Clock, proc engine.Procedure) (engine.Journal, panel.Panel, error) {
+			j, p, err := view.Wrap(j, p, clk)
+			if err != nil {
+				return nil, nil, err
+			}
+			view.SetProcedure(proc)
+			if err := view.Start(lctx); err != nil {
+				return nil, nil, err
+			}
+			fmt.Fprint(errw, view.Printed())
+			return j, p, p.Say(ctx, view.Announcement())
+		}
+	}
 	out, runErr := demo.Run(ctx, opts)
 	switch {
 	case out != nil && o.asJSON:
@@ -98,6 +130,10 @@ func runDemo(parent context.Context, w io.Writer, o demoOptions, hasSeed bool) e
 	}
 	if runErr != nil {
 		return withCode(exitFailure, runErr)
+	}
+	if view != nil && ctx.Err() == nil {
+		fmt.Fprintf(errw, "live view: the session is over; the page stays up on %s until interrupted (Ctrl-C)\n", view.Addr())
+		<-ctx.Done()
 	}
 	return nil
 }

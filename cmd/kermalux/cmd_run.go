@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"io"
 	"os"
 	"os/signal"
 	"strings"
@@ -15,6 +16,7 @@ import (
 	"kermalux/drivers/clock"
 	"kermalux/firmware-host/bench"
 	"kermalux/firmware-host/journal"
+	"kermalux/firmware-host/live"
 	"kermalux/firmware-host/panel/compose"
 	"kermalux/procedures/engine"
 	"kermalux/procedures/panel"
@@ -30,6 +32,12 @@ type runOptions struct {
 	standby bool
 	fresh   bool
 	ports   []string
+	live    string // --live ADDR: serve the read-only live view there
+
+	// in and errw replace standard input (the terminal panel's) and
+	// standard error; nil: the process's own (tests set them).
+	in   io.Reader
+	errw io.Writer
 }
 
 func init() {
@@ -45,6 +53,13 @@ is resumed at its first unfinished step. results.json is written to --out.
 With --standby (at boot) the board beeps twice, says which meters and
 certificates it found, and waits for a press of the foot switch to start.
 
+With --live ADDR (for example --live :8471) the board also serves a read-only
+page of the session on ADDR: the step, the meters' readings, beam-on time,
+results, retakes and acknowledgements. A browser pairs with the six-digit code
+the board says and shows at start, or with the token link printed once on
+standard error; any other client gets nothing. The page cannot start a step or
+an exposure.
+
 CAUTION: X-rays are dangerous. Follow local regulations and the advice of your
 medical physicist or radiation safety officer.`,
 		Args: cobra.MaximumNArgs(1),
@@ -53,6 +68,7 @@ medical physicist or radiation safety officer.`,
 			if len(args) == 1 {
 				name = args[0]
 			}
+			o.errw = cmd.ErrOrStderr()
 			return runRun(cmd.Context(), o, name)
 		},
 	}
@@ -65,6 +81,7 @@ medical physicist or radiation safety officer.`,
 	f.BoolVar(&o.standby, "standby", false, "wait at the ready for a foot-switch press before starting")
 	f.BoolVar(&o.fresh, "new", false, "start a new session even if an unfinished one exists")
 	f.StringArrayVar(&o.ports, "port", nil, "NAME=PATH: use PATH for the bench's meter NAME (repeatable; e.g. the simulator's links)")
+	f.StringVar(&o.live, "live", "", "serve the read-only live view on ADDR (HOST:PORT or :PORT), paired by the code the board says or the token printed once")
 	_ = cmd.MarkFlagRequired("bench")
 	register(cmd)
 }
@@ -75,6 +92,10 @@ func runRun(parent context.Context, o runOptions, name string) error {
 	}
 	ctx, stop := signal.NotifyContext(parent, os.Interrupt, syscall.SIGTERM)
 	defer stop()
+	errw := o.errw
+	if errw == nil {
+		errw = os.Stderr
+	}
 	b, err := bench.Load(o.bench)
 	if err != nil {
 		return withCode(exitFailure, err)
@@ -88,7 +109,7 @@ func runRun(parent context.Context, o runOptions, name string) error {
 		var probs script.Problems
 		if errors.As(err, &probs) {
 			for _, p := range probs {
-				fmt.Fprintln(os.Stderr, p.String())
+				fmt.Fprintln(errw, p.String())
 			}
 		}
 		return withCode(exitFailure, err)
@@ -98,6 +119,17 @@ func runRun(parent context.Context, o runOptions, name string) error {
 			return withCode(exitUsage, fmt.Errorf("--panel %q: want terminal or gpio", o.panel))
 		}
 		b.Panel.Kind = o.panel
+	}
+	var view *live.View
+	if o.live != "" {
+		// Opened first: a busy or wrong address stops here, before the
+		// journal, the panel or a meter is opened.
+		if view, err = live.Listen(o.live, live.Options{Procedure: proc}); errors.Is(err, live.ErrBadAddress) {
+			return withCode(exitUsage, fmt.Errorf("--live: %w", err))
+		} else if err != nil {
+			return withCode(exitFailure, fmt.Errorf("--live: %w", err))
+		}
+		defer view.Close()
 	}
 	clk := clock.NewReal()
 	jpath := o.journal
@@ -112,7 +144,11 @@ func runRun(parent context.Context, o runOptions, name string) error {
 		return withCode(exitFailure, err)
 	}
 	defer jr.Close()
-	pan, err := compose.Open(b.Panel, clk, compose.Terminal{}, nil)
+	term := compose.Terminal{}
+	if o.in != nil {
+		term = compose.Terminal{In: o.in, Out: errw}
+	}
+	pan, err := compose.Open(b.Panel, clk, term, nil)
 	if errors.Is(err, panel.ErrNoHardware) {
 		return withCode(exitFailure, fmt.Errorf("%w (on a machine without GPIO, give --panel terminal)", err))
 	}
@@ -120,6 +156,22 @@ func runRun(parent context.Context, o runOptions, name string) error {
 		return withCode(exitFailure, err)
 	}
 	defer pan.Close()
+	var ej engine.Journal = jr
+	var ep panel.Panel = pan
+	if view != nil {
+		if ej, ep, err = view.Wrap(jr, pan, clk); err != nil {
+			return withCode(exitFailure, err)
+		}
+		lctx, cancel := context.WithCancel(ctx)
+		defer func() { cancel(); _ = view.Wait() }()
+		if err := view.Start(lctx); err != nil {
+			return withCode(exitFailure, err)
+		}
+		fmt.Fprint(errw, view.Printed())
+		if err := ep.Say(ctx, view.Announcement()); err != nil {
+			return withCode(exitFailure, err)
+		}
+	}
 	ports := map[string]string{}
 	for _, kv := range o.ports {
 		k, v, ok := strings.Cut(kv, "=")
@@ -130,12 +182,12 @@ func runRun(parent context.Context, o runOptions, name string) error {
 	}
 	meters, err := bench.OpenMeters(ctx, b, clk, ports)
 	if err != nil {
-		_ = pan.Say(ctx, panel.Message{Text: "A meter was not found: " + err.Error(), Level: panel.Warn})
-		_ = pan.Indicate(ctx, panel.Fault)
+		_ = ep.Say(ctx, panel.Message{Text: "A meter was not found: " + err.Error(), Level: panel.Warn})
+		_ = ep.Indicate(ctx, panel.Fault)
 		return withCode(exitFailure, err)
 	}
 	defer closeMeters(meters)
-	cfg, err := b.Config(proc, meters, pan, jr, clk, version)
+	cfg, err := b.Config(proc, meters, ep, ej, clk, version)
 	if err != nil {
 		return withCode(exitFailure, err)
 	}
@@ -151,8 +203,8 @@ func runRun(parent context.Context, o runOptions, name string) error {
 		if cfg.Resume != "" {
 			text = "Ready. " + b.Found(meters, clk.Now()) + " Press the switch to resume " + proc.Title + "."
 		}
-		_ = pan.Indicate(ctx, panel.Ready)
-		if _, err := pan.Ask(ctx, panel.Prompt{Message: panel.Message{Text: text, Level: panel.Info, Action: panel.ActAcknowledge}}); err != nil {
+		_ = ep.Indicate(ctx, panel.Ready)
+		if _, err := ep.Ask(ctx, panel.Prompt{Message: panel.Message{Text: text, Level: panel.Info, Action: panel.ActAcknowledge}}); err != nil {
 			return withCode(exitFailure, err)
 		}
 	}
@@ -166,7 +218,7 @@ func runRun(parent context.Context, o runOptions, name string) error {
 		if err != nil {
 			return withCode(exitFailure, errors.Join(runErr, err))
 		}
-		fmt.Fprintf(os.Stderr, "session %s: %s, %d results, %d to review, beam-on %.0f s; %s\n", sum.Session, sum.Outcome, len(sum.Results), sum.Review, sum.BeamOn.Seconds(), path)
+		fmt.Fprintf(errw, "session %s: %s, %d results, %d to review, beam-on %.0f s; %s\n", sum.Session, sum.Outcome, len(sum.Results), sum.Review, sum.BeamOn.Seconds(), path)
 		if o.asJSON {
 			if err := engine.WriteResults(os.Stdout, engine.NewResultsFile(sum, cfg.Session)); err != nil {
 				return withCode(exitFailure, errors.Join(runErr, err))

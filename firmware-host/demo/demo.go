@@ -60,6 +60,10 @@ type Options struct {
 	// OnRecord, when set, is called after each record the engine appends
 	// is durable (tests kill the process at chosen records with it).
 	OnRecord func(kind entry.Kind, seq int64)
+	// Wrap, when set, wraps the journal and the panel the engine is given
+	// (the live view's tees: `kermalux demo --live`); proc is the
+	// procedure that will run.
+	Wrap func(j engine.Journal, p panel.Panel, clk clock.Clock, proc engine.Procedure) (engine.Journal, panel.Panel, error)
 	// Fresh starts a new session even when the journal in Out holds an
 	// unfinished one of the same procedure and intensifier; by default
 	// that session is resumed, as on the board.
@@ -168,7 +172,14 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 			m.Close()
 		}
 	}()
-	cfg, err := b.Config(proc, meters, pan, simJournal{jr, scn, clk, o.OnRecord}, clk, o.Version)
+	var ej engine.Journal = simJournal{jr, scn, clk, o.OnRecord}
+	var ep panel.Panel = pan
+	if o.Wrap != nil {
+		if ej, ep, err = o.Wrap(ej, ep, clk, proc); err != nil {
+			return nil, fmt.Errorf("demo: %w", err)
+		}
+	}
+	cfg, err := b.Config(proc, meters, ep, ej, clk, o.Version)
 	if err != nil {
 		return nil, err
 	}
@@ -185,7 +196,7 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 		}
 	}
 	ready := "Ready. " + b.Found(meters, clk.Now()) + " Press the switch to " + verb + " " + proc.Title + "."
-	if _, err := pan.Ask(ctx, panel.Prompt{Message: panel.Message{Text: ready, Level: panel.Info, Action: panel.ActAcknowledge}}); err != nil {
+	if _, err := ep.Ask(ctx, panel.Prompt{Message: panel.Message{Text: ready, Level: panel.Info, Action: panel.ActAcknowledge}}); err != nil {
 		return nil, err
 	}
 	if o.Hook != nil {

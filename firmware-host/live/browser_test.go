@@ -251,38 +251,94 @@ func float64Sig(v float64) float64 {
 	return x
 }
 
-// TestScreenshots writes the page as pictures at a phone's and a desktop's
-// width (chromium --screenshot), at the end of a seeded session, into
-// $KERMALUX_LIVE_SCREENSHOTS. It is for looking at, so it runs only when
-// asked.
+// browser starts a headless chromium with a window of w×h pixels.
+func browser(t *testing.T, exe string, w, h int) (context.Context, context.CancelFunc) {
+	opts := []chromedp.ExecAllocatorOption{chromedp.ExecPath(exe)}
+	for _, f := range chromiumFlags(t) {
+		name, val, ok := strings.Cut(strings.TrimPrefix(f, "--"), "=")
+		if ok {
+			opts = append(opts, chromedp.Flag(name, val))
+		} else {
+			opts = append(opts, chromedp.Flag(name, true))
+		}
+	}
+	opts = append(opts, chromedp.Flag("hide-scrollbars", true), chromedp.WindowSize(w, h))
+	actx, cancelA := chromedp.NewExecAllocator(context.Background(), opts...)
+	ctx, cancel := chromedp.NewContext(actx)
+	ctx, cancelT := context.WithTimeout(ctx, 4*time.Minute)
+	return ctx, func() { cancelT(); cancel(); cancelA() }
+}
+
+// TestScreenshots writes the page as pictures at a phone's width (390×844
+// CSS pixels) and a desktop's (1280×900), whole pages, into
+// $KERMALUX_LIVE_SCREENSHOTS: the pairing form; the third "Release the
+// beam" of a seeded acceptance session (meters, trend lines, beam-on
+// time, results so far); and the end of the session (every result). It
+// is for looking at, so it runs only when asked.
 func TestScreenshots(t *testing.T) {
 	dir := os.Getenv("KERMALUX_LIVE_SCREENSHOTS")
 	if dir == "" {
 		t.Skip("set KERMALUX_LIVE_SCREENSHOTS=DIR to write the page's pictures")
 	}
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		t.Fatal(err)
+	}
 	exe := chromium(t)
-	hold := make(chan struct{})
-	var once bool
+	held, release := make(chan struct{}), make(chan struct{})
+	releases := 0
 	ls := startLive(t, nil, func(m panel.Message) {
-		// Hold the session with the beam on in the third field mode, so
-		// the picture shows results, meters and beam together.
-		if m.Action == panel.ActBeamOff && m.Level == panel.Good && strings.Contains(m.Text, "Release") && !once && os.Getenv("KERMALUX_LIVE_SCREENSHOT_END") == "" {
-			once = true
-			<-hold
+		if m.Action == panel.ActBeamOff && m.Level == panel.Good {
+			releases++
+			if releases == 3 {
+				close(held)
+				<-release
+			}
 		}
 	})
-	defer close(hold)
-	if os.Getenv("KERMALUX_LIVE_SCREENSHOT_END") != "" {
-		<-ls.done
-	} else {
-		time.Sleep(2 * time.Second)
-	}
-	for _, size := range []string{"390,844", "1280,900"} {
-		out := filepath.Join(dir, "live-"+strings.ReplaceAll(size, ",", "x")+".png")
-		args := append(chromiumFlags(t), "--hide-scrollbars", "--virtual-time-budget=4000", "--window-size="+size, "--screenshot="+out, ls.url+"/?token="+ls.token)
-		if b, err := exec.Command(exe, args...).CombinedOutput(); err != nil {
-			t.Fatalf("chromium --screenshot: %v\n%s", err, b)
+	ctx, cancel := browser(t, exe, 390, 844)
+	defer cancel()
+	sizes := []struct{ w, h int64 }{{390, 844}, {1280, 900}}
+	shoot := func(moment string) {
+		for _, sz := range sizes {
+			err := chromedp.Do(ctx, chromedp.EmulateViewport(sz.w, sz.h, chromedp.EmulateScale(1)),
+				chromedp.Sleep(300*time.Millisecond)) // let the layout settle at the new width
+			var png []byte
+			if err == nil {
+				png, err = chromedp.Run(ctx, chromedp.FullScreenshot(100))
+			}
+			if err != nil {
+				t.Fatalf("screenshot %s at %d×%d: %v", moment, sz.w, sz.h, err)
+			}
+			out := filepath.Join(dir, fmt.Sprintf("live-%s-%dx%d.png", moment, sz.w, sz.h))
+			if err := os.WriteFile(out, png, 0o644); err != nil {
+				t.Fatal(err)
+			}
+			t.Logf("wrote %s (%d bytes)", out, len(png))
 		}
-		t.Logf("wrote %s", out)
 	}
+	poll := func(what, expr string) {
+		if _, err := chromedp.Run(ctx, chromedp.Poll[bool](expr, chromedp.WithPollingTimeout(90*time.Second))); err != nil {
+			t.Fatalf("%s: the page never showed it (%s): %v", what, expr, err)
+		}
+	}
+	if err := chromedp.Do(ctx, chromedp.Navigate(ls.url+"/"), chromedp.WaitVisible(`input[name=code]`)); err != nil {
+		t.Fatalf("pairing page: %v", err)
+	}
+	shoot("pairing")
+	if err := chromedp.Do(ctx, chromedp.SendKeys(`input[name=code]`, ls.code), chromedp.Submit(`input[name=code]`), chromedp.WaitVisible(`#progress`)); err != nil {
+		t.Fatalf("pairing: %v", err)
+	}
+	select {
+	case <-held:
+	case err := <-ls.done:
+		t.Fatalf("session ended before the third release: %v", err)
+	}
+	poll("beam on", `document.querySelectorAll('#meters .meter').length >= 2 && document.getElementById('beam-state').textContent === 'BEAM ON'`)
+	shoot("beam")
+	close(release)
+	if err := <-ls.done; err != nil {
+		t.Fatal(err)
+	}
+	poll("the end", fmt.Sprintf(`document.querySelectorAll('#results tbody tr').length === %d`, len(ls.out.Summary.Results)))
+	shoot("end")
 }
