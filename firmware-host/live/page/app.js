@@ -25,12 +25,31 @@
     return e;
   }
   function clear(e) { while (e.firstChild) e.removeChild(e.firstChild); }
+  // expOf is the power of ten of v written with n+1 significant digits.
+  const expOf = (v, n) => Number(v.toExponential(n).split("e")[1]);
+  // fmt writes a number with four significant digits in fixed notation,
+  // trailing zeros kept, as the report does.
   function fmt(v) {
     if (typeof v !== "number" || !isFinite(v)) return "–";
-    const a = Math.abs(v);
-    if (a !== 0 && (a >= 1e5 || a < 1e-3)) return v.toExponential(3);
-    return String(Number(v.toPrecision(4)));
+    if (v === 0) return "0";
+    return v.toFixed(Math.min(Math.max(3 - expOf(v, 3), 0), 15));
   }
+  // pm writes v ± u with u rounded to two significant digits and v to the
+  // same decimal place, in fixed notation (JCGM 100:2008 7.2.6), as the
+  // report and the demo summary do; without an uncertainty, v alone.
+  function pm(v, u) {
+    if (typeof v !== "number" || !isFinite(v)) return "–";
+    if (typeof u !== "number" || !(u > 0) || !isFinite(u)) return fmt(v);
+    const e = expOf(u, 1);
+    if (e >= 2) {
+      const p = Math.pow(10, e - 1);
+      return (Math.round(v / p) * p).toFixed(0) + " ± " + (Math.round(u / p) * p).toFixed(0);
+    }
+    const d = Math.min(Math.max(1 - e, 0), 12);
+    return v.toFixed(d) + " ± " + u.toFixed(d);
+  }
+  // unitText: a dimensionless figure ("1") shows no unit symbol.
+  const unitText = (u) => (u && u !== "1" ? " " + u : "");
   function mmss(s) {
     s = Math.max(0, Math.floor(s));
     return Math.floor(s / 60) + ":" + String(s % 60).padStart(2, "0");
@@ -38,7 +57,8 @@
   function clock(wall) {
     if (!wall) return "";
     const d = new Date(wall);
-    return isNaN(d) ? "" : d.toLocaleTimeString([], { hour: "2-digit", minute: "2-digit", second: "2-digit" });
+    const two = (n) => String(n).padStart(2, "0");
+    return isNaN(d) ? "" : two(d.getHours()) + ":" + two(d.getMinutes()) + ":" + two(d.getSeconds());
   }
   const words = (s) => String(s || "").replace(/_/g, " ");
   function said(text, level, wall) {
@@ -141,8 +161,13 @@
   function nextText() {
     if (S.next) return S.next;
     if (!S.step) return S.steps.length ? S.steps[0].text : "–";
-    const n = S.steps[S.step];
-    return n ? (n.text || words(n.kind)) : "the end";
+    // What the operator will hear next: computing and judging are the
+    // board's own work, not a step anyone waits for.
+    for (let k = S.step; k < S.steps.length; k++) {
+      const n = S.steps[k];
+      if (n.kind !== "compute" && n.kind !== "judge") return n.text || words(n.kind);
+    }
+    return "the results, then the end";
   }
 
   function trend(hist) {
@@ -197,7 +222,8 @@
     if (!names.length) air.appendChild(el("p", "empty", "not entered yet"));
     for (const n of names) {
       const a = S.air[n];
-      const d = el("div", "", fmt(a.value) + " " + a.unit); d.dataset.air = n;
+      // As entered or read (the shortest form of six significant digits).
+      const d = el("div", "", String(Number(Number(a.value).toPrecision(6))) + " " + a.unit); d.dataset.air = n;
       d.appendChild(el("small", "", words(n) + " · " + (a.source || "")));
       air.appendChild(d);
     }
@@ -212,9 +238,10 @@
       for (const r of S.results) {
         const tr = el("tr"); tr.dataset.quantity = r.quantity;
         tr.appendChild(el("td", "q", words(r.quantity) + (r.field_mode ? ", " + r.field_mode : "")));
-        tr.appendChild(el("td", "num", fmt(r.value) + " ± " + fmt(r.expanded_uncertainty) + " " + (r.unit || "")));
+        tr.appendChild(el("td", "num", pm(r.value, r.expanded_uncertainty) + unitText(r.unit)));
         const vd = el("td"); vd.appendChild(el("span", "verdict " + (r.verdict || "info"), r.verdict || "info")); tr.appendChild(vd);
-        tr.appendChild(el("td", "dec", words(r.decided_by) + (r.calibrated === false ? " (not calibrated)" : "")));
+        const dec = words(r.decided_by);
+        tr.appendChild(el("td", "dec", dec + (r.calibrated === false && !/calibrated/.test(dec) ? " (not calibrated)" : "")));
         tb.appendChild(tr);
       }
       t.appendChild(tb); rs.appendChild(t);
