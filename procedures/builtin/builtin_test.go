@@ -43,20 +43,22 @@ func TestBuiltinsPass(t *testing.T) {
 // TestBuiltinCounts flattens each built-in with n field modes and checks
 // the number of steps against counts made by hand from the scripts:
 // pre-exposure-safety 2 (caution, checklist); air-density 2; meter-checks
-// 9 (both meters read together); conversion-factor 6 + 5n (safety 2, air 2, bench, dark; per mode
-// select, kv, light, factor, factor-check); luminance-uniformity 7;
-// contrast-ratio 11; input-kerma-rate 5 + 7n; acceptance 32 + 12n (the
-// once-includes of safety and air density inside the parts are skipped).
+// 9 (both meters read together); conversion-factor 10 + 5n (safety 2, air 2,
+// five set-up prompts of one action each, dark; per mode select, kv, light,
+// factor, factor-check); luminance-uniformity 9 (three set-up prompts);
+// contrast-ratio 13 (three); input-kerma-rate 8 + 7n (four); acceptance
+// 43 + 12n (the once-includes of safety and air density inside the parts
+// are skipped).
 func TestBuiltinCounts(t *testing.T) {
 	counts := map[string]func(n int) int{
 		"pre-exposure-safety":  func(int) int { return 2 },
 		"air-density":          func(int) int { return 2 },
 		"meter-checks":         func(int) int { return 9 },
-		"conversion-factor":    func(n int) int { return 6 + 5*n },
-		"luminance-uniformity": func(int) int { return 7 },
-		"contrast-ratio":       func(int) int { return 11 },
-		"input-kerma-rate":     func(n int) int { return 5 + 7*n },
-		"acceptance":           func(n int) int { return 32 + 12*n },
+		"conversion-factor":    func(n int) int { return 10 + 5*n },
+		"luminance-uniformity": func(int) int { return 9 },
+		"contrast-ratio":       func(int) int { return 13 },
+		"input-kerma-rate":     func(n int) int { return 8 + 7*n },
+		"acceptance":           func(n int) int { return 43 + 12*n },
 	}
 	modes := []string{"36 cm", "25 cm", "17 cm", "12 cm"}
 	for _, n := range builtin.Names() {

@@ -211,7 +211,7 @@ func (p *Panel) Ask(ctx context.Context, pr panel.Prompt) (panel.Response, error
 	defer p.askMu.Unlock()
 
 	if p.voice != nil {
-		p.voice.Say(speech.ForEar(spokenPrompt(pr)), pr.Level == panel.Alarm)
+		p.voice.Say(speech.PromptText(pr, true), pr.Level == panel.Alarm)
 	}
 	if p.beep != nil && !p.speaking() {
 		p.beep.beep(BeepPrompt, false)
@@ -240,15 +240,6 @@ func (p *Panel) Ask(ctx context.Context, pr panel.Prompt) (panel.Response, error
 		r.Value = pr.Value.Default
 	}
 	return r, nil
-}
-
-// spokenPrompt is what is said for a prompt: its words, and for a value
-// prompt the default a press will accept.
-func spokenPrompt(pr panel.Prompt) string {
-	if v := pr.Value; v != nil && v.HasDef {
-		return fmt.Sprintf("%s %g %s. Press to accept.", pr.Spoken(), v.Default, v.Unit)
-	}
-	return pr.Spoken()
 }
 
 // ledPattern is which LEDs are lit for each indicator.

@@ -246,7 +246,7 @@ func (p *Panel) Ask(ctx context.Context, pr panel.Prompt) (panel.Response, error
 	}
 	p.line(l.tag, l.color, pr.Text)
 	if p.opt.Voice != nil {
-		p.opt.Voice.Say(speech.ForEar(pr.Spoken()), pr.Level == panel.Alarm)
+		p.opt.Voice.Say(speech.PromptText(pr, false), pr.Level == panel.Alarm)
 	}
 	v := pr.Value
 	switch {
