@@ -16,6 +16,7 @@ import (
 	"net"
 	"net/http"
 	"strconv"
+	"strings"
 	"time"
 
 	"kermalux/firmware-host/journal/store"
@@ -83,27 +84,18 @@ func (h *handler) marks(w http.ResponseWriter, r *http.Request) {
 		return
 	}
 	defer h.release()
-	body, err := io.ReadAll(http.MaxBytesReader(w, r.Body, wire.MaxMarksBody))
+	body := http.MaxBytesReader(w, r.Body, wire.MaxMarksBody)
+	req, err := h.readMarks(r.Context(), body, r.RemoteAddr)
 	if err != nil {
 		var mbe *http.MaxBytesError
-		if errors.As(err, &mbe) {
+		switch {
+		case errors.As(err, &mbe):
 			refuse(w, http.StatusRequestEntityTooLarge, "too_large", fmt.Sprintf("marks request over %d bytes", wire.MaxMarksBody))
-			return
+		case store.IsRefusal(err):
+			h.storeError(w, r, err)
+		default:
+			refuse(w, http.StatusBadRequest, "malformed", fmt.Sprintf("marks request: %v", err))
 		}
-		refuse(w, http.StatusBadRequest, "malformed", fmt.Sprintf("marks request cut short: %v", err))
-		return
-	}
-	var req wire.MarksRequest
-	if err := json.Unmarshal(body, &req); err != nil {
-		refuse(w, http.StatusBadRequest, "malformed", fmt.Sprintf("marks request: %v", err))
-		return
-	}
-	if len(req.Sessions) > wire.MaxMarksSessions {
-		refuse(w, http.StatusBadRequest, "malformed", fmt.Sprintf("marks request for %d sessions, at most %d", len(req.Sessions), wire.MaxMarksSessions))
-		return
-	}
-	if _, err := store.ParseKey(req.Board); err != nil {
-		refuse(w, http.StatusBadRequest, "malformed", err.Error())
 		return
 	}
 	marks, err := h.st.Marks(r.Context(), req.Board, req.Sessions)
@@ -112,6 +104,118 @@ func (h *handler) marks(w http.ResponseWriter, r *http.Request) {
 		return
 	}
 	writeJSON(w, http.StatusOK, wire.MarksResponse{Store: h.st.ID(), Marks: marks})
+}
+
+// readMarks reads a marks request as a stream of JSON tokens: the board
+// key first, checked (enrolled, not revoked) before any session id is
+// read, then at most wire.MaxMarksSessions ids of at most wire.MaxString
+// bytes each. Memory stays bounded by what is asked, not by the body.
+func (h *handler) readMarks(ctx context.Context, body io.Reader, from string) (wire.MarksRequest, error) {
+	var req wire.MarksRequest
+	dec := json.NewDecoder(&shortTokens{r: body, max: wire.MaxString + 64})
+	str := func(what string) (string, error) {
+		tok, err := dec.Token()
+		if err != nil {
+			return "", fmt.Errorf("%s: %w", what, err)
+		}
+		v, ok := tok.(string)
+		if !ok || len(v) > wire.MaxString {
+			return "", fmt.Errorf("%s: expected a string of at most %d bytes, got %v", what, wire.MaxString, tok)
+		}
+		return v, nil
+	}
+	delim := func(want json.Delim, what string) error {
+		tok, err := dec.Token()
+		if err != nil {
+			return fmt.Errorf("%s: %w", what, err)
+		}
+		if d, ok := tok.(json.Delim); !ok || d != want {
+			return fmt.Errorf("%s: expected %q, got %v", what, want, tok)
+		}
+		return nil
+	}
+	if err := delim('{', "start"); err != nil {
+		return req, err
+	}
+	if k, err := str("first key"); err != nil || k != "board" {
+		return req, fmt.Errorf(`expected "board" as the first key (%q, %v)`, k, err)
+	}
+	var err error
+	if req.Board, err = str("board"); err != nil {
+		return req, err
+	}
+	pub, err := store.ParseKey(req.Board)
+	if err != nil {
+		return req, err
+	}
+	if err := h.st.CheckBoard(ctx, pub, from); err != nil {
+		return req, err
+	}
+	if k, err := str("second key"); err != nil || k != "sessions" {
+		return req, fmt.Errorf(`expected "sessions" after "board" (%q, %v)`, k, err)
+	}
+	switch tok, err := dec.Token(); {
+	case err != nil:
+		return req, fmt.Errorf("sessions: %w", err)
+	case tok == nil: // null: no sessions
+		if err := delim('}', "end"); err != nil {
+			return req, err
+		}
+		return req, nil
+	case tok != json.Delim('['):
+		return req, fmt.Errorf("sessions: expected a list, got %v", tok)
+	}
+	for dec.More() {
+		if len(req.Sessions) == wire.MaxMarksSessions {
+			return req, fmt.Errorf("more than %d sessions", wire.MaxMarksSessions)
+		}
+		id, err := str(fmt.Sprintf("session %d", len(req.Sessions)+1))
+		if err != nil {
+			return req, err
+		}
+		req.Sessions = append(req.Sessions, id)
+	}
+	if err := delim(']', "end of sessions"); err != nil {
+		return req, err
+	}
+	if err := delim('}', "end"); err != nil {
+		return req, err
+	}
+	if _, err := dec.Token(); !errors.Is(err, io.EOF) {
+		return req, errors.New("data after the request")
+	}
+	return req, nil
+}
+
+// shortTokens passes JSON text through while no run of bytes between
+// structural characters ({}[]:, outside strings) is longer than max: a
+// json.Decoder buffers a whole token (or a whole run of white space)
+// before it can be looked at, so a 60 MB string would be held whole.
+type shortTokens struct {
+	r        io.Reader
+	max, run int
+	inString bool
+	escaped  bool
+}
+
+func (s *shortTokens) Read(b []byte) (int, error) {
+	n, err := s.r.Read(b)
+	for _, c := range b[:n] {
+		switch {
+		case s.escaped:
+			s.escaped = false
+		case s.inString && c == '\\':
+			s.escaped = true
+		case c == '"':
+			s.inString, s.run = !s.inString, 0
+		case !s.inString && strings.IndexByte("{}[]:,", c) >= 0:
+			s.run = 0
+		}
+		if s.run++; s.run > s.max {
+			return 0, fmt.Errorf("a token or a run of white space longer than %d bytes", s.max)
+		}
+	}
+	return n, err
 }
 
 func (h *handler) push(w http.ResponseWriter, r *http.Request) {
@@ -233,10 +337,12 @@ func (h *handler) apply(ctx context.Context, rd *wire.Reader) (wire.PushResponse
 
 // decode reads segments from rd in a goroutine, verifying each one's
 // signature with the stream's board key (enrolled: checked from the
-// preamble), at most two ahead of the consumer. The error channel gets
+// preamble), at most one ahead of the consumer: a request holds at most
+// three decoded segments (one being read, one waiting, one being
+// stored), each at most wire.MaxSegmentBytes. The error channel gets
 // nil after the closing frame.
 func decode(ctx context.Context, rd *wire.Reader) (<-chan *wire.Segment, <-chan error) {
-	segs := make(chan *wire.Segment, 2)
+	segs := make(chan *wire.Segment, 1)
 	rerr := make(chan error, 1)
 	go func() {
 		defer close(segs)

@@ -47,7 +47,7 @@ const (
 	MaxString         = 1024    // bytes of a session id, kind, wall time or boot id
 	MaxPayload        = 1 << 20 // bytes of one record's payload
 	MaxSegmentRecords = 10000   // records in one segment
-	MaxSegmentBytes   = 4 << 20 // payload bytes in one segment
+	MaxSegmentBytes   = 4 << 20 // bytes of one segment's records (RecordBytes summed)
 	fingerprintSize   = 8       // bytes of each record's hash sent for naming a bad record
 	compressLevel     = 2       // DEFLATE level: see PROTOCOL.md, "Why DEFLATE"
 	segmentDomain     = "kermalux segment v2\x00"
@@ -188,19 +188,50 @@ func appendPreamble(b []byte, p Preamble) []byte {
 	return append(b, p.Kind)
 }
 
+// RecordBytes is what a record counts against MaxSegmentBytes: its
+// payload, kind, wall time and boot id, and a fixed 256 bytes for what a
+// reader holds beside them (the record itself, its hash in hex). Reader
+// and Writer count alike, so that what a writer sends is always read, and
+// a reader's memory for one segment is bounded by MaxSegmentBytes.
+func RecordBytes(r *journal.Record) int {
+	return len(r.Payload) + len(r.Kind) + len(r.Wall) + len(r.BootID) + recordOverhead
+}
+
+// recordOverhead is RecordBytes' fixed part: a decoded journal.Record
+// (about 150 bytes on 64-bit machines) and its 64-byte hex hash.
+const recordOverhead = 256
+
 // Segment writes recs (consecutive records of one session read from the
-// journal, with their stored hashes) as one signed segment and flushes it,
-// so that a receiver can store it before the rest arrives.
+// journal, with their stored hashes) as signed segments and flushes each,
+// so that a receiver can store it before the rest arrives: one segment,
+// or several when recs exceed MaxSegmentRecords or MaxSegmentBytes.
 func (w *Writer) Segment(recs []journal.Record) error {
 	if w.err != nil {
 		return w.err
 	}
-	if len(recs) == 0 {
-		return nil
+	for len(recs) > 0 {
+		n, size := 0, 0
+		for n < len(recs) && n < MaxSegmentRecords {
+			r := &recs[n]
+			if len(r.Payload) == 0 || len(r.Payload) > MaxPayload || len(r.Kind) > MaxString || len(r.Wall) > MaxString || len(r.BootID) > MaxString {
+				return fmt.Errorf("session %s record %d: payload of %d bytes (1..%d) or a kind, wall time or boot id over %d bytes: the stream cannot carry it",
+					r.Session, r.Seq, len(r.Payload), MaxPayload, MaxString)
+			}
+			if size += RecordBytes(r); size > MaxSegmentBytes && n > 0 {
+				break
+			}
+			n++
+		}
+		if err := w.segment(recs[:n]); err != nil {
+			return err
+		}
+		recs = recs[n:]
 	}
-	if len(recs) > MaxSegmentRecords {
-		return fmt.Errorf("segment of %d records: at most %d", len(recs), MaxSegmentRecords)
-	}
+	return nil
+}
+
+// segment writes recs, within the limits, as one signed segment.
+func (w *Writer) segment(recs []journal.Record) error {
 	session := recs[0].Session
 	prev, err := decodeHash(recs[0].Prev)
 	if err != nil {
@@ -431,9 +462,9 @@ func (r *Reader) Next() (*Segment, error) {
 		if err != nil {
 			return nil, r.readErr(fmt.Sprintf("%s record %d", where, seq), err)
 		}
-		bytesIn += len(rec.Payload)
+		bytesIn += RecordBytes(&rec)
 		if bytesIn > MaxSegmentBytes {
-			return nil, r.readErr(where, fmt.Errorf("%w: more than %d payload bytes in one segment", ErrCorrupt, MaxSegmentBytes))
+			return nil, r.readErr(where, fmt.Errorf("%w: more than %d bytes of records in one segment", ErrCorrupt, MaxSegmentBytes))
 		}
 		prevHex = rec.Hash
 		seg.Records = append(seg.Records, rec)

@@ -188,6 +188,67 @@ func TestCompactness(t *testing.T) {
 	}
 }
 
+// TestWriterSplitsSegments: records beyond a segment's limits (count or
+// bytes) are written as several signed segments that a reader takes, each
+// within the limits, and a record the stream cannot carry is refused by
+// the writer rather than sent to be refused by the receiver.
+func TestWriterSplitsSegments(t *testing.T) {
+	big := chain("s", 6)
+	for i := range big {
+		big[i].Payload = []byte(`{"note":"` + strings.Repeat("x", 900_000) + `"}`)
+	}
+	rechain(big)
+	for _, c := range []struct {
+		name string
+		recs []journal.Record
+		want int // segments
+	}{
+		{"count", chain("s", MaxSegmentRecords+5), 2},
+		{"bytes", big, 2}, // 4 records of 900 kB fit 4 MiB, not 5
+	} {
+		data := encode(t, KindPush, "x", c.recs)
+		segs, err := readAll(data, c.name)
+		if err != nil {
+			t.Fatalf("%s: %v", c.name, err)
+		}
+		n := 0
+		for _, s := range segs {
+			size := 0
+			for i := range s.Records {
+				size += RecordBytes(&s.Records[i])
+			}
+			if len(s.Records) > MaxSegmentRecords || size > MaxSegmentBytes {
+				t.Errorf("%s: segment %d holds %d records, %d bytes", c.name, s.Index, len(s.Records), size)
+			}
+			if err := s.Verify(newSeedSigner().PublicKey()); err != nil {
+				t.Errorf("%s: %v", c.name, err)
+			}
+			n += len(s.Records)
+		}
+		if len(segs) != c.want || n != len(c.recs) {
+			t.Errorf("%s: %d segments of %d records, want %d of %d", c.name, len(segs), n, c.want, len(c.recs))
+		}
+	}
+	huge := chain("s", 1)
+	huge[0].Payload = []byte(`{"note":"` + strings.Repeat("x", MaxPayload) + `"}`)
+	rechain(huge)
+	w, _ := NewWriter(io.Discard, KindPush, "x", newSeedSigner())
+	if err := w.Segment(huge); err == nil || !strings.Contains(err.Error(), "record 1") {
+		t.Errorf("a payload over %d bytes: %v, want a refusal naming record 1", MaxPayload, err)
+	}
+}
+
+// rechain recomputes the hashes of recs after their contents changed.
+func rechain(recs []journal.Record) {
+	for k := range recs {
+		if k > 0 {
+			recs[k].Prev = recs[k-1].Hash
+		}
+		h := recs[k].ComputeHash()
+		recs[k].Hash = hex.EncodeToString(h[:])
+	}
+}
+
 // FuzzRead feeds arbitrary bytes to the stream reader (push bodies and
 // bundles alike): it errors or decodes, never panics, and whatever it
 // decodes holds together (hashes recomputed, chain linked).
