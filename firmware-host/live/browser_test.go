@@ -114,15 +114,7 @@ func TestBrowserShowsSessionAtThreeMoments(t *testing.T) {
 			}
 		})
 
-	opts := []chromedp.ExecAllocatorOption{chromedp.ExecPath(exe)}
-	for _, f := range chromiumFlags(t) {
-		name, val, ok := strings.Cut(strings.TrimPrefix(f, "--"), "=")
-		if ok {
-			opts = append(opts, chromedp.Flag(name, val))
-		} else {
-			opts = append(opts, chromedp.Flag(name, true))
-		}
-	}
+	opts := chromiumOptions(t, exe)
 	opts = append(opts, chromedp.WindowSize(390, 844))
 	actx, cancelA := chromedp.NewExecAllocator(context.Background(), opts...)
 	defer cancelA()
@@ -250,8 +242,9 @@ func TestBrowserShowsSessionAtThreeMoments(t *testing.T) {
 	check3("after a reload")
 }
 
-// browser starts a headless chromium with a window of w×h pixels.
-func browser(t *testing.T, exe string, w, h int) (context.Context, context.CancelFunc) {
+// chromiumOptions are chromedp's allocator options for exe with the
+// flags chromiumFlags gives ("--name=value" or "--name").
+func chromiumOptions(t *testing.T, exe string) []chromedp.ExecAllocatorOption {
 	opts := []chromedp.ExecAllocatorOption{chromedp.ExecPath(exe)}
 	for _, f := range chromiumFlags(t) {
 		name, val, ok := strings.Cut(strings.TrimPrefix(f, "--"), "=")
@@ -261,6 +254,12 @@ func browser(t *testing.T, exe string, w, h int) (context.Context, context.Cance
 			opts = append(opts, chromedp.Flag(name, true))
 		}
 	}
+	return opts
+}
+
+// browser starts a headless chromium with a window of w×h pixels.
+func browser(t *testing.T, exe string, w, h int) (context.Context, context.CancelFunc) {
+	opts := chromiumOptions(t, exe)
 	opts = append(opts, chromedp.Flag("hide-scrollbars", true), chromedp.WindowSize(w, h))
 	actx, cancelA := chromedp.NewExecAllocator(context.Background(), opts...)
 	ctx, cancel := chromedp.NewContext(actx)
