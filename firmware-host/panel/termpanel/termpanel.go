@@ -9,7 +9,7 @@
 package termpanel
 
 import (
-	"bufio"
+	"bytes"
 	"context"
 	"errors"
 	"fmt"
@@ -47,14 +47,10 @@ type Options struct {
 
 // Panel is the terminal panel. Only one Ask may wait at a time.
 type Panel struct {
-	out  io.Writer
-	opt  Options
-	clk  clock.Clock
-	in   *bufio.Reader
-	once sync.Once
-
-	lines chan string
-	inErr error // set before lines is closed
+	out io.Writer
+	opt Options
+	clk clock.Clock
+	in  *input
 
 	mu        sync.Mutex
 	indicator panel.Indicator
@@ -69,7 +65,7 @@ func New(in io.Reader, out io.Writer, opt Options) *Panel {
 	if opt.Clock == nil {
 		opt.Clock = clock.NewReal()
 	}
-	return &Panel{out: out, opt: opt, clk: opt.Clock, in: bufio.NewReader(in), lines: make(chan string)}
+	return &Panel{out: out, opt: opt, clk: opt.Clock, in: newInput(in)}
 }
 
 // NewStdio returns a panel on standard input and output, with colour when
@@ -89,52 +85,159 @@ func isTerminal(f *os.File) bool {
 // ErrClosed is returned by calls after Close.
 var ErrClosed = errors.New("terminal panel: closed")
 
-// readLines feeds lines from the input to p.lines until end of input.
-func (p *Panel) readLines() {
-	for {
-		s, err := p.in.ReadString('\n')
-		if err != nil && s == "" {
-			if errors.Is(err, io.EOF) {
-				err = io.ErrUnexpectedEOF
-			}
-			p.inErr = err
-			close(p.lines)
-			return
-		}
-		p.lines <- strings.TrimRight(s, "\r\n")
+// Limits of what the input holds while nobody asks: lines beyond
+// maxQueued make the reader wait; a line longer than maxLine is cut (it
+// is no key and no number anyway).
+const (
+	maxQueued = 256
+	maxLine   = 4096
+)
+
+// input reads the keyboard in the background. Every chunk read is split
+// into lines and queued under one lock, so a discard drops all of what
+// has arrived, however it was split into reads.
+type input struct {
+	r     io.Reader
+	start sync.Once
+
+	mu      sync.Mutex
+	lines   []string      // complete lines not yet taken
+	partial []byte        // a line begun but not ended
+	stale   bool          // partial was begun before the last discard
+	err     error         // end of input, after the lines queued
+	wake    chan struct{} // cap 1: lines or err changed
+	room    chan struct{} // cap 1: lines were taken
+
+	// afterRead, when set (by tests, before the first read), is called
+	// with the number of bytes of each chunk once it is queued.
+	afterRead func(n int)
+}
+
+func newInput(r io.Reader) *input {
+	return &input{r: r, wake: make(chan struct{}, 1), room: make(chan struct{}, 1)}
+}
+
+func signal(c chan struct{}) {
+	select {
+	case c <- struct{}{}:
+	default:
 	}
 }
 
-// discardTypeAhead drops a line already read but not yet asked for.
-func (p *Panel) discardTypeAhead() {
-	p.once.Do(func() { go p.readLines() })
+// run reads until end of input, queueing complete lines.
+func (in *input) run() {
+	buf := make([]byte, 4096)
 	for {
-		select {
-		case _, ok := <-p.lines:
-			if !ok {
-				return
+		n, err := in.r.Read(buf)
+		in.mu.Lock()
+		in.split(buf[:n])
+		if err != nil {
+			if len(in.partial) > 0 && !in.stale {
+				in.lines = append(in.lines, strings.TrimRight(string(in.partial), "\r"))
 			}
-		default:
+			in.partial = nil
+			if errors.Is(err, io.EOF) {
+				err = io.ErrUnexpectedEOF
+			}
+			in.err = err
+		}
+		queued := len(in.lines)
+		in.mu.Unlock()
+		signal(in.wake)
+		if in.afterRead != nil {
+			in.afterRead(n)
+		}
+		if err != nil {
 			return
 		}
+		for full := queued >= maxQueued; full; {
+			<-in.room
+			in.mu.Lock()
+			full = len(in.lines) >= maxQueued
+			in.mu.Unlock()
+		}
+	}
+}
+
+// split queues the complete lines of data; in.mu is held.
+func (in *input) split(data []byte) {
+	for len(data) > 0 {
+		i := bytes.IndexByte(data, '\n')
+		if i < 0 {
+			in.partial = appendCut(in.partial, data)
+			return
+		}
+		line := appendCut(in.partial, data[:i])
+		in.partial = in.partial[:0]
+		data = data[i+1:]
+		if in.stale {
+			in.stale = false
+			continue
+		}
+		in.lines = append(in.lines, strings.TrimRight(string(line), "\r"))
+	}
+}
+
+func appendCut(b, more []byte) []byte {
+	if room := maxLine - len(b); len(more) > room {
+		more = more[:max(room, 0)]
+	}
+	return append(b, more...)
+}
+
+// discard drops every line that has arrived and not been taken, and the
+// line being typed.
+func (in *input) discard() {
+	in.start.Do(func() { go in.run() })
+	in.mu.Lock()
+	in.lines = in.lines[:0]
+	if len(in.partial) > 0 {
+		in.stale = true
+	}
+	in.mu.Unlock()
+	signal(in.room)
+}
+
+// next waits for one line or for ctx to end.
+func (in *input) next(ctx context.Context) (string, error) {
+	in.start.Do(func() { go in.run() })
+	for {
+		in.mu.Lock()
+		if len(in.lines) > 0 {
+			s := in.lines[0]
+			in.lines = in.lines[1:]
+			in.mu.Unlock()
+			signal(in.room)
+			return s, nil
+		}
+		err := in.err
+		in.mu.Unlock()
+		if err != nil {
+			return "", fmt.Errorf("terminal panel: reading the keyboard: input closed: %w", err)
+		}
+		select {
+		case <-ctx.Done():
+			return "", ctx.Err()
+		case <-in.wake:
+		}
+	}
+}
+
+// discardTypeAhead drops what was typed before a prompt appeared, when
+// the panel is set to.
+func (p *Panel) discardTypeAhead() {
+	if p.opt.DiscardTypeAhead {
+		p.in.discard()
 	}
 }
 
 // readLine waits for one line of input or for ctx to end.
 func (p *Panel) readLine(ctx context.Context) (string, error) {
-	p.once.Do(func() { go p.readLines() })
-	select {
-	case <-ctx.Done():
-		return "", ctx.Err()
-	case s, ok := <-p.lines:
-		if !ok {
-			return "", fmt.Errorf("terminal panel: reading the keyboard: input closed: %w", p.inErr)
-		}
-		if p.opt.Echo {
-			fmt.Fprintf(p.out, "%s\n", s)
-		}
-		return s, nil
+	s, err := p.in.next(ctx)
+	if err == nil && p.opt.Echo {
+		fmt.Fprintf(p.out, "%s\n", s)
 	}
+	return s, err
 }
 
 const (
@@ -234,9 +337,6 @@ func (p *Panel) Ask(ctx context.Context, pr panel.Prompt) (panel.Response, error
 	p.askMu.Lock()
 	defer p.askMu.Unlock()
 
-	if p.opt.DiscardTypeAhead {
-		p.discardTypeAhead()
-	}
 	if s := Progress(pr); s != "" {
 		fmt.Fprintf(p.out, "%s%s\n", indent, p.paint(ansiCyan, "["+s+"]"))
 	}
@@ -262,6 +362,9 @@ func (p *Panel) Ask(ctx context.Context, pr panel.Prompt) (panel.Response, error
 		fmt.Fprintf(p.out, "%s%s in %s, %s to %s; %s; a = again, r = retake, p = pause, q = abort\n",
 			indent, v.Name, v.Unit, fmtNum(v.Min), fmtNum(v.Max), def)
 	}
+	// Whatever was typed before the prompt was on the screen answers
+	// nothing.
+	p.discardTypeAhead()
 
 	for {
 		fmt.Fprint(p.out, "> ")
@@ -279,7 +382,9 @@ func (p *Panel) Ask(ctx context.Context, pr panel.Prompt) (panel.Response, error
 		case "a":
 			return p.answer(panel.Repeat, 0), nil
 		case "q":
-			fmt.Fprintf(p.out, "%sAbort the session? Type q again to abort, Enter to carry on.\n> ", indent)
+			fmt.Fprintf(p.out, "%sAbort the session? Type q again to abort, Enter to carry on.\n", indent)
+			p.discardTypeAhead()
+			fmt.Fprint(p.out, "> ")
 			s, err := p.readLine(ctx)
 			if err != nil {
 				fmt.Fprintln(p.out)

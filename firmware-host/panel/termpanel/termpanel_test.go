@@ -54,6 +54,7 @@ func temperature() *panel.ValueRequest {
 // TestDialogue runs a short session through the panel and compares the
 // screen with a golden dialogue.
 func TestDialogue(t *testing.T) {
+	t.Parallel()
 	input := strings.Join([]string{
 		"",      // apron: done
 		"x",     // not a key
@@ -129,6 +130,7 @@ func TestDialogue(t *testing.T) {
 }
 
 func TestColour(t *testing.T) {
+	t.Parallel()
 	for _, color := range []bool{false, true} {
 		var out bytes.Buffer
 		p := New(strings.NewReader(""), &out, Options{Clock: clock.NewManual(t0), Color: color})
@@ -142,6 +144,7 @@ func TestColour(t *testing.T) {
 }
 
 func TestParseValue(t *testing.T) {
+	t.Parallel()
 	v := temperature()
 	noDef := &panel.ValueRequest{Name: "diameter", Unit: "mm", Min: 5, Max: 50}
 	tests := []struct {
@@ -178,46 +181,148 @@ func TestParseValue(t *testing.T) {
 	}
 }
 
-func TestAskHonoursContext(t *testing.T) {
-	r, w := io.Pipe()
-	defer w.Close()
-	p := New(r, io.Discard, Options{Clock: clock.NewManual(t0)})
-	ctx, cancel := context.WithTimeout(context.Background(), 20*time.Millisecond)
-	defer cancel()
-	if _, err := p.Ask(ctx, panel.Prompt{}); !errors.Is(err, context.DeadlineExceeded) {
-		t.Errorf("err = %v, want DeadlineExceeded", err)
+// prompts is an output that reports each "> " the panel prints, the
+// moment it waits for a line.
+type prompts struct{ c chan struct{} }
+
+func newPrompts() prompts { return prompts{c: make(chan struct{}, 16)} }
+
+func (w prompts) Write(b []byte) (int, error) {
+	if string(b) == "> " {
+		w.c <- struct{}{}
+	}
+	return len(b), nil
+}
+
+// wait blocks until the panel shows its next "> ".
+func (w prompts) wait(t *testing.T) {
+	t.Helper()
+	select {
+	case <-w.c:
+	case <-time.After(10 * time.Second):
+		t.Fatal("the panel never showed its prompt")
 	}
 }
 
-func TestDiscardTypeAhead(t *testing.T) {
+func TestAskHonoursContext(t *testing.T) {
+	t.Parallel()
 	r, w := io.Pipe()
 	defer w.Close()
-	p := New(r, io.Discard, Options{Clock: clock.NewManual(t0), DiscardTypeAhead: true})
-	// Start the reader and type Enter before any prompt is shown.
-	p.discardTypeAhead()
-	// io.Pipe's Write returns once the reader has taken the bytes; the
-	// reader then only has to hand the line over.
-	if _, err := w.Write([]byte("\n")); err != nil {
-		t.Fatal(err)
-	}
-	time.Sleep(100 * time.Millisecond)
-	done := make(chan panel.Response)
+	out := newPrompts()
+	p := New(r, out, Options{Clock: clock.NewManual(t0)})
+	ctx, cancel := context.WithCancel(context.Background())
+	defer cancel()
 	go func() {
-		resp, _ := p.Ask(context.Background(), panel.Prompt{Message: panel.Message{Text: "Door warning light on?"}})
-		done <- resp
+		<-out.c
+		cancel()
 	}()
-	select {
-	case resp := <-done:
-		t.Fatalf("a stray Enter answered the prompt: %+v", resp)
-	case <-time.After(50 * time.Millisecond):
+	if _, err := p.Ask(ctx, panel.Prompt{}); !errors.Is(err, context.Canceled) {
+		t.Errorf("err = %v, want Canceled", err)
 	}
-	w.Write([]byte("r\n"))
-	if resp := <-done; resp.Answer != panel.Retake {
-		t.Errorf("got %q, want retake", resp.Answer)
+}
+
+// TestDiscardTypeAhead: lines typed before a prompt is on the screen
+// answer nothing, however the input split them into reads, and a line
+// being typed when the prompt appeared is dropped when it ends. Each
+// case waits until the panel has read every byte typed ahead (not for a
+// while), then until the prompt is shown, then types the real answer:
+// the answer Ask returns tells whether anything typed ahead got through.
+// Piped input (no discarding) is the control: there the first line typed
+// ahead is the answer.
+func TestDiscardTypeAhead(t *testing.T) {
+	t.Parallel()
+	tests := []struct {
+		name    string
+		ahead   []string // writes before the prompt, each read on its own
+		after   string   // typed once the prompt shows
+		discard bool
+		want    panel.Answer
+	}{
+		{"one Enter", []string{"\n"}, "r\n", true, panel.Retake},
+		{"three Enters in one read", []string{"\n\n\n"}, "r\n", true, panel.Retake},
+		{"three Enters in three reads", []string{"\n", "\n", "\n"}, "r\n", true, panel.Retake},
+		{"keys and CRLF", []string{"p\r\n", "q\r\nq\r\n"}, "r\r\n", true, panel.Retake},
+		{"a line begun before the prompt", []string{"\n", "pau"}, "se\nr\n", true, panel.Retake},
+		{"many lines in one read", []string{strings.Repeat("\n", 300)}, "r\n", true, panel.Retake},
+		{"piped input keeps them", []string{"\n"}, "r\n", false, panel.Ack},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			t.Parallel()
+			r, w := io.Pipe()
+			defer w.Close()
+			out := newPrompts()
+			p := New(r, out, Options{Clock: clock.NewManual(t0), DiscardTypeAhead: tc.discard})
+			read := make(chan int, 64)
+			p.in.afterRead = func(n int) { read <- n }
+			p.in.start.Do(func() { go p.in.run() })
+			for _, s := range tc.ahead {
+				// Write returns once the reader holds the bytes; afterRead
+				// says they are queued.
+				go func() { _, _ = w.Write([]byte(s)) }()
+				for got := 0; got < len(s); {
+					select {
+					case n := <-read:
+						got += n
+					case <-time.After(10 * time.Second):
+						t.Fatalf("the panel read %d of %d bytes typed ahead", got, len(s))
+					}
+				}
+			}
+			ctx, cancel := context.WithTimeout(context.Background(), 10*time.Second)
+			defer cancel()
+			done := make(chan panel.Response, 1)
+			errc := make(chan error, 1)
+			go func() {
+				resp, err := p.Ask(ctx, panel.Prompt{Message: panel.Message{Text: "Door warning light on?"}})
+				done <- resp
+				errc <- err
+			}()
+			out.wait(t)
+			go func() { _, _ = w.Write([]byte(tc.after)) }()
+			resp := <-done
+			if err := <-errc; err != nil {
+				t.Fatalf("Ask: %v (the answer typed after the prompt was lost)", err)
+			}
+			if resp.Answer != tc.want {
+				t.Errorf("answer %q, want %q", resp.Answer, tc.want)
+			}
+		})
+	}
+}
+
+// TestAbortConfirmationIgnoresTypeAhead: "q" typed twice in a row before
+// the confirmation is shown does not abort; the second q was typed
+// before anyone read the question.
+func TestAbortConfirmationIgnoresTypeAhead(t *testing.T) {
+	t.Parallel()
+	r, w := io.Pipe()
+	defer w.Close()
+	out := newPrompts()
+	p := New(r, out, Options{Clock: clock.NewManual(t0), DiscardTypeAhead: true})
+	ctx, cancel := context.WithTimeout(context.Background(), 10*time.Second)
+	defer cancel()
+	done := make(chan panel.Answer, 1)
+	go func() {
+		resp, err := p.Ask(ctx, panel.Prompt{Message: panel.Message{Text: "Select the 17 cm field."}})
+		if err != nil {
+			t.Error(err)
+		}
+		done <- resp.Answer
+	}()
+	out.wait(t)
+	go func() { _, _ = w.Write([]byte("q\nq\n")) }() // one read: both lines arrive together
+	out.wait(t)                                      // the confirmation
+	go func() { _, _ = w.Write([]byte("\n")) }()     // carry on
+	out.wait(t)                                      // asked again
+	go func() { _, _ = w.Write([]byte("r\n")) }()
+	if got := <-done; got != panel.Retake {
+		t.Errorf("answer %q, want retake (the q typed ahead must not confirm the abort)", got)
 	}
 }
 
 func TestProgress(t *testing.T) {
+	t.Parallel()
 	tests := []struct {
 		pr   panel.Prompt
 		want string
