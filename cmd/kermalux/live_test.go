@@ -20,16 +20,33 @@ import (
 	"kermalux/drivers/clock"
 )
 
-// syncBuffer is a bytes.Buffer safe for a writer and a reader at once.
+// syncBuffer is a bytes.Buffer safe for a writer and a reader at once;
+// Wrote tells of each write.
 type syncBuffer struct {
-	mu sync.Mutex
-	b  bytes.Buffer
+	mu    sync.Mutex
+	b     bytes.Buffer
+	wrote chan struct{}
+	once  sync.Once
 }
 
+func (s *syncBuffer) init() { s.once.Do(func() { s.wrote = make(chan struct{}, 1) }) }
+
 func (s *syncBuffer) Write(p []byte) (int, error) {
+	s.init()
 	s.mu.Lock()
 	defer s.mu.Unlock()
-	return s.b.Write(p)
+	n, err := s.b.Write(p)
+	select {
+	case s.wrote <- struct{}{}:
+	default:
+	}
+	return n, err
+}
+
+// Wrote is signalled after writes (several writes may share one signal).
+func (s *syncBuffer) Wrote() <-chan struct{} {
+	s.init()
+	return s.wrote
 }
 
 func (s *syncBuffer) String() string {
@@ -91,7 +108,7 @@ func TestRunLiveServesPairedPageOnly(t *testing.T) {
 		select {
 		case err := <-done:
 			t.Fatalf("run ended before the ready prompt: %v\n%s", err, errw.String())
-		case <-time.After(20 * time.Millisecond):
+		case <-errw.Wrote():
 		case <-ctx.Done():
 			t.Fatalf("no ready prompt with the live view:\n%s", errw.String())
 		}

@@ -7,7 +7,6 @@ import (
 	"math"
 	"os"
 	"path/filepath"
-	"slices"
 	"strings"
 	"sync"
 	"testing"
@@ -71,6 +70,7 @@ type scpiFake struct {
 	queue  []string
 	noUnit bool
 	mute   bool
+	read   chan struct{} // when set, told of each READ? that gets a reply
 }
 
 func (f *scpiFake) handle(d *linetest.Device, cmd string) {
@@ -97,6 +97,12 @@ func (f *scpiFake) handle(d *linetest.Device, cmd string) {
 			r = "1.0E-02"
 		}
 		d.Send(r + "\n")
+		if f.read != nil {
+			select {
+			case f.read <- struct{}{}:
+			default:
+			}
+		}
 	case "SYST:ERR?":
 		if len(f.queue) == 0 {
 			d.Send("0,\"No error\"\n")
@@ -220,17 +226,14 @@ func TestReadUnsupportedUnitQuery(t *testing.T) {
 
 // --count N gives up when the meter never answers, or is gone for good.
 func TestReadGivesUp(t *testing.T) {
-	f := &scpiFake{reads: []string{"1.0E-02"}}
+	f := &scpiFake{reads: []string{"1.0E-02"}, read: make(chan struct{}, 1)}
 	d := linetest.New(t, "ondrakel-DX2-30417", '\n', f.handle)
-	f.mu.Lock()
-	f.reads = []string{"1.0E-02"}
-	f.mu.Unlock()
 	done := make(chan readRun, 1)
 	go func() {
 		// Opened and identified, then the meter goes silent.
 		done <- runReadCmd(t, "--scpi", "--port", d.Link(), "--count", "5", "--give-up", "2s", "--unit", "MR/S", "--init", "")
 	}()
-	waitCommands(t, d, "READ?")
+	waitRead(t, f)
 	f.mu.Lock()
 	f.mute = true
 	f.mu.Unlock()
@@ -245,12 +248,12 @@ func TestReadGivesUp(t *testing.T) {
 	}
 
 	// Gone for good: pulled and never plugged back.
-	f2 := &scpiFake{reads: []string{"1.0E-02"}}
+	f2 := &scpiFake{reads: []string{"1.0E-02"}, read: make(chan struct{}, 1)}
 	d2 := linetest.New(t, "ondrakel-DX2-30418", '\n', f2.handle)
 	go func() {
 		done <- runReadCmd(t, "--scpi", "--port", d2.Link(), "--count", "5", "--give-up", "2s", "--unit", "MR/S")
 	}()
-	waitCommands(t, d2, "READ?")
+	waitRead(t, f2)
 	d2.Pull()
 	select {
 	case r := <-done:
@@ -262,15 +265,14 @@ func TestReadGivesUp(t *testing.T) {
 	}
 }
 
-func waitCommands(t *testing.T, d *linetest.Device, cmd string) {
+// waitRead waits until the fake has answered a READ?.
+func waitRead(t *testing.T, f *scpiFake) {
 	t.Helper()
-	for range 2000 {
-		if slices.Contains(d.Commands(), cmd) {
-			return
-		}
-		time.Sleep(5 * time.Millisecond)
+	select {
+	case <-f.read:
+	case <-time.After(60 * time.Second):
+		t.Fatal("the meter never got READ?")
 	}
-	t.Fatalf("the meter never got %s", cmd)
 }
 
 // --for on a healthy streaming meter ends cleanly: exit 0, nothing on

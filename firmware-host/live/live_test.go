@@ -131,6 +131,7 @@ func next(t *testing.T, ch <-chan sse) sse {
 // The page is read-only: every method but GET is refused on every path,
 // paired or not, before anything else is looked at.
 func TestEveryNonGETRefused(t *testing.T) {
+	t.Parallel()
 	r := newRig(t, 0)
 	c := r.paired(t)
 	for _, m := range []string{http.MethodPost, http.MethodPut, http.MethodPatch, http.MethodDelete, http.MethodHead, http.MethodOptions, http.MethodTrace, "START", "BEAM"} {
@@ -152,6 +153,7 @@ func TestEveryNonGETRefused(t *testing.T) {
 // events; wrong codes and tokens change nothing; too many wrong codes lock
 // pairing by code, while the printed token still pairs.
 func TestUnpairedClientRefused(t *testing.T) {
+	t.Parallel()
 	r := newRig(t, 0)
 	ctx := context.Background()
 	id, _ := r.j.Begin(ctx, entry.Session{Site: "Ostrelby General", Room: "Room 2"})
@@ -195,6 +197,7 @@ func TestUnpairedClientRefused(t *testing.T) {
 // they are appended; one that rejoins with Last-Event-ID gets only what it
 // missed, from the journal.
 func TestStreamAndCatchUp(t *testing.T) {
+	t.Parallel()
 	r := newRig(t, 0)
 	ctx := context.Background()
 	id, _ := r.j.Begin(ctx, entry.Session{Site: "Ostrelby General"})
@@ -250,6 +253,7 @@ func TestStreamAndCatchUp(t *testing.T) {
 
 // A subscriber that does not keep up is dropped; the publisher never waits.
 func TestSlowSubscriberDropped(t *testing.T) {
+	t.Parallel()
 	h := NewHub(4)
 	slow := h.Subscribe()
 	fast := h.Subscribe()

@@ -8,6 +8,7 @@ import (
 	"net/http/httptest"
 	"reflect"
 	"strconv"
+	"sync"
 	"sync/atomic"
 	"syscall"
 	"testing"
@@ -30,6 +31,12 @@ func watched(t testing.TB, o demo.SeededOptions, stalled bool) (*demo.SeededOutc
 	ctx, cancel := context.WithCancel(context.Background())
 	defer cancel()
 	ready := make(chan struct{})
+	// subscribed is closed once the server has answered the first
+	// request for the stream: it subscribes to the hub before it writes
+	// anything. progress tells of each event the browser reads.
+	subscribed := make(chan struct{})
+	var subscribedOnce sync.Once
+	progress := make(chan struct{}, 1)
 	o.Wrap = func(j engine.Journal, p panel.Panel, clk clock.Clock) (engine.Journal, panel.Panel) {
 		tj := NewJournal(j, hub, clk)
 		var err error
@@ -48,6 +55,7 @@ func watched(t testing.TB, o demo.SeededOptions, stalled bool) (*demo.SeededOutc
 		c := pairedClient(t, ts.URL, srv.Code())
 		if stalled {
 			stall(t, ts.URL, c)
+			close(subscribed)
 		} else {
 			// A browser: reads every event and, when dropped for falling
 			// behind, reconnects with Last-Event-ID as EventSource does.
@@ -59,12 +67,17 @@ func watched(t testing.TB, o demo.SeededOptions, stalled bool) (*demo.SeededOutc
 					if err != nil {
 						continue
 					}
+					subscribedOnce.Do(func() { close(subscribed) })
 					for ev := range stream(resp) {
 						if ev.id > 0 {
 							if ev.id != lastSeq.Load()+1 {
 								gaps.Add(1)
 							}
 							lastSeq.Store(ev.id)
+							select {
+							case progress <- struct{}{}:
+							default:
+							}
 						}
 					}
 					resp.Body.Close()
@@ -72,9 +85,13 @@ func watched(t testing.TB, o demo.SeededOptions, stalled bool) (*demo.SeededOutc
 				}
 			}()
 		}
-		// The stream is subscribed once the server has sent its hello.
-		for !hub.Watching() {
-			time.Sleep(time.Millisecond)
+		select {
+		case <-subscribed:
+		case <-time.After(20 * time.Second):
+			t.Fatal("the live view never answered the browser")
+		}
+		if !hub.Watching() {
+			t.Fatal("the live view answered the browser without subscribing it")
 		}
 		close(ready)
 		return tj, NewPanel(p, hub, clk)
@@ -87,9 +104,14 @@ func watched(t testing.TB, o demo.SeededOptions, stalled bool) (*demo.SeededOutc
 	if !stalled {
 		// The browser catches up with the whole journal.
 		envs, _ := out.Journal.Envelopes(context.Background(), out.Summary.Session)
-		deadline := time.Now().Add(20 * time.Second)
-		for lastSeq.Load() < int64(len(envs)) && time.Now().Before(deadline) {
-			time.Sleep(5 * time.Millisecond)
+		timeout := time.After(20 * time.Second)
+	catchUp:
+		for lastSeq.Load() < int64(len(envs)) {
+			select {
+			case <-progress:
+			case <-timeout:
+				break catchUp
+			}
 		}
 		if got := lastSeq.Load(); got != int64(len(envs)) || gaps.Load() != 0 {
 			t.Errorf("the browser reached record %d of %d with %d gaps (%d reconnects)", got, len(envs), gaps.Load(), reconnects.Load())
@@ -126,7 +148,8 @@ func (l smallSendBuffer) Accept() (net.Conn, error) {
 }
 
 // stall opens the event stream on a raw connection with a tiny receive
-// buffer and never reads it: a browser on a phone that went to sleep.
+// buffer and stops reading once it is answered: a browser on a phone that
+// went to sleep.
 func stall(t testing.TB, base string, c *http.Client) {
 	u := base[len("http://"):]
 	req, _ := http.NewRequest(http.MethodGet, base+"/events", nil)
@@ -145,7 +168,12 @@ func stall(t testing.TB, base string, c *http.Client) {
 	if err := req.Write(conn); err != nil {
 		t.Fatal(err)
 	}
-	// never read; closed with the test server
+	// One byte of the answer: the server subscribes to the hub before it
+	// writes anything. Nothing more is read; closed with the test server.
+	_ = conn.SetReadDeadline(time.Now().Add(20 * time.Second))
+	if _, err := conn.Read(make([]byte, 1)); err != nil {
+		t.Fatalf("the stalled browser got no answer: %v", err)
+	}
 }
 
 // The live view changes nothing that is measured: the same seeded session
