@@ -14,17 +14,16 @@ import (
 	"kermalux/drivers/serialline/linetest"
 )
 
-// waitFor polls cond (an event the port's reader makes happen) for up to
-// 10 s of real time; it asserts no timing, only that the event happens.
-func waitFor(t *testing.T, what string, cond func() bool) {
+// waitFor waits until cond (an event the port's reader makes happen)
+// holds, looking again at each of the reader's events, for up to 10 s of
+// real time; it asserts no timing, only that the event happens.
+func waitFor(t *testing.T, p *serialline.Port, what string, cond func() bool) {
 	t.Helper()
-	for i := 0; i < 2000; i++ {
-		if cond() {
-			return
-		}
-		time.Sleep(5 * time.Millisecond)
+	ctx, cancel := context.WithTimeout(context.Background(), 10*time.Second)
+	defer cancel()
+	if err := p.WaitFor(ctx, cond); err != nil {
+		t.Fatalf("never happened: %s (%v)", what, err)
 	}
-	t.Fatalf("never happened: %s", what)
 }
 
 // A line is stamped when it arrives, not when the caller gets round to
@@ -40,7 +39,7 @@ func TestLinesStampedOnArrival(t *testing.T) {
 	defer p.Close()
 	clk.Advance(1 * time.Second)
 	d.Send("L 1,00 cd/m2 S0\n")
-	waitFor(t, "the line queued", func() bool { return p.Buffered() == 1 })
+	waitFor(t, p, "the line queued", func() bool { return p.Buffered() == 1 })
 	clk.Advance(5 * time.Second)
 	l, err := p.ReadLine(context.Background())
 	if err != nil {
@@ -61,7 +60,7 @@ func TestQueueOverflowCounted(t *testing.T) {
 		fmt.Fprintf(&b, "line %d\n", i)
 	}
 	d.Send(b.String())
-	waitFor(t, "6 lines dropped", func() bool { return p.Overflows() == 6 })
+	waitFor(t, p, "6 lines dropped", func() bool { return p.Overflows() == 6 })
 	if n := p.Buffered(); n != 4 {
 		t.Errorf("%d lines held, want 4", n)
 	}

@@ -3,7 +3,6 @@ package serialline_test
 import (
 	"context"
 	"testing"
-	"time"
 
 	"kermalux/drivers/serialline"
 	"kermalux/drivers/serialline/linetest"
@@ -20,7 +19,7 @@ func TestDiscardDropsBacklogAndCutLine(t *testing.T) {
 	}
 	// A backlog: lines sent while nobody read, the last one still in progress.
 	d.Send("L 2,00 cd/m2 S0\nL 3,00 cd/m2 S0\nL 4,0")
-	time.Sleep(20 * time.Millisecond)
+	waitFor(t, p, "the backlog received", func() bool { return p.Buffered() == 2 })
 	p.Discard()
 	d.Send("0 cd/m2 S0\nL 5,00 cd/m2 S0\n")
 	l, err := p.ReadLine(context.Background())

@@ -4,7 +4,6 @@ import (
 	"bytes"
 	"io"
 	"log/slog"
-	"sync"
 	"testing"
 	"time"
 
@@ -24,7 +23,6 @@ func FuzzFrame(f *testing.F) {
 		cfg := Config{Port: "fuzz", ReceiveEnd: CRLF, MaxLine: 32, Buffer: 4096}
 		cfg.defaults()
 		p := &Port{cfg: cfg, term: '\n', clk: clock.NewReal(), log: slog.New(slog.NewTextHandler(io.Discard, nil)), notify: make(chan struct{}, 1)}
-		p.acked = sync.NewCond(&p.mu)
 		step := int(cut%16) + 1
 		p.mu.Lock()
 		for i := 0; i < len(data); i += step {

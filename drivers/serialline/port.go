@@ -86,17 +86,19 @@ type Port struct {
 	// mu guards what the reader shares: the device, the queue, the line
 	// in progress, the flush epoch, closed.
 	mu       sync.Mutex
-	acked    *sync.Cond // signalled when the reader starts a read or ends
+	flushed  chan struct{} // closed when the reader has done the flush asked for (epoch), or ended
 	dev      serial.Port
 	rd       *reader
 	closed   bool
-	queue    []event // FIFO, at most cfg.Buffer lines
-	partial  []byte  // the line in progress
-	skipping bool    // dropping the rest of a line (too long, or cut by a flush)
-	epoch    uint64  // incremented by Flush
-	ack      uint64  // the epoch the reader's current read started in
-	overflow uint64  // lines dropped because the queue was full
-	spilling bool    // an overflow was logged and the queue has not emptied since
+	queue    []event       // FIFO, at most cfg.Buffer lines
+	partial  []byte        // the line in progress
+	skipping bool          // dropping the rest of a line (too long, or cut by a flush)
+	epoch    uint64        // incremented by Flush: a flush of the device is asked for
+	ack      uint64        // the epoch the reader last emptied the device's input for
+	overflow uint64        // lines dropped because the queue was full
+	spilling bool          // an overflow was logged and the queue has not emptied since
+	received uint64        // bytes the reader has taken off the device, since Open
+	changed  chan struct{} // closed (and cleared) when the reader changes anything; made by a waiter
 	notify   chan struct{}
 
 	// The rest is the caller's.
@@ -121,7 +123,6 @@ func Open(ctx context.Context, cfg Config, opts Options) (*Port, error) {
 	cfg.defaults()
 	mode, _ := cfg.mode()
 	p := &Port{cfg: cfg, mode: mode, clk: opts.Clock, log: opts.Log, open: opts.OpenFunc, notify: make(chan struct{}, 1)}
-	p.acked = sync.NewCond(&p.mu)
 	if p.clk == nil {
 		p.clk = clock.NewReal()
 	}
@@ -260,20 +261,80 @@ func (p *Port) reopen() error {
 	return nil
 }
 
-// stopReader ends the background reader and closes its device.
+// stopWait bounds how long closing waits for the background reader to end
+// (it ends within one read slice unless the kernel holds its read).
+const stopWait = 2 * time.Second
+
+// stopReader ends the background reader and closes its device. It waits
+// at most stopWait: a reader held in the kernel is left to end on its own
+// (it drops whatever it reads then) rather than hanging the caller.
 func (p *Port) stopReader() {
 	p.mu.Lock()
 	rd := p.rd
 	p.rd, p.dev = nil, nil
+	p.wakeFlush()
 	p.mu.Unlock()
 	if rd == nil {
 		return
 	}
 	rd.stop.Store(true)
-	err := rd.dev.Close()
-	<-rd.done
-	if err != nil {
-		p.log.Debug("serial: closing", "port", p.cfg.Port, "err", err)
+	closed := make(chan error, 1)
+	go func() { closed <- rd.dev.Close() }()
+	t := time.NewTimer(stopWait)
+	defer t.Stop()
+	select {
+	case <-rd.done:
+	case <-t.C:
+		p.log.Warn("serial: the reader did not stop; leaving it", "port", p.cfg.Port, "waited", stopWait)
+		return
+	}
+	select {
+	case err := <-closed:
+		if err != nil {
+			p.log.Debug("serial: closing", "port", p.cfg.Port, "err", err)
+		}
+	case <-t.C:
+		p.log.Warn("serial: closing the device did not finish", "port", p.cfg.Port, "waited", stopWait)
+	}
+}
+
+// changedLocked tells those watching the reader (tests, through
+// waitChange) that something changed. The caller holds p.mu.
+func (p *Port) changedLocked() {
+	if p.changed != nil {
+		close(p.changed)
+		p.changed = nil
+	}
+}
+
+// waitChange waits until cond holds, looking again each time the
+// background reader changes something (bytes read, a line queued, a flush
+// taken, the device gone), or until ctx ends. cond must not be called
+// with p.mu held; it may take it.
+func (p *Port) waitChange(ctx context.Context, cond func() bool) error {
+	for {
+		p.mu.Lock()
+		if p.changed == nil {
+			p.changed = make(chan struct{})
+		}
+		ch := p.changed
+		p.mu.Unlock()
+		if cond() {
+			return nil
+		}
+		select {
+		case <-ch:
+		case <-ctx.Done():
+			return ctx.Err()
+		}
+	}
+}
+
+// wakeFlush releases a flush waiting for the reader. The caller holds p.mu.
+func (p *Port) wakeFlush() {
+	if p.flushed != nil {
+		close(p.flushed)
+		p.flushed = nil
 	}
 }
 
@@ -360,12 +421,20 @@ func (p *Port) WriteLine(ctx context.Context, s string) error {
 }
 
 // Flush discards input received but not yet read, in this Port's queue and
-// in the operating system's. It waits (at most one read slice) until the
-// background reader has begun a read after the call, so that nothing that
-// arrived before the call is returned afterwards. A line that was in
-// progress is dropped up to its end.
+// in the operating system's. It waits (about one read slice, at most
+// flushWait) until the background reader has emptied the device's input
+// and begun a read after the call, so that nothing that arrived before the
+// call is returned afterwards. A line that was in progress is dropped up
+// to its end.
 func (p *Port) Flush() {
-	p.flush(false)
+	_ = p.FlushContext(context.Background())
+}
+
+// FlushContext is Flush ending early with ctx; it returns ctx's error, or
+// an error when the reader did not take the flush within flushWait (the
+// queue is emptied all the same).
+func (p *Port) FlushContext(ctx context.Context) error {
+	return p.flush(ctx, false)
 }
 
 // Discard drops input received but not yet read, like Flush, and also the
@@ -376,25 +445,44 @@ func (p *Port) Flush() {
 // between two lines, the first whole line after it is dropped too: one
 // reading lost is better than a garbled one.
 func (p *Port) Discard() {
-	p.flush(true)
+	_ = p.flush(context.Background(), true)
 }
 
-func (p *Port) flush(skip bool) {
+// flushWait bounds a flush's wait for the background reader.
+const flushWait = 2 * time.Second
+
+// flush asks the background reader to empty the device's input and waits
+// until it has. Only the reader touches the device's input: emptying it
+// from here while the reader sat between its poll (readable) and its read
+// left that read blocked in the kernel with nothing to read, and the
+// flush waiting for it for ever.
+func (p *Port) flush(ctx context.Context, skip bool) error {
 	p.mu.Lock()
-	defer p.mu.Unlock()
 	p.epoch++
 	p.skipping = skip || p.skipping || len(p.partial) > 0
 	p.queue, p.partial = p.queue[:0], p.partial[:0]
 	p.spilling = false
-	if p.dev != nil {
-		_ = p.dev.ResetInputBuffer()
+	if p.rd == nil || p.rd.exited {
+		p.ack = p.epoch
+		p.mu.Unlock()
+		return nil
 	}
-	for rd := p.rd; rd != nil && !rd.exited && p.ack != p.epoch && p.rd == rd; {
-		p.acked.Wait()
+	if p.flushed == nil {
+		p.flushed = make(chan struct{})
 	}
-	// The reader may have taken the flushed bytes into its line before
-	// the epoch turned; the wait made sure they were thrown away.
-	p.queue = p.queue[:0]
+	done := p.flushed
+	p.mu.Unlock()
+	t := time.NewTimer(flushWait)
+	defer t.Stop()
+	select {
+	case <-done:
+		return nil
+	case <-ctx.Done():
+		return fmt.Errorf("serial port %s: flushing input: %w", p.cfg.Port, ctx.Err())
+	case <-t.C:
+		p.log.Warn("serial: the reader did not take a flush", "port", p.cfg.Port, "waited", flushWait)
+		return fmt.Errorf("serial port %s: flushing input: %w: the reader did not empty the input within %v", p.cfg.Port, drivers.ErrTimeout, flushWait)
+	}
 }
 
 // RealTimeout converts a duration of a meter's clock (a scaled clock in the
@@ -421,17 +509,34 @@ func (p *Port) readLoop(rd *reader) {
 	defer func() {
 		p.mu.Lock()
 		rd.exited = true
-		p.acked.Broadcast()
+		if p.rd == rd || p.rd == nil {
+			p.wakeFlush()
+		}
+		p.changedLocked()
 		p.mu.Unlock()
 		close(rd.done)
 	}()
 	buf := make([]byte, 4096)
 	for !rd.stop.Load() {
+		// A flush asked for: empty the device's input here, between two
+		// reads, then tell the flush. What the read in progress at the
+		// flush brought in was dropped below (its epoch is past).
 		p.mu.Lock()
 		ep := p.epoch
-		p.ack = ep
-		p.acked.Broadcast()
+		reset := p.ack != ep
 		p.mu.Unlock()
+		if reset {
+			if err := rd.dev.ResetInputBuffer(); err != nil {
+				p.log.Debug("serial: cannot flush input", "port", p.cfg.Port, "err", err)
+			}
+			p.mu.Lock()
+			p.ack = ep
+			if p.epoch == ep && p.rd == rd {
+				p.wakeFlush()
+			}
+			p.changedLocked()
+			p.mu.Unlock()
+		}
 		if err := rd.dev.SetReadTimeout(slice); err != nil {
 			p.gone(rd, fmt.Errorf("setting read timeout: %w", err))
 			return
@@ -462,9 +567,11 @@ func (p *Port) readLoop(rd *reader) {
 			continue
 		}
 		p.mu.Lock()
+		p.received += uint64(n)
 		if p.epoch == ep && p.rd == rd {
 			p.frame(buf[:n], mono, wall)
 		}
+		p.changedLocked()
 		p.mu.Unlock()
 	}
 }
@@ -475,6 +582,7 @@ func (p *Port) gone(rd *reader, err error) {
 	if p.rd == rd {
 		p.queue = append(p.queue, event{err: err, gone: true})
 	}
+	p.changedLocked()
 	p.mu.Unlock()
 	p.wake()
 }

@@ -46,9 +46,13 @@ func TestFraming(t *testing.T) {
 		t.Run(tc.name, func(t *testing.T) {
 			d := linetest.New(t, "dev", '\n', nil)
 			p := open(t, d, serialline.Config{ReceiveEnd: tc.end})
+			// Each chunk is taken off the line before the next is sent,
+			// so lines really arrive split.
+			sent := 0
 			for _, c := range tc.chunks {
 				d.Send(c)
-				time.Sleep(5 * time.Millisecond)
+				sent += len(c)
+				waitFor(t, p, "the chunk received", func() bool { return p.Received() >= uint64(sent) })
 			}
 			for _, w := range tc.want {
 				l, err := p.ReadLine(context.Background())
@@ -78,9 +82,11 @@ func TestWriteFraming(t *testing.T) {
 		if err := p2.WriteLine(context.Background(), "ID?"); err != nil {
 			t.Fatal(err)
 		}
-		deadline := time.Now().Add(time.Second)
-		for len(d2.Commands()) == 0 && time.Now().Before(deadline) {
-			time.Sleep(5 * time.Millisecond)
+		ctx, cancel := context.WithTimeout(context.Background(), 10*time.Second)
+		err := d2.WaitCommands(ctx, 1)
+		cancel()
+		if err != nil {
+			t.Errorf("%s: %v", tc.end, err)
 		}
 		if c := d2.Commands(); len(c) != 1 || c[0] != "ID?" {
 			t.Errorf("%s: device got %q, want [ID?]", tc.end, c)
@@ -179,7 +185,11 @@ func TestPulledCable(t *testing.T) {
 		t.Fatalf("replug reused %s", first)
 	}
 	d.Send("stale\n") // sent before the client reopened: must not pass as fresh
-	time.Sleep(20 * time.Millisecond)
+	ctx, cancel := context.WithTimeout(context.Background(), 10*time.Second)
+	defer cancel()
+	if err := d.WaitQueued(ctx, len("stale\n")); err != nil {
+		t.Fatal(err)
+	}
 	var ok bool
 	for range 50 {
 		if err := p.Ensure(context.Background()); err == nil {

@@ -7,13 +7,16 @@
 package linetest
 
 import (
+	"context"
 	"errors"
+	"fmt"
 	"os"
 	"path/filepath"
 	"sync"
 	"syscall"
 	"testing"
 	"time"
+	"unsafe"
 
 	"github.com/creack/pty"
 	"golang.org/x/term"
@@ -30,14 +33,15 @@ type Device struct {
 	cmdEnd  byte
 	handler Handler
 
-	mu     sync.Mutex
-	master *os.File // non-blocking dup of the pty master
-	tty    *os.File // held open so the master never reads EIO
-	stop   chan struct{}
-	done   chan struct{}
-	cmds   []string
-	pairs  int
-	last   string // the previous slave's name
+	mu      sync.Mutex
+	master  *os.File // non-blocking dup of the pty master
+	tty     *os.File // held open so the master never reads EIO
+	stop    chan struct{}
+	done    chan struct{}
+	cmds    []string
+	pairs   int
+	last    string        // the previous slave's name
+	changed chan struct{} // closed (and cleared) when a command comes in; made by a waiter
 }
 
 // New makes a device whose link is <t.TempDir()>/by-id/<name>. Commands
@@ -149,6 +153,12 @@ func (d *Device) serve(master *os.File, stop, done chan struct{}) {
 				if d.handler != nil {
 					d.handler(d, cmd)
 				}
+				d.mu.Lock()
+				if d.changed != nil {
+					close(d.changed)
+					d.changed = nil
+				}
+				d.mu.Unlock()
 				continue
 			}
 			if c == '\r' || c == '\n' {
@@ -160,7 +170,81 @@ func (d *Device) serve(master *os.File, stop, done chan struct{}) {
 			if errors.Is(err, os.ErrClosed) {
 				return
 			}
-			time.Sleep(5 * time.Millisecond) // EIO while no client: wait for one
+			// EIO while no client: look again shortly, or stop.
+			t := time.NewTimer(5 * time.Millisecond)
+			select {
+			case <-stop:
+				t.Stop()
+				return
+			case <-t.C:
+			}
+		}
+	}
+}
+
+// WaitFor waits until cond holds, looking again each time the device
+// receives a command (and answered it), or until ctx ends. cond may call
+// the Device's methods.
+func (d *Device) WaitFor(ctx context.Context, cond func() bool) error {
+	for {
+		d.mu.Lock()
+		if d.changed == nil {
+			d.changed = make(chan struct{})
+		}
+		ch := d.changed
+		d.mu.Unlock()
+		if cond() {
+			return nil
+		}
+		select {
+		case <-ch:
+		case <-ctx.Done():
+			return fmt.Errorf("linetest %s: waiting for the device: %w", d.link, ctx.Err())
+		}
+	}
+}
+
+// WaitCommands waits until the device has received at least n commands.
+func (d *Device) WaitCommands(ctx context.Context, n int) error {
+	return d.WaitFor(ctx, func() bool { return len(d.Commands()) >= n })
+}
+
+// Queued returns how many bytes wait in the client side's input queue
+// (TIOCINQ on the pty slave): what Send wrote that the kernel has passed
+// on and nobody has read yet.
+func (d *Device) Queued() (int, error) {
+	d.mu.Lock()
+	tty := d.tty
+	d.mu.Unlock()
+	if tty == nil {
+		return 0, fmt.Errorf("linetest %s: unplugged", d.link)
+	}
+	var n int32
+	if _, _, e := syscall.Syscall(syscall.SYS_IOCTL, tty.Fd(), syscall.TIOCINQ, uintptr(unsafe.Pointer(&n))); e != 0 {
+		return 0, fmt.Errorf("linetest %s: TIOCINQ: %w", d.link, e)
+	}
+	return int(n), nil
+}
+
+// WaitQueued waits until at least n bytes wait in the client side's input
+// queue (the pty passes what the master wrote on asynchronously), or
+// until ctx ends. The kernel gives no event for it, so it looks every
+// millisecond.
+func (d *Device) WaitQueued(ctx context.Context, n int) error {
+	t := time.NewTicker(time.Millisecond)
+	defer t.Stop()
+	for {
+		q, err := d.Queued()
+		if err != nil {
+			return err
+		}
+		if q >= n {
+			return nil
+		}
+		select {
+		case <-t.C:
+		case <-ctx.Done():
+			return fmt.Errorf("linetest %s: waiting for %d bytes queued (have %d): %w", d.link, n, q, ctx.Err())
 		}
 	}
 }
