@@ -115,3 +115,53 @@ func (c *Manual) Sleep(ctx context.Context, d time.Duration) error {
 	}
 	return nil
 }
+
+// Cadence paces a loop on a fixed schedule of a Clock: the n-th tick is
+// at start + n·period (start is the first Wait), not at the end of the
+// previous wait plus a period, so the time the work between two ticks
+// takes, a loaded host or a timer that fires late (a scaled clock turns a
+// millisecond of real lateness into many of its own) does not slow the
+// loop down: it runs once a period of the clock's time on average. A tick
+// missed by more than a period is not made up in a burst: Wait returns at
+// once and the schedule goes on from the last grid point passed.
+type Cadence struct {
+	clk     Clock
+	period  time.Duration
+	next    time.Duration // the clock's Mono of the next tick
+	started bool
+}
+
+// NewCadence returns a cadence of period on clk; its first Wait returns
+// at once and starts the schedule.
+func NewCadence(clk Clock, period time.Duration) *Cadence {
+	return &Cadence{clk: clk, period: period}
+}
+
+// Period returns the cadence's period.
+func (c *Cadence) Period() time.Duration { return c.period }
+
+// Wait waits for the next tick or until ctx ends. A tick already passed
+// returns at once. Use a Cadence from one goroutine.
+func (c *Cadence) Wait(ctx context.Context) error {
+	now := c.clk.Mono()
+	if !c.started || c.period <= 0 {
+		c.started = true
+		c.next = now + c.period
+		return ctx.Err()
+	}
+	if late := now - c.next; late >= 0 {
+		// On time or late: tick now; the next one stays on the grid
+		// (one period after the last grid point passed).
+		c.next += (late/c.period + 1) * c.period
+		return ctx.Err()
+	}
+	if err := c.clk.Sleep(ctx, c.next-now); err != nil {
+		return err
+	}
+	c.next += c.period
+	return nil
+}
+
+// Reset starts the schedule again at the next Wait (which returns at
+// once).
+func (c *Cadence) Reset() { c.started = false }
