@@ -1,11 +1,13 @@
 // Package poller reads a polled meter in the background: a goroutine asks
-// the meter at its own pace (the dialect's Read waits out the meter's
-// update period) and queues each reading, stamped when its reply arrived,
-// in a bounded queue. The caller then takes readings as a streaming
-// meter's: every one the meter gave, whatever the caller was doing in the
-// meantime, so the number of samples per second of the meter's clock does
-// not depend on how fast the host is (a slow journal write, a loaded
-// board, the demo's scaled clock).
+// the meter at its own pace (the dialect's Read waits for the meter's next
+// update, on a fixed schedule of the meter's clock: clock.Cadence) and
+// queues each reading, stamped when its reply arrived, in a bounded queue.
+// The caller then takes readings as a streaming meter's: every one the
+// meter gave, whatever the caller was doing in the meantime, so the number
+// of samples per second of the meter's clock does not depend on how fast
+// the host is (a slow journal write, a loaded board, the demo's scaled
+// clock). Polling pauses only while the queue is full, so no reading is
+// dropped and each keeps the time it arrived.
 package poller
 
 import (
@@ -20,7 +22,8 @@ import (
 )
 
 // DefaultSize is the queue's length when New is given 0: at 10 readings a
-// second, 25 s of readings.
+// second, 25 s of readings; then polling pauses until the caller takes one
+// or discards them.
 const DefaultSize = 256
 
 // errorPause is the least real time between two reads when the first
@@ -36,30 +39,26 @@ type item struct {
 type Poller struct {
 	read func(context.Context) (drivers.Reading, error)
 	size int
-	idle time.Duration
 	log  *slog.Logger
 	name string
 
-	turn    sync.Mutex // held by the goroutine for each read; Exclusive takes it
-	mu      sync.Mutex
-	queue   []item
-	lost    uint64
-	active  bool      // the caller is taking readings
-	waiters int       // callers blocked in Next: polling never pauses under them
-	last    time.Time // when the caller last asked for one
-	wake    chan struct{}
-	notify  chan struct{}
-	cancel  context.CancelFunc
-	done    chan struct{}
+	turn   sync.Mutex // held by the goroutine for each read; Exclusive takes it
+	mu     sync.Mutex
+	queue  []item
+	full   bool          // the queue filled and polling paused (logged once a time)
+	room   chan struct{} // a token when the caller made room in the queue
+	notify chan struct{}
+	cancel context.CancelFunc
+	done   chan struct{}
 }
 
-// New starts polling with read (a dialect's own Read). size bounds the
-// queue (DefaultSize when 0); when it is full the oldest reading is
-// dropped and counted (Lost). Polling runs while the caller takes
-// readings: when it has asked for none for idle (real time; a few of the
-// meter's periods), polling pauses, and the next Next drops what was
-// queued and waits for a reading asked after it, as a direct query would.
-func New(name string, read func(context.Context) (drivers.Reading, error), size int, idle time.Duration, log *slog.Logger) *Poller {
+// New starts polling with read (a dialect's own Read, which paces itself
+// on the meter's update period). size bounds the queue (DefaultSize when
+// 0): while it is full polling pauses, and it goes on as soon as the
+// caller takes a reading or discards them (Discard), so every reading is
+// kept with the time its reply arrived. A caller back from elsewhere that
+// wants only fresh readings calls Discard first.
+func New(name string, read func(context.Context) (drivers.Reading, error), size int, log *slog.Logger) *Poller {
 	if size <= 0 {
 		size = DefaultSize
 	}
@@ -67,7 +66,7 @@ func New(name string, read func(context.Context) (drivers.Reading, error), size 
 		log = slog.Default()
 	}
 	ctx, cancel := context.WithCancel(context.Background())
-	p := &Poller{read: read, size: size, idle: idle, log: log, name: name, notify: make(chan struct{}, 1), wake: make(chan struct{}, 1), cancel: cancel, done: make(chan struct{})}
+	p := &Poller{read: read, size: size, log: log, name: name, notify: make(chan struct{}, 1), room: make(chan struct{}, 1), cancel: cancel, done: make(chan struct{})}
 	go p.loop(ctx)
 	return p
 }
@@ -76,16 +75,17 @@ func (p *Poller) loop(ctx context.Context) {
 	defer close(p.done)
 	for ctx.Err() == nil {
 		p.mu.Lock()
-		if p.active && p.waiters == 0 && time.Since(p.last) > p.idle {
-			p.active = false
+		full := len(p.queue) >= p.size
+		if full && !p.full {
+			p.full = true
+			p.log.Debug("meter readings not taken; polling paused until there is room", "meter", p.name, "queued", len(p.queue))
 		}
-		active := p.active
 		p.mu.Unlock()
-		if !active {
+		if full {
 			select {
 			case <-ctx.Done():
 				return
-			case <-p.wake:
+			case <-p.room:
 			}
 			continue
 		}
@@ -113,16 +113,9 @@ func (p *Poller) loop(ctx context.Context) {
 	}
 }
 
+// push queues a reading; the loop asks for one only when there is room.
 func (p *Poller) push(it item) {
 	p.mu.Lock()
-	if len(p.queue) >= p.size {
-		copy(p.queue, p.queue[1:])
-		p.queue = p.queue[:len(p.queue)-1]
-		p.lost++
-		if p.lost == 1 || p.lost%1000 == 0 {
-			p.log.Warn("meter readings not taken in time; dropping the oldest", "meter", p.name, "dropped", p.lost)
-		}
-	}
 	p.queue = append(p.queue, it)
 	p.mu.Unlock()
 	select {
@@ -131,27 +124,19 @@ func (p *Poller) push(it item) {
 	}
 }
 
+// roomMade tells a paused loop that the queue has room. The caller holds
+// p.mu.
+func (p *Poller) roomMade() {
+	p.full = false
+	select {
+	case p.room <- struct{}{}:
+	default:
+	}
+}
+
 // Next returns the oldest queued reading (or the error the read gave),
 // waiting for one until ctx ends.
 func (p *Poller) Next(ctx context.Context) (drivers.Reading, error) {
-	p.mu.Lock()
-	p.last = time.Now()
-	if !p.active {
-		// Back after a pause: what is queued is old.
-		p.active = true
-		p.queue = p.queue[:0]
-		select {
-		case p.wake <- struct{}{}:
-		default:
-		}
-	}
-	p.waiters++
-	p.mu.Unlock()
-	defer func() {
-		p.mu.Lock()
-		p.waiters--
-		p.mu.Unlock()
-	}()
 	for {
 		p.mu.Lock()
 		if len(p.queue) > 0 {
@@ -159,6 +144,7 @@ func (p *Poller) Next(ctx context.Context) (drivers.Reading, error) {
 			n := copy(p.queue, p.queue[1:])
 			p.queue[n] = item{}
 			p.queue = p.queue[:n]
+			p.roomMade()
 			p.mu.Unlock()
 			return it.r, it.err
 		}
@@ -182,20 +168,15 @@ func (p *Poller) Pending() int {
 	return len(p.queue)
 }
 
-// Lost counts the readings dropped because the queue was full.
-func (p *Poller) Lost() uint64 {
-	p.mu.Lock()
-	defer p.mu.Unlock()
-	return p.lost
-}
-
 // Discard drops the queued readings and waits until the read in progress
 // (which may have been asked before the call) is over and dropped too, so
 // the next reading is one asked after the call (drivers.Freshener).
 func (p *Poller) Discard() {
 	p.turn.Lock()
 	p.mu.Lock()
+	clear(p.queue)
 	p.queue = p.queue[:0]
+	p.roomMade()
 	p.mu.Unlock()
 	p.turn.Unlock()
 }

@@ -38,12 +38,11 @@ type Meter struct {
 	port *serialline.Port
 	opts Options
 
-	gen       uint64        // port generation the set-up was done for
-	reconnect bool          // the next reading is the first after a reconnection
-	dirty     bool          // a reply may be pending after an error: flush first
-	streaming bool          // the start command has been acknowledged
-	asked     bool          // a polled meter has been queried
-	lastAsk   time.Duration // when, on the meter's clock
+	gen       uint64         // port generation the set-up was done for
+	reconnect bool           // the next reading is the first after a reconnection
+	dirty     bool           // a reply may be pending after an error: flush first
+	streaming bool           // the start command has been acknowledged
+	cadence   *clock.Cadence // when a polled meter is asked, on its clock
 
 	id      drivers.Identity // the identity first seen on the link
 	idKnown bool
@@ -78,13 +77,13 @@ func Open(ctx context.Context, p *Profile, port string, opts Options) (*Meter, e
 	if err != nil {
 		return nil, fmt.Errorf("%s (%s): %w", opts.Name, p.Name, err)
 	}
-	m := &Meter{p: p, port: sp, opts: opts}
+	m := &Meter{p: p, port: sp, opts: opts, cadence: clock.NewCadence(opts.Clock, p.Period)}
 	if err := m.prepare(ctx); err != nil {
 		sp.Close()
 		return nil, err
 	}
 	if opts.Background && p.Mode == Polled {
-		m.bg = poller.New(opts.Name, m.read, 0, serialline.RealTimeout(opts.Clock, 5*p.Period), opts.Log)
+		m.bg = poller.New(opts.Name, m.read, 0, opts.Log)
 	}
 	return m, nil
 }
@@ -276,15 +275,12 @@ func (m *Meter) read(ctx context.Context) (drivers.Reading, error) {
 	)
 	switch m.p.Mode {
 	case Polled:
-		// Not more often than the meter updates (its clock's time).
-		if m.asked {
-			if wait := m.lastAsk + m.p.Period - m.opts.Clock.Mono(); wait > 0 {
-				if err := m.opts.Clock.Sleep(ctx, wait); err != nil {
-					return drivers.Reading{}, err
-				}
-			}
+		// Once a period of the meter's clock, on a fixed schedule, so
+		// that late timers (a loaded host, a scaled clock) and slow
+		// replies do not lower the rate of readings.
+		if err := m.cadence.Wait(ctx); err != nil {
+			return drivers.Reading{}, err
 		}
-		m.lastAsk, m.asked = m.opts.Clock.Mono(), true
 		if m.dirty {
 			m.port.Flush() // a late reply to an earlier query is not fresh
 			m.dirty = false

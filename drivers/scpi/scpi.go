@@ -147,11 +147,10 @@ type Meter struct {
 	gen       uint64
 	reconnect bool
 	dirty     bool
-	unit      string        // as the meter spells it
-	ourUnit   string        // as package units spells it
-	asked     bool          // queried at least once
-	lastAsk   time.Duration // when, on the meter's clock
-	sinceUnit int           // readings since the unit was last checked
+	unit      string         // as the meter spells it
+	ourUnit   string         // as package units spells it
+	cadence   *clock.Cadence // when the meter is asked, on its clock
+	sinceUnit int            // readings since the unit was last checked
 
 	id      drivers.Identity // the identity first seen on the link
 	idKnown bool
@@ -190,7 +189,11 @@ func Open(ctx context.Context, port string, cfg Config, opts ...Option) (*Meter,
 	if err != nil {
 		return nil, fmt.Errorf("%s (SCPI): %w", o.name, err)
 	}
-	m := &Meter{cfg: cfg, port: sp, o: o}
+	period := cfg.Period
+	if period <= 0 {
+		period = 100 * time.Millisecond
+	}
+	m := &Meter{cfg: cfg, port: sp, o: o, cadence: clock.NewCadence(o.clk, period)}
 	if cfg.Unit != "" {
 		if err := m.setUnit(cfg.Unit); err != nil {
 			sp.Close()
@@ -202,11 +205,7 @@ func Open(ctx context.Context, port string, cfg Config, opts ...Option) (*Meter,
 		return nil, err
 	}
 	if o.background {
-		period := cfg.Period
-		if period <= 0 {
-			period = 100 * time.Millisecond
-		}
-		m.bg = poller.New(o.name, m.read, 0, serialline.RealTimeout(o.clk, 5*period), o.log)
+		m.bg = poller.New(o.name, m.read, 0, o.log)
 	}
 	return m, nil
 }
@@ -589,18 +588,11 @@ func (m *Meter) read(ctx context.Context) (drivers.Reading, error) {
 	if err := m.prepare(ctx); err != nil {
 		return drivers.Reading{}, err
 	}
-	period := m.cfg.Period
-	if period <= 0 {
-		period = 100 * time.Millisecond
+	// Once a period of the meter's clock, on a fixed schedule (late
+	// timers and slow replies do not lower the rate of readings).
+	if err := m.cadence.Wait(ctx); err != nil {
+		return drivers.Reading{}, err
 	}
-	if m.asked {
-		if wait := m.lastAsk + period - m.o.clk.Mono(); wait > 0 {
-			if err := m.o.clk.Sleep(ctx, wait); err != nil {
-				return drivers.Reading{}, err
-			}
-		}
-	}
-	m.lastAsk, m.asked = m.o.clk.Mono(), true
 	if m.dirty {
 		m.port.Flush()
 		m.dirty = false
