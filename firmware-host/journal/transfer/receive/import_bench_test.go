@@ -49,12 +49,21 @@ func fleetSession(k int, rng *rand.Rand) []journal.Record {
 			ExpUnc: 0.035 * g, K: 2, Verdict: "pass", Calibrated: true})
 	}
 	add(entry.KindSessionEnd, entry.SessionEnd{Finished: start.Add(time.Hour), Steps: 3, Outcome: "complete"})
+	return chain(id, start, time.Minute, "8f6001d7-2449-477c-a949-26ea910c4d7a", payloads)
+}
+
+// chain makes records of session id from payloads, one every step from
+// start, linked by hash as a board's journal links them.
+func chain(id string, start time.Time, step time.Duration, boot string, payloads []struct {
+	kind entry.Kind
+	v    any
+}) []journal.Record {
 	prev := journal.ZeroHash()
 	recs := make([]journal.Record, len(payloads))
 	for i, p := range payloads {
 		body, _ := json.Marshal(p.v)
-		recs[i] = journal.Record{Seq: int64(i + 1), Session: id, Kind: p.kind, Wall: start.Add(time.Duration(i) * time.Minute).Format(journal.WallFormat),
-			Mono: int64(i) * int64(time.Minute), BootID: "8f6001d7-2449-477c-a949-26ea910c4d7a", Payload: body, Prev: prev}
+		recs[i] = journal.Record{Seq: int64(i + 1), Session: id, Kind: p.kind, Wall: start.Add(time.Duration(i) * step).Format(journal.WallFormat),
+			Mono: int64(i) * int64(step), BootID: boot, Payload: body, Prev: prev}
 		h := recs[i].ComputeHash()
 		recs[i].Hash = hex.EncodeToString(h[:])
 		prev = recs[i].Hash
