@@ -3,6 +3,7 @@ package journal
 import (
 	"bytes"
 	"context"
+	"crypto/ed25519"
 	"encoding/json"
 	"os"
 	"path/filepath"
@@ -37,40 +38,57 @@ func FuzzCanonicalPayload(f *testing.F) {
 	})
 }
 
-// FuzzRecordCheck: Check never panics on arbitrary record JSON.
+// strangerKey is a board key whose private half nobody has: the public
+// half of a key made from a fixed seed, the private half dropped. (Not the
+// all-zero key: it is a point of small order, under which an all-zero
+// signature verifies for about one message in four, RFC 8032 section
+// 5.1.7 leaving such keys to the application.)
+func strangerKey() ed25519.PublicKey {
+	seed := bytes.Repeat([]byte{0x5a}, ed25519.SeedSize)
+	return ed25519.NewKeyFromSeed(seed).Public().(ed25519.PublicKey)
+}
+
+// FuzzRecordCheck: Check never panics on arbitrary record JSON and never
+// passes a record for one signed by a key nobody holds.
 func FuzzRecordCheck(f *testing.F) {
 	f.Add([]byte(`{"seq":1,"session":"s","kind":"event","wall":"2026-01-01T00:00:00Z","payload":{},"prev":"00","hash":"","sig":""}`))
 	f.Add([]byte(`{}`))
-	pub := make([]byte, 32)
+	pub := strangerKey()
 	f.Fuzz(func(t *testing.T, data []byte) {
 		var r Record
 		if json.Unmarshal(data, &r) != nil {
 			return
 		}
 		if r.Check(pub) == nil {
-			t.Fatalf("a record verified against the all-zero key: %s", data)
+			t.Fatalf("a record verified against a key nobody holds: %s", data)
 		}
 	})
 }
 
 // FuzzReadMark: a mark file of arbitrary bytes never passes for a mark
-// signed by the all-zero key, and never panics.
+// signed by a key nobody holds, and never panics. The corpus under
+// testdata keeps an all-zero signature that the all-zero key (used here
+// before) accepted.
 func FuzzReadMark(f *testing.F) {
 	f.Add([]byte(`{"v":1,"n":2,"session":"s","seq":3,"hash":"` + strings.Repeat("0", 64) + `","sig":"` + strings.Repeat("0", 128) + `"}`))
 	f.Add([]byte{})
 	f.Add(bytes.Repeat([]byte{' '}, 2*markSlot))
-	pub := make([]byte, 32)
+	pub := strangerKey()
 	f.Fuzz(func(t *testing.T, data []byte) {
 		if m, err := parseMark(data, pub); err == nil && m != nil {
-			t.Fatalf("a mark verified against the all-zero key: %q", data)
+			t.Fatalf("a mark verified against a key nobody holds: %q", data)
 		}
 	})
 }
 
-// FuzzVerifyFile: journal verify on a journal file of arbitrary bytes
-// (seeded with a real journal and cut or flipped copies) never panics,
-// never errors on a file it could open, and never calls a file good that
-// is not the real journal.
+// FuzzVerifyFile: journal verify on a damaged journal file never panics
+// and never calls a file good that is not the real journal. The fuzzer
+// edits a real journal (about 40 KB: SQLite's pages) rather than writing
+// whole files: an input is where to cut it (0: not cut), where to write
+// and what, so inputs stay a few bytes long (the fuzzer's minimiser runs
+// a number of inputs that grows with the square of an input's length)
+// and yet reach every byte of the file; a patch longer than the file
+// replaces it whole.
 func FuzzVerifyFile(f *testing.F) {
 	ctx := context.Background()
 	dir := f.TempDir()
@@ -82,11 +100,25 @@ func FuzzVerifyFile(f *testing.F) {
 	journaltest.WriteSession(ctx, j, id, 2, true, nil)
 	j.Close()
 	good, _ := os.ReadFile(filepath.Join(dir, "seed.db"))
-	f.Add(good)
-	f.Add(good[:len(good)/2])
-	f.Add([]byte("SQLite format 3\x00"))
-	f.Fuzz(func(t *testing.T, data []byte) {
-		p := filepath.Join(dir, "fuzz.db")
+	f.Add(uint32(0), uint32(0), []byte{})                                                   // the journal as written (good, but no mark beside it)
+	f.Add(uint32(len(good)/2), uint32(0), []byte{})                                         // cut in half
+	f.Add(uint32(16), uint32(0), []byte{})                                                  // the SQLite header's magic alone
+	f.Add(uint32(0), uint32(len(good)-100), []byte{0xff})                                   // a byte flipped near the end
+	f.Add(uint32(0), uint32(100), []byte{0, 0, 0, 0})                                       // the header's counters zeroed
+	f.Add(uint32(0), uint32(0), append([]byte("SQLite format 3\x00"), make([]byte, 84)...)) // the 100-byte header replaced by a bare one
+	buf := make([]byte, 0, 2*len(good))
+	p := filepath.Join(dir, "fuzz.db")
+	f.Fuzz(func(t *testing.T, cut, at uint32, patch []byte) {
+		data := append(buf[:0], good...)
+		if cut > 0 && int(cut) < len(data) {
+			data = data[:cut]
+		}
+		if len(patch) >= len(good) {
+			data = append(data[:0], patch...)
+		} else if len(data) > 0 {
+			off := int(at % uint32(len(data)))
+			data = append(data[:off], append(patch, data[min(off+len(patch), len(data)):]...)...)
+		}
 		os.Remove(p + "-wal")
 		os.Remove(p + "-shm")
 		if err := os.WriteFile(p, data, 0o600); err != nil {
@@ -101,8 +133,11 @@ func FuzzVerifyFile(f *testing.F) {
 }
 
 // FuzzCheckSession: the checks Verify and a resume run on a session's
-// records, fed records decoded from arbitrary JSON (seeded with a real
-// session), never panic and never pass a session the board did not sign.
+// records never panic and never pass a session the board did not sign.
+// The fuzzer edits a real session's records rather than writing their
+// JSON whole (inputs stay short, see FuzzVerifyFile): an input drops,
+// repeats or swaps record i, or writes patch into its JSON text at at,
+// over drop bytes; a patch that is itself a record's JSON replaces it.
 func FuzzCheckSession(f *testing.F) {
 	ctx := context.Background()
 	dir := f.TempDir()
@@ -115,16 +150,56 @@ func FuzzCheckSession(f *testing.F) {
 	recs, _ := j.Records(ctx, id, 0, 0)
 	pub := j.PublicKey()
 	j.Close()
-	seed, _ := json.Marshal(recs)
-	f.Add(seed)
-	f.Add([]byte(`[]`))
-	f.Fuzz(func(t *testing.T, data []byte) {
-		var rs []Record
-		if json.Unmarshal(data, &rs) != nil {
-			return
+	texts := make([][]byte, len(recs))
+	for i, r := range recs {
+		texts[i], _ = json.Marshal(r)
+	}
+	const (
+		opPatch = iota
+		opDrop
+		opRepeat
+		opSwap
+		ops
+	)
+	f.Add(uint8(opPatch), uint8(0), uint16(0), uint8(0), []byte{})     // the session as written
+	f.Add(uint8(opDrop), uint8(3), uint16(0), uint8(0), []byte{})      // a record missing
+	f.Add(uint8(opRepeat), uint8(2), uint16(0), uint8(0), []byte{})    // a record twice
+	f.Add(uint8(opSwap), uint8(4), uint16(0), uint8(0), []byte{})      // two records swapped
+	f.Add(uint8(opPatch), uint8(1), uint16(8), uint8(1), []byte("9"))  // a sequence number changed
+	f.Add(uint8(opPatch), uint8(5), uint16(40), uint8(2), []byte("1")) // a byte of the payload
+	f.Add(uint8(opPatch), uint8(0), uint16(0), uint8(0), []byte(`{"seq":1,"session":"s","kind":"session","payload":{}}`))
+	f.Fuzz(func(t *testing.T, op, i uint8, at uint16, drop uint8, patch []byte) {
+		k := int(i) % len(texts)
+		edited := make([][]byte, 0, len(texts)+1)
+		for n, text := range texts {
+			switch {
+			case n != k:
+				edited = append(edited, text)
+			case op%ops == opDrop:
+			case op%ops == opRepeat:
+				edited = append(edited, text, text)
+			case op%ops == opSwap && n+1 < len(texts):
+				edited = append(edited, texts[n+1], text)
+				edited = append(edited, texts[n+2:]...)
+				goto decode
+			case op%ops == opPatch && json.Valid(patch) && len(patch) > 0 && patch[0] == '{':
+				edited = append(edited, patch)
+			default:
+				off := int(at) % (len(text) + 1)
+				end := min(off+int(drop), len(text))
+				edited = append(edited, append(append(append([]byte{}, text[:off]...), patch...), text[end:]...))
+			}
 		}
-		p := CheckSession(pub, rs)
-		if p == nil && !bytes.Equal(data, seed) {
+	decode:
+		var rs []Record
+		for _, text := range edited {
+			var r Record
+			if json.Unmarshal(text, &r) != nil {
+				return
+			}
+			rs = append(rs, r)
+		}
+		if CheckSession(pub, rs) == nil {
 			// Passing records must be the board's: each signed by it.
 			for _, r := range rs {
 				if r.Check(pub) != nil {

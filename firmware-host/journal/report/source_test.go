@@ -5,6 +5,7 @@ import (
 	"context"
 	"encoding/json"
 	"path/filepath"
+	"slices"
 	"strings"
 	"testing"
 
@@ -133,21 +134,38 @@ func FuzzReadExport(f *testing.F) {
 	})
 }
 
-// FuzzBuild feeds arbitrary payloads to each kind of record: Build either
+// FuzzBuild feeds damaged payloads to each kind of record: Build either
 // refuses with an error naming the record or yields a report that renders.
+// An input edits the sample session's record i: it writes patch into the
+// payload's JSON text at at, over drop bytes, or, when patch is itself a
+// JSON value, replaces the payload with it. Inputs stay short (the
+// fuzzer's minimiser runs a number of inputs that grows with the square of
+// an input's length) and yet reach every byte of every payload.
 func FuzzBuild(f *testing.F) {
 	envs := sampleSession()
 	for _, i := range []int{0, 5, 20, 40, len(envs) - 1} {
-		f.Add(i, []byte(envs[i].Payload))
+		f.Add(i, uint16(0), uint8(0), []byte{})           // the record as it is
+		f.Add(i, uint16(10), uint8(3), []byte(`"x"`))     // a value of another type
+		f.Add(i, uint16(0), uint8(0), []byte(`{"id":1}`)) // replaced whole
 	}
-	f.Add(3, []byte(`{"position":"up 9e999r"}`))
-	f.Fuzz(func(t *testing.T, i int, payload []byte) {
-		envs := sampleSession()
+	f.Add(3, uint16(0), uint8(0), []byte(`{"position":"up 9e999r"}`))
+	f.Add(3, uint16(0), uint8(0), []byte(`{"name":""}`))
+	// The session is made once; each input edits a copy of its slice
+	// (Build does not write into payloads).
+	f.Fuzz(func(t *testing.T, i int, at uint16, drop uint8, patch []byte) {
+		envs := slices.Clone(envs)
 		if i < 0 {
 			i = -i
 		}
 		i %= len(envs)
-		envs[i].Payload = payload
+		if json.Valid(patch) {
+			envs[i].Payload = patch
+		} else {
+			old := envs[i].Payload
+			off := int(at) % (len(old) + 1)
+			end := min(off+int(drop), len(old))
+			envs[i].Payload = append(append(append([]byte{}, old[:off]...), patch...), old[end:]...)
+		}
 		r, err := Build(envs)
 		if err != nil {
 			return
