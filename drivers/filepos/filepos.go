@@ -7,7 +7,6 @@
 package filepos
 
 import (
-	"errors"
 	"fmt"
 	"strings"
 )
@@ -48,11 +47,3 @@ func (e *Error) Error() string {
 
 // Unwrap returns the cause.
 func (e *Error) Unwrap() error { return e.Err }
-
-// At returns the first *Error in err's chain, so a caller can read the
-// line without parsing the message.
-func At(err error) (*Error, bool) {
-	var fe *Error
-	ok := errors.As(err, &fe)
-	return fe, ok
-}

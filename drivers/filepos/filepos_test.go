@@ -26,17 +26,18 @@ func TestErrorText(t *testing.T) {
 	}
 }
 
-func TestUnwrapAndAt(t *testing.T) {
+// A caller reads the position with errors.As, through any wrapping.
+func TestUnwrapAndAs(t *testing.T) {
 	fe := &Error{File: "s.yaml", Line: 7, Msg: "bad", Err: fs.ErrPermission}
 	wrapped := fmt.Errorf("loading bench: %w", fe)
 	if !errors.Is(wrapped, fs.ErrPermission) {
 		t.Error("the cause is lost through Unwrap")
 	}
-	got, ok := At(wrapped)
-	if !ok || got.Line != 7 {
-		t.Errorf("At: %v %v", got, ok)
+	var got *Error
+	if !errors.As(wrapped, &got) || got.Line != 7 {
+		t.Errorf("errors.As: %v", got)
 	}
-	if _, ok := At(errors.New("plain")); ok {
-		t.Error("At found a position in a plain error")
+	if errors.As(errors.New("plain"), &got) {
+		t.Error("errors.As found a position in a plain error")
 	}
 }

@@ -1,6 +1,7 @@
 package bench
 
 import (
+	"errors"
 	"strings"
 	"testing"
 
@@ -50,8 +51,8 @@ func TestBenchSemanticErrors(t *testing.T) {
 			if err == nil {
 				t.Fatal("accepted")
 			}
-			fe, ok := filepos.At(err)
-			if !ok {
+			var fe *filepos.Error
+			if !errors.As(err, &fe) {
 				t.Fatalf("no position in %q", err)
 			}
 			if fe.File != "room2.yaml" || fe.Line != c.line-boolInt(c.name == "site control" || c.name == "bell") {

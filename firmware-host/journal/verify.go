@@ -92,12 +92,6 @@ func Verify(ctx context.Context, path string) (Report, error) {
 	return VerifyWith(ctx, path, VerifyOptions{})
 }
 
-// VerifyKey is Verify, additionally requiring the journal to be signed by
-// pub (when not nil), e.g. the key enrolled for the board.
-func VerifyKey(ctx context.Context, path string, pub ed25519.PublicKey) (Report, error) {
-	return VerifyWith(ctx, path, VerifyOptions{Key: pub})
-}
-
 // VerifyOptions add outside references to what Verify compares the
 // journal with.
 type VerifyOptions struct {

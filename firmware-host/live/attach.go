@@ -93,12 +93,6 @@ func (v *View) Close() error {
 // Addr is the address listened on (with the port chosen for ":0").
 func (v *View) Addr() net.Addr { return v.ln.Addr() }
 
-// Code is the pairing code; Token the pairing token (after Wrap).
-func (v *View) Code() string { return v.srv.Code() }
-
-// Token is the pairing token, to be printed once.
-func (v *View) Token() string { return v.srv.Token() }
-
 // URLs are the addresses a browser on the board's link can open: the host
 // listened on, or, for an unspecified host (":8471"), each of the
 // machine's own non-loopback IPv4 addresses (and the loopback one when it

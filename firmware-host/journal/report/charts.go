@@ -76,31 +76,6 @@ type chartSpec struct {
 	w, h                 vg.Length
 }
 
-// MapChart draws the luminance map of the output face: the face as a
-// circle, each position where it was read, coloured and labelled by its
-// fraction of the centre luminance.
-func MapChart(m LuminanceMap) (Chart, error) { return both(mapSpec(m)) }
-
-// ProfileChart draws the radial luminance profile: the mean fraction of
-// centre at each radius, with the spread over directions as bars.
-func ProfileChart(m LuminanceMap) (Chart, error) { return both(profileSpec(m)) }
-
-// ConversionChart draws the conversion factor per field mode with its
-// expanded uncertainty as error bars.
-func ConversionChart(results []Result) (Chart, error) { return both(conversionSpec(results)) }
-
-// TrendChart draws one trend: each session's value with its expanded
-// uncertainty, the least-squares line extended to the projected crossing,
-// the action level and the projected date.
-func TrendChart(t Trend) (Chart, error) { return both(trendSpec(t)) }
-
-func both(s chartSpec, err error) (Chart, error) {
-	if err != nil {
-		return Chart{}, err
-	}
-	return s.render(true, true)
-}
-
 // render draws the chart as SVG and/or PNG.
 func (s chartSpec) render(svg, png bool) (Chart, error) {
 	p, name, w, h := s.p, s.name, s.w, s.h

@@ -1,12 +1,9 @@
 // Package compose builds the panel a bench asks for: the board's GPIO panel
 // with speech, or a terminal panel with optional speech, from one Config
-// (the bench file maps onto it). Multi mirrors one panel's output onto
-// others, e.g. a terminal that shows what the board says.
+// (the bench file maps onto it).
 package compose
 
 import (
-	"context"
-	"errors"
 	"fmt"
 	"io"
 	"log/slog"
@@ -99,60 +96,4 @@ func Open(cfg Config, clk clock.Clock, term Terminal, log *slog.Logger) (panel.P
 	}
 	closeVoice()
 	return nil, fmt.Errorf("panel kind %q: want %q or %q", cfg.Kind, KindGPIO, KindTerminal)
-}
-
-// Multi is a panel that asks through Primary and shows everything (messages,
-// prompts as messages, indicators) on the Mirrors too. A failing mirror
-// does not stop the primary: Say and Indicate return its error after the
-// primary has done its part; Ask logs it and returns the primary's answer.
-type Multi struct {
-	Primary panel.Panel
-	Mirrors []panel.Panel
-}
-
-var _ panel.Panel = (*Multi)(nil)
-
-// Say shows m on every panel.
-func (m *Multi) Say(ctx context.Context, msg panel.Message) error {
-	errs := []error{m.Primary.Say(ctx, msg)}
-	for _, p := range m.Mirrors {
-		errs = append(errs, p.Say(ctx, msg))
-	}
-	return errors.Join(errs...)
-}
-
-// Ask shows pr on the mirrors and waits for the primary's answer.
-func (m *Multi) Ask(ctx context.Context, pr panel.Prompt) (panel.Response, error) {
-	var errs []error
-	for _, p := range m.Mirrors {
-		if err := p.Say(ctx, pr.Message); err != nil {
-			errs = append(errs, err)
-		}
-	}
-	r, err := m.Primary.Ask(ctx, pr)
-	if err != nil {
-		return r, err
-	}
-	if len(errs) > 0 {
-		slog.Default().Warn("mirror panel failed", "err", errors.Join(errs...))
-	}
-	return r, nil
-}
-
-// Indicate sets the indicators on every panel.
-func (m *Multi) Indicate(ctx context.Context, on panel.Indicator) error {
-	errs := []error{m.Primary.Indicate(ctx, on)}
-	for _, p := range m.Mirrors {
-		errs = append(errs, p.Indicate(ctx, on))
-	}
-	return errors.Join(errs...)
-}
-
-// Close closes every panel.
-func (m *Multi) Close() error {
-	errs := []error{m.Primary.Close()}
-	for _, p := range m.Mirrors {
-		errs = append(errs, p.Close())
-	}
-	return errors.Join(errs...)
 }

@@ -12,7 +12,6 @@ import (
 
 	"kermalux/drivers/clock"
 	"kermalux/firmware-host/panel/gpiopanel"
-	"kermalux/firmware-host/panel/scripted"
 	"kermalux/procedures/panel"
 )
 
@@ -83,38 +82,5 @@ voice: en-gb
 		c.LongPress != 2*time.Second || c.DoublePress != 400*time.Millisecond ||
 		c.Buzzer != "GPIO25" || !c.Speech || c.Voice != "en-gb" || c.FaultLED != "GPIO24" {
 		t.Errorf("decoded %+v", c)
-	}
-}
-
-func TestMulti(t *testing.T) {
-	clk := clock.NewManual(t0)
-	board := scripted.New(clk, scripted.WithScript(panel.Response{Answer: panel.Retake}))
-	screen := scripted.New(clk) // a mirror never answers
-	m := &Multi{Primary: board, Mirrors: []panel.Panel{screen}}
-	ctx := context.Background()
-	if err := m.Indicate(ctx, panel.BeamOn); err != nil {
-		t.Fatal(err)
-	}
-	if err := m.Say(ctx, panel.Message{Text: "Release.", Action: panel.ActBeamOff}); err != nil {
-		t.Fatal(err)
-	}
-	r, err := m.Ask(ctx, panel.Prompt{Message: panel.Message{Text: "Apron on?"}})
-	if err != nil || r.Answer != panel.Retake {
-		t.Fatalf("Ask = %+v, %v; want the primary's retake", r, err)
-	}
-	wantBoard := "+0s indicate beam_on\n+0s say beam_off: Release.\n+0s ask: Apron on? -> retake\n"
-	wantScreen := "+0s indicate beam_on\n+0s say beam_off: Release.\n+0s say: Apron on?\n"
-	if got := board.Dialogue(); got != wantBoard {
-		t.Errorf("board saw:\n%s\nwant:\n%s", got, wantBoard)
-	}
-	if got := screen.Dialogue(); got != wantScreen {
-		t.Errorf("screen saw:\n%s\nwant:\n%s", got, wantScreen)
-	}
-	screen.Close()
-	if err := m.Say(ctx, panel.Message{Text: "x"}); !errors.Is(err, scripted.ErrClosed) {
-		t.Errorf("a closed mirror's error is not reported: %v", err)
-	}
-	if _, err := m.Ask(ctx, panel.Prompt{}); !errors.Is(err, scripted.ErrScriptEnded) {
-		t.Errorf("primary's error not returned: %v", err)
 	}
 }

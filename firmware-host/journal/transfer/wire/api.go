@@ -1,7 +1,5 @@
 package wire
 
-import "kermalux/firmware-host/journal"
-
 // The HTTP protocol (PROTOCOL.md): two requests.
 const (
 	PathMarks = "/v2/marks" // JSON MarksRequest -> MarksResponse
@@ -45,6 +43,3 @@ type Refusal struct {
 	Error  string `json:"error"`  // "malformed", "refused", "not_enrolled", "revoked", "audience", "replay", "gap", "conflict", "busy", "too_large"
 	Reason string `json:"reason"` // for a person
 }
-
-// ZeroHash is the previous hash of a session's first record.
-func ZeroHash() string { return journal.ZeroHash() }
