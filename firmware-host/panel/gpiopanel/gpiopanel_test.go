@@ -147,6 +147,7 @@ func newBench(t *testing.T, cfg Config, sw *switchPin) (*bench, *Panel) {
 }
 
 func TestFootSwitch(t *testing.T) {
+	t.Parallel()
 	// Defaults: debounce 30 ms, long press 1.5 s, sampling every 5 ms. The
 	// answer time is when the gesture was recognised: a short press when
 	// its release has held for the debounce time, a long press as soon as
@@ -214,6 +215,7 @@ func TestFootSwitch(t *testing.T) {
 }
 
 func TestStuckSwitchIsReported(t *testing.T) {
+	t.Parallel()
 	sw := &switchPin{startDown: true, changes: []time.Duration{4000 * ms, 4200 * ms, 4300 * ms}}
 	b, p := newBench(t, Config{}, sw)
 	r, err := p.Ask(context.Background(), panel.Prompt{Message: panel.Message{Text: "Apron on?"}})
@@ -230,6 +232,7 @@ func TestStuckSwitchIsReported(t *testing.T) {
 }
 
 func TestAskHonoursContext(t *testing.T) {
+	t.Parallel()
 	_, p := newBench(t, Config{}, &switchPin{})
 	ctx, cancel := context.WithCancel(context.Background())
 	cancel()
@@ -240,6 +243,7 @@ func TestAskHonoursContext(t *testing.T) {
 }
 
 func TestValuePrompts(t *testing.T) {
+	t.Parallel()
 	_, p := newBench(t, Config{}, &switchPin{changes: []time.Duration{100 * ms, 200 * ms}})
 	ctx := context.Background()
 	_, err := p.Ask(ctx, panel.Prompt{StepID: "room", Value: &panel.ValueRequest{Name: "pressure", Unit: "kPa", Min: 80, Max: 110}})
@@ -256,6 +260,7 @@ func TestValuePrompts(t *testing.T) {
 }
 
 func TestLEDs(t *testing.T) {
+	t.Parallel()
 	tests := []struct {
 		on                 panel.Indicator
 		ready, beam, fault bool
@@ -293,6 +298,7 @@ func TestLEDs(t *testing.T) {
 }
 
 func TestBuzzerPatterns(t *testing.T) {
+	t.Parallel()
 	// Beep counts from the brief's convention: one = good, three = retake,
 	// two = ready, rapid = alarm.
 	tests := []struct {
@@ -332,6 +338,7 @@ func TestBuzzerPatterns(t *testing.T) {
 }
 
 func TestSayBeepsByLevel(t *testing.T) {
+	t.Parallel()
 	tests := []struct {
 		level panel.Level
 		beeps int
@@ -364,6 +371,7 @@ func TestSayBeepsByLevel(t *testing.T) {
 }
 
 func TestChirpWithoutSpeech(t *testing.T) {
+	t.Parallel()
 	b, p := newBench(t, Config{Buzzer: "GPIO25"}, nil)
 	b.voice.err = errors.New("espeak-ng failed")
 	if err := p.Say(context.Background(), panel.Message{Text: "Place the lead disk."}); err != nil {
@@ -378,6 +386,7 @@ func TestChirpWithoutSpeech(t *testing.T) {
 }
 
 func TestNoHardware(t *testing.T) {
+	t.Parallel()
 	// On this machine host.Init succeeds but no pin has this name.
 	_, err := New(Config{Switch: "KERMALUX_NO_SUCH_PIN"}, nil, nil, nil)
 	if !errors.Is(err, panel.ErrNoHardware) {
@@ -395,6 +404,7 @@ func TestNoHardware(t *testing.T) {
 }
 
 func TestConfigChecks(t *testing.T) {
+	t.Parallel()
 	tests := []struct {
 		name string
 		cfg  Config

@@ -17,6 +17,7 @@ func temperature(def float64) *panel.ValueRequest {
 }
 
 func TestAsk(t *testing.T) {
+	t.Parallel()
 	tests := []struct {
 		name    string
 		opts    []Option
@@ -87,6 +88,7 @@ func TestAsk(t *testing.T) {
 }
 
 func TestRecordsWithClockTime(t *testing.T) {
+	t.Parallel()
 	clk := clock.NewManual(t0)
 	var heard []panel.Action
 	var lit []panel.Indicator
@@ -131,6 +133,7 @@ func TestRecordsWithClockTime(t *testing.T) {
 }
 
 func TestContextAndClose(t *testing.T) {
+	t.Parallel()
 	p := New(nil, WithResponder(AckAll))
 	ctx, cancel := context.WithCancel(context.Background())
 	cancel()
@@ -151,6 +154,7 @@ func TestContextAndClose(t *testing.T) {
 }
 
 func TestScriptRemaining(t *testing.T) {
+	t.Parallel()
 	p := New(nil, WithScript(panel.Response{Answer: panel.Ack}, panel.Response{Answer: panel.Ack}))
 	if _, err := p.Ask(context.Background(), panel.Prompt{}); err != nil {
 		t.Fatal(err)

@@ -19,6 +19,7 @@ import (
 // positions, results, countdowns) are heard in the demo's seeded session
 // (firmware-host/demo, TestSessionByEar).
 func TestBuiltinPromptsByEar(t *testing.T) {
+	t.Parallel()
 	for _, name := range builtin.Names() {
 		p, err := script.LoadBuiltin(name)
 		if err != nil {

@@ -15,6 +15,7 @@ import (
 // failing prompts are the built-ins' words before they were made
 // checklists.
 func TestListener(t *testing.T) {
+	t.Parallel()
 	tests := []struct {
 		name   string
 		before string // said just before, or ""
@@ -66,6 +67,7 @@ func TestListener(t *testing.T) {
 // the value a press accepts and the cue once, even when the script's
 // words end with the cue too.
 func TestPromptTextOffersOnce(t *testing.T) {
+	t.Parallel()
 	for _, words := range []string{"Air pressure, in kilopascals.", "Air pressure, in kilopascals. Press to accept."} {
 		p := panel.Prompt{Message: panel.Message{Text: words}, Value: &panel.ValueRequest{Name: "pressure", Unit: "kPa", Default: 101.3, HasDef: true}}
 		want := "Air pressure, in kilopascals. 101.3 kilopascals. Press to accept."

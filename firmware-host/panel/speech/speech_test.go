@@ -13,6 +13,7 @@ import (
 )
 
 func TestForEar(t *testing.T) {
+	t.Parallel()
 	// Unit names as spoken in English follow the SI Brochure (BIPM, 9th
 	// edition, 2019), tables 2 and 4 (candela, gray, pascal, metre, degree
 	// Celsius) and its prefixes (table 7: micro, milli, nano, kilo, hecto).
@@ -116,6 +117,7 @@ func waitStart(t *testing.T, r *recorder, want string) {
 }
 
 func TestQueueOrderAndPreempt(t *testing.T) {
+	t.Parallel()
 	tests := []struct {
 		name     string
 		run      func(q *Queue, r *recorder)
@@ -184,6 +186,7 @@ func TestQueueOrderAndPreempt(t *testing.T) {
 }
 
 func TestQueueDropsOldestBeyondMax(t *testing.T) {
+	t.Parallel()
 	r := newRecorder()
 	q := NewQueue(r, 2, nil)
 	defer q.Close()
@@ -203,6 +206,7 @@ func TestQueueDropsOldestBeyondMax(t *testing.T) {
 }
 
 func TestQueueReportsFailure(t *testing.T) {
+	t.Parallel()
 	r := newRecorder()
 	r.failWith = errors.New("no sound card")
 	close(r.release)
@@ -219,6 +223,7 @@ func TestQueueReportsFailure(t *testing.T) {
 }
 
 func TestEspeakArgs(t *testing.T) {
+	t.Parallel()
 	tests := []struct {
 		e    *Espeak
 		text string
@@ -239,6 +244,7 @@ func TestEspeakArgs(t *testing.T) {
 }
 
 func TestEspeakWritesWAV(t *testing.T) {
+	t.Parallel()
 	if _, err := exec.LookPath("espeak-ng"); err != nil {
 		t.Skip("espeak-ng not installed")
 	}
@@ -272,6 +278,7 @@ func TestEspeakWritesWAV(t *testing.T) {
 }
 
 func TestEspeakStopsOnCancel(t *testing.T) {
+	t.Parallel()
 	if _, err := exec.LookPath("espeak-ng"); err != nil {
 		t.Skip("espeak-ng not installed")
 	}

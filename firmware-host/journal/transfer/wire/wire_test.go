@@ -90,6 +90,7 @@ func readAll(data []byte, name string) ([]*Segment, error) {
 // TestGolden pins the bytes of a small bundle (two segments of one
 // session): a change of the format shows here and needs a new version.
 func TestGolden(t *testing.T) {
+	t.Parallel()
 	recs := chain("20260506T080000Z-golden", 7)
 	data := encode(t, KindBundle, "kxs-golden", recs[:4], recs[4:])
 	path := filepath.Join("testdata", "stream.golden")
@@ -131,6 +132,7 @@ func TestGolden(t *testing.T) {
 // changed record's fingerprint is forged to match (issue 11: proof for
 // every record).
 func TestSignedHeadCoversEveryRecord(t *testing.T) {
+	t.Parallel()
 	recs := chain("s", 6)
 	pub := newSeedSigner().PublicKey()
 	good := encode(t, KindPush, "kxs-a", recs)
@@ -165,6 +167,7 @@ func TestSignedHeadCoversEveryRecord(t *testing.T) {
 
 // TestRefusalNamesRecord: a record changed in the stream is named.
 func TestRefusalNamesRecord(t *testing.T) {
+	t.Parallel()
 	recs := chain("s", 6)
 	var buf bytes.Buffer
 	w, _ := NewWriter(&buf, KindPush, "x", newSeedSigner())
@@ -181,6 +184,7 @@ func TestRefusalNamesRecord(t *testing.T) {
 // TestCompactness: demo-like readings take far less than 150 bytes each
 // on the wire (issue 11's ceiling).
 func TestCompactness(t *testing.T) {
+	t.Parallel()
 	recs := chain("s", 2000)
 	data := encode(t, KindPush, "x", recs[:1000], recs[1000:])
 	if per := float64(len(data)) / 2000; per > 150 {
@@ -193,6 +197,7 @@ func TestCompactness(t *testing.T) {
 // within the limits, and a record the stream cannot carry is refused by
 // the writer rather than sent to be refused by the receiver.
 func TestWriterSplitsSegments(t *testing.T) {
+	t.Parallel()
 	big := chain("s", 6)
 	for i := range big {
 		big[i].Payload = []byte(`{"note":"` + strings.Repeat("x", 900_000) + `"}`)
