@@ -9,9 +9,11 @@ import (
 	"encoding/json"
 	"fmt"
 	"io"
+	"maps"
 	"net/http"
 	"net/http/httptest"
 	"net/url"
+	"strings"
 	"testing"
 	"time"
 
@@ -21,6 +23,48 @@ import (
 	"kermalux/procedures/entry"
 )
 
+// fuzzStore is the store the receiving fuzz targets write into: one
+// enrolled board, a commit watcher checked before fuzzing, and a short
+// session of that board to make seed streams of.
+type fuzzStore struct {
+	owner   keySigner
+	st      *store.Store
+	changed func() bool
+	// Short records keep the seeds short: the fuzzer's minimiser runs a
+	// number of inputs that grows with the square of an input's length,
+	// and while it runs nothing else is fuzzed.
+	recs []journal.Record
+}
+
+func newFuzzStore(f *testing.F) *fuzzStore {
+	seed := make([]byte, 32)
+	seed[0] = 61
+	fs := &fuzzStore{owner: keySigner{ed25519.NewKeyFromSeed(seed)}, recs: shortSession()}
+	fs.st = workstation(f, "sqlite", fs.owner.PublicKey())
+	fs.changed = commits(f, fs.st)
+	// The watcher must see a commit and nothing else.
+	fs.changed()
+	if fs.changed() {
+		f.Fatal("the commit watcher saw a change with no commit")
+	}
+	fs.st.Note(context.Background(), "", "fuzz: checking the commit watcher", "")
+	if !fs.changed() {
+		f.Fatal("the commit watcher missed a commit")
+	}
+	return fs
+}
+
+// stream is a stream of kind for audience, one segment per element of segs.
+func (fs *fuzzStore) stream(kind byte, audience string, segs ...[]journal.Record) []byte {
+	var b bytes.Buffer
+	w, _ := wire.NewWriter(&b, kind, audience, fs.owner)
+	for _, s := range segs {
+		w.Segment(s)
+	}
+	w.Close()
+	return b.Bytes()
+}
+
 // FuzzReceive posts arbitrary bodies to the receiver's two endpoints (the
 // first byte chooses: even a push, odd a marks request) over one store
 // with one enrolled board. Whatever the body, the receiver answers with
@@ -29,45 +73,73 @@ import (
 // holds only records that its kept signed heads prove (chain recomputed,
 // signature verified with the enrolled key).
 func FuzzReceive(f *testing.F) {
-	seed := make([]byte, 32)
-	seed[0] = 61
-	owner := keySigner{ed25519.NewKeyFromSeed(seed)}
-	st := workstation(f, "sqlite", owner.PublicKey())
+	fs := newFuzzStore(f)
+	st, recs := fs.st, fs.recs
 	h := Handler(st, Options{Log: quiet})
-	// Short records keep the seeds short: the fuzzer's minimiser runs a
-	// number of inputs that grows with the square of an input's length,
-	// and while it runs nothing else is fuzzed.
-	recs := shortSession()
-	stream := func(audience string, segs ...[]journal.Record) []byte {
-		var b bytes.Buffer
-		w, _ := wire.NewWriter(&b, wire.KindPush, audience, owner)
-		for _, s := range segs {
-			w.Segment(s)
-		}
-		w.Close()
-		return b.Bytes()
-	}
-	good := stream(st.ID(), recs[:1], recs[1:])
+	good := fs.stream(wire.KindPush, st.ID(), recs[:1], recs[1:])
 	f.Add(append([]byte{0}, good...))
 	f.Add(append([]byte{0}, good[:len(good)/2]...))
-	f.Add(append([]byte{0}, stream("kxs-elsewhere", recs[:1])...))
-	f.Add(append([]byte{0}, stream(st.ID(), recs[2:])...))
-	marks, _ := json.Marshal(wire.MarksRequest{Board: hex.EncodeToString(owner.PublicKey()), Sessions: []string{recs[0].Session, "x"}})
+	f.Add(append([]byte{0}, fs.stream(wire.KindPush, "kxs-elsewhere", recs[:1])...))
+	f.Add(append([]byte{0}, fs.stream(wire.KindPush, st.ID(), recs[2:])...))
+	marks, _ := json.Marshal(wire.MarksRequest{Board: hex.EncodeToString(fs.owner.PublicKey()), Sessions: []string{recs[0].Session, "x"}})
 	f.Add(append([]byte{1}, marks...))
 	f.Add([]byte{1, '{', '"', 'b'})
 	f.Add([]byte{0})
-	changed := commits(f, st)
-	// The watcher must see a commit and nothing else.
-	changed()
-	if changed() {
-		f.Fatal("the commit watcher saw a change with no commit")
-	}
-	st.Note(context.Background(), "", "fuzz: checking the commit watcher", "")
-	if !changed() {
-		f.Fatal("the commit watcher missed a commit")
-	}
 	f.Fuzz(func(t *testing.T, data []byte) {
-		receiveOnce(t, h, st, owner.PublicKey(), changed, data)
+		receiveOnce(t, h, st, fs.owner.PublicKey(), fs.changed, data)
+	})
+}
+
+// FuzzImport imports damaged bundles into a store with one enrolled
+// board. Whatever the bytes, Import never panics, names the bundle in its
+// errors, stores only records that the store's kept signed heads prove,
+// and stores nothing at all of a bundle it refuses. An input edits one of
+// a few real streams (bundles whole, cut, for this store or another, with
+// a gap; a push): it writes patch at at over drop bytes, or, when patch
+// starts as a stream does, imports patch itself. Inputs stay a few bytes
+// long (the minimiser's cost grows with the square of an input's
+// length), yet reach every byte.
+func FuzzImport(f *testing.F) {
+	fs := newFuzzStore(f)
+	st, recs := fs.st, fs.recs
+	good := fs.stream(wire.KindBundle, "", recs[:1], recs[1:])
+	bases := [][]byte{
+		good,
+		good[:len(good)-8], // the closing signature cut
+		fs.stream(wire.KindBundle, st.ID(), recs[:1]),
+		fs.stream(wire.KindBundle, "kxs-elsewhere", recs[:1]),
+		fs.stream(wire.KindBundle, "", recs[2:]), // a gap
+		fs.stream(wire.KindPush, st.ID(), recs[:1]),
+	}
+	for i := range bases {
+		f.Add(uint8(i), uint16(0), uint8(0), []byte{})
+	}
+	f.Add(uint8(0), uint16(len(good)-70), uint8(1), []byte{0}) // a byte of the closing signature
+	f.Add(uint8(0), uint16(0), uint8(0), []byte(wire.Magic))
+	held := map[string]int64{}
+	f.Fuzz(func(t *testing.T, base uint8, at uint16, drop uint8, patch []byte) {
+		data := patch
+		if !bytes.HasPrefix(patch, []byte(wire.Magic)) {
+			old := bases[int(base)%len(bases)]
+			off := int(at) % (len(old) + 1)
+			end := min(off+int(drop), len(old))
+			data = append(append(append([]byte{}, old[:off]...), patch...), old[end:]...)
+		}
+		_, err := Import(context.Background(), st, bytes.NewReader(data), "fuzz.kxb", nil)
+		if err != nil && !strings.Contains(err.Error(), "fuzz.kxb") {
+			t.Fatalf("the error does not name the bundle: %v", err)
+		}
+		if !fs.changed() {
+			return
+		}
+		counts, perr := provenCounts(st, fs.owner.PublicKey())
+		if perr != nil {
+			t.Fatal(perr)
+		}
+		if err != nil && !maps.Equal(counts, held) {
+			t.Fatalf("a refused bundle (%v) changed the store: records per session %v, were %v", err, counts, held)
+		}
+		held = counts
 	})
 }
 
@@ -161,16 +233,24 @@ func shortSession() []journal.Record {
 
 // proven checks every session of the store with provenSession.
 func proven(st *store.Store, pub ed25519.PublicKey) error {
+	_, err := provenCounts(st, pub)
+	return err
+}
+
+// provenCounts is proven, also giving the records stored per session.
+func provenCounts(st *store.Store, pub ed25519.PublicKey) (map[string]int64, error) {
 	sessions, err := st.Sessions(context.Background(), store.Query{})
 	if err != nil {
-		return err
+		return nil, err
 	}
+	counts := map[string]int64{}
 	for _, s := range sessions {
 		if err := provenSession(st, pub, s.ID); err != nil {
-			return err
+			return nil, err
 		}
+		counts[s.ID] = s.Records
 	}
-	return nil
+	return counts, nil
 }
 
 // provenSession recomputes every stored record's hash of session from its
