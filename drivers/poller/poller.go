@@ -22,9 +22,12 @@ import (
 )
 
 // DefaultSize is the queue's length when New is given 0: at 10 readings a
-// second, 25 s of readings; then polling pauses until the caller takes one
-// or discards them.
-const DefaultSize = 256
+// second, 1.6 s of readings; then polling pauses until the caller takes one
+// or discards them. It bounds how far a caller that cannot keep up (a
+// loaded host writing each reading to its journal) falls behind the meter:
+// past it the meter is asked at the caller's pace, each reading still
+// stamped on arrival, rather than queued for a caller seconds late.
+const DefaultSize = 16
 
 // errorPause is the least real time between two reads when the first
 // failed.

@@ -170,6 +170,14 @@ func (m *Meter) exchange(ctx context.Context, x Exchange) error {
 	if x.Send == "" {
 		return nil
 	}
+	if m.dirty {
+		// A late reply to the command before (an identify that timed
+		// out) is not this one's.
+		if err := m.port.FlushContext(ctx); err != nil {
+			return m.errorf("before %q: %w", x.Send, err)
+		}
+		m.dirty = false
+	}
 	if err := m.port.WriteLine(ctx, x.Send); err != nil {
 		return m.errorf("sending %q: %w", x.Send, err)
 	}
@@ -181,7 +189,9 @@ func (m *Meter) exchange(ctx context.Context, x Exchange) error {
 }
 
 // await reads lines until match accepts one, skipping up to 100 lines
-// that match the reading pattern; any other line is an error.
+// that match the reading pattern (or, after another command, the identify
+// reply: a late answer to an identify that timed out); any other line is
+// an error.
 func (m *Meter) await(ctx context.Context, sent, want string, match func(string) bool) (serialline.Line, error) {
 	for skipped := 0; ; skipped++ {
 		l, err := m.port.ReadLine(ctx)
@@ -193,6 +203,9 @@ func (m *Meter) await(ctx context.Context, sent, want string, match func(string)
 			return l, nil
 		}
 		if skipped < 100 && m.p.Pattern.MatchString(l.Text) {
+			continue
+		}
+		if skipped < 100 && sent != m.p.Identify && m.p.IdentifyPattern != nil && m.p.IdentifyPattern.MatchString(l.Text) {
 			continue
 		}
 		m.dirty = true

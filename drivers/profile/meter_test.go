@@ -11,6 +11,7 @@ import (
 	"kermalux/drivers"
 	"kermalux/drivers/profile"
 	"kermalux/drivers/serialline"
+	"kermalux/drivers/serialline/linetest"
 	"kermalux/drivers/units"
 )
 
@@ -358,5 +359,29 @@ func TestStreamingUnprompted(t *testing.T) {
 		if strings.HasPrefix(c, "STREAM") || c == "" {
 			t.Errorf("sent %q to a meter that streams by itself", c)
 		}
+	}
+}
+
+// An identify answered too late for its timeout (a loaded host) must not
+// pass as the reply to the next set-up command: the late identity line
+// arrives just before REMOTE's OK and is skipped (on a loaded demo at 20×
+// opening failed with `after "REMOTE", expected "OK", got "VELTRANE
+// KR-40 ..."`).
+func TestLateIdentifyReplyIsNotTheNextReply(t *testing.T) {
+	k := &kr40{unit: "uGy/s", value: 0.1234, state: "OK"}
+	d := linetest.New(t, "veltrane-KR40-1187", '\r', func(d *linetest.Device, cmd string) {
+		switch cmd {
+		case "ID?": // no answer in time
+		case "REMOTE":
+			d.Send("VELTRANE KR-40 SN=KR40-1187 FW=2.3\r\n") // the late identity
+			d.Send("OK\r\n")
+		default:
+			k.handle(d, cmd)
+		}
+	})
+	m := openMeter(t, load(t, "veltrane-kr40.yaml"), d.Link(), "dosimeter")
+	r, err := m.Read(ctx(t))
+	if err != nil || r.Value != 0.1234 {
+		t.Fatalf("after a late identify: %v, %v; want the reading 0.1234", r.Value, err)
 	}
 }

@@ -485,16 +485,25 @@ func (p *Port) flush(ctx context.Context, skip bool) error {
 	}
 }
 
+// minScaledTimeout is the least real time a scaled clock's timeout is cut
+// to: how long a loaded host may take to schedule the reader, the meter's
+// simulator and the caller is real time, whatever the clock's speed (at
+// 20×, a KR-40's 1 s reply timeout would be 50 ms, and a CPU hog made
+// healthy meters time out, their readings lost and exposures retaken).
+const minScaledTimeout = 250 * time.Millisecond
+
 // RealTimeout converts a duration of a meter's clock (a scaled clock in the
-// demo) into the operating system's time for read timeouts, never below
-// 20 ms; a manual clock (which reports 0) keeps the duration as given.
+// demo) into the operating system's time for read timeouts. A clock that
+// runs faster than real time shortens it, but not below minScaledTimeout
+// (nor, for a shorter d, below d); a manual clock (which reports 0) keeps
+// the duration as given.
 func RealTimeout(c clock.Clock, d time.Duration) time.Duration {
 	r := c.Real(d)
 	if r <= 0 {
 		return d
 	}
-	if r < 20*time.Millisecond {
-		return 20 * time.Millisecond
+	if floor := min(d, minScaledTimeout); r < floor {
+		return floor
 	}
 	return r
 }

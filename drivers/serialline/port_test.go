@@ -268,3 +268,26 @@ func BenchmarkReadLine(b *testing.B) {
 		}
 	}
 }
+
+// A scaled clock shortens a timeout, but never below what a loaded host
+// needs to schedule the reader (250 ms) nor below the duration itself;
+// the real clock keeps it, and a manual clock keeps it as given.
+func TestRealTimeout(t *testing.T) {
+	for _, tc := range []struct {
+		name string
+		clk  clock.Clock
+		d    time.Duration
+		want time.Duration
+	}{
+		{"real clock", clock.NewReal(), time.Second, time.Second},
+		{"real clock, short", clock.NewReal(), 100 * time.Millisecond, 100 * time.Millisecond},
+		{"2x", clock.NewScaled(2, time.Time{}), time.Second, 500 * time.Millisecond},
+		{"20x, cut to the floor", clock.NewScaled(20, time.Time{}), time.Second, 250 * time.Millisecond},
+		{"20x, short timeout kept", clock.NewScaled(20, time.Time{}), 100 * time.Millisecond, 100 * time.Millisecond},
+		{"manual", clock.NewManual(time.Time{}), 3 * time.Second, 3 * time.Second},
+	} {
+		if got := serialline.RealTimeout(tc.clk, tc.d); got != tc.want {
+			t.Errorf("%s: %v becomes %v, want %v", tc.name, tc.d, got, tc.want)
+		}
+	}
+}
