@@ -65,28 +65,45 @@ func (fs *fuzzStore) stream(kind byte, audience string, segs ...[]journal.Record
 	return b.Bytes()
 }
 
-// FuzzReceive posts arbitrary bodies to the receiver's two endpoints (the
-// first byte chooses: even a push, odd a marks request) over one store
-// with one enrolled board. Whatever the body, the receiver answers with
-// one of the protocol's statuses and a JSON body (a refusal with a code
-// and a reason, or the endpoint's answer), never panics, and the store
-// holds only records that its kept signed heads prove (chain recomputed,
-// signature verified with the enrolled key).
+// FuzzReceive posts damaged bodies to the receiver's two endpoints over
+// one store with one enrolled board. Whatever the body, the receiver
+// answers with one of the protocol's statuses and a JSON body (a refusal
+// with a code and a reason, or the endpoint's answer), never panics, and
+// the store holds only records that its kept signed heads prove (chain
+// recomputed, signature verified with the enrolled key). An input edits
+// one of a few real bodies (pushes whole, cut, for another store, with a
+// gap; marks requests), writing patch at at over drop bytes; with drop
+// over the whole body, any body can be posted. Inputs stay a few bytes
+// long (the minimiser's cost grows with the square of an input's length).
 func FuzzReceive(f *testing.F) {
 	fs := newFuzzStore(f)
 	st, recs := fs.st, fs.recs
 	h := Handler(st, Options{Log: quiet})
 	good := fs.stream(wire.KindPush, st.ID(), recs[:1], recs[1:])
-	f.Add(append([]byte{0}, good...))
-	f.Add(append([]byte{0}, good[:len(good)/2]...))
-	f.Add(append([]byte{0}, fs.stream(wire.KindPush, "kxs-elsewhere", recs[:1])...))
-	f.Add(append([]byte{0}, fs.stream(wire.KindPush, st.ID(), recs[2:])...))
 	marks, _ := json.Marshal(wire.MarksRequest{Board: hex.EncodeToString(fs.owner.PublicKey()), Sessions: []string{recs[0].Session, "x"}})
-	f.Add(append([]byte{1}, marks...))
-	f.Add([]byte{1, '{', '"', 'b'})
-	f.Add([]byte{0})
-	f.Fuzz(func(t *testing.T, data []byte) {
-		receiveOnce(t, h, st, fs.owner.PublicKey(), fs.changed, data)
+	bases := []struct {
+		path string
+		body []byte
+	}{
+		{wire.PathPush, good},
+		{wire.PathPush, good[:len(good)/2]},
+		{wire.PathPush, fs.stream(wire.KindPush, "kxs-elsewhere", recs[:1])},
+		{wire.PathPush, fs.stream(wire.KindPush, st.ID(), recs[2:])},
+		{wire.PathPush, fs.stream(wire.KindBundle, "", recs[:1])},
+		{wire.PathMarks, marks},
+		{wire.PathMarks, []byte(`{"b`)},
+	}
+	for i := range bases {
+		f.Add(uint8(i), uint16(0), uint16(0), []byte{})
+	}
+	f.Add(uint8(0), uint16(40), uint16(1), []byte{0}) // a byte of the preamble's key
+	f.Add(uint8(5), uint16(0), uint16(999), []byte{}) // an empty marks request
+	f.Fuzz(func(t *testing.T, base uint8, at, drop uint16, patch []byte) {
+		b := bases[int(base)%len(bases)]
+		off := int(at) % (len(b.body) + 1)
+		end := min(off+int(drop), len(b.body))
+		body := append(append(append([]byte{}, b.body[:off]...), patch...), b.body[end:]...)
+		receiveOnce(t, h, st, fs.owner.PublicKey(), fs.changed, b.path, body)
 	})
 }
 
@@ -179,19 +196,10 @@ func commits(t testing.TB, st *store.Store) func() bool {
 var allowedStatus = map[int]bool{http.StatusOK: true, http.StatusBadRequest: true, http.StatusForbidden: true, http.StatusConflict: true,
 	http.StatusRequestEntityTooLarge: true, http.StatusServiceUnavailable: true}
 
-// receiveOnce posts data (first byte: the endpoint) and checks the answer
-// and the store.
-func receiveOnce(t testing.TB, h http.Handler, st *store.Store, pub ed25519.PublicKey, changed func() bool, data []byte) {
-	if len(data) == 0 {
-		return
-	}
-	path := wire.PathPush
-	if data[0]%2 == 1 {
-		path = wire.PathMarks
-	}
+// receiveOnce posts body to path and checks the answer and the store.
+func receiveOnce(t testing.TB, h http.Handler, st *store.Store, pub ed25519.PublicKey, changed func() bool, path string, body []byte) {
 	// Built by hand: httptest.NewRequest parses a whole request line
 	// for every input.
-	body := data[1:]
 	req := (&http.Request{Method: http.MethodPost, URL: &url.URL{Path: path}, Proto: "HTTP/1.1", ProtoMajor: 1, ProtoMinor: 1,
 		Header: http.Header{}, Body: io.NopCloser(bytes.NewReader(body)), ContentLength: int64(len(body)),
 		Host: "store.invalid", RemoteAddr: "192.0.2.1:1234", RequestURI: path}).WithContext(context.Background())
