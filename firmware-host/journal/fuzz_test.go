@@ -65,18 +65,57 @@ func FuzzRecordCheck(f *testing.F) {
 	})
 }
 
-// FuzzReadMark: a mark file of arbitrary bytes never passes for a mark
-// signed by a key nobody holds, and never panics. The corpus under
-// testdata keeps an all-zero signature that the all-zero key (used here
-// before) accepted.
+// FuzzReadMark: a damaged mark file never panics, never passes for a mark
+// signed by a key nobody holds, and passes for the board's key only with
+// a mark the board wrote (a record of its session, with that record's
+// hash). An input edits a real mark file (two slots of 1024 bytes): it
+// writes patch at at over drop bytes; with drop over the whole file, any
+// file can be read. Inputs stay a few bytes long (the minimiser's cost
+// grows with the square of an input's length). The corpus under testdata
+// keeps an all-zero signature that the all-zero key (used here before)
+// accepted.
 func FuzzReadMark(f *testing.F) {
-	f.Add([]byte(`{"v":1,"n":2,"session":"s","seq":3,"hash":"` + strings.Repeat("0", 64) + `","sig":"` + strings.Repeat("0", 128) + `"}`))
-	f.Add([]byte{})
-	f.Add(bytes.Repeat([]byte{' '}, 2*markSlot))
-	pub := strangerKey()
-	f.Fuzz(func(t *testing.T, data []byte) {
-		if m, err := parseMark(data, pub); err == nil && m != nil {
+	ctx := context.Background()
+	dir := f.TempDir()
+	path := filepath.Join(dir, "seed.db")
+	j, err := Open(path, Options{KeyDir: filepath.Join(dir, "key")})
+	if err != nil {
+		f.Fatal(err)
+	}
+	id, _ := j.Begin(ctx, journaltest.Session(0))
+	journaltest.WriteSession(ctx, j, id, 1, true, nil)
+	j.SyncMark()
+	recs, _ := j.Records(ctx, id, 0, 0)
+	pub := j.PublicKey()
+	j.Close()
+	base, err := os.ReadFile(MarkPath(path))
+	if err != nil {
+		f.Fatal(err)
+	}
+	if m, err := parseMark(base, pub); err != nil || m == nil {
+		f.Fatalf("the journal's own mark does not read: %v %v", m, err)
+	}
+	written := map[int64]string{}
+	for _, r := range recs {
+		written[r.Seq] = r.Hash
+	}
+	f.Add(uint16(0), uint16(0), []byte{})               // as written
+	f.Add(uint16(0), uint16(len(base)), []byte{})       // empty
+	f.Add(uint16(markSlot), uint16(markSlot), []byte{}) // the second slot cut
+	f.Add(uint16(0), uint16(markSlot), []byte{})        // the first slot gone
+	f.Add(uint16(12), uint16(1), []byte("9"))           // a counter changed
+	f.Add(uint16(0), uint16(len(base)), bytes.Repeat([]byte{' '}, 2*markSlot))
+	f.Add(uint16(0), uint16(len(base)), []byte(`{"v":1,"n":2,"session":"s","seq":3,"hash":"`+strings.Repeat("0", 64)+`","sig":"`+strings.Repeat("0", 128)+`"}`))
+	stranger := strangerKey()
+	f.Fuzz(func(t *testing.T, at, drop uint16, patch []byte) {
+		off := int(at) % (len(base) + 1)
+		end := min(off+int(drop), len(base))
+		data := append(append(append([]byte{}, base[:off]...), patch...), base[end:]...)
+		if m, err := parseMark(data, stranger); err == nil && m != nil {
 			t.Fatalf("a mark verified against a key nobody holds: %q", data)
+		}
+		if m, err := parseMark(data, pub); err == nil && m != nil && (m.Session != id || written[m.Seq] != m.Hash) {
+			t.Fatalf("a mark the board never wrote passed: %+v", *m)
 		}
 	})
 }
