@@ -86,6 +86,16 @@ var earIndex = func() map[string]spoken {
 var nounAfter = map[string]bool{"field": true, "mode": true, "filter": true, "disk": true, "dark": true, "reading": true,
 	"aluminium": true, "copper": true, "lead": true, "phantom": true}
 
+// earSpelling evens out spellings before the units are read: one micro
+// sign, dashes and line breaks as pauses. Built once (a Replacer is safe
+// for concurrent use).
+var earSpelling = strings.NewReplacer(
+	"μ", "µ", // Greek mu to micro sign
+	"uGy", "µGy",
+	" — ", ", ", " – ", ", ", "—", ", ", "–", ", ",
+	"\t", " ", "\n", " ", "\r", " ",
+)
+
 // ForEar rewrites text written for the eye into text for a speech
 // synthesiser: unit symbols become words ("cd/m²" → "candelas per square
 // metre", "32cm field" → "32 centimetre field", "70 kV" → "70 kilovolts",
@@ -96,12 +106,7 @@ var nounAfter = map[string]bool{"field": true, "mode": true, "filter": true, "di
 // "s", "m" and "r" only right after a number. A unit is said in the
 // singular after the number 1, after "per" and before a noun it qualifies.
 func ForEar(text string) string {
-	text = strings.NewReplacer(
-		"μ", "µ", // Greek mu to micro sign
-		"uGy", "µGy",
-		" — ", ", ", " – ", ", ", "—", ", ", "–", ", ",
-		"\t", " ", "\n", " ", "\r", " ",
-	).Replace(text)
+	text = earSpelling.Replace(text)
 	text = strings.Map(func(r rune) rune {
 		if unicode.IsControl(r) {
 			return -1
@@ -178,10 +183,13 @@ func trailingNumber(text string) string {
 }
 
 // nextWord is the first word of text, in lower case, without punctuation.
+// It reads no further than that word: ForEar asks it at every unit, and
+// splitting the whole rest of the text each time made ForEar quadratic in
+// the text's length.
 func nextWord(text string) string {
-	f := strings.Fields(text)
-	if len(f) == 0 {
-		return ""
+	text = strings.TrimLeftFunc(text, unicode.IsSpace)
+	if i := strings.IndexFunc(text, unicode.IsSpace); i >= 0 {
+		text = text[:i]
 	}
-	return strings.ToLower(strings.TrimFunc(f[0], func(r rune) bool { return !unicode.IsLetter(r) }))
+	return strings.ToLower(strings.TrimFunc(text, func(r rune) bool { return !unicode.IsLetter(r) }))
 }
