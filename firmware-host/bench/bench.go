@@ -243,7 +243,7 @@ func OpenMeters(ctx context.Context, b *Bench, clk clock.Clock, ports map[string
 			var p *profile.Profile
 			p, err = profile.Load(b.Rel(m.Profile))
 			if err == nil {
-				meter, err = profile.Open(ctx, p, port, profile.Options{Name: m.Name, Clock: clk})
+				meter, err = profile.Open(ctx, p, port, profile.Options{Name: m.Name, Clock: clk, Background: true})
 			}
 		} else {
 			cfg := scpi.Config{Query: m.SCPI.Query, Unit: m.SCPI.Unit, Init: m.SCPI.Init, Quantity: units.Quantity(m.SCPI.Quantity)}
