@@ -173,7 +173,7 @@ func (m *Meter) exchange(ctx context.Context, x Exchange) error {
 	if m.dirty {
 		// A late reply to the command before (an identify that timed
 		// out) is not this one's.
-		if err := m.port.FlushContext(ctx); err != nil {
+		if err := m.port.FlushContext(ctx); err != nil && ctx.Err() != nil {
 			return m.errorf("before %q: %w", x.Send, err)
 		}
 		m.dirty = false
@@ -294,8 +294,10 @@ func (m *Meter) read(ctx context.Context) (drivers.Reading, error) {
 		if err := m.cadence.Wait(ctx); err != nil {
 			return drivers.Reading{}, err
 		}
-		if m.dirty {
-			m.port.Flush() // a late reply to an earlier query is not fresh
+		if m.dirty { // a late reply to an earlier query is not fresh
+			if err := m.port.FlushContext(ctx); err != nil && ctx.Err() != nil {
+				return drivers.Reading{}, m.errorf("before %q: %w", m.p.Query, err)
+			}
 			m.dirty = false
 		}
 		if err := m.port.WriteLine(ctx, m.p.Query); err != nil {

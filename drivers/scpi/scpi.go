@@ -361,7 +361,9 @@ func Unit(q units.Quantity, u string) (string, error) {
 // query sends a command and returns its one-line reply.
 func (m *Meter) query(ctx context.Context, cmd string) (string, error) {
 	if m.dirty {
-		m.port.Flush()
+		if err := m.port.FlushContext(ctx); err != nil && ctx.Err() != nil {
+			return "", m.errorf("before %q: %w", cmd, err)
+		}
 		m.dirty = false
 	}
 	if err := m.port.WriteLine(ctx, cmd); err != nil {
@@ -382,7 +384,7 @@ func (m *Meter) explain(ctx context.Context, err error) string {
 	if !errors.Is(err, drivers.ErrTimeout) || m.cfg.ErrorQuery == "-" || ctx.Err() != nil {
 		return ""
 	}
-	m.port.Flush()
+	_ = m.port.FlushContext(ctx)
 	m.dirty = false
 	if werr := m.port.WriteLine(ctx, m.cfg.ErrorQuery); werr != nil {
 		return ""
@@ -594,7 +596,9 @@ func (m *Meter) read(ctx context.Context) (drivers.Reading, error) {
 		return drivers.Reading{}, err
 	}
 	if m.dirty {
-		m.port.Flush()
+		if err := m.port.FlushContext(ctx); err != nil && ctx.Err() != nil {
+			return drivers.Reading{}, m.errorf("before %q: %w", m.cfg.Query, err)
+		}
 		m.dirty = false
 	}
 	if err := m.port.WriteLine(ctx, m.cfg.Query); err != nil {
