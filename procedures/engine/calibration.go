@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"slices"
 	"sort"
 	"strconv"
 	"strings"
@@ -149,8 +150,11 @@ func (e *Engine) meterChanged(ctx context.Context, a *attempt, ch *changedError)
 	_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: a.idx, Name: evMeterChanged, Detail: ch.Error(), BeamOn: e.st.beamOn.Seconds()})
 	_ = e.cfg.Panel.Indicate(ctx, panel.Fault)
 	name := roleName(ch.role)
-	if a.beamOn {
-		if a.signal != ch.role {
+	// The changed meter no longer tells when the beam is off.
+	delete(a.tracks, ch.role)
+	a.roles = slices.DeleteFunc(slices.Clone(a.roles), func(r string) bool { return r == ch.role })
+	if a.beamOn || a.prompted {
+		if a.anyAbove() {
 			if err := e.release(ctx, a, panel.Warn, "Release the beam."); err != nil {
 				return err
 			}

@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"slices"
 	"strconv"
 	"strings"
 	"time"
@@ -103,10 +104,17 @@ func measured(p posStat, lum bool) calib.Measured {
 // taken as a rectangular distribution of that half-width (JCGM 100:2008
 // 4.3.7), u = a/√3, and is not a calibration component: it does not cancel
 // in a ratio read with one meter.
+//
+// A position journalled by this release carries its residual from the
+// data instead (posStat.Settle, residualSettling): the remainder of the
+// approach or drift the readings do not rule out, zero for a settled beam.
 func (e *Engine) settledMeasure(p posStat, lum bool) calib.Measured {
 	m := measured(p, lum)
 	l := e.cfg.Limits
 	a := l.SettleSlope * l.SettleWindow.Seconds() / 2
+	if p.Settle != nil {
+		a = p.Settle[roleOf(lum)]
+	}
 	if a > 0 {
 		m.TypeB = append(m.TypeB, calib.Component{Source: "residual settling of the reading", Rel: a / math.Sqrt(3)})
 	}
@@ -155,6 +163,9 @@ func (e *Engine) compute(ctx context.Context, idx int, s Step) error {
 	var res calib.Result
 	var err error
 	fig := s.Compute.Figure
+	if why := e.unmeasured(s); why != "" {
+		return e.notMeasurableResult(ctx, idx, s, why)
+	}
 	switch fig {
 	case "conversion_factor":
 		var lp, kp []posStat
@@ -307,6 +318,43 @@ func (e *Engine) compute(ctx context.Context, idx int, s Step) error {
 	return e.say(ctx, idx, panel.Message{Text: spokenResult(r, e.resultMeter(s.ID)), Level: panel.Info})
 }
 
+// unmeasured is why an input of a compute step could not be measured
+// ("" when every input was).
+func (e *Engine) unmeasured(s Step) string {
+	roles := make([]string, 0, len(s.Compute.Inputs))
+	for role := range s.Compute.Inputs {
+		roles = append(roles, role)
+	}
+	slices.Sort(roles)
+	for _, role := range roles {
+		for _, p := range e.st.meas[s.Compute.Inputs[role]] {
+			if p.Unmeasurable != "" {
+				if p.Label != "" {
+					return "at position " + p.Label + ", " + p.Unmeasurable
+				}
+				return p.Unmeasurable
+			}
+		}
+	}
+	return ""
+}
+
+// notMeasurableResult records a figure whose input could not be measured:
+// no value, the outcome not_measurable with the reason, never judged.
+func (e *Engine) notMeasurableResult(ctx context.Context, idx int, s Step, why string) error {
+	q := s.Compute.Figure
+	if q == "kerma_mode_scaling" {
+		q = calib.QKermaScaling
+	}
+	r := entry.Result{Step: idx, Procedure: s.Procedure, FieldMode: s.FieldMode, Quantity: q,
+		Verdict: string(calib.NotMeasurable), DecidedBy: why, Flags: []string{"not measurable: " + why}}
+	e.storeResult(s.ID, r)
+	if err := e.journal(ctx, entry.KindResult, r); err != nil {
+		return err
+	}
+	return e.say(ctx, idx, panel.Message{Text: resultName(r, e.resultMeter(s.ID)) + ": not measurable, " + why + ".", Level: panel.Warn})
+}
+
 func firstRole(m map[string]string) string {
 	for _, k := range []string{"luminance", "open", "air_kerma_rate", "reading"} {
 		if _, ok := m[k]; ok {
@@ -432,6 +480,10 @@ func (e *Engine) judge(ctx context.Context, idx int, s Step) error {
 	}
 	if len(limits) == 0 {
 		limits = e.benchLimits(r.Quantity, r.FieldMode)
+	}
+	if r.Verdict == string(calib.NotMeasurable) {
+		// Nothing to compare: said again with its reason.
+		return e.say(ctx, idx, panel.Message{Text: resultName(r, e.resultMeter(j.Result)) + ": not measurable, " + r.DecidedBy + ".", Level: panel.Warn})
 	}
 	v := e.applyVerdict(&r, calib.Result{}, limits)
 	e.storeResult(j.Result, r)

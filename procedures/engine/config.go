@@ -240,7 +240,11 @@ type Limits struct {
 	SettleSlope  float64
 	SettleMax    time.Duration // give up settling (retake) after this
 
-	Target    float64       // default precision target (0.02)
+	// Target is the default type A target: the relative expanded
+	// uncertainty of repeatability at which sampling stops (0.01); a
+	// procedure's own precision takes its place. The calibration's part
+	// is not in it (it cannot be reduced by sampling longer).
+	Target    float64
 	MaxBeamOn time.Duration // default per-attempt maximum
 	MinPairs  int           // minimum time-aligned pairs before the stopping rule may stop
 
@@ -271,9 +275,9 @@ func DefaultLimits() Limits {
 		SettleWindow:     time.Second,
 		SettleSlope:      0.02,
 		SettleMax:        20 * time.Second,
-		Target:           0.02,
+		Target:           0.01,
 		MaxBeamOn:        30 * time.Second,
-		MinPairs:         5,
+		MinPairs:         minSamples,
 		Retries:          3,
 		LinkRetry:        time.Second,
 		RecheckAfter:     10 * time.Minute,

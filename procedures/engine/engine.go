@@ -20,6 +20,9 @@ var (
 	ErrPaused = errors.New("session paused")
 	// ErrStepFailed: a measurement could not be completed in its attempts.
 	ErrStepFailed = errors.New("step could not be completed")
+	// ErrJournal: a record could not be written; the session was ended
+	// safely (beam released, what was recorded kept).
+	ErrJournal = errors.New("journal write failed")
 )
 
 // Engine runs one session.
@@ -30,6 +33,9 @@ type Engine struct {
 	// sinceAsk are the messages said since the last answered prompt, for
 	// an operator who asks to hear them again.
 	sinceAsk []panel.Message
+	// journalErr is the first failed journal write (ErrJournal); once set,
+	// no further reading is taken.
+	journalErr error
 }
 
 // New checks cfg and returns an engine ready to Run.

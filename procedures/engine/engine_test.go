@@ -160,7 +160,11 @@ func TestBeamDetectionAndSettling(t *testing.T) {
 		if tau > time.Second && wait < minWait {
 			t.Errorf("tau %s: sampling began %.2f s after beam-on, before settling (%.2f s)", tau, wait, minWait)
 		}
-		if tau < time.Second && wait > 4 {
+		// The photometer's 0.5 s response makes the L/K ratio approach its
+		// level as exp(−t/0.5 s): within 0.1 % after 0.5·ln(1000) ≈ 3.5 s
+		// (the oracle of BenchmarkBeamOnPerReading); settling is judged,
+		// then confirmed a quarter of that later, so allow 1.6 times it.
+		if tau < time.Second && wait > 5.5 {
 			t.Errorf("tau %s: settling took %.2f s", tau, wait)
 		}
 	}
@@ -212,7 +216,7 @@ func TestNoBeamBeforeChecklist(t *testing.T) {
 // not used, with an event), the step is asked again with three beeps.
 func TestBeamDropRetaken(t *testing.T) {
 	r := newRig(cfSteps())
-	r.phys.drops = []time.Duration{3 * time.Second}
+	r.phys.drops = []time.Duration{5800 * time.Millisecond} // while sampling
 	sum, err := r.run(context.Background())
 	if err != nil {
 		t.Fatal(err)

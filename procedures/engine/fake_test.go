@@ -37,6 +37,7 @@ type physics struct {
 	pending           []change
 	drops             []time.Duration // beam drops: time after each beam-on at which it drops (one per beam-on, 0: none)
 	beamOns           int
+	beamTotal         time.Duration // true beam-on so far, ended exposures
 }
 
 type change struct {
@@ -61,6 +62,9 @@ func (p *physics) advance(t time.Duration) {
 		c := p.pending[0]
 		p.pending = p.pending[1:]
 		if c.on != p.beam {
+			if !c.on {
+				p.beamTotal += c.at - p.beamAt
+			}
 			p.beam = c.on
 			p.beamAt = c.at
 			if c.on {
@@ -105,6 +109,9 @@ type fakeMeter struct {
 	wasLost bool
 	reads   int
 	spike   func(v float64, t time.Duration) float64
+	// rangeMax > 0: a reading above it is over range (no value);
+	// rangeMin > 0: a reading below it is under range.
+	rangeMax, rangeMin float64
 }
 
 type window2 struct{ from, to time.Duration }
@@ -149,8 +156,15 @@ func (m *fakeMeter) Read(ctx context.Context) (drivers.Reading, error) {
 		v = m.spike(v, t)
 	}
 	m.reads++
+	st := drivers.StatusOK
+	switch {
+	case m.rangeMax > 0 && v > m.rangeMax:
+		st, v = drivers.StatusOverRange, m.rangeMax
+	case m.rangeMin > 0 && v < m.rangeMin:
+		st, v = drivers.StatusUnderRange, 0
+	}
 	r := drivers.Reading{Meter: m.name, Quantity: m.q, Value: v, Unit: units.Canonical(m.q), RawValue: v,
-		RawUnit: units.Canonical(m.q), Status: drivers.StatusOK, Raw: fmt.Sprintf("%.5g", v), Mono: t,
+		RawUnit: units.Canonical(m.q), Status: st, Raw: fmt.Sprintf("%.5g", v), Mono: t,
 		Wall: m.p.clk.Now(), AfterReconnect: m.wasLost}
 	m.wasLost = false
 	return r, nil
@@ -170,6 +184,10 @@ type memJournal struct {
 	onCut     func()
 	clk       clock.Clock
 	verifyErr error
+	// failOn, when set, makes the append it returns true for fail, and
+	// every append after it: a journal whose storage has gone.
+	failOn func(kind entry.Kind, payload any) bool
+	failed bool
 }
 
 func newMemJournal(clk clock.Clock) *memJournal {
@@ -196,6 +214,10 @@ func (j *memJournal) Append(ctx context.Context, session string, kind entry.Kind
 		return 0, fmt.Errorf("session %s already ended", session)
 	}
 	j.n++
+	if j.failed || (j.failOn != nil && j.failOn(kind, payload)) {
+		j.failed = true
+		return 0, fmt.Errorf("write journal: disk I/O error")
+	}
 	if j.cutAfter > 0 && j.n == j.cutAfter {
 		j.cancel()
 		if j.onCut != nil {

@@ -10,6 +10,7 @@ import (
 	"strings"
 	"time"
 
+	"kermalux/calib"
 	"kermalux/drivers"
 	"kermalux/drivers/units"
 	"kermalux/procedures/entry"
@@ -20,6 +21,10 @@ import (
 type retryError struct {
 	reason string
 	free   bool // does not count against the attempts (timer reset, meter back)
+	// rangeOrSettle: the signal itself is the problem (over or under
+	// range, never settling, a meter that does not see the beam), which
+	// taking it again the same way is unlikely to change.
+	rangeOrSettle bool
 }
 
 func (r *retryError) Error() string { return "retake: " + r.reason }
@@ -47,31 +52,35 @@ type held struct {
 
 // attempt is one try at one position of a measure step.
 type attempt struct {
-	idx     int
-	step    Step
-	spec    *MeasureSpec
-	posIdx  int
-	pos     Position
-	label   string
-	roles   []string // meters read, in turn
-	inStep  map[string]bool
-	signal  string // the meter the beam is detected with
-	errs    map[string]int
-	thresh  float64
-	darkM   float64
-	beamOn  bool
-	lastSig time.Duration
-	onAt    time.Duration // attempt's beam detection time
-	offAt   time.Duration
-	settled time.Duration // -1 until settled
-	series  map[string][]tv
-	hold    []held
-	flags   []string
-	calib   bool
-	bL, bK  float64
-	modes   map[string]float64
-	seen    map[string]float64 // beam level each other step meter must exceed before settling
-	above   int                // consecutive dosimeter readings above the kerma ceiling
+	idx    int
+	step   Step
+	spec   *MeasureSpec
+	posIdx int
+	pos    Position
+	label  string
+	roles  []string // meters read, in turn
+	inStep map[string]bool
+	signal string // the meter the beam is detected with
+	errs   map[string]int
+	phase  phase
+	tracks map[string]*track // by role, every meter the attempt reads (attempt.go)
+	beamOn bool              // some meter has risen and not every risen one has fallen
+	// prompted: the beam prompt was answered, so a failure must have the
+	// beam released whatever the meters show.
+	prompted bool
+	lastSig  time.Duration // time of the latest reading counted by the beam-on timer
+	onAt     time.Duration // when the exposure began (first meter's rise)
+	onBase   time.Duration // the cumulative beam-on when it began
+	exposed  time.Duration // the exposure's beam-on time, once off
+	allowed  time.Duration // beam-on this attempt may use (what is left of the position's limit)
+	settled  time.Duration // -1 until settled
+	series   map[string][]tv
+	hold     []held
+	flags    []string
+	calib    bool
+	bL, bK   float64
+	modes    map[string]float64
+	above    int // consecutive dosimeter readings above the kerma ceiling
 }
 
 func roleName(role string) string {
@@ -111,11 +120,21 @@ func (e *Engine) measure(ctx context.Context, idx int, s Step) error {
 func (e *Engine) measurePosition(ctx context.Context, idx int, s Step, pi int, pos Position, npos int) error {
 	l := e.cfg.Limits
 	m := s.Measure
-	failures := 0
-	var lastReason string
+	maxOn := m.MaxBeamOn
+	if maxOn == 0 {
+		maxOn = l.MaxBeamOn
+	}
+	// used is the beam-on of this position's attempts, their releases
+	// included: together they may not pass the position's limit, which
+	// is what the procedure checker adds up into the beam budget.
+	var used time.Duration
+	failures, signalFails := 0, 0
 	for {
 		a := e.newAttempt(idx, s, pi, pos, npos)
+		a.allowed = maxOn - used
+		before := e.st.beamOn
 		p, err := e.runAttempt(ctx, a)
+		used += e.st.beamOn - before
 		if err == nil {
 			p.finite()
 			e.st.putPos(p)
@@ -131,12 +150,23 @@ func (e *Engine) measurePosition(ctx context.Context, idx int, s Step, pi int, p
 		}
 		if !re.free {
 			failures++
+			if re.rangeOrSettle {
+				signalFails++
+			}
 		}
-		lastReason = re.reason
 		if err := e.journal(ctx, entry.KindStep, entry.Step{Index: idx, Of: len(e.cfg.Procedure.Steps), ID: s.ID, Kind: string(s.Kind), FieldMode: s.FieldMode, State: entry.StepRetake, Reason: re.reason}); err != nil {
 			return err
 		}
-		if failures >= l.Retries {
+		// Bounded: the same signal problem Retries times, any problem
+		// twice as often, or the position's beam-on limit used up, and the
+		// position is not measurable; the sequence goes on.
+		switch {
+		case m.Beam && used >= maxOn:
+			return e.notMeasurable(ctx, idx, s, pi, pos, npos, fmt.Sprintf("%s, and the reading's beam-on limit of %s is used up", re.reason, spokenDuration(maxOn)))
+		case signalFails >= l.Retries, failures >= 2*l.Retries:
+			return e.notMeasurable(ctx, idx, s, pi, pos, npos, fmt.Sprintf("%s, %s times", re.reason, strings.ToLower(spellCount(failures))))
+		}
+		if failures > 0 && failures%l.Retries == 0 && !re.free {
 			text := fmt.Sprintf("This reading failed %d times: %s. Press the switch to try again, or long press to go back.", failures, re.reason)
 			if !m.Beam {
 				text = fmt.Sprintf("This reading failed %d times: %s. Press the switch to try again.", failures, re.reason)
@@ -144,13 +174,32 @@ func (e *Engine) measurePosition(ctx context.Context, idx int, s Step, pi int, p
 			if _, err := e.ask(ctx, panel.Prompt{Message: panel.Message{Text: text, Level: panel.Warn, Action: panel.ActAcknowledge}, Step: idx, StepID: s.ID}); err != nil {
 				return err
 			}
-			failures = 0
 			continue
 		}
-		if err := e.say(ctx, idx, panel.Message{Text: "Retake: " + lastReason + ".", Level: panel.Retry}); err != nil {
+		if err := e.say(ctx, idx, panel.Message{Text: "Retake: " + re.reason + ".", Level: panel.Retry}); err != nil {
 			return err
 		}
 	}
+}
+
+// notMeasurable records a position that could not be measured, with its
+// reason, and says so; the figures that use it are not measurable.
+func (e *Engine) notMeasurable(ctx context.Context, idx int, s Step, pi int, pos Position, npos int, reason string) error {
+	p := posStat{Step: s.ID, Index: pi, Mode: s.FieldMode, Unmeasurable: reason, Dark: !s.Measure.Beam}
+	what := "This reading"
+	if npos > 0 {
+		p.Label, p.R, p.Angle = pos.Label, pos.R, pos.Angle
+		what = "Position " + pos.Label
+	}
+	e.st.putPos(p)
+	b, err := json.Marshal(p)
+	if err != nil {
+		return fmt.Errorf("step %d (%s): record measurement: %w", idx, s.ID, err)
+	}
+	if err := e.journal(ctx, entry.KindEvent, entry.Event{Step: idx, Name: evMeasured, Detail: string(b), BeamOn: e.st.beamOn.Seconds()}); err != nil {
+		return err
+	}
+	return e.say(ctx, idx, panel.Message{Text: what + " is not measurable: " + reason + ". The sequence goes on.", Level: panel.Warn})
 }
 
 func (e *Engine) newAttempt(idx int, s Step, pi int, pos Position, npos int) *attempt {
@@ -188,36 +237,33 @@ func (e *Engine) newAttempt(idx int, s Step, pi int, pos Position, npos int) *at
 	return a
 }
 
-// runAttempt takes one reading position: dark level, beam prompt, beam
-// detection, settling, sampling to the precision target, release.
+// runAttempt takes one reading position: dark level, beam prompt, then
+// the beam attempt's phases (attempt.go): waiting, rising, settling,
+// sampling to the type A target, releasing, off.
 func (e *Engine) runAttempt(ctx context.Context, a *attempt) (posStat, error) {
 	if !a.spec.Beam {
 		return e.darkAttempt(ctx, a)
 	}
 	l := e.cfg.Limits
 	e.freshen(a)
-	// Dark level of the signal, for beam detection, before the prompt.
-	dark, err := e.readFor(ctx, a, l.DarkTime, 5)
+	// Each meter's dark level and noise, for its beam threshold, before
+	// the prompt.
+	dark, steps, err := e.readFor(ctx, a, l.DarkTime, 5)
 	if err != nil {
 		return posStat{}, e.attemptFailed(ctx, a, err)
 	}
-	a.darkM, a.thresh = e.threshold(a, dark[a.signal])
-	// Each meter of the step must show the beam itself before settling is
-	// judged: a meter whose readings lag (a streaming meter's buffered
-	// lines) would otherwise look steady at its dark level.
-	a.seen = map[string]float64{}
-	for _, role := range a.spec.Meters {
-		if role == a.signal {
-			continue
-		}
-		m, sd := meanSD(dark[role])
-		a.seen[role] = m + math.Max(l.BeamSigmas*sd, math.Max(0.5*math.Abs(m), 1e-9))
+	a.tracks = map[string]*track{}
+	for _, role := range a.roles {
+		a.tracks[role] = e.newTrack(role, dark[role], steps[role])
 	}
-	if a.signal == Dosimeter && a.darkM > 5*l.BeamFloor {
+	if t := a.tracks[Dosimeter]; t != nil && t.dark > 5*l.BeamFloor {
 		// The beam is already on (a pedal held through a restart): have it
 		// released before taking the dark level again.
-		a.beamOn, a.thresh = true, 5*l.BeamFloor
+		t.thresh = 5 * l.BeamFloor
+		t.risen, t.above = true, true
+		a.beamOn, a.prompted = true, true
 		a.lastSig = e.cfg.Clock.Mono()
+		a.onAt, a.onBase = a.lastSig, e.st.beamOn
 		if err := e.release(ctx, a, panel.Warn, "The beam is on. Release the beam."); err != nil {
 			return posStat{}, err
 		}
@@ -242,62 +288,102 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (posStat, error) {
 	if _, err := e.ask(ctx, p); err != nil {
 		return posStat{}, err
 	}
+	a.prompted = true
 	e.freshen(a) // lines queued while the operator was at the prompt are old
-	// Wait for the beam.
+	e.enterPhase(ctx, a, phWaiting, "")
 	deadline := e.cfg.Clock.Mono() + l.BeamWait
 	for !a.beamOn {
 		if e.cfg.Clock.Mono() > deadline {
-			return posStat{}, &retryError{reason: "no beam was seen"}
+			return posStat{}, e.attemptFailed(ctx, a, &retryError{reason: "no beam was seen"})
 		}
 		if err := e.cycle(ctx, a); err != nil {
 			return posStat{}, e.attemptFailed(ctx, a, err)
 		}
 	}
 	_ = e.cfg.Panel.Indicate(ctx, panel.BeamOn)
-	// Settle, then sample until precise enough.
-	maxOn := a.spec.MaxBeamOn
-	if maxOn == 0 {
-		maxOn = l.MaxBeamOn
-	}
+	// Rise, settle, then sample until precise enough, within what is left
+	// of the position's beam-on limit.
 	var stat posStat
 	var short string
-	for {
+	lastCheck := -24 * time.Hour   // judged at the first reading
+	candidate := time.Duration(-1) // when the signal first looked settled
+	for done := false; !done; {
 		if err := e.cycle(ctx, a); err != nil {
 			return posStat{}, e.attemptFailed(ctx, a, err)
 		}
-		if a.settled < 0 && len(a.seen) == 0 && e.isSettled(a) {
-			a.settled = a.lastSig
-		}
 		onFor := a.lastSig - a.onAt
-		if a.settled >= 0 {
-			var done bool
+		switch a.phase {
+		case phRising:
+			if a.risenAll() {
+				e.enterPhase(ctx, a, phSettling, "")
+			} else if onFor >= riseMax {
+				names, under := a.notRisen()
+				reason := "the " + strings.Join(names, " and the ") + " does not see the beam"
+				if under {
+					reason = "the " + strings.Join(names, " and the ") + " reads under range with the beam on"
+				}
+				return posStat{}, e.attemptFailed(ctx, a, &retryError{reason: reason, rangeOrSettle: true})
+			}
+		case phSettling:
+			if a.lastSig-lastCheck >= settleEvery {
+				lastCheck = a.lastSig
+				// Settled once, then confirmed by a second look after a
+				// quarter of the time it took (at least half a second), so a signal
+				// that was flat at a turning point (the lagging peak of an
+				// overshoot) shows its decay.
+				switch {
+				case candidate < 0:
+					if e.isSettled(a) {
+						candidate = a.lastSig
+					}
+				case a.lastSig-candidate >= max(500*time.Millisecond, (candidate-a.onAt)/4):
+					if e.isSettled(a) {
+						a.settled = a.lastSig
+						e.enterPhase(ctx, a, phSampling, "")
+					} else {
+						candidate = -1
+					}
+				}
+				if a.settled < 0 && onFor >= l.SettleMax {
+					return posStat{}, e.attemptFailed(ctx, a, &retryError{reason: "the reading is still drifting", rangeOrSettle: true})
+				}
+			}
+		case phSampling:
 			stat, done = e.precise(a)
 			if a.spec.Duration > 0 {
 				done = a.lastSig-a.settled >= a.spec.Duration
 			}
-			if done {
+			if !done && a.lastSig-lastCheck >= driftEvery {
+				lastCheck = a.lastSig
+				if who, ok := e.drifting(a); ok {
+					n := len(a.hold)
+					if err := e.flush(ctx, a, false); err != nil {
+						return posStat{}, err
+					}
+					_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: a.idx, Name: evDiscarded, Detail: fmt.Sprintf("%d readings not used: %s drifting after settling", n, who), BeamOn: e.st.beamOn.Seconds()})
+					a.settled = -1
+					e.enterPhase(ctx, a, phSettling, who+" drifting")
+				}
+			}
+		}
+		if !done && onFor >= a.allowed {
+			if a.phase == phSampling && stat.count() >= minSamples {
+				short = "precision target not reached in the maximum beam-on time"
 				break
 			}
-		}
-		if onFor >= maxOn {
-			if a.settled < 0 {
-				return posStat{}, e.attemptFailed(ctx, a, &retryError{reason: "the reading is still drifting"})
+			reason := "the reading did not settle within its beam-on limit"
+			if a.phase == phRising {
+				names, _ := a.notRisen()
+				reason = "the " + strings.Join(names, " and the ") + " does not see the beam"
 			}
-			if stat.NG+stat.NL+stat.NK == 0 || (stat.NG < l.MinPairs && stat.NL < l.MinPairs && stat.NK < l.MinPairs) {
-				return posStat{}, e.attemptFailed(ctx, a, &retryError{reason: "too few readings"})
-			}
-			short = "precision target not reached in the maximum beam-on time"
-			break
-		}
-		if a.settled < 0 && onFor >= l.SettleMax {
-			return posStat{}, e.attemptFailed(ctx, a, &retryError{reason: "the reading is still drifting"})
+			return posStat{}, e.attemptFailed(ctx, a, &retryError{reason: reason, rangeOrSettle: true})
 		}
 	}
 	if short != "" {
 		stat.Flags = append(stat.Flags, short)
 	}
-	stat.BeamOnS = (a.lastSig - a.onAt).Seconds()
 	e.finishStat(&stat, a)
+	a.settleResiduals(&stat)
 	// Accept: release the beam at once, then keep the held readings as
 	// used (journalling them first would add the journal's write time to
 	// every exposure, and more of it on a slow board).
@@ -305,11 +391,21 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (posStat, error) {
 		_ = e.flush(ctx, a, true)
 		return posStat{}, err
 	}
+	stat.BeamOnS = a.exposed.Seconds()
 	if err := e.flush(ctx, a, true); err != nil {
 		return posStat{}, err
 	}
 	return stat, nil
 }
+
+// riseMax is how long after the first meter saw the beam every meter of
+// the step must see it; settleEvery and driftEvery are how often (in
+// signal time) settling and drift are judged, each a fit over the series.
+const (
+	riseMax     = 5 * time.Second
+	settleEvery = 200 * time.Millisecond
+	driftEvery  = 500 * time.Millisecond
+)
 
 // resolveMode turns "largest" and "smallest" into a field mode's name.
 func (a *attempt) resolveMode(v string) string {
@@ -366,61 +462,6 @@ func (e *Engine) freshen(a *attempt) {
 	}
 }
 
-// threshold is the beam-on level: dark mean + max(k·σ_dark, floor).
-func (e *Engine) threshold(a *attempt, dark []float64) (mean, thr float64) {
-	l := e.cfg.Limits
-	mean, sd := meanSD(dark)
-	floor := l.BeamFloor
-	if a.signal != Dosimeter {
-		floor = math.Max(1, 0.5*mean) // cd/m²: no dosimeter, detect on the light
-	}
-	return mean, mean + math.Max(l.BeamSigmas*sd, floor)
-}
-
-// isSettled: the brightness control has stopped moving and both meters
-// have caught up: no trend in the kerma rate, the luminance, or their
-// ratio over the settling window.
-func (e *Engine) isSettled(a *attempt) bool {
-	l := e.cfg.Limits
-	const minN = 5
-	since := func(xs []tv) []tv {
-		i := 0
-		for i < len(xs) && xs[i].t < a.onAt {
-			i++
-		}
-		return xs[i:]
-	}
-	k := since(a.series[Dosimeter])
-	lum := since(a.series[Photometer])
-	if a.inStep[Dosimeter] && !steady(k, l.SettleWindow, l.SettleSlope, minN) {
-		return false
-	}
-	if a.inStep[Photometer] && !steady(lum, l.SettleWindow, l.SettleSlope, minN) {
-		return false
-	}
-	if a.inStep[Dosimeter] && a.inStep[Photometer] {
-		w := window(lum, l.SettleWindow)
-		g := pairs(w, k)
-		if len(g) < minN {
-			return false
-		}
-		xs := make([]tv, 0, len(g))
-		off := len(w) - len(g)
-		for i, v := range g {
-			j := i + off
-			if j < 0 || j >= len(w) {
-				continue
-			}
-			xs = append(xs, tv{w[j].t, v})
-		}
-		rel, se, ok := trend(xs)
-		if !ok || math.Abs(rel) >= l.SettleSlope+2*se {
-			return false
-		}
-	}
-	return true
-}
-
 // after returns the readings of xs at or after t.
 func after(xs []tv, t time.Duration) []tv {
 	i := 0
@@ -432,21 +473,18 @@ func after(xs []tv, t time.Duration) []tv {
 
 // precise computes the statistics of the samples taken since settling and
 // applies the sequential stopping rule: done when the relative expanded
-// uncertainty (type A of the mean, with the Student t coverage factor for
-// the effective degrees of freedom, combined with the meters' type B) has
-// reached the target. Where the type B alone is above the target, the
-// rule stops when type A adds little (a third of the target).
+// uncertainty of repeatability (the type A of the mean, with the Student t
+// coverage factor at its degrees of freedom, calib.ExpandedRel) has
+// reached the target. The target is for the type A part only: the
+// meters' calibration cannot be reduced by sampling longer, and enters U
+// in the figure's budget (ENGINE.md, "Stopping rule").
 func (e *Engine) precise(a *attempt) (posStat, bool) {
 	l := e.cfg.Limits
-	target := a.spec.Target
-	if target == 0 {
-		target = l.Target
-	}
+	target := e.target(a)
 	p := posStat{Step: a.step.ID, Index: a.posIdx, Label: a.label, R: a.pos.R, Angle: a.pos.Angle, Mode: a.step.FieldMode, Calib: a.calib, Flags: slices.Clone(a.flags)}
 	lum := after(a.series[Photometer], a.settled)
 	k := after(a.series[Dosimeter], a.settled)
 	var uA, neff float64
-	var uB []float64
 	if a.inStep[Photometer] && len(lum) > 0 {
 		v := values(lum)
 		p.HasL = true
@@ -468,7 +506,7 @@ func (e *Engine) precise(a *attempt) (posStat, bool) {
 	switch {
 	case p.HasL && p.HasK:
 		g := pairs(lum, k)
-		if len(g) < 2 {
+		if len(g) < 2 || p.NK < 2 {
 			return p, false
 		}
 		p.HasG = true
@@ -476,36 +514,35 @@ func (e *Engine) precise(a *attempt) (posStat, bool) {
 		uA, neff = relTypeA(g)
 		p.GU = uA * math.Abs(p.G)
 		p.NG = len(g)
-		uB = []float64{a.bL, a.bK}
+		// The figure is the ratio of the two means (calib.ConversionFactor),
+		// so its repeatability is that of both: relative variances add
+		// (JCGM 100:2008 5.1.6), degrees of freedom by Welch–Satterthwaite
+		// (G.2b).
+		ul, nl := relTypeA(values(lum))
+		uk, nk := relTypeA(values(k))
+		uA = math.Hypot(ul, uk)
+		neff = 1 + calib.WelchSatterthwaite([]float64{ul, uk}, []float64{nl - 1, nk - 1})
 	case p.HasL:
 		uA, neff = relTypeA(values(lum))
-		uB = []float64{a.bL}
 	case p.HasK:
 		uA, neff = relTypeA(values(k))
-		uB = []float64{a.bK}
 	default:
 		return p, false
 	}
-	n := max(p.NG, p.NL, p.NK)
-	if p.HasG {
-		n = p.NG
-	}
-	if n < l.MinPairs || math.IsInf(uA, 1) {
+	if p.count() < max(l.MinPairs, minSamples) || math.IsInf(uA, 1) {
 		return p, false
 	}
-	U, _, _ := expandedRel(uA, neff, uB...)
-	_, ucB, _ := expandedRel(0, math.Inf(1), uB...)
-	// A target at or below what the calibration alone allows (a 2 %
-	// target with certificates of 2 % at k = 2) cannot be reached by
-	// sampling longer: stop once the repeatability adds no more than a
-	// third of the target to the calibration's part. This is the usual
-	// case, so it is described in ENGINE.md rather than flagged on every
-	// result.
-	goal := target
-	if 2*ucB >= 0.9*target {
-		goal = math.Hypot(2*ucB, target/3)
+	U, _, _ := expandedRel(uA, neff)
+	return p, U <= target
+}
+
+// count is the number of readings the position's result rests on: the
+// time-aligned pairs when it has both meters, else the one meter's.
+func (p posStat) count() int {
+	if p.HasG {
+		return p.NG
 	}
-	return p, U <= goal
+	return max(p.NL, p.NK)
 }
 
 // darkAttempt takes a beam-off reading for a fixed time (dark level,
@@ -520,7 +557,6 @@ func (e *Engine) darkAttempt(ctx context.Context, a *attempt) (posStat, error) {
 		return posStat{}, err
 	}
 	e.freshen(a)
-	a.thresh = math.Inf(1) // no beam detection in a beam-off reading
 	// First let the meters come down from any earlier exposure (the
 	// photometer's response is slower than the dosimeter's): no trend
 	// over the settling window, as for a beam reading.
@@ -641,39 +677,61 @@ func darkPrompt(text string, d time.Duration) string {
 
 // readFor reads every meter of the attempt in turn for d (at least minN
 // readings of each), journalling the readings as not used, and returns
-// the corrected values per role.
-func (e *Engine) readFor(ctx context.Context, a *attempt, d time.Duration, minN int) (map[string][]float64, error) {
+// the corrected values per role (an under-range reading as 0: the meter
+// shows nothing) and each meter's display step in the corrected scale
+// (the certificate's resolution, else the finest printed step; 0 when
+// neither is known).
+func (e *Engine) readFor(ctx context.Context, a *attempt, d time.Duration, minN int) (map[string][]float64, map[string]float64, error) {
 	out := map[string][]float64{}
+	steps := map[string]float64{}
 	start := e.cfg.Clock.Mono()
-	for e.cfg.Clock.Mono()-start < d || len(out[a.signal]) < minN {
+	enough := func() bool {
+		for _, role := range a.roles {
+			if len(out[role]) < minN {
+				return false
+			}
+		}
+		return true
+	}
+	for e.cfg.Clock.Mono()-start < d || !enough() {
 		for _, role := range a.roles {
 			for n := e.takes(role); n > 0; n-- {
 				r, c, err := e.readOne(ctx, a, role)
 				if err != nil {
-					return nil, err
+					return nil, nil, err
 				}
 				if err := e.guard(ctx, a, role, r, c); errors.Is(err, errIgnore) {
 					continue
 				} else if err != nil {
-					return nil, err
+					return nil, nil, err
 				}
 				v := c.Value
 				if r.Status == drivers.StatusUnderRange {
-					v = 0 // below the meter's range: nothing to speak of
+					v = 0
+				}
+				step := c.Resolution * c.Scale
+				if step <= 0 {
+					step = printedStep(r)
+				}
+				if step > 0 && (steps[role] == 0 || step < steps[role]) {
+					steps[role] = step
 				}
 				out[role] = append(out[role], v)
 				if err := e.record(ctx, a, role, r, c, false); err != nil {
-					return nil, err
+					return nil, nil, err
 				}
 			}
 		}
 	}
-	return out, nil
+	return out, steps, nil
 }
 
 // cycle reads each meter of the attempt once (a streaming meter: every
 // reading that has arrived, see takes) and updates the beam state.
 func (e *Engine) cycle(ctx context.Context, a *attempt) error {
+	if e.journalErr != nil {
+		return e.journalErr
+	}
 	for _, role := range a.roles {
 		for n := e.takes(role); n > 0; n-- {
 			r, c, err := e.readOne(ctx, a, role)
@@ -855,7 +913,7 @@ func (e *Engine) guard(ctx context.Context, a *attempt, role string, r drivers.R
 		return nil // below range: no beam seen by this meter
 	case drivers.StatusOverRange:
 		_ = e.record(ctx, a, role, r, c, false)
-		return &retryError{reason: "the " + role + " is over range"}
+		return &retryError{reason: "the " + role + " is over range", rangeOrSettle: true}
 	default:
 		_ = e.record(ctx, a, role, r, c, false)
 		return &retryError{reason: "the " + role + " reports a fault"}
@@ -876,55 +934,83 @@ func (e *Engine) kermaStop(ctx context.Context, a *attempt, v, ceil float64) err
 	return fmt.Errorf("step %d (%s): %.4g µGy/s: %w", a.idx, a.step.ID, v, ErrKermaOutOfRange)
 }
 
-// observe updates beam state, the beam-on timer and the series with one
-// reading, and journals or holds it.
+// observe updates the meters' tracks, the beam state, the beam-on timer
+// and the series with one reading, and journals or holds it.
 func (e *Engine) observe(ctx context.Context, a *attempt, role string, r drivers.Reading, c Corrected) error {
 	v := c.Value
-	if r.Status == drivers.StatusUnderRange {
-		v = 0
-	}
-	if role == a.signal {
-		switch {
-		case !a.beamOn && v > a.thresh:
-			a.beamOn = true
-			a.onAt = r.Mono
-			a.lastSig = r.Mono
-			_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: a.idx, Name: evBeamOn, Detail: fmt.Sprintf("%s %.4g above threshold %.4g", role, v, a.thresh), BeamOn: e.st.beamOn.Seconds()})
-		case a.beamOn && v <= a.thresh:
-			if err := e.tick(ctx, a, r.Mono); err != nil && !errors.Is(err, errBeamAlarm) {
-				return err
+	usable := r.Usable()
+	if t := a.tracks[role]; t != nil {
+		if r.Status == drivers.StatusUnderRange {
+			t.under++
+		}
+		rose, fell := t.see(r.Mono, v, usable)
+		if rose {
+			if !a.beamOn {
+				a.beamOn = true
+				on, _ := t.riseTime()
+				a.onAt, a.lastSig, a.onBase = on, on, e.st.beamOn
+				_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: a.idx, Name: evBeamOn, Detail: describeRise(t, v), BeamOn: e.st.beamOn.Seconds()})
+				e.enterPhase(ctx, a, phRising, role)
 			}
-			a.beamOn = false
-			a.offAt = r.Mono
-			_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: a.idx, Name: evBeamOff, BeamOn: e.st.beamOn.Seconds()})
-			_ = e.record(ctx, a, role, r, c, false)
-			_ = e.cfg.Panel.Indicate(ctx, panel.Ready)
-			return &retryError{reason: "the beam dropped"}
-		case a.beamOn:
-			if err := e.tick(ctx, a, r.Mono); err != nil {
-				_ = e.record(ctx, a, role, r, c, false)
-				return err
+			if a.inStep[role] {
+				// Readings before this one belong to the rise: the
+				// meter's series starts afresh.
+				a.series[role] = nil
 			}
 		}
-	}
-	if a.beamOn {
-		if lvl, ok := a.seen[role]; ok && v > lvl {
-			delete(a.seen, role)
-			// Readings before this one belong to the rise: start the
-			// series afresh.
-			a.series[role] = nil
+		if a.beamOn {
+			if err := e.tick(ctx, a, r.Mono); err != nil {
+				_ = e.record(ctx, a, role, r, c, false)
+				if !fell || !errors.Is(err, errBeamAlarm) {
+					return err
+				}
+			}
+		}
+		if fell {
+			_ = e.record(ctx, a, role, r, c, false)
+			if !a.anyAbove() {
+				e.beamOff(ctx, a)
+			}
+			if r.Status == drivers.StatusUnderRange {
+				return &retryError{reason: "the " + role + " went under range", rangeOrSettle: true}
+			}
+			return &retryError{reason: "the beam dropped"}
 		}
 	}
 	live := a.beamOn || !a.spec.Beam
-	if live && a.inStep[role] && (r.Usable() || r.Status == drivers.StatusUnderRange) {
+	switch {
+	case live && a.inStep[role] && usable:
 		a.series[role] = append(a.series[role], tv{r.Mono, v})
+	case !a.spec.Beam && a.inStep[role] && r.Status == drivers.StatusUnderRange:
+		// A dark under range: the meter shows nothing (finishStat counts
+		// it, and the range floor bounds the level).
+		a.series[role] = append(a.series[role], tv{r.Mono, 0})
 	}
 	sampling := live && a.inStep[role] && (a.settled >= 0 || !a.spec.Beam)
-	if sampling {
+	if sampling && (usable || !a.spec.Beam) {
 		a.hold = append(a.hold, held{role, r, c})
 		return nil
 	}
 	return e.record(ctx, a, role, r, c, false)
+}
+
+// beamOff ends the exposure once every meter that rose has fallen: the
+// beam-on timer is set to what it was when the exposure began plus the
+// exposure's time from the meters' edges (attempt.exposure), which takes
+// out both the late detection of a rising signal and the meters' slow
+// fall; the live count stands when the edges cannot tell.
+func (e *Engine) beamOff(ctx context.Context, a *attempt) {
+	a.beamOn = false
+	d, ok := a.exposure()
+	live := a.lastSig - a.onAt
+	if !ok {
+		d = live
+	}
+	a.exposed = d
+	e.st.beamOn = a.onBase + d
+	_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: a.idx, Name: evBeamOff, Detail: fmt.Sprintf("exposure %.2f s from the meters' edges (%.2f s between threshold crossings)", d.Seconds(), live.Seconds()), BeamOn: e.st.beamOn.Seconds()})
+	e.enterPhase(ctx, a, phOff, "")
+	_ = e.cfg.Panel.Indicate(ctx, panel.Ready)
 }
 
 // tick advances the cumulative beam-on timer to t and speaks its marks:
@@ -968,7 +1054,7 @@ func (e *Engine) attemptFailed(ctx context.Context, a *attempt, err error) error
 	}
 	if len(a.hold) > 0 {
 		n := len(a.hold)
-		if ferr := e.flush(ctx, a, false); ferr != nil {
+		if ferr := e.flush(ctx, a, false); ferr != nil && e.journalErr == nil {
 			return ferr
 		}
 		_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: a.idx, Name: evDiscarded, Detail: fmt.Sprintf("%d readings not used: %v", n, err), BeamOn: e.st.beamOn.Seconds()})
@@ -998,14 +1084,33 @@ func (e *Engine) attemptFailed(ctx context.Context, a *attempt, err error) error
 		}
 		return &retryError{reason: "the beam-on alarm was reset", free: true}
 	case errors.As(err, &re):
-		if a.beamOn {
-			if werr := e.release(ctx, a, panel.Retry, "Release the beam."); werr != nil {
-				return werr
-			}
+		if werr := e.releaseAfter(ctx, a, panel.Retry); werr != nil {
+			return werr
 		}
+		e.enterPhase(ctx, a, phFailed, re.reason)
 		return re
 	}
+	// Anything else (a journal that cannot be written, a fault) ends the
+	// session: the beam is released first.
+	if werr := e.releaseAfter(ctx, a, panel.Warn); werr != nil && !errors.Is(werr, ErrJournal) {
+		return errors.Join(err, werr)
+	}
+	e.enterPhase(ctx, a, phFailed, err.Error())
 	return err
+}
+
+// releaseAfter has the beam released after a failed attempt: said and
+// waited for while a meter sees the beam, said anyway once the beam was
+// asked for (a beam no meter saw, a dim light under every threshold, is
+// still a beam).
+func (e *Engine) releaseAfter(ctx context.Context, a *attempt, lv panel.Level) error {
+	switch {
+	case a.beamOn:
+		return e.release(ctx, a, lv, "Release the beam.")
+	case a.prompted:
+		return e.say(ctx, a.idx, panel.Message{Text: "Release the beam.", Level: lv, Action: panel.ActBeamOff})
+	}
+	return nil
 }
 
 // waitMeter says a meter is lost and waits for it to come back.
@@ -1055,15 +1160,30 @@ func actIf(beam bool) panel.Action {
 }
 
 // release says "release the beam" and waits until the signal shows it off.
+// A journal that cannot take the message does not stop the wait.
 func (e *Engine) release(ctx context.Context, a *attempt, lv panel.Level, text string) error {
-	if err := e.say(ctx, a.idx, panel.Message{Text: text, Level: lv, Action: panel.ActBeamOff}); err != nil {
+	err := e.say(ctx, a.idx, panel.Message{Text: text, Level: lv, Action: panel.ActBeamOff})
+	if err != nil && (ctx.Err() != nil || e.journalErr == nil) {
 		return err
 	}
-	return e.waitOff(ctx, a, lv, text)
+	return errors.Join(err, e.waitOff(ctx, a, lv, text))
 }
 
-// waitOff reads until the beam is off, repeating text every 10 s.
+// waitOff reads until every meter that rose has fallen (the beam is off),
+// repeating text every 10 s. Without tracks (a safety stop before the
+// beam prompt) the dosimeter is watched against five times its beam
+// floor. A journal that fails meanwhile does not stop the wait: the beam
+// must be seen off first.
 func (e *Engine) waitOff(ctx context.Context, a *attempt, lv panel.Level, text string) error {
+	if a.beamOn && (a.tracks == nil || !a.anyAbove()) {
+		a.tracks = map[string]*track{}
+		if slices.Contains(a.roles, Dosimeter) {
+			a.tracks[Dosimeter] = &track{role: Dosimeter, thresh: 5 * e.cfg.Limits.BeamFloor, risen: true, above: true}
+		} else {
+			a.beamOn = false
+		}
+	}
+	e.enterPhase(ctx, a, phReleasing, "")
 	again := e.cfg.Clock.Mono() + 10*time.Second
 	for a.beamOn {
 		for _, role := range a.roles {
@@ -1075,20 +1195,16 @@ func (e *Engine) waitOff(ctx context.Context, a *attempt, lv panel.Level, text s
 				}
 				continue
 			}
-			if role == a.signal {
-				v := c.Value
-				if r.Status == drivers.StatusUnderRange {
-					v = 0
-				}
+			if t := a.tracks[role]; t != nil && a.beamOn {
+				t.see(r.Mono, c.Value, r.Usable())
 				if err := e.tick(ctx, a, r.Mono); err != nil && !errors.Is(err, errBeamAlarm) {
 					return err
 				}
-				if v <= a.thresh || a.thresh == 0 && v <= e.cfg.Limits.BeamFloor {
-					a.beamOn = false
-					_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: a.idx, Name: evBeamOff, BeamOn: e.st.beamOn.Seconds()})
+				if !a.anyAbove() {
+					e.beamOff(ctx, a)
 				}
 			}
-			if err := e.record(ctx, a, role, r, c, false); err != nil {
+			if err := e.record(ctx, a, role, r, c, false); err != nil && e.journalErr == nil {
 				return err
 			}
 		}

@@ -166,6 +166,14 @@ func (e *Engine) run(ctx context.Context) (Summary, error) {
 			return e.finish(ctx, sum, err)
 		}
 		err := e.doStep(ctx, idx, step)
+		if e.journalErr != nil && ctx.Err() == nil {
+			// A record that could not be written: nothing more can be
+			// kept, so the session stops here (the beam was released by
+			// the measurement that found it).
+			_ = e.cfg.Panel.Indicate(ctx, panel.Fault)
+			_ = e.say(ctx, idx, panel.Message{Text: "Stop. The journal cannot be written. The session is stopped. What was recorded is kept.", Level: panel.Alarm})
+			return e.finish(ctx, sum, errors.Join(e.journalErr, err))
+		}
 		var skip *skipError
 		var skipMode *errSkipMode
 		switch {
@@ -420,19 +428,31 @@ func (e *Engine) journal(ctx context.Context, kind entry.Kind, payload any) erro
 	return err
 }
 
+// appendSeq appends a record and returns its sequence number. A failed
+// write other than a cancelled context (a power cut, a kill) is kept in
+// journalErr: the engine stops measuring at its next reading, has the beam
+// released and ends the session, whatever the caller did with the error
+// (see journalFailed).
 func (e *Engine) appendSeq(ctx context.Context, kind entry.Kind, payload any) (int64, error) {
 	seq, err := e.cfg.Journal.Append(ctx, e.st.session, kind, payload)
 	if err != nil {
-		return 0, fmt.Errorf("journal %s record: %w", kind, err)
+		err = fmt.Errorf("journal %s record: %w", kind, err)
+		if ctx.Err() == nil && e.journalErr == nil {
+			e.journalErr = fmt.Errorf("%w: %w", ErrJournal, err)
+		}
+		return 0, err
 	}
 	return seq, nil
 }
 
-// say shows and speaks m, and journals it.
+// say shows and speaks m, and journals it. It is spoken even when the
+// journal cannot take it (a "release the beam" must be heard whatever the
+// storage does); the journal's error is returned after.
 func (e *Engine) say(ctx context.Context, step int, m panel.Message) error {
 	e.sinceAsk = append(e.sinceAsk, m)
-	if err := e.journal(ctx, entry.KindPrompt, entry.Prompt{Step: step, Level: string(m.Level), Action: string(m.Action), Text: m.Text}); err != nil {
-		return err
+	jerr := e.journal(ctx, entry.KindPrompt, entry.Prompt{Step: step, Level: string(m.Level), Action: string(m.Action), Text: m.Text})
+	if jerr != nil && ctx.Err() != nil {
+		return jerr
 	}
 	if err := e.cfg.Panel.Say(ctx, m); err != nil {
 		if ctx.Err() != nil {
@@ -440,7 +460,7 @@ func (e *Engine) say(ctx context.Context, step int, m panel.Message) error {
 		}
 		slog.Warn("panel could not say a message", "text", m.Text, "err", err)
 	}
-	return nil
+	return jerr
 }
 
 // ask asks p and journals the prompt and the answer. Pause, abort and

@@ -40,13 +40,22 @@ type posStat struct {
 	Drift float64 `json:"drift,omitempty"` // relative change over a fixed-duration reading (the largest of Drifts)
 	// Drifts is the relative change of each meter (by role) over a
 	// fixed-duration reading of several meters.
-	Drifts    map[string]float64 `json:"drifts,omitempty"`
-	Calib     bool               `json:"calibrated"`
-	Flags     []string           `json:"flags,omitempty"`
-	Dark      bool               `json:"dark,omitempty"`
-	Mode      string             `json:"field_mode,omitempty"`
-	BeamOnS   float64            `json:"beam_on_s,omitempty"` // beam-on time of the accepted attempt
-	calibStat                    // raw readings, type B parts, dark used (calibration.go)
+	Drifts  map[string]float64 `json:"drifts,omitempty"`
+	Calib   bool               `json:"calibrated"`
+	Flags   []string           `json:"flags,omitempty"`
+	Dark    bool               `json:"dark,omitempty"`
+	Mode    string             `json:"field_mode,omitempty"`
+	BeamOnS float64            `json:"beam_on_s,omitempty"` // beam-on time of the accepted attempt
+	// Settle is each meter's residual settling (by role, and "ratio" for
+	// the two meters' ratio): the relative half-width of a rectangular
+	// distribution, from the attempt's data (residualSettling). Nil in
+	// journals of earlier releases.
+	Settle map[string]float64 `json:"settle,omitempty"`
+	// Unmeasurable says why the position could not be measured (over
+	// range, never settled, its beam-on limit used up); its figures are
+	// then not measurable.
+	Unmeasurable string `json:"not_measurable,omitempty"`
+	calibStat           // raw readings, type B parts, dark used (calibration.go)
 }
 
 // state is what the engine knows; it is rebuilt from the journal on resume.
@@ -269,6 +278,11 @@ func (st *state) havePos(id string, i int) bool {
 // finite replaces values JSON cannot carry (an infinite type A from a
 // single reading) with 0 and flags it.
 func (p *posStat) finite() {
+	for k, v := range p.Settle {
+		if math.IsInf(v, 0) || math.IsNaN(v) {
+			p.Settle[k] = 0
+		}
+	}
 	for _, v := range []*float64{&p.L, &p.LU, &p.K, &p.KU, &p.G, &p.GU, &p.Drift, &p.BL, &p.BK} {
 		if math.IsInf(*v, 0) || math.IsNaN(*v) {
 			*v = 0

@@ -398,7 +398,10 @@ func (x *expander) include(p *Procedure, prefix string, s *Step) time.Duration {
 	}
 	x.stack = append(x.stack, inc.Name)
 	defer func() { x.stack = x.stack[:len(x.stack)-1] }()
-	return x.proc(inc, prefix+s.ID+"/")
+	// An included procedure counts for what it declares when that is more
+	// than its steps may use: its budget is the bound it promises, and
+	// the sequence's own budget must hold every promise it includes.
+	return max(x.proc(inc, prefix+s.ID+"/"), inc.BeamBudget)
 }
 
 // instance copies a written step for one run position: {mode}

@@ -50,7 +50,7 @@ func TestBadScripts(t *testing.T) {
 		// An unreadable budget is said once, for what it is (it used to
 		// add "beam-on budget of 0 s is exceeded").
 		{"bad-budget.yaml", Env{}, []want{{4, 14, `beam_budget: "soon" is not a number with a unit`}}},
-		{"budget-repeat.yaml", Env{}, []want{{4, 1, `beam-on budget of 40 s is exceeded: the steps may use up to 45 s of beam ("modes" repeats 3 times)`}}},
+		{"budget-repeat.yaml", Env{}, []want{{4, 1, `beam-on budget of 40 s is exceeded: the steps may use up to 48 s of beam ("modes" repeats 3 times)`}}},
 		{"unmeasurable.yaml", dosimeterOnly, []want{{17, 7, "no configured meter reports luminance"}}},
 		{"dangling-ref.yaml", Env{}, []want{
 			{21, 13, `disk refers to "covered", which is not a step earlier`},

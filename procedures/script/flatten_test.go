@@ -63,7 +63,8 @@ func TestFlattenTwoModes(t *testing.T) {
 	if m.FieldMode != "20 cm" || m.Precision != 0.02 || m.MaxBeam != 10*time.Second || len(m.Expect) != 1 {
 		t.Errorf("light measure = %+v", m)
 	}
-	if light.MaxBeam() != 10*time.Second {
+	// Its max_beam and the release the checker allows it (ReleaseTime).
+	if light.MaxBeam() != 10*time.Second+ReleaseTime {
 		t.Errorf("light max beam = %v", light.MaxBeam())
 	}
 	fc := byID["factor@20 cm"].Step.Compute
@@ -108,7 +109,7 @@ func TestFlattenBenchModes(t *testing.T) {
 	src := `name: bench-modes
 title: Modes from the bench
 version: "1"
-beam_budget: 30 s
+beam_budget: 33 s
 meters: [dosimeter]
 defaults:
   max_beam: 10 s
@@ -144,9 +145,9 @@ steps:
 	if len(f.Steps) != 3 || f.Steps[2].ID != "rate@28 cm" || f.Steps[2].Step.Text != "28 cm field." {
 		t.Errorf("steps: %+v", f.Steps)
 	}
-	// Four modes exceed max_modes 3 and the 30 s budget (4 × 10 s).
+	// Four modes exceed max_modes 3 and the 33 s budget (4 × (10 s + 1 s of release)).
 	ps := Check(p, Env{FieldModes: []string{"a", "b", "c", "d"}})
-	if len(ps) != 2 || !strings.Contains(ps[0].Reason, "beam-on budget of 30 s is exceeded") || !strings.Contains(ps[1].Reason, "more than max_modes 3") {
+	if len(ps) != 2 || !strings.Contains(ps[0].Reason, "beam-on budget of 33 s is exceeded") || !strings.Contains(ps[1].Reason, "more than max_modes 3") {
 		t.Errorf("four modes: %s", list(ps))
 	}
 }
@@ -157,7 +158,7 @@ func TestSafetyInInclude(t *testing.T) {
 	const body = `name: %s
 title: T
 version: "1"
-beam_budget: 10 s
+beam_budget: 11 s
 meters: [photometer]
 defaults: {max_beam: 10 s}
 steps:
@@ -247,5 +248,44 @@ func TestLargestMode(t *testing.T) {
 	}
 	if f.Steps[2].Step.Setup.Map()[SetFieldMode] != LargestMode {
 		t.Errorf("without a bench: %v", f.Steps[2].Step.Setup.Map())
+	}
+}
+
+// TestIncludedBudgetCounts: an included procedure counts for the budget
+// it declares when that is more than its steps may use, so a sequence's
+// budget holds every promise it includes (contrast-ratio declares 25 s,
+// its two readings may use 2 × (10 s + 1 s) = 22 s).
+func TestIncludedBudgetCounts(t *testing.T) {
+	for _, tt := range []struct {
+		budget string
+		ok     bool
+	}{{"24 s", false}, {"25 s", true}} {
+		src := `name: seq
+title: T
+version: "1"
+beam_budget: ` + tt.budget + `
+meters: [photometer, dosimeter]
+steps:
+  - id: safety
+    kind: include
+    procedure: pre-exposure-safety
+  - id: cr
+    kind: include
+    procedure: contrast-ratio
+`
+		p, err := Parse("seq.yaml", []byte(src))
+		if err != nil {
+			t.Fatal(err)
+		}
+		ps := Check(p, Env{})
+		exceeded := false
+		for _, pr := range ps {
+			if strings.Contains(pr.Reason, "beam-on budget of "+tt.budget+" is exceeded: the steps may use up to 25 s") {
+				exceeded = true
+			}
+		}
+		if exceeded == tt.ok {
+			t.Errorf("budget %s: problems %s", tt.budget, list(ps))
+		}
 	}
 }

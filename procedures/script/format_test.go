@@ -37,7 +37,7 @@ func TestFormatExample(t *testing.T) {
 	for _, s := range f.Steps {
 		beam += s.MaxBeam()
 	}
-	if len(f.Steps) != 15 || beam != 30*time.Second || f.Steps[7].ID != "light@32 cm" {
+	if len(f.Steps) != 15 || beam != 30*time.Second+2*ReleaseTime || f.Steps[7].ID != "light@32 cm" {
 		t.Errorf("%d steps, %v of beam, step 8 %q", len(f.Steps), beam, f.Steps[7].ID)
 	}
 }

@@ -394,6 +394,15 @@ func (f FlatStep) MaxBeam() time.Duration {
 	return stepBeam(&f.Step, Defaults{})
 }
 
+// ReleaseTime is the beam-on a beam reading position is allowed beyond
+// its max_beam for its release: from "Release the beam" until the beam
+// is off (the operator's foot, the generator switching off). The engine
+// stops each position's attempts, their releases included, at max_beam,
+// and its beam-on timer counts the last release too; the budget the
+// checker adds up is what the timer counts (common practice: a prompt
+// release takes well under a second).
+const ReleaseTime = time.Second
+
 func stepBeam(s *Step, d Defaults) time.Duration {
 	if s.Kind != KindMeasure || s.Measure == nil || !s.Measure.Beam {
 		return 0
@@ -402,5 +411,5 @@ func stepBeam(s *Step, d Defaults) time.Duration {
 	if mb == 0 {
 		mb = d.MaxBeam
 	}
-	return mb * time.Duration(s.Measure.PositionCount())
+	return (mb + ReleaseTime) * time.Duration(s.Measure.PositionCount())
 }
