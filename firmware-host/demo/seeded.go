@@ -49,6 +49,9 @@ type SeededOutcome struct {
 	Journal  engine.Journal
 	Readings int // meter readings taken
 	Config   engine.Config
+	// Model is the simulator's physics after the run: its answer key
+	// (Truth) and its true beam log (BeamOnTime, BeamLog).
+	Model *benchsim.Model
 }
 
 // Seeded runs a procedure against the simulator's physics model in this
@@ -80,8 +83,8 @@ func Seeded(ctx context.Context, o SeededOptions) (*SeededOutcome, error) {
 	}
 	var count countReads
 	meters := map[string]drivers.Meter{
-		engine.Dosimeter:  &modelMeter{role: engine.Dosimeter, m: model, clk: clk, period: period, n: &count},
-		engine.Photometer: &modelMeter{role: engine.Photometer, m: model, clk: clk, period: period, phase: period / 2, n: &count},
+		engine.Dosimeter:  &modelMeter{role: engine.Dosimeter, m: model, clk: clk, period: period, n: &count, spec: scn.Dosimeter},
+		engine.Photometer: &modelMeter{role: engine.Photometer, m: model, clk: clk, period: period, phase: period / 2, n: &count, spec: scn.Photometer},
 	}
 	air := map[string]float64{"temperature": 20, "pressure": 101.325}
 	if a := scn.Air; a != nil {
@@ -137,7 +140,7 @@ func Seeded(ctx context.Context, o SeededOptions) (*SeededOutcome, error) {
 		return nil, err
 	}
 	sum, err := eng.Run(ctx)
-	return &SeededOutcome{Summary: sum, Journal: j, Readings: count.get(), Config: cfg}, err
+	return &SeededOutcome{Summary: sum, Journal: j, Readings: count.get(), Config: cfg, Model: model}, err
 }
 
 type countReads struct {
@@ -162,6 +165,7 @@ type modelMeter struct {
 	next   time.Duration
 	phase  time.Duration
 	n      *countReads
+	spec   benchsim.MeterSpec
 }
 
 func (s *modelMeter) Read(ctx context.Context) (drivers.Reading, error) {
@@ -175,13 +179,37 @@ func (s *modelMeter) Read(ctx context.Context) (drivers.Reading, error) {
 	s.clk.Advance(s.next - now)
 	t := s.next
 	s.next += s.period
-	q, mv := units.AirKermaRate, s.m.DoseReading(t)
+	q, role := units.AirKermaRate, benchsim.RoleDosimeter
 	if s.role == engine.Photometer {
-		q, mv = units.Luminance, s.m.LumReading(t)
+		q, role = units.Luminance, benchsim.RolePhotometer
+	}
+	// What the meter shows, its range included: over range at its
+	// maximum, under range with no value.
+	mv, st := s.m.Show(role, t)
+	v := mv.Value
+	if st == drivers.StatusUnderRange {
+		v = 0
 	}
 	s.n.add()
-	return drivers.Reading{Meter: s.role, Quantity: q, Value: mv.Value, Unit: units.Canonical(q), RawValue: mv.Value,
-		RawUnit: units.Canonical(q), Status: drivers.StatusOK, Raw: fmt.Sprintf("%g", mv.Value), Mono: t, Wall: s.clk.Now()}, nil
+	return drivers.Reading{Meter: s.role, Quantity: q, Value: v, Unit: units.Canonical(q), RawValue: v,
+		RawUnit: units.Canonical(q), Status: st, Raw: fmt.Sprintf("%g", v), Mono: t, Wall: s.clk.Now()}, nil
+}
+
+// Identify implements drivers.Identifier: the maker, model and serial the
+// scenario's meter reports on its link (as the simulator's protocols do).
+func (s *modelMeter) Identify(ctx context.Context) (drivers.Identity, error) {
+	spec := s.spec
+	id := drivers.Identity{Serial: spec.Serial, Firmware: spec.Firmware}
+	switch spec.Protocol {
+	case benchsim.ProtocolVeltrane:
+		id.Maker, id.Model = "Veltrane", "KR-40"
+	case benchsim.ProtocolOndrakel:
+		id.Maker, id.Model = "Ondrakel", "DX-2"
+	case benchsim.ProtocolVessoric:
+		id.Maker, id.Model = "Vessoric", "LM-9"
+	}
+	id.Raw = id.Maker + " " + id.Model + " " + id.Serial
+	return id, nil
 }
 
 func (s *modelMeter) Close() error { return nil }

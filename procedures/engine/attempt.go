@@ -67,6 +67,7 @@ type track struct {
 	above  bool // is above it now (two readings at or below end it)
 	low    int  // consecutive readings at or below the threshold
 	under  int  // readings under range since the prompt
+	over   int  // readings over range since the prompt: its fall cannot time the beam
 	all    []tv // usable readings since the prompt
 }
 
@@ -81,13 +82,16 @@ func (e *Engine) minFloor(role string) float64 {
 }
 
 // newTrack sets a meter's beam threshold from its own beam-off readings:
-// dark + max(k·σ, 3 display steps, a tenth of the dark, the floor), so a
+// dark + max(k·σ, 3 display steps, half the dark, the floor), so a
 // dim light (under 1 cd/m² behind a lead disk) is seen above a quiet dark
-// and a noisy or coarse meter does not see a beam in its own noise.
+// and a noisy or coarse meter does not see a beam in its own noise. Half
+// the dark, because the photometer is moved between its dark reading and
+// the beam (a uniformity map) and a vignetted dark differs from place to
+// place by a fifth or more.
 func (e *Engine) newTrack(role string, dark []float64, step float64) *track {
 	m, sd := meanSD(dark)
 	t := &track{role: role, dark: m, noise: sd, step: step}
-	t.thresh = m + max(e.cfg.Limits.BeamSigmas*sd, 3*step, 0.1*math.Abs(m), e.minFloor(role))
+	t.thresh = m + max(e.cfg.Limits.BeamSigmas*sd, 3*step, 0.5*math.Abs(m), e.minFloor(role))
 	return t
 }
 
@@ -96,6 +100,14 @@ func (e *Engine) newTrack(role string, dark []float64, step float64) *track {
 // two in a row at or below it, after rising). v is the corrected value;
 // usable is false for an under-range, over-range or faulty reading.
 func (t *track) see(at time.Duration, v float64, usable bool) (rose, fell bool) {
+	return t.seeStatus(at, v, usable, false)
+}
+
+// seeStatus is see with the reading's over-range status counted.
+func (t *track) seeStatus(at time.Duration, v float64, usable, over bool) (rose, fell bool) {
+	if over {
+		t.over++
+	}
 	if usable {
 		t.all = append(t.all, tv{at, v})
 	}
@@ -162,13 +174,23 @@ func (t *track) fallTime() (time.Duration, bool) {
 	}
 	// P: the level the meter fell from, where the smoothed series last
 	// stopped falling before that reading.
+	// Walked back from there: through the fall and its noisy tail (a rise
+	// within the noise does not stop the walk) up to the highest point
+	// before the signal drops again by more than the noise (the rise).
 	sm := smooth(t.all)
+	tol := 3 * diffNoise(t.all)
 	e := k
-	for e > 0 && sm[e-1] >= sm[e] {
-		e--
+	for i := k; i > 0; i-- {
+		if sm[i-1] > sm[e] {
+			e = i - 1
+		}
+		if sm[i-1] < sm[e]-tol-0.02*math.Abs(sm[e]) {
+			break
+		}
 	}
-	p := sm[e]
-	edge := t.all[e].t
+	p := math.Max(sm[e], t.all[e].v)
+	// The beam may have gone off at any time since the reading before.
+	edge := t.all[max(e-1, 0)].t
 	if p <= t.thresh {
 		p = t.all[k].v
 	}
@@ -224,12 +246,20 @@ func (a *attempt) exposure() (time.Duration, bool) {
 			continue
 		}
 		r, ok1 := t.riseTime()
+		if !ok1 {
+			continue
+		}
+		on = min(on, r)
+		if t.over > 0 {
+			// Clipped at its range maximum: the level it fell from is not
+			// known, so neither is its half-way point.
+			continue
+		}
 		f, ok2 := t.fallTime()
-		if !ok1 || !ok2 {
+		if !ok2 {
 			continue
 		}
 		any = true
-		on = min(on, r)
 		off = max(off, f)
 	}
 	if !any || off <= on {

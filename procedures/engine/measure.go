@@ -912,6 +912,9 @@ func (e *Engine) guard(ctx context.Context, a *attempt, role string, r drivers.R
 	case drivers.StatusUnderRange:
 		return nil // below range: no beam seen by this meter
 	case drivers.StatusOverRange:
+		if t := a.tracks[role]; t != nil {
+			t.over++
+		}
 		_ = e.record(ctx, a, role, r, c, false)
 		return &retryError{reason: "the " + role + " is over range", rangeOrSettle: true}
 	default:
@@ -943,7 +946,7 @@ func (e *Engine) observe(ctx context.Context, a *attempt, role string, r drivers
 		if r.Status == drivers.StatusUnderRange {
 			t.under++
 		}
-		rose, fell := t.see(r.Mono, v, usable)
+		rose, fell := t.seeStatus(r.Mono, v, usable, r.Status == drivers.StatusOverRange)
 		if rose {
 			if !a.beamOn {
 				a.beamOn = true
@@ -1196,7 +1199,7 @@ func (e *Engine) waitOff(ctx context.Context, a *attempt, lv panel.Level, text s
 				continue
 			}
 			if t := a.tracks[role]; t != nil && a.beamOn {
-				t.see(r.Mono, c.Value, r.Usable())
+				t.seeStatus(r.Mono, c.Value, r.Usable(), r.Status == drivers.StatusOverRange)
 				if err := e.tick(ctx, a, r.Mono); err != nil && !errors.Is(err, errBeamAlarm) {
 					return err
 				}
