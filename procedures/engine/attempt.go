@@ -63,12 +63,13 @@ type track struct {
 	noise  float64 // their experimental standard deviation
 	step   float64 // display resolution, corrected scale (0: not known)
 	thresh float64
-	risen  bool // has been above the threshold in this exposure
-	above  bool // is above it now (two readings at or below end it)
-	low    int  // consecutive readings at or below the threshold
-	under  int  // readings under range since the prompt
-	over   int  // readings over range since the prompt: its fall cannot time the beam
-	all    []tv // usable readings since the prompt
+	risen  bool    // has been above the threshold in this exposure
+	above  bool    // is above it now (two readings at or below end it)
+	low    int     // consecutive readings at or below the threshold
+	under  int     // readings under range since the prompt
+	over   int     // readings over range since the prompt: its fall cannot time the beam
+	peak   float64 // highest reading since it rose
+	all    []tv    // usable readings since the prompt
 }
 
 // minFloor is the smallest threshold above the dark a meter may use: far
@@ -111,8 +112,9 @@ func (t *track) seeStatus(at time.Duration, v float64, usable, over bool) (rose,
 	if usable {
 		t.all = append(t.all, tv{at, v})
 	}
-	if usable && v > t.thresh {
+	if usable && t.high(v) {
 		t.low = 0
+		t.peak = math.Max(t.peak, v)
 		if !t.above {
 			t.above = true
 			if !t.risen {
@@ -130,6 +132,19 @@ func (t *track) seeStatus(at time.Duration, v float64, usable, over bool) (rose,
 		}
 	}
 	return false, false
+}
+
+// high reports whether v shows the beam: above the threshold and, once
+// the meter has risen, above a tenth of the way from its dark to its
+// peak. The second condition ends an exposure whose beam-off level is not
+// the dark measured before it (a photometer moved to a place whose own
+// dark light is brighter, a meter that drifted): a fall to a tenth is a
+// beam switched off, or dropped, whatever the threshold says.
+func (t *track) high(v float64) bool {
+	if v <= t.thresh {
+		return false
+	}
+	return !t.risen || v-t.dark > 0.1*(t.peak-t.dark)
 }
 
 // riseTime is when the track first crossed its threshold: interpolated
@@ -164,7 +179,7 @@ func (t *track) fallTime() (time.Duration, bool) {
 	// The last reading above the threshold.
 	k := -1
 	for i := n - 1; i >= 0; i-- {
-		if t.all[i].v > t.thresh {
+		if t.all[i].v > t.thresh && t.all[i].v-t.dark > 0.1*(t.peak-t.dark) {
 			k = i
 			break
 		}

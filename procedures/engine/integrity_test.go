@@ -141,6 +141,30 @@ func TestIntegrityAtTheEdges(t *testing.T) {
 			},
 		},
 		{
+			name: "photometer moved to a brighter dark: the beam is still seen off",
+			setup: func(r *rig) {
+				// From the first beam on, the photometer sits where the dark
+				// light is 5 cd/m² brighter than where its dark was read.
+				r.phot.spike = func(v float64, _ time.Duration) float64 {
+					if r.phys.beamOns > 0 {
+						return v + 5
+					}
+					return v
+				}
+			},
+			check: func(t *testing.T, r *rig, sum Summary, err error) {
+				if err != nil || sum.Outcome != "complete" {
+					t.Fatalf("outcome %s, %v", sum.Outcome, err)
+				}
+				r.phys.mu.Lock()
+				truth := r.phys.beamTotal
+				r.phys.mu.Unlock()
+				if d := sum.BeamOn - truth; d > time.Second || d < -time.Second {
+					t.Errorf("timer %.2f s, true beam-on %.2f s", sum.BeamOn.Seconds(), truth.Seconds())
+				}
+			},
+		},
+		{
 			name: "beam-on timer against the true beam log",
 			setup: func(r *rig) {
 				r.phot.resp = 900 * time.Millisecond // a photometer that falls slowly
