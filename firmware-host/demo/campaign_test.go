@@ -29,19 +29,21 @@ import (
 // probability, JCGM 100:2008 6.2); a figure that cannot be measured is
 // not_measurable, never pass or fail; every session ends by itself within
 // its declared beam-on budget; the beam-on timer within 1 % of the
-// simulator's true beam-on.
+// simulator's true beam-on on the default bench, 1.5 % on the edge ones.
 func TestAccuracyCampaign(t *testing.T) {
 	if testing.Short() {
-		t.Skip("the campaign runs 30 sessions")
+		t.Skip("the campaign runs 33 sessions")
 	}
 	type expect struct {
 		notMeasurable []string // quantities that must be not_measurable (at least once)
 		uncalibrated  []string // quantities that must not be calibrated
+		timer         float64  // the beam-on timer's allowed relative error over the session
 	}
 	scenarios := []struct {
 		file string
 		want expect
 	}{
+		{"../tollemby-rise-room2", expect{timer: 0.01}},
 		{"slow-overshoot", expect{}},
 		{"slow-rise-lagging", expect{}},
 		{"noisy-meters", expect{}},
@@ -74,11 +76,17 @@ func TestAccuracyCampaign(t *testing.T) {
 				}
 				now := out.Config.Clock.Mono()
 				trueOn := out.Model.BeamOnTime(now)
-				// 1 % of the whole; a session of many short exposures (the
-				// over-range retakes, under a second each) is allowed a
-				// quarter of a reading period per exposure instead, what
-				// interpolating an edge between readings 0.1 s apart leaves.
-				tol := math.Max(0.01*trueOn.Seconds(), 0.025*float64(len(out.Model.BeamLog())))
+				// A share of the whole; a session of many short exposures (the
+				// over-range retakes, under a second each) is allowed half a
+				// reading period per exposure instead, what interpolating
+				// the two edges between readings 0.1 s apart leaves.
+				// The edge benches (slow, lagging and overshooting
+				// signals) are held to 1.5 %, the default bench to 1 %.
+				rel := sc.want.timer
+				if rel == 0 {
+					rel = 0.015
+				}
+				tol := math.Max(rel*trueOn.Seconds(), 0.05*float64(len(out.Model.BeamLog())))
 				if d := math.Abs((sum.BeamOn - trueOn).Seconds()); d > tol {
 					t.Errorf("beam-on timer %.2f s, true beam-on %.2f s: off by %.1f %%", sum.BeamOn.Seconds(), trueOn.Seconds(), 100*d/trueOn.Seconds())
 				}

@@ -2,6 +2,7 @@ package engine
 
 import (
 	"context"
+	"fmt"
 	"encoding/json"
 	"math"
 	"testing"
@@ -76,21 +77,31 @@ func settleOracle(scn *benchsim.Scenario, tol float64) time.Duration {
 }
 
 // BenchmarkBeamOnPerReading: beam-on seconds per accepted conversion
-// factor reading on the demo scenario, against the oracle minimum and a
-// fixed 10-second hold.
+// factor reading on the demo scenario, its brightness control rising from
+// 30 % with time constants from 0.2 s to 2.5 s, against the oracle
+// minimum and a fixed 10-second hold.
 //
-// The oracle minimum is the physics' settling time plus the samples the
-// noise makes necessary: for a mean of n independent readings with
-// relative standard deviation u_rel, U = k·u_rel/√n, so reaching a
-// target U needs n = (k·u_rel/target)² (JCGM 100:2008 4.2.3 with 6.2.1),
-// read at the meters' rate. u_rel of one L/K pair combines both meters'
-// relative noise and quantum noise (relative variances add, 5.1.6).
+// The oracle minimum is the time for the noise-free meters' kerma rate and
+// L/K ratio to come within 0.1 % of their settled values (settleOracle,
+// from the model's Truth) plus the samples the noise makes necessary: for
+// a mean of n independent readings with relative standard deviation
+// u_rel, U = k·u_rel/√n, so reaching the type A target e needs
+// n = (k·u_rel/e)² (JCGM 100:2008 4.2.3 with 6.2.1, k = 2), read at the
+// meters' rate. u_rel of one L/K pair combines both meters' relative
+// noise and quantum noise (relative variances add, 5.1.6).
 func BenchmarkBeamOnPerReading(b *testing.B) {
+	for _, rise := range []time.Duration{200 * time.Millisecond, 500 * time.Millisecond, time.Second, 1500 * time.Millisecond, 2500 * time.Millisecond} {
+		b.Run(fmt.Sprintf("rise=%s", rise), func(b *testing.B) { benchBeamOn(b, rise) })
+	}
+}
+
+func benchBeamOn(b *testing.B, rise time.Duration) {
 	scn, err := benchsim.LoadScenario("../../testdata/scenarios/tollemby-rise-room2.yaml")
 	if err != nil {
 		b.Fatal(err)
 	}
-	const target = 0.02
+	scn.Intensifier.Brightness.TimeConstant = rise
+	const target = 0.01
 	const period = 100 * time.Millisecond
 	var beamS, accepted float64
 	for i := 0; i < b.N; i++ {
@@ -148,7 +159,7 @@ func BenchmarkBeamOnPerReading(b *testing.B) {
 	tr := m.Truth(20 * time.Second)
 	uRel := math.Sqrt(sq(tr.Dosimeter.Noise) + sq(tr.Photometer.Noise) + sq(tr.DosimeterQuantumNoise) + sq(tr.PhotometerQuantumNoise))
 	n := math.Max(2, math.Ceil(sq(2*uRel/target))) // at least two readings for any type A estimate
-	oracle := settleOracle(scn, target/2).Seconds() + n*period.Seconds()
+	oracle := settleOracle(scn, 0.001).Seconds() + n*period.Seconds()
 	per := beamS / accepted
 	b.ReportMetric(per, "beam_s/reading")
 	b.ReportMetric(oracle, "oracle_min_s")
