@@ -294,10 +294,12 @@ type approach struct {
 	n             int
 }
 
-// taus is the grid of time constants fitted (0.05 s to 12 s).
+// taus is the grid of time constants fitted (0.05 s to 12 s, 14 values:
+// the fit's remainder changes little between neighbours, and the board
+// fits several series five times a second).
 var taus = func() []float64 {
 	var out []float64
-	for t := 0.05; t <= 12; t *= 1.3 {
+	for t := 0.05; t <= 12; t *= 1.5 {
 		out = append(out, t)
 	}
 	return out
@@ -396,6 +398,11 @@ func fitApproach(xs []tv) (approach, bool) {
 func settledSeries(xs []tv, tol float64, minN int) bool {
 	if len(xs) < 2*minN {
 		return false
+	}
+	if len(xs) > maxFit {
+		// Only the latest readings say whether the signal has settled
+		// (and a fit's cost grows with its length).
+		xs = xs[len(xs)-maxFit:]
 	}
 	// A meter's rise is over when it first reaches 90 % of its present
 	// level; half as long again must have passed since (for a first-order
@@ -497,6 +504,10 @@ func diffNoise(xs []tv) float64 {
 	sort.Float64s(d)
 	return d[len(d)/2] / (0.6745 * math.Sqrt2)
 }
+
+// maxFit is the most readings a settling fit looks at: 12 s of a meter
+// read ten times a second.
+const maxFit = 120
 
 // smooth is the running median of three of a series' values.
 func smooth(xs []tv) []float64 {

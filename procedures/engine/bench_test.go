@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"encoding/json"
 	"math"
+	"sort"
 	"testing"
 	"time"
 
@@ -168,3 +169,29 @@ func benchBeamOn(b *testing.B, rise time.Duration) {
 }
 
 func sq(x float64) float64 { return x * x }
+
+// BenchmarkSettledSeries: the cost of one settling judgement of one
+// series of 120 readings (the most a fit looks at), beside sorting the
+// same number of values in the same run: the engine makes three of them
+// five times a second of signal.
+func BenchmarkSettledSeries(b *testing.B) {
+	xs := make([]tv, maxFit)
+	vals := make([]float64, maxFit)
+	for i := range xs {
+		t := time.Duration(i) * 100 * time.Millisecond
+		xs[i] = tv{t, 1 + 0.3*math.Exp(-t.Seconds()/0.8) + 0.01*math.Sin(float64(i)*1.7)}
+		vals[i] = xs[i].v
+	}
+	b.Run("settled", func(b *testing.B) {
+		for i := 0; i < b.N; i++ {
+			settledSeries(xs, 0.005, 5)
+		}
+	})
+	b.Run("baseline-sort", func(b *testing.B) {
+		w := make([]float64, len(vals))
+		for i := 0; i < b.N; i++ {
+			copy(w, vals)
+			sort.Float64s(w)
+		}
+	})
+}
