@@ -216,3 +216,48 @@ func TestUnderRangeWithBeamNotMeasurable(t *testing.T) {
 	}
 	_ = drivers.StatusUnderRange
 }
+
+// The stopping target is for the type A part only, and the bench's value
+// applies when the procedure sets none: a tighter bench target takes more
+// readings (n grows as 1/e², JCGM 100:2008 4.2.3), whatever the
+// certificates contribute. Before, a 2 % target that included the
+// certificates' share stopped every reading at the minimum count.
+func TestTypeATargetFromBench(t *testing.T) {
+	n := map[float64]int{}
+	for _, target := range []float64{0.02, 0.005} {
+		r := newRig(cfSteps())
+		r.cfg.Procedure.Steps[5].Measure.Target = 0 // the bench's
+		r.cfg.Limits.Target = target
+		sum, err := r.run(context.Background())
+		if err != nil {
+			t.Fatal(err)
+		}
+		p := r.jrPos(t, sum.Session, "cf@32cm")
+		n[target] = p.NG
+	}
+	// A quarter of the target: about 16 times the readings; at least 4.
+	if n[0.005] < 4*n[0.02] {
+		t.Errorf("readings at 2 %% and 0.5 %% targets: %d and %d", n[0.02], n[0.005])
+	}
+}
+
+// The residual of settling enters U from the data: near zero for a beam
+// that has settled (it was a constant 0.577 % per reading), not zero for
+// one sampled while a slow control still moved.
+func TestResidualSettlingFromData(t *testing.T) {
+	r := newRig(cfSteps())
+	r.phys.overshoot, r.phys.tau = 0.05, 100*time.Millisecond // settles at once
+	sum, err := r.run(context.Background())
+	if err != nil {
+		t.Fatal(err)
+	}
+	p := r.jrPos(t, sum.Session, "cf@32cm")
+	if p.Settle == nil {
+		t.Fatal("no residual settling journalled")
+	}
+	for role, v := range p.Settle {
+		if v > 0.002 {
+			t.Errorf("%s: residual settling %.4f for a settled beam", role, v)
+		}
+	}
+}
