@@ -8,7 +8,6 @@ import (
 	"sort"
 	"time"
 
-	"kermalux/drivers"
 	"kermalux/procedures/entry"
 )
 
@@ -96,15 +95,12 @@ func (e *Engine) newTrack(role string, dark []float64, step float64) *track {
 	return t
 }
 
-// see adds one reading to the track and reports whether it made the
-// meter rise (first reading above the threshold) or fall (the second of
-// two in a row at or below it, after rising). v is the corrected value;
-// usable is false for an under-range, over-range or faulty reading.
-func (t *track) see(at time.Duration, v float64, usable bool) (rose, fell bool) {
-	return t.seeStatus(at, v, usable, false)
-}
-
-// seeStatus is see with the reading's over-range status counted.
+// seeStatus adds one reading to the track and reports whether it made
+// the meter rise (first reading above the threshold) or fall (the second
+// of two in a row no longer showing the beam, after rising). v is the
+// corrected value; usable is false for an under-range, over-range or
+// faulty reading, over true for an over-range one (counted: a meter
+// clipped at its maximum cannot time the fall).
 func (t *track) seeStatus(at time.Duration, v float64, usable, over bool) (rose, fell bool) {
 	if over {
 		t.over++
@@ -702,7 +698,3 @@ func (a *attempt) notRisen() ([]string, bool) {
 func describeRise(t *track, v float64) string {
 	return fmt.Sprintf("%s %.4g above threshold %.4g (dark %.4g, noise %.2g)", t.role, v, t.thresh, t.dark, t.noise)
 }
-
-// statusUsable: a reading whose value is a value (not under or over range,
-// not a fault).
-func statusUsable(r drivers.Reading) bool { return r.Usable() }

@@ -2,8 +2,8 @@ package engine
 
 import (
 	"context"
-	"fmt"
 	"encoding/json"
+	"fmt"
 	"math"
 	"sort"
 	"testing"

@@ -511,8 +511,8 @@ func (e *Engine) precise(a *attempt) (posStat, bool) {
 		}
 		p.HasG = true
 		p.G, _ = meanSD(g)
-		uA, neff = relTypeA(g)
-		p.GU = uA * math.Abs(p.G)
+		ug, _ := relTypeA(g)
+		p.GU = ug * math.Abs(p.G)
 		p.NG = len(g)
 		// The figure is the ratio of the two means (calib.ConversionFactor),
 		// so its repeatability is that of both: relative variances add
