@@ -3,6 +3,7 @@ package engine
 import (
 	"context"
 	"encoding/json"
+	"fmt"
 	"strings"
 	"testing"
 	"time"
@@ -191,5 +192,45 @@ func TestSingleSpikeAboveCeilingIgnored(t *testing.T) {
 	}
 	if len(events(r.jr, sum.Session, evKermaRange)) != 0 {
 		t.Error("session stopped on one spike")
+	}
+}
+
+// A record that verifies but cannot be read (a payload of another shape
+// written by a faulty release, say) is never skipped on resume: the
+// session is refused and the record named. Before, an unreadable answer,
+// event, value or result was silently left out of the rebuilt state.
+func TestRebuildRefusesUnreadableRecords(t *testing.T) {
+	r := newRig(cfSteps())
+	ctx, cancel := context.WithCancel(context.Background())
+	r.jr.cutAfter, r.jr.cancel = 80, cancel
+	sum, _ := r.run(ctx)
+	base := append([]entry.Envelope(nil), r.jr.sessions[sum.Session]...)
+	seen := map[entry.Kind]bool{}
+	for i, env := range base {
+		if seen[env.Kind] {
+			continue
+		}
+		seen[env.Kind] = true
+		envs := append([]entry.Envelope(nil), base...)
+		envs[i].Payload = []byte(`[1,2,3]`)
+		j := newMemJournal(r.clk)
+		j.sessions["s"] = envs
+		cfg := r.cfg
+		cfg.Journal, cfg.Resume = j, "s"
+		e, err := New(cfg)
+		if err != nil {
+			t.Fatal(err)
+		}
+		_, _, err = e.rebuild(context.Background(), "s")
+		if env.Kind == entry.KindReading {
+			continue // readings are not read back: the positions carry their statistics
+		}
+		want := fmt.Sprintf("record %d", env.Seq)
+		if err == nil || !strings.Contains(err.Error(), want) {
+			t.Errorf("%s record %d unreadable: rebuild says %v", env.Kind, env.Seq, err)
+		}
+	}
+	if len(seen) < 5 {
+		t.Fatalf("only %d kinds of record in the recorded session", len(seen))
 	}
 }

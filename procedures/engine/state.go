@@ -131,23 +131,35 @@ func (e *Engine) rebuild(ctx context.Context, id string) (*state, resumeInfo, er
 	acked := map[int]map[string]bool{} // step index → lines acknowledged since it started
 	safeDone := map[int]bool{}         // safety steps done with every line acknowledged
 	for _, env := range envs {
+		// A record that verified but cannot be read is not skipped: the
+		// state rebuilt without it could ask for an exposure already made
+		// or lose an answer (the session is refused, naming the record).
+		unreadable := func(env entry.Envelope, err error) error {
+			return fmt.Errorf("resume session %s: record %d (%s) cannot be read: %w", id, env.Seq, env.Kind, err)
+		}
 		switch env.Kind {
 		case entry.KindSessionEnd:
 			return nil, info, fmt.Errorf("resume session %s: it has already ended", id)
 		case entry.KindSession:
 			var s entry.Session
-			if err := json.Unmarshal(env.Payload, &s); err == nil && e.cfg.Procedure.Hash != "" && s.ProcedureHash != "" && s.ProcedureHash != e.cfg.Procedure.Hash {
+			if err := json.Unmarshal(env.Payload, &s); err != nil {
+				return nil, info, unreadable(env, err)
+			}
+			if e.cfg.Procedure.Hash != "" && s.ProcedureHash != "" && s.ProcedureHash != e.cfg.Procedure.Hash {
 				return nil, info, fmt.Errorf("resume session %s: it ran procedure %s with a different text (hash %.12s, now %.12s)", id, s.Procedure, s.ProcedureHash, e.cfg.Procedure.Hash)
 			}
 		case entry.KindPrompt:
 			var p entry.Prompt
-			if err := json.Unmarshal(env.Payload, &p); err == nil && p.Asked && p.Action == string(panel.ActCheck) {
+			if err := json.Unmarshal(env.Payload, &p); err != nil {
+				return nil, info, unreadable(env, err)
+			}
+			if p.Asked && p.Action == string(panel.ActCheck) {
 				checks[env.Seq] = p
 			}
 		case entry.KindAck:
 			var a entry.Ack
 			if err := json.Unmarshal(env.Payload, &a); err != nil {
-				continue
+				return nil, info, unreadable(env, err)
 			}
 			if p, ok := checks[a.PromptSeq]; ok && p.Step == a.Step && a.Answer == string(panel.Ack) && a.PromptSeq < env.Seq {
 				if acked[a.Step] == nil {
@@ -193,7 +205,10 @@ func (e *Engine) rebuild(ctx context.Context, id string) (*state, resumeInfo, er
 			}
 		case entry.KindValue:
 			var v entry.Value
-			if err := json.Unmarshal(env.Payload, &v); err == nil {
+			if err := json.Unmarshal(env.Payload, &v); err != nil {
+				return nil, info, unreadable(env, err)
+			}
+			{
 				val := v.Value
 				if q, err := units.QuantityOf(v.Unit); err == nil {
 					if x, err := units.ToCanonical(q, val, v.Unit); err == nil {
@@ -206,7 +221,7 @@ func (e *Engine) rebuild(ctx context.Context, id string) (*state, resumeInfo, er
 		case entry.KindEvent:
 			var ev entry.Event
 			if err := json.Unmarshal(env.Payload, &ev); err != nil {
-				continue
+				return nil, info, unreadable(env, err)
 			}
 			if ev.BeamOn > beam {
 				beam = ev.BeamOn
@@ -220,7 +235,13 @@ func (e *Engine) rebuild(ctx context.Context, id string) (*state, resumeInfo, er
 			}
 		case entry.KindResult:
 			var r entry.Result
-			if err := json.Unmarshal(env.Payload, &r); err == nil && r.Step >= 1 && r.Step <= len(steps) {
+			if err := json.Unmarshal(env.Payload, &r); err != nil {
+				return nil, info, unreadable(env, err)
+			}
+			if r.Step < 1 || r.Step > len(steps) {
+				return nil, info, fmt.Errorf("resume session %s: record %d is a result of step %d, which is not in this procedure", id, env.Seq, r.Step)
+			}
+			{
 				sid := steps[r.Step-1].ID
 				if _, ok := st.results[sid]; !ok {
 					st.order = append(st.order, sid)
