@@ -27,9 +27,6 @@ func (r *Running) Add(x float64) {
 	r.m2 += d * (x - r.mean)
 }
 
-// Reset empties r (for a retake).
-func (r *Running) Reset() { *r = Running{} }
-
 // N is the number of samples.
 func (r *Running) N() int { return r.n }
 
@@ -87,22 +84,6 @@ type Component struct {
 	// Calibration marks the meter's calibration coefficient, which cancels
 	// in a ratio of two readings of the same meter.
 	Calibration bool
-}
-
-// CertificateComponents are the type B components a certificate gives a
-// reading: the coefficient's standard uncertainty U/k (normal, GUM 4.3.4)
-// and, when stated, the display resolution δ as a rectangular distribution
-// of half-width δ/2, u = δ/√12 (GUM 4.3.7, F.2.2.1).
-func CertificateComponents(c *Certificate) []Component {
-	if c == nil {
-		return nil
-	}
-	out := []Component{{Source: "calibration coefficient, certificate " + c.Number, Rel: c.RelStdUnc(), Calibration: true}}
-	if r := ResolutionComponent(c.Resolution); r.Abs > 0 {
-		r.Source = "display resolution, " + c.Model
-		out = append(out, r)
-	}
-	return out
 }
 
 // ResolutionComponent is the rectangular type B component of a display
@@ -188,9 +169,6 @@ type Result struct {
 	Floor      float64
 	BelowFloor bool
 }
-
-// RelExpUnc is U / |value|.
-func (r Result) RelExpUnc() float64 { return r.ExpUnc / math.Abs(r.Value) }
 
 // CoverageFactor returns k = t_p(ν), the two-sided Student t quantile for
 // coverage probability p and ν degrees of freedom (JCGM 100:2008 G.3, G.4;
@@ -385,74 +363,4 @@ func appendFlag(list []Flag, f Flag) []Flag {
 		}
 	}
 	return append(list, f)
-}
-
-// RatioPrecision tracks, sample by sample, the relative expanded
-// uncertainty of the ratio of two meters' means (for the conversion factor:
-// luminance over air kerma rate), so a stopping rule can end sampling once
-// it is small enough. Each Add is O(1) and allocation-free. The two
-// meters' samples are treated as uncorrelated (conservative when the tube
-// output fluctuates, which moves both the same way).
-//
-//	u_rel² = (s_x²/n_x)/x̄² + (s_y²/n_y)/ȳ² + u_B,rel²       (GUM 5.1.6)
-//	ν_eff from the type A parts (G.4.1), type B taken as exact
-//	U_rel = t_p(ν_eff) · u_rel
-type RatioPrecision struct {
-	Num, Den  Running
-	TypeBRel2 float64 // sum of squared relative type B uncertainties of both meters
-	P         float64 // coverage probability; 0 = Coverage
-}
-
-// NewRatioPrecision starts tracking with the fixed type B components of
-// the two meters (for example from [CertificateComponents]; absolute
-// components are taken relative to ref values numRef and denRef, or
-// ignored when those are 0).
-func NewRatioPrecision(num, den []Component, numRef, denRef float64) *RatioPrecision {
-	rp := &RatioPrecision{}
-	add := func(cs []Component, ref float64) {
-		for _, c := range cs {
-			r := c.Rel
-			if c.Abs != 0 && ref != 0 {
-				r += c.Abs / math.Abs(ref)
-			}
-			rp.TypeBRel2 += r * r
-		}
-	}
-	add(num, numRef)
-	add(den, denRef)
-	return rp
-}
-
-// Add includes one sample of each meter; pass NaN to skip one side.
-func (rp *RatioPrecision) Add(num, den float64) {
-	if !math.IsNaN(num) {
-		rp.Num.Add(num)
-	}
-	if !math.IsNaN(den) {
-		rp.Den.Add(den)
-	}
-}
-
-// Ratio is the ratio of the means so far.
-func (rp *RatioPrecision) Ratio() float64 { return rp.Num.Mean() / rp.Den.Mean() }
-
-// RelExpanded is the relative expanded uncertainty of the ratio of the
-// means so far; +Inf until each side has two samples and a positive mean.
-func (rp *RatioPrecision) RelExpanded() float64 {
-	if rp.Num.n < 2 || rp.Den.n < 2 || !(rp.Num.mean > 0) || !(rp.Den.mean > 0) {
-		return math.Inf(1)
-	}
-	ax := rp.Num.Variance() / float64(rp.Num.n) / (rp.Num.mean * rp.Num.mean)
-	ay := rp.Den.Variance() / float64(rp.Den.n) / (rp.Den.mean * rp.Den.mean)
-	u2 := ax + ay + rp.TypeBRel2
-	den := ax*ax/float64(rp.Num.n-1) + ay*ay/float64(rp.Den.n-1)
-	nu := math.Inf(1)
-	if den > 0 {
-		nu = u2 * u2 / den
-	}
-	p := rp.P
-	if p == 0 {
-		p = Coverage
-	}
-	return CoverageFactor(nu, p) * math.Sqrt(u2)
 }

@@ -161,49 +161,6 @@ func TestUncertaintyGrowsAsSamplesShrink(t *testing.T) {
 		prev = u
 	}
 }
-
-func TestRatioPrecisionAgreesWithResult(t *testing.T) {
-	cert := []Component{{Rel: 0.01, Calibration: true}}
-	rp := NewRatioPrecision(cert, []Component{{Rel: 0.012}, {Abs: 0.001 / math.Sqrt(12)}}, 150, 1)
-	lum := []float64{150.4, 149.2, 151.1, 150.3, 148.9, 150.6}
-	ker := []float64{1.004, 0.991, 1.012, 0.998, 1.003, 0.995}
-	if !math.IsInf(rp.RelExpanded(), 1) {
-		t.Error("no samples: want +Inf")
-	}
-	for i := range lum {
-		rp.Add(lum[i], ker[i])
-	}
-	l := Measured{Name: "L", Samples: Summarize(lum), TypeB: cert, Calibrated: true}
-	k := Measured{Name: "K", Samples: Summarize(ker), Calibrated: true,
-		TypeB: []Component{{Rel: 0.012}, ResolutionComponent(0.001)}}
-	r := ConversionFactor(l, k, 0)
-	// The resolution component is taken relative to the reference 1 µGy/s
-	// in the running form and to the mean (≈1.0005) in the result: agree to 1e-4.
-	if got, want := rp.RelExpanded(), r.RelExpUnc(); math.Abs(got-want) > 1e-4*want {
-		t.Errorf("running relative U = %v, result's = %v", got, want)
-	}
-	if math.Abs(rp.Ratio()-r.Value) > 1e-9 {
-		t.Errorf("ratio %v vs %v", rp.Ratio(), r.Value)
-	}
-	allocs := testing.AllocsPerRun(100, func() {
-		rp.Add(150, 1)
-		_ = rp.RelExpanded()
-	})
-	if allocs != 0 {
-		t.Errorf("Add+RelExpanded allocate %v times", allocs)
-	}
-}
-
-func BenchmarkRatioPrecisionAdd(b *testing.B) {
-	rp := NewRatioPrecision([]Component{{Rel: 0.01}}, []Component{{Rel: 0.012}}, 0, 0)
-	b.ReportAllocs()
-	for i := 0; i < b.N; i++ {
-		rp.Add(150+float64(i%7), 1+0.001*float64(i%5))
-		_ = rp.RelExpanded()
-	}
-}
-
-// Above the table the expansion must agree with gonum's Student t quantile.
 func TestCoverageFactorLargeDoF(t *testing.T) {
 	for _, nu := range []float64{501, 800, 5000, 1e5} {
 		for _, p := range []float64{0.95, Coverage, 0.99} {

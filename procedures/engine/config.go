@@ -192,12 +192,6 @@ type Corrector interface {
 	Correct(r drivers.Reading, c Conditions) Corrected
 }
 
-// CorrectorFunc adapts a function to Corrector.
-type CorrectorFunc func(r drivers.Reading, c Conditions) Corrected
-
-// Correct calls f.
-func (f CorrectorFunc) Correct(r drivers.Reading, c Conditions) Corrected { return f(r, c) }
-
 // Limit is an acceptance limit on a figure of merit.
 type Limit struct {
 	Min, Max       float64

@@ -134,7 +134,7 @@ func TestClosingSummarySaidBeforeEnd(t *testing.T) {
 	// A limit the fake bench's G of 150 cannot meet: one fail.
 	steps[len(steps)-1].Judge.Limits = []JudgeLimit{{Kind: "min", Value: 1000}}
 	r := newRig(steps)
-	calibrated := CorrectorFunc(func(rd drivers.Reading, _ Conditions) Corrected {
+	calibrated := correctorFunc(func(rd drivers.Reading, _ Conditions) Corrected {
 		return Corrected{Value: rd.Value, Calibrated: true, Certificate: "test"}
 	})
 	r.cfg.Correctors = map[string]Corrector{Dosimeter: calibrated, Photometer: calibrated}
@@ -157,3 +157,8 @@ func TestClosingSummarySaidBeforeEnd(t *testing.T) {
 		t.Errorf("the summary is not the record before the session's end")
 	}
 }
+
+// correctorFunc adapts a function to Corrector (tests only).
+type correctorFunc func(r drivers.Reading, c Conditions) Corrected
+
+func (f correctorFunc) Correct(r drivers.Reading, c Conditions) Corrected { return f(r, c) }
