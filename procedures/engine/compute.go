@@ -50,6 +50,12 @@ func (cc CalibCorrector) Correct(r drivers.Reading, c Conditions) Corrected {
 	if p, ok := c.Values["pressure"]; ok {
 		s.Air.Pressure = p
 	}
+	if u, ok := c.Unc["temperature"]; ok { // read by the room-air sensor
+		s.Air.TemperatureUnc = u
+	}
+	if u, ok := c.Unc["pressure"]; ok {
+		s.Air.PressureUnc = u
+	}
 	if c.Dark != nil && r.Quantity == units.Luminance {
 		res := c.Dark.Resolution
 		if res == 0 && cc.Cert != nil && cc.Meter != nil && cc.Cert.AppliesTo(*cc.Meter) == nil {

@@ -153,7 +153,11 @@ type Journal interface {
 
 // Conditions is what a correction needs to know besides the reading.
 type Conditions struct {
-	Values    map[string]float64 // entered values: temperature (°C), pressure (kPa), tube_voltage (kV)...
+	Values map[string]float64 // entered values: temperature (°C), pressure (kPa), tube_voltage (kV)...
+	// Unc are the standard uncertainties (canonical units) of values read
+	// by a sensor (the room-air sensor's temperature and pressure); a
+	// value without one takes the corrector's own.
+	Unc       map[string]float64
 	Quality   string
 	FieldMode string
 	// Dark is this meter's beam-off level in its own scale (before any
@@ -283,10 +287,14 @@ type Config struct {
 	Procedure  Procedure
 	Meters     map[string]drivers.Meter // by role: Dosimeter, Photometer
 	Correctors map[string]Corrector     // by role; nil: readings pass uncorrected, flagged uncalibrated
-	Panel      panel.Panel
-	Journal    Journal
-	Clock      clock.Clock
-	Session    entry.Session
+	// RoomAir is the room-air sensor (role RoomAir); nil: temperature and
+	// pressure are entered. An enter step with source sensor takes its
+	// value from it, and falls back to entering when it fails.
+	RoomAir AirSensor
+	Panel   panel.Panel
+	Journal Journal
+	Clock   clock.Clock
+	Session entry.Session
 	// Resume is the id of an unfinished session to continue; empty starts a new one.
 	Resume string
 	// Values are defaults for entered values (temperature, pressure, tube_voltage, tube_current).

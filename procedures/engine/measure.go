@@ -810,7 +810,7 @@ func (e *Engine) readOne(ctx context.Context, a *attempt, role string) (drivers.
 
 // correct applies the meter's calibration, with the session's conditions.
 func (e *Engine) correct(a *attempt, role string, r drivers.Reading) Corrected {
-	cond := Conditions{Values: e.st.values, Quality: a.spec.Quality, FieldMode: a.step.FieldMode}
+	cond := Conditions{Values: e.st.values, Unc: e.st.valueUnc, Quality: a.spec.Quality, FieldMode: a.step.FieldMode}
 	if d, ok := e.st.darkFor(role, a.label); ok && a.spec.Beam {
 		cond.Dark = &d
 	}

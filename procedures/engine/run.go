@@ -667,6 +667,9 @@ func (e *Engine) enter(ctx context.Context, idx int, s Step, base panel.Prompt) 
 	if v == nil {
 		return fmt.Errorf("step %d (%s): enter step without a value", idx, s.ID)
 	}
+	if done, err := e.enterFromSensor(ctx, idx, s); done || err != nil {
+		return err
+	}
 	req := &panel.ValueRequest{Name: v.Name, Unit: v.Unit, Default: v.Default, HasDef: v.HasDef, Min: v.Min, Max: v.Max}
 	offered := "procedure default"
 	q, qerr := units.QuantityOf(v.Unit)
@@ -722,6 +725,7 @@ func (e *Engine) enter(ctx context.Context, idx int, s Step, base panel.Prompt) 
 			}
 		}
 		e.st.values[v.Name] = canon
+		e.st.setUnc(v.Name, 0)
 		e.st.origins[v.Name] = valueOrigin{step: idx, mode: s.FieldMode, text: fmtNum(val) + " " + v.Unit + ", " + source, unconfirmed: unconfirmed}
 		if err := e.journal(ctx, entry.KindValue, entry.Value{Step: idx, Name: v.Name, Value: val, Unit: v.Unit, Source: source, Unconfirmed: unconfirmed, FieldMode: s.FieldMode}); err != nil {
 			return err

@@ -65,6 +65,7 @@ type state struct {
 	checklist bool // a pre-exposure safety checklist was acknowledged
 	values    map[string]float64
 	origins   map[string]valueOrigin  // how each entered value was obtained
+	valueUnc  map[string]float64      // standard uncertainties of values read by a sensor (roomair.go)
 	meas      map[string][]posStat    // by measure step ID, per position
 	results   map[string]entry.Result // by compute step ID
 	order     []string                // compute step IDs in order of computation
@@ -217,6 +218,7 @@ func (e *Engine) rebuild(ctx context.Context, id string) (*state, resumeInfo, er
 				}
 				st.values[v.Name] = val
 				st.origins[v.Name] = valueOrigin{step: v.Step, mode: v.FieldMode, text: fmtNum(v.Value) + " " + v.Unit + ", " + v.Source, unconfirmed: v.Unconfirmed}
+				st.noteUnc(v)
 			}
 		case entry.KindEvent:
 			var ev entry.Event

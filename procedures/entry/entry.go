@@ -147,6 +147,12 @@ type Value struct {
 	// only an offered default was accepted with a press; nobody entered it.
 	Unconfirmed bool   `json:"unconfirmed,omitempty"`
 	FieldMode   string `json:"field_mode,omitempty"` // the field mode of the step that asked for it
+	// A value read by a sensor (Source "sensor"): its standard
+	// uncertainty in Unit, the sensor's role ("room_air") and its data
+	// registers as read (hex).
+	StdUnc float64 `json:"std_unc,omitempty"`
+	Sensor string  `json:"sensor,omitempty"`
+	Raw    string  `json:"raw,omitempty"`
 }
 
 // Correction is one correction applied to a reading, in the order applied.
