@@ -17,6 +17,7 @@ import (
 	"time"
 
 	"github.com/goccy/go-yaml"
+	"periph.io/x/conn/v3/i2c"
 
 	"kermalux/calib"
 	"kermalux/drivers"
@@ -46,6 +47,11 @@ type Bench struct {
 	Sequence string         `yaml:"sequence"`
 	Defaults Defaults       `yaml:"defaults"`
 	Limits   LocalLimits    `yaml:"limits"`
+	// RoomAir is the room-air sensor on the board's I2C bus (optional).
+	RoomAir *RoomAir `yaml:"room_air"`
+	// OpenI2C, when set, opens the room-air sensor's bus instead of
+	// periph's host drivers (the demo's simulated chip).
+	OpenI2C func(bus string) (i2c.BusCloser, error) `yaml:"-"`
 
 	// Path is the file the bench was read from; SHA256 its hex digest
 	// (journalled with each session).

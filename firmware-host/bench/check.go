@@ -204,6 +204,7 @@ func (b *Bench) check(c *checker) error {
 	c.number(p("limits", "baseline_fraction"), plausible{v: l.BaselineFraction, min: 0.01, max: 1, zeroOK: true})
 	c.number(p("limits", "kerma_ceiling_ugy_s"), plausible{v: l.KermaCeiling, min: 0.01, max: MaxKermaCeiling, zeroOK: true, unit: "µGy/s"})
 	c.number(p("limits", "precision"), plausible{v: l.Precision, min: 0.001, max: 0.5, zeroOK: true})
+	b.checkRoomAir(c)
 	return errors.Join(c.errs...)
 }
 

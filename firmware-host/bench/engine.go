@@ -194,13 +194,15 @@ func (b *Bench) Config(proc engine.Procedure, meters map[string]drivers.Meter, p
 		return engine.Config{}, err
 	}
 	corr, refs := b.Correctors(certs, day)
+	air, airProblems := b.roomAirFor(clk)
 	return engine.Config{
 		Procedure: proc, Meters: meters, Correctors: corr, Panel: pan, Journal: j, Clock: clk,
 		Session: entry.Session{Site: b.Site, Room: b.Room, IntensifierModel: b.Intensifier.Model,
 			IntensifierSerial: b.Intensifier.Serial, Engineer: b.Engineer, Procedure: proc.Name,
 			ProcedureHash: proc.Hash, BenchHash: b.SHA256, SoftwareVersion: version, Started: day, Certificates: refs,
 			Simulated: b.Simulated, TestType: b.TestType, XRay: b.xray(), Geometry: b.geometryRecord()},
-		Values: b.Values(), CertProblems: problems, Warnings: b.Warnings(), Limits: lim, BootID: BootID(), FieldModes: b.modeDiameters(),
+		Values: b.Values(), CertProblems: problems, Warnings: append(b.Warnings(), airProblems...), Limits: lim, BootID: BootID(), FieldModes: b.modeDiameters(),
+		RoomAir: air,
 	}, nil
 }
 
