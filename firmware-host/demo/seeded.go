@@ -8,9 +8,13 @@ import (
 	"sync"
 	"time"
 
+	"periph.io/x/conn/v3/i2c"
+
 	"kermalux/drivers"
 	"kermalux/drivers/benchsim"
 	"kermalux/drivers/clock"
+	"kermalux/drivers/roomair"
+	"kermalux/drivers/roomair/airsim"
 	"kermalux/drivers/units"
 	"kermalux/firmware-host/bench"
 	"kermalux/firmware-host/panel/scripted"
@@ -41,6 +45,10 @@ type SeededOptions struct {
 	OnAsk func(p panel.Prompt)
 	// OnSay is called with each message before the operator hears it.
 	OnSay func(m panel.Message)
+	// RoomAir simulates the bench's room-air sensor (a BME280 on a
+	// simulated I2C bus) holding the scenario's air: the procedure's
+	// temperature and pressure are read from it instead of entered.
+	RoomAir bool
 }
 
 // SeededOutcome is what Seeded produced.
@@ -89,6 +97,9 @@ func Seeded(ctx context.Context, o SeededOptions) (*SeededOutcome, error) {
 	air := map[string]float64{"temperature": 20, "pressure": 101.325}
 	if a := scn.Air; a != nil {
 		air["temperature"], air["pressure"] = a.TemperatureC, a.PressureKPa
+	}
+	if o.RoomAir {
+		simulateRoomAir(b, airsim.Air{TemperatureC: air["temperature"], PressureKPa: air["pressure"], HumidityPct: 45})
 	}
 	mb := modelBench{m: model, clk: clk}
 	op := &Operator{bench: mb, Readings: air}
@@ -330,4 +341,12 @@ func benchFor(dir string, scn *benchsim.Scenario, day time.Time, name string) (s
 	b.Simulated = true // the session, its results and its report say so
 	proc, err := b.Procedure(name)
 	return path, b, proc, err
+}
+
+// simulateRoomAir gives b a room-air sensor on a simulated I2C bus holding
+// air (the humidity is the simulator's own; k_TP does not use it).
+func simulateRoomAir(b *bench.Bench, air airsim.Air) {
+	chip := airsim.New(air)
+	b.RoomAir = &bench.RoomAir{Bus: chip.String(), Address: roomair.AddrLow}
+	b.OpenI2C = func(string) (i2c.BusCloser, error) { return chip, nil }
 }

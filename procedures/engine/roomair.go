@@ -31,10 +31,12 @@ type AirSensor interface {
 // Resolutions the sensor's values are kept at: 0.01 °C and 1 Pa, the
 // BME280's own output resolution for temperature (BST-BME280-DS002 rev. 1.6
 // section 4.2.3, 0.01 °C steps) and a step far below its stated ±1 hPa for
-// pressure. The journal then holds the values as a display would show them.
+// pressure. The journal then holds the values as a display would show them
+// (a whole number of steps divided by the steps per unit: the same float
+// as the decimal typed in).
 const (
-	airStepC   = 0.01
-	airStepKPa = 0.001
+	airPerC   = 100  // steps per °C
+	airPerKPa = 1000 // steps per kPa
 )
 
 // enterFromSensor takes an enter step's temperature or pressure from the
@@ -65,9 +67,9 @@ func (e *Engine) enterFromSensor(ctx context.Context, idx int, s Step) (bool, er
 	var canon, u float64
 	if err == nil {
 		if q == units.Temperature {
-			canon, u = math.Round(a.TemperatureC/airStepC)*airStepC, a.TemperatureUnc
+			canon, u = math.Round(a.TemperatureC*airPerC)/airPerC, a.TemperatureUnc
 		} else {
-			canon, u = math.Round(a.PressureKPa/airStepKPa)*airStepKPa, a.PressureUnc
+			canon, u = math.Round(a.PressureKPa*airPerKPa)/airPerKPa, a.PressureUnc
 		}
 	}
 	val, uval := canon, u

@@ -176,5 +176,8 @@ func bisect(lo, hi int32, f func(int32) float64, want float64) int32 {
 // String implements i2c.Bus.
 func (c *Chip) String() string { return fmt.Sprintf("airsim(0x%02X)", c.Addr) }
 
+// Close implements i2c.BusCloser (the simulated bus holds nothing).
+func (c *Chip) Close() error { return nil }
+
 // SetSpeed implements i2c.Bus.
 func (c *Chip) SetSpeed(physic.Frequency) error { return nil }
