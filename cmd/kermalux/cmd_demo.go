@@ -32,6 +32,7 @@ type demoOptions struct {
 	fresh     bool
 	asJSON    bool
 	live      string
+	roomAir   bool
 }
 
 // demoJSON is `demo --json`: the results file (simulated: true) and
@@ -78,6 +79,7 @@ The simulator's figures are invented: they are not measurements.`,
 	f.BoolVar(&o.fresh, "new", false, "start a new session even if the journal in --out holds an unfinished one (default: resume it)")
 	f.BoolVar(&o.asJSON, "json", false, "print only the summary, as JSON (the results file and the paths written)")
 	f.StringVar(&o.live, "live", "", "serve the read-only live view on ADDR (HOST:PORT or :PORT) and keep it up after the session until interrupted; --speed 1 to watch in real time")
+	f.BoolVar(&o.roomAir, "room-air", false, "simulate the bench's room-air sensor at the scenario's air: temperature and pressure are read, not entered")
 	register(cmd)
 }
 
@@ -92,7 +94,7 @@ func runDemo(parent context.Context, w, errw io.Writer, o demoOptions, hasSeed b
 		return withCode(exitUsage, err)
 	}
 	opts := demo.Options{Out: o.out, Scenario: o.scenario, Seed: o.seed, HasSeed: hasSeed, Speed: o.speed,
-		Procedure: o.procedure, Render: render, Version: version, Fresh: o.fresh}
+		Procedure: o.procedure, Render: render, Version: version, Fresh: o.fresh, RoomAir: o.roomAir}
 	if !o.quiet && !o.asJSON {
 		opts.Dialogue = w
 	}

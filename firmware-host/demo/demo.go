@@ -68,6 +68,9 @@ type Options struct {
 	// unfinished one of the same procedure and intensifier; by default
 	// that session is resumed, as on the board.
 	Fresh bool
+	// RoomAir simulates the bench's room-air sensor at the scenario's air
+	// (`kermalux demo --room-air`): temperature and pressure are read, not entered.
+	RoomAir bool
 }
 
 // Outcome is what a demo run produced.
@@ -178,6 +181,9 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 		if ej, ep, err = o.Wrap(ej, ep, clk, proc); err != nil {
 			return nil, fmt.Errorf("demo: %w", err)
 		}
+	}
+	if o.RoomAir {
+		simulateRoomAir(b, op.Readings["temperature"], op.Readings["pressure"])
 	}
 	cfg, err := b.Config(proc, meters, ep, ej, clk, o.Version)
 	if err != nil {

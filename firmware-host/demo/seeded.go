@@ -99,7 +99,7 @@ func Seeded(ctx context.Context, o SeededOptions) (*SeededOutcome, error) {
 		air["temperature"], air["pressure"] = a.TemperatureC, a.PressureKPa
 	}
 	if o.RoomAir {
-		simulateRoomAir(b, airsim.Air{TemperatureC: air["temperature"], PressureKPa: air["pressure"], HumidityPct: 45})
+		simulateRoomAir(b, air["temperature"], air["pressure"])
 	}
 	mb := modelBench{m: model, clk: clk}
 	op := &Operator{bench: mb, Readings: air}
@@ -344,9 +344,10 @@ func benchFor(dir string, scn *benchsim.Scenario, day time.Time, name string) (s
 }
 
 // simulateRoomAir gives b a room-air sensor on a simulated I2C bus holding
-// air (the humidity is the simulator's own; k_TP does not use it).
-func simulateRoomAir(b *bench.Bench, air airsim.Air) {
-	chip := airsim.New(air)
+// the room's air (°C, kPa; the humidity is the simulator's own, k_TP does
+// not use it).
+func simulateRoomAir(b *bench.Bench, tempC, pressKPa float64) {
+	chip := airsim.New(airsim.Air{TemperatureC: tempC, PressureKPa: pressKPa, HumidityPct: 45})
 	b.RoomAir = &bench.RoomAir{Bus: chip.String(), Address: roomair.AddrLow}
 	b.OpenI2C = func(string) (i2c.BusCloser, error) { return chip, nil }
 }
