@@ -13,6 +13,7 @@ import (
 	"kermalux/drivers/roomair"
 	"kermalux/drivers/roomair/airsim"
 	"kermalux/procedures/entry"
+	"kermalux/procedures/panel"
 )
 
 // sensorSteps is cfSteps with the room's temperature and pressure asked of
@@ -182,4 +183,68 @@ func TestRoomAirFallbackToEntered(t *testing.T) {
 		}
 	}
 	t.Errorf("no temperature row in the budget %+v", rows)
+}
+
+// A session paused after the sensor read the air resumes with the air and
+// its uncertainty from the journal, even with the sensor gone: the budget
+// rows are still the sensor's (±1 °C rectangular, BST-BME280-DS002 rev. 1.6
+// table 1, from memory), not the bench thermometer's.
+func TestRoomAirResumedFromJournal(t *testing.T) {
+	r := ventedRig(t, sensorSteps())
+	_, s := openSim(t, r.clk, airsim.Air{TemperatureC: 26.4, PressureKPa: 96.85})
+	r.cfg.RoomAir = s
+	paused := false
+	r.reply = func(p panel.Prompt) (panel.Response, bool) {
+		if !paused && (p.Action == panel.ActBeamOn || p.Action == panel.ActMenu) {
+			paused = p.Action == panel.ActMenu // the pause gesture, then again at the pause menu
+			return panel.Response{Answer: panel.Pause, At: r.clk.Now()}, true
+		}
+		return panel.Response{}, false
+	}
+	sum, err := r.run(context.Background())
+	if !errors.Is(err, ErrPaused) {
+		t.Fatalf("first run: %v, want paused", err)
+	}
+	r.cfg.Resume, r.cfg.RoomAir = sum.Session, nil
+	if _, err := r.run(context.Background()); err != nil {
+		t.Fatalf("resume: %v\n%s", err, r.pan.Dialogue())
+	}
+	var row *entry.BudgetRow
+	for _, res := range records[entry.Result](r.jr, sum.Session, entry.KindResult) {
+		for i, b := range res.Budget {
+			if res.Quantity == "conversion_factor" && b.Source == "room temperature (k_TP)" {
+				row = &res.Budget[i]
+			}
+		}
+	}
+	if w := 1 / math.Sqrt(3) / (273.15 + 26.4); row == nil || math.Abs(row.RelStdUnc-w) > 1e-4*w {
+		t.Fatalf("temperature row %+v after resume, want relative %v (the sensor's)", row, w)
+	}
+}
+
+// A sensor reading outside the step's range (a chip in the sun, a failing
+// one) is not used: it is journalled and the value is entered.
+func TestRoomAirOutOfRangeEntered(t *testing.T) {
+	r := ventedRig(t, sensorSteps())
+	_, s := openSim(t, r.clk, airsim.Air{TemperatureC: 48, PressureKPa: 99}) // the step takes 10 to 40 °C
+	r.cfg.RoomAir = s
+	if _, err := r.run(context.Background()); err != nil {
+		t.Fatalf("run: %v", err)
+	}
+	src := map[string]string{}
+	for _, v := range records[entry.Value](r.jr, "s1", entry.KindValue) {
+		src[v.Name] = v.Source
+	}
+	if src["temperature"] == "sensor" || src["pressure"] != "sensor" {
+		t.Errorf("sources %v: want the temperature entered, the pressure from the sensor", src)
+	}
+	var n int
+	for _, ev := range records[entry.Event](r.jr, "s1", entry.KindEvent) {
+		if ev.Name == evRoomAirFailed && strings.Contains(ev.Detail, "48.0 °C is outside 10.0 to 40.0 °C") {
+			n++
+		}
+	}
+	if n != 1 {
+		t.Errorf("%d room_air_failed events for the out-of-range temperature, want 1", n)
+	}
 }
