@@ -488,8 +488,9 @@ func (e *Engine) judge(ctx context.Context, idx int, s Step) error {
 		limits = e.benchLimits(r.Quantity, r.FieldMode)
 	}
 	if r.Verdict == string(calib.NotMeasurable) {
-		// Nothing to compare: said again with its reason.
-		return e.say(ctx, idx, panel.Message{Text: resultName(r, e.resultMeter(j.Result)) + ": not measurable, " + r.DecidedBy + ".", Level: panel.Warn})
+		// Nothing to compare, and the compute step said why (the same
+		// sentence twice in a row is noise to the engineer).
+		return nil
 	}
 	v := e.applyVerdict(&r, calib.Result{}, limits)
 	e.storeResult(j.Result, r)

@@ -299,7 +299,7 @@ func conversionSpec(results []Result) (chartSpec, error) {
 	unit := ""
 	var cf []Result
 	for _, r := range results {
-		if r.Quantity != "conversion_factor" {
+		if r.Quantity != "conversion_factor" || r.Unmeasured() {
 			continue
 		}
 		cf = append(cf, r)

@@ -27,8 +27,13 @@ func (r *Report) WriteResultsCSV(w io.Writer) error {
 	}
 	s := r.Session
 	for _, res := range r.Results {
+		value, std, exp, k := g(res.Value), g(res.StdUnc), g(res.ExpUnc), g(res.K)
+		if res.Unmeasured() {
+			// No value, only the reason (decided_by).
+			value, std, exp, k = "", "", "", ""
+		}
 		row := []string{s.ID, s.Site, s.Room, s.IntensifierSerial, s.Started.Format(time.RFC3339), strconv.Itoa(res.Step), res.FieldMode, res.Quantity,
-			g(res.Value), res.Unit, g(res.StdUnc), g(res.ExpUnc), g(res.K), res.Verdict, res.DecidedBy, strconv.FormatBool(res.Calibrated),
+			value, res.Unit, std, exp, k, res.Verdict, res.DecidedBy, strconv.FormatBool(res.Calibrated),
 			optional(res.Baseline), optional(res.BaselineFrac), strings.Join(res.Flags, "; "), res.Review, limitsCSV(res.Limits), strconv.FormatBool(r.Simulated)}
 		if err := cw.Write(row); err != nil {
 			return fmt.Errorf("results CSV: %w", err)

@@ -18,6 +18,7 @@ import (
 	"strings"
 	"time"
 
+	"kermalux/calib"
 	"kermalux/procedures/entry"
 )
 
@@ -77,6 +78,19 @@ type Result struct {
 	entry.Result
 	Seq    int64
 	Review string // why it needs review; empty if it does not
+}
+
+// Unmeasured reports whether the result could not be measured (verdict
+// not_measurable): it has no value, only a reason, and is left out of the
+// charts and the trend.
+func (r Result) Unmeasured() bool { return r.Verdict == string(calib.NotMeasurable) }
+
+// Shown is the value as printed: with its U, or "not measurable".
+func (r Result) Shown() string {
+	if r.Unmeasured() {
+		return "not measurable"
+	}
+	return ValueWithUnc(r.Value, r.ExpUnc)
 }
 
 // Reading is one journalled reading.

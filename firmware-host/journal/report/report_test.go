@@ -492,3 +492,39 @@ func TestSimulatedSessionRecordMarksEveryOutput(t *testing.T) {
 		}
 	}
 }
+
+// A figure that could not be measured prints "not measurable" in the HTML
+// results table and leaves the value, U and k empty in the results CSV;
+// the conversion-factor chart leaves it out. Before, it printed as "0".
+func TestNotMeasurableShownAsSuch(t *testing.T) {
+	r, err := Build(sampleSession())
+	if err != nil {
+		t.Fatal(err)
+	}
+	n := 0
+	for i := range r.Results {
+		if r.Results[i].Quantity == "conversion_factor" && n == 0 {
+			r.Results[i].Value, r.Results[i].StdUnc, r.Results[i].ExpUnc, r.Results[i].K = 0, 0, 0, 0
+			r.Results[i].Verdict, r.Results[i].DecidedBy = "not_measurable", "the photometer is over range, three times"
+			n++
+		}
+	}
+	if n == 0 {
+		t.Fatal("no conversion factor in the sample")
+	}
+	var html, csv bytes.Buffer
+	if err := r.WriteHTML(&html, Options{}); err != nil {
+		t.Fatal(err)
+	}
+	if err := r.WriteResultsCSV(&csv); err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(html.String(), "not measurable") {
+		t.Error("HTML does not say not measurable")
+	}
+	for _, line := range strings.Split(csv.String(), "\n") {
+		if strings.Contains(line, "not_measurable") && strings.Contains(line, ",conversion_factor,0,") {
+			t.Errorf("CSV prints a value for it: %s", line)
+		}
+	}
+}

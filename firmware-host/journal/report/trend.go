@@ -246,6 +246,11 @@ func Fit(serial, quantity string, history []HistoryPoint, actionLevels ...float6
 		if h.Result.Quantity != quantity || latest[h.Session+"\x00"+h.Result.FieldMode] != i {
 			continue
 		}
+		if h.Result.Verdict == string(calib.NotMeasurable) {
+			// No value to follow: a figure that could not be measured
+			// is not a point of the trend (a zero would drag the fit).
+			continue
+		}
 		if _, ok := groups[h.Result.FieldMode]; !ok {
 			modes = append(modes, h.Result.FieldMode)
 		}

@@ -268,3 +268,23 @@ func TestLoadTrends(t *testing.T) {
 		t.Errorf("trend CSV has %d lines, want header + 6", n)
 	}
 }
+
+// A year whose figure could not be measured (verdict not_measurable, value
+// recorded as 0) is not a point of the trend: the fit of the other years
+// is the same as without it. Before, the zero entered the fit and dragged
+// the projected crossing years earlier.
+func TestTrendLeavesOutNotMeasurable(t *testing.T) {
+	hs := sampleHistory(7, 180, -4.5)
+	want := Fit("HV-2291", "conversion_factor", hs, 0.5)[0]
+	nm := hs[3]
+	nm.Session = "hv2291-nm"
+	nm.Date = nm.Date.Add(24 * time.Hour)
+	nm.Result.Value, nm.Result.ExpUnc, nm.Result.Verdict = 0, 0, "not_measurable"
+	got := Fit("HV-2291", "conversion_factor", append(hs, nm), 0.5)[0]
+	if len(got.Points) != len(want.Points) {
+		t.Fatalf("%d points, want %d: the not-measurable year is plotted", len(got.Points), len(want.Points))
+	}
+	if !got.Fitted || !got.Projections[0].Crossing.Equal(want.Projections[0].Crossing) {
+		t.Errorf("crossing on %v, without the unmeasured year %v", got.Projections[0].Crossing, want.Projections[0].Crossing)
+	}
+}
