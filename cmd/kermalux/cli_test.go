@@ -77,10 +77,15 @@ func TestDemoSummaryTable(t *testing.T) {
 		{Quantity: "conversion_factor", FieldMode: "25cm", Value: 95.17, ExpUnc: 3.5, K: 2.002, Unit: "cd·m⁻²/(µGy·s⁻¹)", Verdict: "pass", Calibrated: true},
 		{Quantity: "dark_level", Value: 0.03004, ExpUnc: 5.4e-06, K: 2, Unit: "cd/m²", Verdict: "pass", Calibrated: true},
 		{Quantity: "stability", Value: 0.00378, Unit: "1", Verdict: "info", Calibrated: true},
+		{Quantity: "contrast_ratio", Value: 0, Unit: "1", Verdict: "not_measurable", DecidedBy: "the photometer is over range"},
 	})
 	out := b.String()
 	lines := strings.Split(strings.TrimSpace(out), "\n")
-	if len(lines) != 4 || !strings.Contains(lines[0], "quantity") || !strings.Contains(lines[0], " k ") || !strings.Contains(lines[0], "U") {
+	// A figure that could not be measured shows no value (it printed 0).
+	if len(lines) == 5 && (!strings.Contains(lines[4], "not measured") || strings.Contains(lines[4], " 0 ")) {
+		t.Errorf("not-measurable row: %q", lines[4])
+	}
+	if len(lines) != 5 || !strings.Contains(lines[0], "quantity") || !strings.Contains(lines[0], " k ") || !strings.Contains(lines[0], "U") {
 		t.Fatalf("no header with k:\n%s", out)
 	}
 	for _, want := range []string{"95.2", "± 3.5", "2.00", "0.0300400", "± 0.0000054", "not evaluated", "ratio"} {

@@ -13,6 +13,7 @@ import (
 
 	"github.com/spf13/cobra"
 
+	"kermalux/calib"
 	"kermalux/drivers/clock"
 	"kermalux/firmware-host/demo"
 	"kermalux/firmware-host/live"
@@ -189,13 +190,17 @@ func writeSummaryTable(w io.Writer, results []entry.Result) {
 		}
 		val, unc := engine.RoundToUncertainty(r.Value, r.ExpUnc)
 		k := engine.CoverageFactor(r.K)
-		if unc == "" {
+		switch {
+		case r.Verdict == string(calib.NotMeasurable):
+			// No value to print: the verdict column and the report say why.
+			val, unc, k = "-", "not measured", "-"
+		case unc == "":
 			unc, k = "not evaluated", "-"
-		} else {
+		default:
 			unc = "± " + unc
 		}
 		verdict := r.Verdict
-		if !r.Calibrated {
+		if !r.Calibrated && r.Verdict != string(calib.NotMeasurable) {
 			verdict += " (not calibrated)"
 		}
 		unit := r.Unit
