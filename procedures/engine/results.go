@@ -12,6 +12,7 @@ import (
 	"strconv"
 	"strings"
 
+	"kermalux/calib"
 	"kermalux/procedures/entry"
 )
 
@@ -140,6 +141,11 @@ func ParseResults(name string, b []byte) (ResultsFile, error) {
 func Baselines(rf ResultsFile) map[string]float64 {
 	m := map[string]float64{}
 	for _, r := range rf.Results {
+		if r.Verdict == string(calib.NotMeasurable) {
+			// No value: never a baseline (a zero would make every later
+			// value "above baseline" and a baseline rule meaningless).
+			continue
+		}
 		m[limitKey(r.Quantity, r.FieldMode)] = r.Value
 	}
 	return m

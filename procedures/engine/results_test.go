@@ -138,3 +138,18 @@ func TestCheckResultsDir(t *testing.T) {
 		}
 	}
 }
+
+// A figure that was not measurable in the baseline session is no baseline.
+func TestBaselinesSkipNotMeasurable(t *testing.T) {
+	rf := ResultsFile{Results: []ResultLine{
+		{Quantity: "conversion_factor", FieldMode: "32cm", Value: 152, Verdict: "pass"},
+		{Quantity: "conversion_factor", FieldMode: "17cm", Value: 0, Verdict: "not_measurable"},
+	}}
+	b := Baselines(rf)
+	if b["conversion_factor@32cm"] != 152 {
+		t.Errorf("baselines %v lack the measured one", b)
+	}
+	if _, ok := b["conversion_factor@17cm"]; ok {
+		t.Errorf("baselines %v hold the not-measurable one", b)
+	}
+}
