@@ -145,13 +145,7 @@ func TestRoomAirFallbackToEntered(t *testing.T) {
 	if _, err := r.run(context.Background()); err != nil {
 		t.Fatalf("run: %v\n%s", err, r.pan.Dialogue())
 	}
-	var failed int
-	for _, ev := range records[entry.Event](r.jr, "s1", entry.KindEvent) {
-		if ev.Name == evRoomAirFailed && strings.Contains(ev.Detail, "no ACK") {
-			failed++
-		}
-	}
-	if failed != 2 {
+	if failed := airFailures(r, "no ACK"); failed != 2 {
 		t.Errorf("%d room_air_failed events naming the bus error, want 2 (temperature, pressure)", failed)
 	}
 	for _, v := range records[entry.Value](r.jr, "s1", entry.KindValue) {
@@ -238,13 +232,18 @@ func TestRoomAirOutOfRangeEntered(t *testing.T) {
 	if src["temperature"] == "sensor" || src["pressure"] != "sensor" {
 		t.Errorf("sources %v: want the temperature entered, the pressure from the sensor", src)
 	}
-	var n int
+	if n := airFailures(r, "48.0 °C is outside 10.0 to 40.0 °C"); n != 1 {
+		t.Errorf("%d room_air_failed events for the out-of-range temperature, want 1", n)
+	}
+}
+
+// airFailures counts the room_air_failed events whose detail holds detail.
+func airFailures(r *rig, detail string) int {
+	n := 0
 	for _, ev := range records[entry.Event](r.jr, "s1", entry.KindEvent) {
-		if ev.Name == evRoomAirFailed && strings.Contains(ev.Detail, "48.0 °C is outside 10.0 to 40.0 °C") {
+		if ev.Name == evRoomAirFailed && strings.Contains(ev.Detail, detail) {
 			n++
 		}
 	}
-	if n != 1 {
-		t.Errorf("%d room_air_failed events for the out-of-range temperature, want 1", n)
-	}
+	return n
 }
