@@ -238,7 +238,8 @@
       for (const r of S.results) {
         const tr = el("tr"); tr.dataset.quantity = r.quantity;
         tr.appendChild(el("td", "q", words(r.quantity) + (r.field_mode ? ", " + r.field_mode : "")));
-        tr.appendChild(el("td", "num", pm(r.value, r.expanded_uncertainty) + unitText(r.unit)));
+        // A figure that could not be measured has no value: say so.
+        tr.appendChild(el("td", "num", r.verdict === "not_measurable" ? "not measurable" : pm(r.value, r.expanded_uncertainty) + unitText(r.unit)));
         const vd = el("td"); vd.appendChild(el("span", "verdict " + (r.verdict || "info"), r.verdict || "info")); tr.appendChild(vd);
         const dec = words(r.decided_by);
         tr.appendChild(el("td", "dec", dec + (r.calibrated === false && !/calibrated/.test(dec) ? " (not calibrated)" : "")));
