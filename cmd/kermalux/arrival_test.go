@@ -119,7 +119,7 @@ func runArrival(t testing.TB, speed float64, withHog bool) arrivalRun {
 		tee.Journal = j
 		return tee, p, nil
 	}
-	out, err := demo.Run(context.Background(), demo.Options{Out: t.TempDir(), Speed: speed, Procedure: arrivalProcedure, Wrap: wrap})
+	out, err := demo.Run(context.Background(), demo.Options{Out: t.TempDir(), Speed: speed, Procedure: arrivalProcedure, Wrap: wrap, Hurried: true})
 	if err != nil {
 		t.Fatal(err)
 	}

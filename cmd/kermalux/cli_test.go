@@ -7,7 +7,9 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
+	"time"
 
+	"kermalux/firmware-host/demo"
 	"kermalux/procedures/entry"
 )
 
@@ -184,14 +186,25 @@ func TestDemoJSON(t *testing.T) {
 		t.Skip("runs a short demo (meter checks) in scaled real time")
 	}
 	out := t.TempDir()
-	code, stdout, errb := runCLI(t, "demo", "--out", out, "--procedure", "meter-checks", "--format", "csv", "--json")
+	code, stdout, errb := runCLI(t, "demo", "--out", out, "--procedure", "meter-checks", "--format", "csv", "--json", "--hurried")
 	var doc struct {
 		Simulated bool             `json:"simulated"`
 		Results   []map[string]any `json:"results"`
 		Journal   string           `json:"journal"`
+		Engineer  float64          `json:"engineer_s"`
+		Target    float64          `json:"engineer_target_s"`
+		Waited    float64          `json:"operator_wait_s"`
+		Hurried   bool             `json:"hurried"`
+		Session   float64          `json:"simulated_s"`
 	}
 	if code != exitOK || json.Unmarshal([]byte(stdout), &doc) != nil || !doc.Simulated || len(doc.Results) == 0 || doc.Journal == "" {
 		t.Errorf("demo --json: exit %d\n%.500s\n%s", code, stdout, errb)
+	}
+	// The visit's figures: the engineer's time from the Ready prompt, so
+	// more than the session's, with the operator's waits in it, against
+	// the 15-minute target.
+	if doc.Target != 900 || doc.Engineer < doc.Session || doc.Waited <= 0 || doc.Waited > doc.Engineer || !doc.Hurried {
+		t.Errorf("demo --json visit: engineer %g s of target %g s, session %g s, operator %g s, hurried %v", doc.Engineer, doc.Target, doc.Session, doc.Waited, doc.Hurried)
 	}
 }
 
@@ -218,6 +231,24 @@ func TestCompletionOffersSerialsFromTheStore(t *testing.T) {
 		_, out, errb := runCLI(t, args...)
 		if !strings.Contains(out, "LX23-0100\n") {
 			t.Errorf("%v: no serial offered:\n%s%s", args, out, errb)
+		}
+	}
+}
+
+// TestVisitLine: the demo's summary gives the engineer's time against the
+// 15-minute target, the operator's part of it, beam-on and exposures.
+func TestVisitLine(t *testing.T) {
+	for _, c := range []struct {
+		engineer time.Duration
+		want     string
+	}{
+		{14*time.Minute + 59*time.Second, "engineer time 14 min 59 s (within the 15 min 00 s target; 9 min 30 s of it the simulated operator's delays), beam-on 95 s, 19 exposures"},
+		{26*time.Minute + 12400*time.Millisecond, "engineer time 26 min 12 s (over the 15 min 00 s target"},
+	} {
+		out := &demo.Outcome{Engineer: c.engineer, Waited: 9*time.Minute + 30*time.Second, Exposures: 19}
+		out.Summary.BeamOn = 95 * time.Second
+		if got := visitLine(out); !strings.Contains(got, c.want) {
+			t.Errorf("visit line\n%s\nlacks\n%s", got, c.want)
 		}
 	}
 }

@@ -9,6 +9,7 @@ import (
 	"os/signal"
 	"strings"
 	"syscall"
+	"time"
 	"unicode/utf8"
 
 	"github.com/spf13/cobra"
@@ -34,6 +35,7 @@ type demoOptions struct {
 	asJSON    bool
 	live      string
 	roomAir   bool
+	hurried   bool
 }
 
 // demoJSON is `demo --json`: the results file (simulated: true) and
@@ -46,6 +48,17 @@ type demoJSON struct {
 	Reports     []string `json:"reports"`
 	SimulatedS  float64  `json:"simulated_s"` // session time on the simulated clock
 	WallS       float64  `json:"wall_s"`
+	// The visit: the engineer's time from the first prompt to the end on
+	// the simulated clock (the simulated operator's delays included),
+	// against the target, and the exposures (beam pedal presses).
+	EngineerS       float64 `json:"engineer_s"`
+	EngineerTargetS float64 `json:"engineer_target_s"`
+	OperatorWaitS   float64 `json:"operator_wait_s"` // the operator's part of engineer_s
+	// OperatorWaitFor is operator_wait_s by kind of action (listen, press,
+	// grid=removed...: the keys of the delay table in firmware-host/demo).
+	OperatorWaitFor map[string]float64 `json:"operator_wait_for_s"`
+	Exposures       int                `json:"exposures"`
+	Hurried         bool               `json:"hurried"` // the operator took no time to listen, set up or read off
 }
 
 func init() {
@@ -79,6 +92,7 @@ The simulator's figures are invented: they are not measurements.`,
 	f.BoolVarP(&o.quiet, "quiet", "q", false, "print only the summary")
 	f.BoolVar(&o.fresh, "new", false, "start a new session even if the journal in --out holds an unfinished one (default: resume it)")
 	f.BoolVar(&o.asJSON, "json", false, "print only the summary, as JSON (the results file and the paths written)")
+	f.BoolVar(&o.hurried, "hurried", false, "the simulated operator answers after a reaction time only, taking no time to listen, set up or read off (default: a person's times, see firmware-host/demo/operator.go)")
 	f.StringVar(&o.live, "live", "", "serve the read-only live view on ADDR (HOST:PORT or :PORT) and keep it up after the session until interrupted; --speed 1 to watch in real time")
 	f.BoolVar(&o.roomAir, "room-air", false, "simulate the bench's room-air sensor at the scenario's air: temperature and pressure are read, not entered")
 	register(cmd)
@@ -95,7 +109,7 @@ func runDemo(parent context.Context, w, errw io.Writer, o demoOptions, hasSeed b
 		return withCode(exitUsage, err)
 	}
 	opts := demo.Options{Out: o.out, Scenario: o.scenario, Seed: o.seed, HasSeed: hasSeed, Speed: o.speed,
-		Procedure: o.procedure, Render: render, Version: version, Fresh: o.fresh, RoomAir: o.roomAir}
+		Procedure: o.procedure, Render: render, Version: version, Fresh: o.fresh, RoomAir: o.roomAir, Hurried: o.hurried}
 	if !o.quiet && !o.asJSON {
 		opts.Dialogue = w
 	}
@@ -143,7 +157,12 @@ func runDemo(parent context.Context, w, errw io.Writer, o demoOptions, hasSeed b
 
 func printDemoJSON(w io.Writer, out *demo.Outcome) error {
 	doc := demoJSON{ResultsPath: out.Results, Journal: out.Journal, Bench: out.Bench, Reports: out.Reports,
-		SimulatedS: out.Elapsed.Seconds(), WallS: out.Wall.Seconds()}
+		SimulatedS: out.Elapsed.Seconds(), WallS: out.Wall.Seconds(),
+		EngineerS: out.Engineer.Seconds(), EngineerTargetS: demo.EngineerTarget.Seconds(), OperatorWaitS: out.Waited.Seconds(),
+		Exposures: out.Exposures, Hurried: out.Hurried, OperatorWaitFor: map[string]float64{}}
+	for k, d := range out.WaitedFor {
+		doc.OperatorWaitFor[k] = d.Seconds()
+	}
 	if doc.Reports == nil {
 		doc.Reports = []string{}
 	}
@@ -161,6 +180,7 @@ func printDemoSummary(w io.Writer, out *demo.Outcome) {
 	s := out.Summary
 	fmt.Fprintf(w, "\nSession %s (SIMULATED): %s, %d of %d steps, beam-on %.0f s, %s simulated in %s.\n",
 		s.Session, s.Outcome, s.Steps, s.Of, s.BeamOn.Seconds(), out.Elapsed.Round(1e9), out.Wall.Round(1e8))
+	fmt.Fprintln(w, visitLine(out))
 	writeSummaryTable(w, s.Results)
 	if s.Review > 0 {
 		fmt.Fprintf(w, "%d result(s) need review.\n", s.Review)
@@ -175,6 +195,28 @@ func printDemoSummary(w io.Writer, out *demo.Outcome) {
 		fmt.Fprintf(w, "Report:  not rendered by this build; at the office: kermalux report --journal %s --out DIR\n", out.Journal)
 	}
 	fmt.Fprintln(w, "Simulated bench: these figures are not measurements.")
+}
+
+// visitLine is the visit's figures: the engineer's time against the
+// target, with the operator's part of it, beside beam-on and exposures.
+func visitLine(out *demo.Outcome) string {
+	verdict := "within"
+	if out.Engineer > demo.EngineerTarget {
+		verdict = "over"
+	}
+	who := "the simulated operator's delays"
+	if out.Hurried {
+		who = "a hurried operator's reaction times only (--hurried)"
+	}
+	return fmt.Sprintf("Visit: engineer time %s (%s the %s target; %s of it %s), beam-on %.0f s, %d exposures.",
+		minSec(out.Engineer), verdict, minSec(demo.EngineerTarget), minSec(out.Waited), who, out.Summary.BeamOn.Seconds(), out.Exposures)
+}
+
+// minSec writes d as "12 min 05 s".
+func minSec(d time.Duration) string {
+	d = d.Round(time.Second)
+	m := d / time.Minute
+	return fmt.Sprintf("%d min %02d s", m, (d-m*time.Minute)/time.Second)
 }
 
 // writeSummaryTable prints the results of a run as a table with a header:

@@ -17,6 +17,7 @@ import (
 	"time"
 
 	"kermalux/calib"
+	"kermalux/drivers"
 	"kermalux/drivers/benchsim"
 	"kermalux/drivers/clock"
 	"kermalux/firmware-host/bench"
@@ -71,7 +72,15 @@ type Options struct {
 	// RoomAir simulates the bench's room-air sensor at the scenario's air
 	// (`kermalux demo --room-air`): temperature and pressure are read, not entered.
 	RoomAir bool
+	// Hurried: the simulated operator answers every prompt after a
+	// reaction time only, with no time to listen, set up or read off
+	// (tests that need speed); by default it takes the times of Delays.
+	Hurried bool
 }
+
+// EngineerTarget is the engineer's time a whole visit should take at most:
+// fifteen minutes at the intensifier (the project's target).
+const EngineerTarget = 15 * time.Minute
 
 // Outcome is what a demo run produced.
 type Outcome struct {
@@ -85,6 +94,17 @@ type Outcome struct {
 	Operator []string       // what the simulated operator did
 	Elapsed  time.Duration  // simulated time of the session
 	Wall     time.Duration  // real time it took
+	// Engineer is the engineer's time in simulated time: from the first
+	// prompt (the "Ready" prompt) to the end of the session, the
+	// operator's time to listen, set up, read off and press included.
+	Engineer time.Duration
+	// Exposures is how many times the operator stepped on the beam pedal.
+	Exposures int
+	// Waits are the operator's waits before each answer; Waited their sum.
+	Waits     []Wait
+	Waited    time.Duration
+	WaitedFor map[string]time.Duration // Waited by kind of action (keys of Delays)
+	Hurried   bool                     // the operator was hurried (Options.Hurried)
 }
 
 // Run runs the whole sequence against the simulator: it starts the bench
@@ -145,6 +165,7 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	defer jr.Close()
 
 	op := NewOperator(ctx, sim, clk, uint64(scn.Seed))
+	op.Hurried = o.Hurried
 	// The operator reads the room's thermometer and barometer.
 	op.Readings["temperature"], op.Readings["pressure"] = 20, 101.325
 	if a := scn.Air; a != nil {
@@ -201,9 +222,20 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 			verb = "start"
 		}
 	}
+	first := clk.Mono() // the engineer's time starts at the first prompt
 	ready := "Ready. " + b.Found(meters, clk.Now()) + " Press the switch to " + verb + " " + proc.Title + "."
 	if _, err := ep.Ask(ctx, panel.Prompt{Message: panel.Message{Text: ready, Level: panel.Info, Action: panel.ActAcknowledge}}); err != nil {
 		return nil, err
+	}
+	// A streaming meter kept on sending while the engineer heard the Ready
+	// prompt out; its backlog of old lines (more than ten seconds of them)
+	// would be waded through before its identity reply, and the meter's
+	// identification at the session's start gives up after 100 lines.
+	// Drop it, as the engine does before it samples.
+	for _, m := range meters {
+		if f, ok := m.(drivers.Freshener); ok {
+			f.Discard()
+		}
 	}
 	if o.Hook != nil {
 		o.Hook(sim, clk)
@@ -216,7 +248,8 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	sum, runErr := eng.Run(ctx)
 	op.Wait()
 	out := &Outcome{Summary: sum, Journal: jpath, Bench: benchPath, Scenario: scn, Truth: sim.Truth(),
-		Operator: op.Actions(), Elapsed: clk.Mono() - start}
+		Operator: op.Actions(), Elapsed: clk.Mono() - start, Engineer: clk.Mono() - first,
+		Exposures: op.Exposures(), Waits: op.Waits(), Waited: op.Waited(), WaitedFor: op.WaitedFor(), Hurried: o.Hurried}
 	if sum.Session != "" {
 		out.Results, err = engine.WriteResultsFile(o.Out, engine.NewResultsFile(sum, cfg.Session))
 		if err != nil {

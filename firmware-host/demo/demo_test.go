@@ -115,7 +115,7 @@ func demoRun(t *testing.T, file string, wantModes int, fails []string, kerma boo
 	dir := t.TempDir()
 	ctx, cancel := context.WithTimeout(context.Background(), 3*time.Minute)
 	defer cancel()
-	out, err := Run(ctx, Options{Out: dir, Scenario: file, Speed: 30, Render: renderHTML, Version: "test"})
+	out, err := Run(ctx, Options{Out: dir, Scenario: file, Speed: 30, Render: renderHTML, Version: "test", Hurried: true})
 	if err != nil {
 		t.Fatal(err)
 	}

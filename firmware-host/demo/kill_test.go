@@ -41,7 +41,7 @@ func killChild(out, at string) int {
 		n, _ = strconv.Atoi(c)
 	}
 	seen := map[entry.Kind]int{}
-	o := Options{Out: out, Procedure: "conversion-factor", Speed: 40, Version: "kill-test",
+	o := Options{Out: out, Procedure: "conversion-factor", Speed: 40, Version: "kill-test", Hurried: true,
 		OnRecord: func(k entry.Kind, seq int64) {
 			seen[k]++
 			if k == kind && seen[k] == n {
