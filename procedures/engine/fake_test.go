@@ -112,6 +112,9 @@ type fakeMeter struct {
 	// rangeMax > 0: a reading above it is over range (no value);
 	// rangeMin > 0: a reading below it is under range.
 	rangeMax, rangeMin float64
+	// brokenFrom > 0: from this time on every read fails with a garbled
+	// line (a meter gone wrong for good).
+	brokenFrom time.Duration
 }
 
 type window2 struct{ from, to time.Duration }
@@ -136,6 +139,9 @@ func (m *fakeMeter) Read(ctx context.Context) (drivers.Reading, error) {
 			m.wasLost = true
 			return drivers.Reading{}, fmt.Errorf("%s: %w", m.name, drivers.ErrLinkDown)
 		}
+	}
+	if m.brokenFrom > 0 && t >= m.brokenFrom {
+		return drivers.Reading{}, fmt.Errorf("%s: %w", m.name, drivers.ErrGarbled)
 	}
 	k, l := m.p.truth(t)
 	x := k + m.p.darkK

@@ -165,6 +165,26 @@ func TestIntegrityAtTheEdges(t *testing.T) {
 			},
 		},
 		{
+			name: "dosimeter broken for good during an exposure: released, bounded, the sequence ends",
+			setup: func(r *rig) {
+				r.dos.brokenFrom = 10 * time.Second // while the conversion factor is sampled
+			},
+			check: func(t *testing.T, r *rig, sum Summary, err error) {
+				if err != nil || sum.Outcome != "complete" {
+					t.Fatalf("outcome %s, %v", sum.Outcome, err)
+				}
+				if len(sum.Results) == 0 || sum.Results[0].Verdict != string(calib.NotMeasurable) {
+					t.Errorf("results %+v, want not_measurable", sum.Results)
+				}
+				r.phys.mu.Lock()
+				on := r.phys.beam
+				r.phys.mu.Unlock()
+				if on {
+					t.Error("the session ended with the beam on")
+				}
+			},
+		},
+		{
 			name: "beam-on timer against the true beam log",
 			setup: func(r *rig) {
 				r.phot.resp = 900 * time.Millisecond // a photometer that falls slowly

@@ -1196,6 +1196,16 @@ func (e *Engine) waitOff(ctx context.Context, a *attempt, lv panel.Level, text s
 				if errors.As(err, &lost) || ctx.Err() != nil {
 					return err
 				}
+				if t := a.tracks[role]; t != nil && t.above && a.beamOn {
+					// The meter no longer gives readings (three errors in a
+					// row): it cannot show the beam off. The other meters
+					// decide; with none left, the engineer does.
+					_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: a.idx, Name: evReadError, Detail: fmt.Sprintf("%s cannot show the beam off: %v", role, err), BeamOn: e.st.beamOn.Seconds()})
+					t.above, t.risen = false, false
+					if err := e.offByHand(ctx, a); err != nil {
+						return err
+					}
+				}
 				continue
 			}
 			if t := a.tracks[role]; t != nil && a.beamOn {
@@ -1217,6 +1227,25 @@ func (e *Engine) waitOff(ctx context.Context, a *attempt, lv panel.Level, text s
 		}
 	}
 	_ = e.cfg.Panel.Indicate(ctx, panel.Ready)
+	return nil
+}
+
+// offByHand ends the exposure when no meter that can still read has seen
+// the beam: the engineer says when it is off (a press). With another meter
+// still seeing the beam, its fall decides.
+func (e *Engine) offByHand(ctx context.Context, a *attempt) error {
+	for _, t := range a.tracks {
+		if t.risen {
+			if !a.anyAbove() {
+				e.beamOff(ctx, a)
+			}
+			return nil
+		}
+	}
+	if _, err := e.ask(ctx, panel.Prompt{Message: panel.Message{Text: "Press the switch when the beam is off.", Level: panel.Warn, Action: panel.ActAcknowledge}, Step: a.idx, StepID: a.step.ID}); err != nil {
+		return err
+	}
+	e.beamOff(ctx, a)
 	return nil
 }
 
