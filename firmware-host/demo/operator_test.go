@@ -9,6 +9,7 @@ import (
 	"time"
 
 	"kermalux/procedures/entry"
+	"kermalux/procedures/script"
 )
 
 // TestOperatorTakesAPersonsTime runs the conversion-factor procedure twice
@@ -141,4 +142,43 @@ func TestOperatorTakesAPersonsTime(t *testing.T) {
 type journalPrompt struct {
 	text string
 	mono int64
+}
+
+// TestSetupChanges: the operator spends a change's time only on what a
+// prompt changes, from the room as found (grid fitted, nothing in the
+// beam), and moves the photometer once for its radius, angle and label.
+func TestSetupChanges(t *testing.T) {
+	o := &Operator{}
+	steps := []struct {
+		setup map[string]string
+		want  []string
+	}{
+		// The room as found: the grid must come off, the disk is not in.
+		{map[string]string{"grid": "removed", "lead_disk": "out"}, []string{"grid=removed", DelayInPlace}},
+		{map[string]string{"chamber": "input plane"}, []string{"chamber=input plane"}},
+		// A summary of what is already so costs glances only.
+		{map[string]string{"grid": "removed", "chamber": "input plane"}, []string{DelayInPlace, DelayInPlace}},
+		{map[string]string{"photometer_radius": "0.5 r", "photometer_angle": "90 deg", "position": "up 0.5 r"}, []string{"photometer"}},
+		{map[string]string{"chamber": "removed", "tube_voltage": "70 kV"}, []string{"chamber", "tube_voltage"}},
+		{map[string]string{"lead_disk": "in"}, []string{"lead_disk=in"}},
+		{map[string]string{"lead_disk": "out", "collimator_blades": "open"}, []string{DelayOther, "lead_disk"}},
+	}
+	for i, s := range steps {
+		if got := o.changes(s.setup); strings.Join(got, ",") != strings.Join(s.want, ",") {
+			t.Errorf("step %d %v: spent on %v, want %v", i, s.setup, got, s.want)
+		}
+	}
+	// Every set-up key a procedure may name has its own time (the
+	// photometer's keys share one move) with a source.
+	for _, k := range []string{script.SetFieldMode, script.SetTubeVoltage, script.SetTubeCurrent, script.SetAddedFilter, script.SetGrid,
+		script.SetLeadDisk, script.SetPhantom, script.SetBrightnessControl, script.SetChamber, script.SetBeamQuality, "photometer"} {
+		if d, ok := Delays[k]; !ok || d.Source == "" {
+			t.Errorf("set-up key %s: no time with a source in Delays", k)
+		}
+	}
+	for k, d := range Delays {
+		if d.Source == "" {
+			t.Errorf("%s: no source", k)
+		}
+	}
 }
