@@ -236,6 +236,13 @@ func (m *Meter) Identify(ctx context.Context) (drivers.Identity, error) {
 
 func (m *Meter) identify(ctx context.Context) (drivers.Identity, error) {
 	id := drivers.Identity{Maker: m.p.Maker, Model: m.p.Model}
+	// What arrived before the question is not its answer: a streaming
+	// meter's backlog (it talked while nobody read) may hold more lines
+	// than await skips.
+	if err := m.port.FlushContext(ctx); err != nil && ctx.Err() != nil {
+		return id, m.errorf("before %q: %w", m.p.Identify, err)
+	}
+	m.dirty = false
 	if err := m.port.WriteLine(ctx, m.p.Identify); err != nil {
 		return id, m.errorf("sending %q: %w", m.p.Identify, err)
 	}

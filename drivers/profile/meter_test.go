@@ -385,3 +385,32 @@ func TestLateIdentifyReplyIsNotTheNextReply(t *testing.T) {
 		t.Fatalf("after a late identify: %v, %v; want the reading 0.1234", r.Value, err)
 	}
 }
+
+// A streaming meter's backlog (lines that came while nobody read, the
+// engineer still at the board's first prompt) is not the answer to an
+// identify: the lines that arrived before the command are dropped first.
+// Before, identify skipped at most 100 readings and took the 101st as a
+// garbled reply, so a photometer waited for more than ten seconds lost its
+// certificate.
+func TestIdentifyAfterABacklog(t *testing.T) {
+	f, d := newLM9(t)
+	m := openMeter(t, load(t, "vessoric-lm9.yaml"), d.Link(), "photometer")
+	f.set(func(f *lm9) { f.rate = 0 })
+	d.Send(strings.Repeat("L 123,45 cd/m2 S0\n", 200))
+	c := ctx(t)
+	// Until the port's reader has taken every byte off the pty (the
+	// kernel gives no event for it: looked at every millisecond).
+	for q, err := d.Queued(); err != nil || q > 0; q, err = d.Queued() {
+		if err != nil || c.Err() != nil {
+			t.Fatalf("backlog not taken by the port: %v %v", err, c.Err())
+		}
+		time.Sleep(time.Millisecond)
+	}
+	id, err := m.Identify(c)
+	if err != nil {
+		t.Fatalf("identify after 200 queued readings: %v", err)
+	}
+	if id.Serial != "LM9-5521" {
+		t.Errorf("identity %+v", id)
+	}
+}
