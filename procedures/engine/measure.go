@@ -307,8 +307,19 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (posStat, error) {
 	var short string
 	lastCheck := -24 * time.Hour   // judged at the first reading
 	candidate := time.Duration(-1) // when the signal first looked settled
+	alarmed := false
 	for done := false; !done; {
 		if err := e.cycle(ctx, a); err != nil {
+			if errors.Is(err, errBeamAlarm) && a.phase == phSampling {
+				// The five-minute alarm while sampling: what was taken is
+				// kept when it is enough for a result (flagged), rather
+				// than thrown away and taken again with more beam.
+				if st, _ := e.precise(a); st.count() >= max(e.cfg.Limits.MinPairs, minSamples) {
+					stat, alarmed = st, true
+					short = "stopped by the five-minute beam-on alarm before the precision target"
+					break
+				}
+			}
 			return posStat{}, e.attemptFailed(ctx, a, err)
 		}
 		onFor := a.lastSig - a.onAt
@@ -394,6 +405,11 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (posStat, error) {
 	stat.BeamOnS = a.exposed.Seconds()
 	if err := e.flush(ctx, a, true); err != nil {
 		return posStat{}, err
+	}
+	if alarmed {
+		if _, err := e.ask(ctx, panel.Prompt{Message: panel.Message{Text: "Press the switch to reset the beam-on alarm and go on.", Level: panel.Alarm, Action: panel.ActAcknowledge}, Step: a.idx, StepID: a.step.ID}); err != nil {
+			return posStat{}, err
+		}
 	}
 	return stat, nil
 }
