@@ -18,6 +18,7 @@ import (
 	"context"
 	"crypto/ed25519"
 	"database/sql"
+	"encoding/binary"
 	"encoding/hex"
 	"encoding/json"
 	"errors"
@@ -155,6 +156,9 @@ func (s *Store) Enroll(ctx context.Context, key ed25519.PublicKey, name string) 
 	if strings.TrimSpace(name) == "" {
 		return fmt.Errorf("enroll: a board name is required")
 	}
+	if weakKey(key) {
+		return fmt.Errorf("%w: enroll %q: key %s is a point of small order, for which signatures can be forged without the private key; a board's key is made by kermalux journal key, never typed in", ErrRefused, name, shortKey(hex.EncodeToString(key)))
+	}
 	_, err := s.db.ExecContext(ctx, s.q(`INSERT INTO boards(key, name, enrolled) VALUES (?, ?, ?) ON CONFLICT(key) DO UPDATE SET name = excluded.name`),
 		hex.EncodeToString(key), name, time.Now().UTC().Format(time.RFC3339))
 	if err != nil {
@@ -246,6 +250,28 @@ func (s *Store) boardKey(ctx context.Context, q queryRower, key string) (ed25519
 		return nil, fmt.Errorf("%w: board %q (%s) was revoked on %s; its segments are refused", ErrRevoked, b.Name, shortKey(key), b.Revoked.Format(time.DateOnly))
 	}
 	return pub, nil
+}
+
+// weakKey reports whether an Ed25519 public key A has small order (it
+// divides the curve's cofactor 8), so that anyone can make signatures it
+// accepts: with R the identity and S = 0, verification (RFC 8032 5.1.7)
+// asks [k]A = identity for k = SHA-512(R || A || M) mod L, which holds
+// whenever k is a multiple of A's order, for one message in eight or more.
+// It is tested through the standard library's own verification over 256
+// messages: a key of order 8 or less accepts the forgery for one of them
+// except with probability (7/8)^256 < 1e-14; a key made by ed25519.GenerateKey
+// never does (its order is the prime L).
+func weakKey(key ed25519.PublicKey) bool {
+	sig := make([]byte, ed25519.SignatureSize)
+	sig[0] = 1 // R: the identity point's encoding (y = 1); S = 0
+	var msg [8]byte
+	for i := range 256 {
+		binary.BigEndian.PutUint64(msg[:], uint64(i))
+		if ed25519.Verify(key, msg[:], sig) {
+			return true
+		}
+	}
+	return false
 }
 
 // ParseKey decodes a board key given as 64 lower-case hex digits, the
