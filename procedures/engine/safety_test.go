@@ -17,13 +17,9 @@ import (
 // at 5 minutes (21 CFR 1020.32(h): a cumulative timer of at most five
 // minutes with an audible signal), and the alarm must be reset by a press.
 func TestFiveMinuteAlarmAndWarning(t *testing.T) {
-	steps := cfSteps()[:5]
 	// Four measurements whose precision target cannot be met, each
 	// holding the beam for its 100 s maximum: 400 s of beam in all.
-	for i := 0; i < 4; i++ {
-		steps = append(steps, Step{ID: "long" + string(rune('a'+i)), Kind: Measure, Text: "Press the switch, then step on the pedal.",
-			Measure: &MeasureSpec{Meters: []string{Dosimeter, Photometer}, Beam: true, Target: 1e-6, MaxBeamOn: 100 * time.Second}})
-	}
+	steps := longReadings(4, 100*time.Second)
 	r := newRig(steps)
 	r.cfg.Limits.SettleMax = 200 * time.Second
 	resetAsked := false
@@ -241,11 +237,7 @@ func TestRebuildRefusesUnreadableRecords(t *testing.T) {
 // about 100 s more beam in this sequence (issue: never more beam than the
 // result needs).
 func TestAlarmKeepsTheReadingTaken(t *testing.T) {
-	steps := cfSteps()[:5]
-	for i := 0; i < 4; i++ {
-		steps = append(steps, Step{ID: "long" + string(rune('a'+i)), Kind: Measure, Text: "Press the switch, then step on the pedal.",
-			Measure: &MeasureSpec{Meters: []string{Dosimeter, Photometer}, Beam: true, Target: 1e-6, MaxBeamOn: 80 * time.Second}})
-	}
+	steps := longReadings(4, 80*time.Second)
 	r := newRig(steps)
 	r.cfg.Limits.SettleMax = 200 * time.Second
 	sum, err := r.run(context.Background())
@@ -262,4 +254,16 @@ func TestAlarmKeepsTheReadingTaken(t *testing.T) {
 	if sum.BeamOn > 305*time.Second+4*time.Second {
 		t.Errorf("beam-on %s: more than the alarm's 300 s plus the releases", sum.BeamOn)
 	}
+}
+
+// longReadings is the conversion-factor sequence's set-up followed by n
+// readings whose precision target cannot be met, each holding the beam
+// for maxOn ("longa", "longb"...).
+func longReadings(n int, maxOn time.Duration) []Step {
+	steps := cfSteps()[:5]
+	for i := 0; i < n; i++ {
+		steps = append(steps, Step{ID: "long" + string(rune('a'+i)), Kind: Measure, Text: "Press the switch, then step on the pedal.",
+			Measure: &MeasureSpec{Meters: []string{Dosimeter, Photometer}, Beam: true, Target: 1e-6, MaxBeamOn: maxOn}})
+	}
+	return steps
 }

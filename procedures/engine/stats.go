@@ -172,26 +172,7 @@ func steady(xs []tv, d time.Duration, limit float64, minN int) bool {
 // L/K. Luminance readings outside the span of the kerma readings are left
 // out.
 func pairs(lum, kerma []tv) []float64 {
-	var out []float64
-	j := 0
-	for _, l := range lum {
-		for j+1 < len(kerma) && kerma[j+1].t < l.t {
-			j++
-		}
-		if j+1 >= len(kerma) || kerma[j].t > l.t {
-			continue
-		}
-		k1, k2 := kerma[j], kerma[j+1]
-		k := k1.v
-		if k2.t != k1.t {
-			f := float64(l.t-k1.t) / float64(k2.t-k1.t)
-			k = k1.v + f*(k2.v-k1.v)
-		}
-		if k > 0 {
-			out = append(out, l.v/k)
-		}
-	}
-	return out
+	return values(ratioSeries(lum, kerma))
 }
 
 func values(xs []tv) []float64 {
