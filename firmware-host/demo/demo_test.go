@@ -163,6 +163,15 @@ func demoRun(t *testing.T, file string, wantModes int, fails []string, kerma boo
 			continue
 		}
 		checked[r.Quantity]++
+		if r.Verdict == "not_measurable" {
+			// Honest, but not what this bench should give: on a loaded
+			// machine the engine can fall behind the meters and a reading
+			// run out of its beam-on limit (README, Known limits); counted
+			// as a miss, so the scenario runs once more.
+			total++
+			far = append(far, fmt.Sprintf("%s %s not measurable: %s", r.Quantity, r.FieldMode, r.DecidedBy))
+			continue
+		}
 		if r.ExpUnc <= 0 || r.K < 1.9 {
 			t.Errorf("%s %s: U = %g with k = %g", r.Quantity, r.FieldMode, r.ExpUnc, r.K)
 		}
