@@ -17,7 +17,6 @@ import (
 	"time"
 
 	"kermalux/calib"
-	"kermalux/drivers"
 	"kermalux/drivers/benchsim"
 	"kermalux/drivers/clock"
 	"kermalux/firmware-host/bench"
@@ -226,16 +225,6 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	ready := "Ready. " + b.Found(meters, clk.Now()) + " Press the switch to " + verb + " " + proc.Title + "."
 	if _, err := ep.Ask(ctx, panel.Prompt{Message: panel.Message{Text: ready, Level: panel.Info, Action: panel.ActAcknowledge}}); err != nil {
 		return nil, err
-	}
-	// A streaming meter kept on sending while the engineer heard the Ready
-	// prompt out; its backlog of old lines (more than ten seconds of them)
-	// would be waded through before its identity reply, and the meter's
-	// identification at the session's start gives up after 100 lines.
-	// Drop it, as the engine does before it samples.
-	for _, m := range meters {
-		if f, ok := m.(drivers.Freshener); ok {
-			f.Discard()
-		}
 	}
 	if o.Hook != nil {
 		o.Hook(sim, clk)
