@@ -250,7 +250,7 @@ func interpCross(a, b tv, level float64) time.Duration {
 // taken out (riseTime, fallTime); ok is false when the tracks cannot tell.
 func (a *attempt) exposure() (time.Duration, bool) {
 	on, off := time.Duration(math.MaxInt64), time.Duration(0)
-	any := false
+	timed := false
 	for _, role := range a.roles {
 		t := a.tracks[role]
 		if t == nil || !t.risen {
@@ -270,10 +270,10 @@ func (a *attempt) exposure() (time.Duration, bool) {
 		if !ok2 {
 			continue
 		}
-		any = true
+		timed = true
 		off = max(off, f)
 	}
-	if !any || off <= on {
+	if !timed || off <= on {
 		return 0, false
 	}
 	return off - on, true

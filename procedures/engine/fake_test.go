@@ -50,6 +50,14 @@ func newPhysics(clk *clock.Manual) *physics {
 		darkK: 0, darkL: 0.05, onDelay: 700 * time.Millisecond, offDelay: 400 * time.Millisecond}
 }
 
+// beamState is whether the beam is on now and its true beam-on time so
+// far (ended exposures).
+func (p *physics) beamState() (on bool, total time.Duration) {
+	p.mu.Lock()
+	defer p.mu.Unlock()
+	return p.beam, p.beamTotal
+}
+
 func (p *physics) schedule(on bool, after time.Duration) {
 	p.mu.Lock()
 	p.pending = append(p.pending, change{p.clk.Mono() + after, on})

@@ -114,9 +114,7 @@ func TestIntegrityAtTheEdges(t *testing.T) {
 				if !said(r.pan, "The journal cannot be written") {
 					t.Error("the reason was not said")
 				}
-				r.phys.mu.Lock()
-				on := r.phys.beam
-				r.phys.mu.Unlock()
+				on, _ := r.phys.beamState()
 				if on {
 					t.Error("the session ended with the beam on")
 				}
@@ -156,9 +154,7 @@ func TestIntegrityAtTheEdges(t *testing.T) {
 				if err != nil || sum.Outcome != "complete" {
 					t.Fatalf("outcome %s, %v", sum.Outcome, err)
 				}
-				r.phys.mu.Lock()
-				truth := r.phys.beamTotal
-				r.phys.mu.Unlock()
+				_, truth := r.phys.beamState()
 				if d := sum.BeamOn - truth; d > time.Second || d < -time.Second {
 					t.Errorf("timer %.2f s, true beam-on %.2f s", sum.BeamOn.Seconds(), truth.Seconds())
 				}
@@ -176,9 +172,7 @@ func TestIntegrityAtTheEdges(t *testing.T) {
 				if len(sum.Results) == 0 || sum.Results[0].Verdict != string(calib.NotMeasurable) {
 					t.Errorf("results %+v, want not_measurable", sum.Results)
 				}
-				r.phys.mu.Lock()
-				on := r.phys.beam
-				r.phys.mu.Unlock()
+				on, _ := r.phys.beamState()
 				if on {
 					t.Error("the session ended with the beam on")
 				}
@@ -193,9 +187,7 @@ func TestIntegrityAtTheEdges(t *testing.T) {
 				if err != nil {
 					t.Fatal(err)
 				}
-				r.phys.mu.Lock()
-				truth := r.phys.beamTotal
-				r.phys.mu.Unlock()
+				_, truth := r.phys.beamState()
 				// Within 1 % or one reading period of the meters read in
 				// turn (200 ms here) per exposure, whichever is larger: an
 				// edge is known to within the readings either side of it.

@@ -13,11 +13,7 @@ import (
 // bytes, never panics, and never counts the pre-exposure checklist as
 // acknowledged unless the records hold an acknowledgement of every line.
 func FuzzRebuild(f *testing.F) {
-	r := newRig(cfSteps())
-	ctx, cancel := context.WithCancel(context.Background())
-	r.jr.cutAfter, r.jr.cancel = 80, cancel
-	sum, _ := r.run(ctx)
-	base := append([]entry.Envelope(nil), r.jr.sessions[sum.Session]...)
+	r, base := memCutSession()
 	for _, i := range []int{0, 5, 8, 14, 15, 30, len(base) - 1} {
 		f.Add(i, string(base[i%len(base)].Kind), []byte(base[i%len(base)].Payload))
 	}
@@ -29,15 +25,7 @@ func FuzzRebuild(f *testing.F) {
 		envs := append([]entry.Envelope(nil), base...)
 		i %= len(envs)
 		envs[i].Kind, envs[i].Payload = entry.Kind(kind), payload
-		j := newMemJournal(r.clk)
-		j.sessions["s"] = envs
-		cfg := r.cfg
-		cfg.Journal, cfg.Resume = j, "s"
-		e, err := New(cfg)
-		if err != nil {
-			t.Fatal(err)
-		}
-		st, _, err := e.rebuild(context.Background(), "s")
+		st, err := rebuildFrom(t, r, envs)
 		if err != nil || !st.checklist {
 			return
 		}
@@ -63,4 +51,30 @@ func FuzzRebuild(f *testing.F) {
 			}
 		}
 	})
+}
+
+// memCutSession is a conversion-factor session, in memory, cut by a power cut at its 80th
+// record, with the rig that recorded it.
+func memCutSession() (*rig, []entry.Envelope) {
+	r := newRig(cfSteps())
+	ctx, cancel := context.WithCancel(context.Background())
+	r.jr.cutAfter, r.jr.cancel = 80, cancel
+	sum, _ := r.run(ctx)
+	return r, append([]entry.Envelope(nil), r.jr.sessions[sum.Session]...)
+}
+
+// rebuildFrom resumes r's configuration from envs and returns the state
+// the resume rebuilt.
+func rebuildFrom(t *testing.T, r *rig, envs []entry.Envelope) (*state, error) {
+	t.Helper()
+	j := newMemJournal(r.clk)
+	j.sessions["s"] = envs
+	cfg := r.cfg
+	cfg.Journal, cfg.Resume = j, "s"
+	e, err := New(cfg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	st, _, err := e.rebuild(context.Background(), "s")
+	return st, err
 }

@@ -197,11 +197,7 @@ func TestSingleSpikeAboveCeilingIgnored(t *testing.T) {
 // session is refused and the record named. Before, an unreadable answer,
 // event, value or result was silently left out of the rebuilt state.
 func TestRebuildRefusesUnreadableRecords(t *testing.T) {
-	r := newRig(cfSteps())
-	ctx, cancel := context.WithCancel(context.Background())
-	r.jr.cutAfter, r.jr.cancel = 80, cancel
-	sum, _ := r.run(ctx)
-	base := append([]entry.Envelope(nil), r.jr.sessions[sum.Session]...)
+	r, base := memCutSession()
 	seen := map[entry.Kind]bool{}
 	for i, env := range base {
 		if seen[env.Kind] {
@@ -210,15 +206,7 @@ func TestRebuildRefusesUnreadableRecords(t *testing.T) {
 		seen[env.Kind] = true
 		envs := append([]entry.Envelope(nil), base...)
 		envs[i].Payload = []byte(`[1,2,3]`)
-		j := newMemJournal(r.clk)
-		j.sessions["s"] = envs
-		cfg := r.cfg
-		cfg.Journal, cfg.Resume = j, "s"
-		e, err := New(cfg)
-		if err != nil {
-			t.Fatal(err)
-		}
-		_, _, err = e.rebuild(context.Background(), "s")
+		_, err := rebuildFrom(t, r, envs)
 		if env.Kind == entry.KindReading {
 			continue // readings are not read back: the positions carry their statistics
 		}
