@@ -55,44 +55,44 @@ type Record struct {
 // where S and M are base-10 integers, each J is the field as a JSON string
 // (Go encoding/json string encoding), HEX is Prev in lower-case hex and P
 // is the payload bytes exactly as stored. No whitespace anywhere.
-func (r *Record) Canonical() []byte {
-	var b bytes.Buffer
-	b.Grow(160 + len(r.Payload))
-	b.WriteString(`{"seq":`)
-	b.WriteString(strconv.FormatInt(r.Seq, 10))
-	b.WriteString(`,"session":`)
-	writeJSONString(&b, r.Session)
-	b.WriteString(`,"kind":`)
-	writeJSONString(&b, string(r.Kind))
-	b.WriteString(`,"wall":`)
-	writeJSONString(&b, r.Wall)
-	b.WriteString(`,"mono_ns":`)
-	b.WriteString(strconv.FormatInt(r.Mono, 10))
-	b.WriteString(`,"boot_id":`)
-	writeJSONString(&b, r.BootID)
-	b.WriteString(`,"prev":"`)
-	b.WriteString(r.Prev)
-	b.WriteString(`","payload":`)
-	b.Write(r.Payload)
-	b.WriteByte('}')
-	return b.Bytes()
+func (r *Record) Canonical() []byte { return r.AppendCanonical(make([]byte, 0, 160+len(r.Payload))) }
+
+// AppendCanonical appends Canonical() to b (a receiver hashing many
+// records reuses one buffer).
+func (r *Record) AppendCanonical(b []byte) []byte {
+	b = append(b, `{"seq":`...)
+	b = strconv.AppendInt(b, r.Seq, 10)
+	b = append(b, `,"session":`...)
+	b = appendJSONString(b, r.Session)
+	b = append(b, `,"kind":`...)
+	b = appendJSONString(b, string(r.Kind))
+	b = append(b, `,"wall":`...)
+	b = appendJSONString(b, r.Wall)
+	b = append(b, `,"mono_ns":`...)
+	b = strconv.AppendInt(b, r.Mono, 10)
+	b = append(b, `,"boot_id":`...)
+	b = appendJSONString(b, r.BootID)
+	b = append(b, `,"prev":"`...)
+	b = append(b, r.Prev...)
+	b = append(b, `","payload":`...)
+	b = append(b, r.Payload...)
+	return append(b, '}')
 }
 
-// writeJSONString writes s as encoding/json writes a string. Strings of
+// appendJSONString appends s as encoding/json writes a string. Strings of
 // plain printable ASCII without the characters json escapes (ids, hex,
 // times) are written directly; anything else goes through json.Marshal.
-func writeJSONString(b *bytes.Buffer, s string) {
+func appendJSONString(b []byte, s string) []byte {
 	for i := 0; i < len(s); i++ {
 		c := s[i]
 		if c < 0x20 || c >= 0x7f || c == '"' || c == '\\' || c == '<' || c == '>' || c == '&' {
 			q, _ := json.Marshal(s) // a string always marshals
-			b.Write(q)
-			return
+			return append(b, q...)
 		}
 	}
-	b.WriteByte('"')
-	b.WriteString(s)
-	b.WriteByte('"')
+	b = append(b, '"')
+	b = append(b, s...)
+	return append(b, '"')
 }
 
 // ComputeHash returns SHA-256 of Canonical().

@@ -90,6 +90,11 @@ func Open(target string) (*Store, error) {
 		if strings.ContainsRune(target, '?') {
 			return nil, fmt.Errorf("open store %s: a '?' in the path is not supported", target)
 		}
+		if _, serr := os.Stat(target); errors.Is(serr, os.ErrNotExist) {
+			if err := createSQLite(target); err != nil {
+				return nil, fmt.Errorf("create store %s: %w", target, err)
+			}
+		}
 		s.db, err = sql.Open("sqlite", "file:"+target+"?_pragma=busy_timeout(10000)&_pragma=journal_mode(WAL)&_pragma=synchronous(FULL)&_pragma=foreign_keys(1)&_pragma=cache_size(-16384)&_txlock=immediate")
 		if err == nil {
 			s.db.SetMaxOpenConns(1) // one writer; queries wait their turn
@@ -105,6 +110,21 @@ func Open(target string) (*Store, error) {
 		return nil, fmt.Errorf("open store %s: %w", s.name, err)
 	}
 	return s, nil
+}
+
+// pageSize is the page size of a new SQLite store.
+const pageSize = 16384
+
+// createSQLite creates an empty SQLite file with the store's page size
+// in WAL mode (the page size is fixed once the file is in WAL mode).
+func createSQLite(path string) error {
+	db, err := sql.Open("sqlite", "file:"+path)
+	if err != nil {
+		return err
+	}
+	defer db.Close()
+	_, err = db.Exec(fmt.Sprintf("PRAGMA page_size = %d; PRAGMA journal_mode = WAL", pageSize))
+	return err
 }
 
 // redact removes the password from a URL for messages.

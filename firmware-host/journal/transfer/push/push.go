@@ -320,34 +320,65 @@ func (p *pusher) send(ctx context.Context, audience string, pending []journal.Se
 	return resp, cw.n, err
 }
 
+// stream writes every pending session from its mark. The journal is read
+// one segment ahead in a goroutine, so that reading the next segment and
+// compressing this one share the cores (at most three segments in memory:
+// one being read, one waiting, one being written).
 func (p *pusher) stream(ctx context.Context, w io.Writer, audience string, pending []journal.SessionSummary, marks map[string]wire.Mark) error {
 	bw := bufio.NewWriterSize(w, 32<<10)
 	sw, err := wire.NewWriter(bw, wire.KindPush, audience, p.src)
 	if err != nil {
 		return err
 	}
-	for _, s := range pending {
-		for after := marks[s.ID].Seq; after < s.Last; {
-			recs, err := p.src.Records(ctx, s.ID, after, p.opts.SegmentSize)
-			if err != nil {
-				return err
-			}
-			if len(recs) == 0 {
-				break
-			}
-			if err := sw.Segment(recs); err != nil {
-				return err
-			}
-			if err := bw.Flush(); err != nil {
-				return err
-			}
-			after = recs[len(recs)-1].Seq
+	ctx, cancel := context.WithCancel(ctx)
+	defer cancel()
+	batches, rerr := p.read(ctx, pending, marks)
+	for recs := range batches {
+		if err := sw.Segment(recs); err != nil {
+			return err
 		}
+		if err := bw.Flush(); err != nil {
+			return err
+		}
+	}
+	if err := <-rerr; err != nil {
+		return err
 	}
 	if err := sw.Close(); err != nil {
 		return err
 	}
 	return bw.Flush()
+}
+
+// read sends the pending records, a segment's worth at a time, then nil
+// (or the error that stopped it) on the error channel.
+func (p *pusher) read(ctx context.Context, pending []journal.SessionSummary, marks map[string]wire.Mark) (<-chan []journal.Record, <-chan error) {
+	out := make(chan []journal.Record, 1)
+	rerr := make(chan error, 1)
+	go func() {
+		defer close(out)
+		for _, s := range pending {
+			for after := marks[s.ID].Seq; after < s.Last; {
+				recs, err := p.src.Records(ctx, s.ID, after, p.opts.SegmentSize)
+				if err != nil {
+					rerr <- err
+					return
+				}
+				if len(recs) == 0 {
+					break
+				}
+				select {
+				case out <- recs:
+				case <-ctx.Done():
+					rerr <- ctx.Err()
+					return
+				}
+				after = recs[len(recs)-1].Seq
+			}
+		}
+		rerr <- nil
+	}()
+	return out, rerr
 }
 
 func (p *pusher) post(ctx context.Context, path, ctype string, body io.Reader, out any) error {

@@ -337,6 +337,8 @@ type Reader struct {
 	recs   int64
 	done   bool
 	buf    []byte
+	canon  []byte    // scratch for each record's canonical bytes
+	last   [2]string // kind and boot id of the record before
 }
 
 // ReadPreamble reads only the preamble from r: the board key and audience
@@ -501,7 +503,7 @@ func (r *Reader) record(session string, seq, mono *int64, prev string) (journal.
 	}
 	*seq++
 	rec := journal.Record{Seq: *seq, Session: session, Prev: prev}
-	kind, err := r.string("kind")
+	kind, err := r.stringLike("kind", 0)
 	if err != nil {
 		return rec, err
 	}
@@ -515,7 +517,7 @@ func (r *Reader) record(session string, seq, mono *int64, prev string) (journal.
 	}
 	*mono += dm
 	rec.Mono = *mono
-	if rec.BootID, err = r.string("boot id"); err != nil {
+	if rec.BootID, err = r.stringLike("boot id", 1); err != nil {
 		return rec, err
 	}
 	n, err := binary.ReadUvarint(r.r)
@@ -537,7 +539,8 @@ func (r *Reader) record(session string, seq, mono *int64, prev string) (journal.
 	if rec.Kind == "" {
 		return rec, fmt.Errorf("%w: empty kind", ErrCorrupt)
 	}
-	h := rec.ComputeHash()
+	r.canon = rec.AppendCanonical(r.canon[:0])
+	h := sha256.Sum256(r.canon)
 	rec.Hash = hex.EncodeToString(h[:])
 	if !bytes.Equal(fp[:], h[:fingerprintSize]) {
 		return rec, fmt.Errorf("%w: hash mismatch: the contents hash to %s, the board's record hashes to %s… (the record was changed)",
@@ -547,7 +550,12 @@ func (r *Reader) record(session string, seq, mono *int64, prev string) (journal.
 }
 
 // string reads a length-prefixed UTF-8 string without NUL bytes.
-func (r *Reader) string(what string) (string, error) {
+func (r *Reader) string(what string) (string, error) { return r.stringLike(what, -1) }
+
+// stringLike is string for a field that mostly repeats the record
+// before's (slot 0 the kind, 1 the boot id; -1 none): the same bytes give
+// the same string, without a new allocation for each record.
+func (r *Reader) stringLike(what string, slot int) (string, error) {
 	n, err := binary.ReadUvarint(r.r)
 	if err != nil || n > MaxString {
 		return "", orCorrupt(err, fmt.Sprintf("%s length (at most %d bytes)", what, MaxString))
@@ -559,10 +567,17 @@ func (r *Reader) string(what string) (string, error) {
 	if _, err := io.ReadFull(r.r, b); err != nil {
 		return "", err
 	}
+	if slot >= 0 && string(b) == r.last[slot] {
+		return r.last[slot], nil
+	}
 	if !utf8.Valid(b) || bytes.IndexByte(b, 0) >= 0 {
 		return "", fmt.Errorf("%w: %s is not UTF-8 text", ErrCorrupt, what)
 	}
-	return string(b), nil
+	if slot < 0 {
+		return string(b), nil
+	}
+	r.last[slot] = string(b)
+	return r.last[slot], nil
 }
 
 func (r *Reader) end() error {
