@@ -626,38 +626,41 @@ func (t *Tx) Apply(ctx context.Context, seg *wire.Segment, opts ApplyOptions) (A
 			}
 		}
 	}
+	last := fresh[len(fresh)-1]
+	endPayload := sql.NullString{String: string(end), Valid: end != nil}
+	endedNow := int64(0)
+	if end != nil {
+		endedNow = 1
+	}
 	if sess != nil {
+		// A new session is inserted with its state after this segment:
+		// no update of the row it just wrote.
 		serial, startedNs = sess.IntensifierSerial, sess.Started.UnixNano()
-		if err := t.exec(ctx, `INSERT INTO sessions(id, board, site, room, model, serial, started_ns, payload, high, head, received)
-			VALUES (?,?,?,?,?,?,?,?,0,?,?)`, seg.Session, board, sess.Site, sess.Room, sess.IntensifierModel, sess.IntensifierSerial,
-			startedNs, string(fresh[0].Payload), journal.ZeroHash(), time.Now().UTC().Format(time.RFC3339)); err != nil {
+		if err := t.exec(ctx, `INSERT INTO sessions(id, board, site, room, model, serial, started_ns, payload, high, head, ended, end_payload, received)
+			VALUES (?,?,?,?,?,?,?,?,?,?,?,?,?)`, seg.Session, board, sess.Site, sess.Room, sess.IntensifierModel, sess.IntensifierSerial,
+			startedNs, string(fresh[0].Payload), last.Seq, last.Hash, endedNow, endPayload, time.Now().UTC().Format(time.RFC3339)); err != nil {
 			return Applied{}, fmt.Errorf("store %s: %s: store session: %w", s.name, what, err)
 		}
+	} else if err := t.exec(ctx, `UPDATE sessions SET high = ?, head = ?, ended = ?, end_payload = coalesce(?, end_payload) WHERE id = ?`,
+		last.Seq, last.Hash, endedNow, endPayload, seg.Session); err != nil {
+		return Applied{}, fmt.Errorf("store %s: %s: %w", s.name, what, err)
 	}
-	for i := range fresh {
-		r := &fresh[i]
-		res, ok := results[r.Seq]
-		if !ok {
-			continue
+	if len(results) > 0 {
+		args := make([]any, 0, 9*len(results))
+		for i := range fresh {
+			r := &fresh[i]
+			if res, ok := results[r.Seq]; ok {
+				args = append(args, r.Session, r.Seq, serial, startedNs, res.Quantity, res.FieldMode, res.Value, res.Verdict, string(r.Payload))
+			}
 		}
-		if err := t.exec(ctx, `INSERT INTO results VALUES (?,?,?,?,?,?,?,?,?)`, r.Session, r.Seq, serial, startedNs,
-			res.Quantity, res.FieldMode, res.Value, res.Verdict, string(r.Payload)); err != nil {
-			return Applied{}, fmt.Errorf("store %s: %s: store result %d: %w", s.name, what, r.Seq, err)
-		}
-	}
-	if end != nil {
-		if err := t.exec(ctx, `UPDATE sessions SET ended = 1, end_payload = ? WHERE id = ?`, string(end), seg.Session); err != nil {
-			return Applied{}, fmt.Errorf("store %s: %s: store session end: %w", s.name, what, err)
+		if err := t.exec(ctx, valuesSQL(`INSERT INTO results VALUES `, 9, len(results)), args...); err != nil {
+			return Applied{}, fmt.Errorf("store %s: %s: store results: %w", s.name, what, err)
 		}
 	}
 	if err := t.insertRecords(ctx, fresh); err != nil {
 		return Applied{}, fmt.Errorf("store %s: %s: %w", s.name, what, err)
 	}
 	a.Stored = len(fresh)
-	last := fresh[len(fresh)-1]
-	if err := t.exec(ctx, `UPDATE sessions SET high = ?, head = ? WHERE id = ?`, last.Seq, last.Hash, seg.Session); err != nil {
-		return Applied{}, fmt.Errorf("store %s: %s: %w", s.name, what, err)
-	}
 	if err := t.exec(ctx, `INSERT INTO proofs VALUES (?,?,?,?,?,?)`, seg.Session, seg.First(), seg.Last(), seg.Head(),
 		seg.Audience, hex.EncodeToString(seg.Sig)); err != nil {
 		return Applied{}, fmt.Errorf("store %s: %s: store the signed head: %w", s.name, what, err)
@@ -676,7 +679,7 @@ func (t *Tx) insertRecords(ctx context.Context, recs []journal.Record) error {
 			r := &recs[i]
 			args = append(args, r.Session, r.Seq, string(r.Kind), r.Wall, r.Mono, r.BootID, string(r.Payload), r.Prev, r.Hash, r.Sig)
 		}
-		if err := t.exec(ctx, insertSQL(n), args...); err != nil {
+		if err := t.exec(ctx, valuesSQL(`INSERT INTO records VALUES `, 10, n), args...); err != nil {
 			return fmt.Errorf("store records %d..%d: %w", recs[0].Seq, recs[n-1].Seq, err)
 		}
 		recs = recs[n:]
@@ -684,14 +687,17 @@ func (t *Tx) insertRecords(ctx context.Context, recs []journal.Record) error {
 	return nil
 }
 
-func insertSQL(n int) string {
+// valuesSQL is insert followed by rows groups of cols placeholders.
+func valuesSQL(insert string, cols, rows int) string {
+	group := "(" + strings.Repeat("?,", cols-1) + "?)"
 	var b strings.Builder
-	b.WriteString(`INSERT INTO records VALUES `)
-	for i := 0; i < n; i++ {
+	b.Grow(len(insert) + rows*(len(group)+1))
+	b.WriteString(insert)
+	for i := 0; i < rows; i++ {
 		if i > 0 {
 			b.WriteByte(',')
 		}
-		b.WriteString(`(?,?,?,?,?,?,?,?,?,?)`)
+		b.WriteString(group)
 	}
 	return b.String()
 }

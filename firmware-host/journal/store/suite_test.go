@@ -284,3 +284,55 @@ func TestMigrateVersion1(t *testing.T) {
 		t.Errorf("store id changed on reopening: %s -> %s", id, again.ID())
 	}
 }
+
+// TestSessionStateAcrossSegments: a session's mark, end and results are
+// the same whether it arrives in one segment or split anywhere (the
+// session row is written with its state after the first segment and
+// updated by the later ones).
+func TestSessionStateAcrossSegments(t *testing.T) {
+	storetest.Each(t, func(t *testing.T, backend string) {
+		ctx := context.Background()
+		j := openBoard(t, t.TempDir(), filepath.Join(t.TempDir(), "key"), time.Date(2026, 1, 1, 0, 0, 0, 0, time.UTC))
+		id, _ := j.Begin(ctx, journaltest.Session(1))
+		if err := journaltest.WriteSession(ctx, j, id, 3, true, nil); err != nil {
+			t.Fatal(err)
+		}
+		all, _ := j.Records(ctx, id, 0, 0)
+		n := int64(len(all))
+		var results int
+		for _, r := range all {
+			if r.Kind == entry.KindResult {
+				results++
+			}
+		}
+		if results == 0 {
+			t.Fatal("the fixture session holds no result record")
+		}
+		for _, cut := range []int64{n, 1, 2, n - 1} {
+			st := storetest.New(t, backend)
+			st.Enroll(ctx, j.PublicKey(), "van-1")
+			for _, part := range [][2]int64{{0, cut}, {cut, n - cut}} {
+				if part[1] == 0 {
+					continue
+				}
+				if _, err := st.Apply(ctx, seal(t, j, st.ID(), id, part[0], int(part[1])), store.ApplyOptions{}); err != nil {
+					t.Fatalf("cut at %d: %v", cut, err)
+				}
+				ss := mustSessions(t, st)
+				high := part[0] + part[1]
+				if ss[0].Records != high || (ss[0].End != nil) != (high == n) {
+					t.Errorf("cut at %d, after record %d: mark %d, end %v", cut, high, ss[0].Records, ss[0].End)
+				}
+			}
+			if ss := mustSessions(t, st); ss[0].End == nil || ss[0].End.Outcome == "" {
+				t.Errorf("cut at %d: session end %+v", cut, ss[0].End)
+			}
+			if h, err := st.History(ctx, journaltest.Session(1).IntensifierSerial); err != nil || len(h) != results {
+				t.Errorf("cut at %d: %d results in the history, the journal holds %d (%v)", cut, len(h), results, err)
+			}
+			if recs, err := st.Records(ctx, id, 0, 0); err != nil || int64(len(recs)) != n {
+				t.Errorf("cut at %d: %d records stored, want %d (%v)", cut, len(recs), n, err)
+			}
+		}
+	})
+}
