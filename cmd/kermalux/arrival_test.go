@@ -84,6 +84,17 @@ func (a *arrivalTee) Append(ctx context.Context, session string, kind entry.Kind
 	return a.Journal.Append(ctx, session, kind, payload)
 }
 
+func (a *arrivalTee) AppendAll(ctx context.Context, session string, items []entry.Item) (int64, error) {
+	for _, it := range items {
+		if r, ok := it.Payload.(entry.Reading); ok && it.Kind == entry.KindReading {
+			a.mu.Lock()
+			a.stamp[r.Meter] = append(a.stamp[r.Meter], r.Mono.Microseconds())
+			a.mu.Unlock()
+		}
+	}
+	return a.Journal.AppendAll(ctx, session, items)
+}
+
 // burstGap ends a burst of readings: a measurement step reads its meters
 // without pause (a reading every 100 ms of the meter's clock), and the
 // steps are seconds apart.

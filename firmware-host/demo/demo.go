@@ -273,6 +273,18 @@ func (j simJournal) Append(ctx context.Context, session string, kind entry.Kind,
 	return seq, err
 }
 
+// AppendAll appends through the journal in one write, then tells
+// Options.OnRecord of each record.
+func (j simJournal) AppendAll(ctx context.Context, session string, items []entry.Item) (int64, error) {
+	last, err := j.Journal.AppendAll(ctx, session, items)
+	if err == nil && j.on != nil {
+		for i, it := range items {
+			j.on(it.Kind, last-int64(len(items)-1-i))
+		}
+	}
+	return last, err
+}
+
 func (j simJournal) Begin(ctx context.Context, s entry.Session) (string, error) {
 	id, err := j.Journal.Begin(ctx, s)
 	if err != nil {

@@ -89,14 +89,17 @@ func TestDemoRecoversTruth(t *testing.T) {
 			continue
 		}
 		t.Run(name, func(t *testing.T) {
-			// A run is in scaled real time over pseudo-terminals: on a heavily
-			// loaded machine a late reading can distort one figure. A scenario
-			// with a figure beyond 2U runs once more and must pass then; the
-			// first run's misses are logged.
-			far, in, tot := demoRun(t, sc.file, sc.modes, sc.fails, sc.kerma)
+			// A run is in scaled real time over pseudo-terminals: at 30
+			// times real time a host stall of 100 ms is 3 s of the meters'
+			// time, so on a heavily loaded machine readings come late and
+			// sparse, and an honest engine leaves figures not measurable
+			// (a real board runs at 1x). A scenario with a figure beyond 2U
+			// or not measurable runs once more at a third of the speed and
+			// must pass then; the first run's misses are logged.
+			far, in, tot := demoRun(t, sc.file, 30, sc.modes, sc.fails, sc.kerma)
 			if len(far) > 0 {
-				t.Logf("first run: %s; running the scenario once more", strings.Join(far, "; "))
-				far, in, tot = demoRun(t, sc.file, sc.modes, sc.fails, sc.kerma)
+				t.Logf("first run: %s; running the scenario once more at 10x", strings.Join(far, "; "))
+				far, in, tot = demoRun(t, sc.file, 10, sc.modes, sc.fails, sc.kerma)
 			}
 			for _, f := range far {
 				t.Error(f)
@@ -110,12 +113,12 @@ func TestDemoRecoversTruth(t *testing.T) {
 // demoRun runs one scenario and checks its figures against the simulator's
 // truth; it returns the figures beyond 2U and how many of the checked
 // figures lay within U.
-func demoRun(t *testing.T, file string, wantModes int, fails []string, kerma bool) (far []string, within, total int) {
+func demoRun(t *testing.T, file string, speed float64, wantModes int, fails []string, kerma bool) (far []string, within, total int) {
 	t.Helper()
 	dir := t.TempDir()
-	ctx, cancel := context.WithTimeout(context.Background(), 3*time.Minute)
+	ctx, cancel := context.WithTimeout(context.Background(), 6*time.Minute)
 	defer cancel()
-	out, err := Run(ctx, Options{Out: dir, Scenario: file, Speed: 30, Render: renderHTML, Version: "test", Hurried: true})
+	out, err := Run(ctx, Options{Out: dir, Scenario: file, Speed: speed, Render: renderHTML, Version: "test", Hurried: true})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -279,6 +279,19 @@ func (j *MemJournal) Append(ctx context.Context, session string, kind entry.Kind
 	return seq, nil
 }
 
+// AppendAll implements engine.Journal.
+func (j *MemJournal) AppendAll(ctx context.Context, session string, items []entry.Item) (int64, error) {
+	var last int64
+	for _, it := range items {
+		seq, err := j.Append(ctx, session, it.Kind, it.Payload)
+		if err != nil {
+			return last, err
+		}
+		last = seq
+	}
+	return last, nil
+}
+
 // Envelopes implements engine.Journal.
 func (j *MemJournal) Envelopes(ctx context.Context, session string) ([]entry.Envelope, error) {
 	j.mu.Lock()

@@ -348,11 +348,8 @@ func marshalPayload(payload any) ([]byte, error) {
 	return json.Marshal(payload)
 }
 
-// Item is one record for AppendAll.
-type Item struct {
-	Kind    entry.Kind
-	Payload any
-}
+// Item is one record for AppendAll (the engine's entry.Item).
+type Item = entry.Item
 
 // AppendAll records items as the next records of session in one
 // transaction (one fsync): all are durable when it returns, or none is
@@ -368,7 +365,7 @@ func (j *Journal) AppendAll(ctx context.Context, session string, items []Item) (
 }
 
 func (j *Journal) append(ctx context.Context, session string, kind entry.Kind, payload any, first bool) (int64, error) {
-	return j.appendItems(ctx, session, []Item{{kind, payload}}, first)
+	return j.appendItems(ctx, session, []Item{{Kind: kind, Payload: payload}}, first)
 }
 
 func (j *Journal) appendItems(ctx context.Context, session string, items []Item, first bool) (int64, error) {

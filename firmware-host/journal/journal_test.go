@@ -267,15 +267,15 @@ func TestAppendAll(t *testing.T) {
 	dir := t.TempDir()
 	j := openTest(t, dir)
 	id, _ := j.Begin(ctx, journaltest.Session(0))
-	items := []Item{{entry.KindEvent, entry.Event{Name: "beam_on"}}, {entry.KindValue, entry.Value{Name: "kV", Value: 70}}}
+	items := []Item{{Kind: entry.KindEvent, Payload: entry.Event{Name: "beam_on"}}, {Kind: entry.KindValue, Payload: entry.Value{Name: "kV", Value: 70}}}
 	last, err := j.AppendAll(ctx, id, items)
 	if err != nil || last != 3 {
 		t.Fatalf("AppendAll = %d, %v", last, err)
 	}
-	if _, err := j.AppendAll(ctx, id, []Item{{entry.KindSessionEnd, entry.SessionEnd{}}, {entry.KindEvent, entry.Event{}}}); err == nil {
+	if _, err := j.AppendAll(ctx, id, []Item{{Kind: entry.KindSessionEnd, Payload: entry.SessionEnd{}}, {Kind: entry.KindEvent, Payload: entry.Event{}}}); err == nil {
 		t.Error("records after a session_end accepted")
 	}
-	if _, err := j.AppendAll(ctx, id, []Item{{entry.KindEvent, entry.Event{}}, {entry.KindEvent, func() {}}}); err == nil {
+	if _, err := j.AppendAll(ctx, id, []Item{{Kind: entry.KindEvent, Payload: entry.Event{}}, {Kind: entry.KindEvent, Payload: func() {}}}); err == nil {
 		t.Error("unencodable payload accepted")
 	}
 	if s, _ := j.Sessions(ctx); s[0].Last != 3 {

@@ -316,5 +316,9 @@ func (c *counting) Append(_ context.Context, _ string, _ entry.Kind, p any) (int
 	c.n++
 	return c.n, nil
 }
+func (c *counting) AppendAll(_ context.Context, _ string, items []entry.Item) (int64, error) {
+	c.n += int64(len(items))
+	return c.n, nil
+}
 func (c *counting) Envelopes(context.Context, string) ([]entry.Envelope, error) { return nil, nil }
 func (c *counting) VerifySession(context.Context, string) error                 { return nil }

@@ -78,6 +78,27 @@ func (j *Journal) Append(ctx context.Context, session string, kind entry.Kind, p
 	return seq, nil
 }
 
+// AppendAll implements engine.Journal: the items are published one by
+// one once the journal holds them all.
+func (j *Journal) AppendAll(ctx context.Context, session string, items []entry.Item) (int64, error) {
+	last, err := j.Journal.AppendAll(ctx, session, items)
+	if err != nil {
+		return last, err
+	}
+	j.setSession(session)
+	if j.hub.Watching() {
+		now, wall := j.clk.Mono(), j.clk.Now()
+		for i, it := range items {
+			seq := last - int64(len(items)-1-i)
+			data, merr := json.Marshal(wire{Seq: seq, Kind: string(it.Kind), Mono: now, Wall: wall, Payload: it.Payload})
+			if merr == nil {
+				j.hub.Publish(Event{Seq: seq, Session: session, Data: data})
+			}
+		}
+	}
+	return last, nil
+}
+
 // Session is the session last begun or appended to ("" before any).
 func (j *Journal) Session() string {
 	j.mu.Lock()

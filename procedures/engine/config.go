@@ -147,6 +147,10 @@ type Procedure struct {
 type Journal interface {
 	Begin(ctx context.Context, s entry.Session) (string, error)
 	Append(ctx context.Context, session string, kind entry.Kind, payload any) (int64, error)
+	// AppendAll appends items in order in one durable write and returns
+	// the last one's sequence number: all are recorded or none is. A
+	// wrapper that acts on each record (a tee) must act on these too.
+	AppendAll(ctx context.Context, session string, items []entry.Item) (int64, error)
 	Envelopes(ctx context.Context, session string) ([]entry.Envelope, error)
 	VerifySession(ctx context.Context, session string) error
 }

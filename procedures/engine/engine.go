@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 
+	"kermalux/procedures/entry"
 	"kermalux/procedures/panel"
 )
 
@@ -36,6 +37,8 @@ type Engine struct {
 	// journalErr is the first failed journal write (ErrJournal); once set,
 	// no further reading is taken.
 	journalErr error
+	// pending are readings not yet journalled (queueReading).
+	pending []entry.Item
 }
 
 // New checks cfg and returns an engine ready to Run.

@@ -123,6 +123,27 @@ type fakeMeter struct {
 	// brokenFrom > 0: from this time on every read fails with a garbled
 	// line (a meter gone wrong for good).
 	brokenFrom time.Duration
+	// backlog: the meter streams, and the samples it took while the
+	// engine waited on the other meter are read afterwards, stamped when
+	// they were taken (behind the clock), as a streaming meter's queued
+	// lines are; read it through queued, which reports them pending.
+	backlog bool
+	// From slowFrom on (when > 0), the meter answers only every
+	// slowPeriod: a dosimeter that went to a long integration, or a
+	// poller starved by a loaded host.
+	slowFrom, slowPeriod time.Duration
+}
+
+// queued is a backlog meter as the engine sees a streaming one
+// (drivers.Queued): how many of its samples are waiting.
+type queued struct{ *fakeMeter }
+
+func (q queued) Pending() int {
+	behind := q.p.clk.Mono() - q.next
+	if behind <= 0 {
+		return 0
+	}
+	return int(behind / q.period)
 }
 
 type window2 struct{ from, to time.Duration }
@@ -136,11 +157,17 @@ func (m *fakeMeter) Read(ctx context.Context) (drivers.Reading, error) {
 		return drivers.Reading{}, err
 	}
 	now := m.p.clk.Mono()
-	if m.next < now {
+	if m.next < now && !m.backlog {
 		m.next = now
 	}
-	m.next += m.period
-	m.p.clk.Advance(m.next - now)
+	if m.slowFrom > 0 && m.next >= m.slowFrom {
+		m.next += m.slowPeriod
+	} else {
+		m.next += m.period
+	}
+	if m.next > now {
+		m.p.clk.Advance(m.next - now)
+	}
 	t := m.next
 	for _, w := range m.lost {
 		if t >= w.from && t < w.to {
@@ -215,6 +242,20 @@ func (j *memJournal) Begin(ctx context.Context, s entry.Session) (string, error)
 	j.mu.Unlock()
 	_, err := j.Append(ctx, id, entry.KindSession, s)
 	return id, err
+}
+
+// AppendAll appends the items one by one: a cut or a failure mid-way
+// keeps those before it, as a power cut between two writes would.
+func (j *memJournal) AppendAll(ctx context.Context, session string, items []entry.Item) (int64, error) {
+	var last int64
+	for _, it := range items {
+		seq, err := j.Append(ctx, session, it.Kind, it.Payload)
+		if err != nil {
+			return last, err
+		}
+		last = seq
+	}
+	return last, nil
 }
 
 func (j *memJournal) Append(ctx context.Context, session string, kind entry.Kind, payload any) (int64, error) {

@@ -197,6 +197,65 @@ func TestIntegrityAtTheEdges(t *testing.T) {
 				}
 			},
 		},
+		{
+			name: "photometer backlog stamped behind the dosimeter: the running timer stays with the beam",
+			setup: func(r *rig) {
+				// Each 300 ms dosimeter answer is followed by the
+				// photometer's queued samples, stamped up to 200 ms
+				// earlier: stamps of the two meters interleave out of
+				// order, as they do when a board reads a streaming
+				// meter's backlog after a polled meter's answer.
+				r.dos.period = 300 * time.Millisecond
+				r.phot.backlog = true
+				r.cfg.Meters[Photometer] = queued{r.phot}
+			},
+			check: func(t *testing.T, r *rig, sum Summary, err error) {
+				if err != nil {
+					t.Fatal(err)
+				}
+				_, truth := r.phys.beamState()
+				// Every journalled event carries the running timer: it
+				// may lead the truth by a reading or two while the beam
+				// falls, never by a multiple of it.
+				for _, ev := range records[entry.Event](r.jr, sum.Session, entry.KindEvent) {
+					if run := time.Duration(ev.BeamOn * float64(time.Second)); run > truth+time.Second {
+						t.Fatalf("%s event: running beam-on %.1f s, true beam-on %.1f s in all", ev.Name, ev.BeamOn, truth.Seconds())
+					}
+				}
+				if res := sum.Results[0]; res.Verdict != string(calib.NotMeasurable) && math.Abs(res.Value-r.phys.g) > res.ExpUnc {
+					t.Errorf("G = %.2f ± %.2f, true %.0f", res.Value, res.ExpUnc, r.phys.g)
+				}
+			},
+		},
+		{
+			name: "a slow dosimeter beside a streaming photometer: no ratio from a few dosimeter readings",
+			setup: func(r *rig) {
+				// From 12 s on (while the conversion factor is sampled)
+				// one dosimeter answer every 12 s, as from a poller
+				// starved by a loaded board: the photometer's backlog
+				// gives dozens of readings beside two or three of the
+				// dosimeter.
+				r.dos.slowFrom, r.dos.slowPeriod = 12*time.Second, 12*time.Second
+				r.phot.backlog = true
+				r.cfg.Meters[Photometer] = queued{r.phot}
+			},
+			check: func(t *testing.T, r *rig, sum Summary, err error) {
+				if err != nil {
+					t.Fatal(err)
+				}
+				res := sum.Results[0]
+				if res.Verdict == string(calib.NotMeasurable) {
+					return
+				}
+				p := r.jrPos(t, sum.Session, "cf@32cm")
+				if p.NK < minSamples {
+					t.Errorf("G = %.2f from %d dosimeter readings (and %d of the photometer)", res.Value, p.NK, p.NL)
+				}
+				if math.Abs(res.Value-r.phys.g) > res.ExpUnc {
+					t.Errorf("G = %.2f ± %.2f, true %.0f", res.Value, res.ExpUnc, r.phys.g)
+				}
+			},
+		},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {

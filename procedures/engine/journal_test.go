@@ -31,6 +31,20 @@ func (c *cutJournal) Append(ctx context.Context, s string, k entry.Kind, p any) 
 	return c.Journal.Append(ctx, s, k, p)
 }
 
+// AppendAll appends one record at a time, so the cut falls on a record
+// as it did before readings were batched.
+func (c *cutJournal) AppendAll(ctx context.Context, s string, items []entry.Item) (int64, error) {
+	var last int64
+	for _, it := range items {
+		seq, err := c.Append(ctx, s, it.Kind, it.Payload)
+		if err != nil {
+			return last, err
+		}
+		last = seq
+	}
+	return last, nil
+}
+
 // cutSession runs cfSteps on a board journal at dir until the append
 // numbered cut (the process dies there), on boot "boot-a", and returns the
 // rig and the interrupted session's id.

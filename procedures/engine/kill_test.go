@@ -31,13 +31,28 @@ type killingJournal struct {
 func (k *killingJournal) Append(ctx context.Context, s string, kind entry.Kind, p any) (int64, error) {
 	seq, err := k.Journal.Append(ctx, s, kind, p)
 	if err == nil {
-		k.seen[kind]++
-		if kind == k.kind && k.seen[kind] == k.n {
-			syscall.Kill(os.Getpid(), syscall.SIGKILL)
-			select {}
+		k.saw(kind)
+	}
+	return seq, err
+}
+
+// AppendAll kills after the write that made the Nth record durable.
+func (k *killingJournal) AppendAll(ctx context.Context, s string, items []entry.Item) (int64, error) {
+	seq, err := k.Journal.AppendAll(ctx, s, items)
+	if err == nil {
+		for _, it := range items {
+			k.saw(it.Kind)
 		}
 	}
 	return seq, err
+}
+
+func (k *killingJournal) saw(kind entry.Kind) {
+	k.seen[kind]++
+	if kind == k.kind && k.seen[kind] == k.n {
+		syscall.Kill(os.Getpid(), syscall.SIGKILL)
+		select {}
+	}
 }
 
 // TestKillChild is the child of TestKilledAndResumed: it runs a session

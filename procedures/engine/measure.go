@@ -552,13 +552,20 @@ func (e *Engine) precise(a *attempt) (posStat, bool) {
 	return p, U <= target
 }
 
-// count is the number of readings the position's result rests on: the
-// time-aligned pairs when it has both meters, else the one meter's.
+// count is the number of readings the position's result rests on, for
+// the minimum-count rule: with both meters, the fewest of either meter's
+// readings and their time-aligned pairs (none before there are pairs), so
+// that a ratio is never taken from hundreds of photometer readings beside
+// one or two of the dosimeter (each is interpolated at the other's times,
+// which makes many pairs of few dosimeter readings); else the one meter's.
 func (p posStat) count() int {
-	if p.HasG {
-		return p.NG
+	switch {
+	case p.HasL && p.HasK:
+		return min(p.NL, p.NK, p.NG)
+	case p.HasL:
+		return p.NL
 	}
-	return max(p.NL, p.NK)
+	return p.NK
 }
 
 // darkAttempt takes a beam-off reading for a fixed time (dark level,
@@ -1038,9 +1045,14 @@ func (e *Engine) beamOff(ctx context.Context, a *attempt) {
 func (e *Engine) tick(ctx context.Context, a *attempt, t time.Duration) error {
 	l := e.cfg.Limits
 	st := e.st
-	if t > a.lastSig {
-		st.beamOn += t - a.lastSig
+	// Readings of two meters arrive out of order (a streaming meter's
+	// backlog is read after a polled meter's answer): the timer and the
+	// attempt's clock only move forward, or each step back would be
+	// counted again.
+	if t <= a.lastSig {
+		return nil
 	}
+	st.beamOn += t - a.lastSig
 	a.lastSig = t
 	if st.beamOn >= st.nextAlarm {
 		st.setBeamOn(st.beamOn, l)
@@ -1283,10 +1295,10 @@ func (e *Engine) record(ctx context.Context, a *attempt, role string, r drivers.
 		Certificate: c.Certificate, Calibrated: c.Calibrated, Flags: c.Flags,
 		Mono: r.Mono, Wall: r.Wall, BootID: e.cfg.BootID, Used: used && a.inStep[role],
 	}
-	return e.journal(ctx, entry.KindReading, rec)
+	return e.queueReading(ctx, rec)
 }
 
-// flush journals the held readings as used or not.
+// flush journals the held readings as used or not, in one write.
 func (e *Engine) flush(ctx context.Context, a *attempt, used bool) error {
 	for _, h := range a.hold {
 		if err := e.record(ctx, a, h.role, h.r, h.c, used); err != nil {
@@ -1294,5 +1306,5 @@ func (e *Engine) flush(ctx context.Context, a *attempt, used bool) error {
 		}
 	}
 	a.hold = a.hold[:0]
-	return nil
+	return e.flushReadings(ctx)
 }

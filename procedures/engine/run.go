@@ -299,6 +299,8 @@ func (e *Engine) finish(ctx context.Context, sum Summary, runErr error) (Summary
 	if st == nil {
 		return sum, runErr
 	}
+	// Readings still queued are kept, whatever ended the session.
+	_ = e.flushReadings(ctx)
 	sum.BeamOn = st.beamOn
 	for _, id := range st.order {
 		r := st.results[id]
@@ -428,21 +430,60 @@ func (e *Engine) journal(ctx context.Context, kind entry.Kind, payload any) erro
 	return err
 }
 
+// maxPending bounds the readings the engine holds before journalling
+// them (see flushReadings).
+const maxPending = 256
+
+// queueReading journals a reading at the next flushReadings: before the
+// engine waits for a meter, before any other record, or when maxPending
+// are waiting. A burst of readings (a streaming meter's backlog) then
+// costs one durable write, not one each: at one write per reading a board
+// that fell behind a 10 Hz meter for a moment could not catch up. What a
+// power cut can lose is the readings of the burst being read, as it loses
+// the lines still in the serial buffer.
+func (e *Engine) queueReading(ctx context.Context, rec entry.Reading) error {
+	e.pending = append(e.pending, entry.Item{Kind: entry.KindReading, Payload: rec})
+	if len(e.pending) >= maxPending {
+		return e.flushReadings(ctx)
+	}
+	return e.journalErr
+}
+
+// flushReadings journals the queued readings in one write.
+func (e *Engine) flushReadings(ctx context.Context) error {
+	if len(e.pending) == 0 {
+		return nil
+	}
+	items := e.pending
+	e.pending = nil
+	if _, err := e.cfg.Journal.AppendAll(ctx, e.st.session, items); err != nil {
+		return e.journalFailed(ctx, fmt.Errorf("journal %d readings: %w", len(items), err))
+	}
+	return nil
+}
+
+// journalFailed keeps a failed write other than a cancelled context in
+// journalErr and returns err.
+func (e *Engine) journalFailed(ctx context.Context, err error) error {
+	if ctx.Err() == nil && e.journalErr == nil {
+		e.journalErr = fmt.Errorf("%w: %w", ErrJournal, err)
+	}
+	return err
+}
+
 // appendSeq appends a record and returns its sequence number. A failed
 // write other than a cancelled context (a power cut, a kill) is kept in
 // journalErr: the engine stops measuring at its next reading, has the beam
 // released and ends the session, whatever the caller did with the error
 // (see journalFailed).
 func (e *Engine) appendSeq(ctx context.Context, kind entry.Kind, payload any) (int64, error) {
+	// Readings that came before this record go first.
+	ferr := e.flushReadings(ctx)
 	seq, err := e.cfg.Journal.Append(ctx, e.st.session, kind, payload)
 	if err != nil {
-		err = fmt.Errorf("journal %s record: %w", kind, err)
-		if ctx.Err() == nil && e.journalErr == nil {
-			e.journalErr = fmt.Errorf("%w: %w", ErrJournal, err)
-		}
-		return 0, err
+		return 0, e.journalFailed(ctx, fmt.Errorf("journal %s record: %w", kind, err))
 	}
-	return seq, nil
+	return seq, ferr
 }
 
 // say shows and speaks m, and journals it. It is spoken even when the

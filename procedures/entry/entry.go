@@ -27,6 +27,15 @@ const (
 	KindSessionEnd Kind = "session_end" // SessionEnd: last record of a finished session
 )
 
+// Item is one record to append: its kind and payload. A journal appends
+// a slice of them in one durable write (one transaction, one fsync), which
+// is how the engine journals a burst of readings without falling behind a
+// streaming meter.
+type Item struct {
+	Kind    Kind
+	Payload any
+}
+
 // Session opens a session.
 type Session struct {
 	ID                string    `json:"id"`
