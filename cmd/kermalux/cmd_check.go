@@ -11,13 +11,15 @@ import (
 
 	"kermalux/firmware-host/bench"
 	"kermalux/procedures/builtin"
+	"kermalux/procedures/catalog"
 	"kermalux/procedures/script"
 )
 
 type checkOptions struct {
-	bench   string
-	builtin bool
-	modes   []string
+	bench    string
+	builtin  bool
+	modes    []string
+	language string
 }
 
 func init() {
@@ -29,7 +31,8 @@ func init() {
 every problem it finds, one per line as file:line:col: reason, on standard
 error: unknown step kinds or fields, unit mistakes, references to steps that do
 not exist, a beam step before the pre-exposure safety checklist, a beam-on
-budget the steps could exceed, include cycles.
+budget the steps could exceed, include cycles, and a text said or shown
+that has no translation into the bench's language (or --language).
 
 Exit status: 0 valid, 1 invalid, 2 wrong command line.`,
 		Args: cobra.MaximumNArgs(1),
@@ -37,6 +40,7 @@ Exit status: 0 valid, 1 invalid, 2 wrong command line.`,
 	}
 	check.Flags().StringVar(&o.bench, "bench", "", "bench file: also check that its meters report what the script measures")
 	check.Flags().BoolVar(&o.builtin, "builtin", false, "check every built-in procedure")
+	check.Flags().StringVar(&o.language, "language", "", "check that every text has a translation into this language ("+strings.Join(catalog.Languages(), ", ")+"); default the bench's")
 	check.Flags().StringSliceVar(&o.modes, "modes", nil, "field modes of the intensifier, comma-separated (for per_field_mode blocks that take their modes from the bench)")
 
 	var showSteps string
@@ -78,6 +82,16 @@ func runCheck(cmd *cobra.Command, o checkOptions, args []string) error {
 		env = b.Env()
 		if len(o.modes) > 0 {
 			env.FieldModes = o.modes
+		}
+	}
+	if o.language != "" {
+		m, err := catalog.Builtin(o.language)
+		if err != nil {
+			return withCode(exitUsage, fmt.Errorf("check: --language: %w", err))
+		}
+		env.Texts = nil
+		if !m.IsEnglish() {
+			env.Texts = m
 		}
 	}
 	out, errOut := cmd.OutOrStdout(), cmd.ErrOrStderr()

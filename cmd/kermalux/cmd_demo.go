@@ -18,6 +18,7 @@ import (
 	"kermalux/drivers/clock"
 	"kermalux/firmware-host/demo"
 	"kermalux/firmware-host/live"
+	"kermalux/procedures/catalog"
 	"kermalux/procedures/engine"
 	"kermalux/procedures/entry"
 	"kermalux/procedures/panel"
@@ -35,6 +36,7 @@ type demoOptions struct {
 	asJSON    bool
 	live      string
 	roomAir   bool
+	language  string
 	hurried   bool
 }
 
@@ -94,6 +96,7 @@ The simulator's figures are invented: they are not measurements.`,
 	f.BoolVar(&o.asJSON, "json", false, "print only the summary, as JSON (the results file and the paths written)")
 	f.BoolVar(&o.hurried, "hurried", false, "the simulated operator answers after a reaction time only, taking no time to listen, set up or read off (default: a person's times, see firmware-host/demo/operator.go)")
 	f.StringVar(&o.live, "live", "", "serve the read-only live view on ADDR (HOST:PORT or :PORT) and keep it up after the session until interrupted; --speed 1 to watch in real time")
+	f.StringVar(&o.language, "language", "", "the language the board speaks: "+strings.Join(catalog.Languages(), ", ")+" (default English)")
 	f.BoolVar(&o.roomAir, "room-air", false, "simulate the bench's room-air sensor at the scenario's air: temperature and pressure are read, not entered")
 	register(cmd)
 }
@@ -109,7 +112,7 @@ func runDemo(parent context.Context, w, errw io.Writer, o demoOptions, hasSeed b
 		return withCode(exitUsage, err)
 	}
 	opts := demo.Options{Out: o.out, Scenario: o.scenario, Seed: o.seed, HasSeed: hasSeed, Speed: o.speed,
-		Procedure: o.procedure, Render: render, Version: version, Fresh: o.fresh, RoomAir: o.roomAir, Hurried: o.hurried}
+		Procedure: o.procedure, Render: render, Version: version, Fresh: o.fresh, RoomAir: o.roomAir, Hurried: o.hurried, Language: o.language}
 	if !o.quiet && !o.asJSON {
 		opts.Dialogue = w
 	}

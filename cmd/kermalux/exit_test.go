@@ -40,6 +40,14 @@ func TestCheckExitCodes(t *testing.T) {
 		{[]string{"check", "../../testdata/procedures/bad/bad-unit.yaml"}, exitFailure, "bad-unit.yaml:13:21:"},
 		{[]string{"check", "--builtin", "--bench", "../../testdata/bench/demo-sim.yaml"}, exitOK, ""},
 		{[]string{"check", "../../procedures/builtin/conversion-factor.yaml", "--bench", "../../testdata/bench/photometer-only.yaml"}, exitFailure, "no configured meter reports air_kerma_rate"},
+		// A site's own texts with no translation into the language asked
+		// are refused, each named by file, line and text; the lines the
+		// built-in checklist shares are translated.
+		{[]string{"check", "../../testdata/procedures/good/local-safety.yaml"}, exitOK, ""},
+		{[]string{"check", "--language", "de", "../../testdata/procedures/good/local-safety.yaml"}, exitFailure, `local-safety.yaml:14:9: line 5 of step list has no translation into "de": add it to a catalog (en: "The mobile shield is in place.")`},
+		{[]string{"check", "--language", "fr", "../../testdata/procedures/good/local-safety.yaml"}, exitFailure, `local-safety.yaml:2:1: title of procedure`},
+		{[]string{"check", "--builtin", "--language", "fr"}, exitOK, ""},
+		{[]string{"check", "--builtin", "--language", "xx"}, exitUsage, "no catalog for this language"},
 		{[]string{"check"}, exitUsage, ""},
 		{[]string{"check", "--no-such-flag", "x.yaml"}, exitUsage, "unknown flag"},
 	}

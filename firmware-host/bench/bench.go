@@ -27,6 +27,7 @@ import (
 	"kermalux/drivers/serialline"
 	"kermalux/drivers/units"
 	"kermalux/firmware-host/panel/compose"
+	"kermalux/procedures/catalog"
 )
 
 // Bench is a parsed bench file.
@@ -47,6 +48,13 @@ type Bench struct {
 	Sequence string         `yaml:"sequence"`
 	Defaults Defaults       `yaml:"defaults"`
 	Limits   LocalLimits    `yaml:"limits"`
+	// Language is the engineer's language: what the board says and shows,
+	// and the report (a code of procedures/catalog: en, de, fr; empty:
+	// English).
+	Language string `yaml:"language"`
+	// Catalogs are the site's own catalog files (relative to the bench
+	// file), translating its own procedures' texts into Language.
+	Catalogs []string `yaml:"catalogs"`
 	// RoomAir is the room-air sensor on the board's I2C bus (optional).
 	RoomAir *RoomAir `yaml:"room_air"`
 	// OpenI2C, when set, opens the room-air sensor's bus instead of
@@ -65,7 +73,12 @@ type Bench struct {
 	// its sessions and results are marked simulated, and only such a
 	// bench accepts a simulated results.json as its baseline.
 	Simulated bool `yaml:"-"`
+	// messages is the catalog of Language, loaded by check.
+	messages *catalog.Catalog
 }
+
+// Messages is the catalog of the bench's language (nil for English).
+func (b *Bench) Messages() *catalog.Catalog { return b.messages }
 
 // XRaySystem names the X-ray system, its generator and its tube.
 type XRaySystem struct {

@@ -14,6 +14,7 @@ import (
 	"github.com/goccy/go-yaml/parser"
 
 	"kermalux/drivers/filepos"
+	"kermalux/procedures/catalog"
 	"kermalux/procedures/engine"
 )
 
@@ -144,6 +145,7 @@ func (b *Bench) check(c *checker) error {
 	for k, s := range map[string]string{"model": x.Model, "serial": x.Serial, "generator": x.Generator, "generator_serial": x.GeneratorSerial, "tube": x.Tube, "tube_serial": x.TubeSerial} {
 		c.text(p("xray_system", k), s)
 	}
+	b.checkLanguage(c)
 	c.text(p("intensifier", "model"), b.Intensifier.Model)
 	c.text(p("intensifier", "serial"), b.Intensifier.Serial)
 	seen := map[string]bool{}
@@ -218,4 +220,52 @@ func (b *Bench) Warnings() []string {
 			strconv.FormatFloat(k, 'g', 4, 64), strconv.FormatFloat(def, 'g', 4, 64)))
 	}
 	return out
+}
+
+// checkLanguage loads the catalog of the bench's language with the
+// site's own catalog files: an unknown language, or a catalog file that
+// cannot be read or is in another language, is refused.
+func (b *Bench) checkLanguage(c *checker) {
+	if b.Language == "" && len(b.Catalogs) == 0 {
+		return
+	}
+	lang := b.Language
+	if lang == "" {
+		lang = catalog.English
+	}
+	if lang == catalog.English && len(b.Catalogs) > 0 {
+		c.errf([]any{"catalogs"}, "catalogs translate into the bench's language, but language is English (set language: de, fr, ...)")
+		return
+	}
+	if _, err := catalog.Builtin(lang); err != nil {
+		c.errf([]any{"language"}, "%v", err)
+		return
+	}
+	files := make([]string, len(b.Catalogs))
+	for i, f := range b.Catalogs {
+		files[i] = b.Rel(f)
+	}
+	m, err := catalog.Load(lang, files...)
+	if err != nil {
+		c.errf([]any{"catalogs"}, "%v", err)
+		return
+	}
+	b.messages = m
+}
+
+// SetLanguage switches the bench to another language (the demo's
+// --language), as if its file said so; empty keeps the file's.
+func (b *Bench) SetLanguage(lang string) error {
+	if lang == "" {
+		return nil
+	}
+	c := newChecker(b.Path, nil)
+	old := b.Language
+	b.Language = lang
+	b.checkLanguage(c)
+	if len(c.errs) > 0 {
+		b.Language = old
+		return errors.Join(c.errs...)
+	}
+	return nil
 }

@@ -135,7 +135,11 @@ func (b *Bench) Env() script.Env {
 	}
 	// A foot-switch panel cannot enter a number: the checker then wants a
 	// default for every value asked.
-	return script.Env{Quantities: q, FieldModes: b.ModeNames(), Values: b.Values(), HandsFree: b.Panel.Kind == "gpio"}
+	env := script.Env{Quantities: q, FieldModes: b.ModeNames(), Values: b.Values(), HandsFree: b.Panel.Kind == "gpio"}
+	if m := b.Messages(); !m.IsEnglish() {
+		env.Texts = m
+	}
+	return env
 }
 
 // Procedure loads the procedure name (a built-in's name or a script path;
@@ -200,10 +204,28 @@ func (b *Bench) Config(proc engine.Procedure, meters map[string]drivers.Meter, p
 		Session: entry.Session{Site: b.Site, Room: b.Room, IntensifierModel: b.Intensifier.Model,
 			IntensifierSerial: b.Intensifier.Serial, Engineer: b.Engineer, Procedure: proc.Name,
 			ProcedureHash: proc.Hash, BenchHash: b.SHA256, SoftwareVersion: version, Started: day, Certificates: refs,
-			Simulated: b.Simulated, TestType: b.TestType, XRay: b.xray(), Geometry: b.geometryRecord()},
+			Simulated: b.Simulated, TestType: b.TestType, Language: b.sessionLanguage(), XRay: b.xray(), Geometry: b.geometryRecord()},
 		Values: b.Values(), CertProblems: problems, Warnings: append(b.Warnings(), airProblems...), Limits: lim, BootID: BootID(), FieldModes: b.modeDiameters(),
-		RoomAir: air,
+		RoomAir: air, Messages: b.engineMessages(),
 	}, nil
+}
+
+// engineMessages is the bench's language for the engine; nil (not a nil
+// *catalog.Catalog in the interface) for English.
+func (b *Bench) engineMessages() engine.Messages {
+	if m := b.Messages(); !m.IsEnglish() {
+		return m
+	}
+	return nil
+}
+
+// sessionLanguage is the language journalled with a session: its code,
+// empty for English (as sessions recorded before languages were).
+func (b *Bench) sessionLanguage() string {
+	if m := b.Messages(); !m.IsEnglish() {
+		return m.Code()
+	}
+	return ""
 }
 
 // BootID is this boot's id (Linux), "unknown" elsewhere.

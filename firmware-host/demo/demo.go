@@ -68,6 +68,9 @@ type Options struct {
 	// unfinished one of the same procedure and intensifier; by default
 	// that session is resumed, as on the board.
 	Fresh bool
+	// Language is the language the board speaks (`kermalux demo
+	// --language`); empty: English.
+	Language string
 	// RoomAir simulates the bench's room-air sensor at the scenario's air
 	// (`kermalux demo --room-air`): temperature and pressure are read, not entered.
 	RoomAir bool
@@ -151,7 +154,7 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 		return nil, fmt.Errorf("demo: starting the simulator: %w", err)
 	}
 
-	benchPath, b, proc, err := benchFor(o.Out, scn, clk.Now(), o.Procedure)
+	benchPath, b, proc, err := benchFor(o.Out, scn, clk.Now(), o.Procedure, o.Language)
 	if err != nil {
 		return nil, err
 	}

@@ -45,6 +45,8 @@ type SeededOptions struct {
 	OnAsk func(p panel.Prompt)
 	// OnSay is called with each message before the operator hears it.
 	OnSay func(m panel.Message)
+	// Language is the bench's language (empty: the bench file's, English).
+	Language string
 	// RoomAir simulates the bench's room-air sensor (a BME280 on a
 	// simulated I2C bus) holding the scenario's air: the procedure's
 	// temperature and pressure are read from it instead of entered.
@@ -81,7 +83,7 @@ func Seeded(ctx context.Context, o SeededOptions) (*SeededOutcome, error) {
 		return nil, fmt.Errorf("demo: %w", err)
 	}
 	clk := clock.NewManual(time.Date(2026, 9, 1, 9, 0, 0, 0, time.UTC)) // within the demo certificates' dates
-	_, b, proc, err := benchFor(o.Dir, scn, clk.Now(), o.Procedure)
+	_, b, proc, err := benchFor(o.Dir, scn, clk.Now(), o.Procedure, o.Language)
 	if err != nil {
 		return nil, err
 	}
@@ -342,13 +344,16 @@ func (j seededJournal) Begin(ctx context.Context, s entry.Session) (string, erro
 
 // benchFor writes the simulated bench's file into dir, loads it (marked
 // simulated) and the procedure name (empty: the bench's sequence).
-func benchFor(dir string, scn *benchsim.Scenario, day time.Time, name string) (string, *bench.Bench, engine.Procedure, error) {
+func benchFor(dir string, scn *benchsim.Scenario, day time.Time, name, lang string) (string, *bench.Bench, engine.Procedure, error) {
 	path, err := writeBench(dir, scn, day)
 	if err != nil {
 		return "", nil, engine.Procedure{}, err
 	}
 	b, err := bench.Load(path)
 	if err != nil {
+		return "", nil, engine.Procedure{}, err
+	}
+	if err := b.SetLanguage(lang); err != nil {
 		return "", nil, engine.Procedure{}, err
 	}
 	b.Simulated = true // the session, its results and its report say so

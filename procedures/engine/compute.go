@@ -321,7 +321,7 @@ func (e *Engine) compute(ctx context.Context, idx int, s Step) error {
 	if err := e.journal(ctx, entry.KindResult, r); err != nil {
 		return err
 	}
-	return e.say(ctx, idx, panel.Message{Text: spokenResult(r, e.resultMeter(s.ID)), Level: panel.Info})
+	return e.say(ctx, idx, panel.Message{Text: e.spokenResult(r, e.resultMeter(s.ID)), Level: panel.Info})
 }
 
 // unmeasured is why an input of a compute step could not be measured
@@ -358,7 +358,7 @@ func (e *Engine) notMeasurableResult(ctx context.Context, idx int, s Step, why s
 	if err := e.journal(ctx, entry.KindResult, r); err != nil {
 		return err
 	}
-	return e.say(ctx, idx, panel.Message{Text: resultName(r, e.resultMeter(s.ID)) + ": not measurable, " + why + ".", Level: panel.Warn})
+	return e.say(ctx, idx, panel.Message{Text: e.t("%s: not measurable, %s.", e.resultName(r, e.resultMeter(s.ID)), e.text(why)), Level: panel.Warn})
 }
 
 func firstRole(m map[string]string) string {
@@ -501,7 +501,7 @@ func (e *Engine) judge(ctx context.Context, idx int, s Step) error {
 	if r.Verdict == string(calib.Fail) {
 		lv = panel.Warn
 	}
-	return e.say(ctx, idx, panel.Message{Text: spokenVerdict(r, e.resultMeter(j.Result), v), Level: lv})
+	return e.say(ctx, idx, panel.Message{Text: e.spokenVerdict(r, e.resultMeter(j.Result), v), Level: lv})
 }
 
 // resultMeter is the meter a dark level or a stability was read with (the

@@ -318,6 +318,9 @@ type Config struct {
 	// input diameters in mm; a setup asking for field_mode "largest" or
 	// "smallest" gets the mode's name.
 	FieldModes map[string]float64
+	// Messages are the texts in the engineer's language (the bench's
+	// language key); nil speaks English.
+	Messages Messages
 }
 
 // Summary is what a run achieved.

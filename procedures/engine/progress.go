@@ -139,26 +139,40 @@ func (pr progress) inPart(k int) (int, time.Duration) {
 
 // spokenMinutes says an estimate of time in whole minutes ("about 4
 // minutes", "under a minute").
-func spokenMinutes(d time.Duration) string {
+func (e *Engine) spokenMinutes(d time.Duration) string {
 	m := int((d + 30*time.Second) / time.Minute)
 	switch m {
 	case 0:
-		return "under a minute"
+		return e.t("under a minute")
 	case 1:
-		return "about 1 minute"
+		return e.t("about 1 minute")
 	}
-	return fmt.Sprintf("about %d minutes", m)
+	return e.t("about %d minutes", m)
 }
 
-func exposures(n int) string {
+// exposures counts exposures, capitalised when it opens a sentence.
+func (e *Engine) exposures(n int, capital bool) string {
+	var s string
 	switch n {
 	case 0:
-		return "no exposures"
+		s = "no exposures"
 	case 1:
-		return "1 exposure"
+		s = "1 exposure"
+	default:
+		s = "%d exposures"
 	}
-	return fmt.Sprintf("%d exposures", n)
+	if capital {
+		s = capitalise(s)
+	}
+	if n > 1 {
+		return e.t(s, n)
+	}
+	return e.t(s)
 }
+
+// Caution is the radiation-safety caution said at the start of every
+// session, in every language.
+const Caution = "Caution: X-rays are dangerous. Follow your local rules and your radiation safety officer."
 
 // opening is said when a session starts: its parts, exposures, the time it
 // should take and the beam-on budget it was checked against.
@@ -166,15 +180,15 @@ func (e *Engine) opening(title string) string {
 	pr := e.prog
 	n, d := pr.left(0)
 	var b strings.Builder
-	fmt.Fprintf(&b, "Starting %s.", title)
+	b.WriteString(e.t("Starting %s.", e.text(title)))
 	if pr.parts > 1 {
-		fmt.Fprintf(&b, " %d parts,", pr.parts)
+		b.WriteString(" " + e.t("%d parts,", pr.parts))
 	}
-	fmt.Fprintf(&b, " %s, %s.", exposures(n), spokenMinutes(d))
+	fmt.Fprintf(&b, " %s, %s.", e.exposures(n, false), e.spokenMinutes(d))
 	if bb := e.cfg.Procedure.BeamBudget; bb > 0 {
-		fmt.Fprintf(&b, " Beam-on budget %s.", spokenDuration(bb))
+		b.WriteString(" " + e.t("Beam-on budget %s.", e.duration(bb)))
 	}
-	b.WriteString(" Caution: X-rays are dangerous. Follow your local rules and your radiation safety officer.")
+	b.WriteString(" " + e.t(Caution))
 	return b.String()
 }
 
@@ -188,7 +202,7 @@ func (e *Engine) partIntro(i int) string {
 	if title == "" {
 		title = e.cfg.Procedure.Steps[i].Part
 	}
-	text := fmt.Sprintf("Part %d of %d: %s. %s, %s.", k, pr.parts, title, capitalise(exposures(n)), spokenMinutes(d))
+	text := e.t("Part %d of %d: %s.", k, pr.parts, e.text(title)) + fmt.Sprintf(" %s, %s.", e.exposures(n, true), e.spokenMinutes(d))
 	var restN int
 	var restD time.Duration
 	for j := i; j < len(pr.part); j++ {
@@ -198,9 +212,9 @@ func (e *Engine) partIntro(i int) string {
 		}
 	}
 	if k < pr.parts {
-		text += fmt.Sprintf(" After it: %s, %s.", exposures(restN), spokenMinutes(restD))
+		text += " " + e.t("After it: %s, %s.", e.exposures(restN, false), e.spokenMinutes(restD))
 	} else {
-		text += " It is the last part."
+		text += " " + e.t("It is the last part.")
 	}
 	return text
 }
@@ -228,6 +242,6 @@ func (e *Engine) withProgress(p *panel.Prompt) {
 	}
 	p.Part, p.Parts = e.prog.part[i], e.prog.parts
 	if p.Part > 0 {
-		p.PartTitle = e.cfg.Procedure.Steps[i].PartTitle
+		p.PartTitle = e.text(e.cfg.Procedure.Steps[i].PartTitle)
 	}
 }

@@ -89,7 +89,7 @@ func (e *Engine) enterFromSensor(ctx context.Context, idx int, s Step) (bool, er
 		if jerr := e.journal(ctx, entry.KindEvent, entry.Event{Step: idx, Name: evRoomAirFailed, Detail: fmt.Sprintf("%s for the %s: %v", RoomAir, name, err), BeamOn: e.st.beamOn.Seconds()}); jerr != nil {
 			return true, errors.Join(jerr, err)
 		}
-		return false, e.say(ctx, idx, panel.Message{Text: "The room air sensor gave no usable " + name + ". Enter it by hand.", Level: panel.Warn})
+		return false, e.say(ctx, idx, panel.Message{Text: e.t("The room air sensor gave no usable %s. Enter it by hand.", e.text(name)), Level: panel.Warn})
 	}
 	e.st.values[v.Name] = canon
 	e.st.setUnc(v.Name, u)
@@ -98,7 +98,7 @@ func (e *Engine) enterFromSensor(ctx context.Context, idx int, s Step) (bool, er
 		FieldMode: s.FieldMode, StdUnc: uval, Sensor: RoomAir, Raw: a.Raw}); err != nil {
 		return true, err
 	}
-	text := strings.ToUpper(name[:1]) + name[1:] + " " + fmtNum(val) + " " + v.Unit + ", from the room air sensor."
+	text := e.t("%s %s %s, from the room air sensor.", e.text(nameOf(v.Name)), e.num(val), v.Unit)
 	return true, e.say(ctx, idx, panel.Message{Text: text, Level: panel.Info})
 }
 

@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"log/slog"
 	"math"
+	"strconv"
 	"strings"
 	"time"
 
@@ -102,12 +103,12 @@ func (e *Engine) run(ctx context.Context) (Summary, error) {
 	if st.resumed {
 		where := strings.TrimSpace(cfg.Session.Room)
 		if where == "" {
-			where = title
+			where = e.text(title)
 		}
 		if first < n {
 			_ = e.journal(ctx, entry.KindStep, entry.Step{Index: first + 1, Of: n, ID: steps[first].ID, Kind: string(steps[first].Kind), FieldMode: steps[first].FieldMode, State: entry.StepResumed})
 		}
-		text := fmt.Sprintf("Resuming %s at step %d of %d.", where, e.prog.taskAt(first), e.prog.tasks)
+		text := e.t("Resuming %s at step %d of %d.", where, e.prog.taskAt(first), e.prog.tasks)
 		if recheck != "" {
 			text += " " + recheck
 		}
@@ -138,7 +139,7 @@ func (e *Engine) run(ctx context.Context) (Summary, error) {
 	}
 	for _, p := range cfg.CertProblems {
 		_ = e.journal(ctx, entry.KindEvent, entry.Event{Name: evCertificate, Detail: p, BeamOn: st.beamOn.Seconds()})
-		if err := e.say(ctx, 0, panel.Message{Text: p + " Results will be flagged as not calibrated.", Level: panel.Warn}); err != nil {
+		if err := e.say(ctx, 0, panel.Message{Text: e.text(p) + " " + e.t("Results will be flagged as not calibrated."), Level: panel.Warn}); err != nil {
 			return e.finish(ctx, sum, err)
 		}
 	}
@@ -218,7 +219,7 @@ func (e *Engine) run(ctx context.Context) (Summary, error) {
 					}
 				}
 			}
-			_ = e.say(ctx, j+1, panel.Message{Text: fmt.Sprintf("Retaking step %d of %d.", e.prog.taskAt(j), e.prog.tasks), Level: panel.Retry})
+			_ = e.say(ctx, j+1, panel.Message{Text: e.t("Retaking step %d of %d.", e.prog.taskAt(j), e.prog.tasks), Level: panel.Retry})
 			i = j
 			continue
 		default:
@@ -259,7 +260,7 @@ func (e *Engine) recheckChecklist(ctx context.Context, info resumeInfo) (string,
 			if err := e.journal(ctx, entry.KindStep, entry.Step{Index: idx, Of: len(steps), ID: s.ID, Kind: string(s.Kind), State: entry.StepRetake, Reason: reason}); err != nil {
 				return "", err
 			}
-			said = append(said, "The safety checklist was not fully acknowledged: it is asked again.")
+			said = append(said, e.t("The safety checklist was not fully acknowledged: it is asked again."))
 		}
 	}
 	why := e.recheckReason(info)
@@ -276,7 +277,7 @@ func (e *Engine) recheckChecklist(ctx context.Context, info resumeInfo) (string,
 		}
 	}
 	st.checklist = false
-	said = append(said, fmt.Sprintf("Since %s, confirm the safety checklist again.", why))
+	said = append(said, e.t("Since %s, confirm the safety checklist again.", e.text(why)))
 	return strings.Join(said, " "), nil
 }
 
@@ -326,7 +327,7 @@ func (e *Engine) finish(ctx context.Context, sum Summary, runErr error) (Summary
 	// The closing summary is said, and journalled, before the session's
 	// end record: the journal takes nothing after it.
 	if runErr == nil {
-		_ = e.say(ctx, 0, panel.Message{Text: closingSummary(sum, st.beamOn), Level: panel.Info})
+		_ = e.say(ctx, 0, panel.Message{Text: e.closingSummary(sum, st.beamOn), Level: panel.Info})
 	}
 	end := entry.SessionEnd{Finished: e.cfg.Clock.Now(), BeamOn: st.beamOn.Seconds(), Steps: sum.Steps, Outcome: sum.Outcome, Review: sum.Review}
 	if sum.Outcome != "complete" {
@@ -346,31 +347,31 @@ func (e *Engine) finish(ctx context.Context, sum Summary, runErr error) (Summary
 // closingSummary is what is said at the end of a complete session: each
 // fail and the limit that decided it, how many other results need review
 // and why, and the total beam-on time.
-func closingSummary(sum Summary, beamOn time.Duration) string {
+func (e *Engine) closingSummary(sum Summary, beamOn time.Duration) string {
 	var fails, why []string
 	for _, r := range sum.Results {
 		switch {
 		case r.Verdict == "fail":
-			w := spokenQuantity(r.Quantity)
+			w := e.text(spokenQuantity(r.Quantity))
 			if r.FieldMode != "" {
-				w += ", " + r.FieldMode + " field"
+				w = e.t("%s, %s field", w, r.FieldMode)
 			}
 			if r.DecidedBy != "" {
-				w += ", " + r.DecidedBy
+				w += ", " + e.text(r.DecidedBy)
 			}
 			fails = append(fails, w)
 		case needsReview(r):
-			why = appendUnique(why, "not calibrated")
+			why = appendUnique(why, e.t("not calibrated"))
 		}
 	}
 	others := sum.Review - len(fails)
-	text := "All steps done."
+	text := e.t("All steps done.")
 	switch len(fails) {
 	case 0:
 	case 1:
-		text += " One fail: " + fails[0] + "."
+		text += " " + e.t("One fail: %s.", fails[0])
 	default:
-		text += fmt.Sprintf(" %s fails: %s.", spellCount(len(fails)), strings.Join(fails, "; "))
+		text += " " + e.t("%s fails: %s.", e.text(spellCount(len(fails))), strings.Join(fails, "; "))
 	}
 	other := ""
 	if len(fails) > 0 {
@@ -378,16 +379,16 @@ func closingSummary(sum Summary, beamOn time.Duration) string {
 	}
 	switch {
 	case others <= 0 && len(fails) == 0:
-		text += " No results need review."
+		text += " " + e.t("No results need review.")
 	case others == 1:
-		text += fmt.Sprintf(" One %sresult needs review: %s.", other, strings.Join(why, ", "))
+		text += " " + e.t("One "+other+"result needs review: %s.", strings.Join(why, ", "))
 	case others > 1:
-		text += fmt.Sprintf(" %s %sresults need review: %s.", spellCount(others), other, strings.Join(why, ", "))
+		text += " " + e.t("%s "+other+"results need review: %s.", e.text(spellCount(others)), strings.Join(why, ", "))
 	}
 	for _, m := range sum.Skipped {
-		text += " Skipped: the " + m + " field."
+		text += " " + e.t("Skipped: the %s field.", m)
 	}
-	return text + " Beam-on time " + spokenDuration(beamOn) + "."
+	return text + " " + e.t("Beam-on time %s.", e.duration(beamOn))
 }
 
 func needsReview(r entry.Result) bool {
@@ -402,27 +403,9 @@ func spellCount(n int) string {
 	return fmt.Sprint(n)
 }
 
-// spokenDuration says a duration the way a person would.
-func spokenDuration(d time.Duration) string {
-	s := int(d.Round(time.Second) / time.Second)
-	m := s / 60
-	s %= 60
-	switch {
-	case m == 0:
-		return fmt.Sprintf("%d seconds", s)
-	case s == 0:
-		return fmt.Sprintf("%d minute%s", m, plural(m))
-	default:
-		return fmt.Sprintf("%d minute%s %d seconds", m, plural(m), s)
-	}
-}
-
-func plural(n int) string {
-	if n == 1 {
-		return ""
-	}
-	return "s"
-}
+// spokenDuration says a duration the way a person would, in English
+// (the journal's words; what is said goes through Engine.duration).
+func spokenDuration(d time.Duration) string { return (&Engine{}).duration(d) }
 
 // journal appends a record to the session.
 func (e *Engine) journal(ctx context.Context, kind entry.Kind, payload any) error {
@@ -490,6 +473,7 @@ func (e *Engine) appendSeq(ctx context.Context, kind entry.Kind, payload any) (i
 // journal cannot take it (a "release the beam" must be heard whatever the
 // storage does); the journal's error is returned after.
 func (e *Engine) say(ctx context.Context, step int, m panel.Message) error {
+	m.Text = e.text(m.Text)
 	e.sinceAsk = append(e.sinceAsk, m)
 	jerr := e.journal(ctx, entry.KindPrompt, entry.Prompt{Step: step, Level: string(m.Level), Action: string(m.Action), Text: m.Text})
 	if jerr != nil && ctx.Err() != nil {
@@ -545,6 +529,7 @@ func (e *Engine) ask(ctx context.Context, p panel.Prompt) (panel.Response, error
 
 // askOnce asks p once and journals the prompt and the answer.
 func (e *Engine) askOnce(ctx context.Context, p panel.Prompt) (panel.Response, error) {
+	p.Text = e.text(p.Text)
 	seq, err := e.appendSeq(ctx, entry.KindPrompt, entry.Prompt{Step: p.Step, Level: string(p.Level), Action: string(p.Action), Text: p.Text, Asked: true, Setup: p.Setup})
 	if err != nil {
 		return panel.Response{}, err
@@ -594,9 +579,9 @@ func (e *Engine) pauseMenu(ctx context.Context, p panel.Prompt) (bool, error) {
 	if i := p.Step - 1; i >= 0 && i < len(e.cfg.Procedure.Steps) {
 		mode = e.cfg.Procedure.Steps[i].FieldMode
 	}
-	text := "Paused. Press to go on. Double press again to stop here; run again to resume."
+	text := e.t("Paused. Press to go on. Double press again to stop here; run again to resume.")
 	if mode != "" {
-		text = fmt.Sprintf("Paused. Press to go on. Hold to skip the %s field. Double press again to stop here; run again to resume.", mode)
+		text = e.t("Paused. Press to go on. Hold to skip the %s field. Double press again to stop here; run again to resume.", mode)
 	}
 	menu := panel.Prompt{Message: panel.Message{Text: text, Level: panel.Info, Action: panel.ActMenu}, Step: p.Step, Of: p.Of, StepID: p.StepID}
 	e.withProgress(&menu)
@@ -627,14 +612,14 @@ func (e *Engine) pauseMenu(ctx context.Context, p panel.Prompt) (bool, error) {
 // beam-on time so far.
 func (e *Engine) nextText(idx int) string {
 	steps := e.cfg.Procedure.Steps
-	next := "the end"
+	next := e.t("the end")
 	if idx >= 0 && idx < len(steps) {
-		next = firstSentence(steps[idx].Text)
+		next = firstSentence(e.text(steps[idx].Text))
 		if next == "" {
-			next = strings.ReplaceAll(string(steps[idx].Kind), "_", " ")
+			next = e.t(strings.ReplaceAll(string(steps[idx].Kind), "_", " "))
 		}
 	}
-	return fmt.Sprintf("%s (beam-on so far %s)", next, spokenDuration(e.st.beamOn))
+	return e.t("%s (beam-on so far %s)", next, e.duration(e.st.beamOn))
 }
 
 func firstSentence(s string) string {
@@ -683,6 +668,9 @@ func (e *Engine) doStep(ctx context.Context, idx int, s Step) error {
 			p := base
 			p.Message = panel.Message{Text: item, Level: panel.Info, Action: panel.ActCheck}
 			p.Line, p.Lines = k+1, len(s.Items)
+			if e.cfg.Messages != nil {
+				p.LineWords = e.t("Line %d of %d.", k+1, len(s.Items))
+			}
 			if s.Safety {
 				p.Message.Setup = map[string]string{"checklist": "pre-exposure", "item": fmt.Sprint(k + 1)}
 			}
@@ -731,7 +719,7 @@ func (e *Engine) enter(ctx context.Context, idx int, s Step, base panel.Prompt) 
 		p := base
 		text := s.Text
 		if text == "" {
-			text = "Enter the " + strings.ReplaceAll(v.Name, "_", " ") + " in " + v.Unit + "."
+			text = e.t("Enter the %s in %s.", e.text(strings.ReplaceAll(v.Name, "_", " ")), v.Unit)
 		}
 		p.Message = panel.Message{Text: text, Level: panel.Info, Action: panel.ActValue}
 		p.Value = req
@@ -746,7 +734,7 @@ func (e *Engine) enter(ctx context.Context, idx int, s Step, base panel.Prompt) 
 			val, source = req.Default, offered // a plain press accepts the default
 		}
 		if (req.Min != 0 || req.Max != 0) && (val < req.Min || val > req.Max) {
-			if err := e.say(ctx, idx, panel.Message{Text: fmt.Sprintf("%s %s is outside %s to %s %s. Please enter it again.", fmtNum(val), v.Unit, fmtNum(req.Min), fmtNum(req.Max), v.Unit), Level: panel.Retry}); err != nil {
+			if err := e.say(ctx, idx, panel.Message{Text: e.t("%s %s is outside %s to %s %s. Please enter it again.", e.num(val), v.Unit, e.num(req.Min), e.num(req.Max), v.Unit), Level: panel.Retry}); err != nil {
 				return err
 			}
 			if attempt >= 5 {
@@ -790,8 +778,9 @@ func (e *Engine) checkDisk(ctx context.Context, idx int, s Step, disk float64) e
 	if _, wrong := calib.LeadDiskNote(disk, field); !wrong {
 		return nil
 	}
-	text := fmt.Sprintf("Check the lead disk. %g mm is %.0f %% of the %g mm field. The contrast ratio needs a disk of %g mm, a tenth of the field. A result with this disk carries a note.",
-		disk, 100*disk/field, field, math.Round(field/10))
+	g := func(v float64) string { return e.decimal(strconv.FormatFloat(v, 'g', -1, 64)) }
+	text := e.t("Check the lead disk. %s mm is %s %% of the %s mm field. The contrast ratio needs a disk of %s mm, a tenth of the field. A result with this disk carries a note.",
+		g(disk), fmt.Sprintf("%.0f", 100*disk/field), g(field), g(math.Round(field/10)))
 	_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: idx, Name: evDiskSize, Detail: fmt.Sprintf("lead disk %g mm for a %g mm field", disk, field), BeamOn: e.st.beamOn.Seconds()})
 	return e.say(ctx, idx, panel.Message{Text: text, Level: panel.Warn})
 }

@@ -30,6 +30,11 @@ func spokenQuantity(q string) string {
 	if n, ok := quantityNames[q]; ok {
 		return n
 	}
+	return nameOf(q)
+}
+
+// nameOf makes a name of a key: "tube_voltage" is "Tube voltage".
+func nameOf(q string) string {
 	s := strings.ReplaceAll(q, "_", " ")
 	if s == "" {
 		return s
@@ -43,13 +48,13 @@ func inPercent(q string) bool { return q == calib.QNonUniformity || q == "stabil
 // resultName is the result's spoken name with its meter (for a dark level
 // or a stability) and its field mode: "Photometer dark level",
 // "Conversion factor, 32cm field".
-func resultName(r entry.Result, meter string) string {
-	name := spokenQuantity(r.Quantity)
+func (e *Engine) resultName(r entry.Result, meter string) string {
+	name := e.text(spokenQuantity(r.Quantity))
 	if meter != "" {
-		name = roleName(meter) + " " + strings.ToLower(name)
+		name = e.text(roleName(meter) + " " + strings.ToLower(spokenQuantity(r.Quantity)))
 	}
 	if r.FieldMode != "" {
-		name += ", " + r.FieldMode + " field"
+		name = e.t("%s, %s field", name, r.FieldMode)
 	}
 	return name
 }
@@ -58,22 +63,22 @@ func resultName(r entry.Result, meter string) string {
 // eye reads it: "0.455 µGy/s", "151 cd/m² per µGy/s", "8.3 %", "24.1 to 1".
 // A limit set as a number is said as written ("25 %", "2 µGy/s"), a
 // measured value to three significant figures.
-func quantityWithUnit(r entry.Result, v float64, limit bool) string {
-	num := fmtNum
+func (e *Engine) quantityWithUnit(r entry.Result, v float64, limit bool) string {
+	num := e.num
 	if limit {
-		num = fmtLimit
+		num = func(v float64) string { return e.decimal(fmtLimit(v)) }
 	}
 	switch {
 	case inPercent(r.Quantity):
 		return num(100*v) + " %"
 	case r.Quantity == calib.QContrastRatio:
-		return num(v) + " to 1"
+		return e.t("%s to 1", num(v))
 	case r.Quantity == calib.QKermaScaling:
-		return num(v) + " times the reference field's"
+		return e.t("%s times the reference field's", num(v))
 	case r.Unit == calib.UnitConversion:
-		return num(v) + " cd/m² per µGy/s"
+		return e.t("%s cd/m² per µGy/s", num(v))
 	case r.Unit == calib.UnitConversionLegacy:
-		return num(v) + " cd/m² per mR/s"
+		return e.t("%s cd/m² per mR/s", num(v))
 	case r.Unit == "" || r.Unit == calib.UnitRatio:
 		return num(v)
 	}
@@ -89,54 +94,52 @@ func fmtLimit(v float64) string {
 
 // spokenResult: "Conversion factor, 32cm field: 152 cd/m² per µGy/s, last
 // time 168, 90 % of baseline."
-func spokenResult(r entry.Result, meter string) string {
-	var b strings.Builder
-	b.WriteString(resultName(r, meter) + ": " + quantityWithUnit(r, r.Value, false))
+func (e *Engine) spokenResult(r entry.Result, meter string) string {
+	text := e.t("%s: %s", e.resultName(r, meter), e.quantityWithUnit(r, r.Value, false))
 	if r.Baseline != 0 {
-		fmt.Fprintf(&b, ", last time %s, %.0f %% of baseline", fmtNum(r.Baseline), 100*r.BaselineFrac)
+		text += e.t(", last time %s, %s %% of baseline", e.num(r.Baseline), fmt.Sprintf("%.0f", 100*r.BaselineFrac))
 	}
 	if !r.Calibrated {
-		b.WriteString(", not calibrated")
+		text += e.t(", not calibrated")
 	}
-	b.WriteString(".")
-	return b.String()
+	return text + "."
 }
 
 // spokenVerdict: "Conversion factor, 32cm field: pass. Nearest limit: at
 // least 80 % of the baseline, 134 cd/m² per µGy/s." or "Input air kerma
 // rate, 17cm field: fail, above the action level maximum of 2 µGy/s."
-func spokenVerdict(r entry.Result, meter string, v calib.Judgement) string {
-	name := resultName(r, meter)
+func (e *Engine) spokenVerdict(r entry.Result, meter string, v calib.Judgement) string {
+	name := e.resultName(r, meter)
 	switch v.Outcome {
 	case calib.Pass:
-		text := fmt.Sprintf("%s: pass. Nearest limit: %s.", name, limitWords(r, v, false))
+		text := e.t("%s: pass. Nearest limit: %s.", name, e.limitWords(r, v, false))
 		if v.Marginal {
-			text += " Marginal: that limit lies within the uncertainty."
+			text += " " + e.t("Marginal: that limit lies within the uncertainty.")
 		}
 		return text
 	case calib.Fail:
-		text := fmt.Sprintf("%s: fail, %s.", name, limitWords(r, v, true))
+		text := e.t("%s: fail, %s.", name, e.limitWords(r, v, true))
 		if v.Marginal {
-			text += " Marginal: that limit lies within the uncertainty."
+			text += " " + e.t("Marginal: that limit lies within the uncertainty.")
 		}
 		return text
 	}
 	if v.Outcome == calib.NotMeasurable {
-		return name + ": not measurable, " + v.DecidedBy + "."
+		return e.t("%s: not measurable, %s.", name, e.text(v.DecidedBy))
 	}
 	if v.DecidedBy == "no limit set" {
-		return name + ": no limit set, no verdict."
+		return e.t("%s: no limit set, no verdict.", name)
 	}
-	return name + ": no verdict, the result is not calibrated."
+	return e.t("%s: no verdict, the result is not calibrated.", name)
 }
 
 // limitWords says the limit that decided, with its value in the result's
 // unit: "the specification minimum of 100 cd/m² per µGy/s", "at least
 // 80 % of the baseline, 134 cd/m² per µGy/s"; failed, it says which side
 // the value is on: "below the specification minimum of 100 ...".
-func limitWords(r entry.Result, v calib.Judgement, failed bool) string {
+func (e *Engine) limitWords(r entry.Result, v calib.Judgement, failed bool) string {
 	l := v.Decided
-	at := quantityWithUnit(r, v.DecidedAt, l.Kind != calib.KindBaseline)
+	at := e.quantityWithUnit(r, v.DecidedAt, l.Kind != calib.KindBaseline)
 	if l.Kind == calib.KindBaseline {
 		side := "at least"
 		if l.Bound == calib.AtMost {
@@ -148,18 +151,21 @@ func limitWords(r entry.Result, v calib.Judgement, failed bool) string {
 				side = "above"
 			}
 		}
-		return fmt.Sprintf("%s %.0f %% of the baseline, %s", side, 100*l.Value, at)
+		pct := fmt.Sprintf("%.0f", 100*l.Value)
+		return e.t(side+" %s %% of the baseline, %s", pct, at)
 	}
 	side := "minimum"
 	if l.Bound == calib.AtMost {
 		side = "maximum"
 	}
-	text := fmt.Sprintf("the %s %s of %s", l.Kind, side, at)
+	// One format a kind, side and outcome, so that each language words
+	// them as a whole ("the specification minimum of %s").
+	format := fmt.Sprintf("the %s %s of %%s", l.Kind, side)
 	if failed {
+		format = "below " + format
 		if l.Bound == calib.AtMost {
-			return "above " + text
+			format = "above " + fmt.Sprintf("the %s %s of %%s", l.Kind, side)
 		}
-		return "below " + text
 	}
-	return text
+	return e.t(format, at)
 }

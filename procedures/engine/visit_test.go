@@ -210,20 +210,20 @@ func TestSpokenResultsAndVerdicts(t *testing.T) {
 		res := calib.Result{Value: tc.r.Value, ExpUnc: tc.r.ExpUnc, Unit: tc.r.Unit, Calibrated: true}
 		v := calib.Judge(res, tc.r.Baseline, tc.limits)
 		if tc.result != "" {
-			if got := spokenResult(tc.r, ""); got != tc.result {
+			if got := (&Engine{}).spokenResult(tc.r, ""); got != tc.result {
 				t.Errorf("result\n got %q\nwant %q", got, tc.result)
 			}
 		}
 		if tc.ear != "" {
-			if got := speech.ForEar(spokenResult(tc.r, "")); got != tc.ear {
+			if got := speech.ForEar((&Engine{}).spokenResult(tc.r, "")); got != tc.ear {
 				t.Errorf("result by ear\n got %q\nwant %q", got, tc.ear)
 			}
 		}
-		if got := spokenVerdict(tc.r, "", v); got != tc.verdict {
+		if got := (&Engine{}).spokenVerdict(tc.r, "", v); got != tc.verdict {
 			t.Errorf("verdict\n got %q\nwant %q", got, tc.verdict)
 		}
 		if tc.vEar != "" {
-			if got := speech.ForEar(spokenVerdict(tc.r, "", v)); got != tc.vEar {
+			if got := speech.ForEar((&Engine{}).spokenVerdict(tc.r, "", v)); got != tc.vEar {
 				t.Errorf("verdict by ear\n got %q\nwant %q", got, tc.vEar)
 			}
 		}

@@ -62,6 +62,9 @@ type Session struct {
 	XRay *XRaySystem `json:"xray_system,omitempty"`
 	// Geometry is where the chamber sat, as the bench file describes it.
 	Geometry *Geometry `json:"geometry,omitempty"`
+	// Language is the code of the language the board spoke and the
+	// report is written in (the bench file's language; empty: English).
+	Language string `json:"language,omitempty"`
 }
 
 // XRaySystem identifies the fluoroscopy system the intensifier is part of.

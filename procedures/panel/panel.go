@@ -76,6 +76,9 @@ type Prompt struct {
 	Part, Parts int
 	PartTitle   string
 	Line, Lines int
+	// LineWords is the checklist line's number as the engineer's language
+	// says it ("Zeile 2 von 4."), filled by the engine; empty: English.
+	LineWords string
 }
 
 // Spoken is what a speaking panel says for the prompt: its words, after
@@ -83,6 +86,9 @@ type Prompt struct {
 // on."), so a list heard line by line says where it stands.
 func (p Prompt) Spoken() string {
 	if p.Lines > 1 && p.Line > 0 {
+		if p.LineWords != "" {
+			return p.LineWords + " " + p.Text
+		}
 		return fmt.Sprintf("Line %d of %d. %s", p.Line, p.Lines, p.Text)
 	}
 	return p.Text

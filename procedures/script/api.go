@@ -70,4 +70,8 @@ type Env struct {
 	// HandsFree: the bench's panel is a foot switch, which cannot enter a
 	// number, so every value asked needs a default (with Values known).
 	HandsFree bool
+	// Texts is the bench's language; nil: English, the source, in which
+	// every text is its own. Given, Check refuses a text with no
+	// translation, naming the file, line and text.
+	Texts Translator
 }

@@ -15,8 +15,10 @@ import (
 // Check returns every problem of p in the context env: step ids,
 // references, units of limits, the safety rules (no beam before a
 // pre-exposure safety checklist; the beam-on budget; an expected range for
-// every exposure), includes, and, when env.Quantities is given, that a
-// configured meter reports each quantity measured. It returns nil for a
+// every exposure), includes, when env.Quantities is given, that a
+// configured meter reports each quantity measured, and, when env.Texts is
+// given, that every text said or shown has a translation into the bench's
+// language (MissingTexts). It returns nil for a
 // valid procedure. Problems of form were already returned by Parse.
 func Check(p *Procedure, env Env) Problems {
 	if p == nil {
@@ -24,7 +26,11 @@ func Check(p *Procedure, env Env) Problems {
 	}
 	x := newExpander(env, false)
 	x.run(p)
-	return x.problems()
+	ps := x.problems()
+	if env.Texts != nil {
+		ps = append(ps, MissingTexts(p, env.Texts)...)
+	}
+	return ps
 }
 
 // CheckFile loads the script at path and checks it; it returns every
