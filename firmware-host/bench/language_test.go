@@ -8,7 +8,6 @@ import (
 	"testing"
 
 	"kermalux/drivers/filepos"
-	"kermalux/procedures/script"
 )
 
 // The language key picks the catalog the engine, the checker and the
@@ -44,8 +43,8 @@ func TestBenchLanguage(t *testing.T) {
 	if got := b.Messages().Text("Release the beam."); got != "Strahlung beenden." {
 		t.Errorf("built-in text: %q", got)
 	}
-	if _, ok := b.Env().Texts.(script.Translator); !ok {
-		t.Errorf("the checker is not given the language")
+	if tr := b.Env().Texts; tr == nil || tr.Code() != "de" {
+		t.Errorf("the checker is not given the language: %v", tr)
 	}
 	for _, c := range []struct {
 		name, extra string
