@@ -528,6 +528,14 @@ func (t *Tx) Apply(ctx context.Context, seg *wire.Segment, opts ApplyOptions) (A
 	)
 	lock := ""
 	if s.dialect == postgres {
+		// Two pushes of the same session at once (two copies of a journal,
+		// a retry racing its own first attempt) take turns here: the second
+		// waits for the first to commit, then sees what it stored, instead
+		// of both inserting the new session and one failing on its key,
+		// which would abort the whole transaction. SQLite has one writer.
+		if err := t.exec(ctx, `SELECT pg_advisory_xact_lock(hashtextextended(?, 7043117))`, seg.Session); err != nil {
+			return Applied{}, fmt.Errorf("store %s: %s: lock the session: %w", s.name, what, err)
+		}
 		lock = " FOR UPDATE"
 	}
 	sel, err := t.stmt(ctx, `SELECT board, high, head, ended, serial, started_ns FROM sessions WHERE id = ?`+lock)

@@ -32,14 +32,7 @@ var bigJournal struct {
 // 100,000 readings, appended 1,000 to a transaction.
 func readingsJournal(b *testing.B) *journal.Journal {
 	ctx := context.Background()
-	open := func(dir string) *journal.Journal {
-		j, err := journal.Open(filepath.Join(dir, "journal.db"), journal.Options{KeyDir: filepath.Join(dir, "key"),
-			Clock: clock.NewManual(time.Date(2026, 5, 6, 8, 0, 0, 0, time.UTC))})
-		if err != nil {
-			b.Fatal(err)
-		}
-		return j
-	}
+	open := func(dir string) *journal.Journal { return openBenchJournal(b, dir) }
 	if bigJournal.dir != "" {
 		return open(bigJournal.dir)
 	}
@@ -67,6 +60,16 @@ func readingsJournal(b *testing.B) *journal.Journal {
 		bigJournal.bytes += int64(len(r.Canonical()) + len(r.Hash) + len(r.Sig))
 	}
 	bigJournal.dir, bigJournal.n = dir, int64(len(recs))
+	return j
+}
+
+// openBenchJournal opens the benchmark journal in dir.
+func openBenchJournal(b *testing.B, dir string) *journal.Journal {
+	j, err := journal.Open(filepath.Join(dir, "journal.db"), journal.Options{KeyDir: filepath.Join(dir, "key"),
+		Clock: clock.NewManual(time.Date(2026, 5, 6, 8, 0, 0, 0, time.UTC))})
+	if err != nil {
+		b.Fatal(err)
+	}
 	return j
 }
 
