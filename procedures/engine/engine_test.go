@@ -216,7 +216,7 @@ func TestNoBeamBeforeChecklist(t *testing.T) {
 // not used, with an event), the step is asked again with three beeps.
 func TestBeamDropRetaken(t *testing.T) {
 	r := newRig(cfSteps())
-	r.phys.drops = []time.Duration{5800 * time.Millisecond} // while sampling
+	r.phys.drops = []time.Duration{5400 * time.Millisecond} // while sampling
 	sum, err := r.run(context.Background())
 	if err != nil {
 		t.Fatal(err)

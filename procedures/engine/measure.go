@@ -74,13 +74,18 @@ type attempt struct {
 	exposed  time.Duration // the exposure's beam-on time, once off
 	allowed  time.Duration // beam-on this attempt may use (what is left of the position's limit)
 	settled  time.Duration // -1 until settled
-	series   map[string][]tv
-	hold     []held
-	flags    []string
-	calib    bool
-	bL, bK   float64
-	modes    map[string]float64
-	above    int // consecutive dosimeter readings above the kerma ceiling
+	// candidate is when the signal first looked settled (-1: not yet);
+	// readings from then on are held, and become the samples if a second
+	// look confirms it (settled = candidate), so the confirmation costs
+	// no beam time of its own.
+	candidate time.Duration
+	series    map[string][]tv
+	hold      []held
+	flags     []string
+	calib     bool
+	bL, bK    float64
+	modes     map[string]float64
+	above     int // consecutive dosimeter readings above the kerma ceiling
 }
 
 func roleName(role string) string {
@@ -205,7 +210,7 @@ func (e *Engine) notMeasurable(ctx context.Context, idx int, s Step, pi int, pos
 func (e *Engine) newAttempt(idx int, s Step, pi int, pos Position, npos int) *attempt {
 	m := s.Measure
 	a := &attempt{idx: idx, step: s, spec: m, posIdx: pi, pos: pos, inStep: map[string]bool{},
-		errs: map[string]int{}, settled: -1, series: map[string][]tv{}, calib: true, modes: e.cfg.FieldModes}
+		errs: map[string]int{}, settled: -1, candidate: -1, series: map[string][]tv{}, calib: true, modes: e.cfg.FieldModes}
 	for _, r := range m.Meters {
 		a.inStep[r] = true
 	}
@@ -305,8 +310,7 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (posStat, error) {
 	// of the position's beam-on limit.
 	var stat posStat
 	var short string
-	lastCheck := -24 * time.Hour   // judged at the first reading
-	candidate := time.Duration(-1) // when the signal first looked settled
+	lastCheck := -24 * time.Hour // judged at the first reading
 	alarmed := false
 	for done := false; !done; {
 		if err := e.cycle(ctx, a); err != nil {
@@ -341,18 +345,23 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (posStat, error) {
 				// Settled once, then confirmed by a second look after a
 				// quarter of the time it took (at least half a second), so a signal
 				// that was flat at a turning point (the lagging peak of an
-				// overshoot) shows its decay.
+				// overshoot) shows its decay. The readings in between are
+				// held: confirmed, they are the first samples; not
+				// confirmed, they are journalled as not used.
 				switch {
-				case candidate < 0:
+				case a.candidate < 0:
 					if e.isSettled(a) {
-						candidate = a.lastSig
+						a.candidate = a.lastSig
 					}
-				case a.lastSig-candidate >= max(500*time.Millisecond, (candidate-a.onAt)/4):
+				case a.lastSig-a.candidate >= max(500*time.Millisecond, (a.candidate-a.onAt)/4):
 					if e.isSettled(a) {
-						a.settled = a.lastSig
+						a.settled = a.candidate
 						e.enterPhase(ctx, a, phSampling, "")
 					} else {
-						candidate = -1
+						a.candidate = -1
+						if err := e.flush(ctx, a, false); err != nil {
+							return posStat{}, err
+						}
 					}
 				}
 				if a.settled < 0 && onFor >= l.SettleMax {
@@ -372,7 +381,7 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (posStat, error) {
 						return posStat{}, err
 					}
 					_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: a.idx, Name: evDiscarded, Detail: fmt.Sprintf("%d readings not used: %s drifting after settling", n, who), BeamOn: e.st.beamOn.Seconds()})
-					a.settled = -1
+					a.settled, a.candidate = -1, -1
 					e.enterPhase(ctx, a, phSettling, who+" drifting")
 				}
 			}
@@ -1012,7 +1021,7 @@ func (e *Engine) observe(ctx context.Context, a *attempt, role string, r drivers
 		// it, and the range floor bounds the level).
 		a.series[role] = append(a.series[role], tv{r.Mono, 0})
 	}
-	sampling := live && a.inStep[role] && (a.settled >= 0 || !a.spec.Beam)
+	sampling := live && a.inStep[role] && (a.settled >= 0 || a.candidate >= 0 || !a.spec.Beam)
 	if sampling && (usable || !a.spec.Beam) {
 		a.hold = append(a.hold, held{role, r, c})
 		return nil
