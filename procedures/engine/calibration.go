@@ -295,10 +295,8 @@ func (st *state) putDark(p posStat) {
 			}
 		} else if r, ok := p.Raw[role]; ok && r.N > 0 {
 			d = DarkLevel{Mean: r.Mean, SD: r.SD, N: r.N, Resolution: r.Resolution}
-		} else if role == Photometer && p.HasL {
-			d = DarkLevel{Mean: p.L, N: p.NL, Note: "dark recorded as corrected (older journal)"}
-		} else if role == Dosimeter && p.HasK {
-			d = DarkLevel{Mean: p.K, N: p.NK, Note: "dark recorded as corrected (older journal)"}
+		} else if m, ok := p.meter(role); ok {
+			d = DarkLevel{Mean: m.Mean, N: m.N, Note: "dark recorded as corrected (older journal)"}
 		} else {
 			continue
 		}

@@ -92,13 +92,15 @@ func (cc CalibCorrector) Correct(r drivers.Reading, c Conditions) Corrected {
 // measured turns the accepted samples of one position into calib's input.
 func measured(p posStat, lum bool) calib.Measured {
 	if lum {
+		m := p.Meters[Photometer]
 		return calib.Measured{Name: "output luminance", Unit: units.Canonical(units.Luminance),
-			Samples: calib.Summary{N: p.NL, Mean: p.L, SD: p.LU * math.Sqrt(float64(p.NL))},
-			TypeB:   p.parts(Photometer, p.BL, "photometer calibration and resolution"), Calibrated: p.Calib}
+			Samples: calib.Summary{N: m.N, Mean: m.Mean, SD: m.U * math.Sqrt(float64(m.N))},
+			TypeB:   p.parts(Photometer, m.B, "photometer calibration and resolution"), Calibrated: p.Calib}
 	}
+	m := p.Meters[Dosimeter]
 	return calib.Measured{Name: "input air kerma rate", Unit: units.Canonical(units.AirKermaRate),
-		Samples: calib.Summary{N: p.NK, Mean: p.K, SD: p.KU * math.Sqrt(float64(p.NK))},
-		TypeB:   p.parts(Dosimeter, p.BK, "dosimeter calibration, resolution and air density (k_TP)"), Calibrated: p.Calib}
+		Samples: calib.Summary{N: m.N, Mean: m.Mean, SD: m.U * math.Sqrt(float64(m.N))},
+		TypeB:   p.parts(Dosimeter, m.B, "dosimeter calibration, resolution and air density (k_TP)"), Calibrated: p.Calib}
 }
 
 // settledMeasure is measured for a beam reading, with the residual of
@@ -251,7 +253,7 @@ func (e *Engine) compute(ctx context.Context, idx int, s Step) error {
 		var rp []posStat
 		if rp, err = e.input(s, role); err == nil {
 			p := rp[0]
-			lum := p.HasL
+			_, lum := p.meter(Photometer)
 			switch role {
 			case "air_kerma_rate":
 				lum = false

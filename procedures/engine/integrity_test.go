@@ -91,8 +91,8 @@ func TestIntegrityAtTheEdges(t *testing.T) {
 				}
 				p := r.jrPos(t, sum.Session, "disk")
 				want := r.phys.g*r.phys.kerma + r.phys.darkL
-				if math.Abs(p.L-want) > 0.03*want {
-					t.Errorf("L = %.4f cd/m², true %.4f", p.L, want)
+				if l := p.Meters[Photometer].Mean; math.Abs(l-want) > 0.03*want {
+					t.Errorf("L = %.4f cd/m², true %.4f", l, want)
 				}
 			},
 		},
@@ -248,8 +248,8 @@ func TestIntegrityAtTheEdges(t *testing.T) {
 					return
 				}
 				p := r.jrPos(t, sum.Session, "cf@32cm")
-				if p.NK < minSamples {
-					t.Errorf("G = %.2f from %d dosimeter readings (and %d of the photometer)", res.Value, p.NK, p.NL)
+				if nk := p.Meters[Dosimeter].N; nk < minSamples {
+					t.Errorf("G = %.2f from %d dosimeter readings (and %d of the photometer)", res.Value, nk, p.Meters[Photometer].N)
 				}
 				if math.Abs(res.Value-r.phys.g) > res.ExpUnc {
 					t.Errorf("G = %.2f ± %.2f, true %.0f", res.Value, res.ExpUnc, r.phys.g)

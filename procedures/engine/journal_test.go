@@ -3,6 +3,7 @@ package engine
 import (
 	"context"
 	"database/sql"
+	"encoding/json"
 	"errors"
 	"path/filepath"
 	"strings"
@@ -180,7 +181,7 @@ func TestResumeRefusesTamperedJournal(t *testing.T) {
 	for _, tc := range []struct {
 		name, sql, want string
 	}{
-		{"dark edited", `UPDATE records SET payload = replace(payload, '\"l\":', '\"l\":1000') WHERE kind = 'event' AND payload LIKE '%measurement_done%'`, "hash mismatch"},
+		{"dark edited", `UPDATE records SET payload = replace(payload, '\"mean\":', '\"mean\":1000') WHERE kind = 'event' AND payload LIKE '%measurement_done%'`, "hash mismatch"},
 		{"record deleted", `DELETE FROM records WHERE seq = 5`, "missing"},
 		{"head deleted", `DELETE FROM heads`, "no signed session head"},
 	} {
@@ -321,5 +322,48 @@ func TestSettingWarningsSpokenAndJournalled(t *testing.T) {
 	}
 	if ev := events(r.jr, sum.Session, evSettingWarning); len(ev) != 1 || ev[0].Detail != r.cfg.Warnings[0] {
 		t.Errorf("events %+v", ev)
+	}
+}
+
+// A journal written before the statistics were kept by role (fixed
+// luminance and kerma fields) resumes with the same statistics: a
+// position of a real run, written back in the older shape, reads into
+// the same Meters.
+func TestOlderPositionShapeMigrates(t *testing.T) {
+	r := newRig(cfSteps())
+	sum, err := r.run(context.Background())
+	if err != nil {
+		t.Fatal(err)
+	}
+	p := r.jrPos(t, sum.Session, "cf@32cm")
+	l, k := p.Meters[Photometer], p.Meters[Dosimeter]
+	if l.N == 0 || k.N == 0 {
+		t.Fatalf("position without both meters: %+v", p.Meters)
+	}
+	// The older release's field names (state.go before Meters).
+	old := map[string]any{"step": p.Step, "index": p.Index, "calibrated": p.Calib,
+		"has_l": true, "l": l.Mean, "l_u": l.U, "l_b": l.B, "n_l": l.N,
+		"has_k": true, "k": k.Mean, "k_u": k.U, "k_b": k.B, "n_k": k.N,
+		"has_g": p.HasG, "g": p.G, "g_u": p.GU, "n_g": p.NG}
+	data, err := json.Marshal(old)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var q posStat
+	if err := json.Unmarshal(data, &q); err != nil {
+		t.Fatal(err)
+	}
+	q.migrate()
+	if q.Meters[Photometer] != l || q.Meters[Dosimeter] != k {
+		t.Errorf("migrated %+v, want photometer %+v and dosimeter %+v", q.Meters, l, k)
+	}
+	if q.count() != p.count() {
+		t.Errorf("count %d after migration, %d before", q.count(), p.count())
+	}
+	// A position of the new shape is left as it is, and writes no old field.
+	q.migrate()
+	out, _ := json.Marshal(q)
+	if strings.Contains(string(out), `"has_l"`) || strings.Contains(string(out), `"n_k"`) {
+		t.Errorf("old fields written again: %s", out)
 	}
 }

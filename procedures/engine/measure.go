@@ -83,7 +83,7 @@ type attempt struct {
 	hold      []held
 	flags     []string
 	calib     bool
-	bL, bK    float64
+	typeB     map[string]float64 // relative type B of one reading, by role (the latest correction's)
 	modes     map[string]float64
 	above     int // consecutive dosimeter readings above the kerma ceiling
 }
@@ -210,7 +210,7 @@ func (e *Engine) notMeasurable(ctx context.Context, idx int, s Step, pi int, pos
 func (e *Engine) newAttempt(idx int, s Step, pi int, pos Position, npos int) *attempt {
 	m := s.Measure
 	a := &attempt{idx: idx, step: s, spec: m, posIdx: pi, pos: pos, inStep: map[string]bool{},
-		errs: map[string]int{}, settled: -1, candidate: -1, series: map[string][]tv{}, calib: true, modes: e.cfg.FieldModes}
+		errs: map[string]int{}, typeB: map[string]float64{}, settled: -1, candidate: -1, series: map[string][]tv{}, calib: true, modes: e.cfg.FieldModes}
 	for _, r := range m.Meters {
 		a.inStep[r] = true
 	}
@@ -507,31 +507,30 @@ func (e *Engine) precise(a *attempt) (posStat, bool) {
 	l := e.cfg.Limits
 	target := e.target(a)
 	p := posStat{Step: a.step.ID, Index: a.posIdx, Label: a.label, R: a.pos.R, Angle: a.pos.Angle, Mode: a.step.FieldMode, Calib: a.calib, Flags: slices.Clone(a.flags)}
-	lum := after(a.series[Photometer], a.settled)
-	k := after(a.series[Dosimeter], a.settled)
-	var uA, neff float64
-	if a.inStep[Photometer] && len(lum) > 0 {
-		v := values(lum)
-		p.HasL = true
-		p.L, _ = meanSD(v)
-		rel, _ := relTypeA(v)
-		p.LU = rel * math.Abs(p.L)
-		p.NL = len(v)
-		p.BL = a.bL
+	// Each meter of the step, by role: its mean and the type A of the
+	// mean (JCGM 100:2008 4.2.3, autocorrelated readings allowed for).
+	p.Meters = map[string]meterStat{}
+	var rels, dofs []float64
+	for _, role := range a.spec.Meters {
+		xs := after(a.series[role], a.settled)
+		if len(xs) == 0 {
+			continue
+		}
+		v := values(xs)
+		mean, _ := meanSD(v)
+		rel, n := relTypeA(v)
+		p.Meters[role] = meterStat{Mean: mean, U: rel * math.Abs(mean), B: a.typeB[role], N: len(v)}
+		if len(v) < 2 {
+			return p, false
+		}
+		rels, dofs = append(rels, rel), append(dofs, n-1)
 	}
-	if a.inStep[Dosimeter] && len(k) > 0 {
-		v := values(k)
-		p.HasK = true
-		p.K, _ = meanSD(v)
-		rel, _ := relTypeA(v)
-		p.KU = rel * math.Abs(p.K)
-		p.NK = len(v)
-		p.BK = a.bK
+	if len(rels) == 0 {
+		return p, false
 	}
-	switch {
-	case p.HasL && p.HasK:
-		g := pairs(lum, k)
-		if len(g) < 2 || p.NK < 2 {
+	if p.ratio() {
+		g := pairs(after(a.series[Photometer], a.settled), after(a.series[Dosimeter], a.settled))
+		if len(g) < 2 {
 			return p, false
 		}
 		p.HasG = true
@@ -539,21 +538,17 @@ func (e *Engine) precise(a *attempt) (posStat, bool) {
 		ug, _ := relTypeA(g)
 		p.GU = ug * math.Abs(p.G)
 		p.NG = len(g)
-		// The figure is the ratio of the two means (calib.ConversionFactor),
-		// so its repeatability is that of both: relative variances add
-		// (JCGM 100:2008 5.1.6), degrees of freedom by Welch–Satterthwaite
-		// (G.2b).
-		ul, nl := relTypeA(values(lum))
-		uk, nk := relTypeA(values(k))
-		uA = math.Hypot(ul, uk)
-		neff = 1 + calib.WelchSatterthwaite([]float64{ul, uk}, []float64{nl - 1, nk - 1})
-	case p.HasL:
-		uA, neff = relTypeA(values(lum))
-	case p.HasK:
-		uA, neff = relTypeA(values(k))
-	default:
-		return p, false
 	}
+	// The figure is a product or ratio of the meters' means (for two,
+	// calib.ConversionFactor), so its repeatability is that of each:
+	// relative variances add (JCGM 100:2008 5.1.6), degrees of freedom by
+	// Welch–Satterthwaite (G.2b); for one meter, its own.
+	var ss float64
+	for _, r := range rels {
+		ss += r * r
+	}
+	uA := math.Sqrt(ss)
+	neff := 1 + calib.WelchSatterthwaite(rels, dofs)
 	if p.count() < max(l.MinPairs, minSamples) || math.IsInf(uA, 1) {
 		return p, false
 	}
@@ -568,13 +563,24 @@ func (e *Engine) precise(a *attempt) (posStat, bool) {
 // one or two of the dosimeter (each is interpolated at the other's times,
 // which makes many pairs of few dosimeter readings); else the one meter's.
 func (p posStat) count() int {
-	switch {
-	case p.HasL && p.HasK:
-		return min(p.NL, p.NK, p.NG)
-	case p.HasL:
-		return p.NL
+	n := -1
+	for _, m := range p.Meters {
+		if n < 0 || m.N < n {
+			n = m.N
+		}
 	}
-	return p.NK
+	if p.ratio() {
+		n = min(n, p.NG)
+	}
+	return max(n, 0)
+}
+
+// ratio reports whether the position's figure is the ratio of the
+// photometer's mean to the dosimeter's (both were read in the step).
+func (p posStat) ratio() bool {
+	_, l := p.Meters[Photometer]
+	_, k := p.Meters[Dosimeter]
+	return l && k
 }
 
 // darkAttempt takes a beam-off reading for a fixed time (dark level,
@@ -872,12 +878,7 @@ func (e *Engine) correct(a *attempt, role string, r drivers.Reading) Corrected {
 				a.flags = append(a.flags, f)
 			}
 		}
-		switch role {
-		case Photometer:
-			a.bL = c.RelStdUncB
-		case Dosimeter:
-			a.bK = c.RelStdUncB
-		}
+		a.typeB[role] = c.RelStdUncB
 	}
 	return c
 }

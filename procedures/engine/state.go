@@ -23,21 +23,15 @@ type posStat struct {
 	Label string  `json:"label,omitempty"`
 	R     float64 `json:"r,omitempty"`
 	Angle float64 `json:"angle,omitempty"`
-	HasL  bool    `json:"has_l,omitempty"`
-	L     float64 `json:"l,omitempty"`   // mean luminance, cd/m²
-	LU    float64 `json:"l_u,omitempty"` // standard uncertainty of the mean (type A), cd/m²
-	BL    float64 `json:"l_b,omitempty"` // relative standard uncertainty, type B
-	NL    int     `json:"n_l,omitempty"`
-	HasK  bool    `json:"has_k,omitempty"`
-	K     float64 `json:"k,omitempty"`   // mean kerma rate, µGy/s
-	KU    float64 `json:"k_u,omitempty"` // type A of the mean
-	BK    float64 `json:"k_b,omitempty"`
-	NK    int     `json:"n_k,omitempty"`
-	HasG  bool    `json:"has_g,omitempty"`
-	G     float64 `json:"g,omitempty"`   // mean of time-aligned L/K pairs
-	GU    float64 `json:"g_u,omitempty"` // type A of that mean (autocorrelation allowed for)
-	NG    int     `json:"n_g,omitempty"`
-	Drift float64 `json:"drift,omitempty"` // relative change over a fixed-duration reading (the largest of Drifts)
+	// Meters are the statistics of each meter the step reads, by role
+	// (Photometer, Dosimeter, or any other the bench names): a third
+	// sensor joins without a field of its own.
+	Meters map[string]meterStat `json:"meters,omitempty"`
+	HasG   bool                 `json:"has_g,omitempty"`
+	G      float64              `json:"g,omitempty"`   // mean of time-aligned L/K pairs
+	GU     float64              `json:"g_u,omitempty"` // type A of that mean (autocorrelation allowed for)
+	NG     int                  `json:"n_g,omitempty"`
+	Drift  float64              `json:"drift,omitempty"` // relative change over a fixed-duration reading (the largest of Drifts)
 	// Drifts is the relative change of each meter (by role) over a
 	// fixed-duration reading of several meters.
 	Drifts  map[string]float64 `json:"drifts,omitempty"`
@@ -56,6 +50,58 @@ type posStat struct {
 	// then not measurable.
 	Unmeasurable string `json:"not_measurable,omitempty"`
 	calibStat           // raw readings, type B parts, dark used (calibration.go)
+	// lkFields are how journals before Meters recorded the two meters;
+	// read only, by migrate.
+	lkFields
+}
+
+// meterStat is one meter's statistics at a position: the mean of its
+// accepted readings (corrected, in its canonical unit), the type A
+// standard uncertainty of that mean (JCGM 100:2008 4.2.3), the relative
+// type B standard uncertainty of one reading, and the count.
+type meterStat struct {
+	Mean float64 `json:"mean"`
+	U    float64 `json:"u"`
+	B    float64 `json:"b,omitempty"`
+	N    int     `json:"n"`
+}
+
+// lkFields are the fixed luminance and kerma fields of journals written
+// before the statistics were kept by role.
+type lkFields struct {
+	HasL bool    `json:"has_l,omitempty"`
+	L    float64 `json:"l,omitempty"`
+	LU   float64 `json:"l_u,omitempty"`
+	BL   float64 `json:"l_b,omitempty"`
+	NL   int     `json:"n_l,omitempty"`
+	HasK bool    `json:"has_k,omitempty"`
+	K    float64 `json:"k,omitempty"`
+	KU   float64 `json:"k_u,omitempty"`
+	BK   float64 `json:"k_b,omitempty"`
+	NK   int     `json:"n_k,omitempty"`
+}
+
+// migrate moves an older journal's luminance and kerma fields into
+// Meters, so that everything after reads one shape.
+func (p *posStat) migrate() {
+	old := p.lkFields
+	p.lkFields = lkFields{}
+	if p.Meters != nil || (!old.HasL && !old.HasK) {
+		return
+	}
+	p.Meters = map[string]meterStat{}
+	if old.HasL {
+		p.Meters[Photometer] = meterStat{Mean: old.L, U: old.LU, B: old.BL, N: old.NL}
+	}
+	if old.HasK {
+		p.Meters[Dosimeter] = meterStat{Mean: old.K, U: old.KU, B: old.BK, N: old.NK}
+	}
+}
+
+// meter is role's statistics, if the position has them.
+func (p posStat) meter(role string) (meterStat, bool) {
+	m, ok := p.Meters[role]
+	return m, ok
 }
 
 // state is what the engine knows; it is rebuilt from the journal on resume.
@@ -233,6 +279,7 @@ func (e *Engine) rebuild(ctx context.Context, id string) (*state, resumeInfo, er
 				if err := json.Unmarshal([]byte(ev.Detail), &p); err != nil {
 					return nil, info, fmt.Errorf("resume session %s: record %d: measurement not readable: %w", id, env.Seq, err)
 				}
+				p.migrate()
 				st.putPos(p)
 			}
 		case entry.KindResult:
@@ -306,7 +353,7 @@ func (p *posStat) finite() {
 			p.Settle[k] = 0
 		}
 	}
-	for _, v := range []*float64{&p.L, &p.LU, &p.K, &p.KU, &p.G, &p.GU, &p.Drift, &p.BL, &p.BK} {
+	bad := func(v *float64) {
 		if math.IsInf(*v, 0) || math.IsNaN(*v) {
 			*v = 0
 			const flag = "no type A uncertainty: too few readings, or a mean of zero (a meter below its range)"
@@ -314,5 +361,14 @@ func (p *posStat) finite() {
 				p.Flags = append(p.Flags, flag)
 			}
 		}
+	}
+	for role, m := range p.Meters {
+		bad(&m.Mean)
+		bad(&m.U)
+		bad(&m.B)
+		p.Meters[role] = m
+	}
+	for _, v := range []*float64{&p.G, &p.GU, &p.Drift} {
+		bad(v)
 	}
 }
