@@ -595,10 +595,43 @@ func (e *Engine) target(a *attempt) float64 {
 	return e.cfg.Limits.Target
 }
 
-// minSamples is the smallest number of readings the stopping rule looks
-// at: four, and at least two reading periods of the slowest meter of the
-// step (so a fast meter's burst does not stop a slow one's mean).
-const minSamples = 4
+// minSamples is the smallest number of readings of each meter the
+// stopping rule looks at, and minSpan the least time they must cover (the
+// readings' span, each standing for one reading interval): with a fixed
+// count alone, four readings of a 50 Hz meter would be 80 ms of signal, a
+// single pulse of a pulsed fluoroscope at 7.5 pulses a second, and a
+// slow meter's four would be seconds. Half a second is several pulses at
+// 7.5 pulses a second and five readings of a 10 Hz meter (common
+// practice, not from a standard).
+const (
+	minSamples = 4
+	minSpan    = 500 * time.Millisecond
+)
+
+// enough reports whether the position's samples may end sampling: at
+// least minPairs (and minSamples) of the count, and each meter's readings
+// covering minSpan.
+func (p posStat) enough(minPairs int) bool {
+	if p.count() < max(minPairs, minSamples) {
+		return false
+	}
+	for _, m := range p.Meters {
+		if m.Span < minSpan.Seconds() {
+			return false
+		}
+	}
+	return true
+}
+
+// covered is the time a meter's readings stand for: their span, with
+// each reading counted for one reading interval.
+func covered(xs []tv) time.Duration {
+	if len(xs) < 2 {
+		return 0
+	}
+	span := xs[len(xs)-1].t - xs[0].t
+	return span * time.Duration(len(xs)) / time.Duration(len(xs)-1)
+}
 
 // isSettled: every meter of the step has risen and its series since, and
 // the ratio of the two meters when the step reads both, is settled

@@ -256,6 +256,31 @@ func TestIntegrityAtTheEdges(t *testing.T) {
 				}
 			},
 		},
+		{
+			name: "fast quiet meters (50 Hz): a mean covers half a second of each",
+			setup: func(r *rig) {
+				// Four readings of a 50 Hz meter are 80 ms: one pulse of
+				// a fluoroscope at 7.5 pulses a second. With quiet meters
+				// and a loose target a count alone stops there.
+				r.dos.period, r.phot.period = 20*time.Millisecond, 20*time.Millisecond
+				r.dos.noise, r.phot.noise = 0.001, 0.001
+				r.cfg.Procedure.Steps[5].Measure.Target = 0.05
+			},
+			check: func(t *testing.T, r *rig, sum Summary, err error) {
+				if err != nil {
+					t.Fatal(err)
+				}
+				p := r.jrPos(t, sum.Session, "cf@32cm")
+				for role, m := range p.Meters {
+					if m.Span < minSpan.Seconds() {
+						t.Errorf("%s: %d readings over %.2f s", role, m.N, m.Span)
+					}
+				}
+				if res := sum.Results[0]; math.Abs(res.Value-r.phys.g) > res.ExpUnc {
+					t.Errorf("G = %.2f ± %.2f, true %.0f", res.Value, res.ExpUnc, r.phys.g)
+				}
+			},
+		},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {

@@ -354,6 +354,7 @@ func TestOlderPositionShapeMigrates(t *testing.T) {
 		t.Fatal(err)
 	}
 	q.migrate()
+	l.Span, k.Span = 0, 0 // the older shape had no span
 	if q.Meters[Photometer] != l || q.Meters[Dosimeter] != k {
 		t.Errorf("migrated %+v, want photometer %+v and dosimeter %+v", q.Meters, l, k)
 	}

@@ -318,7 +318,7 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (posStat, error) {
 				// The five-minute alarm while sampling: what was taken is
 				// kept when it is enough for a result (flagged), rather
 				// than thrown away and taken again with more beam.
-				if st, _ := e.precise(a); st.count() >= max(e.cfg.Limits.MinPairs, minSamples) {
+				if st, _ := e.precise(a); st.enough(e.cfg.Limits.MinPairs) {
 					stat, alarmed = st, true
 					short = "stopped by the five-minute beam-on alarm before the precision target"
 					break
@@ -387,7 +387,7 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (posStat, error) {
 			}
 		}
 		if !done && onFor >= a.allowed {
-			if a.phase == phSampling && stat.count() >= minSamples {
+			if a.phase == phSampling && stat.enough(e.cfg.Limits.MinPairs) {
 				short = "precision target not reached in the maximum beam-on time"
 				break
 			}
@@ -519,7 +519,7 @@ func (e *Engine) precise(a *attempt) (posStat, bool) {
 		v := values(xs)
 		mean, _ := meanSD(v)
 		rel, n := relTypeA(v)
-		p.Meters[role] = meterStat{Mean: mean, U: rel * math.Abs(mean), B: a.typeB[role], N: len(v)}
+		p.Meters[role] = meterStat{Mean: mean, U: rel * math.Abs(mean), B: a.typeB[role], N: len(v), Span: covered(xs).Seconds()}
 		if len(v) < 2 {
 			return p, false
 		}
@@ -549,7 +549,7 @@ func (e *Engine) precise(a *attempt) (posStat, bool) {
 	}
 	uA := math.Sqrt(ss)
 	neff := 1 + calib.WelchSatterthwaite(rels, dofs)
-	if p.count() < max(l.MinPairs, minSamples) || math.IsInf(uA, 1) {
+	if !p.enough(l.MinPairs) || math.IsInf(uA, 1) {
 		return p, false
 	}
 	U, _, _ := expandedRel(uA, neff)

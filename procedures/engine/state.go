@@ -58,12 +58,15 @@ type posStat struct {
 // meterStat is one meter's statistics at a position: the mean of its
 // accepted readings (corrected, in its canonical unit), the type A
 // standard uncertainty of that mean (JCGM 100:2008 4.2.3), the relative
-// type B standard uncertainty of one reading, and the count.
+// type B standard uncertainty of one reading, the count and the time
+// they cover.
 type meterStat struct {
 	Mean float64 `json:"mean"`
 	U    float64 `json:"u"`
 	B    float64 `json:"b,omitempty"`
 	N    int     `json:"n"`
+	// Span is the time the readings cover, seconds (covered).
+	Span float64 `json:"span_s,omitempty"`
 }
 
 // lkFields are the fixed luminance and kerma fields of journals written
