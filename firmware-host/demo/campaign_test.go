@@ -19,7 +19,8 @@ import (
 // simulator's physics (Seeded), over benches far from the shipped ones:
 // slow and overshooting brightness controls, noisy meters, dim light
 // behind the lead disk, over range on each meter, fast beams, a
-// certificate of another meter (the
+// certificate of another meter, a photometer whose range floor is above
+// the dark light (the
 // scenario files under testdata/scenarios/campaign say what each is), and
 // vignetted dark light (ostrelby-bright-dark), three seeds each. The truth
 // is the simulator's own (benchsim.Truth, its beam log).
@@ -37,6 +38,7 @@ func TestAccuracyCampaign(t *testing.T) {
 	type expect struct {
 		notMeasurable []string // quantities that must be not_measurable (at least once)
 		uncalibrated  []string // quantities that must not be calibrated
+		belowFloor    string   // the meter whose dark must be reported as under its range floor
 		timer         float64  // the beam-on timer's allowed relative error over the session
 	}
 	scenarios := []struct {
@@ -52,6 +54,7 @@ func TestAccuracyCampaign(t *testing.T) {
 		{"photometer-over-range", expect{notMeasurable: []string{"conversion_factor", "contrast_ratio"}}},
 		{"dosimeter-over-range", expect{notMeasurable: []string{"input_kerma_rate"}}},
 		{"certificate-of-another", expect{uncalibrated: []string{"conversion_factor", "contrast_ratio", "non_uniformity"}}},
+		{"photometer-floor-above-dark", expect{belowFloor: "photometer"}},
 		{"../ostrelby-bright-dark", expect{}},
 	}
 	seeds := []int64{11, 12, 13}
@@ -97,7 +100,11 @@ func TestAccuracyCampaign(t *testing.T) {
 					lo, hi = math.Min(lo, v), math.Max(hi, v)
 				}
 				nm := map[string]bool{}
+				darkUnder := false
 				for _, r := range sum.Results {
+					if r.Quantity == "dark_level" && strings.HasPrefix(r.Unit, "cd") && r.BelowRangeFloor && r.RangeFloor > 0 {
+						darkUnder = true
+					}
 					if r.Verdict == string(calib.NotMeasurable) {
 						nm[r.Quantity] = true
 						continue
@@ -119,6 +126,9 @@ func TestAccuracyCampaign(t *testing.T) {
 					if d > 2*r.ExpUnc {
 						far = append(far, fmt.Sprintf("%s: %s %s = %.4g ± %.2g, true %.4g", name, r.Quantity, r.FieldMode, r.Value, r.ExpUnc, want))
 					}
+				}
+				if sc.want.belowFloor == "photometer" && !darkUnder {
+					t.Errorf("no photometer dark reported under its range floor: %s", verdicts(sum.Results))
 				}
 				for _, q := range sc.want.notMeasurable {
 					if !nm[q] {
