@@ -2,7 +2,6 @@ package script
 
 import (
 	"flag"
-	"os"
 	"path/filepath"
 	"strings"
 	"testing"
@@ -133,19 +132,7 @@ func TestBadGolden(t *testing.T) {
 			b.WriteString(strings.TrimPrefix(p.String(), badDir+"/") + "\n")
 		}
 	}
-	golden := filepath.Join(badDir, "problems.golden")
-	if *update {
-		if err := os.WriteFile(golden, []byte(b.String()), 0o644); err != nil {
-			t.Fatal(err)
-		}
-	}
-	wantText, err := os.ReadFile(golden)
-	if err != nil {
-		t.Fatalf("%v (run go test -update to create it)", err)
-	}
-	if b.String() != string(wantText) {
-		t.Errorf("checker output differs from %s:\n%s", golden, b.String())
-	}
+	golden(t, filepath.Join(badDir, "problems.golden"), b.String())
 }
 
 // TestMeterEnv checks the meter rules against a configured bench.

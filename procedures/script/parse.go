@@ -315,28 +315,6 @@ func (ps *parse) defaults(f field, d *Defaults) {
 	}
 }
 
-// Fields each step kind may have, besides id and kind.
-var kindFields = map[Kind][]string{
-	KindSay:             {"text"},
-	KindPrepare:         {"text", "setup"},
-	KindChecklist:       {"text", "items"},
-	KindSafetyChecklist: {"text", "items"},
-	KindEnter:           {"text", "name", "unit", "range", "default", "source"},
-	KindMeasure:         {"text", "read", "beam", "beam_quality", "field_mode", "setup", "positions", "precision", "max_beam", "duration", "max_drift", "expect"},
-	KindCompute:         {"text", "figure", "from"},
-	KindJudge:           {"text", "result", "limits"},
-	KindPerFieldMode:    {"modes", "max_modes", "steps"},
-	KindInclude:         {"procedure", "once"},
-}
-
-func kindNames() string {
-	var s []string
-	for _, k := range Kinds {
-		s = append(s, string(k))
-	}
-	return strings.Join(s, ", ")
-}
-
 func (ps *parse) steps(items []ast.Node, nested bool) []Step {
 	var out []Step
 	for _, it := range items {
@@ -364,7 +342,7 @@ func (ps *parse) step(n ast.Node, nested bool) (Step, bool) {
 		return Step{}, false
 	}
 	s.Kind = Kind(ps.text(kf, "kind"))
-	allowed, known := kindFields[s.Kind]
+	k, known := kindOf(s.Kind)
 	if !known {
 		ps.errf(kf.vpos, "unknown step kind %q (expected one of %s)", s.Kind, kindNames())
 		return Step{}, false
@@ -384,13 +362,23 @@ func (ps *parse) step(n ast.Node, nested bool) (Step, bool) {
 		if f.key == "id" || f.key == "kind" {
 			continue
 		}
-		if !contains(allowed, f.key) {
-			ps.errf(f.kpos, "unknown field %q for a %s step (expected %s)", f.key, s.Kind, strings.Join(allowed, ", "))
+		if !contains(k.fields, f.key) {
+			ps.errf(f.kpos, "unknown field %q for a %s step (expected %s)", f.key, s.Kind, strings.Join(k.fields, ", "))
 			continue
 		}
-		ps.stepField(&s, f, nested)
+		ps.stepField(&s, f)
+		if k.parse != nil {
+			k.parse(ps, &s, f)
+		}
 	}
-	ps.stepRequired(&s, byKey)
+	for _, key := range k.need {
+		if _, ok := byKey[key]; !ok {
+			ps.errf(s.Pos, "%s step %q has no %s", s.Kind, s.ID, key)
+		}
+	}
+	if k.finish != nil {
+		k.finish(&s)
+	}
 	return s, true
 }
 
@@ -414,51 +402,9 @@ func contains(list []string, s string) bool {
 	return false
 }
 
-// stepRequired reports missing fields a kind needs.
-func (ps *parse) stepRequired(s *Step, byKey map[string]field) {
-	need := func(keys ...string) {
-		for _, k := range keys {
-			if _, ok := byKey[k]; !ok {
-				ps.errf(s.Pos, "%s step %q has no %s", s.Kind, s.ID, k)
-			}
-		}
-	}
-	switch s.Kind {
-	case KindSay, KindPrepare:
-		need("text")
-	case KindChecklist:
-		need("items")
-	case KindEnter:
-		need("name", "unit", "range")
-	case KindMeasure:
-		need("read", "beam")
-	case KindCompute:
-		need("figure", "from")
-	case KindJudge:
-		need("result", "limits")
-	case KindPerFieldMode:
-		need("modes", "steps")
-	case KindInclude:
-		need("procedure")
-	}
-	if s.Kind == KindSafetyChecklist && s.Items == nil {
-		for _, t := range StandardSafetyItems {
-			s.Items = append(s.Items, Item{Text: t, Pos: s.Pos})
-		}
-	}
-}
-
-// StandardSafetyItems are the lines of a safety_checklist step that lists
-// no items of its own (common practice for fluoroscopy; local rules may
-// ask for more).
-var StandardSafetyItems = []string{
-	"Lead apron and thyroid collar on.",
-	"Nobody else in the room, unless behind a shield.",
-	"Door warning light on.",
-	"You are qualified and authorised to operate this unit.",
-}
-
-func (ps *parse) stepField(s *Step, f field, nested bool) {
+// stepField reads the keys every kind that has them shares: text, setup
+// and items.
+func (ps *parse) stepField(s *Step, f field) {
 	switch f.key {
 	case "text":
 		s.Text = ps.text(f, "text")
@@ -484,28 +430,6 @@ func (ps *parse) stepField(s *Step, f field, nested bool) {
 			s.Items = []Item{}
 		}
 	}
-	switch s.Kind {
-	case KindEnter:
-		ps.enterField(s, f)
-	case KindMeasure:
-		ps.measureField(s, f)
-	case KindCompute:
-		ps.computeField(s, f)
-	case KindJudge:
-		ps.judgeField(s, f)
-	case KindPerFieldMode:
-		ps.repeatField(s, f)
-	case KindInclude:
-		if s.Include == nil {
-			s.Include = &IncludeSpec{}
-		}
-		switch f.key {
-		case "procedure":
-			s.Include.Procedure = ps.text(f, "procedure")
-		case "once":
-			s.Include.Once = ps.boolean(f, "once", "yes", "no")
-		}
-	}
 }
 
 // boolean reads one of two words (or true/false).
@@ -521,282 +445,6 @@ func (ps *parse) boolean(f field, what, yes, no string) bool {
 	}
 	ps.errf(f.vpos, "%s: expected %s or %s, found %q", what, yes, no, t)
 	return false
-}
-
-func (ps *parse) enterField(s *Step, f field) {
-	if s.Enter == nil {
-		s.Enter = &EnterSpec{Source: FromOperator}
-	}
-	e := s.Enter
-	switch f.key {
-	case "name":
-		e.Name = ps.text(f, "name")
-		if e.Name != "" && !validID(e.Name) {
-			ps.errf(f.vpos, "value name %q: use letters, digits and underscores", e.Name)
-		}
-	case "unit":
-		e.Unit = ps.text(f, "unit")
-		q, err := units.QuantityOf(e.Unit)
-		if err != nil {
-			ps.errf(f.vpos, "unit: %v", err)
-			return
-		}
-		e.Quantity = q
-	case "range":
-		lo, hi, unit, ok := ps.rangeOf(f, "range")
-		if !ok {
-			return
-		}
-		e.Min, e.Max = lo, hi
-		e.rangeUnit, e.rangePos = unit, f.vpos
-	case "default":
-		v, unit, ok := ps.number(f, "default")
-		if ok {
-			e.Default, e.HasDef = v, true
-			e.defUnit = unit
-		}
-	case "source":
-		src := Source(ps.text(f, "source"))
-		switch src {
-		case FromOperator, FromBench, FromSensor:
-			e.Source = src
-		default:
-			ps.errf(f.vpos, "source: expected operator, bench or sensor, found %q", src)
-		}
-	}
-	// Units of range and default are checked once the unit is known.
-	if e.Unit != "" && e.Quantity != "" {
-		if e.rangeUnit != "" && !e.rangeChecked {
-			e.rangeChecked = true
-			ps.convertEntered(e, &e.Min, e.rangeUnit, e.rangePos, "range")
-			ps.convertEntered(e, &e.Max, e.rangeUnit, e.rangePos, "range")
-		}
-		if e.defUnit != "" && !e.defChecked {
-			e.defChecked = true
-			ps.convertEntered(e, &e.Default, e.defUnit, e.rangePos, "default")
-		}
-	}
-}
-
-// convertEntered converts v from unit into the entered value's own unit.
-func (ps *parse) convertEntered(e *EnterSpec, v *float64, unit string, p Pos, what string) {
-	if unit == e.Unit {
-		return
-	}
-	c, err := units.ToCanonical(e.Quantity, *v, unit)
-	if err != nil {
-		ps.errf(p, "%s: %v", what, err)
-		return
-	}
-	c, err = units.FromCanonical(e.Quantity, c, e.Unit)
-	if err != nil {
-		ps.errf(p, "%s: %v", what, err)
-		return
-	}
-	*v = c
-}
-
-func (ps *parse) measureField(s *Step, f field) {
-	if s.Measure == nil {
-		s.Measure = &MeasureSpec{}
-	}
-	m := s.Measure
-	switch f.key {
-	case "read":
-		fields, ok := ps.mapping(f.value, "read")
-		if !ok {
-			return
-		}
-		for _, g := range fields {
-			q := units.Quantity(ps.text(g, "read"))
-			if q != units.AirKermaRate && q != units.AirKerma && q != units.Luminance {
-				ps.errf(g.vpos, "read: unknown quantity %q for meter %q (a meter gives air_kerma_rate, air_kerma or luminance)", q, g.key)
-				continue
-			}
-			m.Reads = append(m.Reads, Read{Meter: g.key, Quantity: q, Pos: g.kpos})
-		}
-		if len(fields) == 0 {
-			ps.errf(f.vpos, "read: no meter named")
-		}
-	case "beam":
-		m.Beam = ps.boolean(f, "beam", "on", "off")
-	case "beam_quality":
-		m.BeamQuality = ps.text(f, "beam_quality")
-		if _, ok := beamQuality(m.BeamQuality); !ok {
-			ps.errf(f.vpos, "beam_quality: unknown radiation quality %q (expected an IEC 61267 name: %s)", m.BeamQuality, qualityNames())
-		}
-	case "field_mode":
-		m.FieldMode = ps.text(f, "field_mode")
-	case "positions":
-		items, ok := ps.list(f, "positions")
-		if ok && len(items) == 0 {
-			ps.errf(f.vpos, "positions: the list is empty")
-		}
-		for _, it := range items {
-			if p, ok := ps.position(it); ok {
-				m.Positions = append(m.Positions, p)
-			}
-		}
-	case "precision":
-		if v, ok := ps.fraction(f, "precision"); ok {
-			m.Precision = v
-		}
-	case "max_beam":
-		if v, ok := ps.duration(f, "max_beam"); ok {
-			m.MaxBeam = v
-		}
-	case "duration":
-		if v, ok := ps.duration(f, "duration"); ok {
-			m.Duration = v
-		}
-	case "max_drift":
-		if v, ok := ps.fraction(f, "max_drift"); ok {
-			m.MaxDrift = v
-		}
-	case "expect":
-		m.Expect = ps.expect(f)
-	}
-}
-
-func (ps *parse) computeField(s *Step, f field) {
-	if s.Compute == nil {
-		s.Compute = &ComputeSpec{}
-	}
-	c := s.Compute
-	switch f.key {
-	case "figure":
-		c.Figure = Figure(ps.text(f, "figure"))
-		if now, ok := legacyFigures[c.Figure]; ok {
-			c.Figure = now
-		}
-		if _, ok := figureRoles[c.Figure]; !ok {
-			ps.errf(f.vpos, "unknown figure %q (expected one of %s)", c.Figure, figureNames())
-		}
-	case "from":
-		fields, ok := ps.mapping(f.value, "from")
-		if !ok {
-			return
-		}
-		for _, g := range fields {
-			ref := ps.text(g, "from")
-			c.Inputs = append(c.Inputs, Input{Role: g.key, Ref: ref, Pos: g.vpos})
-		}
-	}
-}
-
-func (ps *parse) judgeField(s *Step, f field) {
-	if s.Judge == nil {
-		s.Judge = &JudgeSpec{}
-	}
-	j := s.Judge
-	switch f.key {
-	case "result":
-		j.Result = ps.text(f, "result")
-	case "limits":
-		fields, ok := ps.mapping(f.value, "limits")
-		if !ok {
-			return
-		}
-		if len(fields) == 0 {
-			ps.errf(f.vpos, "limits: none given")
-		}
-		for _, g := range fields {
-			k := LimitKind(g.key)
-			switch k {
-			case SpecMin, SpecMax, BaselineMin, BaselineMax, ActionMin, ActionMax:
-			default:
-				ps.errf(g.kpos, "unknown limit %q (expected min, max, baseline_min, baseline_max, action_min, action_max)", g.key)
-				continue
-			}
-			t := ps.text(g, string(k))
-			if t == "" {
-				continue
-			}
-			l := Limit{Kind: k, Pos: g.vpos}
-			if isRef(t) {
-				l.Ref = t
-			} else {
-				v, unit, err := splitNumber(t)
-				if err != nil {
-					ps.errf(g.vpos, "%s: %v", k, err)
-					continue
-				}
-				l.Value, l.Unit = v, unit
-			}
-			j.Limits = append(j.Limits, l)
-		}
-	}
-}
-
-// isRef reports whether a limit's text is a reference to a session input
-// ("spec.conversion_factor_min") rather than a number.
-func isRef(t string) bool {
-	if t == "" {
-		return false
-	}
-	c := t[0]
-	return (c >= 'a' && c <= 'z') || (c >= 'A' && c <= 'Z')
-}
-
-// Namespaces a limit may refer to: the session's specification values
-// (from the intensifier's data sheet or the contract), its baseline (last
-// accepted results), the site's own levels and action levels, and values
-// entered earlier in the procedure.
-var RefNamespaces = []string{"spec", "baseline", "site", "action", "entered"}
-
-// maxModes bounds max_modes: no intensifier has more field modes.
-const maxModes = 16
-
-func (ps *parse) repeatField(s *Step, f field) {
-	if s.Repeat == nil {
-		s.Repeat = &RepeatSpec{}
-	}
-	r := s.Repeat
-	switch f.key {
-	case "modes":
-		if t, ok := ps.scalar(f.value); ok {
-			if t != "bench" {
-				ps.errf(f.vpos, "modes: expected a list of field modes or the word bench, found %q", t)
-				return
-			}
-			r.FromBench = true
-			return
-		}
-		items, ok := ps.list(f, "modes")
-		if ok && len(items) == 0 {
-			ps.errf(f.vpos, "modes: the list is empty")
-		}
-		seen := map[string]bool{}
-		for _, it := range items {
-			t, ok := ps.scalar(it)
-			if !ok || t == "" {
-				ps.errf(ps.pos(it), "modes: expected a field mode name, found %s", describe(it))
-				continue
-			}
-			if seen[t] {
-				ps.errf(ps.pos(it), "modes: %q listed twice", t)
-			}
-			if strings.ContainsAny(t, "@/{}") {
-				ps.errf(ps.pos(it), "modes: %q: a mode name must not contain @, /, { or }", t)
-			}
-			seen[t] = true
-			r.Modes = append(r.Modes, t)
-		}
-	case "max_modes":
-		t := ps.text(f, "max_modes")
-		var n int
-		if _, err := fmt.Sscanf(t, "%d", &n); err != nil || n < 1 || n > maxModes || fmt.Sprint(n) != t {
-			ps.errf(f.vpos, "max_modes: expected a whole number from 1 to %d, found %q", maxModes, t)
-			return
-		}
-		r.MaxModes = n
-	case "steps":
-		items, ok := ps.list(f, "steps")
-		if ok && len(items) == 0 {
-			ps.errf(f.vpos, "steps: the block has no steps")
-		}
-		r.Steps = ps.steps(items, true)
-	}
 }
 
 func (ps *parse) expect(f field) []Expect {
@@ -923,53 +571,6 @@ func (ps *parse) setupValue(g field, t string) (string, bool) {
 	sort.Strings(keys)
 	ps.errf(g.kpos, "unknown setup field %q (expected one of %s)", g.key, strings.Join(keys, ", "))
 	return "", false
-}
-
-// position reads a photometer position: "centre", "up 0.9 r" or a
-// mapping {label, radius, angle}.
-func (ps *parse) position(n ast.Node) (Position, bool) {
-	p := Position{Pos: ps.pos(n)}
-	if t, ok := ps.scalar(n); ok {
-		pp, err := positionOf(t)
-		if err != nil {
-			ps.errf(p.Pos, "position: %v", err)
-			return p, false
-		}
-		pp.Pos = p.Pos
-		return pp, true
-	}
-	fields, ok := ps.mapping(n, "position")
-	if !ok {
-		return p, false
-	}
-	var haveRadius bool
-	for _, g := range fields {
-		switch g.key {
-		case "label":
-			p.Label = ps.text(g, "label")
-		case "radius":
-			v, err := radiusOf(ps.text(g, "radius"))
-			if err != nil {
-				ps.errf(g.vpos, "position radius: %v", err)
-				continue
-			}
-			p.Radius, haveRadius = v, true
-		case "angle":
-			v, err := angleOf(ps.text(g, "angle"))
-			if err != nil {
-				ps.errf(g.vpos, "position angle: %v", err)
-				continue
-			}
-			p.Angle = v
-		default:
-			ps.errf(g.kpos, "unknown position field %q (expected label, radius, angle)", g.key)
-		}
-	}
-	if p.Label == "" || !haveRadius {
-		ps.errf(p.Pos, "position needs a label and a radius")
-		return p, false
-	}
-	return p, true
 }
 
 // duration reads a time with its unit ("120 s", "2 min").

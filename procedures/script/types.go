@@ -33,39 +33,6 @@ func (p Pos) String() string {
 	return fmt.Sprintf("%s:%d:%d", p.File, p.Line, p.Col)
 }
 
-// Kind is a step's kind.
-type Kind string
-
-// The step kinds.
-const (
-	// KindSay shows and speaks Text and goes on without waiting.
-	KindSay Kind = "say"
-	// KindPrepare shows and speaks Text and the Setup wanted, then waits
-	// for a press.
-	KindPrepare Kind = "prepare"
-	// KindChecklist reads Items one at a time; each needs a press.
-	KindChecklist Kind = "checklist"
-	// KindSafetyChecklist is the pre-exposure safety checklist: like
-	// KindChecklist, and no beam step may come before one is acknowledged.
-	KindSafetyChecklist Kind = "safety_checklist"
-	// KindEnter asks for a value (see EnterSpec).
-	KindEnter Kind = "enter"
-	// KindMeasure takes readings (see MeasureSpec).
-	KindMeasure Kind = "measure"
-	// KindCompute computes a figure of merit from earlier measurements.
-	KindCompute Kind = "compute"
-	// KindJudge judges a computed result against limits.
-	KindJudge Kind = "judge"
-	// KindPerFieldMode repeats its nested steps once for each field mode.
-	KindPerFieldMode Kind = "per_field_mode"
-	// KindInclude runs another procedure's steps in its place.
-	KindInclude Kind = "include"
-)
-
-// Kinds lists every step kind, in the order FORMAT.md describes them.
-var Kinds = []Kind{KindSay, KindPrepare, KindChecklist, KindSafetyChecklist, KindEnter,
-	KindMeasure, KindCompute, KindJudge, KindPerFieldMode, KindInclude}
-
 // Procedure is a parsed script.
 type Procedure struct {
 	Name    string // short machine name, used by include and in journals
