@@ -8,7 +8,6 @@ import (
 	"strings"
 	"time"
 
-	"kermalux/drivers/units"
 	"kermalux/procedures/builtin"
 )
 
@@ -285,37 +284,16 @@ func fmtDur(d time.Duration) string {
 // step expands one written step in mode (empty outside per_field_mode)
 // and returns the beam-on time it may use.
 func (x *expander) step(p *Procedure, prefix string, s *Step, mode string, modes []string) time.Duration {
-	switch s.Kind {
-	case KindPerFieldMode:
-		return x.repeat(p, prefix, s)
-	case KindInclude:
-		return x.include(p, prefix, s)
+	k, _ := kindOf(s.Kind)
+	if k != nil && k.expand != nil {
+		return k.expand(x, p, prefix, s)
 	}
 	fs := FlatStep{ID: prefix + s.ID, FieldMode: mode, Procedure: p.Name, Step: x.instance(p, s, mode)}
 	if mode != "" {
 		fs.ID += "@" + mode
 	}
-	st := &fs.Step
-	switch st.Kind {
-	case KindSafetyChecklist:
-		pos := s.Pos
-		x.safetyAll = append(x.safetyAll, pos)
-		if x.safetyAt == nil {
-			x.safetyAt = &pos
-		}
-	case KindEnter:
-		if st.Enter != nil {
-			x.entered[st.Enter.Name] = true
-			x.enterOnBench(s, st.Enter)
-		}
-	case KindMeasure:
-		if st.Measure != nil && st.Measure.Beam && x.safetyAt == nil {
-			x.earlyBeam = append(x.earlyBeam, s.Pos)
-		}
-	case KindCompute:
-		x.compute(prefix, st, mode, modes)
-	case KindJudge:
-		x.judge(prefix, st, mode, modes)
+	if k != nil && k.at != nil {
+		k.at(x, place{prefix: prefix, written: s, step: &fs.Step, mode: mode, modes: modes})
 	}
 	if _, dup := x.byID[fs.ID]; !dup {
 		x.byID[fs.ID] = len(x.steps)
@@ -412,23 +390,13 @@ func (x *expander) include(p *Procedure, prefix string, s *Step) time.Duration {
 
 // instance copies a written step for one run position: {mode}
 // substituted, the procedure's defaults filled in, a beam quality's
-// tube voltage and filter added to the setup.
+// tube voltage and filter added to the setup. The kind's own part is
+// copied by its instance function (kindTable), so that checking the
+// instance never changes the written step.
 func (x *expander) instance(p *Procedure, s *Step, mode string) Step {
 	st := *s
-	sub := func(t string) string {
-		if mode == "" {
-			return t
-		}
-		return strings.ReplaceAll(t, "{mode}", mode)
-	}
-	// "largest" names the bench's first field mode (benches list them
-	// largest first), when the bench's modes are known.
-	largest := func(t string) string {
-		if t == LargestMode && len(x.env.FieldModes) > 0 {
-			return x.env.FieldModes[0]
-		}
-		return t
-	}
+	sub := func(t string) string { return subMode(t, mode) }
+	largest := x.largest
 	st.Text = sub(s.Text)
 	st.Items = nil
 	for _, it := range s.Items {
@@ -442,58 +410,28 @@ func (x *expander) instance(p *Procedure, s *Step, mode string) Step {
 		}
 		st.Setup = append(st.Setup, Setting{Key: kv.Key, Value: v, Pos: kv.Pos})
 	}
-	if s.Measure != nil {
-		m := *s.Measure
-		m.FieldMode = largest(sub(m.FieldMode))
-		if m.FieldMode == "" {
-			if fm, ok := st.Setup.Get(SetFieldMode); ok {
-				m.FieldMode = fm
-			} else {
-				m.FieldMode = mode
-			}
-		}
-		if m.Precision == 0 {
-			m.Precision = p.Defaults.Precision
-		}
-		if m.MaxBeam == 0 && m.Beam {
-			m.MaxBeam = p.Defaults.MaxBeam
-		}
-		if m.Expect == nil {
-			m.Expect = p.Defaults.Expect
-		}
-		if m.FieldMode != "" {
-			if _, ok := st.Setup.Get(SetFieldMode); !ok {
-				st.Setup = append(st.Setup, Setting{Key: SetFieldMode, Value: m.FieldMode, Pos: s.Pos})
-			}
-		}
-		if q, ok := beamQuality(m.BeamQuality); ok {
-			if _, ok := st.Setup.Get(SetBeamQuality); !ok {
-				st.Setup = append(st.Setup, Setting{Key: SetBeamQuality, Value: q.Name, Pos: s.Pos})
-			}
-			if _, ok := st.Setup.Get(SetTubeVoltage); !ok {
-				st.Setup = append(st.Setup, Setting{Key: SetTubeVoltage, Value: formatNumber(q.TubeVoltage) + " kV", Pos: s.Pos})
-			}
-			if _, ok := st.Setup.Get(SetAddedFilter); !ok {
-				st.Setup = append(st.Setup, Setting{Key: SetAddedFilter, Value: formatNumber(q.AddedAl) + " mm Al", Pos: s.Pos})
-			}
-		}
-		st.Measure = &m
-	}
-	if s.Compute != nil {
-		c := *s.Compute
-		c.Inputs = append([]Input(nil), s.Compute.Inputs...)
-		st.Compute = &c
-	}
-	if s.Judge != nil {
-		j := *s.Judge
-		j.Limits = append([]Limit(nil), s.Judge.Limits...)
-		st.Judge = &j
-	}
-	if s.Enter != nil {
-		e := *s.Enter
-		st.Enter = &e
+	if k, ok := kindOf(s.Kind); ok && k.instance != nil {
+		k.instance(x, p, s, &st, mode)
 	}
 	return st
+}
+
+// subMode replaces {mode} in t by the field mode (none outside
+// per_field_mode).
+func subMode(t, mode string) string {
+	if mode == "" {
+		return t
+	}
+	return strings.ReplaceAll(t, "{mode}", mode)
+}
+
+// largest replaces LargestMode by the bench's first field mode (benches
+// list them largest first), when the bench's modes are known.
+func (x *expander) largest(t string) string {
+	if t == LargestMode && len(x.env.FieldModes) > 0 {
+		return x.env.FieldModes[0]
+	}
+	return t
 }
 
 // resolve finds the flat id a reference in a step of mode names, among
@@ -513,187 +451,6 @@ func (x *expander) resolve(prefix, ref, mode string, modes []string) (string, bo
 	}
 	_, ok := x.byID[prefix+ref]
 	return prefix + ref, ok
-}
-
-func (x *expander) compute(prefix string, st *Step, mode string, modes []string) {
-	c := st.Compute
-	if c == nil {
-		return
-	}
-	roles, ok := figureRoles[c.Figure]
-	if !ok {
-		return
-	}
-	for i := range c.Inputs {
-		in := &c.Inputs[i]
-		var r *role
-		for j := range roles {
-			if roles[j].name == in.Role {
-				r = &roles[j]
-			}
-		}
-		if r == nil {
-			var names []string
-			for _, r := range roles {
-				names = append(names, r.name)
-			}
-			x.errf(in.Pos, "%s takes no input %q (expected %s)", c.Figure, in.Role, strings.Join(names, ", "))
-			continue
-		}
-		id, found := x.resolve(prefix, in.Ref, mode, modes)
-		if !found {
-			x.errf(in.Pos, "%s refers to %q, which is not a step earlier in this procedure", in.Role, in.Ref)
-			continue
-		}
-		in.Resolved = id
-		ref := x.steps[x.byID[id]].Step
-		if ref.Kind != KindMeasure || ref.Measure == nil {
-			x.errf(in.Pos, "%s refers to %q, a %s step, not a measure step", in.Role, in.Ref, ref.Kind)
-			continue
-		}
-		m := ref.Measure
-		if r.quantity != "" && !m.reads(r.quantity) {
-			x.errf(in.Pos, "%s refers to %q, which does not read %s", in.Role, in.Ref, r.quantity)
-		}
-		if r.beam == 1 && !m.Beam {
-			x.errf(in.Pos, "%s refers to %q, a dark reading (beam off); it needs a beam reading", in.Role, in.Ref)
-		}
-		if r.beam == -1 && m.Beam {
-			x.errf(in.Pos, "%s refers to %q, a beam reading; it needs a dark reading (beam off)", in.Role, in.Ref)
-		}
-		if c.Figure == FigNonUniformity && r.name == "luminance" && len(m.Positions) < 2 {
-			x.errf(in.Pos, "non_uniformity needs a luminance measurement at several positions; %q has %d", in.Ref, len(m.Positions))
-		}
-		if c.Figure == FigStability && m.Duration == 0 {
-			x.errf(in.Pos, "stability needs a measurement over a fixed duration; %q has no duration", in.Ref)
-		}
-	}
-	for _, r := range roles {
-		if _, ok := c.Input(r.name); !ok && !r.optional {
-			x.errf(st.Fields["from"], "%s needs input %q", c.Figure, r.name)
-		}
-	}
-	if (c.Figure == FigStability || c.Figure == FigDarkLevel) && len(c.Inputs) != 1 {
-		x.errf(st.Fields["from"], "%s takes one input: reading (a step that reads one meter), or air_kerma_rate or luminance (the meter among several read together)", c.Figure)
-	}
-	if c.Figure == FigStability || c.Figure == FigDarkLevel {
-		if in, ok := c.Input("reading"); ok {
-			if i, ok := x.byID[in.Resolved]; ok && x.steps[i].Step.Measure != nil && len(x.steps[i].Step.Measure.Reads) > 1 {
-				x.errf(in.Pos, "%s: %q reads several meters; name the one meant by its quantity (air_kerma_rate: or luminance:) instead of reading:", c.Figure, in.Ref)
-			}
-		}
-	}
-}
-
-// enterOnBench checks an enter step against the bench: a value the script
-// says comes from the bench must be in the bench file, and on a panel that
-// cannot enter a number (the foot switch) every value needs a default, from
-// the script or the bench; otherwise the session would stop at that step,
-// perhaps after many exposures.
-func (x *expander) enterOnBench(s *Step, e *EnterSpec) {
-	if x.env.Values == nil {
-		return
-	}
-	_, onBench := x.env.Values[e.Name]
-	pos := s.Fields["source"]
-	if pos.Line == 0 {
-		pos = s.Pos
-	}
-	switch {
-	case e.Source == FromBench && !onBench:
-		x.errf(pos, "%s comes from the bench file (source: bench), which gives no value for it%s", e.Name, benchKeyHint(e.Name))
-	case x.env.HandsFree && !e.HasDef && !onBench:
-		x.errf(s.Pos, "%s has no default and the bench's panel is a foot switch, which cannot enter a number: give the step a default, or the bench file a value%s", e.Name, benchKeyHint(e.Name))
-	}
-}
-
-// benchKeyHint names the bench file key that gives a value, when there is one.
-func benchKeyHint(name string) string {
-	if k, ok := BenchValueKeys[name]; ok {
-		return " (defaults: " + k + ")"
-	}
-	return ""
-}
-
-// BenchValueKeys are the bench file's keys (under defaults:) for the values
-// enter steps ask for, by value name.
-var BenchValueKeys = map[string]string{
-	"temperature":        "temperature_c",
-	"pressure":           "pressure_kpa",
-	"tube_voltage":       "tube_voltage_kv",
-	"tube_current":       "tube_current_ma",
-	"lead_disk_diameter": "lead_disk_diameter_mm",
-}
-
-func (m *MeasureSpec) reads(q units.Quantity) bool {
-	for _, r := range m.Reads {
-		if r.Quantity == q {
-			return true
-		}
-	}
-	return false
-}
-
-func (x *expander) judge(prefix string, st *Step, mode string, modes []string) {
-	j := st.Judge
-	if j == nil || j.Result == "" {
-		return
-	}
-	id, found := x.resolve(prefix, j.Result, mode, modes)
-	if !found {
-		x.errf(st.Fields["result"], "result refers to %q, which is not a step earlier in this procedure", j.Result)
-		return
-	}
-	j.Resolved = id
-	ref := x.steps[x.byID[id]].Step
-	if ref.Kind != KindCompute || ref.Compute == nil {
-		x.errf(st.Fields["result"], "result refers to %q, a %s step, not a compute step", j.Result, ref.Kind)
-		return
-	}
-	fig := ref.Compute.Figure
-	q := figureQuantity[fig]
-	if q == "" && fig != FigConversionFactor {
-		// dark_level and stability are in the unit of what was read.
-		for _, in := range ref.Compute.Inputs {
-			if i, ok := x.byID[in.Resolved]; ok && x.steps[i].Step.Measure != nil && len(x.steps[i].Step.Measure.Reads) > 0 {
-				q = x.steps[i].Step.Measure.Reads[0].Quantity
-			}
-			if in.Role == "air_kerma_rate" || in.Role == "luminance" {
-				q = units.Quantity(in.Role)
-			}
-		}
-	}
-	for i := range j.Limits {
-		l := &j.Limits[i]
-		if l.Ref != "" {
-			ns, name, ok := strings.Cut(l.Ref, ".")
-			if !ok || !contains(RefNamespaces, ns) || !validID(name) {
-				x.errf(l.Pos, "%s: %q is neither a number nor a session value (spec.NAME, baseline.NAME, site.NAME, action.NAME, entered.NAME)", l.Kind, l.Ref)
-				continue
-			}
-			if ns == "entered" && !x.entered[name] {
-				x.errf(l.Pos, "%s refers to entered value %q, which no earlier enter step asks for", l.Kind, name)
-			}
-			continue
-		}
-		v, unit, err := limitValue(fig, q, *l)
-		if err != nil {
-			x.errf(l.Pos, "%s of %s: %v", l.Kind, fig, err)
-			continue
-		}
-		l.Value, l.Unit = v, unit
-	}
-	lim := map[LimitKind]Limit{}
-	for _, l := range j.Limits {
-		lim[l.Kind] = l
-	}
-	for _, pair := range [][2]LimitKind{{SpecMin, SpecMax}, {BaselineMin, BaselineMax}, {ActionMin, ActionMax}} {
-		lo, ok1 := lim[pair[0]]
-		hi, ok2 := lim[pair[1]]
-		if ok1 && ok2 && lo.Ref == "" && hi.Ref == "" && lo.Unit == hi.Unit && lo.Value > hi.Value {
-			x.errf(lo.Pos, "%s is above %s", pair[0], pair[1])
-		}
-	}
 }
 
 // static checks one written procedure, once: step ids, meters, measure
@@ -736,55 +493,8 @@ func (x *expander) staticStep(p *Procedure, s *Step, inRepeat bool) {
 			x.errf(s.Pos, "step %q uses {mode} outside a per_field_mode block", s.ID)
 		}
 	}
-	if s.Kind == KindEnter && s.Enter != nil {
-		e := s.Enter
-		if e.HasDef && (e.Default < e.Min || e.Default > e.Max) {
-			x.errf(s.Fields["default"], "default %s %s is outside the range %s to %s", formatNumber(e.Default), e.Unit, formatNumber(e.Min), formatNumber(e.Max))
-		}
-	}
-	m := s.Measure
-	if s.Kind != KindMeasure || m == nil {
-		return
-	}
-	for _, r := range m.Reads {
-		if !contains(p.Meters, r.Meter) {
-			x.errf(r.Pos, "meter %q is not in the procedure's meters (%s)", r.Meter, strings.Join(p.Meters, ", "))
-		}
-		if x.env.Quantities != nil {
-			x.meterReports(r)
-		}
-	}
-	if m.Beam {
-		_, wroteMax := s.Fields["max_beam"]
-		_, wroteExpect := s.Fields["expect"]
-		if m.MaxBeam == 0 && p.Defaults.MaxBeam == 0 && !wroteMax {
-			x.errf(s.Pos, "beam step %q has no max_beam (and the procedure has no default): its beam-on time must be bounded", s.ID)
-		}
-		if m.reads(units.AirKermaRate) {
-			exp := m.Expect
-			if exp == nil {
-				exp = p.Defaults.Expect
-			}
-			var ok bool
-			for _, e := range exp {
-				ok = ok || e.Quantity == units.AirKermaRate
-			}
-			if !ok && !wroteExpect {
-				x.errf(s.Pos, "beam step %q reads air_kerma_rate with no expected range (expect: air_kerma_rate: LOW to HIGH µGy/s) for the out-of-range safety stop", s.ID)
-			}
-		}
-	} else if m.BeamQuality != "" {
-		x.errf(s.Fields["beam_quality"], "a dark reading (beam off) has no beam quality")
-	}
-	if m.Duration > 0 && len(m.Positions) > 1 {
-		x.errf(s.Fields["duration"], "a fixed-duration reading takes one position, not %d", len(m.Positions))
-	}
-	if q, ok := beamQuality(m.BeamQuality); ok {
-		if f, ok := s.Setup.Get(SetAddedFilter); ok {
-			if want := formatNumber(q.AddedAl) + " mm Al"; f != want {
-				x.errf(s.Setup.pos(SetAddedFilter), "added_filter %s does not match beam quality %s (%s)", f, q.Name, want)
-			}
-		}
+	if k, ok := kindOf(s.Kind); ok && k.static != nil {
+		k.static(x, p, s)
 	}
 }
 
@@ -795,31 +505,4 @@ func (s Setup) pos(key string) Pos {
 		}
 	}
 	return Pos{}
-}
-
-// meterReports checks a read against the configured meters.
-func (x *expander) meterReports(r Read) {
-	qs, configured := x.env.Quantities[r.Meter]
-	for _, q := range qs {
-		if q == r.Quantity {
-			return
-		}
-	}
-	var any []string
-	for name, qs := range x.env.Quantities {
-		for _, q := range qs {
-			if q == r.Quantity {
-				any = append(any, name)
-			}
-		}
-	}
-	sort.Strings(any)
-	switch {
-	case len(any) == 0:
-		x.errf(r.Pos, "no configured meter reports %s", r.Quantity)
-	case !configured:
-		x.errf(r.Pos, "meter %q is not configured on this bench (%s reports %s)", r.Meter, strings.Join(any, ", "), r.Quantity)
-	default:
-		x.errf(r.Pos, "meter %q does not report %s (%s does)", r.Meter, r.Quantity, strings.Join(any, ", "))
-	}
 }

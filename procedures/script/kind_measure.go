@@ -1,9 +1,11 @@
 package script
 
 import (
-	"github.com/goccy/go-yaml/ast"
-
 	"kermalux/drivers/units"
+	"sort"
+	"strings"
+
+	"github.com/goccy/go-yaml/ast"
 )
 
 // measureField reads a key of a measure step (its entry in kindTable).
@@ -114,4 +116,144 @@ func (ps *parse) position(n ast.Node) (Position, bool) {
 		return p, false
 	}
 	return p, true
+}
+
+func (m *MeasureSpec) reads(q units.Quantity) bool {
+	for _, r := range m.Reads {
+		if r.Quantity == q {
+			return true
+		}
+	}
+	return false
+}
+
+// meterReports checks a read against the configured meters.
+func (x *expander) meterReports(r Read) {
+	qs, configured := x.env.Quantities[r.Meter]
+	for _, q := range qs {
+		if q == r.Quantity {
+			return
+		}
+	}
+	var any []string
+	for name, qs := range x.env.Quantities {
+		for _, q := range qs {
+			if q == r.Quantity {
+				any = append(any, name)
+			}
+		}
+	}
+	sort.Strings(any)
+	switch {
+	case len(any) == 0:
+		x.errf(r.Pos, "no configured meter reports %s", r.Quantity)
+	case !configured:
+		x.errf(r.Pos, "meter %q is not configured on this bench (%s reports %s)", r.Meter, strings.Join(any, ", "), r.Quantity)
+	default:
+		x.errf(r.Pos, "meter %q does not report %s (%s does)", r.Meter, r.Quantity, strings.Join(any, ", "))
+	}
+}
+
+// measureInstance copies a measure step's spec for one run position:
+// {mode} and "largest" substituted in its field mode, the procedure's
+// defaults filled in, the field mode and the beam quality's tube voltage
+// and filter added to the setup when it does not say them.
+func measureInstance(x *expander, p *Procedure, s, st *Step, mode string) {
+	if s.Measure == nil {
+		return
+	}
+	m := *s.Measure
+	m.FieldMode = x.largest(subMode(m.FieldMode, mode))
+	if m.FieldMode == "" {
+		if fm, ok := st.Setup.Get(SetFieldMode); ok {
+			m.FieldMode = fm
+		} else {
+			m.FieldMode = mode
+		}
+	}
+	if m.Precision == 0 {
+		m.Precision = p.Defaults.Precision
+	}
+	if m.MaxBeam == 0 && m.Beam {
+		m.MaxBeam = p.Defaults.MaxBeam
+	}
+	if m.Expect == nil {
+		m.Expect = p.Defaults.Expect
+	}
+	if m.FieldMode != "" {
+		if _, ok := st.Setup.Get(SetFieldMode); !ok {
+			st.Setup = append(st.Setup, Setting{Key: SetFieldMode, Value: m.FieldMode, Pos: s.Pos})
+		}
+	}
+	if q, ok := beamQuality(m.BeamQuality); ok {
+		if _, ok := st.Setup.Get(SetBeamQuality); !ok {
+			st.Setup = append(st.Setup, Setting{Key: SetBeamQuality, Value: q.Name, Pos: s.Pos})
+		}
+		if _, ok := st.Setup.Get(SetTubeVoltage); !ok {
+			st.Setup = append(st.Setup, Setting{Key: SetTubeVoltage, Value: formatNumber(q.TubeVoltage) + " kV", Pos: s.Pos})
+		}
+		if _, ok := st.Setup.Get(SetAddedFilter); !ok {
+			st.Setup = append(st.Setup, Setting{Key: SetAddedFilter, Value: formatNumber(q.AddedAl) + " mm Al", Pos: s.Pos})
+		}
+	}
+	st.Measure = &m
+
+}
+
+// measureStatic checks a written measure step once: its meters, and the
+// safety fields of a beam reading (a bound on its beam-on time, an
+// expected kerma rate range for the safety stop).
+func measureStatic(x *expander, p *Procedure, s *Step) {
+	m := s.Measure
+	if m == nil {
+		return
+	}
+	for _, r := range m.Reads {
+		if !contains(p.Meters, r.Meter) {
+			x.errf(r.Pos, "meter %q is not in the procedure's meters (%s)", r.Meter, strings.Join(p.Meters, ", "))
+		}
+		if x.env.Quantities != nil {
+			x.meterReports(r)
+		}
+	}
+	if m.Beam {
+		_, wroteMax := s.Fields["max_beam"]
+		_, wroteExpect := s.Fields["expect"]
+		if m.MaxBeam == 0 && p.Defaults.MaxBeam == 0 && !wroteMax {
+			x.errf(s.Pos, "beam step %q has no max_beam (and the procedure has no default): its beam-on time must be bounded", s.ID)
+		}
+		if m.reads(units.AirKermaRate) {
+			exp := m.Expect
+			if exp == nil {
+				exp = p.Defaults.Expect
+			}
+			var ok bool
+			for _, e := range exp {
+				ok = ok || e.Quantity == units.AirKermaRate
+			}
+			if !ok && !wroteExpect {
+				x.errf(s.Pos, "beam step %q reads air_kerma_rate with no expected range (expect: air_kerma_rate: LOW to HIGH µGy/s) for the out-of-range safety stop", s.ID)
+			}
+		}
+	} else if m.BeamQuality != "" {
+		x.errf(s.Fields["beam_quality"], "a dark reading (beam off) has no beam quality")
+	}
+	if m.Duration > 0 && len(m.Positions) > 1 {
+		x.errf(s.Fields["duration"], "a fixed-duration reading takes one position, not %d", len(m.Positions))
+	}
+	if q, ok := beamQuality(m.BeamQuality); ok {
+		if f, ok := s.Setup.Get(SetAddedFilter); ok {
+			if want := formatNumber(q.AddedAl) + " mm Al"; f != want {
+				x.errf(s.Setup.pos(SetAddedFilter), "added_filter %s does not match beam quality %s (%s)", f, q.Name, want)
+			}
+		}
+	}
+}
+
+// measureAt notes a beam reading that comes before any pre-exposure
+// safety checklist in the run.
+func measureAt(x *expander, at place) {
+	if m := at.step.Measure; m != nil && m.Beam && x.safetyAt == nil {
+		x.earlyBeam = append(x.earlyBeam, at.written.Pos)
+	}
 }

@@ -1,6 +1,9 @@
 package script
 
-import "strings"
+import (
+	"strings"
+	"time"
+)
 
 // Kind is a step's kind.
 type Kind string
@@ -48,6 +51,34 @@ type kindDef struct {
 	// finish completes a step once all its keys have been read (the
 	// safety checklist's standard lines); nil: nothing to do.
 	finish func(s *Step)
+
+	// static checks a written step once, within the procedure it is
+	// written in (Check and Flatten); nil: nothing beyond the checks
+	// every step has (its id, {mode} outside per_field_mode).
+	static func(x *expander, p *Procedure, s *Step)
+	// instance copies the kind's spec into a step's instance for one
+	// place in the run, filling in what the place decides (a measure
+	// step's defaults and field mode); nil: the kind has no spec.
+	instance func(x *expander, p *Procedure, s, st *Step, mode string)
+	// at checks an instance at its place in the run, against the steps
+	// before it (references, the safety checklist before any beam); nil:
+	// nothing to check there.
+	at func(x *expander, at place)
+	// expand stands for a kind that Flatten replaces by other steps
+	// (per_field_mode, include): it expands the step in place and
+	// returns the beam-on time the steps it stands for may use. Such a
+	// kind never reaches the engine.
+	expand func(x *expander, p *Procedure, prefix string, s *Step) time.Duration
+}
+
+// place is a step at its place in the run: the step as written, its
+// instance there, the include path it is under and its field mode
+// within per_field_mode (empty outside; modes are the block's modes).
+type place struct {
+	prefix        string
+	written, step *Step
+	mode          string
+	modes         []string
 }
 
 // kindTable is every step kind, in the order FORMAT.md describes them. It
@@ -60,16 +91,22 @@ func init() {
 		{kind: KindSay, fields: []string{"text"}, need: []string{"text"}},
 		{kind: KindPrepare, fields: []string{"text", "setup"}, need: []string{"text"}},
 		{kind: KindChecklist, fields: []string{"text", "items"}, need: []string{"items"}},
-		{kind: KindSafetyChecklist, fields: []string{"text", "items"}, finish: standardItems},
+		{kind: KindSafetyChecklist, fields: []string{"text", "items"}, finish: standardItems, at: safetyChecklistAt},
 		{kind: KindEnter, fields: []string{"text", "name", "unit", "range", "default", "source"},
-			need: []string{"name", "unit", "range"}, parse: (*parse).enterField},
+			need: []string{"name", "unit", "range"}, parse: (*parse).enterField,
+			static: enterStatic, instance: enterInstance, at: enterAt},
 		{kind: KindMeasure, fields: []string{"text", "read", "beam", "beam_quality", "field_mode", "setup", "positions",
 			"precision", "max_beam", "duration", "max_drift", "expect"},
-			need: []string{"read", "beam"}, parse: (*parse).measureField},
-		{kind: KindCompute, fields: []string{"text", "figure", "from"}, need: []string{"figure", "from"}, parse: (*parse).computeField},
-		{kind: KindJudge, fields: []string{"text", "result", "limits"}, need: []string{"result", "limits"}, parse: (*parse).judgeField},
-		{kind: KindPerFieldMode, fields: []string{"modes", "max_modes", "steps"}, need: []string{"modes", "steps"}, parse: (*parse).repeatField},
-		{kind: KindInclude, fields: []string{"procedure", "once"}, need: []string{"procedure"}, parse: (*parse).includeField},
+			need: []string{"read", "beam"}, parse: (*parse).measureField,
+			static: measureStatic, instance: measureInstance, at: measureAt},
+		{kind: KindCompute, fields: []string{"text", "figure", "from"}, need: []string{"figure", "from"},
+			parse: (*parse).computeField, instance: computeInstance, at: (*expander).compute},
+		{kind: KindJudge, fields: []string{"text", "result", "limits"}, need: []string{"result", "limits"},
+			parse: (*parse).judgeField, instance: judgeInstance, at: (*expander).judge},
+		{kind: KindPerFieldMode, fields: []string{"modes", "max_modes", "steps"}, need: []string{"modes", "steps"},
+			parse: (*parse).repeatField, expand: (*expander).repeat},
+		{kind: KindInclude, fields: []string{"procedure", "once"}, need: []string{"procedure"},
+			parse: (*parse).includeField, expand: (*expander).include},
 	}
 	for _, k := range kindTable {
 		Kinds = append(Kinds, k.kind)
@@ -89,30 +126,18 @@ func kindOf(k Kind) (*kindDef, bool) {
 	return nil, false
 }
 
+// Expands reports whether Flatten replaces a step of the kind by the
+// steps it stands for (per_field_mode, include): no flat step has such a
+// kind.
+func (k Kind) Expands() bool {
+	d, ok := kindOf(k)
+	return ok && d.expand != nil
+}
+
 func kindNames() string {
 	var s []string
 	for _, k := range Kinds {
 		s = append(s, string(k))
 	}
 	return strings.Join(s, ", ")
-}
-
-// StandardSafetyItems are the lines of a safety_checklist step that lists
-// no items of its own (common practice for fluoroscopy; local rules may
-// ask for more).
-var StandardSafetyItems = []string{
-	"Lead apron and thyroid collar on.",
-	"Nobody else in the room, unless behind a shield.",
-	"Door warning light on.",
-	"You are qualified and authorised to operate this unit.",
-}
-
-// standardItems gives a safety checklist without items of its own the
-// standard lines.
-func standardItems(s *Step) {
-	if s.Items == nil {
-		for _, t := range StandardSafetyItems {
-			s.Items = append(s.Items, Item{Text: t, Pos: s.Pos})
-		}
-	}
 }

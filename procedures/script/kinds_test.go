@@ -3,6 +3,7 @@ package script
 import (
 	"fmt"
 	"os"
+	"reflect"
 	"regexp"
 	"strings"
 	"testing"
@@ -73,23 +74,48 @@ func TestKindFieldsGolden(t *testing.T) {
 }
 
 // TestEveryKind: a procedure with a step of every kind of the table
-// (testdata/procedures/good/every-kind.yaml) parses and checks clean.
+// (testdata/procedures/good/every-kind.yaml) parses and checks clean; it
+// flattens into steps of every kind that does not expand (and none of
+// those that do), and flattening leaves the written steps as they were
+// (each kind copies its own part for its place in the run).
 func TestEveryKind(t *testing.T) {
 	p := loadGood(t, "every-kind.yaml")
 	written := map[Kind]bool{}
 	var walk func([]Step)
 	walk = func(ss []Step) {
-		for _, s := range ss {
-			written[s.Kind] = true
-			if s.Repeat != nil {
-				walk(s.Repeat.Steps)
+		for i := range ss {
+			written[ss[i].Kind] = true
+			if ss[i].Include != nil {
+				ss[i].Include.Resolved = nil // set by Check; Flatten sets it again
+			}
+			if ss[i].Repeat != nil {
+				walk(ss[i].Repeat.Steps)
 			}
 		}
 	}
 	walk(p.Steps)
+	fresh, err := Load(goodDir + "/every-kind.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	f, err := Flatten(p, Env{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	walk(p.Steps)
+	if !reflect.DeepEqual(p.Steps, fresh.Steps) {
+		t.Error("Flatten changed the written steps")
+	}
+	flat := map[Kind]int{}
+	for _, s := range f.Steps {
+		flat[s.Step.Kind]++
+	}
 	for _, k := range kindTable {
 		if !written[k.kind] {
 			t.Errorf("every-kind.yaml has no %s step", k.kind)
+		}
+		if k.kind.Expands() != (flat[k.kind] == 0) {
+			t.Errorf("%s: %d flat steps, and it expands: %v", k.kind, flat[k.kind], k.kind.Expands())
 		}
 	}
 }
