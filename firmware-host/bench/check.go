@@ -251,6 +251,7 @@ func (b *Bench) checkLanguage(c *checker) {
 		return
 	}
 	b.messages = m
+	b.Panel.Messages = m // the panel's own texts and its voice
 }
 
 // SetLanguage switches the bench to another language (the demo's

@@ -27,7 +27,7 @@ func TestBenchLanguage(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if !b.Messages().IsEnglish() || b.Env().Texts != nil || b.sessionLanguage() != "" {
+	if !b.Messages().IsEnglish() || b.Env().Texts != nil || b.sessionLanguage() != "" || !b.Panel.Messages.IsEnglish() {
 		t.Errorf("a bench without language is not English")
 	}
 	b, err = Parse(filepath.Join(dir, "b.yaml"), []byte(goodBench+"language: de\ncatalogs: [site.de.yaml]\n"))
@@ -45,6 +45,9 @@ func TestBenchLanguage(t *testing.T) {
 	}
 	if tr := b.Env().Texts; tr == nil || tr.Code() != "de" {
 		t.Errorf("the checker is not given the language: %v", tr)
+	}
+	if b.Panel.Messages.Code() != "de" {
+		t.Errorf("the panel is not given the language: %q", b.Panel.Messages.Code())
 	}
 	for _, c := range []struct {
 		name, extra string

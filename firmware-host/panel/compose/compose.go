@@ -8,11 +8,13 @@ import (
 	"io"
 	"log/slog"
 	"os"
+	"strings"
 
 	"kermalux/drivers/clock"
 	"kermalux/firmware-host/panel/gpiopanel"
 	"kermalux/firmware-host/panel/speech"
 	"kermalux/firmware-host/panel/termpanel"
+	"kermalux/procedures/catalog"
 	"kermalux/procedures/panel"
 )
 
@@ -30,6 +32,33 @@ type Config struct {
 	Speech           bool   `yaml:"speech" json:"speech"` // speak prompts through espeak-ng
 	Voice            string `yaml:"voice" json:"voice"`   // espeak-ng voice, e.g. "en-gb"
 	SpeechRate       int    `yaml:"speech_rate" json:"speech_rate"`
+	// Messages is the engineer's language (the bench's, set when the bench
+	// is read): the panel's own texts, and what the voice says, in its
+	// words and with its espeak-ng voice. nil: English.
+	Messages *catalog.Catalog `yaml:"-" json:"-"`
+}
+
+// VoiceFor is the espeak-ng voice that speaks lang: the bench's voice
+// when it is one of that language ("de", "de+f3", "fr-be" for "de" or
+// "fr"), else the language's own (the catalog's voice). For English the
+// bench's voice is used as it is. Overridden reports that the bench named
+// a voice of another language, which is not used.
+func VoiceFor(benchVoice string, ear *speech.Ear) (voice string, overridden bool) {
+	lv := ear.Voice()
+	if lv == "" {
+		return benchVoice, false
+	}
+	if benchVoice == "" {
+		return lv, false
+	}
+	code := strings.ToLower(benchVoice)
+	if i := strings.IndexAny(code, "-+_"); i >= 0 {
+		code = code[:i]
+	}
+	if code == strings.SplitN(ear.Language(), "-", 2)[0] {
+		return benchVoice, false
+	}
+	return lv, true
 }
 
 // Terminal is where a terminal panel reads and writes; zero means standard
@@ -50,9 +79,17 @@ func Open(cfg Config, clk clock.Clock, term Terminal, log *slog.Logger) (panel.P
 	if clk == nil {
 		clk = clock.NewReal()
 	}
+	var ear *speech.Ear
+	if !cfg.Messages.IsEnglish() {
+		ear = speech.NewEar(cfg.Messages)
+	}
 	var voice *speech.Queue
 	if cfg.Speech {
-		es, err := speech.FindEspeak(cfg.Voice, cfg.SpeechRate)
+		v, overridden := VoiceFor(cfg.Voice, ear)
+		if overridden {
+			log.Warn("the bench's voice is not of its language; speaking with the language's", "voice", cfg.Voice, "language", ear.Language(), "using", v)
+		}
+		es, err := speech.FindEspeak(v, cfg.SpeechRate)
 		if err != nil {
 			log.Warn("speech off", "err", err)
 		} else {
@@ -70,7 +107,9 @@ func Open(cfg Config, clk clock.Clock, term Terminal, log *slog.Logger) (panel.P
 		if voice != nil {
 			v = voice
 		}
-		p, err := gpiopanel.New(cfg.Config, clk, v, log)
+		gc := cfg.Config
+		gc.Ear = ear
+		p, err := gpiopanel.New(gc, clk, v, log)
 		if err != nil {
 			closeVoice()
 			return nil, err
@@ -83,7 +122,7 @@ func Open(cfg Config, clk clock.Clock, term Terminal, log *slog.Logger) (panel.P
 			v = voice
 		}
 		if term.In == nil && term.Out == nil {
-			return termpanel.NewStdio(clk, v), nil
+			return termpanel.NewStdio(clk, v, ear), nil
 		}
 		in, out := term.In, term.Out
 		if in == nil {
@@ -92,7 +131,7 @@ func Open(cfg Config, clk clock.Clock, term Terminal, log *slog.Logger) (panel.P
 		if out == nil {
 			out = os.Stdout
 		}
-		return termpanel.New(in, out, termpanel.Options{Clock: clk, Voice: v}), nil
+		return termpanel.New(in, out, termpanel.Options{Clock: clk, Voice: v, Ear: ear}), nil
 	}
 	closeVoice()
 	return nil, fmt.Errorf("panel kind %q: want %q or %q", cfg.Kind, KindGPIO, KindTerminal)

@@ -12,6 +12,8 @@ import (
 
 	"kermalux/drivers/clock"
 	"kermalux/firmware-host/panel/gpiopanel"
+	"kermalux/firmware-host/panel/speech"
+	"kermalux/procedures/catalog"
 	"kermalux/procedures/panel"
 )
 
@@ -82,5 +84,65 @@ voice: en-gb
 		c.LongPress != 2*time.Second || c.DoublePress != 400*time.Millisecond ||
 		c.Buzzer != "GPIO25" || !c.Speech || c.Voice != "en-gb" || c.FaultLED != "GPIO24" {
 		t.Errorf("decoded %+v", c)
+	}
+}
+
+// The bench's language chooses the espeak-ng voice: a bench voice of
+// that language (a variant, a region) is kept, one of another language
+// is replaced by the language's own (espeak-ng's voice names: de, fr,
+// en-gb, with +variant; espeak-ng documentation, voices), and English
+// keeps whatever the bench says.
+func TestVoiceFor(t *testing.T) {
+	de, err := catalog.Builtin("de")
+	if err != nil {
+		t.Fatal(err)
+	}
+	fr, err := catalog.Builtin("fr")
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, tc := range []struct {
+		bench string
+		c     *catalog.Catalog
+		want  string
+		over  bool
+	}{
+		{"", nil, "", false},
+		{"en-gb", nil, "en-gb", false},
+		{"", de, "de", false},
+		{"en-gb", de, "de", true},
+		{"de+f3", de, "de+f3", false},
+		{"fr-be", fr, "fr-be", false},
+		{"de", fr, "fr", true},
+	} {
+		var ear *speech.Ear
+		if !tc.c.IsEnglish() {
+			ear = speech.NewEar(tc.c)
+		}
+		got, over := VoiceFor(tc.bench, ear)
+		if got != tc.want || over != tc.over {
+			t.Errorf("VoiceFor(%q, %s) = %q, %v; want %q, %v", tc.bench, ear.Language(), got, over, tc.want, tc.over)
+		}
+	}
+}
+
+// A terminal panel opened for a German bench shows its own texts in
+// German.
+func TestOpenInBenchLanguage(t *testing.T) {
+	de, err := catalog.Builtin("de")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var out bytes.Buffer
+	p, err := Open(Config{Kind: KindTerminal, Messages: de}, clock.NewManual(t0), Terminal{In: strings.NewReader("\n"), Out: &out}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer p.Close()
+	if _, err := p.Ask(context.Background(), panel.Prompt{Message: panel.Message{Text: "Schürze an?"}}); err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(out.String(), "Enter = erledigt") {
+		t.Errorf("not German keys:\n%s", out.String())
 	}
 }

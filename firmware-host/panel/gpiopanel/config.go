@@ -5,6 +5,8 @@ import (
 	"time"
 
 	"periph.io/x/conn/v3/gpio"
+
+	"kermalux/firmware-host/panel/speech"
 )
 
 // Config names the board's pins and sets the foot switch's timing. Pin
@@ -38,6 +40,10 @@ type Config struct {
 
 	Buzzer          string `yaml:"buzzer" json:"buzzer"`
 	BuzzerActiveLow bool   `yaml:"buzzer_active_low" json:"buzzer_active_low"`
+
+	// Ear is the engineer's language (set by compose from the bench's):
+	// what the voice says, in its words. nil: English.
+	Ear *speech.Ear `yaml:"-" json:"-"`
 }
 
 // Defaults used for zero fields.

@@ -25,7 +25,6 @@ import (
 	"periph.io/x/host/v3"
 
 	"kermalux/drivers/clock"
-	"kermalux/firmware-host/panel/speech"
 	"kermalux/procedures/panel"
 )
 
@@ -178,7 +177,7 @@ func (p *Panel) Say(ctx context.Context, m panel.Message) error {
 		return ErrClosed
 	}
 	if p.voice != nil {
-		p.voice.Say(speech.ForEar(m.Text), m.Level == panel.Alarm)
+		p.voice.Say(p.cfg.Ear.ForEar(m.Text), m.Level == panel.Alarm)
 	}
 	if p.beep != nil {
 		switch m.Level {
@@ -211,7 +210,7 @@ func (p *Panel) Ask(ctx context.Context, pr panel.Prompt) (panel.Response, error
 	defer p.askMu.Unlock()
 
 	if p.voice != nil {
-		p.voice.Say(speech.PromptText(pr, true), pr.Level == panel.Alarm)
+		p.voice.Say(p.cfg.Ear.PromptText(pr, true), pr.Level == panel.Alarm)
 	}
 	if p.beep != nil && !p.speaking() {
 		p.beep.beep(BeepPrompt, false)
@@ -219,7 +218,7 @@ func (p *Panel) Ask(ctx context.Context, pr panel.Prompt) (panel.Response, error
 	ans, err := p.sw.press(ctx, func() {
 		p.log.Warn("foot switch held down at a prompt; waiting for release", "pin", p.cfg.Switch)
 		if p.voice != nil {
-			p.voice.Say("The foot switch is held down. Release it.", false)
+			p.voice.Say(p.cfg.Ear.ForEar(p.cfg.Ear.Text("The foot switch is held down. Release it.")), false)
 		}
 	})
 	if err != nil {

@@ -12,6 +12,8 @@ import (
 	"periph.io/x/conn/v3/gpio/gpiotest"
 
 	"kermalux/drivers/clock"
+	"kermalux/firmware-host/panel/speech"
+	"kermalux/procedures/catalog"
 	"kermalux/procedures/panel"
 )
 
@@ -421,6 +423,31 @@ func TestConfigChecks(t *testing.T) {
 		_, err := NewWithLookup(tc.cfg, clock.NewManual(t0), nil, nil, b.lookup)
 		if err == nil || !strings.Contains(err.Error(), tc.want) {
 			t.Errorf("%s: err = %v, want one mentioning %q", tc.name, err, tc.want)
+		}
+	}
+}
+
+// A French board says the held-switch warning, an offered value and its
+// cue in French, the number with "virgule" (the expected words written by
+// hand: procedures/catalog/lang/fr/panel.yaml, and the SI Brochure's
+// French unit names).
+func TestSaysInTheBenchLanguage(t *testing.T) {
+	t.Parallel()
+	c, err := catalog.Builtin("fr")
+	if err != nil {
+		t.Fatal(err)
+	}
+	sw := &switchPin{startDown: true, changes: []time.Duration{4000 * ms, 4200 * ms, 4300 * ms}}
+	b, p := newBench(t, Config{Ear: speech.NewEar(c)}, sw)
+	_, err = p.Ask(context.Background(), panel.Prompt{Message: panel.Message{Text: "Pression de l'air."},
+		Value: &panel.ValueRequest{Name: "pressure", Unit: "kPa", Default: 101.3, HasDef: true, Min: 80, Max: 110}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	said := strings.Join(b.voice.said, "|")
+	for _, want := range []string{"Pression de l'air. 101 virgule 3 kilopascals. Appuyez pour accepter.", "Le bouton au pied reste enfoncé. Relâchez-le."} {
+		if !strings.Contains(said, want) {
+			t.Errorf("not said: %q; said %q", want, said)
 		}
 	}
 }

@@ -16,7 +16,7 @@ func FuzzParseValue(f *testing.F) {
 	}
 	v := &panel.ValueRequest{Name: "temperature", Unit: "°C", Default: 21.5, HasDef: true, Min: 10, Max: 40}
 	f.Fuzz(func(t *testing.T, s string) {
-		x, msg := parseValue(strings.TrimSpace(s), v)
+		x, msg := (&Panel{}).parseValue(strings.TrimSpace(s), v)
 		if msg != "" {
 			return
 		}

@@ -19,6 +19,7 @@ import (
 	"strconv"
 	"strings"
 	"sync"
+	"unicode/utf8"
 
 	"kermalux/drivers/clock"
 	"kermalux/firmware-host/panel/speech"
@@ -43,6 +44,10 @@ type Options struct {
 	// for a person at a keyboard, not for piped input.
 	DiscardTypeAhead bool
 	Voice            Voice // optional speech
+	// Ear is the engineer's language: the panel's own texts (keys,
+	// progress, status) from its catalog, numbers with its decimal
+	// separator, and what the voice says in its words. nil: English.
+	Ear *speech.Ear
 }
 
 // Panel is the terminal panel. Only one Ask may wait at a time.
@@ -51,6 +56,11 @@ type Panel struct {
 	opt Options
 	clk clock.Clock
 	in  *input
+
+	// tagWidth is the widest level tag in the panel's language; indent
+	// puts a line under the text, past "15:04:05  info   ".
+	tagWidth int
+	indent   string
 
 	mu        sync.Mutex
 	indicator panel.Indicator
@@ -65,16 +75,33 @@ func New(in io.Reader, out io.Writer, opt Options) *Panel {
 	if opt.Clock == nil {
 		opt.Clock = clock.NewReal()
 	}
-	return &Panel{out: out, opt: opt, clk: opt.Clock, in: newInput(in)}
+	p := &Panel{out: out, opt: opt, clk: opt.Clock, in: newInput(in)}
+	for _, l := range label {
+		p.tagWidth = max(p.tagWidth, utf8.RuneCountInString(p.tr(l.tag)))
+	}
+	for _, t := range []string{askTag, stateTag} {
+		p.tagWidth = max(p.tagWidth, utf8.RuneCountInString(p.tr(t)))
+	}
+	p.indent = strings.Repeat(" ", len("15:04:05  ")+p.tagWidth+2)
+	return p
 }
+
+// tr is the panel's own text src in its language.
+func (p *Panel) tr(src string) string { return p.opt.Ear.Text(src) }
+
+// tf formats a catalogued format in the panel's language.
+func (p *Panel) tf(format string, a ...any) string { return fmt.Sprintf(p.tr(format), a...) }
+
+// num writes x as the panel's language writes a number.
+func (p *Panel) num(x float64) string { return p.opt.Ear.Number(fmtNum(x)) }
 
 // NewStdio returns a panel on standard input and output, with colour when
 // standard output is a terminal and NO_COLOR is not set, and echo when
 // standard input is not a terminal.
-func NewStdio(clk clock.Clock, voice Voice) *Panel {
+func NewStdio(clk clock.Clock, voice Voice, ear *speech.Ear) *Panel {
 	color := isTerminal(os.Stdout) && os.Getenv("NO_COLOR") == ""
 	tty := isTerminal(os.Stdin)
-	return New(os.Stdin, os.Stdout, Options{Clock: clk, Color: color, Echo: !tty, DiscardTypeAhead: tty, Voice: voice})
+	return New(os.Stdin, os.Stdout, Options{Clock: clk, Color: color, Echo: !tty, DiscardTypeAhead: tty, Voice: voice, Ear: ear})
 }
 
 func isTerminal(f *os.File) bool {
@@ -249,16 +276,21 @@ const (
 	ansiCyan   = "\x1b[36m"
 )
 
-// label is the printed tag and colour of each level.
+// label is the printed tag and colour of each level (its English text:
+// the panel prints it in its language, padded to the widest).
 var label = map[panel.Level]struct{ tag, color string }{
-	panel.Info:  {"info ", ""},
-	panel.Good:  {"good ", ansiGreen},
+	panel.Info:  {"info", ""},
+	panel.Good:  {"good", ansiGreen},
 	panel.Retry: {"again", ansiYellow},
-	panel.Warn:  {"WARN ", ansiBold + ansiYellow},
+	panel.Warn:  {"WARN", ansiBold + ansiYellow},
 	panel.Alarm: {"ALARM", ansiBold + ansiRed},
 }
 
-const indent = "                 " // under the text, past "15:04:05  info   "
+// askTag is the tag of a prompt, stateTag of the board's status.
+const (
+	askTag   = "ask"
+	stateTag = "state"
+)
 
 func (p *Panel) paint(color, s string) string {
 	if !p.opt.Color || color == "" {
@@ -268,6 +300,10 @@ func (p *Panel) paint(color, s string) string {
 }
 
 func (p *Panel) line(tag, color, text string) {
+	tag = p.tr(tag)
+	if n := utf8.RuneCountInString(tag); n < p.tagWidth {
+		tag += strings.Repeat(" ", p.tagWidth-n)
+	}
 	fmt.Fprintf(p.out, "%s  %s  %s\n", p.clk.Now().Format("15:04:05"), p.paint(color, tag), p.paint(color, text))
 }
 
@@ -285,7 +321,7 @@ func (p *Panel) Say(ctx context.Context, m panel.Message) error {
 	}
 	p.line(l.tag, l.color, m.Text)
 	if p.opt.Voice != nil {
-		p.opt.Voice.Say(speech.ForEar(m.Text), m.Level == panel.Alarm)
+		p.opt.Voice.Say(p.opt.Ear.ForEar(m.Text), m.Level == panel.Alarm)
 	}
 	return nil
 }
@@ -303,7 +339,11 @@ func (p *Panel) isClosed() bool {
 // counted) when the prompt carries it, with the part of a sequence and the
 // line of a checklist: "part 4 of 7, Conversion factor in each field mode;
 // step 12 of 41 — next: ...", "step 2 of 41, line 3 of 4".
-func Progress(pr panel.Prompt) string {
+func Progress(pr panel.Prompt) string { return progressIn(nil, pr) }
+
+// progressIn is the progress line in the ear's language.
+func progressIn(ear *speech.Ear, pr panel.Prompt) string {
+	tf := func(format string, a ...any) string { return fmt.Sprintf(ear.Text(format), a...) }
 	step, of := pr.Step, pr.Of
 	if pr.Tasks > 0 {
 		step, of = pr.Task, pr.Tasks
@@ -311,15 +351,15 @@ func Progress(pr panel.Prompt) string {
 	if of <= 0 {
 		return ""
 	}
-	s := fmt.Sprintf("step %d of %d", step, of)
+	s := tf("step %d of %d", step, of)
 	if pr.Lines > 1 && pr.Line > 0 {
-		s += fmt.Sprintf(", line %d of %d", pr.Line, pr.Lines)
+		s = tf("%s, line %d of %d", s, pr.Line, pr.Lines)
 	}
 	if pr.Parts > 1 && pr.Part > 0 {
-		s = fmt.Sprintf("part %d of %d, %s; ", pr.Part, pr.Parts, pr.PartTitle) + s
+		s = tf("part %d of %d, %s; %s", pr.Part, pr.Parts, pr.PartTitle, s)
 	}
 	if pr.Next != "" {
-		s += " — next: " + pr.Next
+		s = tf("%s — next: %s", s, pr.Next)
 	}
 	return s
 }
@@ -337,30 +377,31 @@ func (p *Panel) Ask(ctx context.Context, pr panel.Prompt) (panel.Response, error
 	p.askMu.Lock()
 	defer p.askMu.Unlock()
 
-	if s := Progress(pr); s != "" {
+	indent := p.indent
+	if s := progressIn(p.opt.Ear, pr); s != "" {
 		fmt.Fprintf(p.out, "%s%s\n", indent, p.paint(ansiCyan, "["+s+"]"))
 	}
 	l, ok := label[pr.Level]
 	if !ok || pr.Level == panel.Info || pr.Level == "" {
-		l = struct{ tag, color string }{"ask  ", ansiBold}
+		l = struct{ tag, color string }{askTag, ansiBold}
 	}
 	p.line(l.tag, l.color, pr.Text)
 	if p.opt.Voice != nil {
-		p.opt.Voice.Say(speech.PromptText(pr, false), pr.Level == panel.Alarm)
+		p.opt.Voice.Say(p.opt.Ear.PromptText(pr, false), pr.Level == panel.Alarm)
 	}
 	v := pr.Value
 	switch {
 	case pr.Action == panel.ActMenu:
-		fmt.Fprintf(p.out, "%s%s\n", indent, menuKeysLine)
+		fmt.Fprintf(p.out, "%s%s\n", indent, p.tr(menuKeysLine))
 	case v == nil:
-		fmt.Fprintf(p.out, "%s%s\n", indent, keysLine)
+		fmt.Fprintf(p.out, "%s%s\n", indent, p.tr(keysLine))
 	default:
-		def := "no default: type a number"
+		def := p.tr("no default: type a number")
 		if v.HasDef {
-			def = fmt.Sprintf("Enter = %s", fmtNum(v.Default))
+			def = p.tf("Enter = %s", p.num(v.Default))
 		}
-		fmt.Fprintf(p.out, "%s%s in %s, %s to %s; %s; a = again, r = retake, p = pause, q = abort\n",
-			indent, v.Name, v.Unit, fmtNum(v.Min), fmtNum(v.Max), def)
+		fmt.Fprintf(p.out, "%s%s\n", indent, p.tf("%s in %s, %s to %s; %s; a = again, r = retake, p = pause, q = abort",
+			p.tr(v.Name), v.Unit, p.num(v.Min), p.num(v.Max), def))
 	}
 	// Whatever was typed before the prompt was on the screen answers
 	// nothing.
@@ -382,7 +423,7 @@ func (p *Panel) Ask(ctx context.Context, pr panel.Prompt) (panel.Response, error
 		case "a":
 			return p.answer(panel.Repeat, 0), nil
 		case "q":
-			fmt.Fprintf(p.out, "%sAbort the session? Type q again to abort, Enter to carry on.\n", indent)
+			fmt.Fprintf(p.out, "%s%s\n", indent, p.tr("Abort the session? Type q again to abort, Enter to carry on."))
 			p.discardTypeAhead()
 			fmt.Fprint(p.out, "> ")
 			s, err := p.readLine(ctx)
@@ -393,17 +434,17 @@ func (p *Panel) Ask(ctx context.Context, pr panel.Prompt) (panel.Response, error
 			if strings.ToLower(strings.TrimSpace(s)) == "q" {
 				return p.answer(panel.Abort, 0), nil
 			}
-			fmt.Fprintf(p.out, "%sCarrying on.\n", indent)
+			fmt.Fprintf(p.out, "%s%s\n", indent, p.tr("Carrying on."))
 			continue
 		}
 		if v == nil {
 			if key == "" {
 				return p.answer(panel.Ack, 0), nil
 			}
-			fmt.Fprintf(p.out, "%s%q is not a key here. %s.\n", indent, s, keysLine)
+			fmt.Fprintf(p.out, "%s%s\n", indent, p.tf("%q is not a key here. %s.", s, p.tr(keysLine)))
 			continue
 		}
-		x, msg := parseValue(key, v)
+		x, msg := p.parseValue(key, v)
 		if msg != "" {
 			fmt.Fprintf(p.out, "%s%s\n", indent, msg)
 			continue
@@ -416,19 +457,19 @@ func (p *Panel) Ask(ctx context.Context, pr panel.Prompt) (panel.Response, error
 
 // parseValue reads a typed value (a comma is taken as the decimal point);
 // msg is why it was refused.
-func parseValue(s string, v *panel.ValueRequest) (x float64, msg string) {
+func (p *Panel) parseValue(s string, v *panel.ValueRequest) (x float64, msg string) {
 	if s == "" {
 		if v.HasDef {
 			return v.Default, ""
 		}
-		return 0, fmt.Sprintf("There is no default for %s: type a number from %s to %s %s.", v.Name, fmtNum(v.Min), fmtNum(v.Max), v.Unit)
+		return 0, p.tf("There is no default for %s: type a number from %s to %s %s.", p.tr(v.Name), p.num(v.Min), p.num(v.Max), v.Unit)
 	}
 	x, err := strconv.ParseFloat(strings.ReplaceAll(s, ",", "."), 64)
 	if err != nil || math.IsNaN(x) || math.IsInf(x, 0) {
-		return 0, fmt.Sprintf("%q is not a number. Type %s in %s, or Enter for the default.", s, v.Name, v.Unit)
+		return 0, p.tf("%q is not a number. Type %s in %s, or Enter for the default.", s, p.tr(v.Name), v.Unit)
 	}
 	if x < v.Min || x > v.Max {
-		return 0, fmt.Sprintf("%s %s is outside %s to %s %s; type a value in that range.", fmtNum(x), v.Unit, fmtNum(v.Min), fmtNum(v.Max), v.Unit)
+		return 0, p.tf("%s %s is outside %s to %s %s; type a value in that range.", p.num(x), v.Unit, p.num(v.Min), p.num(v.Max), v.Unit)
 	}
 	return x, ""
 }
@@ -465,7 +506,7 @@ func (p *Panel) Indicate(ctx context.Context, on panel.Indicator) error {
 	p.indicator = on
 	p.mu.Unlock()
 	if changed {
-		p.line("state", w.color, w.text)
+		p.line(stateTag, w.color, p.tr(w.text))
 	}
 	return nil
 }

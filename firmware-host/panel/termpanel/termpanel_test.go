@@ -13,6 +13,8 @@ import (
 	"time"
 
 	"kermalux/drivers/clock"
+	"kermalux/firmware-host/panel/speech"
+	"kermalux/procedures/catalog"
 	"kermalux/procedures/panel"
 )
 
@@ -170,13 +172,13 @@ func TestParseValue(t *testing.T) {
 		{"25", noDef, 25, ""},
 	}
 	for _, tc := range tests {
-		got, msg := parseValue(tc.in, tc.v)
+		got, msg := (&Panel{}).parseValue(tc.in, tc.v)
 		if tc.refuse == "" {
 			if msg != "" || got != tc.want {
-				t.Errorf("parseValue(%q) = %g, %q; want %g accepted", tc.in, got, msg, tc.want)
+				t.Errorf("(&Panel{}).parseValue(%q) = %g, %q; want %g accepted", tc.in, got, msg, tc.want)
 			}
 		} else if !strings.Contains(msg, tc.refuse) {
-			t.Errorf("parseValue(%q): message %q, want one containing %q", tc.in, msg, tc.refuse)
+			t.Errorf("(&Panel{}).parseValue(%q): message %q, want one containing %q", tc.in, msg, tc.refuse)
 		}
 	}
 }
@@ -335,5 +337,56 @@ func TestProgress(t *testing.T) {
 		if got := Progress(tc.pr); got != tc.want {
 			t.Errorf("Progress(%+v) = %q, want %q", tc.pr, got, tc.want)
 		}
+	}
+}
+
+// A German panel shows its own texts in German (keys, progress, status,
+// refusals, level tags aligned to the widest), numbers with a decimal
+// comma, and says the messages with German unit words. The expected lines
+// are written by hand (the German of procedures/catalog/lang/de/panel.yaml;
+// a typed comma or point is read as the decimal separator either way).
+func TestDialogueInGerman(t *testing.T) {
+	t.Parallel()
+	c, err := catalog.Builtin("de")
+	if err != nil {
+		t.Fatal(err)
+	}
+	input := "x\n55\n\nz\n"
+	var out bytes.Buffer
+	clk := clock.NewManual(t0)
+	voice := &voiceLog{}
+	p := New(strings.NewReader(input), &out, Options{Clock: clk, Voice: voice, Ear: speech.NewEar(c)})
+	ctx := context.Background()
+	if err := p.Indicate(ctx, panel.BeamOn); err != nil {
+		t.Fatal(err)
+	}
+	if err := p.Say(ctx, panel.Message{Text: "Strahlung seit 4 min 30 s.", Level: panel.Warn}); err != nil {
+		t.Fatal(err)
+	}
+	r, err := p.Ask(ctx, panel.Prompt{Message: panel.Message{Text: "Raumtemperatur."}, Step: 2, Of: 31, Next: "Luftdruck", Value: temperature()})
+	if err != nil || r.Value != 21.5 {
+		t.Fatalf("value prompt: %+v, %v", r, err)
+	}
+	if _, err := p.Ask(ctx, panel.Prompt{Message: panel.Message{Text: "Schürze an?"}, Task: 3, Tasks: 31, Line: 2, Lines: 4}); err == nil {
+		t.Fatal("want the end of input")
+	}
+	got := out.String()
+	for _, want := range []string{
+		"09:00:00  Status   STRAHLUNG EIN\n",
+		"09:00:00  WARNUNG  Strahlung seit 4 min 30 s.\n",
+		"                   [Schritt 2 von 31 — als Nächstes: Luftdruck]\n",
+		"09:00:00  Frage    Raumtemperatur.\n",
+		"                   Temperatur in °C, 10 bis 40; Enter = 21,5; a = noch einmal, r = wiederholen, p = Pause, q = abbrechen\n",
+		`"x" ist keine Zahl. Temperatur in °C eingeben, oder Enter für den Vorgabewert.`,
+		"55 °C liegt außerhalb von 10 bis 40 °C; einen Wert in diesem Bereich eingeben.",
+		"[Schritt 3 von 31, Zeile 2 von 4]",
+		`"z" ist hier keine gültige Taste. Enter = erledigt, a = noch einmal, r = wiederholen, p = Pause, q = abbrechen.`,
+	} {
+		if !strings.Contains(got, want) {
+			t.Errorf("screen lacks %q; shown:\n%s", want, got)
+		}
+	}
+	if said := strings.Join(voice.said, "\n"); !strings.Contains(said, "Strahlung seit 4 Minuten 30 Sekunden.") {
+		t.Errorf("speech lacks the German unit words; said:\n%s", said)
 	}
 }
