@@ -165,16 +165,31 @@ func Push(ctx context.Context, src Source, opts Options) (sum Summary, err error
 		resp, n, err := p.send(ctx, marks.Store, pending, marks.Marks)
 		sum.WireBytes += n
 		if err == nil {
-			for id, high := range resp.High {
-				if m := marks.Marks[id]; high > m.Seq {
+			progressed := false
+			for _, s := range pending {
+				high, ok := resp.High[s.ID]
+				if !ok {
+					continue
+				}
+				if high > s.Last {
+					return sum, fmt.Errorf("push to %s: the workstation's answer says it holds record %d of session %s, the journal ends at record %d", p.base, high, s.ID, s.Last)
+				}
+				if m := marks.Marks[s.ID]; high > m.Seq {
 					sum.Sent += high - m.Seq
 					prog.Add(int(high - m.Seq))
-					marks.Marks[id] = wire.Mark{Seq: high}
+					marks.Marks[s.ID] = wire.Mark{Seq: high}
+					progressed = true
 				}
 			}
-			sum.Duplicates += resp.Duplicates
-			failures = 0
-			continue
+			sum.Duplicates += max(resp.Duplicates, 0)
+			if progressed {
+				failures = 0
+				continue
+			}
+			// A 200 that stores nothing of what was sent (an empty
+			// answer, a proxy's page) is no progress: sending again
+			// and again would never end.
+			err = fmt.Errorf("the workstation answered 200 but holds none of the %d sessions' new records", len(pending))
 		}
 		if !retryable(err) || ctx.Err() != nil {
 			return sum, fmt.Errorf("push to %s: %w", p.base, err)
@@ -193,13 +208,20 @@ func Push(ctx context.Context, src Source, opts Options) (sum Summary, err error
 		if err != nil {
 			continue // the next attempt at sending will tell
 		}
-		for id, nm := range m.Marks {
-			if old := marks.Marks[id]; nm.Seq > old.Seq {
+		for _, s := range pending {
+			nm, ok := m.Marks[s.ID]
+			if !ok {
+				continue
+			}
+			if err := p.checkFork(ctx, s, nm); err != nil {
+				return sum, err
+			}
+			if old := marks.Marks[s.ID]; nm.Seq > old.Seq {
 				sum.Sent += nm.Seq - old.Seq
 				prog.Add(int(nm.Seq - old.Seq))
 				failures = 0
 			}
-			marks.Marks[id] = nm
+			marks.Marks[s.ID] = nm
 		}
 	}
 }
@@ -281,7 +303,14 @@ func (p *pusher) marks(ctx context.Context, ids []string) (wire.MarksResponse, e
 			return out, err
 		}
 		out.Store = resp.Store
-		for id, m := range resp.Marks {
+		for _, id := range ids[:n] {
+			m, ok := resp.Marks[id]
+			if !ok {
+				continue // not stored yet: mark 0
+			}
+			if m.Seq < 0 {
+				return out, fmt.Errorf("POST %s%s: the answer gives session %s the mark %d: a mark is a record's number, 0 or more", p.base, wire.PathMarks, id, m.Seq)
+			}
 			out.Marks[id] = m
 		}
 		ids = ids[n:]
