@@ -1049,6 +1049,13 @@ func (e *Engine) beamOff(ctx context.Context, a *attempt) {
 	_ = e.cfg.Panel.Indicate(ctx, panel.Ready)
 }
 
+// beamCheckpoint is how much beam-on passes between two journalled
+// values of the running timer (evBeamCount). The readings of an exposure
+// being sampled are held until it ends, so without these a power cut lost
+// the exposure's beam-on so far; now it loses at most this and one reading
+// period. One write a second of beam costs little beside the readings'.
+const beamCheckpoint = time.Second
+
 // tick advances the cumulative beam-on timer to t and speaks its marks:
 // the time every SpeakEvery, a warning at BeamWarn and the alarm every
 // BeamAlarm of cumulative beam-on (21 CFR 1020.32(h)).
@@ -1064,6 +1071,15 @@ func (e *Engine) tick(ctx context.Context, a *attempt, t time.Duration) error {
 	}
 	st.beamOn += t - a.lastSig
 	a.lastSig = t
+	if st.beamOn >= st.nextCount && a.phase != phReleasing {
+		// Queued, not written now: it goes with the next write, at the
+		// latest before the next wait for a meter (one reading period).
+		// Not while the beam is released: the live count then runs on
+		// through the meters' fall, which the exposure's edges take out
+		// at beam_off (its readings, journalled, time it for a resume).
+		st.nextCount = st.beamOn + beamCheckpoint
+		e.pending = append(e.pending, entry.Item{Kind: entry.KindEvent, Payload: entry.Event{Step: a.idx, Name: evBeamCount, BeamOn: st.beamOn.Seconds()}})
+	}
 	if st.beamOn >= st.nextAlarm {
 		st.setBeamOn(st.beamOn, l)
 		_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: a.idx, Name: evBeamAlarm, Detail: "cumulative beam-on " + spokenDuration(st.beamOn), BeamOn: st.beamOn.Seconds()})

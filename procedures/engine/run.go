@@ -25,6 +25,9 @@ const (
 	evBeamWarning = "beam_warning"
 	evBeamAlarm   = "beam_alarm"
 	evBeamTime    = "beam_time"
+	// evBeamCount: the running beam-on timer, journalled every
+	// beamCheckpoint of beam-on so that a power cut loses little of it.
+	evBeamCount   = "beam_count"
 	evKermaRange  = "kerma_out_of_range"
 	evDiscarded   = "samples_discarded"
 	evPaused      = "paused"

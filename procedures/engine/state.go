@@ -123,6 +123,7 @@ type state struct {
 	nextSpeak time.Duration
 	nextWarn  time.Duration
 	nextAlarm time.Duration
+	nextCount time.Duration // beam-on at which the timer is next journalled (evBeamCount)
 	resumed   bool
 }
 
@@ -130,7 +131,7 @@ func newState(l Limits) *state {
 	return &state{
 		done: map[int]bool{}, values: map[string]float64{}, origins: map[string]valueOrigin{}, meas: map[string][]posStat{},
 		results: map[string]entry.Result{}, darks: map[string]DarkLevel{},
-		nextSpeak: l.SpeakEvery, nextWarn: l.BeamWarn, nextAlarm: l.BeamAlarm,
+		nextSpeak: l.SpeakEvery, nextWarn: l.BeamWarn, nextAlarm: l.BeamAlarm, nextCount: beamCheckpoint,
 	}
 }
 
@@ -139,6 +140,7 @@ func (st *state) setBeamOn(d time.Duration, l Limits) {
 	st.beamOn = d
 	st.nextSpeak = (d/l.SpeakEvery + 1) * l.SpeakEvery
 	st.nextAlarm = (d/l.BeamAlarm + 1) * l.BeamAlarm
+	st.nextCount = d + beamCheckpoint
 	st.nextWarn = st.nextAlarm - l.BeamAlarm + l.BeamWarn
 	if st.nextWarn <= d {
 		st.nextWarn = st.nextAlarm + l.BeamWarn
@@ -177,6 +179,16 @@ func (e *Engine) rebuild(ctx context.Context, id string) (*state, resumeInfo, er
 	st.resumed = true
 	steps := e.cfg.Procedure.Steps
 	var beam float64
+	// An exposure the journal saw begin (beam_on) and not end: a power
+	// cut came during it. Its beam-on counts up to its last journalled
+	// reading, of the same boot (the monotonic clock starts again at a
+	// boot), besides the timer checkpoints (evBeamCount) the events give.
+	var open struct {
+		on         bool
+		base       float64 // cumulative beam-on at beam_on, s
+		mono, last time.Duration
+		boot       string
+	}
 	checks := map[int64]entry.Prompt{} // "check" prompts by seq
 	acked := map[int]map[string]bool{} // step index → lines acknowledged since it started
 	safeDone := map[int]bool{}         // safety steps done with every line acknowledged
@@ -277,6 +289,17 @@ func (e *Engine) rebuild(ctx context.Context, id string) (*state, resumeInfo, er
 			if ev.BeamOn > beam {
 				beam = ev.BeamOn
 			}
+			switch {
+			case ev.Name == evBeamOn:
+				open.on, open.base, open.mono, open.last, open.boot = true, ev.BeamOn, env.Mono, env.Mono, env.BootID
+			case ev.Name == evBeamOff:
+				// The exposure timed from its edges: the live count
+				// before it, which ran through the meters' fall, is
+				// superseded.
+				beam, open.on = ev.BeamOn, false
+			case ev.Name == evPhase && (ev.Detail == string(phOff) || ev.Detail == string(phWaiting)):
+				open.on = false
+			}
 			if ev.Name == evMeasured {
 				var p posStat
 				if err := json.Unmarshal([]byte(ev.Detail), &p); err != nil {
@@ -284,6 +307,14 @@ func (e *Engine) rebuild(ctx context.Context, id string) (*state, resumeInfo, er
 				}
 				p.migrate()
 				st.putPos(p)
+			}
+		case entry.KindReading:
+			if open.on && env.BootID == open.boot {
+				var r entry.Reading
+				if err := json.Unmarshal(env.Payload, &r); err != nil {
+					return nil, info, unreadable(env, err)
+				}
+				open.last = max(open.last, r.Mono)
 			}
 		case entry.KindResult:
 			var r entry.Result
@@ -301,6 +332,9 @@ func (e *Engine) rebuild(ctx context.Context, id string) (*state, resumeInfo, er
 				st.results[sid] = r
 			}
 		}
+	}
+	if open.on {
+		beam = max(beam, open.base+(open.last-open.mono).Seconds())
 	}
 	st.checklist = len(safeDone) > 0
 	last := envs[len(envs)-1]

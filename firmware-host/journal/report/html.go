@@ -141,7 +141,7 @@ func (r *Report) view(opt Options, use chartUse) htmlView {
 		// Beam on/off are in the exposures table; the beam-time
 		// announcements and the engine's measurement bookkeeping (for
 		// resuming) repeat what the readings and results already show.
-		if e.Name == "beam_on" || e.Name == "beam_off" || e.Name == "beam_time" || e.Name == "measurement_done" {
+		if e.Name == "beam_on" || e.Name == "beam_off" || e.Name == "beam_time" || e.Name == "beam_count" || e.Name == "measurement_done" {
 			continue
 		}
 		v.Events = append(v.Events, eventRow{Event: e, What: capitalised(eventWords(e.Name)), Beam: true})
