@@ -36,8 +36,10 @@ const (
 
 // kindDef is one entry of the table of step kinds: what the parser, the
 // checker and Flatten know about a kind is here or in a function named
-// here, so that a new kind is a new entry (and, in the engine, its
-// conversion in engine.FromFlat and what the engine does with it).
+// here (kind_<kind>.go), so that a new kind is a new entry; the engine
+// has the other side of the table, each kind's conversion (fromScript in
+// procedures/engine/fromscript.go) beside what it does with the kind.
+// DEVELOPERS.md, "How to add a step kind", lists the steps.
 type kindDef struct {
 	kind Kind
 	// fields are the keys a step of the kind may have besides id and
