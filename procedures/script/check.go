@@ -183,14 +183,12 @@ func dedupe(ps Problems) Problems {
 // expander walks a procedure in run order, expanding includes and
 // repetitions, and collects problems on the way.
 type expander struct {
-	env    Env
-	res    Resolver
-	forRun bool
-	probs  Problems
-	steps  []FlatStep
-	byID   map[string]int
-	// origin maps a flat id to the written step it came from.
-	origin   map[string]*Step
+	env      Env
+	res      Resolver
+	forRun   bool
+	probs    Problems
+	steps    []FlatStep
+	byID     map[string]int
 	checked  map[*Procedure]bool
 	included map[string]bool
 	stack    []string
@@ -207,7 +205,7 @@ func newExpander(env Env, forRun bool) *expander {
 	if res == nil {
 		res = &DefaultResolver{}
 	}
-	return &expander{env: env, res: res, forRun: forRun, byID: map[string]int{}, origin: map[string]*Step{},
+	return &expander{env: env, res: res, forRun: forRun, byID: map[string]int{},
 		checked: map[*Procedure]bool{}, included: map[string]bool{}, entered: map[string]bool{}, partTitles: map[string]string{}}
 }
 
@@ -297,7 +295,6 @@ func (x *expander) step(p *Procedure, prefix string, s *Step, mode string, modes
 	}
 	if _, dup := x.byID[fs.ID]; !dup {
 		x.byID[fs.ID] = len(x.steps)
-		x.origin[fs.ID] = s
 	}
 	x.steps = append(x.steps, fs)
 	return fs.MaxBeam()
