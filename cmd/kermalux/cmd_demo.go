@@ -118,7 +118,10 @@ func runDemo(parent context.Context, w, errw io.Writer, o demoOptions, hasSeed b
 	}
 	var view *live.View
 	if o.live != "" {
-		if view, err = live.Listen(o.live, live.Options{}); errors.Is(err, live.ErrBadAddress) {
+		// The demo refuses an unknown language itself; the live view
+		// then shows English.
+		msgs, _ := catalog.Builtin(o.language)
+		if view, err = live.Listen(o.live, live.Options{Messages: msgs}); errors.Is(err, live.ErrBadAddress) {
 			return withCode(exitUsage, fmt.Errorf("--live: %w", err))
 		} else if err != nil {
 			return withCode(exitFailure, fmt.Errorf("--live: %w", err))

@@ -124,7 +124,7 @@ func runRun(parent context.Context, o runOptions, name string) error {
 	if o.live != "" {
 		// Opened first: a busy or wrong address stops here, before the
 		// journal, the panel or a meter is opened.
-		if view, err = live.Listen(o.live, live.Options{Procedure: proc}); errors.Is(err, live.ErrBadAddress) {
+		if view, err = live.Listen(o.live, live.Options{Procedure: proc, Messages: b.Messages()}); errors.Is(err, live.ErrBadAddress) {
 			return withCode(exitUsage, fmt.Errorf("--live: %w", err))
 		} else if err != nil {
 			return withCode(exitFailure, fmt.Errorf("--live: %w", err))

@@ -126,14 +126,21 @@ func (v *View) URLs() []string {
 // the pairing code, digit by digit so that it is heard clearly, and where
 // to open the page ("192.168.4.1 port 8471"). It never holds the token.
 func (v *View) Announcement() panel.Message {
-	var where []string
+	m := v.opts.Messages
+	tf := func(format string, a ...any) string { return fmt.Sprintf(m.Text(format), a...) }
+	where := ""
 	for _, u := range v.URLs() {
 		host, port, err := net.SplitHostPort(strings.TrimSuffix(strings.TrimPrefix(u, "http://"), "/"))
-		if err == nil {
-			where = append(where, host+" port "+port)
+		if err != nil {
+			continue
+		}
+		if at := tf("%s port %s", host, port); where == "" {
+			where = at
+		} else {
+			where = tf("%s or %s", where, at)
 		}
 	}
-	return panel.Message{Text: "Live view on. Pairing code " + v.srv.SpokenCode() + ". Open " + strings.Join(where, " or ") + " in a browser.", Level: panel.Info}
+	return panel.Message{Text: tf("Live view on. Pairing code %s. Open %s in a browser.", v.srv.SpokenCode(), where), Level: panel.Info}
 }
 
 // Printed is the text printed once on standard error at start: the

@@ -18,6 +18,7 @@ import (
 	"sync"
 	"time"
 
+	"kermalux/procedures/catalog"
 	"kermalux/procedures/engine"
 )
 
@@ -45,6 +46,10 @@ type Options struct {
 	// read is disconnected after it (0: 10 s).
 	WriteTimeout time.Duration
 	Log          *slog.Logger
+	// Messages is the engineer's language (the bench's): the page's own
+	// texts, the steps' texts and the journalled reasons it shows, and
+	// the announcement. nil: English.
+	Messages *catalog.Catalog
 }
 
 // Server serves the live page to paired browsers. It has no endpoint that
@@ -54,6 +59,8 @@ type Server struct {
 	j    *Journal
 	opts Options
 	log  *slog.Logger
+
+	pages renderedPages // the HTML in the engineer's language
 
 	mu       sync.Mutex
 	cookies  map[string]bool
@@ -94,7 +101,11 @@ func NewServer(hub *Hub, j *Journal, o Options) (*Server, error) {
 	if o.Log == nil {
 		o.Log = slog.Default()
 	}
-	return &Server{hub: hub, j: j, opts: o, log: o.Log, cookies: map[string]bool{}}, nil
+	pages, err := renderPages(o.Messages)
+	if err != nil {
+		return nil, err
+	}
+	return &Server{hub: hub, j: j, opts: o, log: o.Log, cookies: map[string]bool{}, pages: pages}, nil
 }
 
 // SetProcedure tells the page which procedure runs (its steps say what
@@ -157,7 +168,8 @@ func (s *Server) ServeHTTP(w http.ResponseWriter, r *http.Request) {
 	}
 	switch r.URL.Path {
 	case "/":
-		s.file(w, "page/index.html", "text/html; charset=utf-8")
+		w.Header().Set("Content-Type", "text/html; charset=utf-8")
+		_, _ = w.Write(s.pages.index)
 	case "/app.js":
 		s.file(w, "page/app.js", "text/javascript; charset=utf-8")
 	case "/events":
@@ -196,8 +208,7 @@ func (s *Server) refuse(w http.ResponseWriter, r *http.Request) {
 	}
 	w.Header().Set("Content-Type", "text/html; charset=utf-8")
 	w.WriteHeader(http.StatusUnauthorized)
-	b, _ := pageFS.ReadFile("page/pair.html")
-	_, _ = w.Write(b)
+	_, _ = w.Write(s.pages.pair)
 }
 
 func (s *Server) pair(w http.ResponseWriter, r *http.Request) {
@@ -213,8 +224,7 @@ func (s *Server) pair(w http.ResponseWriter, r *http.Request) {
 		s.fail(r, "code")
 		w.Header().Set("Content-Type", "text/html; charset=utf-8")
 		w.WriteHeader(http.StatusUnauthorized)
-		b, _ := pageFS.ReadFile("page/pair.html")
-		_, _ = w.Write(b)
+		_, _ = w.Write(s.pages.pair)
 		return
 	}
 	s.admit(w, r)
@@ -324,9 +334,9 @@ func (s *Server) events(w http.ResponseWriter, r *http.Request) {
 	s.mu.Unlock()
 	steps := make([]stepInfo, len(proc.Steps))
 	for i, st := range proc.Steps {
-		steps[i] = stepInfo{ID: st.ID, Kind: string(st.Kind), Text: firstSentence(st.Text), FieldMode: st.FieldMode}
+		steps[i] = stepInfo{ID: st.ID, Kind: string(st.Kind), Text: firstSentence(s.opts.Messages.Text(st.Text)), FieldMode: st.FieldMode}
 	}
-	hb, _ := json.Marshal(wire{Kind: "live_hello", Payload: hello{Title: proc.Title, Procedure: proc.Name,
+	hb, _ := json.Marshal(wire{Kind: "live_hello", Payload: hello{Title: s.opts.Messages.Text(proc.Title), Procedure: proc.Name,
 		Session: session, After: after, Steps: steps, BeamWarn: s.opts.BeamWarn.Seconds(), BeamAlarm: s.opts.BeamAlarm.Seconds()}})
 	add(0, hb)
 	last := after
@@ -343,7 +353,7 @@ func (s *Server) events(w http.ResponseWriter, r *http.Request) {
 			if err != nil {
 				continue
 			}
-			add(e.Seq, data)
+			add(e.Seq, translatePayload(s.opts.Messages, data))
 			last = e.Seq
 			if len(buf) > 64<<10 {
 				if err := send(); err != nil {
@@ -366,7 +376,7 @@ func (s *Server) events(w http.ResponseWriter, r *http.Request) {
 			}
 			last = ev.Seq
 		}
-		add(ev.Seq, ev.Data)
+		add(ev.Seq, translatePayload(s.opts.Messages, ev.Data))
 	}
 	tick := time.NewTicker(15 * time.Second)
 	defer tick.Stop()

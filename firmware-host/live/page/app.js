@@ -18,6 +18,21 @@
   reset();
 
   const $ = (id) => document.getElementById(id);
+  // The page's texts in the engineer's language (the server writes them
+  // into the page as JSON): tt() a text, tf() a format with %s, %d or
+  // %[n]s filled in order, name() a journal key as words.
+  const L = (() => { try { return JSON.parse($("texts").textContent) || {}; } catch (e) { return {}; } })();
+  const T = L.texts || {}, N = L.names || {}, DEC = L.decimal || ".";
+  const tt = (s) => T[s] || s;
+  function tf(f) {
+    const args = Array.prototype.slice.call(arguments, 1);
+    let i = 0;
+    return tt(f).replace(/%(?:\[(\d+)\])?[sdv]/g, (_, n) => String(args[n ? Number(n) - 1 : i++]));
+  }
+  const name = (k) => N[k] || words(k);
+  // num puts the language's decimal separator into a number written
+  // with a point.
+  const num = (s) => (DEC === "." ? s : String(s).replace(/(\d)\.(\d)/g, "$1" + DEC + "$2"));
   function el(tag, cls, text) {
     const e = document.createElement(tag);
     if (cls) e.className = cls;
@@ -32,7 +47,7 @@
   function fmt(v) {
     if (typeof v !== "number" || !isFinite(v)) return "–";
     if (v === 0) return "0";
-    return v.toFixed(Math.min(Math.max(3 - expOf(v, 3), 0), 15));
+    return num(v.toFixed(Math.min(Math.max(3 - expOf(v, 3), 0), 15)));
   }
   // pm writes v ± u with u rounded to two significant digits and v to the
   // same decimal place, in fixed notation (JCGM 100:2008 7.2.6), as the
@@ -46,7 +61,7 @@
       return (Math.round(v / p) * p).toFixed(0) + " ± " + (Math.round(u / p) * p).toFixed(0);
     }
     const d = Math.min(Math.max(1 - e, 0), 12);
-    return v.toFixed(d) + " ± " + u.toFixed(d);
+    return num(v.toFixed(d)) + " ± " + num(u.toFixed(d));
   }
   // unitText: a dimensionless figure ("1") shows no unit symbol.
   const unitText = (u) => (u && u !== "1" ? " " + u : "");
@@ -89,7 +104,7 @@
           if (S.steps[p.index - 1] && !S.waiting) S.prompt = S.steps[p.index - 1].text;
           S.next = "";
         } else if (p.state === "retake") {
-          S.retakes.push({ step: p.index, id: p.id, mode: p.field_mode, reason: p.reason || S.lastRetry || "retaken", wall: ev.wall });
+          S.retakes.push({ step: p.index, id: p.id, mode: p.field_mode, reason: p.reason || S.lastRetry || tt("retaken"), wall: ev.wall });
         }
         break;
       case "prompt":
@@ -120,11 +135,11 @@
         switch (p.name) {
           case "beam_on": S.beam = true; S.beamS = p.beam_on_s || 0; S.beamMono = ev.mono_ns || S.lastMono; break;
           case "beam_off": S.beam = false; S.beamS = p.beam_on_s || S.beamS; break;
-          case "beam_warning": S.beamNote = "Warning: " + words(p.detail || "cumulative beam-on near the alarm"); S.beamS = p.beam_on_s || S.beamS; break;
-          case "beam_alarm": S.beamNote = "ALARM: " + words(p.detail || "five minutes of beam-on"); S.beamS = p.beam_on_s || S.beamS; break;
-          case "kerma_out_of_range": S.beamNote = "Stopped: kerma rate far out of range"; break;
+          case "beam_warning": S.beamNote = tf("Warning: %s", p.detail ? words(p.detail) : tt("cumulative beam-on near the alarm")); S.beamS = p.beam_on_s || S.beamS; break;
+          case "beam_alarm": S.beamNote = tf("ALARM: %s", p.detail ? words(p.detail) : tt("five minutes of beam-on")); S.beamS = p.beam_on_s || S.beamS; break;
+          case "kerma_out_of_range": S.beamNote = tt("Stopped: kerma rate far out of range"); break;
           case "samples_discarded": case "meter_lost": case "meter_back": case "reading_error":
-            said(words(p.name) + (p.detail ? ": " + p.detail : ""), "retry", ev.wall); break;
+            said(name(p.name) + (p.detail ? ": " + p.detail : ""), "retry", ev.wall); break;
         }
         break;
       case "result": {
@@ -136,8 +151,8 @@
         break;
       }
       case "session_end":
-        S.outcome = p; S.prompt = p.outcome === "complete" ? "All steps done." : "Session " + words(p.outcome) + ".";
-        S.next = "the end"; S.waiting = false; S.beam = false; S.beamS = p.beam_on_s || S.beamS;
+        S.outcome = p; S.prompt = p.outcome === "complete" ? tt("All steps done.") : tf("Session %s.", name(p.outcome));
+        S.next = tt("the end"); S.waiting = false; S.beam = false; S.beamS = p.beam_on_s || S.beamS;
         break;
       case "panel_ask":
         S.prompt = p.text; S.waiting = true;
@@ -167,7 +182,7 @@
       const n = S.steps[k];
       if (n.kind !== "compute" && n.kind !== "judge") return n.text || words(n.kind);
     }
-    return "the results, then the end";
+    return tt("the results, then the end");
   }
 
   function trend(hist) {
@@ -188,76 +203,76 @@
   function render() {
     pending = false;
     const i = S.info;
-    $("where").textContent = i ? [i.site, i.room, i.intensifier_model, i.intensifier_serial].filter(Boolean).join(" · ") : (S.title || "waiting for the board…");
-    $("progress").textContent = S.of ? "Step " + S.step + " of " + S.of + (S.title ? " · " + S.title : "") : (S.title || "no session yet");
+    $("where").textContent = i ? [i.site, i.room, i.intensifier_model, i.intensifier_serial].filter(Boolean).join(" · ") : (S.title || tt("waiting for the board…"));
+    $("progress").textContent = S.of ? tf("Step %d of %d", S.step, S.of) + (S.title ? " · " + S.title : "") : (S.title || tt("no session yet"));
     $("progress-bar").style.width = S.of ? (100 * S.step / S.of) + "%" : "0";
     $("prompt").textContent = S.prompt || "";
     $("next").textContent = nextText();
 
     const bs = beamSeconds();
     const st = $("beam-state");
-    st.textContent = S.beam ? "BEAM ON" : "beam off";
+    st.textContent = S.beam ? tt("BEAM ON") : tt("beam off");
     st.className = "pill " + (S.beam ? "on" : "off");
     $("beam-time").textContent = mmss(bs);
-    document.querySelector(".beamtime .of").textContent = "of " + mmss(S.alarm) + " cumulative";
+    document.querySelector(".beamtime .of").textContent = tf("of %s cumulative", mmss(S.alarm));
     $("beam-bar").style.width = Math.min(100, 100 * bs / S.alarm) + "%";
     $("beam-warn").style.left = (100 * S.warn / S.alarm) + "%";
     $("beam-bar").parentNode.classList.toggle("alarm", bs >= S.alarm);
     $("beam-note").textContent = S.beamNote;
 
     const ms = $("meters"); clear(ms);
-    if (!S.order.length) ms.appendChild(el("p", "empty", "no readings yet"));
+    if (!S.order.length) ms.appendChild(el("p", "empty", tt("no readings yet")));
     for (const k of S.order) {
       const m = S.meters[k];
       const d = el("div", "meter"); d.dataset.meter = k;
-      d.appendChild(el("span", "name", words(k)));
+      d.appendChild(el("span", "name", name(k)));
       const v = el("span", "val", fmt(m.value)); v.appendChild(el("span", "unit", " " + (m.unit || ""))); d.appendChild(v);
       d.appendChild(trend(m.hist));
-      d.appendChild(el("span", "status", [words(m.status), m.used ? "used" : "settling or dark", m.position].filter(Boolean).join(" · ")));
+      d.appendChild(el("span", "status", [words(m.status), m.used ? tt("used") : tt("settling or dark"), m.position].filter(Boolean).join(" · ")));
       ms.appendChild(d);
     }
 
     const air = $("air"); clear(air);
     const names = Object.keys(S.air);
-    if (!names.length) air.appendChild(el("p", "empty", "not entered yet"));
+    if (!names.length) air.appendChild(el("p", "empty", tt("not entered yet")));
     for (const n of names) {
       const a = S.air[n];
       // As entered or read (the shortest form of six significant digits).
-      const d = el("div", "", String(Number(Number(a.value).toPrecision(6))) + " " + a.unit); d.dataset.air = n;
-      d.appendChild(el("small", "", words(n) + " · " + (a.source || "")));
+      const d = el("div", "", num(String(Number(Number(a.value).toPrecision(6)))) + " " + a.unit); d.dataset.air = n;
+      d.appendChild(el("small", "", name(n) + " · " + (a.source ? name(a.source) : "")));
       air.appendChild(d);
     }
 
     const rs = $("results"); clear(rs);
-    if (!S.results.length) rs.appendChild(el("p", "empty", "none computed yet"));
+    if (!S.results.length) rs.appendChild(el("p", "empty", tt("none computed yet")));
     else {
       const t = el("table", "results");
-      const hr = el("tr"); ["Figure", "Value ± U", "Verdict", "Decided by"].forEach((h) => hr.appendChild(el("th", "", h)));
+      const hr = el("tr"); ["Figure", "Value ± U", "Verdict", "Decided by"].forEach((h) => hr.appendChild(el("th", "", tt(h))));
       const th = el("thead"); th.appendChild(hr); t.appendChild(th);
       const tb = el("tbody");
       for (const r of S.results) {
         const tr = el("tr"); tr.dataset.quantity = r.quantity;
-        tr.appendChild(el("td", "q", words(r.quantity) + (r.field_mode ? ", " + r.field_mode : "")));
+        tr.appendChild(el("td", "q", name(r.quantity) + (r.field_mode ? ", " + r.field_mode : "")));
         // A figure that could not be measured has no value: say so.
-        tr.appendChild(el("td", "num", r.verdict === "not_measurable" ? "not measurable" : pm(r.value, r.expanded_uncertainty) + unitText(r.unit)));
-        const vd = el("td"); vd.appendChild(el("span", "verdict " + (r.verdict || "info"), r.verdict || "info")); tr.appendChild(vd);
+        tr.appendChild(el("td", "num", r.verdict === "not_measurable" ? tt("not measurable") : pm(r.value, r.expanded_uncertainty) + unitText(r.unit)));
+        const vd = el("td"); vd.appendChild(el("span", "verdict " + (r.verdict || "info"), name(r.verdict || "info"))); tr.appendChild(vd);
         const dec = words(r.decided_by);
-        tr.appendChild(el("td", "dec", dec + (r.calibrated === false && !/calibrated/.test(dec) ? " (not calibrated)" : "")));
+        tr.appendChild(el("td", "dec", dec + (r.calibrated === false && !/calibrated/.test(r.decided_by || "") ? " " + tt("(not calibrated)") : "")));
         tb.appendChild(tr);
       }
       t.appendChild(tb); rs.appendChild(t);
     }
 
     const rt = $("retakes"); clear(rt);
-    if (!S.retakes.length) rt.appendChild(el("li", "empty", "none"));
+    if (!S.retakes.length) rt.appendChild(el("li", "empty", tt("none")));
     for (const r of S.retakes) {
       const li = el("li"); li.appendChild(el("time", "", clock(r.wall)));
-      li.appendChild(document.createTextNode("step " + r.step + (r.mode ? " (" + r.mode + ")" : "") + ": " + r.reason));
+      li.appendChild(document.createTextNode(tf("step %d", r.step) + (r.mode ? " (" + r.mode + ")" : "") + ": " + r.reason));
       rt.appendChild(li);
     }
 
     const ak = $("acks"); clear(ak);
-    if (!S.acks.length) ak.appendChild(el("li", "empty", "none yet"));
+    if (!S.acks.length) ak.appendChild(el("li", "empty", tt("none yet")));
     for (const a of S.acks) {
       const li = el("li"); li.appendChild(el("time", "", clock(a.at))); li.appendChild(document.createTextNode("✓ " + a.text)); ak.appendChild(li);
     }
@@ -273,8 +288,8 @@
 
   function connect() {
     const es = new EventSource("/events");
-    es.onopen = () => { const l = $("link"); l.textContent = "live"; l.className = "link"; };
-    es.onerror = () => { const l = $("link"); l.textContent = "reconnecting"; l.className = "link off"; };
+    es.onopen = () => { const l = $("link"); l.textContent = tt("live"); l.className = "link"; };
+    es.onerror = () => { const l = $("link"); l.textContent = tt("reconnecting"); l.className = "link off"; };
     es.onmessage = (m) => {
       try { apply(JSON.parse(m.data)); } catch (e) { return; }
       schedule();
