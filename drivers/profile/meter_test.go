@@ -33,6 +33,19 @@ func ctx(t *testing.T) context.Context {
 	return c
 }
 
+// taken waits until the port's reader has taken every byte sent off the
+// pty (the kernel gives no event for it: looked at every millisecond).
+func taken(t *testing.T, d *linetest.Device) {
+	t.Helper()
+	c := ctx(t)
+	for q, err := d.Queued(); err != nil || q > 0; q, err = d.Queued() {
+		if err != nil || c.Err() != nil {
+			t.Fatalf("bytes sent not taken by the port: %v %v", err, c.Err())
+		}
+		time.Sleep(time.Millisecond)
+	}
+}
+
 func TestPolledIdentifyAndSetup(t *testing.T) {
 	_, d := newKR40(t)
 	m := openMeter(t, load(t, "veltrane-kr40.yaml"), d.Link(), "dosimeter")
@@ -135,7 +148,7 @@ func TestPolledStalledMeter(t *testing.T) {
 	// A late answer to the timed-out query must not be taken as the next reading.
 	k.set(func(k *kr40) { k.mute = false; k.value = 7 })
 	d.Send("RD +1.0000E+00 uGy/s OK\r\n")
-	time.Sleep(20 * time.Millisecond)
+	taken(t, d)
 	r, err := m.Read(ctx(t))
 	if err != nil || r.Value != 7 {
 		t.Fatalf("after stall: got %+v, %v; want the fresh 7 µGy/s", r, err)
@@ -397,16 +410,8 @@ func TestIdentifyAfterABacklog(t *testing.T) {
 	m := openMeter(t, load(t, "vessoric-lm9.yaml"), d.Link(), "photometer")
 	f.set(func(f *lm9) { f.rate = 0 })
 	d.Send(strings.Repeat("L 123,45 cd/m2 S0\n", 200))
-	c := ctx(t)
-	// Until the port's reader has taken every byte off the pty (the
-	// kernel gives no event for it: looked at every millisecond).
-	for q, err := d.Queued(); err != nil || q > 0; q, err = d.Queued() {
-		if err != nil || c.Err() != nil {
-			t.Fatalf("backlog not taken by the port: %v %v", err, c.Err())
-		}
-		time.Sleep(time.Millisecond)
-	}
-	id, err := m.Identify(c)
+	taken(t, d)
+	id, err := m.Identify(ctx(t))
 	if err != nil {
 		t.Fatalf("identify after 200 queued readings: %v", err)
 	}
