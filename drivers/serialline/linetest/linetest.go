@@ -39,7 +39,6 @@ type Device struct {
 	stop    chan struct{}
 	done    chan struct{}
 	cmds    []string
-	pairs   int
 	last    string        // the previous slave's name
 	changed chan struct{} // closed (and cleared) when a command comes in; made by a waiter
 }
@@ -75,13 +74,6 @@ func (d *Device) Commands() []string {
 	d.mu.Lock()
 	defer d.mu.Unlock()
 	return append([]string(nil), d.cmds...)
-}
-
-// Pairs counts the pty pairs made (1 + number of re-plugs).
-func (d *Device) Pairs() int {
-	d.mu.Lock()
-	defer d.mu.Unlock()
-	return d.pairs
 }
 
 func (d *Device) plug() error {
@@ -124,7 +116,6 @@ func (d *Device) plug() error {
 	d.mu.Lock()
 	d.master, d.tty = master, tty
 	d.stop, d.done = make(chan struct{}), make(chan struct{})
-	d.pairs++
 	stop, done := d.stop, d.done
 	d.mu.Unlock()
 	go d.serve(master, stop, done)
