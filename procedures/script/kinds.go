@@ -128,14 +128,6 @@ func kindOf(k Kind) (*kindDef, bool) {
 	return nil, false
 }
 
-// Expands reports whether Flatten replaces a step of the kind by the
-// steps it stands for (per_field_mode, include): no flat step has such a
-// kind.
-func (k Kind) Expands() bool {
-	d, ok := kindOf(k)
-	return ok && d.expand != nil
-}
-
 func kindNames() string {
 	var s []string
 	for _, k := range Kinds {
