@@ -301,14 +301,15 @@ func (h *handler) apply(ctx context.Context, rd *wire.Reader) (wire.PushResponse
 		}
 	}()
 	pending.High = map[string]int64{}
-	for seg := range segs {
+	for d := range segs {
+		seg := d.seg
 		if tx == nil {
 			var err error
 			if tx, err = h.st.Begin(ctx); err != nil {
 				return resp, err
 			}
 		}
-		a, err := tx.Apply(ctx, seg, store.ApplyOptions{})
+		a, err := tx.Apply(ctx, seg, store.ApplyOptions{Parsed: d.parsed})
 		if err != nil {
 			if store.IsRefusal(err) { // it wrote nothing: keep the segments before it
 				if cerr := commit(); cerr != nil {
@@ -335,14 +336,22 @@ func (h *handler) apply(ctx context.Context, rd *wire.Reader) (wire.PushResponse
 	return resp, nil
 }
 
+// decoded is a segment read and verified, with the payloads the store
+// reads from it parsed (store.Parse), off the goroutine that stores.
+type decoded struct {
+	seg    *wire.Segment
+	parsed *store.Parsed
+}
+
 // decode reads segments from rd in a goroutine, verifying each one's
 // signature with the stream's board key (enrolled: checked from the
-// preamble), at most one ahead of the consumer: a request holds at most
+// preamble) and parsing its payloads for the store, at most one ahead of
+// the consumer: a request holds at most
 // three decoded segments (one being read, one waiting, one being
 // stored), each at most wire.MaxSegmentBytes. The error channel gets
 // nil after the closing frame.
-func decode(ctx context.Context, rd *wire.Reader) (<-chan *wire.Segment, <-chan error) {
-	segs := make(chan *wire.Segment, 1)
+func decode(ctx context.Context, rd *wire.Reader) (<-chan decoded, <-chan error) {
+	segs := make(chan decoded, 1)
 	rerr := make(chan error, 1)
 	go func() {
 		defer close(segs)
@@ -361,7 +370,7 @@ func decode(ctx context.Context, rd *wire.Reader) (<-chan *wire.Segment, <-chan 
 				return
 			}
 			select {
-			case segs <- seg:
+			case segs <- decoded{seg, store.Parse(seg)}:
 			case <-ctx.Done():
 				rerr <- ctx.Err()
 				return
@@ -510,8 +519,9 @@ func Import(ctx context.Context, st *store.Store, r io.Reader, name string, prog
 	ctx, cancel := context.WithCancel(ctx)
 	defer cancel()
 	segs, rerr := decode(ctx, rd)
-	for seg := range segs {
-		a, err := tx.Apply(ctx, seg, store.ApplyOptions{AnyAudience: true, SkipReplays: true})
+	for d := range segs {
+		seg := d.seg
+		a, err := tx.Apply(ctx, seg, store.ApplyOptions{AnyAudience: true, SkipReplays: true, Parsed: d.parsed})
 		if err != nil {
 			return ImportSummary{}, fmt.Errorf("%s: segment %d: %w (nothing from this bundle was stored)", name, seg.Index, err)
 		}
