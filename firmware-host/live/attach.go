@@ -33,7 +33,7 @@ var ErrBadAddress = errors.New("want HOST:PORT or :PORT, for example :8471")
 // the live view. Nothing is served until Wrap and Start.
 func Listen(addr string, o Options) (*View, error) {
 	if _, _, err := net.SplitHostPort(addr); err != nil {
-		return nil, fmt.Errorf("live view address %q: %w (%v)", addr, ErrBadAddress, err)
+		return nil, fmt.Errorf("live view address %q: %w (%w)", addr, ErrBadAddress, err)
 	}
 	ln, err := net.Listen("tcp", addr)
 	if err != nil {

@@ -4,8 +4,10 @@ import (
 	"bufio"
 	"context"
 	"encoding/json"
+	"errors"
 	"io"
 	"log/slog"
+	"net"
 	"net/http"
 	"net/http/cookiejar"
 	"net/http/httptest"
@@ -322,3 +324,14 @@ func (c *counting) AppendAll(_ context.Context, _ string, items []entry.Item) (i
 }
 func (c *counting) Envelopes(context.Context, string) ([]entry.Envelope, error) { return nil, nil }
 func (c *counting) VerifySession(context.Context, string) error                 { return nil }
+
+// TestListenBadAddressKeepsCause: an address that is not HOST:PORT is
+// ErrBadAddress, and the parser's own error stays reachable
+// (net.SplitHostPort's *net.AddrError), not flattened into text.
+func TestListenBadAddressKeepsCause(t *testing.T) {
+	_, err := Listen("8471", Options{Log: quiet})
+	var addrErr *net.AddrError
+	if !errors.Is(err, ErrBadAddress) || !errors.As(err, &addrErr) {
+		t.Fatalf("Listen(%q) = %v; want ErrBadAddress wrapping a *net.AddrError", "8471", err)
+	}
+}
