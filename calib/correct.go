@@ -50,7 +50,6 @@ const (
 	FlagGeometry       FlagCode = "geometry_invalid"        // distances missing or impossible
 	FlagNoBackscatter  FlagCode = "backscatter_unknown"     // chamber on the face but no backscatter factor
 	FlagDueSoon        FlagCode = "certificate_due_soon"    // informational: does not uncalibrate
-	FlagUnusable       FlagCode = "reading_unusable"        // the meter reported over/under range or a fault
 	FlagFewSamples     FlagCode = "too_few_samples"         // fewer than two samples: no type A estimate
 	FlagDiskSize       FlagCode = "disk_size"               // informational: lead disk not 10 % of the field
 	FlagInput          FlagCode = "input_invalid"           // an input of a figure of merit is missing or not positive
@@ -341,10 +340,6 @@ func InverseSquare(dFrom, dTo float64) float64 {
 // taken with the chamber against the input face: K_free = K_measured / B.
 func BackscatterFactor(b float64) float64 { return 1 / b }
 
-// SubtractDark removes the beam-off luminance (stray light, phosphor
-// afterglow, meter offset) from a luminance reading: L = M − M_dark.
-func SubtractDark(m, dark float64) float64 { return m - dark }
-
 func usableAir(t, lo, hi float64) bool { return t >= lo && t <= hi && !math.IsNaN(t) }
 
 // Correct applies the corrections a reading of quantity q needs, in the
@@ -548,24 +543,6 @@ func (out *Corrected) addDark(d Dark) {
 		f *= a.Factor
 	}
 	out.TypeB = append(out.TypeB, Component{Source: "dark (beam-off) level subtracted", Abs: d.StdUnc * math.Abs(f), DoF: d.DoF})
-}
-
-// CorrectReading corrects a meter reading; a reading the meter reported
-// as over or under range or faulty is flagged and never calibrated.
-func CorrectReading(r drivers.Reading, s Setup) Corrected {
-	out := Correct(r.Value, r.Quantity, s)
-	if !r.Usable() {
-		out.Calibrated = false
-		out.Flags = append(out.Flags, Flag{FlagUnusable, fmt.Sprintf("the %s reported %s", meterWord(r.Meter), words(string(r.Status)))})
-	}
-	return out
-}
-
-func meterWord(m string) string {
-	if m == "" {
-		return "meter"
-	}
-	return m
 }
 
 func words(s string) string { return strings.ReplaceAll(s, "_", " ") }
