@@ -111,6 +111,9 @@ func (a *answers) RoundTrip(req *http.Request) (*http.Response, error) {
 		status, body = a.pushStatus, a.push
 	}
 	if req.Body != nil {
+		// Read to the end, as the receiver does before it answers a
+		// stream it stored: answered unread, the board's stream would
+		// fail at its next write, and the answer would not count.
 		io.Copy(io.Discard, req.Body)
 		req.Body.Close()
 	}
