@@ -5,15 +5,17 @@ package main
 import (
 	"errors"
 	"fmt"
+	"strings"
 
 	"github.com/spf13/cobra"
 
 	"kermalux/firmware-host/journal/report"
 	"kermalux/firmware-host/journal/store"
+	"kermalux/procedures/catalog"
 )
 
 func init() {
-	var storePath, session, serial, journalPath, out, formats string
+	var storePath, session, serial, journalPath, out, formats, language string
 	var latest, unverified bool
 	var actionLevels []float64
 	cmd := &cobra.Command{
@@ -32,6 +34,10 @@ and its 95 % band, at every limit the results were judged against. From a board 
 or its "journal export --json" output), the last session is rendered unless
 --session names another.
 
+The report is in the language the session was run in (the bench's language,
+journalled with the session), or the one --language names; the standard's
+symbols, the units and every number are the same in each.
+
 Files are written to DIR as report-<serial>-<date>-<session>.html, .pdf,
 -results.csv and -readings.csv; their paths are printed.`,
 		Args: cobra.NoArgs,
@@ -39,6 +45,9 @@ Files are written to DIR as report-<serial>-<date>-<session>.html, .pdf,
 			fmts, err := report.ParseFormats(formats)
 			if err != nil {
 				return withCode(exitUsage, err)
+			}
+			if _, err := catalog.Builtin(language); err != nil {
+				return withCode(exitUsage, fmt.Errorf("--language: %w", err))
 			}
 			switch {
 			case storePath != "" && journalPath != "":
@@ -74,7 +83,7 @@ Files are written to DIR as report-<serial>-<date>-<session>.html, .pdf,
 				}
 			}
 			for _, r := range reports {
-				paths, err := r.WriteFiles(out, fmts, report.Options{Version: version})
+				paths, err := r.WriteFiles(out, fmts, report.Options{Version: version, Language: language})
 				for _, p := range paths {
 					fmt.Fprintln(cmd.OutOrStdout(), p)
 				}
@@ -94,6 +103,7 @@ Files are written to DIR as report-<serial>-<date>-<session>.html, .pdf,
 	f.StringVar(&journalPath, "journal", "", "board journal file, or its JSON-lines export")
 	f.StringVar(&out, "out", "", "directory to write the report into")
 	f.StringVar(&formats, "format", "html,pdf,csv", "comma-separated formats: html, pdf, csv")
+	f.StringVar(&language, "language", "", "the report's language: "+strings.Join(catalog.Languages(), ", ")+" (default: the language the session was run in)")
 	f.Float64SliceVar(&actionLevels, "action-level", nil, "the trend also projects to this fraction of baseline (repeatable; the recorded limits are always projected)")
 	_ = cmd.MarkFlagRequired("out")
 	register(cmd)

@@ -1,6 +1,7 @@
 package report
 
 import (
+	"bytes"
 	_ "embed"
 	"fmt"
 	"html/template"
@@ -23,6 +24,9 @@ type Options struct {
 	Generated time.Time
 	// Version is the renderer's software version.
 	Version string
+	// Language is the language to render in (a built-in catalog's code:
+	// en, de, fr); empty: the language the session journalled.
+	Language string
 }
 
 func (o Options) generated() time.Time {
@@ -169,8 +173,20 @@ func sortEvents(rows []eventRow) {
 func (r *Report) WriteHTML(w io.Writer, opt Options) error { return r.writeHTML(w, opt, chartsSVG) }
 
 func (r *Report) writeHTML(w io.Writer, opt Options, use chartUse) error {
-	if err := htmlTemplate.Execute(w, r.view(opt, use)); err != nil {
+	tr := r.wordsFor(opt)
+	if tr == nil {
+		if err := htmlTemplate.Execute(w, r.view(opt, use)); err != nil {
+			return fmt.Errorf("render HTML report of session %s: %w", r.Session.ID, err)
+		}
+		return nil
+	}
+	var b bytes.Buffer
+	if err := htmlTemplate.Execute(&b, r.view(opt, use)); err != nil {
 		return fmt.Errorf("render HTML report of session %s: %w", r.Session.ID, err)
+	}
+	page := bytes.Replace(b.Bytes(), []byte(`<html lang="en">`), []byte(`<html lang="`+tr.c.Code()+`">`), 1)
+	if _, err := w.Write(tr.translateHTML(page)); err != nil {
+		return fmt.Errorf("write HTML report of session %s: %w", r.Session.ID, err)
 	}
 	return nil
 }

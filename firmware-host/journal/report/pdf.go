@@ -18,8 +18,12 @@ type pdfDoc struct {
 	w, left   float64 // usable width and left margin, mm
 	bottom    float64 // y beyond which a new page starts, mm
 	simulated bool
-	landscape bool // pages added by the layout keep the current orientation
+	landscape bool   // pages added by the layout keep the current orientation
+	words     *words // the report's language (nil: English)
 }
+
+// tx is s in the report's language, as the PDF's fonts can set it.
+func (d *pdfDoc) tx(s string) string { return pdfText(d.words.text(s)) }
 
 // newPage starts a page in the current orientation.
 func (d *pdfDoc) newPage() {
@@ -57,21 +61,21 @@ func (d *pdfDoc) heading(s string) {
 	d.f.Ln(4)
 	d.font("B", 13)
 	d.f.SetTextColor(0x1d, 0x26, 0x30)
-	d.f.CellFormat(d.w, 7, pdfText(s), "B", 1, "L", false, 0, "")
+	d.f.CellFormat(d.w, 7, d.tx(s), "B", 1, "L", false, 0, "")
 	d.f.Ln(2)
-	d.f.Bookmark(s, 0, -1)
+	d.f.Bookmark(d.words.text(s), 0, -1)
 }
 
 func (d *pdfDoc) subheading(s string) {
 	d.ensure(28) // the heading, a table header and a first row together
 	d.f.Ln(1.5)
 	d.font("B", 10.5)
-	d.f.CellFormat(d.w, 6, pdfText(s), "", 1, "L", false, 0, "")
+	d.f.CellFormat(d.w, 6, d.tx(s), "", 1, "L", false, 0, "")
 }
 
 func (d *pdfDoc) para(s string, size float64) {
 	d.font("", size)
-	d.f.MultiCell(d.w, size*0.5, pdfText(s), "", "L", false)
+	d.f.MultiCell(d.w, size*0.5, d.tx(s), "", "L", false)
 	d.f.Ln(1)
 }
 
@@ -225,10 +229,10 @@ func (d *pdfDoc) longestWord(s string) float64 {
 
 func (d *pdfDoc) cellText(cols []pdfCol, row []string, i int, head bool) string {
 	if head {
-		return pdfText(cols[i].head)
+		return d.tx(cols[i].head)
 	}
 	if i < len(row) {
-		return pdfText(row[i])
+		return d.tx(row[i])
 	}
 	return ""
 }
@@ -266,11 +270,15 @@ func (d *pdfDoc) drawRow(cols []pdfCol, row []string, y, lh, pad float64, head b
 			align = "R"
 		}
 		text := d.cellText(cols, row, i, head)
+		src := "" // the cell as the report wrote it, before its translation
+		if i < len(row) {
+			src = row[i]
+		}
 		switch {
 		case head:
-		case text == "PASS" || text == "pass":
+		case src == "PASS" || src == "pass":
 			d.f.SetTextColor(0x1e, 0x7a, 0x46)
-		case text == "FAIL" || text == "fail":
+		case src == "FAIL" || src == "fail":
 			d.f.SetTextColor(0xb0, 0x2a, 0x2a)
 		}
 		d.f.SetXY(x+pad, y+pad)
@@ -301,7 +309,7 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 	f.SetKeywords("image intensifier, conversion factor, "+r.Session.IntensifierSerial+", verdict "+v.Verdict, true)
 	f.AliasNbPages("{nb}")
 	pw, ph := f.GetPageSize()
-	d := &pdfDoc{f: f, w: pw - 28, left: 14, bottom: ph - 18, simulated: r.Simulated}
+	d := &pdfDoc{f: f, w: pw - 28, left: 14, bottom: ph - 18, simulated: r.Simulated, words: r.wordsFor(opt)}
 	if stamp := r.UnverifiedText(); stamp != "" {
 		// Every page, above its content: a forced report of records that
 		// do not verify must not pass for a trusted one on any page.
@@ -327,15 +335,15 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 		if len(r.Unverified) > 0 {
 			left = "NOT VERIFIED · " + left
 		}
-		f.CellFormat(d.w*0.8, 5, left, "T", 0, "L", false, 0, "")
-		f.CellFormat(d.w*0.2, 5, fmt.Sprintf("page %d of {nb}", f.PageNo()), "T", 0, "R", false, 0, "")
+		f.CellFormat(d.w*0.8, 5, d.tx(left), "T", 0, "L", false, 0, "")
+		f.CellFormat(d.w*0.2, 5, d.tx(fmt.Sprintf("page %d of {nb}", f.PageNo())), "T", 0, "R", false, 0, "")
 		f.SetTextColor(0x1d, 0x26, 0x30)
 	})
 	f.AddPage()
 	f.SetTextColor(0x1d, 0x26, 0x30)
 
 	d.font("B", 17)
-	f.CellFormat(d.w, 9, "Image intensifier check: "+r.Session.IntensifierSerial, "", 1, "L", false, 0, "")
+	f.CellFormat(d.w, 9, d.tx("Image intensifier check: "+r.Session.IntensifierSerial), "", 1, "L", false, 0, "")
 	d.font("", 9.5)
 	f.SetTextColor(0x5b, 0x67, 0x75)
 	f.CellFormat(d.w, 5, fmt.Sprintf("%s · %s · %s · %s · procedure “%s”", r.Session.Site, r.Session.Room, r.Session.IntensifierModel, Day(r.Session.Started), r.Session.Procedure), "", 1, "L", false, 0, "")
@@ -346,7 +354,7 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 		f.SetTextColor(0xb0, 0x2a, 0x2a)
 		f.SetDrawColor(0xb0, 0x2a, 0x2a)
 		f.SetLineWidth(0.6)
-		f.MultiCell(d.w, 5, "SIMULATED SESSION: the readings came from the bench simulator. These results are not measurements of any intensifier and must not be used for acceptance.", "1", "L", false)
+		f.MultiCell(d.w, 5, d.tx("SIMULATED SESSION: the readings came from the bench simulator. These results are not measurements of any intensifier and must not be used for acceptance."), "1", "L", false)
 		f.SetLineWidth(0.2)
 		f.SetTextColor(0x1d, 0x26, 0x30)
 		f.Ln(3)
@@ -364,29 +372,29 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 	default:
 		f.SetTextColor(0xa8, 0x62, 0x00)
 	}
-	f.MultiCell(62, 6, verdictWords(v.Verdict), "", "L", false)
+	f.MultiCell(62, 6, d.tx(verdictWords(v.Verdict)), "", "L", false)
 	f.SetTextColor(0x5b, 0x67, 0x75)
 	d.font("", 9)
 	f.SetX(d.left + 4)
-	f.CellFormat(60, 5, fmt.Sprintf("%d pass · %d fail · %d for information", v.Pass, v.Fail, v.Info), "", 2, "L", false, 0, "")
+	f.CellFormat(60, 5, d.tx(fmt.Sprintf("%d pass · %d fail · %d for information", v.Pass, v.Fail, v.Info)), "", 2, "L", false, 0, "")
 	f.SetX(d.left + 4)
-	f.CellFormat(60, 5, "Beam on: "+BeamTime(r.BeamOn)+" in total", "", 2, "L", false, 0, "")
+	f.CellFormat(60, 5, d.tx("Beam on: "+BeamTime(r.BeamOn)+" in total"), "", 2, "L", false, 0, "")
 	f.SetX(d.left + 4)
 	d.font("", 8)
-	f.MultiCell(60, 4, "Acceptance is the medical physicist's decision, recorded in the signature box at the end.", "", "L", false)
+	f.MultiCell(60, 4, d.tx("Acceptance is the medical physicist’s decision, recorded in the signature box at the end."), "", "L", false)
 	leftEnd := f.GetY()
 	f.SetTextColor(0x1d, 0x26, 0x30)
 	f.SetXY(d.left+70, y0+4)
 	d.font("B", 10)
 	if len(r.Review) > 0 {
-		f.CellFormat(d.w-74, 6, fmt.Sprintf("Needs review (%d)", len(r.Review)), "", 2, "L", false, 0, "")
+		f.CellFormat(d.w-74, 6, d.tx(fmt.Sprintf("Needs review (%d)", len(r.Review))), "", 2, "L", false, 0, "")
 		d.font("", 9)
 		for _, s := range r.Review {
 			f.SetX(d.left + 70)
-			f.MultiCell(d.w-74, 4.5, "• "+pdfText(s), "", "L", false)
+			f.MultiCell(d.w-74, 4.5, "• "+d.tx(s), "", "L", false)
 		}
 	} else {
-		f.CellFormat(d.w-74, 6, "Nothing needs review", "", 2, "L", false, 0, "")
+		f.CellFormat(d.w-74, 6, d.tx("Nothing needs review"), "", 2, "L", false, 0, "")
 	}
 	y1 := f.GetY()
 	if leftEnd > y1 {
@@ -416,7 +424,7 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 			f.SetXY(d.left+float64(j)*cw, y)
 			d.font("", 7.5)
 			f.SetTextColor(0x5b, 0x67, 0x75)
-			f.CellFormat(cw-3, 3.8, facts[i+j][0], "T", 2, "L", false, 0, "")
+			f.CellFormat(cw-3, 3.8, d.tx(facts[i+j][0]), "T", 2, "L", false, 0, "")
 			f.SetX(d.left + float64(j)*cw)
 			d.font("", 9)
 			f.SetTextColor(0x1d, 0x26, 0x30)
@@ -867,7 +875,7 @@ func (d *pdfDoc) pdfCharts(charts []Chart) {
 			f.SetXY(x, capY)
 			d.font("", 7)
 			f.SetTextColor(0x5b, 0x67, 0x75)
-			f.MultiCell(it.w, 3.3, pdfText(it.c.Caption), "", "L", false)
+			f.MultiCell(it.w, 3.3, d.tx(it.c.Caption), "", "L", false)
 			f.SetTextColor(0x1d, 0x26, 0x30)
 		}
 		f.SetY(capY + 10)

@@ -1,0 +1,119 @@
+package report
+
+import (
+	"bytes"
+	"html"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"regexp"
+	"slices"
+	"strings"
+	"testing"
+)
+
+// visibleText is a rendered HTML page's text, without its style, script
+// and the charts' svg, entities decoded.
+func visibleText(page string) string {
+	page = regexp.MustCompile(`(?s)<(style|script|svg)\b.*?</(style|script|svg)>`).ReplaceAllString(page, " ")
+	page = regexp.MustCompile(`(?s)<[^>]*>`).ReplaceAllString(page, " ")
+	return html.UnescapeString(page)
+}
+
+// numbers are the numbers a text holds, sorted.
+func numbers(text string) []string {
+	n := regexp.MustCompile(`\d+(?:[.,:]\d+)*`).FindAllString(text, -1)
+	slices.Sort(n)
+	return n
+}
+
+// A session journalled in German renders a German report: the headings,
+// labels, verdict words, cautions and signature box in German (the
+// expected German written by hand: procedures/catalog/lang/de), the
+// standard's symbols and every number as in the English report of the
+// same session, in the HTML and in the PDF. A rendering may ask for
+// another language (Options.Language), here English again.
+func TestReportInTheSessionLanguage(t *testing.T) {
+	r, err := Build(sampleSession())
+	if err != nil {
+		t.Fatal(err)
+	}
+	var en bytes.Buffer
+	if err := r.WriteHTML(&en, fixedOpts); err != nil {
+		t.Fatal(err)
+	}
+	r.Session.Language = "de" // as the bench journals it (entry.Session.Language)
+	var de bytes.Buffer
+	if err := r.WriteHTML(&de, fixedOpts); err != nil {
+		t.Fatal(err)
+	}
+	got := de.String()
+	for _, want := range []string{`<html lang="de">`, "<h1>Bildverstärkerprüfung: HV-2291</h1>", "<h2>Ergebnisse</h2>",
+		"<h2>Messunsicherheitsbudgets</h2>", "<h2>Sicherheitshinweise</h2>", "Röntgenstrahlung ist gefährlich.",
+		"Strahlenschutzbeauftragten", "<h2>Prüfung und Unterschrift</h2>", "Außerhalb eines eingestellten Grenzwerts",
+		"4 erfüllt · 1 nicht erfüllt · 3 zur Information", "<th class=\"num\">Wert ± U</th>", "<th>Bewertung</th>",
+		"G_x = L / K̇: Leuchtdichte in der Mitte (cd/m²)", "Die Prüfung und die Röntgenanlage", "Modell und Seriennummer laut Zertifikat"} {
+		if !strings.Contains(got, want) {
+			t.Errorf("German report lacks %q", want)
+		}
+	}
+	for _, english := range []string{"<h2>Uncertainty budgets</h2>", "<h2>Cautions</h2>", "Review and signature", "X-rays are dangerous", "for information"} {
+		if strings.Contains(got, english) {
+			t.Errorf("German report still holds %q", english)
+		}
+	}
+	if a, b := numbers(visibleText(en.String())), numbers(visibleText(got)); !slices.Equal(a, b) {
+		t.Errorf("the German report's numbers differ from the English: %d and %d numbers", len(a), len(b))
+	}
+	var fr bytes.Buffer
+	opt := fixedOpts
+	opt.Language = "fr"
+	if err := r.WriteHTML(&fr, opt); err != nil {
+		t.Fatal(err)
+	}
+	for _, want := range []string{`<html lang="fr">`, "<h2>Mises en garde</h2>", "<h2>Résultats</h2>", "G_x = L / K̇ : luminance au centre", "conformes : 4 · non conformes : 1 · pour information : 3"} {
+		if !strings.Contains(fr.String(), want) {
+			t.Errorf("French report lacks %q", want)
+		}
+	}
+	if a, b := numbers(visibleText(en.String())), numbers(visibleText(fr.String())); !slices.Equal(a, b) {
+		t.Errorf("the French report's numbers differ from the English")
+	}
+	var again bytes.Buffer
+	opt.Language = "en"
+	if err := r.WriteHTML(&again, opt); err != nil {
+		t.Fatal(err)
+	}
+	if again.String() != en.String() {
+		t.Errorf("asking for English does not give the English report")
+	}
+
+	tool, err := exec.LookPath("pdftotext")
+	if err != nil {
+		t.Skip("pdftotext (poppler-utils) not installed: the PDF is not read back")
+	}
+	pdfText := func(o Options) string {
+		var b bytes.Buffer
+		if err := r.WritePDF(&b, o); err != nil {
+			t.Fatal(err)
+		}
+		p := filepath.Join(t.TempDir(), "r.pdf")
+		if err := os.WriteFile(p, b.Bytes(), 0o644); err != nil {
+			t.Fatal(err)
+		}
+		out, err := exec.Command(tool, p, "-").Output()
+		if err != nil {
+			t.Fatalf("pdftotext: %v", err)
+		}
+		return string(out)
+	}
+	pdf := pdfText(fixedOpts)
+	for _, want := range []string{"Bildverstärkerprüfung: HV-2291", "Messunsicherheitsbudgets", "Sicherheitshinweise", "Außerhalb eines", "Seite 1 von"} {
+		if !strings.Contains(pdf, want) {
+			t.Errorf("German PDF lacks %q", want)
+		}
+	}
+	if strings.Contains(pdf, "Uncertainty budgets") {
+		t.Errorf("German PDF still holds English headings")
+	}
+}
