@@ -946,8 +946,12 @@ type HistoryPoint struct {
 // History returns every result recorded for the intensifier serial, oldest
 // session first, in record order within a session.
 func (s *Store) History(ctx context.Context, serial string) ([]HistoryPoint, error) {
-	rows, err := s.db.QueryContext(ctx, s.q(`SELECT r.session, r.started_ns, s.site, s.room, r.payload
+	// The result's payload is read from its record, which verifies (a
+	// signature covers it), not from the results row, which only indexes
+	// it: an edit of the row must not reach a trend or a report's history.
+	rows, err := s.db.QueryContext(ctx, s.q(`SELECT r.session, r.started_ns, s.site, s.room, rec.payload
 		FROM results r JOIN sessions s ON s.id = r.session
+		JOIN records rec ON rec.session = r.session AND rec.seq = r.seq AND rec.kind = 'result'
 		WHERE r.serial = ? ORDER BY r.started_ns, r.session, r.seq`), serial)
 	if err != nil {
 		return nil, fmt.Errorf("store %s: history of %s: %w", s.name, serial, err)
