@@ -53,11 +53,17 @@ func TestSeededSameInEveryLanguage(t *testing.T) {
 	// A session that passes, one with faults (retakes, a meter lost),
 	// and an aged tube whose results fail.
 	for _, scn := range []string{"tollemby-rise-room2.yaml", "tollemby-rise-faults.yaml", "wendlemoor-aged-tube.yaml"} {
-		t.Run(scn, func(t *testing.T) { sameInEveryLanguage(ctx, t, "../../testdata/scenarios/"+scn) })
+		t.Run(scn, func(t *testing.T) { sameInEveryLanguage(ctx, t, "../../testdata/scenarios/"+scn, false) })
 	}
+	// With the room air read from the simulated sensor: what the board
+	// says of the sensor is translated too, and the results are still the
+	// same in every language.
+	t.Run("room air from the sensor", func(t *testing.T) {
+		sameInEveryLanguage(ctx, t, "../../testdata/scenarios/tollemby-rise-room2.yaml", true)
+	})
 }
 
-func sameInEveryLanguage(ctx context.Context, t *testing.T, scn string) {
+func sameInEveryLanguage(ctx context.Context, t *testing.T, scn string, sensor bool) {
 	var ref []byte
 	var refOut *SeededOutcome
 	for _, lang := range catalog.Languages() {
@@ -65,7 +71,7 @@ func sameInEveryLanguage(ctx context.Context, t *testing.T, scn string) {
 		var said []string
 		var rec *missRecorder
 		note := func(s string) { mu.Lock(); said = append(said, s); mu.Unlock() }
-		out, err := Seeded(ctx, SeededOptions{Dir: t.TempDir(), Scenario: scn, Language: lang,
+		out, err := Seeded(ctx, SeededOptions{Dir: t.TempDir(), Scenario: scn, Language: lang, RoomAir: sensor,
 			OnSay: func(m panel.Message) { note(m.Text) },
 			OnAsk: func(p panel.Prompt) { note(p.Spoken()) },
 			Config: func(cfg *engine.Config, _ clock.Clock) {
@@ -76,6 +82,9 @@ func sameInEveryLanguage(ctx context.Context, t *testing.T, scn string) {
 			}})
 		if err != nil {
 			t.Fatalf("%s: %v", lang, err)
+		}
+		if sensor != (out.Config.RoomAir != nil) {
+			t.Fatalf("%s: room-air sensor configured: %v, want %v", lang, out.Config.RoomAir != nil, sensor)
 		}
 		if len(out.Summary.Results) == 0 || len(said) == 0 {
 			t.Fatalf("%s: no results or nothing said", lang)

@@ -16,6 +16,7 @@ import (
 
 	"kermalux/drivers/clock"
 	"kermalux/firmware-host/demo"
+	"kermalux/procedures/catalog"
 	"kermalux/procedures/engine"
 	"kermalux/procedures/panel"
 )
@@ -40,7 +41,11 @@ func watched(t testing.TB, o demo.SeededOptions, stalled bool) (*demo.SeededOutc
 	o.Wrap = func(j engine.Journal, p panel.Panel, clk clock.Clock) (engine.Journal, panel.Panel) {
 		tj := NewJournal(j, hub, clk)
 		var err error
-		srv, err = NewServer(hub, tj, Options{Log: quiet, Code: "123456", WriteTimeout: 2 * time.Second})
+		msgs, err := catalog.Builtin(o.Language) // the page in the session's language
+		if err != nil {
+			t.Fatal(err)
+		}
+		srv, err = NewServer(hub, tj, Options{Log: quiet, Code: "123456", WriteTimeout: 2 * time.Second, Messages: msgs})
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -178,24 +183,44 @@ func stall(t testing.TB, base string, c *http.Client) {
 
 // The live view changes nothing that is measured: the same seeded session
 // gives identical results, budgets and beam-on time with the view on (a
-// browser watching every event) and off.
+// browser watching every event) and off; in English with the room air
+// entered, and in German and French with the room air read from the
+// simulated sensor and the page in that language (its server translating
+// what it sends).
 func TestSameResultsWithLiveViewOnAndOff(t *testing.T) {
 	if testing.Short() {
-		t.Skip("two whole seeded sessions")
+		t.Skip("two whole seeded sessions per case")
 	}
-	off, err := demo.Seeded(context.Background(), demo.SeededOptions{Dir: t.TempDir()})
-	if err != nil {
-		t.Fatal(err)
-	}
-	on, _, _ := watched(t, demo.SeededOptions{Dir: t.TempDir()}, false)
-	if len(off.Summary.Results) == 0 {
-		t.Fatal("no results")
-	}
-	a, _ := json.Marshal(off.Summary.Results)
-	b, _ := json.Marshal(on.Summary.Results)
-	if string(a) != string(b) || off.Summary.BeamOn != on.Summary.BeamOn || off.Readings != on.Readings {
-		t.Errorf("live view changed the session: %d vs %d readings, beam-on %v vs %v, results equal %v",
-			off.Readings, on.Readings, off.Summary.BeamOn, on.Summary.BeamOn, reflect.DeepEqual(off.Summary.Results, on.Summary.Results))
+	for _, tc := range []struct {
+		name string
+		o    demo.SeededOptions
+	}{
+		{"English, room air entered", demo.SeededOptions{}},
+		{"German, room air from the sensor", demo.SeededOptions{Language: "de", RoomAir: true}},
+		{"French, room air from the sensor", demo.SeededOptions{Language: "fr", RoomAir: true}},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			o := tc.o
+			o.Dir = t.TempDir()
+			off, err := demo.Seeded(context.Background(), o)
+			if err != nil {
+				t.Fatal(err)
+			}
+			o.Dir = t.TempDir()
+			on, _, _ := watched(t, o, false)
+			if len(off.Summary.Results) == 0 {
+				t.Fatal("no results")
+			}
+			if (on.Config.RoomAir != nil) != o.RoomAir || (off.Config.RoomAir != nil) != o.RoomAir {
+				t.Fatalf("room-air sensor configured %v / %v, want %v", on.Config.RoomAir != nil, off.Config.RoomAir != nil, o.RoomAir)
+			}
+			a, _ := json.Marshal(off.Summary.Results)
+			b, _ := json.Marshal(on.Summary.Results)
+			if string(a) != string(b) || off.Summary.BeamOn != on.Summary.BeamOn || off.Readings != on.Readings {
+				t.Errorf("live view changed the session: %d vs %d readings, beam-on %v vs %v, results equal %v",
+					off.Readings, on.Readings, off.Summary.BeamOn, on.Summary.BeamOn, reflect.DeepEqual(off.Summary.Results, on.Summary.Results))
+			}
+		})
 	}
 }
 
