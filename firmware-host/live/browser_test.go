@@ -15,6 +15,7 @@ import (
 
 	"kermalux/drivers/clock"
 	"kermalux/firmware-host/demo"
+	"kermalux/procedures/catalog"
 	"kermalux/procedures/engine"
 	"kermalux/procedures/panel"
 )
@@ -54,14 +55,18 @@ type liveSession struct {
 	srv              *Server
 }
 
-func startLive(t *testing.T, at func(panel.Prompt), said func(panel.Message)) *liveSession {
+func startLive(t *testing.T, lang string, at func(panel.Prompt), said func(panel.Message)) *liveSession {
 	hub := NewHub(0)
 	ls := &liveSession{done: make(chan error, 1)}
 	ready := make(chan struct{})
-	o := demo.SeededOptions{Dir: t.TempDir(), OnAsk: at, OnSay: said,
+	msgs, err := catalog.Builtin(lang)
+	if err != nil {
+		t.Fatal(err)
+	}
+	o := demo.SeededOptions{Dir: t.TempDir(), OnAsk: at, OnSay: said, Language: lang,
 		Wrap: func(j engine.Journal, p panel.Panel, clk clock.Clock) (engine.Journal, panel.Panel) {
 			tj := NewJournal(j, hub, clk)
-			srv, err := NewServer(hub, tj, Options{Log: quiet})
+			srv, err := NewServer(hub, tj, Options{Log: quiet, Messages: msgs})
 			if err != nil {
 				t.Error(err)
 			}
@@ -98,7 +103,7 @@ func TestBrowserShowsSessionAtThreeMoments(t *testing.T) {
 	moment1, release1 := make(chan panel.Prompt), make(chan struct{})
 	moment2, release2 := make(chan panel.Message), make(chan struct{})
 	var seen1, seen2 bool
-	ls := startLive(t,
+	ls := startLive(t, "",
 		func(p panel.Prompt) {
 			if !seen1 && p.Action == panel.ActCheck && p.Setup["checklist"] == "pre-exposure" && p.Setup["item"] == "3" {
 				seen1 = true
@@ -272,7 +277,8 @@ func browser(t *testing.T, exe string, w, h int) (context.Context, context.Cance
 // $KERMALUX_LIVE_SCREENSHOTS: the pairing form; the third "Release the
 // beam" of a seeded acceptance session (meters, trend lines, beam-on
 // time, results so far); and the end of the session (every result). It
-// is for looking at, so it runs only when asked.
+// is for looking at, so it runs only when asked; KERMALUX_LIVE_LANGUAGE
+// (de, fr) runs the session and the page in that language.
 func TestScreenshots(t *testing.T) {
 	dir := os.Getenv("KERMALUX_LIVE_SCREENSHOTS")
 	if dir == "" {
@@ -284,7 +290,8 @@ func TestScreenshots(t *testing.T) {
 	exe := chromium(t)
 	held, release := make(chan struct{}), make(chan struct{})
 	releases := 0
-	ls := startLive(t, nil, func(m panel.Message) {
+	lang := os.Getenv("KERMALUX_LIVE_LANGUAGE")
+	ls := startLive(t, lang, nil, func(m panel.Message) {
 		if m.Action == panel.ActBeamOff && m.Level == panel.Good {
 			releases++
 			if releases == 3 {
@@ -307,7 +314,11 @@ func TestScreenshots(t *testing.T) {
 			if err != nil {
 				t.Fatalf("screenshot %s at %d×%d: %v", moment, sz.w, sz.h, err)
 			}
-			out := filepath.Join(dir, fmt.Sprintf("live-%s-%dx%d.png", moment, sz.w, sz.h))
+			name := moment
+			if lang != "" {
+				name = lang + "-" + moment
+			}
+			out := filepath.Join(dir, fmt.Sprintf("live-%s-%dx%d.png", name, sz.w, sz.h))
 			if err := os.WriteFile(out, png, 0o644); err != nil {
 				t.Fatal(err)
 			}
@@ -331,7 +342,7 @@ func TestScreenshots(t *testing.T) {
 	case err := <-ls.done:
 		t.Fatalf("session ended before the third release: %v", err)
 	}
-	poll("beam on", `document.querySelectorAll('#meters .meter').length >= 2 && document.getElementById('beam-state').textContent === 'BEAM ON'`)
+	poll("beam on", `document.querySelectorAll('#meters .meter').length >= 2 && document.getElementById('beam-state').classList.contains('on')`)
 	shoot("beam")
 	close(release)
 	if err := <-ls.done; err != nil {

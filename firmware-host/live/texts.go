@@ -33,10 +33,10 @@ var pageScriptTexts = []string{
 // English names (those of the engine's catalog where it has them).
 var pageNames = map[string]string{
 	"conversion_factor": "Conversion factor", "luminance_non_uniformity": "Luminance non-uniformity",
-	"contrast_ratio": "Contrast ratio", "input_kerma_rate": "Input air kerma rate",
+	"contrast_ratio": "Contrast ratio", "non_uniformity": "Luminance non-uniformity", "input_kerma_rate": "Input air kerma rate",
 	"kerma_rate_scaling": "Kerma rate scaling", "dark_level": "Dark level", "stability": "Stability",
 	"dosimeter": "Dosimeter", "photometer": "Photometer",
-	"temperature": "temperature", "pressure": "pressure", "humidity": "humidity",
+	"temperature": "Temperature", "pressure": "Pressure", "humidity": "Humidity",
 	"pass": "pass", "fail": "fail", "info": "info", "not_measurable": "not measurable",
 	"sensor": "sensor", "operator": "operator", "aborted": "aborted", "paused": "paused",
 	"samples_discarded": "samples discarded", "meter_lost": "meter lost", "meter_back": "meter back",

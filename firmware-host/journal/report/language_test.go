@@ -51,7 +51,7 @@ func TestReportInTheSessionLanguage(t *testing.T) {
 	for _, want := range []string{`<html lang="de">`, "<h1>Bildverstärkerprüfung: HV-2291</h1>", "<h2>Ergebnisse</h2>",
 		"<h2>Messunsicherheitsbudgets</h2>", "<h2>Sicherheitshinweise</h2>", "Röntgenstrahlung ist gefährlich.",
 		"Strahlenschutzbeauftragten", "<h2>Prüfung und Unterschrift</h2>", "Außerhalb eines eingestellten Grenzwerts",
-		"4 erfüllt · 1 nicht erfüllt · 3 zur Information", "<th class=\"num\">Wert ± U</th>", "<th>Bewertung</th>",
+		"4 bestanden · 1 nicht bestanden · 3 zur Information", "<th class=\"num\">Wert ± U</th>", "<th>Bewertung</th>",
 		"G_x = L / K̇: Leuchtdichte in der Mitte (cd/m²)", "Die Prüfung und die Röntgenanlage", "Modell und Seriennummer laut Zertifikat"} {
 		if !strings.Contains(got, want) {
 			t.Errorf("German report lacks %q", want)
