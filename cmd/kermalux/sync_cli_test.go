@@ -16,8 +16,6 @@ import (
 	"testing"
 	"time"
 
-	"kermalux/firmware-host/journal"
-	"kermalux/firmware-host/journal/journaltest"
 	"kermalux/firmware-host/journal/store"
 	"kermalux/firmware-host/journal/transfer/receive"
 )
@@ -126,18 +124,7 @@ func TestPushWarnsAndRevokedBoardIsRefused(t *testing.T) {
 		t.Errorf("second revoke: exit %d %s", code, errb)
 	}
 	// A new session on the revoked board: its push is refused.
-	j, err := journal.Open(jp, journal.Options{})
-	if err != nil {
-		t.Fatal(err)
-	}
-	id, err := j.Begin(context.Background(), journaltest.Session(1))
-	if err == nil {
-		err = journaltest.WriteSession(context.Background(), j, id, 2, true, nil)
-	}
-	j.Close()
-	if err != nil {
-		t.Fatal(err)
-	}
+	id := appendSession(t, jp, 1, 2)
 	code, _, errb = run(t, "push", "--journal", jp, "--to", srv.URL)
 	if code != exitFailure || !strings.Contains(errb, "revoked") {
 		t.Errorf("push of a revoked board: exit %d %s", code, errb)

@@ -8,11 +8,14 @@ import (
 	"io"
 	"log/slog"
 	"net/http/httptest"
+	"os"
 	"path/filepath"
 	"strconv"
 	"strings"
 	"testing"
 
+	"kermalux/firmware-host/journal"
+	"kermalux/firmware-host/journal/journaltest"
 	"kermalux/firmware-host/journal/store"
 	"kermalux/firmware-host/journal/transfer/receive"
 )
@@ -60,12 +63,16 @@ func TestTrendReadsVerifiedRecords(t *testing.T) {
 	}
 }
 
-// trendStore is a store that received one finished session of a board
-// (its results: conversion factor 21.3), and that session's intensifier.
+// trendStore is a store that received two finished sessions of a board on
+// one intensifier (each with a conversion factor of 21.3), and that
+// intensifier's serial.
 func trendStore(t *testing.T) (string, string) {
 	t.Helper()
 	dir := t.TempDir()
 	jp, key := boardJournal(t, dir)
+	// A second session on the same intensifier (journaltest's serials
+	// repeat every seven sessions), so the trend has two points.
+	appendSession(t, jp, 7, 3)
 	sp := filepath.Join(dir, "office.db")
 	if code, out, errb := run(t, "enroll", "--store", sp, "--key", key, "--name", "trend-board"); code != exitOK {
 		t.Fatalf("enroll: exit %d %s %s", code, out, errb)
@@ -79,8 +86,8 @@ func trendStore(t *testing.T) (string, string) {
 	srv.Close()
 	infos, _ := st.Sessions(context.Background(), store.Query{})
 	st.Close()
-	if code != exitOK || len(infos) != 1 {
-		t.Fatalf("push: exit %d %s %s, %d sessions stored", code, out, errb, len(infos))
+	if code != exitOK || len(infos) != 2 || infos[0].Session.IntensifierSerial != infos[1].Session.IntensifierSerial {
+		t.Fatalf("push: exit %d %s %s, sessions stored %+v", code, out, errb, infos)
 	}
 	return sp, infos[0].Session.IntensifierSerial
 }
@@ -94,11 +101,12 @@ func tamperStore(t *testing.T, sp, table string) int64 {
 		t.Fatal(err)
 	}
 	defer db.Close()
+	var session string
 	var seq int64
-	if err := db.QueryRow(`SELECT min(seq) FROM records WHERE kind = 'result' AND payload LIKE '%conversion_factor%'`).Scan(&seq); err != nil {
+	if err := db.QueryRow(`SELECT session, seq FROM records WHERE kind = 'result' AND payload LIKE '%conversion_factor%' ORDER BY rowid LIMIT 1`).Scan(&session, &seq); err != nil {
 		t.Fatal(err)
 	}
-	res, err := db.Exec(`UPDATE `+table+` SET payload = replace(payload, '"value":21.3', '"value":31.3') WHERE seq = ?`, seq)
+	res, err := db.Exec(`UPDATE `+table+` SET payload = replace(payload, '"value":21.3', '"value":31.3') WHERE session = ? AND seq = ?`, session, seq)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -106,4 +114,77 @@ func tamperStore(t *testing.T, sp, table string) int64 {
 		t.Fatalf("tamper %s: %d rows", table, n)
 	}
 	return seq
+}
+
+// A result's row deleted from the results index (or moved to another
+// intensifier) would drop it from the trend while every record verifies:
+// the trend's verification counts each session's result records against
+// the index and refuses a difference.
+func TestTrendRefusesEditedIndex(t *testing.T) {
+	for _, edit := range []string{
+		`DELETE FROM results WHERE rowid = (SELECT min(rowid) FROM results)`,
+		`UPDATE results SET serial = 'another' WHERE rowid = (SELECT min(rowid) FROM results)`,
+	} {
+		sp, serial := trendStore(t)
+		db, err := sql.Open("sqlite", sp)
+		if err != nil {
+			t.Fatal(err)
+		}
+		res, err := db.Exec(edit)
+		db.Close()
+		if n, _ := res.RowsAffected(); err != nil || n != 1 {
+			t.Fatalf("%s: %d rows, %v", edit, n, err)
+		}
+		code, out, errb := run(t, "trend", serial, "--store", sp)
+		if code != exitFailure || !strings.Contains(errb, "results index") {
+			t.Errorf("%s: trend exit %d, want %d naming the index\n%s\n%s", edit, code, exitFailure, out, errb)
+		}
+	}
+}
+
+// A report of an intensifier's newer session shows its earlier results
+// (the history chart, the baseline): those sessions verify too. An edited
+// result of the first session refuses the report of the second, naming
+// the record; before, only the reported session was verified.
+func TestReportVerifiesItsHistory(t *testing.T) {
+	sp, serial := trendStore(t)
+	st, err := store.Open(sp)
+	if err != nil {
+		t.Fatal(err)
+	}
+	infos, _ := st.Sessions(context.Background(), store.Query{Serial: serial})
+	st.Close()
+	seq := tamperStore(t, sp, "records") // in the first session
+	code, _, errb := run(t, "report", "--store", sp, "--session", infos[1].ID, "--out", t.TempDir(), "--format", "csv")
+	if code != exitFailure || !strings.Contains(errb, infos[0].ID+" record "+strconv.FormatInt(seq, 10)) {
+		t.Errorf("report of the second session with the first edited: exit %d, want %d naming %s record %d\n%s", code, exitFailure, infos[0].ID, seq, errb)
+	}
+	out := t.TempDir()
+	code, _, errb = run(t, "report", "--store", sp, "--session", infos[1].ID, "--out", out, "--format", "csv", "--unverified")
+	csvs, _ := filepath.Glob(filepath.Join(out, "*-results.csv"))
+	if code != exitOK || len(csvs) != 1 {
+		t.Fatalf("report --unverified: exit %d, %v\n%s", code, csvs, errb)
+	}
+	if b, _ := os.ReadFile(csvs[0]); !strings.Contains(string(b), "NOT VERIFIED") {
+		t.Errorf("report --unverified of a session whose history does not verify carries no stamp:\n%.400s", b)
+	}
+}
+
+// appendSession writes journaltest's finished session n, with readings
+// readings a step, into the board journal at jp and returns its id.
+func appendSession(t *testing.T, jp string, n, readings int) string {
+	t.Helper()
+	j, err := journal.Open(jp, journal.Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	id, err := j.Begin(context.Background(), journaltest.Session(n))
+	if err == nil {
+		err = journaltest.WriteSession(context.Background(), j, id, readings, true, nil)
+	}
+	j.Close()
+	if err != nil {
+		t.Fatal(err)
+	}
+	return id
 }

@@ -51,6 +51,7 @@ func FromStore(ctx context.Context, st *store.Store, sel Selection, actionLevels
 		return nil, fmt.Errorf("choose a session id or an intensifier serial")
 	}
 	histories := map[string][]HistoryPoint{}
+	historyProblems := map[string][]string{}
 	var out []*Report
 	for _, id := range ids {
 		problems, err := VerifyStoreSession(ctx, st, id)
@@ -72,10 +73,22 @@ func FromStore(ctx context.Context, st *store.Store, sel Selection, actionLevels
 		serial := r.Session.IntensifierSerial
 		hs, ok := histories[serial]
 		if !ok {
+			// The history shows the intensifier's earlier sessions: they
+			// are verified too, and the index the history is read by.
+			hp, err := VerifyStoreSerial(ctx, st, serial)
+			if err != nil {
+				return nil, err
+			}
+			if err := gate("store "+st.Path()+" intensifier "+serial+" (the report's history)", hp, sel.AllowUnverified); err != nil {
+				return nil, err
+			}
 			if hs, err = (StoreHistory{st}).History(ctx, serial); err != nil {
 				return nil, err
 			}
-			histories[serial] = hs
+			histories[serial], historyProblems[serial] = hs, hp
+		}
+		if len(r.Unverified) == 0 {
+			r.stamp(historyProblems[serial]) // forced: the history's problems are stamped
 		}
 		r.AttachHistory(Until(hs, r.Session.Started), actionLevels...)
 		out = append(out, r)

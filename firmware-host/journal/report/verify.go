@@ -193,6 +193,36 @@ func VerifyStoreSerial(ctx context.Context, st *store.Store, serial string) ([]s
 		}
 		out = append(out, ps...)
 	}
+	// The results index that History reads must hold every result record
+	// of these sessions and no other session's: a deleted or moved row
+	// would hide a result from the trend while every record verifies.
+	hs, err := st.History(ctx, serial)
+	if err != nil {
+		return nil, err
+	}
+	indexed := map[string]int{}
+	for _, h := range hs {
+		indexed[h.Session]++
+	}
+	for _, in := range infos {
+		recs, err := st.Records(ctx, in.ID, 0, 0)
+		if err != nil {
+			return nil, err
+		}
+		n := 0
+		for _, r := range recs {
+			if r.Kind == entry.KindResult {
+				n++
+			}
+		}
+		if n != indexed[in.ID] {
+			out = append(out, fmt.Sprintf("session %s: %d result records, %d in the store's results index of intensifier %s (the index was changed)", in.ID, n, indexed[in.ID], serial))
+		}
+		delete(indexed, in.ID)
+	}
+	for id, n := range indexed {
+		out = append(out, fmt.Sprintf("session %s: %d results indexed under intensifier %s, which the store's session does not name (the index was changed)", id, n, serial))
+	}
 	return out, nil
 }
 
