@@ -124,6 +124,14 @@ func runCheck(cmd *cobra.Command, o checkOptions, args []string) error {
 // summary describes a valid procedure in one line.
 func summary(p *script.Procedure, env script.Env) string {
 	s := fmt.Sprintf("%q version %s, beam-on budget %g s", p.Title, p.Version, p.BeamBudget.Seconds())
+	switch b := script.BeamUse(p, env); {
+	case b.Readings == 0:
+	case b.Most > p.BeamBudget:
+		s += fmt.Sprintf(", held while running: %d readings, each sure of its min_beam (%g s in all with a release each), up to %g s if each used its max_beam",
+			b.Readings, b.Reserve.Seconds(), b.Most.Seconds())
+	default:
+		s += fmt.Sprintf(": %d readings, at most %g s with a release each", b.Readings, b.Most.Seconds())
+	}
 	if len(env.FieldModes) > 0 {
 		if f, err := script.Flatten(p, env); err == nil {
 			s += fmt.Sprintf(", %d steps", len(f.Steps))

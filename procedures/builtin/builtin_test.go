@@ -1,6 +1,7 @@
 package builtin_test
 
 import (
+	"slices"
 	"strings"
 	"testing"
 	"time"
@@ -95,9 +96,13 @@ func TestBuiltinCounts(t *testing.T) {
 
 // TestAcceptanceShape: in the acceptance sequence the safety checklist
 // comes before any beam step and the temperature before the first
-// measurement; the worst-case beam-on time stays under 4.5 minutes, the
-// point at which the board warns ahead of the five-minute timer of
-// 21 CFR 1020.32(h); uniformity uses nine positions.
+// measurement. It is the whole visit: four field modes (where the bench
+// has them) for the conversion factor and the input kerma rate, a
+// 13-point uniformity map (the centre, the four directions at 0.5 r and
+// 0.9 r, the four diagonals), the contrast ratio's two readings; its
+// beam-on budget is 120 s, enforced as a pool that keeps every reading's
+// reserve, well under the 4.5 minutes at which the board warns ahead of
+// the five-minute timer of 21 CFR 1020.32(h).
 func TestAcceptanceShape(t *testing.T) {
 	p, err := script.LoadBuiltin("acceptance")
 	if err != nil {
@@ -109,8 +114,12 @@ func TestAcceptanceShape(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	var safety, temperature, firstMeasure, firstBeam int
-	var beam time.Duration
+	if f.BeamBudget != 120*time.Second {
+		t.Errorf("budget %v, want 120 s", f.BeamBudget)
+	}
+	var safety, temperature, firstMeasure, firstBeam, readings int
+	var reserve time.Duration
+	modes := map[string]map[string]bool{}
 	for _, s := range f.Steps {
 		switch {
 		case s.Step.Kind == script.KindSafetyChecklist && safety == 0:
@@ -120,19 +129,50 @@ func TestAcceptanceShape(t *testing.T) {
 		case s.Step.Kind == script.KindMeasure && firstMeasure == 0:
 			firstMeasure = s.Index
 		}
-		if s.MaxBeam() > 0 && firstBeam == 0 {
+		if s.MaxBeam() == 0 {
+			continue
+		}
+		if firstBeam == 0 {
 			firstBeam = s.Index
 		}
-		beam += s.MaxBeam()
-		if s.ID == "uniformity/spots" && len(s.Step.Measure.Positions) != 9 {
-			t.Errorf("uniformity positions = %d", len(s.Step.Measure.Positions))
+		readings += s.Step.Measure.PositionCount()
+		reserve += s.Reserve()
+		if len(s.Pools) == 0 || s.Pools[0].ID != "" || s.Pools[0].Budget != f.BeamBudget {
+			t.Errorf("%s: pools %v, want the sequence's first", s.ID, s.Pools)
+		}
+		if s.FieldMode != "" {
+			if modes[s.Part] == nil {
+				modes[s.Part] = map[string]bool{}
+			}
+			modes[s.Part][s.FieldMode] = true
+		}
+		if s.ID == "uniformity/spots" {
+			var got []string
+			for _, ps := range s.Step.Measure.Positions {
+				got = append(got, ps.Label)
+			}
+			want := []string{"centre", "up 0.5 r", "up 0.9 r", "right 0.5 r", "right 0.9 r", "down 0.5 r", "down 0.9 r", "left 0.5 r", "left 0.9 r",
+				"up-right 0.7 r", "up-left 0.7 r", "down-left 0.7 r", "down-right 0.7 r"}
+			if !slices.Equal(got, want) {
+				t.Errorf("uniformity positions %q, want %q", got, want)
+			}
 		}
 	}
 	if !(safety > 0 && safety < temperature && temperature < firstMeasure && firstMeasure <= firstBeam) {
 		t.Errorf("order: safety %d, temperature %d, first measure %d, first beam %d", safety, temperature, firstMeasure, firstBeam)
 	}
-	if beam > 270*time.Second || beam > f.BeamBudget {
-		t.Errorf("worst-case beam-on %v (budget %v)", beam, f.BeamBudget)
+	for _, part := range []string{"cf", "input"} {
+		if len(modes[part]) != 4 {
+			t.Errorf("%s in %d field modes, want 4: %v", part, len(modes[part]), modes[part])
+		}
+	}
+	// 4 conversion factors, 13 uniformity points, 2 contrast readings, 4
+	// input kerma rates.
+	if readings != 23 {
+		t.Errorf("%d beam readings, want 23", readings)
+	}
+	if reserve > f.BeamBudget {
+		t.Errorf("reserves %v above the budget %v", reserve, f.BeamBudget)
 	}
 }
 

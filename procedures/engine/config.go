@@ -66,6 +66,19 @@ type Step struct {
 	Measure *MeasureSpec
 	Compute *ComputeSpec
 	Judge   *JudgeSpec
+
+	// Pools are the beam-on budgets a beam step's readings count against,
+	// outermost first (script.Pool): a reading stops where a pool's
+	// budget, less the reserves of the readings still to come in it, is
+	// used up.
+	Pools []BeamPool
+}
+
+// BeamPool is one procedure instance's beam-on budget: ID is its include
+// path ("" for the whole procedure run).
+type BeamPool struct {
+	ID     string
+	Budget time.Duration
 }
 
 // ValueSpec asks for a value.
@@ -101,6 +114,9 @@ type MeasureSpec struct {
 	Positions []Position
 	Target    float64       // relative expanded uncertainty to reach (0.02 = 2 %); 0: Limits.Target
 	MaxBeamOn time.Duration // per position; 0: Limits.MaxBeamOn
+	// MinBeamOn is what each position keeps in reserve in its pools
+	// (0: MaxBeamOn, the whole of it).
+	MinBeamOn time.Duration
 	Duration  time.Duration // read this long instead of stopping at the target (dark, stability)
 	Expect    []Expect
 }

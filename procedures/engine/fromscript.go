@@ -17,6 +17,9 @@ func FromFlat(f *script.Flat) Procedure {
 	for _, fs := range f.Steps {
 		s := fs.Step
 		st := Step{ID: fs.ID, Procedure: fs.Procedure, Part: fs.Part, PartTitle: fs.PartTitle, FieldMode: fs.FieldMode, Text: s.Text, Setup: s.Setup.Map()}
+		for _, pl := range fs.Pools {
+			st.Pools = append(st.Pools, BeamPool{ID: pl.ID, Budget: pl.Budget})
+		}
 		if c, ok := fromScript[s.Kind]; ok {
 			st.Kind = c.kind
 			if c.convert != nil {
@@ -65,7 +68,7 @@ func measureFrom(s *script.Step, st *Step) {
 	if m == nil {
 		return
 	}
-	ms := &MeasureSpec{Beam: m.Beam, Quality: m.BeamQuality, Target: m.Precision, MaxBeamOn: m.MaxBeam, Duration: m.Duration}
+	ms := &MeasureSpec{Beam: m.Beam, Quality: m.BeamQuality, Target: m.Precision, MaxBeamOn: m.MaxBeam, MinBeamOn: m.MinBeam, Duration: m.Duration}
 	for _, r := range m.Reads {
 		ms.Meters = append(ms.Meters, strings.ToLower(r.Meter))
 	}

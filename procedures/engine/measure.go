@@ -15,6 +15,7 @@ import (
 	"kermalux/drivers/units"
 	"kermalux/procedures/entry"
 	"kermalux/procedures/panel"
+	"kermalux/procedures/script"
 )
 
 // retryError ends an attempt that must be taken again; reason is said.
@@ -130,17 +131,23 @@ func (e *Engine) measurePosition(ctx context.Context, idx int, s Step, pi int, p
 		maxOn = l.MaxBeamOn
 	}
 	// used is the beam-on of this position's attempts, their releases
-	// included: together they may not pass the position's limit, which
-	// is what the procedure checker adds up into the beam budget.
+	// included: together they may not pass the position's limit, nor what
+	// its pools have left (poolLeft), which is what the procedure checker
+	// proves against the beam budget.
 	var used time.Duration
 	failures, signalFails := 0, 0
 	for {
+		allowed, _ := e.beamLeft(idx, s, pi, used, maxOn)
+		if m.Beam && used == 0 && allowed < minAttempt {
+			return e.notMeasurable(ctx, idx, s, pi, pos, npos, "the procedure's beam-on budget has none left for it", used)
+		}
 		a := e.newAttempt(idx, s, pi, pos, npos)
-		a.allowed = maxOn - used
+		a.allowed = allowed
 		before := e.st.beamOn
 		p, err := e.runAttempt(ctx, a)
 		used += e.st.beamOn - before
 		if err == nil {
+			p.UsedS = used.Seconds()
 			p.finite()
 			e.st.putPos(p)
 			b, err := json.Marshal(p)
@@ -163,13 +170,15 @@ func (e *Engine) measurePosition(ctx context.Context, idx int, s Step, pi int, p
 			return err
 		}
 		// Bounded: the same signal problem Retries times, any problem
-		// twice as often, or the position's beam-on limit used up, and the
-		// position is not measurable; the sequence goes on.
+		// twice as often, or the position's beam-on limit (or what its
+		// pools have left) used up, and the position is not measurable;
+		// the sequence goes on.
+		left, limit := e.beamLeft(idx, s, pi, used, maxOn)
 		switch {
-		case m.Beam && used >= maxOn:
-			return e.notMeasurable(ctx, idx, s, pi, pos, npos, fmt.Sprintf("%s, and the reading's beam-on limit of %s is used up", re.reason, spokenDuration(maxOn)))
+		case m.Beam && left < minAttempt:
+			return e.notMeasurable(ctx, idx, s, pi, pos, npos, fmt.Sprintf("%s, and %s is used up", re.reason, limit), used)
 		case signalFails >= l.Retries, failures >= 2*l.Retries:
-			return e.notMeasurable(ctx, idx, s, pi, pos, npos, fmt.Sprintf("%s, %s times", re.reason, strings.ToLower(spellCount(failures))))
+			return e.notMeasurable(ctx, idx, s, pi, pos, npos, fmt.Sprintf("%s, %s times", re.reason, strings.ToLower(spellCount(failures))), used)
 		}
 		if failures > 0 && failures%l.Retries == 0 && !re.free {
 			text := fmt.Sprintf("This reading failed %d times: %s. Press the switch to try again, or long press to go back.", failures, re.reason)
@@ -187,10 +196,76 @@ func (e *Engine) measurePosition(ctx context.Context, idx int, s Step, pi int, p
 	}
 }
 
+// minAttempt is the least beam-on worth an exposure: less than a second
+// is not enough for any meter to rise, settle and be sampled (common
+// practice), so a reading with less left is not measurable without one.
+const minAttempt = time.Second
+
+// beamLeft is the beam-on the next attempt of a reading may use, its
+// release not counted (the attempt says "Release" when it is used up):
+// what is left of the reading's own limit after used, or less where a
+// pool of the step has less left, and which of the two limits it is.
+func (e *Engine) beamLeft(idx int, s Step, pi int, used, maxOn time.Duration) (time.Duration, string) {
+	left, limit := maxOn-used, "the reading's beam-on limit of "+spokenDuration(maxOn)
+	for _, pl := range s.Pools {
+		if l := e.poolLeft(pl, idx, pi, used); l < left {
+			left, limit = l, "the beam-on budget left for this reading"
+		}
+	}
+	return left, limit
+}
+
+// poolLeft is what pool pl leaves the attempt at position pi of step idx
+// (1-based, as journalled) after used: its budget less what its readings have used (for the whole
+// run the beam-on timer, which survives a power cut; for an included
+// procedure its readings' beam-on), less this reading's release, less
+// the reserves of its readings still to come (script.FlatStep.Reserve),
+// so every one of them keeps what the checker promised it.
+func (e *Engine) poolLeft(pl BeamPool, idx, pi int, used time.Duration) time.Duration {
+	var spent, reserve time.Duration
+	if pl.ID == "" {
+		spent = e.st.beamOn
+	} else {
+		spent = used
+	}
+	cur := idx - 1
+	for j, st := range e.cfg.Procedure.Steps {
+		if st.Measure == nil || !st.Measure.Beam || !slices.ContainsFunc(st.Pools, func(p BeamPool) bool { return p.ID == pl.ID }) {
+			continue
+		}
+		n := max(len(st.Measure.Positions), 1)
+		for k := range n {
+			switch {
+			case j == cur && k == pi:
+			case e.st.havePos(st.ID, k):
+				if pl.ID != "" {
+					spent += time.Duration(e.st.meas[st.ID][k].UsedS * float64(time.Second))
+				}
+			case j > cur || (j == cur && k > pi):
+				reserve += st.Measure.reserve(e.cfg.Limits) + script.ReleaseTime
+			}
+		}
+	}
+	return pl.Budget - spent - reserve - script.ReleaseTime
+}
+
+// reserve is what one position of the step keeps in its pools, its
+// release not counted: MinBeamOn, else its whole limit.
+func (m *MeasureSpec) reserve(l Limits) time.Duration {
+	switch {
+	case m.MinBeamOn > 0:
+		return m.MinBeamOn
+	case m.MaxBeamOn > 0:
+		return m.MaxBeamOn
+	}
+	return l.MaxBeamOn
+}
+
 // notMeasurable records a position that could not be measured, with its
-// reason, and says so; the figures that use it are not measurable.
-func (e *Engine) notMeasurable(ctx context.Context, idx int, s Step, pi int, pos Position, npos int, reason string) error {
-	p := posStat{Step: s.ID, Index: pi, Mode: s.FieldMode, Unmeasurable: reason, Dark: !s.Measure.Beam}
+// reason, and says so; the figures that use it are not measurable. used
+// is the beam-on its attempts took.
+func (e *Engine) notMeasurable(ctx context.Context, idx int, s Step, pi int, pos Position, npos int, reason string, used time.Duration) error {
+	p := posStat{Step: s.ID, Index: pi, Mode: s.FieldMode, Unmeasurable: reason, Dark: !s.Measure.Beam, UsedS: used.Seconds()}
 	what := "This reading"
 	if npos > 0 {
 		p.Label, p.R, p.Angle = pos.Label, pos.R, pos.Angle

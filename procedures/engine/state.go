@@ -40,6 +40,10 @@ type posStat struct {
 	Dark    bool               `json:"dark,omitempty"`
 	Mode    string             `json:"field_mode,omitempty"`
 	BeamOnS float64            `json:"beam_on_s,omitempty"` // beam-on time of the accepted attempt
+	// UsedS is the beam-on of all the position's attempts, their releases
+	// included: what it took from its pools (0 in journals of earlier
+	// releases).
+	UsedS float64 `json:"used_s,omitempty"`
 	// Settle is each meter's residual settling (by role, and "ratio" for
 	// the two meters' ratio): the relative half-width of a rectangular
 	// distribution, from the attempt's data (residualSettling). Nil in

@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"os"
 	"path/filepath"
+	"slices"
 	"sort"
 	"strings"
 	"time"
@@ -90,6 +91,33 @@ func Flatten(p *Procedure, env Env) (*Flat, error) {
 		}
 	}
 	return &Flat{Procedure: p, BeamBudget: p.BeamBudget, Steps: x.steps}, nil
+}
+
+// BeamPlan is what a checked procedure's readings may do with the beam
+// (BeamUse): Readings beam readings, which keep Reserve of the budget
+// for themselves (min_beam and a release each) and could use Most
+// together, each up to its max_beam. When Most is above the budget the
+// engine holds them to it (Pool); the checker has proved that Reserve
+// fits.
+type BeamPlan struct {
+	Readings      int
+	Reserve, Most time.Duration
+}
+
+// BeamUse expands p as Check does (a per_field_mode block from the bench
+// at env's field modes, else its max_modes) and sums its beam readings.
+func BeamUse(p *Procedure, env Env) BeamPlan {
+	x := newExpander(env, false)
+	x.run(p)
+	var b BeamPlan
+	for _, s := range x.steps {
+		if s.MaxBeam() > 0 {
+			b.Readings += s.Step.Measure.PositionCount()
+			b.Reserve += s.Reserve()
+			b.Most += s.MaxBeam()
+		}
+	}
+	return b
 }
 
 // DefaultResolver finds included procedures: a name with a slash or a
@@ -198,6 +226,9 @@ type expander struct {
 	safetyAt   *Pos
 	safetyAll  []Pos // every safety checklist, for the "comes later" hint
 	earlyBeam  []Pos // beam steps before any safety checklist
+	// pools are the budgets of the procedure instances being expanded,
+	// outermost first (FlatStep.Pools).
+	pools []Pool
 }
 
 func newExpander(env Env, forRun bool) *expander {
@@ -232,28 +263,51 @@ func (x *expander) problems() Problems {
 func (x *expander) run(p *Procedure) {
 	x.stack = append(x.stack, p.Name)
 	x.included[p.Name] = true
+	x.pools = []Pool{{ID: "", Procedure: p.Name, Budget: p.BeamBudget}}
 	x.proc(p, "")
 }
 
-// proc expands one procedure instance and returns the beam-on time its
-// steps may use.
-func (x *expander) proc(p *Procedure, prefix string) time.Duration {
+// beamUse is what a run of steps may do with the beam: use up to most,
+// and keep reserve in its pools (the sum of the readings' Reserve).
+type beamUse struct {
+	most, reserve time.Duration
+}
+
+func (u *beamUse) add(v beamUse) {
+	u.most += v.most
+	u.reserve += v.reserve
+}
+
+// proc expands one procedure instance and returns the beam-on its steps
+// may use. Its budget must keep every reading's reserve (min_beam and its
+// release); when the readings may use more than the budget (each up to
+// its max_beam), the budget is a pool that the engine enforces: a
+// reading stops where the budget less the reserves still to come is
+// used up.
+func (x *expander) proc(p *Procedure, prefix string) beamUse {
 	if !x.checked[p] {
 		x.checked[p] = true
 		x.static(p)
 	}
-	var sum time.Duration
+	var sum beamUse
 	for i := range p.Steps {
-		sum += x.step(p, prefix, &p.Steps[i], "", nil)
+		sum.add(x.step(p, prefix, &p.Steps[i], "", nil))
 	}
 	// A budget that could not be read (its own error says why) is not
 	// compared: "budget of 0 s exceeded" would only confuse.
-	if p.BeamBudget > 0 && sum > p.BeamBudget {
+	if p.BeamBudget > 0 && sum.reserve > p.BeamBudget {
 		pos := p.Pos
 		if fp, ok := p.Fields["beam_budget"]; ok {
 			pos = fp
 		}
-		x.errf(pos, "beam-on budget of %s is exceeded: the steps may use up to %s of beam%s", fmtDur(p.BeamBudget), fmtDur(sum), repeatNote(p))
+		if sum.reserve == sum.most {
+			x.errf(pos, "beam-on budget of %s is exceeded: the steps may use up to %s of beam%s", fmtDur(p.BeamBudget), fmtDur(sum.most), repeatNote(p))
+		} else {
+			x.errf(pos, "beam-on budget of %s cannot keep every reading's reserve: the readings need at least %s (min_beam and a %s release each)%s", fmtDur(p.BeamBudget), fmtDur(sum.reserve), fmtDur(ReleaseTime), repeatNote(p))
+		}
+	}
+	if p.BeamBudget > 0 {
+		sum.most = min(sum.most, p.BeamBudget)
 	}
 	return sum
 }
@@ -280,8 +334,8 @@ func fmtDur(d time.Duration) string {
 }
 
 // step expands one written step in mode (empty outside per_field_mode)
-// and returns the beam-on time it may use.
-func (x *expander) step(p *Procedure, prefix string, s *Step, mode string, modes []string) time.Duration {
+// and returns the beam-on it may use.
+func (x *expander) step(p *Procedure, prefix string, s *Step, mode string, modes []string) beamUse {
 	k, _ := kindOf(s.Kind)
 	if k != nil && k.expand != nil {
 		return k.expand(x, p, prefix, s)
@@ -296,14 +350,17 @@ func (x *expander) step(p *Procedure, prefix string, s *Step, mode string, modes
 	if _, dup := x.byID[fs.ID]; !dup {
 		x.byID[fs.ID] = len(x.steps)
 	}
+	if fs.MaxBeam() > 0 {
+		fs.Pools = slices.Clone(x.pools)
+	}
 	x.steps = append(x.steps, fs)
-	return fs.MaxBeam()
+	return beamUse{most: fs.MaxBeam(), reserve: fs.Reserve()}
 }
 
-func (x *expander) repeat(p *Procedure, prefix string, s *Step) time.Duration {
+func (x *expander) repeat(p *Procedure, prefix string, s *Step) beamUse {
 	r := s.Repeat
 	if r == nil {
-		return 0
+		return beamUse{}
 	}
 	modes := r.Modes
 	if r.FromBench {
@@ -314,12 +371,12 @@ func (x *expander) repeat(p *Procedure, prefix string, s *Step) time.Duration {
 			for _, m := range modes {
 				if seenMode[m] {
 					x.errf(s.Pos, "field mode %q is listed twice by the bench", m)
-					return 0
+					return beamUse{}
 				}
 				seenMode[m] = true
 				if m == "" || strings.ContainsAny(m, "@/{}") {
 					x.errf(s.Pos, "field mode %q from the bench: a mode name must not be empty nor contain @, /, { or }", m)
-					return 0
+					return beamUse{}
 				}
 			}
 			if r.MaxModes > 0 && len(modes) > r.MaxModes {
@@ -327,29 +384,29 @@ func (x *expander) repeat(p *Procedure, prefix string, s *Step) time.Duration {
 			}
 		case x.forRun:
 			x.errf(s.Pos, "per_field_mode %q takes its modes from the bench file, and none were given", s.ID)
-			return 0
+			return beamUse{}
 		case r.MaxModes == 0:
 			x.errf(s.Pos, "per_field_mode %q takes its modes from the bench: give max_modes so the beam-on budget can be checked", s.ID)
-			return 0
+			return beamUse{}
 		default:
 			for i := 1; i <= r.MaxModes; i++ {
 				modes = append(modes, fmt.Sprintf("mode %d", i))
 			}
 		}
 	}
-	var sum time.Duration
+	var sum beamUse
 	for _, m := range modes {
 		for i := range r.Steps {
-			sum += x.step(p, prefix, &r.Steps[i], m, modes)
+			sum.add(x.step(p, prefix, &r.Steps[i], m, modes))
 		}
 	}
 	return sum
 }
 
-func (x *expander) include(p *Procedure, prefix string, s *Step) time.Duration {
+func (x *expander) include(p *Procedure, prefix string, s *Step) beamUse {
 	in := s.Include
 	if in == nil || in.Procedure == "" {
-		return 0
+		return beamUse{}
 	}
 	inc, err := x.res.Resolve(in.Procedure, p.File)
 	if err != nil {
@@ -360,29 +417,36 @@ func (x *expander) include(p *Procedure, prefix string, s *Step) time.Duration {
 			if _, ok := err.(Problems); !ok {
 				x.errf(s.Fields["procedure"], "include %q: %v", in.Procedure, err)
 			}
-			return 0
+			return beamUse{}
 		}
 	}
 	in.Resolved = inc
 	for _, n := range x.stack {
 		if n == inc.Name {
 			x.errf(s.Fields["procedure"], "include cycle: %s → %s", strings.Join(x.stack, " → "), inc.Name)
-			return 0
+			return beamUse{}
 		}
 	}
 	if in.Once && x.included[inc.Name] {
-		return 0
+		return beamUse{}
 	}
 	x.included[inc.Name] = true
 	if prefix == "" {
 		x.partTitles[s.ID] = inc.Title
 	}
 	x.stack = append(x.stack, inc.Name)
-	defer func() { x.stack = x.stack[:len(x.stack)-1] }()
-	// An included procedure counts for what it declares when that is more
-	// than its steps may use: its budget is the bound it promises, and
-	// the sequence's own budget must hold every promise it includes.
-	return max(x.proc(inc, prefix+s.ID+"/"), inc.BeamBudget)
+	npools := len(x.pools)
+	if inc.BeamBudget > 0 {
+		x.pools = append(x.pools, Pool{ID: prefix + s.ID + "/", Procedure: inc.Name, Budget: inc.BeamBudget})
+	}
+	defer func() {
+		x.stack = x.stack[:len(x.stack)-1]
+		x.pools = x.pools[:npools]
+	}()
+	// An included procedure keeps its own budget as a pool inside the
+	// sequence's: it may use up to the smaller of its steps' most and its
+	// budget, and the sequence's budget must keep its readings' reserves.
+	return x.proc(inc, prefix+s.ID+"/")
 }
 
 // instance copies a written step for one run position: {mode}

@@ -2,6 +2,9 @@ package script
 
 import (
 	"math"
+	"os"
+	"path/filepath"
+	"slices"
 	"strings"
 	"testing"
 	"time"
@@ -251,41 +254,108 @@ func TestLargestMode(t *testing.T) {
 	}
 }
 
-// TestIncludedBudgetCounts: an included procedure counts for the budget
-// it declares when that is more than its steps may use, so a sequence's
-// budget holds every promise it includes (contrast-ratio declares 25 s,
-// its two readings may use 2 × (10 s + 1 s) = 22 s).
-func TestIncludedBudgetCounts(t *testing.T) {
-	for _, tt := range []struct {
-		budget string
-		ok     bool
-	}{{"24 s", false}, {"25 s", true}} {
-		src := `name: seq
+// TestBudgetPools: a sequence's budget may be less than its readings
+// could use together, each up to its max_beam, when it keeps every
+// reading's reserve (min_beam and a release): the budget is then a pool
+// the engine enforces, and each beam step lists the pools it counts
+// against, the sequence's and each included procedure's. A budget below
+// the reserves is refused, naming them; a min_beam above the max_beam is
+// refused at its line.
+func TestBudgetPools(t *testing.T) {
+	dir := t.TempDir()
+	part := `name: part
+title: Part
+version: "1"
+beam_budget: 40 s
+meters: [photometer]
+defaults:
+  max_beam: 10 s
+  min_beam: 5 s
+steps:
+  - id: spots
+    kind: measure
+    text: Press, then step on the pedal.
+    read:
+      photometer: luminance
+    beam: on
+    positions: [centre, up 0.5 r, down 0.5 r]
+`
+	if err := os.WriteFile(filepath.Join(dir, "part.yaml"), []byte(part), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	seq := func(budget string) string {
+		return `name: seq
 title: T
 version: "1"
-beam_budget: ` + tt.budget + `
-meters: [photometer, dosimeter]
+beam_budget: ` + budget + `
+meters: [photometer]
 steps:
   - id: safety
     kind: include
     procedure: pre-exposure-safety
-  - id: cr
+  - id: p
     kind: include
-    procedure: contrast-ratio
+    procedure: part
 `
-		p, err := Parse("seq.yaml", []byte(src))
+	}
+	for _, tt := range []struct {
+		budget, problem string
+	}{
+		// 3 × (10 s + 1 s) = 33 s at most, 3 × (5 s + 1 s) = 18 s kept.
+		{"20 s", ""},
+		{"18 s", ""},
+		{"17 s", "beam-on budget of 17 s cannot keep every reading's reserve: the readings need at least 18 s (min_beam and a 1 s release each)"},
+	} {
+		path := filepath.Join(dir, "seq.yaml")
+		if err := os.WriteFile(path, []byte(seq(tt.budget)), 0o644); err != nil {
+			t.Fatal(err)
+		}
+		p, ps := CheckFile(path, Env{})
+		if tt.problem != "" {
+			if len(ps) != 1 || ps[0].Reason != tt.problem || ps[0].Pos.Line != 4 {
+				t.Errorf("budget %s: problems %s, want line 4: %s", tt.budget, list(ps), tt.problem)
+			}
+			continue
+		}
+		if len(ps) > 0 {
+			t.Fatalf("budget %s: %s", tt.budget, list(ps))
+		}
+		f, err := Flatten(p, Env{})
 		if err != nil {
 			t.Fatal(err)
 		}
-		ps := Check(p, Env{})
-		exceeded := false
-		for _, pr := range ps {
-			if strings.Contains(pr.Reason, "beam-on budget of "+tt.budget+" is exceeded: the steps may use up to 25 s") {
-				exceeded = true
+		var beam int
+		for _, s := range f.Steps {
+			if s.MaxBeam() == 0 {
+				if s.Pools != nil {
+					t.Errorf("%s: pools %v on a step without beam", s.ID, s.Pools)
+				}
+				continue
+			}
+			beam++
+			want := []Pool{{ID: "", Procedure: "seq", Budget: f.BeamBudget}, {ID: "p/", Procedure: "part", Budget: 40 * time.Second}}
+			if !slices.Equal(s.Pools, want) {
+				t.Errorf("%s: pools %v, want %v", s.ID, s.Pools, want)
+			}
+			if s.Reserve() != 3*6*time.Second || s.MaxBeam() != 3*11*time.Second {
+				t.Errorf("%s: reserve %v, most %v", s.ID, s.Reserve(), s.MaxBeam())
 			}
 		}
-		if exceeded == tt.ok {
-			t.Errorf("budget %s: problems %s", tt.budget, list(ps))
+		if beam != 1 {
+			t.Errorf("%d beam steps", beam)
 		}
+	}
+	bad := strings.Replace(part, "  min_beam: 5 s", "  min_beam: 12 s", 1)
+	path := filepath.Join(dir, "part.yaml")
+	if err := os.WriteFile(path, []byte(bad), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	_, ps := CheckFile(path, Env{})
+	found := false
+	for _, p := range ps {
+		found = found || strings.Contains(p.Reason, `beam step "spots" keeps min_beam 12 s in reserve, more than its max_beam 10 s`)
+	}
+	if !found {
+		t.Errorf("min_beam above max_beam: %s", list(ps))
 	}
 }

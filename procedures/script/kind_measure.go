@@ -1,6 +1,7 @@
 package script
 
 import (
+	"cmp"
 	"kermalux/drivers/units"
 	"sort"
 	"strings"
@@ -57,6 +58,10 @@ func (ps *parse) measureField(s *Step, f field) {
 	case "max_beam":
 		if v, ok := ps.duration(f, "max_beam"); ok {
 			m.MaxBeam = v
+		}
+	case "min_beam":
+		if v, ok := ps.duration(f, "min_beam"); ok {
+			m.MinBeam = v
 		}
 	case "duration":
 		if v, ok := ps.duration(f, "duration"); ok {
@@ -177,6 +182,9 @@ func measureInstance(x *expander, p *Procedure, s, st *Step, mode string) {
 	if m.MaxBeam == 0 && m.Beam {
 		m.MaxBeam = p.Defaults.MaxBeam
 	}
+	if m.MinBeam == 0 && m.Beam {
+		m.MinBeam = p.Defaults.MinBeam
+	}
 	if m.Expect == nil {
 		m.Expect = p.Defaults.Expect
 	}
@@ -221,6 +229,14 @@ func measureStatic(x *expander, p *Procedure, s *Step) {
 		_, wroteExpect := s.Fields["expect"]
 		if m.MaxBeam == 0 && p.Defaults.MaxBeam == 0 && !wroteMax {
 			x.errf(s.Pos, "beam step %q has no max_beam (and the procedure has no default): its beam-on time must be bounded", s.ID)
+		}
+		maxB, minB := cmp.Or(m.MaxBeam, p.Defaults.MaxBeam), cmp.Or(m.MinBeam, p.Defaults.MinBeam)
+		if minB > 0 && maxB > 0 && minB > maxB {
+			pos := s.Pos
+			if fp, ok := s.Fields["min_beam"]; ok {
+				pos = fp
+			}
+			x.errf(pos, "beam step %q keeps min_beam %s in reserve, more than its max_beam %s", s.ID, fmtDur(minB), fmtDur(maxB))
 		}
 		if m.reads(units.AirKermaRate) {
 			exp := m.Expect

@@ -2,7 +2,6 @@ package script
 
 import (
 	"strings"
-	"time"
 )
 
 // Kind is a step's kind.
@@ -70,7 +69,7 @@ type kindDef struct {
 	// (per_field_mode, include): it expands the step in place and
 	// returns the beam-on time the steps it stands for may use. Such a
 	// kind never reaches the engine.
-	expand func(x *expander, p *Procedure, prefix string, s *Step) time.Duration
+	expand func(x *expander, p *Procedure, prefix string, s *Step) beamUse
 }
 
 // place is a step at its place in the run: the step as written, its
@@ -98,7 +97,7 @@ func init() {
 			need: []string{"name", "unit", "range"}, parse: (*parse).enterField,
 			static: enterStatic, instance: enterInstance, at: enterAt},
 		{kind: KindMeasure, fields: []string{"text", "read", "beam", "beam_quality", "field_mode", "setup", "positions",
-			"precision", "max_beam", "duration", "max_drift", "expect"},
+			"precision", "max_beam", "min_beam", "duration", "max_drift", "expect"},
 			need: []string{"read", "beam"}, parse: (*parse).measureField,
 			static: measureStatic, instance: measureInstance, at: measureAt},
 		{kind: KindCompute, fields: []string{"text", "figure", "from"}, need: []string{"figure", "from"},

@@ -307,10 +307,14 @@ func (ps *parse) defaults(f field, d *Defaults) {
 			if v, ok := ps.duration(g, "max_beam"); ok {
 				d.MaxBeam = v
 			}
+		case "min_beam":
+			if v, ok := ps.duration(g, "min_beam"); ok {
+				d.MinBeam = v
+			}
 		case "expect":
 			d.Expect = ps.expect(g)
 		default:
-			ps.errf(g.kpos, "unknown defaults field %q (expected precision, max_beam, expect)", g.key)
+			ps.errf(g.kpos, "unknown defaults field %q (expected precision, max_beam, min_beam, expect)", g.key)
 		}
 	}
 }

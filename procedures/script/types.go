@@ -54,6 +54,7 @@ type Procedure struct {
 type Defaults struct {
 	Precision float64       // relative expanded uncertainty target (0.02 = 2 %); 0: none given
 	MaxBeam   time.Duration // per reading position; 0: none given
+	MinBeam   time.Duration // per reading position, kept in reserve; 0: none given
 	Expect    []Expect
 }
 
@@ -207,9 +208,14 @@ type MeasureSpec struct {
 	Positions   []Position
 	Precision   float64       // relative expanded uncertainty target; 0: take Defaults
 	MaxBeam     time.Duration // per position; 0: take Defaults
-	Duration    time.Duration // collect for this long instead of stopping at precision (stability checks)
-	MaxDrift    float64       // relative; for stability checks with Duration; 0: not judged
-	Expect      []Expect
+	// MinBeam is the beam-on a position is sure to get however much the
+	// positions before it used: the budget of every procedure it is
+	// written in keeps it in reserve (0: take Defaults, else MaxBeam,
+	// which reserves the whole of each position as a plain sum would).
+	MinBeam  time.Duration
+	Duration time.Duration // collect for this long instead of stopping at precision (stability checks)
+	MaxDrift float64       // relative; for stability checks with Duration; 0: not judged
+	Expect   []Expect
 }
 
 // PositionCount is the number of readings the step takes (1 without
@@ -352,7 +358,23 @@ type FlatStep struct {
 	// and PartTitle that procedure's title; both empty for the steps
 	// written in the top-level procedure itself.
 	Part, PartTitle string
-	Step            Step
+	// Pools are the beam-on budgets the step's readings count against,
+	// outermost first: the top-level procedure's, then each included
+	// procedure's that declares one (set for beam steps only).
+	Pools []Pool
+	Step  Step
+}
+
+// Pool is one procedure instance's beam-on budget: ID is its include
+// path ("" for the top-level procedure, "uniformity/" for an include),
+// Budget what it declares. The engine stops a reading where the budget,
+// less the reserves (MinBeam and ReleaseTime) of the readings still to
+// come in the same pool, is used up, so the budget holds whatever one
+// reading takes; the checker proves that the reserves fit.
+type Pool struct {
+	ID        string
+	Procedure string
+	Budget    time.Duration
 }
 
 // MaxBeam returns the longest beam-on time the step may use (0 for a step
@@ -369,6 +391,26 @@ func (f FlatStep) MaxBeam() time.Duration {
 // checker adds up is what the timer counts (common practice: a prompt
 // release takes well under a second).
 const ReleaseTime = time.Second
+
+// Reserve returns the beam-on the step's readings keep in reserve in
+// their pools: MinBeam and ReleaseTime for each position (0 for a step
+// without beam).
+func (f FlatStep) Reserve() time.Duration {
+	if f.Step.Kind != KindMeasure || f.Step.Measure == nil || !f.Step.Measure.Beam {
+		return 0
+	}
+	m := f.Step.Measure
+	return (m.reserve() + ReleaseTime) * time.Duration(m.PositionCount())
+}
+
+// reserve is one position's reserve without its release: MinBeam, else
+// MaxBeam.
+func (m *MeasureSpec) reserve() time.Duration {
+	if m.MinBeam > 0 {
+		return m.MinBeam
+	}
+	return m.MaxBeam
+}
 
 func stepBeam(s *Step, d Defaults) time.Duration {
 	if s.Kind != KindMeasure || s.Measure == nil || !s.Measure.Beam {
