@@ -126,21 +126,19 @@ func (v *View) URLs() []string {
 // the pairing code, digit by digit so that it is heard clearly, and where
 // to open the page ("192.168.4.1 port 8471"). It never holds the token.
 func (v *View) Announcement() panel.Message {
+	// Only the whole sentence is a catalogued format: "port" and "or" are
+	// words looked up alone, so that no loose format ("%s or %s") can
+	// match some other text.
 	m := v.opts.Messages
-	tf := func(format string, a ...any) string { return fmt.Sprintf(m.Text(format), a...) }
-	where := ""
+	var where []string
 	for _, u := range v.URLs() {
 		host, port, err := net.SplitHostPort(strings.TrimSuffix(strings.TrimPrefix(u, "http://"), "/"))
-		if err != nil {
-			continue
-		}
-		if at := tf("%s port %s", host, port); where == "" {
-			where = at
-		} else {
-			where = tf("%s or %s", where, at)
+		if err == nil {
+			where = append(where, host+" "+m.Text("port")+" "+port)
 		}
 	}
-	return panel.Message{Text: tf("Live view on. Pairing code %s. Open %s in a browser.", v.srv.SpokenCode(), where), Level: panel.Info}
+	tf := func(format string, a ...any) string { return fmt.Sprintf(m.Text(format), a...) }
+	return panel.Message{Text: tf("Live view on. Pairing code %s. Open %s in a browser.", v.srv.SpokenCode(), strings.Join(where, " "+m.Text("or")+" ")), Level: panel.Info}
 }
 
 // Printed is the text printed once on standard error at start: the
