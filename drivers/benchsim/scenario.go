@@ -4,7 +4,6 @@ import (
 	"errors"
 	"fmt"
 	"math"
-	"os"
 	"reflect"
 	"strings"
 	"time"
@@ -232,9 +231,13 @@ const (
 // shared position error of kermalux's files).
 type ScenarioError = filepos.Error
 
-// LoadScenario reads and checks a scenario file.
+// MaxScenarioBytes bounds a scenario file: the shipped ones are a few
+// kilobytes.
+const MaxScenarioBytes = 1 << 20
+
+// LoadScenario reads and checks a scenario file (at most MaxScenarioBytes).
 func LoadScenario(path string) (*Scenario, error) {
-	data, err := os.ReadFile(path)
+	data, err := filepos.ReadFile(path, MaxScenarioBytes, "scenario file")
 	if err != nil {
 		return nil, fmt.Errorf("reading scenario: %w", err)
 	}

@@ -8,6 +8,8 @@ package filepos
 
 import (
 	"fmt"
+	"io"
+	"os"
 	"strings"
 )
 
@@ -47,3 +49,34 @@ func (e *Error) Error() string {
 
 // Unwrap returns the cause.
 func (e *Error) Unwrap() error { return e.Err }
+
+// ReadFile reads the file at path, at most limit bytes: a file larger than
+// that is refused (a *Error naming the file and the bound) before it is
+// read whole, so that a huge or endless file cannot take the memory a
+// decoder would need for it (a 50 MB YAML string cost 1.5 GB). what names
+// the kind of file in the refusal ("results file").
+func ReadFile(path string, limit int, what string) ([]byte, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, err
+	}
+	defer f.Close()
+	data, err := io.ReadAll(io.LimitReader(f, int64(limit)+1))
+	if err != nil {
+		return nil, fmt.Errorf("read %s: %w", path, err)
+	}
+	if len(data) > limit {
+		return nil, &Error{File: path, Msg: fmt.Sprintf("larger than %s: not a %s", sizeText(limit), what)}
+	}
+	return data, nil
+}
+
+func sizeText(n int) string {
+	switch {
+	case n >= 1<<20 && n%(1<<20) == 0:
+		return fmt.Sprintf("%d MiB", n>>20)
+	case n >= 1<<10 && n%(1<<10) == 0:
+		return fmt.Sprintf("%d KiB", n>>10)
+	}
+	return fmt.Sprintf("%d bytes", n)
+}

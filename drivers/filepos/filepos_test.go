@@ -1,9 +1,12 @@
 package filepos
 
 import (
+	"bytes"
 	"errors"
 	"fmt"
 	"io/fs"
+	"os"
+	"path/filepath"
 	"testing"
 )
 
@@ -39,5 +42,29 @@ func TestUnwrapAndAs(t *testing.T) {
 	}
 	if errors.As(errors.New("plain"), &got) {
 		t.Error("errors.As found a position in a plain error")
+	}
+}
+
+// ReadFile returns a file up to its bound whole, and refuses one a byte
+// over it, naming the file and the bound, without reading it all.
+func TestReadFileBound(t *testing.T) {
+	dir := t.TempDir()
+	p := filepath.Join(dir, "results.json")
+	if err := os.WriteFile(p, bytes.Repeat([]byte{' '}, 4<<10), 0o600); err != nil {
+		t.Fatal(err)
+	}
+	if b, err := ReadFile(p, 4<<10, "results file"); err != nil || len(b) != 4<<10 {
+		t.Fatalf("a file at the bound: %d bytes, %v", len(b), err)
+	}
+	f, _ := os.OpenFile(p, os.O_APPEND|os.O_WRONLY, 0)
+	f.Write([]byte{' '})
+	f.Close()
+	_, err := ReadFile(p, 4<<10, "results file")
+	var fe *Error
+	if !errors.As(err, &fe) || err.Error() != p+": larger than 4 KiB: not a results file" {
+		t.Errorf("a byte over the bound: %v", err)
+	}
+	if _, err := ReadFile(filepath.Join(dir, "none"), 1, "x"); !errors.Is(err, os.ErrNotExist) {
+		t.Errorf("missing file: %v", err)
 	}
 }

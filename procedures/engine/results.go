@@ -13,6 +13,7 @@ import (
 	"strings"
 
 	"kermalux/calib"
+	"kermalux/drivers/filepos"
 	"kermalux/procedures/entry"
 )
 
@@ -108,9 +109,14 @@ func WriteResultsFile(dir string, rf ResultsFile) (string, error) {
 	return path, nil
 }
 
-// ReadResults reads a results.json (a baseline).
+// MaxResultsBytes bounds a results.json read back (a baseline): one
+// visit's results take a few kilobytes; a file far larger is no results
+// file, and the board would spend its memory decoding it.
+const MaxResultsBytes = 4 << 20
+
+// ReadResults reads a results.json (a baseline), at most MaxResultsBytes.
 func ReadResults(path string) (ResultsFile, error) {
-	b, err := os.ReadFile(path)
+	b, err := filepos.ReadFile(path, MaxResultsBytes, "results file")
 	if err != nil {
 		return ResultsFile{}, fmt.Errorf("read results: %w", err)
 	}
