@@ -15,6 +15,7 @@ import (
 	"os"
 	"path/filepath"
 	"sync"
+	"time"
 )
 
 // The high-water mark: a small signed file beside the journal
@@ -171,12 +172,18 @@ func checkMark(ctx context.Context, db *sql.DB, m *Mark) (string, error) {
 	return "", nil
 }
 
+// markPause is the least time between two writes of the mark: at high
+// append rates its flush to disk would otherwise come between every two
+// commits of the journal, each waiting for the other's. A mark that
+// arrives after a quiet spell is written at once.
+const markPause = 5 * time.Millisecond
+
 // markWriter keeps the mark file up to date in the background: Append
 // hands it each committed head and returns at once; the writer coalesces
-// what arrives while it writes, so the mark trails the journal by at most
-// the records of the last write and fsync (milliseconds). The mark is
-// only ever written for committed records, so it is never ahead of the
-// journal; Close writes the last head before it returns.
+// what arrives while it writes and for markPause after, so the mark trails
+// the journal by at most the records of the last few milliseconds. The
+// mark is only ever written for committed records, so it is never ahead of
+// the journal; flush (SyncMark) and Close write the last head at once.
 type markWriter struct {
 	path string
 	priv ed25519.PrivateKey
@@ -189,6 +196,8 @@ type markWriter struct {
 	writing bool
 	closed  bool
 	done    chan struct{}
+	hurry   chan struct{} // cuts markPause short (flush, close)
+	written int           // marks written since start (for tests)
 }
 
 // startMarkWriter opens the mark file; with no mark yet (a new journal)
@@ -203,7 +212,7 @@ func startMarkWriter(path string, priv ed25519.PrivateKey, last *Mark) (*markWri
 		d.Sync() // the new file's name is durable
 		d.Close()
 	}
-	w := &markWriter{path: path, priv: priv, f: f, done: make(chan struct{})}
+	w := &markWriter{path: path, priv: priv, f: f, done: make(chan struct{}), hurry: make(chan struct{}, 1)}
 	w.cond = sync.NewCond(&w.mu)
 	if last != nil {
 		w.n = last.N
@@ -220,6 +229,7 @@ func startMarkWriter(path string, priv ed25519.PrivateKey, last *Mark) (*markWri
 
 // flush waits until every noted head is in the file.
 func (w *markWriter) flush() {
+	w.poke()
 	w.mu.Lock()
 	for w.pending != nil || w.writing {
 		w.cond.Wait()
@@ -234,6 +244,14 @@ func (w *markWriter) note(session string, seq int64, hash string) {
 	w.pending = &Mark{N: w.n, Session: session, Seq: seq, Hash: hash}
 	w.cond.Broadcast()
 	w.mu.Unlock()
+}
+
+// poke cuts the writer's pause short.
+func (w *markWriter) poke() {
+	select {
+	case w.hurry <- struct{}{}:
+	default:
+	}
 }
 
 func (w *markWriter) loop() {
@@ -254,11 +272,20 @@ func (w *markWriter) loop() {
 			}
 			w.mu.Lock()
 			w.writing = false
+			w.written++
 			w.cond.Broadcast()
 			w.mu.Unlock()
 		}
 		if closed && m == nil {
 			return
+		}
+		if m != nil && !closed {
+			t := time.NewTimer(markPause)
+			select {
+			case <-t.C:
+			case <-w.hurry:
+				t.Stop()
+			}
 		}
 	}
 }
@@ -282,7 +309,7 @@ func (w *markWriter) write(m *Mark) error {
 	if _, err := w.f.WriteAt(slot, int64(m.N%2)*markSlot); err != nil {
 		return err
 	}
-	return w.f.Sync()
+	return datasync(w.f)
 }
 
 // close writes what is pending and closes the file.
@@ -291,6 +318,7 @@ func (w *markWriter) close() error {
 	w.closed = true
 	w.cond.Broadcast()
 	w.mu.Unlock()
+	w.poke()
 	<-w.done
 	return w.f.Close()
 }
