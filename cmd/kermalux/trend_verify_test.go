@@ -68,28 +68,42 @@ func TestTrendReadsVerifiedRecords(t *testing.T) {
 // intensifier's serial.
 func trendStore(t *testing.T) (string, string) {
 	t.Helper()
-	dir := t.TempDir()
-	jp, key := boardJournal(t, dir)
+	jp, key := boardJournal(t, t.TempDir())
 	// A second session on the same intensifier (journaltest's serials
 	// repeat every seven sessions), so the trend has two points.
 	appendSession(t, jp, 7, 3)
-	sp := filepath.Join(dir, "office.db")
-	if code, out, errb := run(t, "enroll", "--store", sp, "--key", key, "--name", "trend-board"); code != exitOK {
+	sp := pushedStore(t, jp, key)
+	st, err := store.Open(sp)
+	if err != nil {
+		t.Fatal(err)
+	}
+	infos, _ := st.Sessions(context.Background(), store.Query{})
+	st.Close()
+	if len(infos) != 2 || infos[0].Session.IntensifierSerial != infos[1].Session.IntensifierSerial {
+		t.Fatalf("sessions stored %+v", infos)
+	}
+	return sp, infos[0].Session.IntensifierSerial
+}
+
+// pushedStore is a new store that enrolled the board key and received
+// the journal at jp by kermalux push.
+func pushedStore(t *testing.T, jp, key string) string {
+	t.Helper()
+	sp := filepath.Join(t.TempDir(), "office.db")
+	if code, out, errb := run(t, "enroll", "--store", sp, "--key", key, "--name", "test-board"); code != exitOK {
 		t.Fatalf("enroll: exit %d %s %s", code, out, errb)
 	}
 	st, err := store.Open(sp)
 	if err != nil {
 		t.Fatal(err)
 	}
+	defer st.Close()
 	srv := httptest.NewServer(receive.Handler(st, receive.Options{Log: slog.New(slog.NewTextHandler(io.Discard, nil))}))
-	code, out, errb := run(t, "push", "--journal", jp, "--to", srv.URL)
-	srv.Close()
-	infos, _ := st.Sessions(context.Background(), store.Query{})
-	st.Close()
-	if code != exitOK || len(infos) != 2 || infos[0].Session.IntensifierSerial != infos[1].Session.IntensifierSerial {
-		t.Fatalf("push: exit %d %s %s, sessions stored %+v", code, out, errb, infos)
+	defer srv.Close()
+	if code, out, errb := run(t, "push", "--journal", jp, "--to", srv.URL); code != exitOK {
+		t.Fatalf("push: exit %d %s %s", code, out, errb)
 	}
-	return sp, infos[0].Session.IntensifierSerial
+	return sp
 }
 
 // tamperStore edits the first conversion factor (21.3 to 31.3) in table
