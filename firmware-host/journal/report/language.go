@@ -3,6 +3,7 @@ package report
 import (
 	"bytes"
 	"html"
+	"regexp"
 	"strings"
 	"unicode"
 
@@ -15,8 +16,9 @@ import (
 // translates (headings, labels, table heads, verdict words, the cautions,
 // the signature box; texts composed from a catalogued format, such as
 // "3 pass · 0 fail · 1 for information") is shown in that language. The
-// standard's symbols (G_x, K̇, L, U, k) and units, and every number, are
-// shown as they are; the journal's own words (a meter's raw line, the
+// standard's symbols (G_x, K̇, L, U, k), the units and every number are
+// the same, numbers written with the language's decimal separator; the
+// journal's own words (a meter's raw line, the
 // deciding limit as journalled, flags) stay as recorded. A text a catalog
 // does not have is shown in English: the report never loses a line for
 // want of a translation (TestReportTextsTranslated lists the texts each
@@ -51,30 +53,78 @@ func (r *Report) Language(opt Options) string {
 	return catalog.English
 }
 
-// text is s in the report's language (s itself in English, for a text
-// without letters, and for one no catalog has). The white space around
-// s is kept.
-func (w *words) text(s string) string {
-	if w == nil || !strings.ContainsFunc(s, unicode.IsLetter) {
+// text is s in the report's language (s itself in English, and for a
+// text no catalog has), its numbers written with the language's decimal
+// separator unless it cites a standard (standardRef). The white space
+// around s is kept.
+func (w *words) text(s string) string { return w.translate(s, true) }
+
+func (w *words) translate(s string, localNumbers bool) string {
+	if w == nil || !strings.ContainsFunc(s, func(r rune) bool { return unicode.IsLetter(r) || r == '.' }) {
 		return s
 	}
-	if t, ok := w.memo[s]; ok {
+	localNumbers = localNumbers && !standardRef.MatchString(s)
+	key := s
+	if !localNumbers {
+		key = "\x00" + s
+	}
+	if t, ok := w.memo[key]; ok {
 		return t
 	}
-	core := strings.TrimSpace(s)
 	t := s
-	if tr, ok := w.c.Translate(core); ok {
-		i := strings.Index(s, core)
-		t = s[:i] + tr + s[i+len(core):]
+	if strings.ContainsFunc(s, unicode.IsLetter) {
+		core := strings.TrimSpace(s)
+		if tr, ok := w.c.Translate(core); ok {
+			i := strings.Index(s, core)
+			t = s[:i] + tr + s[i+len(core):]
+		}
 	}
-	w.memo[s] = t
+	if localNumbers {
+		t = decimals(t, w.c.Decimal)
+	}
+	w.memo[key] = t
 	return t
+}
+
+// standardRef finds a text that cites a standard or a handbook: its
+// numbers are section and table numbers, written as the standard writes
+// them ("JCGM 100:2008 (GUM) 6.2, G.4").
+var standardRef = regexp.MustCompile(`\b(?:JCGM|GUM|IEC|ISO|IAEA|TRS|AAPM|TG|DIN|NIST|BIPM)\b`)
+
+// decimalPoint is a number with a decimal point standing alone: not
+// after a letter, a digit or another separator ("G.4", "1.2.3" are no
+// decimal numbers).
+var decimalPoint = regexp.MustCompile(`(^|[^\p{L}\p{N}_.,])([0-9]+)\.([0-9]+)\b`)
+
+// decimals writes the decimal point of each number in s as sep (DIN 1333
+// and the SI Brochure 5.4.4: the decimal marker is the comma or the point,
+// as the language writes it). A run of more than one point (a version
+// "0.1.0", a section "7.2.6") is left as it is.
+func decimals(s, sep string) string {
+	if sep == "" || sep == "." || !strings.Contains(s, ".") {
+		return s
+	}
+	var b strings.Builder
+	last := 0
+	for _, m := range decimalPoint.FindAllStringSubmatchIndex(s, -1) {
+		end := m[1]
+		if rest := s[end:]; len(rest) > 1 && (rest[0] == '.' || rest[0] == ',') && rest[1] >= '0' && rest[1] <= '9' {
+			continue
+		}
+		b.WriteString(s[last:m[5]]) // up to the whole part
+		b.WriteString(sep)
+		b.WriteString(s[m[6]:end])
+		last = end
+	}
+	b.WriteString(s[last:])
+	return b.String()
 }
 
 // translateHTML translates the text of a rendered HTML report: each run
 // of text between tags (outside style, script and the charts' svg, and not
 // in an element of class "mono", which holds what a meter sent or a
-// digest) is looked up whole, unescaped, and written back escaped; the
+// digest) is looked up whole (its numbers keep their points from the
+// first mention of a standard to the end of its cell or paragraph), unescaped, and written back escaped; the
 // title and placeholder attributes are left as they are.
 func (w *words) translateHTML(page []byte) []byte {
 	if w == nil {
@@ -84,6 +134,7 @@ func (w *words) translateHTML(page []byte) []byte {
 	out.Grow(len(page) + len(page)/8)
 	skip := "" // the element whose content is left as it is
 	mono := false
+	cite := false // the element cites a standard: its numbers are its sections
 	i := 0
 	for i < len(page) {
 		lt := bytes.IndexByte(page[i:], '<')
@@ -94,7 +145,9 @@ func (w *words) translateHTML(page []byte) []byte {
 			if skip != "" || mono {
 				out.Write(txt)
 			} else {
-				out.WriteString(html.EscapeString(w.text(html.UnescapeString(string(txt)))))
+				t := html.UnescapeString(string(txt))
+				cite = cite || standardRef.MatchString(t)
+				out.WriteString(html.EscapeString(w.translate(t, !cite)))
 			}
 		}
 		i += lt
@@ -121,6 +174,10 @@ func (w *words) translateHTML(page []byte) []byte {
 			mono = bytes.Contains(tag, []byte(`class="mono"`))
 		default:
 			mono = false
+			switch name {
+			case "/td", "/th", "/p", "/li", "/div", "/figcaption", "/h2", "/h3":
+				cite = false
+			}
 		}
 	}
 	return out.Bytes()

@@ -20,9 +20,14 @@ func visibleText(page string) string {
 	return html.UnescapeString(page)
 }
 
-// numbers are the numbers a text holds, sorted.
+// numbers are the numbers a text holds, sorted, each with a decimal
+// point whichever separator it was written with (the board writes no
+// thousands separators).
 func numbers(text string) []string {
 	n := regexp.MustCompile(`\d+(?:[.,:]\d+)*`).FindAllString(text, -1)
+	for i := range n {
+		n[i] = strings.ReplaceAll(n[i], ",", ".")
+	}
 	slices.Sort(n)
 	return n
 }
@@ -31,7 +36,9 @@ func numbers(text string) []string {
 // labels, verdict words, cautions and signature box in German (the
 // expected German written by hand: procedures/catalog/lang/de), the
 // standard's symbols and every number as in the English report of the
-// same session, in the HTML and in the PDF. A rendering may ask for
+// same session, numbers written with the decimal comma (a version
+// "0.1.0" and a standard's section "6.2, G.4" as written), in the HTML and
+// in the PDF. A rendering may ask for
 // another language (Options.Language), here English again.
 func TestReportInTheSessionLanguage(t *testing.T) {
 	r, err := Build(sampleSession())
@@ -53,8 +60,16 @@ func TestReportInTheSessionLanguage(t *testing.T) {
 		"Strahlenschutzbeauftragten", "<h2>Prüfung und Unterschrift</h2>", "Außerhalb eines eingestellten Grenzwerts",
 		"4 bestanden · 1 nicht bestanden · 3 zur Information", "<th class=\"num\">Wert ± U</th>", "<th>Bewertung</th>",
 		"G_x = L / K̇: Leuchtdichte in der Mitte (cd/m²)", "Die Prüfung und die Röntgenanlage", "Modell und Seriennummer laut Zertifikat",
-		"<li>Ein Messgerät ist ausgefallen: 1-mal</li>", "Wiederholbarkeit der Leuchtdichte"} {
+		"<li>Ein Messgerät ist ausgefallen: 1-mal</li>", "Wiederholbarkeit der Leuchtdichte",
+		"152,0 ± 5,3", "<h3><span>Konversionsfaktor</span>, 32cm: 152,0 ± 5,3 cd·m⁻²/(µGy·s⁻¹) (k = 2,00)</h3>", "mit k = 2,00"} {
 		if !strings.Contains(got, want) {
+			t.Errorf("German report lacks %q", want)
+		}
+	}
+	// A version and a standard's sections keep their points.
+	shown := strings.Join(strings.Fields(visibleText(got)), " ")
+	for _, want := range []string{"kermalux 0.1.0-dev", "JCGM 100:2008 (GUM) 6.2, G.4", "IEC 61262-2"} {
+		if !strings.Contains(shown, want) {
 			t.Errorf("German report lacks %q", want)
 		}
 	}

@@ -232,10 +232,16 @@ func (d *pdfDoc) cellText(cols []pdfCol, row []string, i int, head bool) string 
 		return d.tx(cols[i].head)
 	}
 	if i < len(row) {
+		if cols[i].head == rawLineHead {
+			return pdfText(row[i]) // what the meter sent, as it sent it
+		}
 		return d.tx(row[i])
 	}
 	return ""
 }
+
+// rawLineHead heads the column of what a meter sent, shown verbatim.
+const rawLineHead = "Raw line"
 
 // pdfText replaces characters the embedded fonts lack or fpdf cannot set:
 // the superscript minus of units such as cd·m⁻²/(µGy·s⁻¹), combining marks.
@@ -687,7 +693,7 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 			}
 			rows = append(rows, []string{fmt.Sprint(rd.Seq), Clock(rd.Wall), rd.StepID, rd.FieldMode, rd.Position, rd.Meter, rd.Raw, correctionsText(rd.Corrections), Number(rd.Value) + " " + rd.Unit, st})
 		}
-		d.tableSized([]pdfCol{{"Seq", .04, true}, {"Time", .06, false}, {"Step", .11, false}, {"Field", .05, false}, {"Position", .07, false}, {"Meter", .07, false}, {"Raw line", .14, false}, {"Corrections", .24, false}, {"Corrected", .09, true}, {"Status", .13, false}}, rows, 6.5, true)
+		d.tableSized([]pdfCol{{"Seq", .04, true}, {"Time", .06, false}, {"Step", .11, false}, {"Field", .05, false}, {"Position", .07, false}, {"Meter", .07, false}, {rawLineHead, .14, false}, {"Corrections", .24, false}, {"Corrected", .09, true}, {"Status", .13, false}}, rows, 6.5, true)
 	} else {
 		d.para(fmt.Sprintf("The %d readings one by one (raw line, each correction, corrected value) are in the readings CSV and the HTML report: more than %d would not make a readable PDF.", len(r.Readings), pdfReadingsMax), 8)
 	}
