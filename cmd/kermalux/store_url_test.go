@@ -51,7 +51,9 @@ func TestStoreCommandsOnBothBackends(t *testing.T) {
 		var rout, rerr lockedBuffer
 		done := make(chan int, 1)
 		resetFlags(root)
-		go func() { done <- execute([]string{"receive", "--store", target, "--listen", "127.0.0.1:0"}, &rout, &rerr) }()
+		go func() {
+			done <- execute([]string{"receive", "--store", target, "--listen", "127.0.0.1:0"}, &rout, &rerr)
+		}()
 		addr := regexp.MustCompile(`receiving on (http://127\.0\.0\.1:\d+)`)
 		deadline := time.Now().Add(20 * time.Second)
 		var url string
