@@ -149,7 +149,7 @@ func translatePayload(c *catalog.Catalog, data []byte) []byte {
 	for _, k := range []string{"decided_by", "reason"} {
 		if s, ok := p[k].(string); ok && s != "" {
 			words := strings.ReplaceAll(s, "_", " ")
-			if tr, ok := c.Translate(words); ok {
+			if tr, ok := c.TranslateWhole(words); ok {
 				p[k], changed = tr, true
 			}
 		}

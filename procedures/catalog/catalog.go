@@ -25,6 +25,7 @@ import (
 	"sort"
 	"strconv"
 	"strings"
+	"unicode"
 
 	"github.com/goccy/go-yaml/ast"
 	"github.com/goccy/go-yaml/parser"
@@ -131,13 +132,29 @@ func (c *Catalog) Compose(src string) (string, bool) {
 	if c.IsEnglish() {
 		return src, true
 	}
-	return c.compose(Key(src), 0)
+	return c.compose(Key(src), 0, false)
+}
+
+// TranslateWhole is Translate for texts that were not composed by the
+// engine (a report's cells, a journalled reason): a composed translation
+// is taken only when every value it holds that is prose (two words or
+// more) was translated too, so that a loose format ("%s, %s field") never
+// turns a text it merely looks like into half a translation. A name, a
+// number or a number with its unit ("32cm", "70.0 kV") may stay as it is.
+func (c *Catalog) TranslateWhole(src string) (string, bool) {
+	if t, ok := c.Lookup(src); ok {
+		return t, true
+	}
+	if c.IsEnglish() {
+		return src, true
+	}
+	return c.compose(Key(src), 0, true)
 }
 
 // maxNesting bounds how deep Compose looks into a value for another format.
 const maxNesting = 4
 
-func (c *Catalog) compose(src string, depth int) (string, bool) {
+func (c *Catalog) compose(src string, depth int, whole bool) (string, bool) {
 	if depth > maxNesting || src == "" {
 		return src, false
 	}
@@ -161,10 +178,12 @@ func (c *Catalog) compose(src string, depth int) (string, bool) {
 			default: // a text: translated, a number localised, else kept
 				if t, found := c.Lookup(val); found {
 					args[i] = t
-				} else if t, found := c.compose(val, depth+1); found {
+				} else if t, found := c.compose(val, depth+1, whole); found {
 					args[i] = t
 				} else if isNumber(val) {
 					args[i] = c.Number(val)
+				} else if whole && prose(val) {
+					ok = false
 				} else {
 					args[i] = val
 				}
@@ -200,6 +219,23 @@ func (c *Catalog) modeFormat(src string) {
 	}
 	re.WriteString("$")
 	c.formats = append(c.formats, format{src: src, re: regexp.MustCompile(re.String()), verbs: []byte(strings.Repeat("m", len(parts)-1))})
+}
+
+// prose: s has two or more words of three letters or more.
+func prose(s string) bool {
+	n := 0
+	for _, w := range strings.Fields(s) {
+		letters := 0
+		for _, r := range w {
+			if unicode.IsLetter(r) {
+				letters++
+			}
+		}
+		if letters >= 3 {
+			n++
+		}
+	}
+	return n >= 2
 }
 
 // isNumber: s is a number as strconv writes one ("12", "-0.455", "1e-05").

@@ -203,3 +203,28 @@ func FuzzParse(f *testing.F) {
 		}
 	})
 }
+
+// TranslateWhole takes a composed translation only when the prose it
+// holds is translated too: a text that merely looks like a catalogued
+// format ("%s, %s field" in the description of a formula) stays English
+// whole, never half German. The German is the built-in catalog's.
+func TestTranslateWhole(t *testing.T) {
+	de, err := Builtin("de")
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, c := range []struct {
+		src, want string
+		ok        bool
+	}{
+		{"Conversion factor, 32cm field", "Konversionsfaktor, Feld 32cm", true}, // a name as a value
+		{"CR = L_open / L_disk at the centre, lead disk at the centre of the input field", "", false},
+		{"not measurable: the reading did not settle within its beam-on limit", "nicht messbar: der Messwert hat sich innerhalb seiner Strahlzeitgrenze nicht stabilisiert", true},
+		{"not measurable: the meter was dropped on the floor", "", false},
+	} {
+		got, ok := de.TranslateWhole(c.src)
+		if ok != c.ok || (ok && got != c.want) {
+			t.Errorf("TranslateWhole(%q) = %q, %v; want %q, %v", c.src, got, ok, c.want, c.ok)
+		}
+	}
+}

@@ -74,7 +74,7 @@ func (w *words) translate(s string, localNumbers bool) string {
 	t := s
 	if strings.ContainsFunc(s, unicode.IsLetter) {
 		core := strings.TrimSpace(s)
-		if tr, ok := w.c.Translate(core); ok {
+		if tr, ok := w.c.TranslateWhole(core); ok {
 			i := strings.Index(s, core)
 			t = s[:i] + tr + s[i+len(core):]
 		}
