@@ -594,10 +594,19 @@ func slug(s string) string {
 // Charts renders every chart the report has data for, in reading order,
 // as SVG and PNG. A chart that cannot be drawn is skipped with its reason
 // in the returned notes (the report still renders).
-func (r *Report) Charts() (charts []Chart, notes []string) { return r.charts(true, true) }
+func (r *Report) Charts() (charts []Chart, notes []string) { return r.charts(nil, true, true) }
 
-func (r *Report) charts(svg, png bool) (charts []Chart, notes []string) {
+// charts draws the report's charts, their titles and axis labels in w's
+// language (their legends stay English, their tick labels keep the
+// decimal point).
+func (r *Report) charts(w *words, svg, png bool) (charts []Chart, notes []string) {
 	add := func(s chartSpec, err error) {
+		if err == nil && w != nil {
+			s.title, s.caption = w.text(s.title), w.text(s.caption)
+			s.p.Title.Text = w.text(s.p.Title.Text)
+			s.p.X.Label.Text = w.text(s.p.X.Label.Text)
+			s.p.Y.Label.Text = w.text(s.p.Y.Label.Text)
+		}
 		if err == nil {
 			var c Chart
 			if c, err = s.render(svg, png); err == nil {

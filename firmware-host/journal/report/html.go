@@ -123,7 +123,7 @@ func (r *Report) view(opt Options, use chartUse) htmlView {
 		v.Version = r.Session.SoftwareVersion
 	}
 	if use != noCharts {
-		v.Charts, v.ChartNotes = r.charts(use == chartsSVG, use == chartsPNG)
+		v.Charts, v.ChartNotes = r.charts(r.wordsFor(opt), use == chartsSVG, use == chartsPNG)
 	}
 	for _, a := range r.Acks {
 		if a.Safety {
