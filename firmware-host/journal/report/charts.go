@@ -291,7 +291,9 @@ func profileSpec(m LuminanceMap) (chartSpec, error) {
 	return chartSpec{p: p, name: "profile-" + slug(m.FieldMode), title: title, caption: caption, w: 5 * vg.Inch, h: 3.2 * vg.Inch}, nil
 }
 
-func conversionSpec(results []Result) (chartSpec, error) {
+// conversionSpec draws the conversion factor per field mode, its legend
+// in the language tr translates into.
+func conversionSpec(results []Result, tr func(string) string) (chartSpec, error) {
 	var names []string
 	var pts plotter.XYs
 	var errs plotter.YErrors
@@ -359,7 +361,7 @@ func conversionSpec(results []Result) (chartSpec, error) {
 				if l.Kind == "baseline" {
 					name = fmt.Sprintf("baseline rule (%s of baseline)", Percent(l.Fraction))
 				}
-				p.Legend.Add(name, ln)
+				p.Legend.Add(tr(name), ln)
 			}
 			top = math.Max(top, l.Value)
 		}
@@ -372,13 +374,13 @@ func conversionSpec(results []Result) (chartSpec, error) {
 			p.Add(bm)
 			if !legend["baseline value"] {
 				legend["baseline value"] = true
-				p.Legend.Add("baseline (the earlier session)", bm)
+				p.Legend.Add(tr("baseline (the earlier session)"), bm)
 			}
 			top = math.Max(top, r.Baseline)
 		}
 	}
 	p.Add(eb, sc)
-	p.Legend.Add("result, bars: U", sc)
+	p.Legend.Add(tr("result, bars: U"), sc)
 	p.Legend.Top = true
 	p.Legend.TextStyle.Font = sansStyle(8)
 	p.NominalX(names...)
@@ -623,7 +625,7 @@ func (r *Report) charts(w *words, svg, png bool) (charts []Chart, notes []string
 		}
 	}
 	if has {
-		add(conversionSpec(r.Results))
+		add(conversionSpec(r.Results, w.text))
 	}
 	for _, m := range r.Maps {
 		add(mapSpec(m))

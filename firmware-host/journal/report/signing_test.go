@@ -259,7 +259,7 @@ func TestConversionChartShowsLimitsAndBaseline(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	spec, err := conversionSpec(r.Results)
+	spec, err := conversionSpec(r.Results, (*words)(nil).text)
 	if err != nil {
 		t.Fatal(err)
 	}
