@@ -179,7 +179,9 @@ func mapLabels(pts plotter.XYs, labels []string) (*plotter.Labels, error) {
 	return lb, nil
 }
 
-func mapSpec(m LuminanceMap) (chartSpec, error) {
+// mapSpec draws a luminance map, its compass words in the language tr
+// translates into.
+func mapSpec(m LuminanceMap, tr func(string) string) (chartSpec, error) {
 	title := "Output face luminance"
 	if m.FieldMode != "" {
 		title += ", " + m.FieldMode + " field"
@@ -241,7 +243,7 @@ func mapSpec(m LuminanceMap) (chartSpec, error) {
 	// Direction words around the face so the map reads without a legend.
 	dirs, err := plotter.NewLabels(plotter.XYLabels{
 		XYs:    plotter.XYs{{X: 0, Y: 1.15}, {X: 0, Y: -1.15}, {X: -1.15, Y: 0}, {X: 1.15, Y: 0}},
-		Labels: []string{"up", "down", "left", "right"},
+		Labels: []string{tr("up"), tr("down"), tr("left"), tr("right")},
 	})
 	if err != nil {
 		return chartSpec{}, err
@@ -628,7 +630,7 @@ func (r *Report) charts(w *words, svg, png bool) (charts []Chart, notes []string
 		add(conversionSpec(r.Results, w.text))
 	}
 	for _, m := range r.Maps {
-		add(mapSpec(m))
+		add(mapSpec(m, w.text))
 		if len(m.Profile) >= 2 {
 			add(profileSpec(m))
 		}

@@ -322,7 +322,7 @@ func TestMapLabelsInsideTheirDiscs(t *testing.T) {
 	if len(r.Maps) == 0 {
 		t.Fatal("no map")
 	}
-	if _, err := mapSpec(r.Maps[0]); err != nil {
+	if _, err := mapSpec(r.Maps[0], (*words)(nil).text); err != nil {
 		t.Fatal(err)
 	}
 	pts := plotter.XYs{{X: 0, Y: 0}, {X: 0.9, Y: 0}}
