@@ -182,7 +182,7 @@ func runRun(parent context.Context, o runOptions, name string) error {
 	}
 	meters, err := bench.OpenMeters(ctx, b, clk, ports)
 	if err != nil {
-		_ = ep.Say(ctx, panel.Message{Text: "A meter was not found: " + err.Error(), Level: panel.Warn})
+		_ = ep.Say(ctx, panel.Message{Text: fmt.Sprintf(b.Messages().Text("A meter was not found: %s"), err), Level: panel.Warn})
 		_ = ep.Indicate(ctx, panel.Fault)
 		return withCode(exitFailure, err)
 	}
@@ -199,10 +199,7 @@ func runRun(parent context.Context, o runOptions, name string) error {
 		}
 	}
 	if o.standby {
-		text := "Ready. " + b.Found(meters, clk.Now()) + " Press the switch to start " + proc.Title + "."
-		if cfg.Resume != "" {
-			text = "Ready. " + b.Found(meters, clk.Now()) + " Press the switch to resume " + proc.Title + "."
-		}
+		text := b.Greeting(meters, clk.Now(), proc.Title, cfg.Resume != "")
 		_ = ep.Indicate(ctx, panel.Ready)
 		if _, err := ep.Ask(ctx, panel.Prompt{Message: panel.Message{Text: text, Level: panel.Info, Action: panel.ActAcknowledge}}); err != nil {
 			return withCode(exitFailure, err)

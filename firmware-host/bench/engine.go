@@ -240,27 +240,37 @@ func BootID() string {
 // Found says what the board found at start-up, for the standby greeting:
 // "Dosimeter found, certificate valid until March 2027."
 func (b *Bench) Found(meters map[string]drivers.Meter, day time.Time) string {
+	m := b.Messages()
+	tf := func(format string, a ...any) string { return fmt.Sprintf(m.Text(format), a...) }
 	certs, _, _ := Certificates(b, day)
 	var parts []string
-	for _, m := range b.Meters {
-		s := strings.ToUpper(m.Role[:1]) + m.Role[1:]
-		if meters[m.Role] == nil {
-			parts = append(parts, s+" not found")
-			continue
+	for _, mt := range b.Meters {
+		s := m.Text(strings.ToUpper(mt.Role[:1]) + mt.Role[1:])
+		c := certs[mt.Role]
+		switch {
+		case meters[mt.Role] == nil:
+			parts = append(parts, tf("%s not found", s))
+		case c == nil:
+			parts = append(parts, tf("%s found, no certificate", s))
+		case day.After(c.Due):
+			parts = append(parts, tf("%s found, certificate expired", s))
+		default:
+			parts = append(parts, tf("%s found, certificate valid until %s", s, m.Text(c.Due.Format("January"))+" "+c.Due.Format("2006")))
 		}
-		s += " found"
-		if c := certs[m.Role]; c != nil {
-			if day.After(c.Due) {
-				s += ", certificate expired"
-			} else {
-				s += ", certificate valid until " + c.Due.Format("January 2006")
-			}
-		} else {
-			s += ", no certificate"
-		}
-		parts = append(parts, s)
 	}
 	return strings.Join(parts, ". ") + "."
+}
+
+// Greeting is what the board says at standby, in the bench's language:
+// what it found (Found) and the cue that starts, or resumes, the
+// procedure titled title.
+func (b *Bench) Greeting(meters map[string]drivers.Meter, day time.Time, title string, resume bool) string {
+	m := b.Messages()
+	format := "Ready. %s Press the switch to start %s."
+	if resume {
+		format = "Ready. %s Press the switch to resume %s."
+	}
+	return fmt.Sprintf(m.Text(format), b.Found(meters, day), m.Text(title))
 }
 
 func (b *Bench) modeDiameters() map[string]float64 {

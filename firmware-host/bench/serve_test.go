@@ -63,4 +63,21 @@ func TestOpenMetersOnSimulator(t *testing.T) {
 	if got := b.Found(meters, time.Date(2026, 6, 1, 0, 0, 0, 0, time.UTC)); got != "Dosimeter found, certificate valid until March 2027. Photometer found, certificate valid until May 2027." {
 		t.Errorf("found: %q", got)
 	}
+	// The standby greeting in the bench's language, the month's name too
+	// (the expected German and French written by hand).
+	for lang, want := range map[string]string{
+		"":   "Ready. Dosimeter found, certificate valid until March 2027. Photometer found, certificate valid until May 2027. Press the switch to start Acceptance and yearly check of the image intensifier.",
+		"de": "Bereit. Dosimeter gefunden, Zertifikat gültig bis März 2027. Photometer gefunden, Zertifikat gültig bis Mai 2027. Taster drücken, um Abnahme- und Jahresprüfung des Bildverstärkers zu starten.",
+		"fr": "Prêt. Dosimètre trouvé, certificat valable jusqu'en mars 2027. Photomètre trouvé, certificat valable jusqu'en mai 2027. Appuyez sur le bouton pour lancer Contrôle de réception et contrôle annuel de l'amplificateur de luminance.",
+	} {
+		if err := b.SetLanguage(lang); err != nil {
+			t.Fatal(err)
+		}
+		if lang == "" {
+			_ = b.SetLanguage("en")
+		}
+		if got := b.Greeting(meters, time.Date(2026, 6, 1, 0, 0, 0, 0, time.UTC), "Acceptance and yearly check of the image intensifier", false); got != want {
+			t.Errorf("%s greeting\n got %q\nwant %q", lang, got, want)
+		}
+	}
 }

@@ -212,20 +212,16 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	if err != nil {
 		return nil, err
 	}
-	verb := "start"
 	if !o.Fresh {
 		// A demo killed on this --out folder resumes, as the board does.
 		id, err := jr.Resumable(ctx, cfg.Session)
 		if err != nil {
 			return nil, fmt.Errorf("demo: %w", err)
 		}
-		cfg.Resume, verb = id, "resume"
-		if id == "" {
-			verb = "start"
-		}
+		cfg.Resume = id
 	}
 	first := clk.Mono() // the engineer's time starts at the first prompt
-	ready := "Ready. " + b.Found(meters, clk.Now()) + " Press the switch to " + verb + " " + proc.Title + "."
+	ready := b.Greeting(meters, clk.Now(), proc.Title, cfg.Resume != "")
 	if _, err := ep.Ask(ctx, panel.Prompt{Message: panel.Message{Text: ready, Level: panel.Info, Action: panel.ActAcknowledge}}); err != nil {
 		return nil, err
 	}
