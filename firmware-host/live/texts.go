@@ -131,10 +131,10 @@ func PageTexts() []string {
 
 // translatePayload rewrites the texts of a journal record the page shows
 // that the engine journals in English (a result's deciding limit, a
-// retake's reason) into the catalog's language. Anything else, and a
+// retake's reason, an event's detail) into the catalog's language. Anything else, and a
 // record it cannot read, is returned as it is.
 func translatePayload(c *catalog.Catalog, data []byte) []byte {
-	if c.IsEnglish() || !(bytes.Contains(data, []byte(`"decided_by"`)) || bytes.Contains(data, []byte(`"reason"`))) {
+	if c.IsEnglish() || !(bytes.Contains(data, []byte(`"decided_by"`)) || bytes.Contains(data, []byte(`"reason"`)) || bytes.Contains(data, []byte(`"detail"`))) {
 		return data
 	}
 	var w map[string]json.RawMessage
@@ -146,7 +146,7 @@ func translatePayload(c *catalog.Catalog, data []byte) []byte {
 		return data
 	}
 	changed := false
-	for _, k := range []string{"decided_by", "reason"} {
+	for _, k := range []string{"decided_by", "reason", "detail"} {
 		if s, ok := p[k].(string); ok && s != "" {
 			words := strings.ReplaceAll(s, "_", " ")
 			if tr, ok := c.TranslateWhole(words); ok {

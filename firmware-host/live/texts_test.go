@@ -88,6 +88,7 @@ func TestLiveViewInGerman(t *testing.T) {
 	ctx := context.Background()
 	id, _ := j.Begin(ctx, entry.Session{Site: "Ostrelby General"})
 	_, _ = j.Append(ctx, id, entry.KindResult, entry.Result{Quantity: "conversion_factor", Value: 151, Verdict: "pass", DecidedBy: "specification minimum 0.5 %"})
+	_, _ = j.Append(ctx, id, entry.KindEvent, entry.Event{Name: "reading_error", Detail: "the reading did not settle within its beam-on limit"})
 	req, _ := http.NewRequestWithContext(ctx, http.MethodGet, ts.URL+"/events", nil)
 	resp, err = c.Do(req)
 	if err != nil {
@@ -101,6 +102,9 @@ func TestLiveViewInGerman(t *testing.T) {
 	next(t, ch) // the session
 	if ev := next(t, ch); ev.kind != "result" || !strings.Contains(ev.data, `"decided_by":"untere Spezifikationsgrenze 0,5 %"`) {
 		t.Errorf("result's deciding limit not in German: %s", ev.data)
+	}
+	if ev := next(t, ch); ev.kind != "event" || !strings.Contains(ev.data, `"detail":"der Messwert hat sich innerhalb seiner Strahlzeitgrenze nicht stabilisiert"`) {
+		t.Errorf("event's detail not in German: %s", ev.data)
 	}
 
 	v, err := Listen("127.0.0.1:0", Options{Log: quiet, Code: "417209", Messages: de})
