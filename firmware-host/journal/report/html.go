@@ -78,6 +78,7 @@ type eventRow struct {
 
 type htmlView struct {
 	R          *Report
+	Review     []string // the review list in the rendering's language
 	S          entry.Session
 	Verdict    string
 	Pass, Fail int
@@ -118,7 +119,7 @@ const (
 
 func (r *Report) view(opt Options, use chartUse) htmlView {
 	v := htmlView{R: r, S: r.Session, Verdict: r.Verdict(), Pass: r.Count("pass"), Fail: r.Count("fail"), Info: r.Count("info"),
-		Generated: opt.generated(), Version: opt.Version, Cautions: cautions(r.Simulated)}
+		Generated: opt.generated(), Version: opt.Version, Cautions: cautions(r.Simulated), Review: r.reviewShown(r.wordsFor(opt))}
 	if v.Version == "" {
 		v.Version = r.Session.SoftwareVersion
 	}

@@ -14,6 +14,7 @@ import (
 	"encoding/json"
 	"fmt"
 	"math"
+	"slices"
 	"sort"
 	"strings"
 	"time"
@@ -364,30 +365,51 @@ func certificate(c entry.CertRef, day time.Time) Certificate {
 // A uncertainty of a zero dark reading, a limit the value is near, said
 // as "marginal") is left to the results table.
 func (r *Report) review() {
+	per, list := r.reviewLists(func(s string) string { return s })
+	for i := range r.Results {
+		r.Results[i].Review = per[i]
+	}
+	r.Review = list
+}
+
+// reviewLists composes the review: each result's own reasons (per, in
+// the order of r.Results) and the list a physicist reads, every text
+// through tr (the report's language at rendering; the identity for the
+// journal's English).
+func (r *Report) reviewLists(tr func(string) string) (per, list []string) {
 	type shared struct {
 		text    string
 		results []string
 	}
+	name := func(res entry.Result) string {
+		n := tr(quantityWords(res.Quantity))
+		if res.FieldMode != "" {
+			n += " (" + res.FieldMode + ")"
+		}
+		return n
+	}
 	var flagOrder []string
 	flags := map[string]*shared{}
+	per = make([]string, len(r.Results))
 	for i := range r.Results {
 		res := &r.Results[i]
 		var why []string
 		switch strings.ToLower(res.Verdict) {
 		case "fail":
-			why = append(why, "outside the "+orDash(res.DecidedBy))
+			why = append(why, fmt.Sprintf(tr("outside the %s"), tr(orDash(res.DecidedBy))))
 		case "pass", "info":
 		default:
-			why = append(why, fmt.Sprintf("verdict %q", res.Verdict))
+			why = append(why, fmt.Sprintf(tr("verdict %q"), res.Verdict))
 		}
 		if !res.Calibrated {
-			why = append(why, "not calibrated")
+			why = append(why, tr("not calibrated"))
 		}
 		for _, f := range res.Flags {
 			text, ok := reviewFlag(f)
 			if !ok {
 				continue
 			}
+			text = tr(text)
 			if !contains(why, text) {
 				why = append(why, text)
 			}
@@ -397,10 +419,10 @@ func (r *Report) review() {
 				flags[text] = sh
 				flagOrder = append(flagOrder, text)
 			}
-			sh.results = append(sh.results, resultName(res.Result))
+			sh.results = append(sh.results, name(res.Result))
 		}
 		if len(why) > 0 {
-			res.Review = strings.Join(why, "; ")
+			per[i] = strings.Join(why, "; ")
 		}
 		// Fails and uncalibrated results are named one by one.
 		var own []string
@@ -410,41 +432,75 @@ func (r *Report) review() {
 			}
 		}
 		if len(own) > 0 {
-			r.Review = append(r.Review, fmt.Sprintf("%s: %s", resultName(res.Result), strings.Join(own, "; ")))
+			list = append(list, fmt.Sprintf(tr("%s: %s"), name(res.Result), strings.Join(own, "; ")))
 		}
 	}
 	for _, text := range flagOrder {
 		sh := flags[text]
-		r.Review = append(r.Review, fmt.Sprintf("%s (%s)", capital(sh.text), strings.Join(sh.results, ", ")))
+		list = append(list, fmt.Sprintf(tr("%s (%s)"), capital(sh.text), strings.Join(sh.results, ", ")))
 	}
 	for _, c := range r.Certificates {
 		if c.Status == "expired" || c.Status == "not valid" {
-			r.Review = append(r.Review, fmt.Sprintf("Certificate %s (%s %s) was %s on the session day", c.ID, c.Model, c.Serial, c.Status))
+			list = append(list, fmt.Sprintf(tr("Certificate %s (%s %s) was %s on the session day"), c.ID, c.Model, c.Serial, tr(c.Status)))
 		}
 	}
 	counts := map[string]int{}
 	for _, e := range r.Events {
 		counts[e.Name]++
 	}
-	for _, name := range []string{"beam_alarm", "kerma_out_of_range", "beam_refused", "certificate_problem", "aborted", "meter_lost", "reading_error"} {
-		if n := counts[name]; n > 0 {
-			r.Review = append(r.Review, fmt.Sprintf("%s: %d time%s", capital(eventWords(name)), n, plural(n)))
+	for _, ev := range []string{"beam_alarm", "kerma_out_of_range", "beam_refused", "certificate_problem", "aborted", "meter_lost", "reading_error"} {
+		n := counts[ev]
+		switch {
+		case n == 1:
+			list = append(list, fmt.Sprintf(tr("%s: %d time"), tr(capital(eventWords(ev))), n))
+		case n > 1:
+			list = append(list, fmt.Sprintf(tr("%s: %d times"), tr(capital(eventWords(ev))), n))
 		}
 	}
 	for _, s := range r.Steps {
 		if (s.State == entry.StepSkipped || s.State == entry.StepAborted) && !skippedByDesign(s.Reason) {
-			r.Review = append(r.Review, fmt.Sprintf("Step %d was %s%s", s.Index, s.State, reasonSuffix(s.Reason)))
+			if s.Reason == "" {
+				list = append(list, fmt.Sprintf(tr("Step %d was %s"), s.Index, tr(string(s.State))))
+			} else {
+				list = append(list, fmt.Sprintf(tr("Step %d was %s: %s"), s.Index, tr(string(s.State)), tr(s.Reason)))
+			}
 		}
 	}
 	switch {
 	case r.End == nil:
-		r.Review = append(r.Review, "The session has no end record: it was interrupted and not finished")
+		list = append(list, tr("The session has no end record: it was interrupted and not finished"))
 	case r.End.Outcome != "" && r.End.Outcome != "complete":
-		r.Review = append(r.Review, fmt.Sprintf("The session ended %q", r.End.Outcome))
+		list = append(list, fmt.Sprintf(tr("The session ended %q"), r.End.Outcome))
 	}
 	if r.Simulated {
-		r.Review = append(r.Review, "Readings came from the bench simulator: the results are not measurements")
+		list = append(list, tr("Readings came from the bench simulator: the results are not measurements"))
 	}
+	return per, list
+}
+
+// reviewShown is the review list as a rendering in w's language shows
+// it: what was put before the session's own review (a verification
+// failure) translated as a whole, then the review composed in w's
+// language.
+func (r *Report) reviewShown(w *words) []string {
+	if w == nil {
+		return r.Review
+	}
+	_, en := r.reviewLists(func(s string) string { return s })
+	extra := len(r.Review) - len(en)
+	if extra < 0 || !slices.Equal(r.Review[extra:], en) {
+		out := make([]string, len(r.Review))
+		for i, s := range r.Review {
+			out[i] = w.text(s)
+		}
+		return out
+	}
+	var out []string
+	for _, s := range r.Review[:extra] {
+		out = append(out, w.text(s))
+	}
+	_, list := r.reviewLists(w.text)
+	return append(out, list...)
 }
 
 // reviewFlag says a result flag in the words of the review list, and
@@ -554,13 +610,6 @@ func plural(n int) string {
 		return ""
 	}
 	return "s"
-}
-
-func reasonSuffix(s string) string {
-	if s == "" {
-		return ""
-	}
-	return ": " + s
 }
 
 func orDash(s string) string {

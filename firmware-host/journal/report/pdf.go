@@ -392,10 +392,10 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 	f.SetTextColor(0x1d, 0x26, 0x30)
 	f.SetXY(d.left+70, y0+4)
 	d.font("B", 10)
-	if len(r.Review) > 0 {
-		f.CellFormat(d.w-74, 6, d.tx(fmt.Sprintf("Needs review (%d)", len(r.Review))), "", 2, "L", false, 0, "")
+	if len(v.Review) > 0 {
+		f.CellFormat(d.w-74, 6, d.tx(fmt.Sprintf("Needs review (%d)", len(v.Review))), "", 2, "L", false, 0, "")
 		d.font("", 9)
-		for _, s := range r.Review {
+		for _, s := range v.Review {
 			f.SetX(d.left + 70)
 			f.MultiCell(d.w-74, 4.5, "• "+d.tx(s), "", "L", false)
 		}
