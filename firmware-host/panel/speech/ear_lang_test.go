@@ -90,7 +90,8 @@ func TestForEarInGermanAndFrench(t *testing.T) {
 	}
 }
 
-// Every text of the built-in German and French catalogs, its values filled
+// Every text of the built-in German and French catalogs that the board
+// says (the report's are only read), its values filled
 // with numbers as the engine writes them in that language, reaches the
 // synthesiser with no unit symbol, no number written with a decimal
 // separator and none of the English unit words.
@@ -107,6 +108,9 @@ func TestCatalogTextsByEar(t *testing.T) {
 		e := NewEar(c)
 		fill := regexp.MustCompile(`%(?:\[\d\])?[-+# 0-9.]*[a-zA-Z]`)
 		for _, src := range c.Sources() {
+			if file, _ := c.Where(src); strings.HasSuffix(file, "/report.yaml") {
+				continue // the report's texts are read, never spoken
+			}
 			tr, _ := c.Lookup(src)
 			text := strings.ReplaceAll(tr, "%%", "\x00")
 			text = strings.ReplaceAll(fill.ReplaceAllString(text, c.Number("0.455")), "{mode}", "32cm")
