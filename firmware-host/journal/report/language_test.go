@@ -60,7 +60,7 @@ func TestReportInTheSessionLanguage(t *testing.T) {
 		"Strahlenschutzbeauftragten", "<h2>Prüfung und Unterschrift</h2>", "Außerhalb eines eingestellten Grenzwerts",
 		"4 bestanden · 1 nicht bestanden · 3 zur Information", "<th class=\"num\">Wert ± U</th>", "<th>Bewertung</th>",
 		"G_x = L / K̇: Leuchtdichte in der Mitte (cd/m²)", "Die Prüfung und die Röntgenanlage", "Modell und Seriennummer laut Zertifikat",
-		"<li>Ein Messgerät ist ausgefallen: 1-mal</li>", "<li>Kontrastverhältnis (32cm): nicht eingehalten: ", "Wiederholbarkeit der Leuchtdichte",
+		"<li>Ein Messgerät ist ausgefallen: 1-mal</li>", "<li>Kontrastverhältnis (32cm): nicht eingehalten: ", "nicht beziffert: Die Unsicherheit des Rückstreufaktors ist nicht in diesem Budget", "Wiederholbarkeit der Leuchtdichte",
 		"152,0 ± 5,3", "90,5 % von 168,0", "Konversionsfaktor je Feldformat", "Balken: erweiterte Messunsicherheit U.", ">oben<", ">rechts<", "<h3><span>Konversionsfaktor</span>, 32cm: 152,0 ± 5,3 cd·m⁻²/(µGy·s⁻¹) (k = 2,00)</h3>", "mit k = 2,00"} {
 		if !strings.Contains(got, want) {
 			t.Errorf("German report lacks %q", want)
