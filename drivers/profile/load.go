@@ -3,7 +3,6 @@ package profile
 import (
 	"errors"
 	"fmt"
-	"os"
 	"path/filepath"
 	"reflect"
 	"regexp"
@@ -83,9 +82,10 @@ type fileStatus struct {
 // was wrong or expected (the shared position error of kermalux's files).
 type Error = filepos.Error
 
-// Load reads and checks a profile file.
+// Load reads and checks a profile file (at most MaxFileSize bytes, refused
+// before it is read whole).
 func Load(path string) (*Profile, error) {
-	data, err := os.ReadFile(path)
+	data, err := filepos.ReadFile(path, MaxFileSize, "meter profile")
 	if err != nil {
 		return nil, fmt.Errorf("meter profile: %w", err)
 	}

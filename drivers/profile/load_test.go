@@ -5,6 +5,7 @@ import (
 	"flag"
 	"fmt"
 	"os"
+	"path/filepath"
 	"strings"
 	"testing"
 
@@ -297,5 +298,20 @@ func TestStatusWordInPlaceOfUnit(t *testing.T) {
 		if st != tc.st || errors.Is(err, profile.ErrNoValue) != tc.noValue || (!tc.noValue && (err != nil || v != 1.5 || u != "uGy/s")) {
 			t.Errorf("%q → %v %q %s %v; want %s (no value %v)", tc.line, v, u, st, err, tc.st, tc.noValue)
 		}
+	}
+}
+
+// Load reads a profile file at most to its bound (issue 14 item 11): a
+// larger file is refused naming the file and the bound, not read whole
+// first.
+func TestProfileLoadBounded(t *testing.T) {
+	p := filepath.Join(t.TempDir(), "huge.yaml")
+	if err := os.WriteFile(p, []byte(minimal+"# "+strings.Repeat("x", profile.MaxFileSize)+"\n"), 0o600); err != nil {
+		t.Fatal(err)
+	}
+	_, err := profile.Load(p)
+	var pe *profile.Error
+	if !errors.As(err, &pe) || pe.File != p || !strings.Contains(err.Error(), "larger than 64 KiB: not a meter profile") {
+		t.Fatalf("got %v; want %s named with the 64 KiB bound", err, p)
 	}
 }

@@ -16,6 +16,8 @@ import (
 	"path/filepath"
 	"sync"
 	"time"
+
+	"kermalux/drivers/filepos"
 )
 
 // The high-water mark: a small signed file beside the journal
@@ -80,12 +82,13 @@ func MarkPath(journalPath string) string { return journalPath + MarkSuffix }
 // file; an error when the file exists but holds no slot signed by pub.
 func ReadMark(journalPath string, pub ed25519.PublicKey) (*Mark, error) {
 	p := MarkPath(journalPath)
-	data, err := os.ReadFile(p)
+	data, err := filepos.ReadFile(p, 2*markSlot, "high-water mark")
 	if errors.Is(err, fs.ErrNotExist) {
 		return nil, nil
 	}
 	if err != nil {
-		return nil, fmt.Errorf("high-water mark %s: %w", p, err)
+		// Both the open error and the bound's refusal name the file.
+		return nil, fmt.Errorf("high-water mark: %w", err)
 	}
 	m, err := parseMark(data, pub)
 	if err != nil {

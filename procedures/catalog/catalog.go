@@ -18,7 +18,6 @@ import (
 	"errors"
 	"fmt"
 	"io/fs"
-	"os"
 	"path"
 	"regexp"
 	"slices"
@@ -414,6 +413,11 @@ func Builtin(lang string) (*Catalog, error) {
 	return c, nil
 }
 
+// MaxFileBytes bounds a site's catalog file: a built-in one is some 20 KiB,
+// so one larger than 1 MiB is not a catalog; it is refused before the YAML
+// decoder sees it.
+const MaxFileBytes = 1 << 20
+
 // Load returns the built-in catalog of lang with the site's catalog files
 // merged in (each must be of lang). English with no files is nil.
 func Load(lang string, files ...string) (*Catalog, error) {
@@ -422,7 +426,7 @@ func Load(lang string, files ...string) (*Catalog, error) {
 		return nil, err
 	}
 	for _, f := range files {
-		data, err := os.ReadFile(f)
+		data, err := filepos.ReadFile(f, MaxFileBytes, "catalog file")
 		if err != nil {
 			return nil, fmt.Errorf("catalog: %w", err)
 		}

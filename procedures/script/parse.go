@@ -5,7 +5,6 @@ import (
 	"encoding/hex"
 	"errors"
 	"fmt"
-	"os"
 	"sort"
 	"strings"
 	"time"
@@ -14,14 +13,21 @@ import (
 	"github.com/goccy/go-yaml/parser"
 	"github.com/goccy/go-yaml/token"
 
+	"kermalux/drivers/filepos"
 	"kermalux/drivers/units"
 )
 
-// Load reads and parses the script file at path. Like Parse, it returns
-// the procedure as far as it could be read together with the Problems of
-// form it found.
+// MaxFileBytes bounds a procedure file: the built-in ones are a few
+// kilobytes, and a site's own hardly more, so a file larger than 1 MiB is
+// not a procedure; it is refused before the YAML decoder sees it (a huge
+// YAML string costs many times its size to decode).
+const MaxFileBytes = 1 << 20
+
+// Load reads and parses the script file at path (at most MaxFileBytes).
+// Like Parse, it returns the procedure as far as it could be read together
+// with the Problems of form it found.
 func Load(path string) (*Procedure, error) {
-	data, err := os.ReadFile(path)
+	data, err := filepos.ReadFile(path, MaxFileBytes, "procedure file")
 	if err != nil {
 		return nil, fmt.Errorf("reading procedure: %w", err)
 	}
