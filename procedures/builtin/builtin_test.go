@@ -171,8 +171,14 @@ func TestAcceptanceShape(t *testing.T) {
 	if readings != 23 {
 		t.Errorf("%d beam readings, want 23", readings)
 	}
-	if reserve > f.BeamBudget {
-		t.Errorf("reserves %v above the budget %v", reserve, f.BeamBudget)
+	// The reserves are what readings that go right take (3.2 to 6.4 s
+	// each with the release on the four-mode simulated bench,
+	// TestWholeVisit in firmware-host/demo), not their maxima: a budget
+	// that reserved nearly all of itself would leave the first readings
+	// no room for a retake. At most 100 s of the 120 s leaves 20 s, five
+	// retakes or so, to whichever readings need them.
+	if reserve > 100*time.Second {
+		t.Errorf("reserves %v, want at most 100 s of the budget %v", reserve, f.BeamBudget)
 	}
 }
 
