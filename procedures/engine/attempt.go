@@ -68,7 +68,7 @@ type track struct {
 	under  int     // readings under range since the prompt
 	over   int     // readings over range since the prompt: its fall cannot time the beam
 	peak   float64 // highest reading since it rose
-	all    []tv    // usable readings since the prompt
+	all    []timedValue    // usable readings since the prompt
 }
 
 // minFloor is the smallest threshold above the dark a meter may use: far
@@ -106,7 +106,7 @@ func (t *track) seeStatus(at time.Duration, v float64, usable, over bool) (rose,
 		t.over++
 	}
 	if usable {
-		t.all = append(t.all, tv{at, v})
+		t.all = append(t.all, timedValue{at, v})
 	}
 	if usable && t.high(v) {
 		t.low = 0
@@ -236,7 +236,7 @@ func (t *track) fallTime() (time.Duration, bool) {
 
 // interpCross is the time at which the straight line from a to b crosses
 // level.
-func interpCross(a, b tv, level float64) time.Duration {
+func interpCross(a, b timedValue, level float64) time.Duration {
 	if b.v == a.v {
 		return b.t
 	}
@@ -308,7 +308,7 @@ var taus = func() []float64 {
 // d = a·ψ(t_end). Its standard uncertainty follows from the fit's
 // covariance (JCGM 100:2008 H.3), the noise variance from the residuals,
 // inflated for autocorrelated readings by n/n_eff (effectiveN).
-func fitApproach(xs []tv) (approach, bool) {
+func fitApproach(xs []timedValue) (approach, bool) {
 	n := len(xs)
 	if n < 6 {
 		return approach{}, false
@@ -391,7 +391,7 @@ func fitApproach(xs []tv) (approach, bool) {
 // flat its last second looks. The later half must also show no
 // significant straight-line drift over its span larger than tol. A noisy
 // flat signal is settled. minN readings at least in each part.
-func settledSeries(xs []tv, tol float64, minN int) bool {
+func settledSeries(xs []timedValue, tol float64, minN int) bool {
 	if len(xs) < 2*minN {
 		return false
 	}
@@ -477,7 +477,7 @@ func settledSeries(xs []tv, tol float64, minN int) bool {
 // the relative type A of the window's mean when the noise is larger (a
 // remainder the readings cannot show apart from their own scatter; it
 // enters U through residualSettling).
-func within(tol float64, w []tv) float64 {
+func within(tol float64, w []timedValue) float64 {
 	rel, _ := relTypeA(values(w))
 	if math.IsInf(rel, 0) || math.IsNaN(rel) {
 		return tol
@@ -489,7 +489,7 @@ func within(tol float64, w []tv) float64 {
 // differences of successive readings, robustly: their median absolute
 // value over 0.6745·√2 (the normal distribution's MAD), so a trend adds
 // almost nothing to it.
-func diffNoise(xs []tv) float64 {
+func diffNoise(xs []timedValue) float64 {
 	if len(xs) < 3 {
 		return 0
 	}
@@ -506,7 +506,7 @@ func diffNoise(xs []tv) float64 {
 const maxFit = 120
 
 // smooth is the running median of three of a series' values.
-func smooth(xs []tv) []float64 {
+func smooth(xs []timedValue) []float64 {
 	out := make([]float64, len(xs))
 	for i := range xs {
 		lo, hi := max(i-1, 0), min(i+1, len(xs)-1)
@@ -527,7 +527,7 @@ func smooth(xs []tv) []float64 {
 // the meter rose), or half the significant part of a straight-line drift
 // across them (its slope less two standard errors). Zero for a settled
 // signal with no detectable trend.
-func residualSettling(all, sampled []tv) float64 {
+func residualSettling(all, sampled []timedValue) float64 {
 	if len(sampled) < 3 {
 		return 0
 	}
@@ -554,8 +554,8 @@ func residualSettling(all, sampled []tv) float64 {
 // ratioSeries is the time-aligned ratio of two series (the luminance
 // over the kerma rate interpolated at each luminance reading), with the
 // luminance readings' times.
-func ratioSeries(lum, kerma []tv) []tv {
-	var out []tv
+func ratioSeries(lum, kerma []timedValue) []timedValue {
+	var out []timedValue
 	j := 0
 	for _, l := range lum {
 		for j+1 < len(kerma) && kerma[j+1].t < l.t {
@@ -571,7 +571,7 @@ func ratioSeries(lum, kerma []tv) []tv {
 			k = k1.v + f*(k2.v-k1.v)
 		}
 		if k > 0 {
-			out = append(out, tv{l.t, l.v / k})
+			out = append(out, timedValue{l.t, l.v / k})
 		}
 	}
 	return out
@@ -611,7 +611,7 @@ const (
 // enough reports whether the position's samples may end sampling: at
 // least minPairs (and minSamples) of the count, and each meter's readings
 // covering minSpan.
-func (p posStat) enough(minPairs int) bool {
+func (p positionStats) enough(minPairs int) bool {
 	if p.count() < max(minPairs, minSamples) {
 		return false
 	}
@@ -625,7 +625,7 @@ func (p posStat) enough(minPairs int) bool {
 
 // covered is the time a meter's readings stand for: their span, with
 // each reading counted for one reading interval.
-func covered(xs []tv) time.Duration {
+func covered(xs []timedValue) time.Duration {
 	if len(xs) < 2 {
 		return 0
 	}
@@ -658,7 +658,7 @@ func (e *Engine) isSettled(a *attempt) bool {
 // brightness control that starts moving again), and sampling restarts.
 func (e *Engine) drifting(a *attempt) (string, bool) {
 	tgt := e.target(a)
-	check := func(xs []tv) bool {
+	check := func(xs []timedValue) bool {
 		if len(xs) < 8 {
 			return false
 		}
@@ -681,7 +681,7 @@ func (e *Engine) drifting(a *attempt) (string, bool) {
 
 // settleResiduals fills p.Settle with each meter's residual settling
 // (and the ratio's), from the attempt's data.
-func (a *attempt) settleResiduals(p *posStat) {
+func (a *attempt) settleResiduals(p *positionStats) {
 	p.Settle = map[string]float64{}
 	for _, role := range a.spec.Meters {
 		p.Settle[role] = residualSettling(a.series[role], after(a.series[role], a.settled))

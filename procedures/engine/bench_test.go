@@ -145,7 +145,7 @@ func benchBeamOn(b *testing.B, rise time.Duration) {
 			if ev.Name != evMeasured {
 				continue
 			}
-			var p posStat
+			var p positionStats
 			_ = json.Unmarshal([]byte(ev.Detail), &p)
 			if p.Step == "cf@32cm" {
 				beamS += p.BeamOnS
@@ -175,11 +175,11 @@ func sq(x float64) float64 { return x * x }
 // same number of values in the same run: the engine makes three of them
 // five times a second of signal.
 func BenchmarkSettledSeries(b *testing.B) {
-	xs := make([]tv, maxFit)
+	xs := make([]timedValue, maxFit)
 	vals := make([]float64, maxFit)
 	for i := range xs {
 		t := time.Duration(i) * 100 * time.Millisecond
-		xs[i] = tv{t, 1 + 0.3*math.Exp(-t.Seconds()/0.8) + 0.01*math.Sin(float64(i)*1.7)}
+		xs[i] = timedValue{t, 1 + 0.3*math.Exp(-t.Seconds()/0.8) + 0.01*math.Sin(float64(i)*1.7)}
 		vals[i] = xs[i].v
 	}
 	b.Run("settled", func(b *testing.B) {

@@ -178,7 +178,7 @@ func (e *Engine) meterChanged(ctx context.Context, a *attempt, ch *changedError)
 // calibStat is what a position keeps besides its means for calibration:
 // each role's accepted readings in the meter's own scale, the type B
 // components of its corrected mean, and which dark was subtracted. It is
-// embedded in posStat and journalled with it.
+// embedded in positionStats and journalled with it.
 type calibStat struct {
 	Raw      map[string]rawStat `json:"raw,omitempty"`
 	TypeB    map[string][]typeB `json:"type_b,omitempty"`
@@ -208,7 +208,7 @@ type typeB struct {
 
 // finishStat fills the calibration part of an accepted position from the
 // readings the attempt holds (those that enter the result).
-func (e *Engine) finishStat(p *posStat, a *attempt) {
+func (e *Engine) finishStat(p *positionStats, a *attempt) {
 	byRole := map[string][]held{}
 	for _, h := range a.hold {
 		if a.inStep[h.role] {
@@ -281,7 +281,7 @@ func (st *state) darkFor(role, label string) (DarkLevel, bool) {
 // and by role and position label when it has one. A position journalled
 // by an earlier release has no raw summary: its corrected mean is used,
 // as that release did.
-func (st *state) putDark(p posStat) {
+func (st *state) putDark(p positionStats) {
 	for _, role := range []string{Photometer, Dosimeter} {
 		var d DarkLevel
 		if r, ok := p.Raw[role]; ok && r.Under > 0 {
@@ -311,7 +311,7 @@ func (st *state) putDark(p posStat) {
 // parts returns the type B components of role's corrected mean at a
 // position; positions from older journals carry one relative value, taken
 // as the calibration's.
-func (p posStat) parts(role string, rel float64, src string) []calib.Component {
+func (p positionStats) parts(role string, rel float64, src string) []calib.Component {
 	if bs, ok := p.TypeB[role]; ok {
 		out := make([]calib.Component, len(bs))
 		for i, b := range bs {
@@ -344,7 +344,7 @@ type modelledDark struct {
 // corrected mean, with N·u as a type B component (not the calibration's:
 // it does not cancel in the ratio). Positions with their own dark, and
 // the centre, are left as they are.
-func (e *Engine) positionDarks(ps []posStat) map[int]modelledDark {
+func (e *Engine) positionDarks(ps []positionStats) map[int]modelledDark {
 	d, ok := e.st.darks[Photometer]
 	if !ok || d.Unknown || d.Mean == 0 {
 		return nil

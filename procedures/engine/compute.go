@@ -90,7 +90,7 @@ func (cc CalibCorrector) Correct(r drivers.Reading, c Conditions) Corrected {
 }
 
 // measured turns the accepted samples of one position into calib's input.
-func measured(p posStat, lum bool) calib.Measured {
+func measured(p positionStats, lum bool) calib.Measured {
 	if lum {
 		m := p.Meters[Photometer]
 		return calib.Measured{Name: "output luminance", Unit: units.Canonical(units.Luminance),
@@ -114,9 +114,9 @@ func measured(p posStat, lum bool) calib.Measured {
 // in a ratio read with one meter.
 //
 // A position journalled by this release carries its residual from the
-// data instead (posStat.Settle, residualSettling): the remainder of the
+// data instead (positionStats.Settle, residualSettling): the remainder of the
 // approach or drift the readings do not rule out, zero for a settled beam.
-func (e *Engine) settledMeasure(p posStat, lum bool) calib.Measured {
+func (e *Engine) settledMeasure(p positionStats, lum bool) calib.Measured {
 	m := measured(p, lum)
 	l := e.cfg.Limits
 	a := l.SettleSlope * l.SettleWindow.Seconds() / 2
@@ -144,13 +144,13 @@ func relB(src string, rel float64) []calib.Component {
 }
 
 // input finds the accepted measurement a compute step names for role.
-func (e *Engine) input(s Step, role string) ([]posStat, error) {
+func (e *Engine) input(s Step, role string) ([]positionStats, error) {
 	id, ok := s.Compute.Inputs[role]
 	if !ok {
 		return nil, fmt.Errorf("needs a %s measurement", strings.ReplaceAll(role, "_", " "))
 	}
 	ps := e.st.meas[id]
-	var out []posStat
+	var out []positionStats
 	for _, p := range ps {
 		if p.Index >= 0 {
 			out = append(out, p)
@@ -176,19 +176,19 @@ func (e *Engine) compute(ctx context.Context, idx int, s Step) error {
 	}
 	switch fig {
 	case "conversion_factor":
-		var lp, kp []posStat
+		var lp, kp []positionStats
 		if lp, err = e.input(s, "luminance"); err == nil {
 			if kp, err = e.input(s, "air_kerma_rate"); err == nil {
 				res = calib.ConversionFactor(e.settledMeasure(lp[0], true), e.settledMeasure(kp[0], false), 0)
 			}
 		}
 	case "input_kerma_rate":
-		var kp []posStat
+		var kp []positionStats
 		if kp, err = e.input(s, "air_kerma_rate"); err == nil {
 			res = calib.KermaRate(e.settledMeasure(kp[0], false), 0)
 		}
 	case "contrast_ratio":
-		var op, dp []posStat
+		var op, dp []positionStats
 		if op, err = e.input(s, "open"); err == nil {
 			if dp, err = e.input(s, "disk"); err == nil {
 				disk := e.st.values["lead_disk_diameter"]
@@ -204,7 +204,7 @@ func (e *Engine) compute(ctx context.Context, idx int, s Step) error {
 			}
 		}
 	case "non_uniformity":
-		var lp []posStat
+		var lp []positionStats
 		if lp, err = e.input(s, "luminance"); err == nil {
 			var spots []calib.Spot
 			modelled := e.positionDarks(lp)
@@ -225,7 +225,7 @@ func (e *Engine) compute(ctx context.Context, idx int, s Step) error {
 		if s.Compute.Inputs["air_kerma_rate"] == s.Compute.Inputs["reference"] {
 			return &skipError{reason: "the reference field mode itself: no scaling"}
 		}
-		var kp, rp []posStat
+		var kp, rp []positionStats
 		if kp, err = e.input(s, "air_kerma_rate"); err == nil {
 			if rp, err = e.input(s, "reference"); err == nil {
 				mk, mr := kp[0].Mode, rp[0].Mode
@@ -250,7 +250,7 @@ func (e *Engine) compute(ctx context.Context, idx int, s Step) error {
 				role = q
 			}
 		}
-		var rp []posStat
+		var rp []positionStats
 		if rp, err = e.input(s, role); err == nil {
 			p := rp[0]
 			_, lum := p.meter(Photometer)

@@ -108,11 +108,11 @@ func TestConversionFactorEndToEnd(t *testing.T) {
 	}
 }
 
-func (r *rig) jrPos(t *testing.T, session, step string) posStat {
+func (r *rig) jrPos(t *testing.T, session, step string) positionStats {
 	t.Helper()
-	var found []posStat
+	var found []positionStats
 	for _, ev := range events(r.jr, session, evMeasured) {
-		var p posStat
+		var p positionStats
 		if err := json.Unmarshal([]byte(ev.Detail), &p); err != nil {
 			t.Fatal(err)
 		}
@@ -173,7 +173,7 @@ func TestBeamDetectionAndSettling(t *testing.T) {
 // onAtGuess finds the Mono time of the beam-on detection from the first
 // reading of the step above the threshold: the first reading journalled
 // after the beam_on event.
-func (p posStat) onAtGuess(r *rig, session string) time.Duration {
+func (p positionStats) onAtGuess(r *rig, session string) time.Duration {
 	envs := r.jr.sessions[session]
 	for i, e := range envs {
 		if e.Kind == entry.KindEvent {

@@ -349,7 +349,7 @@ func TestOlderPositionShapeMigrates(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	var q posStat
+	var q positionStats
 	if err := json.Unmarshal(data, &q); err != nil {
 		t.Fatal(err)
 	}

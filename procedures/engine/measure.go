@@ -80,7 +80,7 @@ type attempt struct {
 	// look confirms it (settled = candidate), so the confirmation costs
 	// no beam time of its own.
 	candidate time.Duration
-	series    map[string][]tv
+	series    map[string][]timedValue
 	hold      []held
 	flags     []string
 	calib     bool
@@ -265,7 +265,7 @@ func (m *MeasureSpec) reserve(l Limits) time.Duration {
 // reason, and says so; the figures that use it are not measurable. used
 // is the beam-on its attempts took.
 func (e *Engine) notMeasurable(ctx context.Context, idx int, s Step, pi int, pos Position, npos int, reason string, used time.Duration) error {
-	p := posStat{Step: s.ID, Index: pi, Mode: s.FieldMode, Unmeasurable: reason, Dark: !s.Measure.Beam, UsedS: used.Seconds()}
+	p := positionStats{Step: s.ID, Index: pi, Mode: s.FieldMode, Unmeasurable: reason, Dark: !s.Measure.Beam, UsedS: used.Seconds()}
 	what := "This reading"
 	if npos > 0 {
 		p.Label, p.R, p.Angle = pos.Label, pos.R, pos.Angle
@@ -285,7 +285,7 @@ func (e *Engine) notMeasurable(ctx context.Context, idx int, s Step, pi int, pos
 func (e *Engine) newAttempt(idx int, s Step, pi int, pos Position, npos int) *attempt {
 	m := s.Measure
 	a := &attempt{idx: idx, step: s, spec: m, posIdx: pi, pos: pos, inStep: map[string]bool{},
-		errs: map[string]int{}, typeB: map[string]float64{}, settled: -1, candidate: -1, series: map[string][]tv{}, calib: true, modes: e.cfg.FieldModes}
+		errs: map[string]int{}, typeB: map[string]float64{}, settled: -1, candidate: -1, series: map[string][]timedValue{}, calib: true, modes: e.cfg.FieldModes}
 	for _, r := range m.Meters {
 		a.inStep[r] = true
 	}
@@ -320,7 +320,7 @@ func (e *Engine) newAttempt(idx int, s Step, pi int, pos Position, npos int) *at
 // runAttempt takes one reading position: dark level, beam prompt, then
 // the beam attempt's phases (attempt.go): waiting, rising, settling,
 // sampling to the type A target, releasing, off.
-func (e *Engine) runAttempt(ctx context.Context, a *attempt) (posStat, error) {
+func (e *Engine) runAttempt(ctx context.Context, a *attempt) (positionStats, error) {
 	if !a.spec.Beam {
 		return e.darkAttempt(ctx, a)
 	}
@@ -330,7 +330,7 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (posStat, error) {
 	// the prompt.
 	dark, steps, err := e.readFor(ctx, a, l.DarkTime, 5)
 	if err != nil {
-		return posStat{}, e.attemptFailed(ctx, a, err)
+		return positionStats{}, e.attemptFailed(ctx, a, err)
 	}
 	a.tracks = map[string]*track{}
 	for _, role := range a.roles {
@@ -345,9 +345,9 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (posStat, error) {
 		a.lastSig = e.cfg.Clock.Mono()
 		a.onAt, a.onBase = a.lastSig, e.st.beamOn
 		if err := e.release(ctx, a, panel.Warn, "The beam is on. Release the beam."); err != nil {
-			return posStat{}, err
+			return positionStats{}, err
 		}
-		return posStat{}, &retryError{reason: "the beam was on before the prompt", free: true}
+		return positionStats{}, &retryError{reason: "the beam was on before the prompt", free: true}
 	}
 
 	p := panel.Prompt{Step: a.idx, StepID: a.step.ID}
@@ -366,7 +366,7 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (posStat, error) {
 	p.Action = panel.ActBeamOn
 	p.Setup = a.setup()
 	if _, err := e.ask(ctx, p); err != nil {
-		return posStat{}, err
+		return positionStats{}, err
 	}
 	a.prompted = true
 	e.freshen(a) // lines queued while the operator was at the prompt are old
@@ -374,16 +374,16 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (posStat, error) {
 	deadline := e.cfg.Clock.Mono() + l.BeamWait
 	for !a.beamOn {
 		if e.cfg.Clock.Mono() > deadline {
-			return posStat{}, e.attemptFailed(ctx, a, &retryError{reason: "no beam was seen"})
+			return positionStats{}, e.attemptFailed(ctx, a, &retryError{reason: "no beam was seen"})
 		}
 		if err := e.cycle(ctx, a); err != nil {
-			return posStat{}, e.attemptFailed(ctx, a, err)
+			return positionStats{}, e.attemptFailed(ctx, a, err)
 		}
 	}
 	_ = e.cfg.Panel.Indicate(ctx, panel.BeamOn)
 	// Rise, settle, then sample until precise enough, within what is left
 	// of the position's beam-on limit.
-	var stat posStat
+	var stat positionStats
 	var short string
 	lastCheck := -24 * time.Hour // judged at the first reading
 	alarmed := false
@@ -399,7 +399,7 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (posStat, error) {
 					break
 				}
 			}
-			return posStat{}, e.attemptFailed(ctx, a, err)
+			return positionStats{}, e.attemptFailed(ctx, a, err)
 		}
 		onFor := a.lastSig - a.onAt
 		switch a.phase {
@@ -412,7 +412,7 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (posStat, error) {
 				if under {
 					reason = "the " + strings.Join(names, " and the ") + " reads under range with the beam on"
 				}
-				return posStat{}, e.attemptFailed(ctx, a, &retryError{reason: reason, rangeOrSettle: true})
+				return positionStats{}, e.attemptFailed(ctx, a, &retryError{reason: reason, rangeOrSettle: true})
 			}
 		case phSettling:
 			if a.lastSig-lastCheck >= settleEvery {
@@ -435,12 +435,12 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (posStat, error) {
 					} else {
 						a.candidate = -1
 						if err := e.flush(ctx, a, false); err != nil {
-							return posStat{}, err
+							return positionStats{}, err
 						}
 					}
 				}
 				if a.settled < 0 && onFor >= l.SettleMax {
-					return posStat{}, e.attemptFailed(ctx, a, &retryError{reason: "the reading is still drifting", rangeOrSettle: true})
+					return positionStats{}, e.attemptFailed(ctx, a, &retryError{reason: "the reading is still drifting", rangeOrSettle: true})
 				}
 			}
 		case phSampling:
@@ -453,7 +453,7 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (posStat, error) {
 				if who, ok := e.drifting(a); ok {
 					n := len(a.hold)
 					if err := e.flush(ctx, a, false); err != nil {
-						return posStat{}, err
+						return positionStats{}, err
 					}
 					_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: a.idx, Name: evDiscarded, Detail: fmt.Sprintf("%d readings not used: %s drifting after settling", n, who), BeamOn: e.st.beamOn.Seconds()})
 					a.settled, a.candidate = -1, -1
@@ -471,7 +471,7 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (posStat, error) {
 				names, _ := a.notRisen()
 				reason = "the " + strings.Join(names, " and the ") + " does not see the beam"
 			}
-			return posStat{}, e.attemptFailed(ctx, a, &retryError{reason: reason, rangeOrSettle: true})
+			return positionStats{}, e.attemptFailed(ctx, a, &retryError{reason: reason, rangeOrSettle: true})
 		}
 	}
 	if short != "" {
@@ -484,15 +484,15 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (posStat, error) {
 	// every exposure, and more of it on a slow board).
 	if err := e.release(ctx, a, panel.Good, "Release the beam."); err != nil {
 		_ = e.flush(ctx, a, true)
-		return posStat{}, err
+		return positionStats{}, err
 	}
 	stat.BeamOnS = a.exposed.Seconds()
 	if err := e.flush(ctx, a, true); err != nil {
-		return posStat{}, err
+		return positionStats{}, err
 	}
 	if alarmed {
 		if _, err := e.ask(ctx, panel.Prompt{Message: panel.Message{Text: "Press the switch to reset the beam-on alarm and go on.", Level: panel.Alarm, Action: panel.ActAcknowledge}, Step: a.idx, StepID: a.step.ID}); err != nil {
-			return posStat{}, err
+			return positionStats{}, err
 		}
 	}
 	return stat, nil
@@ -563,7 +563,7 @@ func (e *Engine) freshen(a *attempt) {
 }
 
 // after returns the readings of xs at or after t.
-func after(xs []tv, t time.Duration) []tv {
+func after(xs []timedValue, t time.Duration) []timedValue {
 	i := 0
 	for i < len(xs) && xs[i].t < t {
 		i++
@@ -578,10 +578,10 @@ func after(xs []tv, t time.Duration) []tv {
 // reached the target. The target is for the type A part only: the
 // meters' calibration cannot be reduced by sampling longer, and enters U
 // in the figure's budget (ENGINE.md, "Stopping rule").
-func (e *Engine) precise(a *attempt) (posStat, bool) {
+func (e *Engine) precise(a *attempt) (positionStats, bool) {
 	l := e.cfg.Limits
 	target := e.target(a)
-	p := posStat{Step: a.step.ID, Index: a.posIdx, Label: a.label, R: a.pos.R, Angle: a.pos.Angle, Mode: a.step.FieldMode, Calib: a.calib, Flags: slices.Clone(a.flags)}
+	p := positionStats{Step: a.step.ID, Index: a.posIdx, Label: a.label, R: a.pos.R, Angle: a.pos.Angle, Mode: a.step.FieldMode, Calib: a.calib, Flags: slices.Clone(a.flags)}
 	// Each meter of the step, by role: its mean and the type A of the
 	// mean (JCGM 100:2008 4.2.3, autocorrelated readings allowed for).
 	p.Meters = map[string]meterStat{}
@@ -637,7 +637,7 @@ func (e *Engine) precise(a *attempt) (posStat, bool) {
 // that a ratio is never taken from hundreds of photometer readings beside
 // one or two of the dosimeter (each is interpolated at the other's times,
 // which makes many pairs of few dosimeter readings); else the one meter's.
-func (p posStat) count() int {
+func (p positionStats) count() int {
 	n := -1
 	for _, m := range p.Meters {
 		if n < 0 || m.N < n {
@@ -652,7 +652,7 @@ func (p posStat) count() int {
 
 // ratio reports whether the position's figure is the ratio of the
 // photometer's mean to the dosimeter's (both were read in the step).
-func (p posStat) ratio() bool {
+func (p positionStats) ratio() bool {
 	_, l := p.Meters[Photometer]
 	_, k := p.Meters[Dosimeter]
 	return l && k
@@ -660,14 +660,14 @@ func (p posStat) ratio() bool {
 
 // darkAttempt takes a beam-off reading for a fixed time (dark level,
 // stability).
-func (e *Engine) darkAttempt(ctx context.Context, a *attempt) (posStat, error) {
+func (e *Engine) darkAttempt(ctx context.Context, a *attempt) (positionStats, error) {
 	l := e.cfg.Limits
 	d := a.spec.Duration
 	if d == 0 {
 		d = l.DarkTime
 	}
 	if _, err := e.ask(ctx, panel.Prompt{Message: panel.Message{Text: darkPrompt(a.step.Text, d), Level: panel.Info, Action: panel.ActSetup, Setup: a.setup()}, Step: a.idx, StepID: a.step.ID}); err != nil {
-		return posStat{}, err
+		return positionStats{}, err
 	}
 	e.freshen(a)
 	// First let the meters come down from any earlier exposure (the
@@ -676,7 +676,7 @@ func (e *Engine) darkAttempt(ctx context.Context, a *attempt) (posStat, error) {
 	begin := e.cfg.Clock.Mono()
 	for {
 		if err := e.cycle(ctx, a); err != nil {
-			return posStat{}, e.attemptFailed(ctx, a, err)
+			return positionStats{}, e.attemptFailed(ctx, a, err)
 		}
 		ok := true
 		for _, role := range a.spec.Meters {
@@ -687,28 +687,28 @@ func (e *Engine) darkAttempt(ctx context.Context, a *attempt) (posStat, error) {
 		}
 	}
 	if err := e.flush(ctx, a, false); err != nil {
-		return posStat{}, err
+		return positionStats{}, err
 	}
-	a.series = map[string][]tv{}
+	a.series = map[string][]timedValue{}
 	a.settled = 0
 	start := e.cfg.Clock.Mono()
 	a.onAt = start
 	marks := countdownMarks(d)
 	if len(marks) > 0 {
 		if err := e.say(ctx, a.idx, panel.Message{Text: "Dark reading started: " + spokenDuration(d) + ". Keep the beam off.", Level: panel.Info}); err != nil {
-			return posStat{}, err
+			return positionStats{}, err
 		}
 	}
 	for e.cfg.Clock.Mono()-start < d {
 		if err := e.cycle(ctx, a); err != nil {
-			return posStat{}, e.attemptFailed(ctx, a, err)
+			return positionStats{}, e.attemptFailed(ctx, a, err)
 		}
 		if left := d - (e.cfg.Clock.Mono() - start); len(marks) > 0 && left <= marks[0] && left > 0 {
 			for len(marks) > 0 && left <= marks[0] {
 				marks = marks[1:]
 			}
 			if err := e.say(ctx, a.idx, panel.Message{Text: spokenDuration(left.Round(5*time.Second)) + " left.", Level: panel.Info}); err != nil {
-				return posStat{}, err
+				return positionStats{}, err
 			}
 		}
 	}
@@ -728,12 +728,12 @@ func (e *Engine) darkAttempt(ctx context.Context, a *attempt) (posStat, error) {
 	}
 	e.finishStat(&p, a)
 	if err := e.flush(ctx, a, true); err != nil {
-		return posStat{}, err
+		return positionStats{}, err
 	}
 	if d >= countdownFrom {
 		// One beep: the fixed-time reading is over.
 		if err := e.say(ctx, a.idx, panel.Message{Text: "Dark reading done.", Level: panel.Good}); err != nil {
-			return posStat{}, err
+			return positionStats{}, err
 		}
 	}
 	return p, nil
@@ -1091,11 +1091,11 @@ func (e *Engine) observe(ctx context.Context, a *attempt, role string, r drivers
 	live := a.beamOn || !a.spec.Beam
 	switch {
 	case live && a.inStep[role] && usable:
-		a.series[role] = append(a.series[role], tv{r.Mono, v})
+		a.series[role] = append(a.series[role], timedValue{r.Mono, v})
 	case !a.spec.Beam && a.inStep[role] && r.Status == drivers.StatusUnderRange:
 		// A dark under range: the meter shows nothing (finishStat counts
 		// it, and the range floor bounds the level).
-		a.series[role] = append(a.series[role], tv{r.Mono, 0})
+		a.series[role] = append(a.series[role], timedValue{r.Mono, 0})
 	}
 	sampling := live && a.inStep[role] && (a.settled >= 0 || a.candidate >= 0 || !a.spec.Beam)
 	if sampling && (usable || !a.spec.Beam) {

@@ -62,10 +62,10 @@ func TestBudgetPoolKeepsReserves(t *testing.T) {
 	if sum.BeamOn > budget {
 		t.Errorf("beam-on %v, above the budget %v", sum.BeamOn, budget)
 	}
-	var first posStat
+	var first positionStats
 	measured := map[string]int{}
 	for _, ev := range events(r.jr, sum.Session, evMeasured) {
-		var p posStat
+		var p positionStats
 		if err := json.Unmarshal([]byte(ev.Detail), &p); err != nil {
 			t.Fatal(err)
 		}

@@ -128,7 +128,7 @@ func TestResumeAfterPowerCut(t *testing.T) {
 		}
 		acc := map[string]int{}
 		for _, ev := range events(r.jr, sum.Session, evMeasured) {
-			var p posStat
+			var p positionStats
 			_ = json.Unmarshal([]byte(ev.Detail), &p)
 			acc[p.Step]++
 		}

@@ -13,11 +13,11 @@ import (
 	"kermalux/procedures/panel"
 )
 
-// posStat is the outcome of one accepted reading position of a measurement.
+// positionStats is the outcome of one accepted reading position of a measurement.
 // It is journalled (as the detail of a "measurement_done" event) so that a
 // resumed session can compute results from measurements taken before a
 // power cut without repeating them.
-type posStat struct {
+type positionStats struct {
 	Step  string  `json:"step"`  // step ID
 	Index int     `json:"index"` // position index (0 without positions)
 	Label string  `json:"label,omitempty"`
@@ -90,7 +90,7 @@ type lkFields struct {
 
 // migrate moves an older journal's luminance and kerma fields into
 // Meters, so that everything after reads one shape.
-func (p *posStat) migrate() {
+func (p *positionStats) migrate() {
 	old := p.lkFields
 	p.lkFields = lkFields{}
 	if p.Meters != nil || (!old.HasL && !old.HasK) {
@@ -106,7 +106,7 @@ func (p *posStat) migrate() {
 }
 
 // meter is role's statistics, if the position has them.
-func (p posStat) meter(role string) (meterStat, bool) {
+func (p positionStats) meter(role string) (meterStat, bool) {
 	m, ok := p.Meters[role]
 	return m, ok
 }
@@ -119,7 +119,7 @@ type state struct {
 	values    map[string]float64
 	origins   map[string]valueOrigin  // how each entered value was obtained
 	valueUnc  map[string]float64      // standard uncertainties of values read by a sensor (roomair.go)
-	meas      map[string][]posStat    // by measure step ID, per position
+	meas      map[string][]positionStats    // by measure step ID, per position
 	results   map[string]entry.Result // by compute step ID
 	order     []string                // compute step IDs in order of computation
 	darks     map[string]DarkLevel    // role, and role@position, → latest dark level (raw scale)
@@ -133,7 +133,7 @@ type state struct {
 
 func newState(l Limits) *state {
 	return &state{
-		done: map[int]bool{}, values: map[string]float64{}, origins: map[string]valueOrigin{}, meas: map[string][]posStat{},
+		done: map[int]bool{}, values: map[string]float64{}, origins: map[string]valueOrigin{}, meas: map[string][]positionStats{},
 		results: map[string]entry.Result{}, darks: map[string]DarkLevel{},
 		nextSpeak: l.SpeakEvery, nextWarn: l.BeamWarn, nextAlarm: l.BeamAlarm, nextCount: beamCheckpoint,
 	}
@@ -305,7 +305,7 @@ func (e *Engine) rebuild(ctx context.Context, id string) (*state, resumeInfo, er
 				open.on = false
 			}
 			if ev.Name == evMeasured {
-				var p posStat
+				var p positionStats
 				if err := json.Unmarshal([]byte(ev.Detail), &p); err != nil {
 					return nil, info, fmt.Errorf("resume session %s: record %d: measurement not readable: %w", id, env.Seq, err)
 				}
@@ -368,10 +368,10 @@ func (e *Engine) recheckReason(info resumeInfo) string {
 func known(boot string) bool { return boot != "" && boot != "unknown" }
 
 // putPos stores an accepted position, replacing an earlier one of the same index.
-func (st *state) putPos(p posStat) {
+func (st *state) putPos(p positionStats) {
 	ps := st.meas[p.Step]
 	for len(ps) <= p.Index {
-		ps = append(ps, posStat{Index: -1})
+		ps = append(ps, positionStats{Index: -1})
 	}
 	ps[p.Index] = p
 	st.meas[p.Step] = ps
@@ -388,7 +388,7 @@ func (st *state) havePos(id string, i int) bool {
 
 // finite replaces values JSON cannot carry (an infinite type A from a
 // single reading) with 0 and flags it.
-func (p *posStat) finite() {
+func (p *positionStats) finite() {
 	for k, v := range p.Settle {
 		if math.IsInf(v, 0) || math.IsNaN(v) {
 			p.Settle[k] = 0

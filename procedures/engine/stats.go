@@ -7,8 +7,8 @@ import (
 	"kermalux/calib"
 )
 
-// tv is a value at a host time.
-type tv struct {
+// timedValue is a value at a host time.
+type timedValue struct {
 	t time.Duration
 	v float64
 }
@@ -89,7 +89,7 @@ func expandedRel(uA, neff float64, uB ...float64) (U, uc, k float64) {
 
 // trend fits v = a + b·t by least squares over xs and returns the slope
 // relative to the mean, per second, and its standard error.
-func trend(xs []tv) (rel, se float64, ok bool) {
+func trend(xs []timedValue) (rel, se float64, ok bool) {
 	n := float64(len(xs))
 	if n < 3 {
 		return 0, 0, false
@@ -128,7 +128,7 @@ func trend(xs []tv) (rel, se float64, ok bool) {
 }
 
 // window returns the trailing part of xs that spans d.
-func window(xs []tv, d time.Duration) []tv {
+func window(xs []timedValue, d time.Duration) []timedValue {
 	if len(xs) == 0 {
 		return nil
 	}
@@ -148,7 +148,7 @@ func window(xs []tv, d time.Duration) []tv {
 // overshoots and comes back) the slope over the whole window is near zero
 // while the signal is still moving: a window whose halves both slope
 // significantly, in opposite directions, is not steady.
-func steady(xs []tv, d time.Duration, limit float64, minN int) bool {
+func steady(xs []timedValue, d time.Duration, limit float64, minN int) bool {
 	w := window(xs, d)
 	if len(w) < minN || w[len(w)-1].t-w[0].t < d*9/10 {
 		return false
@@ -171,11 +171,11 @@ func steady(xs []tv, d time.Duration, limit float64, minN int) bool {
 // linearly at each luminance reading's host time, and returns the ratios
 // L/K. Luminance readings outside the span of the kerma readings are left
 // out.
-func pairs(lum, kerma []tv) []float64 {
+func pairs(lum, kerma []timedValue) []float64 {
 	return values(ratioSeries(lum, kerma))
 }
 
-func values(xs []tv) []float64 {
+func values(xs []timedValue) []float64 {
 	out := make([]float64, len(xs))
 	for i, x := range xs {
 		out[i] = x.v

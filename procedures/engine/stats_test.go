@@ -32,16 +32,16 @@ func TestStatsAgainstGonum(t *testing.T) {
 	if math.Abs(m-gm) > 1e-12 || math.Abs(s-gs) > 1e-12 {
 		t.Errorf("meanSD %g %g, gonum %g %g", m, s, gm, gs)
 	}
-	var tvs []tv
+	var series []timedValue
 	var ts []float64
 	for i, x := range xs {
 		v := x + 0.05*float64(i)
-		tvs = append(tvs, tv{time.Duration(i) * 100 * time.Millisecond, v})
+		series = append(series, timedValue{time.Duration(i) * 100 * time.Millisecond, v})
 		ts = append(ts, float64(i)*0.1)
 	}
-	rel, _, ok := trend(tvs)
-	_, beta := stat.LinearRegression(ts, values(tvs), nil, false)
-	mean, _ := meanSD(values(tvs))
+	rel, _, ok := trend(series)
+	_, beta := stat.LinearRegression(ts, values(series), nil, false)
+	mean, _ := meanSD(values(series))
 	if !ok || math.Abs(rel-beta/mean) > 1e-9 {
 		t.Errorf("trend %g, gonum slope/mean %g", rel, beta/mean)
 	}
@@ -78,8 +78,8 @@ func TestEffectiveN(t *testing.T) {
 // Pairing: luminance at times between kerma readings gets the kerma
 // interpolated linearly.
 func TestPairsInterpolate(t *testing.T) {
-	k := []tv{{0, 1}, {100 * time.Millisecond, 2}, {200 * time.Millisecond, 2}}
-	l := []tv{{50 * time.Millisecond, 150}, {150 * time.Millisecond, 300}, {250 * time.Millisecond, 1}}
+	k := []timedValue{{0, 1}, {100 * time.Millisecond, 2}, {200 * time.Millisecond, 2}}
+	l := []timedValue{{50 * time.Millisecond, 150}, {150 * time.Millisecond, 300}, {250 * time.Millisecond, 1}}
 	g := pairs(l, k)
 	if len(g) != 2 || math.Abs(g[0]-100) > 1e-9 || math.Abs(g[1]-150) > 1e-9 {
 		t.Errorf("pairs %v", g)

@@ -12,17 +12,17 @@ import (
 // (a dark reading), a ramp, and an overshoot's turning point.
 func TestSteadyKnownSignals(t *testing.T) {
 	rng := rand.New(rand.NewPCG(1, 2))
-	series := func(f func(s float64) float64) []tv {
-		var xs []tv
+	series := func(f func(s float64) float64) []timedValue {
+		var xs []timedValue
 		for i := 0; i <= 50; i++ { // 50 readings a second for 1 s
 			d := time.Duration(i) * 20 * time.Millisecond
-			xs = append(xs, tv{d, f(d.Seconds())})
+			xs = append(xs, timedValue{d, f(d.Seconds())})
 		}
 		return xs
 	}
 	tests := []struct {
 		name string
-		xs   []tv
+		xs   []timedValue
 		want bool
 	}{
 		{"zeros (under range)", series(func(float64) float64 { return 0 }), true},
