@@ -296,3 +296,45 @@ func TestAppendJSONString(t *testing.T) {
 		}
 	}
 }
+
+// The append view's trigger refuses a record that does not follow its
+// session's head in the file, whatever head the Journal believes (a stale
+// cache, another writer): nothing of the append is written, single or
+// burst, and the next append reads the head afresh and goes on. Without
+// the trigger's check the records would be stored with a wrong prev link
+// (a fork) and verify would fail.
+func TestAppendRefusesStaleHead(t *testing.T) {
+	ctx := context.Background()
+	dir := t.TempDir()
+	j := openTest(t, dir)
+	id, _ := j.Begin(ctx, journaltest.Session(0))
+	if _, err := j.Append(ctx, id, entry.KindEvent, entry.Event{Name: "beam_on"}); err != nil {
+		t.Fatal(err)
+	}
+	for _, items := range [][]Item{
+		{{Kind: entry.KindEvent, Payload: entry.Event{Name: "x"}}},
+		{{Kind: entry.KindEvent, Payload: entry.Event{Name: "x"}}, {Kind: entry.KindEvent, Payload: entry.Event{Name: "y"}}},
+	} {
+		for _, stale := range []headState{
+			{seq: 2, hash: zeroHashHex()}, // another prev
+			{seq: 1, hash: j.heads[id].hash},
+		} {
+			j.mu.Lock()
+			j.heads[id] = stale
+			j.mu.Unlock()
+			if _, err := j.AppendAll(ctx, id, items); err == nil || !strings.Contains(err.Error(), "does not follow") {
+				t.Errorf("%d records after a stale head %+v: err %v, want refused as not following the head", len(items), stale, err)
+			}
+		}
+	}
+	if s, _ := j.Sessions(ctx); s[0].Last != 2 {
+		t.Errorf("refused appends left records: last %d, want 2", s[0].Last)
+	}
+	if seq, err := j.Append(ctx, id, entry.KindEvent, entry.Event{Name: "beam_off"}); err != nil || seq != 3 {
+		t.Fatalf("append after the refusals = %d, %v; want 3", seq, err)
+	}
+	j.Close()
+	if rep, err := Verify(ctx, filepath.Join(dir, "journal.db")); err != nil || !rep.OK() {
+		t.Errorf("verify: %+v %v", rep, err)
+	}
+}
