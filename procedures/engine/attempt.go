@@ -62,13 +62,13 @@ type track struct {
 	noise  float64 // their experimental standard deviation
 	step   float64 // display resolution, corrected scale (0: not known)
 	thresh float64
-	risen  bool    // has been above the threshold in this exposure
-	above  bool    // is above it now (two readings at or below end it)
-	low    int     // consecutive readings at or below the threshold
-	under  int     // readings under range since the prompt
-	over   int     // readings over range since the prompt: its fall cannot time the beam
-	peak   float64 // highest reading since it rose
-	all    []timedValue    // usable readings since the prompt
+	risen  bool         // has been above the threshold in this exposure
+	above  bool         // is above it now (two readings at or below end it)
+	low    int          // consecutive readings at or below the threshold
+	under  int          // readings under range since the prompt
+	over   int          // readings over range since the prompt: its fall cannot time the beam
+	peak   float64      // highest reading since it rose
+	all    []timedValue // usable readings since the prompt
 }
 
 // minFloor is the smallest threshold above the dark a meter may use: far

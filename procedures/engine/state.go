@@ -117,12 +117,12 @@ type state struct {
 	done      map[int]bool
 	checklist bool // a pre-exposure safety checklist was acknowledged
 	values    map[string]float64
-	origins   map[string]valueOrigin  // how each entered value was obtained
-	valueUnc  map[string]float64      // standard uncertainties of values read by a sensor (roomair.go)
-	meas      map[string][]positionStats    // by measure step ID, per position
-	results   map[string]entry.Result // by compute step ID
-	order     []string                // compute step IDs in order of computation
-	darks     map[string]DarkLevel    // role, and role@position, → latest dark level (raw scale)
+	origins   map[string]valueOrigin     // how each entered value was obtained
+	valueUnc  map[string]float64         // standard uncertainties of values read by a sensor (roomair.go)
+	meas      map[string][]positionStats // by measure step ID, per position
+	results   map[string]entry.Result    // by compute step ID
+	order     []string                   // compute step IDs in order of computation
+	darks     map[string]DarkLevel       // role, and role@position, → latest dark level (raw scale)
 	beamOn    time.Duration
 	nextSpeak time.Duration
 	nextWarn  time.Duration
