@@ -235,7 +235,7 @@ func (o *Operator) think(p panel.Prompt) (time.Duration, []Part) {
 	}
 	if v := p.Value; v != nil {
 		k := DelayConfirm
-		if _, ok := o.Readings[v.Name]; ok || !v.HasDef {
+		if _, ok := o.Readings[v.Name]; ok || !v.HasDefault {
 			k = DelayRead
 		}
 		parts = append(parts, Part{k, o.vary(Delays[k].Time)})
@@ -326,7 +326,7 @@ func (o *Operator) value(v *panel.ValueRequest) (float64, bool) {
 		o.did("enter " + v.Name + " " + strconv.FormatFloat(x, 'g', -1, 64))
 		return x, true
 	}
-	if v.HasDef {
+	if v.HasDefault {
 		return v.Default, false
 	}
 	return (v.Min + v.Max) / 2, true

@@ -62,7 +62,7 @@ type Step struct {
 	Items  []string // checklist lines
 	Safety bool     // a pre-exposure safety checklist
 
-	Value   *ValueSpec
+	Value   *ValueRequest
 	Measure *MeasureSpec
 	Compute *ComputeSpec
 	Judge   *JudgeSpec
@@ -81,14 +81,16 @@ type BeamPool struct {
 	Budget time.Duration
 }
 
-// ValueSpec asks for a value.
-type ValueSpec struct {
-	Name     string // temperature, pressure, tube_voltage, tube_current, disk_diameter...
-	Unit     string
-	Min, Max float64
-	Default  float64
-	HasDef   bool
-	Source   string // "bench", "operator", "sensor"
+// ValueRequest is the value an enter step asks for, converted from the
+// procedure's (script.ValueRequest); the engine asks the panel for it as a
+// panel.ValueRequest, its default taken from Source.
+type ValueRequest struct {
+	Name       string // temperature, pressure, tube_voltage, tube_current, disk_diameter...
+	Unit       string
+	Min, Max   float64
+	Default    float64
+	HasDefault bool
+	Source     string // "bench", "operator", "sensor"
 }
 
 // Position is a photometer position on the output face.

@@ -102,7 +102,7 @@ func TestCertificateProblemsSaid(t *testing.T) {
 // 811) and kept canonical for the corrections.
 func TestValueUnits(t *testing.T) {
 	steps := cfSteps()
-	steps[3].Value = &ValueSpec{Name: "pressure", Unit: "hPa", Min: 700, Max: 1100}
+	steps[3].Value = &ValueRequest{Name: "pressure", Unit: "hPa", Min: 700, Max: 1100}
 	r := newRig(steps)
 	var offered float64
 	r.reply = func(p panel.Prompt) (panel.Response, bool) {

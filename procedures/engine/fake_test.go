@@ -391,8 +391,8 @@ func cfSteps() []Step {
 	return []Step{
 		{ID: "hello", Kind: Announce, Text: "Conversion factor check."},
 		{ID: "safety", Kind: Checklist, Safety: true, Items: safetyItems},
-		{ID: "temp", Kind: Enter, Value: &ValueSpec{Name: "temperature", Unit: "°C", Min: 10, Max: 40}},
-		{ID: "press", Kind: Enter, Value: &ValueSpec{Name: "pressure", Unit: "kPa", Min: 70, Max: 110}},
+		{ID: "temp", Kind: Enter, Value: &ValueRequest{Name: "temperature", Unit: "°C", Min: 10, Max: 40}},
+		{ID: "press", Kind: Enter, Value: &ValueRequest{Name: "pressure", Unit: "kPa", Min: 70, Max: 110}},
 		{ID: "dark", Kind: Measure, Text: "Keep the beam off. Press the switch for the dark reading.", Measure: &MeasureSpec{Meters: []string{Photometer}, Duration: 2 * time.Second}},
 		{ID: "cf@32cm", Kind: Measure, FieldMode: "32cm", Text: "Select the 32 centimetre field. Set 70 kV. Press the switch, then step on the pedal.",
 			Setup:   map[string]string{"field_mode": "32cm", "tube_voltage": "70 kV"},

@@ -59,7 +59,7 @@ func checklistFrom(s *script.Step, st *Step) {
 
 func enterFrom(s *script.Step, st *Step) {
 	if e := s.Enter; e != nil {
-		st.Value = &ValueSpec{Name: e.Name, Unit: e.Unit, Min: e.Min, Max: e.Max, Default: e.Default, HasDef: e.HasDef, Source: string(e.Source)}
+		st.Value = &ValueRequest{Name: e.Name, Unit: e.Unit, Min: e.Min, Max: e.Max, Default: e.Default, HasDefault: e.HasDefault, Source: string(e.Source)}
 	}
 }
 

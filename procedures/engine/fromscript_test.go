@@ -72,7 +72,7 @@ func TestFromFlatEveryKind(t *testing.T) {
 	if s := byID["safety"]; !s.Safety || !reflect.DeepEqual(s.Items, script.StandardSafetyItems) {
 		t.Errorf("safety checklist: safety %v, items %q", s.Safety, s.Items)
 	}
-	if v := byID["kv"].Value; v == nil || *v != (ValueSpec{Name: "tube_voltage", Unit: "kV", Min: 40, Max: 150, Default: 70, HasDef: true, Source: "operator"}) {
+	if v := byID["kv"].Value; v == nil || *v != (ValueRequest{Name: "tube_voltage", Unit: "kV", Min: 40, Max: 150, Default: 70, HasDefault: true, Source: "operator"}) {
 		t.Errorf("enter: %+v", v)
 	}
 	if s := byID["air/temperature"]; s.Value == nil || s.Value.Source != "sensor" || s.Part != "air" || s.PartTitle != "Room temperature and pressure" {

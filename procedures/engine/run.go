@@ -702,7 +702,7 @@ func (e *Engine) enter(ctx context.Context, idx int, s Step, base panel.Prompt) 
 	if done, err := e.enterFromSensor(ctx, idx, s); done || err != nil {
 		return err
 	}
-	req := &panel.ValueRequest{Name: v.Name, Unit: v.Unit, Default: v.Default, HasDef: v.HasDef, Min: v.Min, Max: v.Max}
+	req := &panel.ValueRequest{Name: v.Name, Unit: v.Unit, Default: v.Default, HasDefault: v.HasDefault, Min: v.Min, Max: v.Max}
 	offered := "procedure default"
 	q, qerr := units.QuantityOf(v.Unit)
 	if d, ok := e.cfg.Values[v.Name]; ok {
@@ -712,7 +712,7 @@ func (e *Engine) enter(ctx context.Context, idx int, s Step, base panel.Prompt) 
 				d = x
 			}
 		}
-		req.Default, req.HasDef = d, true
+		req.Default, req.HasDefault = d, true
 		offered = "bench default"
 	}
 	// A value read off the console is confirmed only when someone enters
@@ -732,7 +732,7 @@ func (e *Engine) enter(ctx context.Context, idx int, s Step, base panel.Prompt) 
 		}
 		val := r.Value
 		source := "operator"
-		accepted := !r.Entered && req.HasDef && (val == req.Default || (val == 0 && (req.Min > 0 || req.Max < 0)))
+		accepted := !r.Entered && req.HasDefault && (val == req.Default || (val == 0 && (req.Min > 0 || req.Max < 0)))
 		if accepted {
 			val, source = req.Default, offered // a plain press accepts the default
 		}

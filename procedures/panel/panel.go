@@ -54,11 +54,11 @@ type Message struct {
 // room's temperature and pressure, a lead disk's diameter. A hands-free
 // panel offers Default and takes a press as "accept".
 type ValueRequest struct {
-	Name     string  // "temperature", "pressure", "tube_voltage", ...
-	Unit     string  // the unit the value is asked in
-	Default  float64 // from the bench file or the last session
-	HasDef   bool
-	Min, Max float64 // plausible range; outside is refused
+	Name       string  // "temperature", "pressure", "tube_voltage", ...
+	Unit       string  // the unit the value is asked in
+	Default    float64 // from the bench file or the last session
+	HasDefault bool    // Default is offered
+	Min, Max   float64 // plausible range; outside is refused
 }
 
 // Prompt is a Message that waits for the operator.

@@ -6,7 +6,7 @@ import "kermalux/drivers/units"
 // range and default are converted into the step's unit once it is known.
 func (ps *parse) enterField(s *Step, f field) {
 	if s.Enter == nil {
-		s.Enter = &EnterSpec{Source: FromOperator}
+		s.Enter = &ValueRequest{Source: FromOperator}
 	}
 	e := s.Enter
 	switch f.key {
@@ -33,7 +33,7 @@ func (ps *parse) enterField(s *Step, f field) {
 	case "default":
 		v, unit, ok := ps.number(f, "default")
 		if ok {
-			e.Default, e.HasDef = v, true
+			e.Default, e.HasDefault = v, true
 			e.defUnit = unit
 		}
 	case "source":
@@ -60,7 +60,7 @@ func (ps *parse) enterField(s *Step, f field) {
 }
 
 // convertEntered converts v from unit into the entered value's own unit.
-func (ps *parse) convertEntered(e *EnterSpec, v *float64, unit string, p Pos, what string) {
+func (ps *parse) convertEntered(e *ValueRequest, v *float64, unit string, p Pos, what string) {
 	if unit == e.Unit {
 		return
 	}
@@ -82,7 +82,7 @@ func (ps *parse) convertEntered(e *EnterSpec, v *float64, unit string, p Pos, wh
 // cannot enter a number (the foot switch) every value needs a default, from
 // the script or the bench; otherwise the session would stop at that step,
 // perhaps after many exposures.
-func (x *expander) enterOnBench(s *Step, e *EnterSpec) {
+func (x *expander) enterOnBench(s *Step, e *ValueRequest) {
 	if x.env.Values == nil {
 		return
 	}
@@ -94,7 +94,7 @@ func (x *expander) enterOnBench(s *Step, e *EnterSpec) {
 	switch {
 	case e.Source == FromBench && !onBench:
 		x.errf(pos, "%s comes from the bench file (source: bench), which gives no value for it%s", e.Name, benchKeyHint(e.Name))
-	case x.env.HandsFree && !e.HasDef && !onBench:
+	case x.env.HandsFree && !e.HasDefault && !onBench:
 		x.errf(s.Pos, "%s has no default and the bench's panel is a foot switch, which cannot enter a number: give the step a default, or the bench file a value%s", e.Name, benchKeyHint(e.Name))
 	}
 }
@@ -129,7 +129,7 @@ func enterInstance(x *expander, p *Procedure, s, st *Step, mode string) {
 // its range.
 func enterStatic(x *expander, p *Procedure, s *Step) {
 	e := s.Enter
-	if e != nil && e.HasDef && (e.Default < e.Min || e.Default > e.Max) {
+	if e != nil && e.HasDefault && (e.Default < e.Min || e.Default > e.Max) {
 		x.errf(s.Fields["default"], "default %s %s is outside the range %s to %s", formatNumber(e.Default), e.Unit, formatNumber(e.Min), formatNumber(e.Max))
 	}
 }

@@ -19,7 +19,7 @@ const (
 	// KindSafetyChecklist is the pre-exposure safety checklist: like
 	// KindChecklist, and no beam step may come before one is acknowledged.
 	KindSafetyChecklist Kind = "safety_checklist"
-	// KindEnter asks for a value (see EnterSpec).
+	// KindEnter asks for a value (see ValueRequest).
 	KindEnter Kind = "enter"
 	// KindMeasure takes readings (see MeasureSpec).
 	KindMeasure Kind = "measure"

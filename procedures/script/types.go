@@ -68,7 +68,7 @@ type Step struct {
 	Setup Setup  // bench state wanted (prepare, measure)
 	Items []Item // checklist lines
 
-	Enter   *EnterSpec
+	Enter   *ValueRequest
 	Measure *MeasureSpec
 	Compute *ComputeSpec
 	Judge   *JudgeSpec
@@ -157,15 +157,17 @@ const (
 	FromSensor   Source = "sensor"   // the board's own sensor, confirmed by a press
 )
 
-// EnterSpec asks for a value.
-type EnterSpec struct {
-	Name     string         // value name, referred to as entered.<Name>
-	Quantity units.Quantity // from Unit
-	Unit     string         // the unit it is asked in
-	Min, Max float64        // plausible range, in Unit
-	Default  float64        // in Unit, valid when HasDefault
-	HasDef   bool
-	Source   Source
+// ValueRequest is the value an enter step asks for, as the procedure
+// writes it: its name, unit, plausible range, default and where the default
+// comes from (the engine asks it as an engine.ValueRequest).
+type ValueRequest struct {
+	Name       string         // value name, referred to as entered.<Name>
+	Quantity   units.Quantity // from Unit
+	Unit       string         // the unit it is asked in
+	Min, Max   float64        // plausible range, in Unit
+	Default    float64        // in Unit, valid when HasDefault
+	HasDefault bool
+	Source     Source
 
 	// Units the range and default were written in, converted into Unit
 	// once Unit is known.

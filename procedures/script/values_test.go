@@ -135,7 +135,7 @@ steps:
 		t.Errorf("temperature range = %v to %v %s", e.Min, e.Max, e.Unit)
 	}
 	e = p.Steps[1].Enter
-	if math.Abs(e.Max-101.325) > 1e-3 || math.Abs(e.Default-101.325) > 1e-3 || !e.HasDef {
+	if math.Abs(e.Max-101.325) > 1e-3 || math.Abs(e.Default-101.325) > 1e-3 || !e.HasDefault {
 		t.Errorf("pressure = %v to %v default %v", e.Min, e.Max, e.Default)
 	}
 }

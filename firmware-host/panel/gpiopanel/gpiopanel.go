@@ -203,7 +203,7 @@ func (p *Panel) Ask(ctx context.Context, pr panel.Prompt) (panel.Response, error
 	if p.isClosed() {
 		return panel.Response{}, ErrClosed
 	}
-	if v := pr.Value; v != nil && !v.HasDef {
+	if v := pr.Value; v != nil && !v.HasDefault {
 		return panel.Response{}, fmt.Errorf("%w: %s (%s) at step %s; set it in the bench file or use a terminal panel", ErrNeedsValue, v.Name, v.Unit, pr.StepID)
 	}
 	p.askMu.Lock()

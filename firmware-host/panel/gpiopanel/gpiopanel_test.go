@@ -252,7 +252,7 @@ func TestValuePrompts(t *testing.T) {
 	if !errors.Is(err, ErrNeedsValue) || !strings.Contains(err.Error(), "pressure") {
 		t.Errorf("no default: err = %v, want ErrNeedsValue naming pressure", err)
 	}
-	r, err := p.Ask(ctx, panel.Prompt{Value: &panel.ValueRequest{Name: "pressure", Unit: "kPa", Default: 101.3, HasDef: true, Min: 80, Max: 110}})
+	r, err := p.Ask(ctx, panel.Prompt{Value: &panel.ValueRequest{Name: "pressure", Unit: "kPa", Default: 101.3, HasDefault: true, Min: 80, Max: 110}})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -440,7 +440,7 @@ func TestSaysInTheBenchLanguage(t *testing.T) {
 	sw := &switchPin{startDown: true, changes: []time.Duration{4000 * ms, 4200 * ms, 4300 * ms}}
 	b, p := newBench(t, Config{Ear: speech.NewEar(c)}, sw)
 	_, err = p.Ask(context.Background(), panel.Prompt{Message: panel.Message{Text: "Pression de l'air."},
-		Value: &panel.ValueRequest{Name: "pressure", Unit: "kPa", Default: 101.3, HasDef: true, Min: 80, Max: 110}})
+		Value: &panel.ValueRequest{Name: "pressure", Unit: "kPa", Default: 101.3, HasDefault: true, Min: 80, Max: 110}})
 	if err != nil {
 		t.Fatal(err)
 	}

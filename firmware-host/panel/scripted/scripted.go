@@ -81,7 +81,7 @@ func WithThinkTime(d time.Duration) Option { return func(p *Panel) { p.think = d
 func AckAll(pr panel.Prompt) panel.Response {
 	r := panel.Response{Answer: panel.Ack}
 	if v := pr.Value; v != nil {
-		if v.HasDef {
+		if v.HasDefault {
 			r.Value = v.Default
 		} else {
 			r.Value = (v.Min + v.Max) / 2

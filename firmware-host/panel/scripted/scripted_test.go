@@ -13,7 +13,7 @@ import (
 var t0 = time.Date(2026, 3, 4, 9, 0, 0, 0, time.UTC)
 
 func temperature(def float64) *panel.ValueRequest {
-	return &panel.ValueRequest{Name: "temperature", Unit: "°C", Default: def, HasDef: true, Min: 10, Max: 40}
+	return &panel.ValueRequest{Name: "temperature", Unit: "°C", Default: def, HasDefault: true, Min: 10, Max: 40}
 }
 
 func TestAsk(t *testing.T) {

@@ -52,10 +52,10 @@ func TestBuiltinPromptsByEar(t *testing.T) {
 			case script.KindEnter:
 				e := st.Enter
 				def := e.Default
-				if !e.HasDef {
+				if !e.HasDefault {
 					def = e.Min // a bench file's default, as a foot-switch panel needs one
 				}
-				hear(s.ID, PromptText(panel.Prompt{Message: panel.Message{Text: st.Text}, Value: &panel.ValueRequest{Name: e.Name, Unit: e.Unit, Default: def, HasDef: true}}, true))
+				hear(s.ID, PromptText(panel.Prompt{Message: panel.Message{Text: st.Text}, Value: &panel.ValueRequest{Name: e.Name, Unit: e.Unit, Default: def, HasDefault: true}}, true))
 			case script.KindMeasure:
 				if st.Text != "" {
 					hear(s.ID, PromptText(panel.Prompt{Message: panel.Message{Text: st.Text}}, true))

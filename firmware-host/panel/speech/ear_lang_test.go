@@ -132,7 +132,7 @@ func TestCatalogTextsByEar(t *testing.T) {
 func TestPromptTextOffersInLanguage(t *testing.T) {
 	t.Parallel()
 	pr := panel.Prompt{Message: panel.Message{Text: "Raumtemperatur ablesen. Zum Übernehmen drücken."},
-		Value: &panel.ValueRequest{Name: "temperature", Unit: "°C", Default: 21.5, HasDef: true}}
+		Value: &panel.ValueRequest{Name: "temperature", Unit: "°C", Default: 21.5, HasDefault: true}}
 	want := "Raumtemperatur ablesen. 21 Komma fünf Grad Celsius. Zum Übernehmen drücken."
 	if got := ear(t, "de").PromptText(pr, true); got != want {
 		t.Errorf("German offer\n got %q\nwant %q", got, want)

@@ -69,7 +69,7 @@ func TestListener(t *testing.T) {
 func TestPromptTextOffersOnce(t *testing.T) {
 	t.Parallel()
 	for _, words := range []string{"Air pressure, in kilopascals.", "Air pressure, in kilopascals. Press to accept."} {
-		p := panel.Prompt{Message: panel.Message{Text: words}, Value: &panel.ValueRequest{Name: "pressure", Unit: "kPa", Default: 101.3, HasDef: true}}
+		p := panel.Prompt{Message: panel.Message{Text: words}, Value: &panel.ValueRequest{Name: "pressure", Unit: "kPa", Default: 101.3, HasDefault: true}}
 		want := "Air pressure, in kilopascals. 101.3 kilopascals. Press to accept."
 		if got := PromptText(p, true); got != want {
 			t.Errorf("PromptText(%q)\n got %q\nwant %q", words, got, want)

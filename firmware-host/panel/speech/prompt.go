@@ -21,7 +21,7 @@ func PromptText(pr panel.Prompt, offer bool) string { return (*Ear)(nil).PromptT
 // the cue is never said twice.
 func (e *Ear) PromptText(pr panel.Prompt, offer bool) string {
 	text := pr.Spoken()
-	if v := pr.Value; offer && v != nil && v.HasDef {
+	if v := pr.Value; offer && v != nil && v.HasDefault {
 		cue := e.Text(acceptCue)
 		text = strings.TrimSpace(text)
 		for _, c := range []string{cue, acceptCue} {

@@ -14,7 +14,7 @@ func FuzzParseValue(f *testing.F) {
 	for _, s := range []string{"", "21.5", "21,5", "-0", "1e400", "NaN", "inf", "0x1p4", "١٢", "  7 ", "1_000"} {
 		f.Add(s)
 	}
-	v := &panel.ValueRequest{Name: "temperature", Unit: "°C", Default: 21.5, HasDef: true, Min: 10, Max: 40}
+	v := &panel.ValueRequest{Name: "temperature", Unit: "°C", Default: 21.5, HasDefault: true, Min: 10, Max: 40}
 	f.Fuzz(func(t *testing.T, s string) {
 		x, msg := (&Panel{}).parseValue(strings.TrimSpace(s), v)
 		if msg != "" {

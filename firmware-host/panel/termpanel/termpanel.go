@@ -397,7 +397,7 @@ func (p *Panel) Ask(ctx context.Context, pr panel.Prompt) (panel.Response, error
 		fmt.Fprintf(p.out, "%s%s\n", indent, p.tr(keysLine))
 	default:
 		def := p.tr("no default: type a number")
-		if v.HasDef {
+		if v.HasDefault {
 			def = p.tf("Enter = %s", p.num(v.Default))
 		}
 		fmt.Fprintf(p.out, "%s%s\n", indent, p.tf("%s in %s, %s to %s; %s; a = again, r = retake, p = pause, q = abort",
@@ -459,7 +459,7 @@ func (p *Panel) Ask(ctx context.Context, pr panel.Prompt) (panel.Response, error
 // msg is why it was refused.
 func (p *Panel) parseValue(s string, v *panel.ValueRequest) (x float64, msg string) {
 	if s == "" {
-		if v.HasDef {
+		if v.HasDefault {
 			return v.Default, ""
 		}
 		return 0, p.tf("There is no default for %s: type a number from %s to %s %s.", p.tr(v.Name), p.num(v.Min), p.num(v.Max), v.Unit)

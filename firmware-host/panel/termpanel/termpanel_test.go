@@ -50,7 +50,7 @@ func (v *voiceLog) Say(text string, urgent bool) {
 func (v *voiceLog) Close() error { return nil }
 
 func temperature() *panel.ValueRequest {
-	return &panel.ValueRequest{Name: "temperature", Unit: "°C", Default: 21.5, HasDef: true, Min: 10, Max: 40}
+	return &panel.ValueRequest{Name: "temperature", Unit: "°C", Default: 21.5, HasDefault: true, Min: 10, Max: 40}
 }
 
 // TestDialogue runs a short session through the panel and compares the
