@@ -28,11 +28,11 @@ func TestSimulatedBaselineRefused(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if _, err := b.EngineLimits(); !errors.Is(err, ErrSimulatedBaseline) || !strings.Contains(err.Error(), "demo-results.json") {
+	if _, err := b.EngineSettings(); !errors.Is(err, ErrSimulatedBaseline) || !strings.Contains(err.Error(), "demo-results.json") {
 		t.Errorf("real bench with a simulated baseline: %v", err)
 	}
 	b.Simulated = true
-	l, err := b.EngineLimits()
+	l, err := b.EngineSettings()
 	if err != nil || l.Baseline["conversion_factor@32cm"] != 152 {
 		t.Errorf("simulated bench: %v, %v", err, l.Baseline)
 	}

@@ -17,7 +17,7 @@ func TestLoadExamples(t *testing.T) {
 		if len(b.SHA256) != 64 || len(b.Meters) != 2 || len(b.Intensifier.FieldModes) != 3 {
 			t.Errorf("%s: %+v", f, b)
 		}
-		if _, err := b.EngineLimits(); err != nil {
+		if _, err := b.EngineSettings(); err != nil {
 			t.Errorf("%s: limits: %v", f, err)
 		}
 	}
@@ -28,7 +28,7 @@ func TestRoom2Settings(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	l, err := b.EngineLimits()
+	l, err := b.EngineSettings()
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -165,7 +165,7 @@ func TestLegacyScalingLimitName(t *testing.T) {
 	b := &Bench{Path: "legacy.yaml"}
 	b.Limits.Action = map[string]float64{"kerma_mode_scaling_max": 4}
 	b.Intensifier.Spec = map[string]float64{"kerma_mode_scaling_max@17cm": 3}
-	l, err := b.EngineLimits()
+	l, err := b.EngineSettings()
 	if err != nil {
 		t.Fatal(err)
 	}

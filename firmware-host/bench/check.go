@@ -214,7 +214,7 @@ func (b *Bench) check(c *checker) error {
 // this bench (and journals): local limits set less safe than the defaults.
 func (b *Bench) Warnings() []string {
 	var out []string
-	def := engine.DefaultLimits().KermaCeiling
+	def := engine.DefaultSettings().KermaCeiling
 	if k := b.Limits.KermaCeiling; k > def {
 		out = append(out, fmt.Sprintf("Caution: the kerma rate ceiling is set to %s micrograys per second, above the default of %s. Check the bench file with your physicist.",
 			strconv.FormatFloat(k, 'g', 4, 64), strconv.FormatFloat(def, 'g', 4, 64)))

@@ -27,12 +27,12 @@ var legacyQuantities = map[string]string{"kerma_mode_scaling": calib.QKermaScali
 // figures are the simulator's.
 var ErrSimulatedBaseline = errors.New("the results of a simulated session (the demo) are not measurements and cannot be the baseline of a real intensifier; use the results.json of a real session")
 
-// EngineLimits turns the bench's specification, action levels and baseline
-// into the engine's limits (defaults for what the bench leaves out).
-func (b *Bench) EngineLimits() (engine.Limits, error) {
-	l := engine.DefaultLimits()
-	l.Spec, l.Action, l.Inputs = map[string]engine.Limit{}, map[string]engine.Limit{}, map[string]float64{}
-	put := func(m map[string]engine.Limit, prefix string, kv map[string]float64) error {
+// EngineSettings turns the bench's specification, action levels and baseline
+// into the engine's settings (defaults for what the bench leaves out).
+func (b *Bench) EngineSettings() (engine.Settings, error) {
+	l := engine.DefaultSettings()
+	l.Spec, l.Action, l.Inputs = map[string]engine.Range{}, map[string]engine.Range{}, map[string]float64{}
+	put := func(m map[string]engine.Range, prefix string, kv map[string]float64) error {
 		for k, v := range kv {
 			l.Inputs[prefix+"."+k] = v
 			name, mode, _ := strings.Cut(k, "@")
@@ -189,7 +189,7 @@ func isScriptPath(name string) bool {
 // The meters, panel, journal and clock are opened by the caller.
 func (b *Bench) Config(proc engine.Procedure, meters map[string]drivers.Meter, pan panel.Panel, j engine.Journal, clk clock.Clock, version string) (engine.Config, error) {
 	day := clk.Now()
-	lim, err := b.EngineLimits()
+	lim, err := b.EngineSettings()
 	if err != nil {
 		return engine.Config{}, err
 	}
@@ -205,7 +205,7 @@ func (b *Bench) Config(proc engine.Procedure, meters map[string]drivers.Meter, p
 			IntensifierSerial: b.Intensifier.Serial, Engineer: b.Engineer, Procedure: proc.Name,
 			ProcedureHash: proc.Hash, BenchHash: b.SHA256, SoftwareVersion: version, Started: day, Certificates: refs,
 			Simulated: b.Simulated, TestType: b.TestType, Language: b.sessionLanguage(), XRay: b.xray(), Geometry: b.geometryRecord()},
-		Values: b.Values(), CertProblems: problems, Warnings: append(b.Warnings(), airProblems...), Limits: lim, BootID: BootID(), FieldModes: b.modeDiameters(),
+		Values: b.Values(), CertProblems: problems, Warnings: append(b.Warnings(), airProblems...), Settings: lim, BootID: BootID(), FieldModes: b.modeDiameters(),
 		RoomAir: air, Messages: b.engineMessages(),
 	}, nil
 }

@@ -88,7 +88,7 @@ func NewServer(hub *Hub, j *Journal, o Options) (*Server, error) {
 	if o.MaxFailures <= 0 {
 		o.MaxFailures = 10
 	}
-	d := engine.DefaultLimits()
+	d := engine.DefaultSettings()
 	if o.BeamWarn <= 0 {
 		o.BeamWarn = d.BeamWarn
 	}

@@ -130,7 +130,7 @@ func runBuiltinOnSimulatorWith(t *testing.T, scenario, name string, values map[s
 			Dosimeter:  &simMeter{role: Dosimeter, m: model, clk: clk, period: 100 * time.Millisecond},
 			Photometer: &simMeter{role: Photometer, m: model, clk: clk, period: 100 * time.Millisecond, phase: 50 * time.Millisecond},
 		},
-		Panel: pan, Journal: jr, Clock: clk, Limits: DefaultLimits(), FieldModes: modes, ReadInTurn: true,
+		Panel: pan, Journal: jr, Clock: clk, Settings: DefaultSettings(), FieldModes: modes, ReadInTurn: true,
 		Values: values,
 	}
 	e, err := New(cfg)

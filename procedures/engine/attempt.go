@@ -76,7 +76,7 @@ type track struct {
 // the input, tenths of a cd/m² behind a lead disk), far above rounding.
 func (e *Engine) minFloor(role string) float64 {
 	if role == Dosimeter {
-		return e.cfg.Limits.BeamFloor
+		return e.cfg.Settings.BeamFloor
 	}
 	return 1e-3 // cd/m²
 }
@@ -91,7 +91,7 @@ func (e *Engine) minFloor(role string) float64 {
 func (e *Engine) newTrack(role string, dark []float64, step float64) *track {
 	m, sd := meanSD(dark)
 	t := &track{role: role, dark: m, noise: sd, step: step}
-	t.thresh = m + max(e.cfg.Limits.BeamSigmas*sd, 3*step, 0.5*math.Abs(m), e.minFloor(role))
+	t.thresh = m + max(e.cfg.Settings.BeamSigmas*sd, 3*step, 0.5*math.Abs(m), e.minFloor(role))
 	return t
 }
 
@@ -592,7 +592,7 @@ func (e *Engine) target(a *attempt) float64 {
 	if a.spec.Target > 0 {
 		return a.spec.Target
 	}
-	return e.cfg.Limits.Target
+	return e.cfg.Settings.Target
 }
 
 // minSamples is the smallest number of readings of each meter the
@@ -638,7 +638,7 @@ func covered(xs []timedValue) time.Duration {
 // (settledSeries).
 func (e *Engine) isSettled(a *attempt) bool {
 	tol := e.settleTol(a)
-	minN := max(e.cfg.Limits.MinPairs, 5)
+	minN := max(e.cfg.Settings.MinPairs, 5)
 	for _, role := range a.spec.Meters {
 		if !settledSeries(a.series[role], tol, minN) {
 			return false

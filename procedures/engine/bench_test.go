@@ -131,7 +131,7 @@ func benchBeamOn(b *testing.B, rise time.Duration) {
 				Dosimeter:  &simMeter{role: Dosimeter, m: model, clk: clk, period: period},
 				Photometer: &simMeter{role: Photometer, m: model, clk: clk, period: period, phase: period / 2},
 			},
-			Panel: pan, Journal: jr, Clock: clk, Limits: DefaultLimits(), ReadInTurn: true,
+			Panel: pan, Journal: jr, Clock: clk, Settings: DefaultSettings(), ReadInTurn: true,
 		}
 		e, err := New(cfg)
 		if err != nil {

@@ -118,7 +118,7 @@ func measured(p positionStats, lum bool) calib.Measured {
 // approach or drift the readings do not rule out, zero for a settled beam.
 func (e *Engine) settledMeasure(p positionStats, lum bool) calib.Measured {
 	m := measured(p, lum)
-	l := e.cfg.Limits
+	l := e.cfg.Settings
 	a := l.SettleSlope * l.SettleWindow.Seconds() / 2
 	if p.Settle != nil {
 		a = p.Settle[roleOf(lum)]
@@ -313,7 +313,7 @@ func (e *Engine) compute(ctx context.Context, idx int, s Step) error {
 		r.Budget = append(r.Budget, entry.BudgetRow{Source: b.Source, Type: b.Type, Value: b.Value, Unit: b.Unit, StdUnc: b.StdUnc, RelStdUnc: b.RelStdUnc, Sensitivity: b.Sensitivity, Contribution: b.Contribution, DoF: b.DoF})
 	}
 	key := limitKey(r.Quantity, s.FieldMode)
-	if b, ok := e.cfg.Limits.Baseline[key]; ok && b != 0 {
+	if b, ok := e.cfg.Settings.Baseline[key]; ok && b != 0 {
 		r.Baseline = b
 		r.BaselineFrac = r.Value / b
 	}
@@ -395,9 +395,9 @@ func higherIsBetter(q string) bool {
 
 // benchLimits are the bench file's limits for a quantity.
 func (e *Engine) benchLimits(q, mode string) []calib.Limit {
-	l := e.cfg.Limits
+	l := e.cfg.Settings
 	var out []calib.Limit
-	add := func(kind string, m map[string]Limit) {
+	add := func(kind string, m map[string]Range) {
 		lim, ok := m[limitKey(q, mode)]
 		if !ok {
 			lim, ok = m[q]
@@ -461,9 +461,9 @@ func (e *Engine) judge(ctx context.Context, idx int, s Step) error {
 		if jl.Ref != "" {
 			// A value for this field mode ("spec.conversion_factor_min@17cm")
 			// takes precedence over the one for all modes.
-			x, ok := e.cfg.Limits.Inputs[jl.Ref+"@"+r.FieldMode]
+			x, ok := e.cfg.Settings.Inputs[jl.Ref+"@"+r.FieldMode]
 			if !ok || r.FieldMode == "" {
-				x, ok = e.cfg.Limits.Inputs[jl.Ref]
+				x, ok = e.cfg.Settings.Inputs[jl.Ref]
 			}
 			if !ok {
 				r.Flags = appendUnique(r.Flags, "limit "+jl.Ref+" not given in the bench file: not checked")

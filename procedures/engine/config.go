@@ -114,8 +114,8 @@ type MeasureSpec struct {
 	Beam      bool     // false: a dark (beam-off) reading
 	Quality   string   // beam quality, e.g. RQA5
 	Positions []Position
-	Target    float64       // relative expanded uncertainty to reach (0.02 = 2 %); 0: Limits.Target
-	MaxBeamOn time.Duration // per position; 0: Limits.MaxBeamOn
+	Target    float64       // relative expanded uncertainty to reach (0.02 = 2 %); 0: Settings.Target
+	MaxBeamOn time.Duration // per position; 0: Settings.MaxBeamOn
 	// MinBeamOn is what each position keeps in reserve in its pools
 	// (0: MaxBeamOn, the whole of it).
 	MinBeamOn time.Duration
@@ -218,20 +218,25 @@ type Corrector interface {
 	Correct(r drivers.Reading, c Conditions) Corrected
 }
 
-// Limit is an acceptance limit on a figure of merit.
-type Limit struct {
+// Range is the acceptance range of a figure of merit from the bench: a
+// specification or an action level, a minimum, a maximum or both (the
+// engine turns each bound into a calib.Limit to judge).
+type Range struct {
 	Min, Max       float64
 	HasMin, HasMax bool
 }
 
-// Limits are the judgement and safety settings.
-type Limits struct {
+// Settings are the engine's settings: what results are judged against
+// (specification, action levels, baseline), the safety bounds (beam-on
+// time, kerma ceiling) and how readings are taken (beam detection,
+// settling, stopping rule, retries, reconnection).
+type Settings struct {
 	// Spec is the intensifier's specification per quantity, optionally per
 	// field mode: key "conversion_factor" or "conversion_factor@32cm". It
 	// judges results that no judge step judges.
-	Spec map[string]Limit
+	Spec map[string]Range
 	// Action are local action levels, keyed like Spec.
-	Action map[string]Limit
+	Action map[string]Range
 	// Baseline values keyed like Spec (from an earlier results.json).
 	Baseline map[string]float64
 	// BaselineFraction: a result below this fraction of its baseline fails (e.g. 0.8).
@@ -280,9 +285,9 @@ type Limits struct {
 	RecheckAfter time.Duration
 }
 
-// DefaultLimits returns the settings used where a bench file says nothing.
-func DefaultLimits() Limits {
-	return Limits{
+// DefaultSettings returns the settings used where a bench file says nothing.
+func DefaultSettings() Settings {
+	return Settings{
 		BaselineFraction: 0.8,
 		KermaCeiling:     50,
 		BeamWarn:         270 * time.Second,
@@ -327,7 +332,7 @@ type Config struct {
 	// resumed or not: local settings less safe than the defaults, such as
 	// a kerma ceiling above 50 µGy/s.
 	Warnings []string
-	Limits   Limits
+	Settings Settings
 	BootID   string
 	// ReadInTurn is accepted for compatibility; meters are always read
 	// in turn in the engine's goroutine.
@@ -354,9 +359,9 @@ type Summary struct {
 	Skipped []string
 }
 
-// fillLimits puts the defaults into every zero setting.
-func fillLimits(l *Limits) {
-	d := DefaultLimits()
+// fillSettings puts the defaults into every zero setting.
+func fillSettings(l *Settings) {
+	d := DefaultSettings()
 	setF := func(v *float64, def float64) {
 		if *v == 0 {
 			*v = def

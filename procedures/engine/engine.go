@@ -70,14 +70,14 @@ func New(cfg Config) (*Engine, error) {
 			}
 		}
 	}
-	fillLimits(&cfg.Limits)
+	fillSettings(&cfg.Settings)
 	steps := make([]Step, len(cfg.Procedure.Steps))
 	copy(steps, cfg.Procedure.Steps)
 	for i := range steps {
 		steps[i].FieldMode = resolveMode(cfg.FieldModes, steps[i].FieldMode)
 	}
 	cfg.Procedure.Steps = steps
-	return &Engine{cfg: cfg, prog: newProgress(cfg.Procedure, cfg.Limits)}, nil
+	return &Engine{cfg: cfg, prog: newProgress(cfg.Procedure, cfg.Settings)}, nil
 }
 
 // Run walks the procedure until it is done, aborted, paused or stopped

@@ -363,10 +363,10 @@ func newRig(steps []Step) *rig {
 		Procedure: Procedure{Name: "test", Title: "test sequence", Hash: "abc", Steps: steps},
 		Meters:    map[string]drivers.Meter{Dosimeter: r.dos, Photometer: r.phot},
 		Panel:     r.pan, Journal: r.jr, Clock: clk,
-		Session: entry.Session{Site: "Tollemby Rise Clinic", Room: "room 2", IntensifierSerial: "HV-2291"},
-		Values:  map[string]float64{"temperature": 22, "pressure": 101.3},
-		Limits:  DefaultLimits(),
-		BootID:  "boot-1", ReadInTurn: true,
+		Session:  entry.Session{Site: "Tollemby Rise Clinic", Room: "room 2", IntensifierSerial: "HV-2291"},
+		Values:   map[string]float64{"temperature": 22, "pressure": 101.3},
+		Settings: DefaultSettings(),
+		BootID:   "boot-1", ReadInTurn: true,
 	}
 	return r
 }

@@ -60,8 +60,8 @@ func TestIntegrityAtTheEdges(t *testing.T) {
 						retakes++
 					}
 				}
-				if retakes != DefaultLimits().Retries {
-					t.Errorf("%d retakes, want %d", retakes, DefaultLimits().Retries)
+				if retakes != DefaultSettings().Retries {
+					t.Errorf("%d retakes, want %d", retakes, DefaultSettings().Retries)
 				}
 				if n := releases(r); n < retakes {
 					t.Errorf("'Release the beam' said %d times for %d failed attempts", n, retakes)
@@ -323,7 +323,7 @@ func TestTypeATargetFromBench(t *testing.T) {
 	for _, target := range []float64{0.02, 0.005} {
 		r := newRig(cfSteps())
 		r.cfg.Procedure.Steps[5].Measure.Target = 0 // the bench's
-		r.cfg.Limits.Target = target
+		r.cfg.Settings.Target = target
 		sum, err := r.run(context.Background())
 		if err != nil {
 			t.Fatal(err)

@@ -124,7 +124,7 @@ func (e *Engine) measure(ctx context.Context, idx int, s Step) error {
 }
 
 func (e *Engine) measurePosition(ctx context.Context, idx int, s Step, pi int, pos Position, npos int) error {
-	l := e.cfg.Limits
+	l := e.cfg.Settings
 	m := s.Measure
 	maxOn := m.MaxBeamOn
 	if maxOn == 0 {
@@ -242,7 +242,7 @@ func (e *Engine) poolLeft(pl BeamPool, idx, pi int, used time.Duration) time.Dur
 					spent += time.Duration(e.st.meas[st.ID][k].UsedS * float64(time.Second))
 				}
 			case j > cur || (j == cur && k > pi):
-				reserve += st.Measure.reserve(e.cfg.Limits) + script.ReleaseTime
+				reserve += st.Measure.reserve(e.cfg.Settings) + script.ReleaseTime
 			}
 		}
 	}
@@ -251,7 +251,7 @@ func (e *Engine) poolLeft(pl BeamPool, idx, pi int, used time.Duration) time.Dur
 
 // reserve is what one position of the step keeps in its pools, its
 // release not counted: MinBeamOn, else its whole limit.
-func (m *MeasureSpec) reserve(l Limits) time.Duration {
+func (m *MeasureSpec) reserve(l Settings) time.Duration {
 	switch {
 	case m.MinBeamOn > 0:
 		return m.MinBeamOn
@@ -324,7 +324,7 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (positionStats, err
 	if !a.spec.Beam {
 		return e.darkAttempt(ctx, a)
 	}
-	l := e.cfg.Limits
+	l := e.cfg.Settings
 	e.freshen(a)
 	// Each meter's dark level and noise, for its beam threshold, before
 	// the prompt.
@@ -393,7 +393,7 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (positionStats, err
 				// The five-minute alarm while sampling: what was taken is
 				// kept when it is enough for a result (flagged), rather
 				// than thrown away and taken again with more beam.
-				if st, _ := e.precise(a); st.enough(e.cfg.Limits.MinPairs) {
+				if st, _ := e.precise(a); st.enough(e.cfg.Settings.MinPairs) {
 					stat, alarmed = st, true
 					short = "stopped by the five-minute beam-on alarm before the precision target"
 					break
@@ -462,7 +462,7 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (positionStats, err
 			}
 		}
 		if !done && onFor >= a.allowed {
-			if a.phase == phSampling && stat.enough(e.cfg.Limits.MinPairs) {
+			if a.phase == phSampling && stat.enough(e.cfg.Settings.MinPairs) {
 				short = "precision target not reached in the maximum beam-on time"
 				break
 			}
@@ -579,7 +579,7 @@ func after(xs []timedValue, t time.Duration) []timedValue {
 // meters' calibration cannot be reduced by sampling longer, and enters U
 // in the figure's budget (ENGINE.md, "Stopping rule").
 func (e *Engine) precise(a *attempt) (positionStats, bool) {
-	l := e.cfg.Limits
+	l := e.cfg.Settings
 	target := e.target(a)
 	p := positionStats{Step: a.step.ID, Index: a.posIdx, Label: a.label, R: a.pos.R, Angle: a.pos.Angle, Mode: a.step.FieldMode, Calib: a.calib, Flags: slices.Clone(a.flags)}
 	// Each meter of the step, by role: its mean and the type A of the
@@ -661,7 +661,7 @@ func (p positionStats) ratio() bool {
 // darkAttempt takes a beam-off reading for a fixed time (dark level,
 // stability).
 func (e *Engine) darkAttempt(ctx context.Context, a *attempt) (positionStats, error) {
-	l := e.cfg.Limits
+	l := e.cfg.Settings
 	d := a.spec.Duration
 	if d == 0 {
 		d = l.DarkTime
@@ -991,7 +991,7 @@ func samePart(steps []Step, i, j int) bool {
 // guard applies the safety stop and the status checks to a reading.
 func (e *Engine) guard(ctx context.Context, a *attempt, role string, r drivers.Reading, c Corrected) error {
 	if role == Dosimeter {
-		ceil := e.cfg.Limits.KermaCeiling
+		ceil := e.cfg.Settings.KermaCeiling
 		for _, x := range a.spec.Expect {
 			if (x.Quantity == string(units.AirKermaRate)) && x.Max > 0 && x.Max < ceil {
 				ceil = x.Max
@@ -1135,7 +1135,7 @@ const beamCheckpoint = time.Second
 // the time every SpeakEvery, a warning at BeamWarn and the alarm every
 // BeamAlarm of cumulative beam-on (21 CFR 1020.32(h)).
 func (e *Engine) tick(ctx context.Context, a *attempt, t time.Duration) error {
-	l := e.cfg.Limits
+	l := e.cfg.Settings
 	st := e.st
 	// Readings of two meters arrive out of order (a streaming meter's
 	// backlog is read after a polled meter's answer): the timer and the
@@ -1247,7 +1247,7 @@ func (e *Engine) releaseAfter(ctx context.Context, a *attempt, lv panel.Level) e
 
 // waitMeter says a meter is lost and waits for it to come back.
 func (e *Engine) waitMeter(ctx context.Context, a *attempt, lost *lostError) error {
-	l := e.cfg.Limits
+	l := e.cfg.Settings
 	name := roleName(lost.role)
 	_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: a.idx, Name: evMeterLost, Detail: lost.err.Error(), BeamOn: e.st.beamOn.Seconds()})
 	text := name + " lost. Check its cable."
@@ -1310,7 +1310,7 @@ func (e *Engine) waitOff(ctx context.Context, a *attempt, lv panel.Level, text s
 	if a.beamOn && (a.tracks == nil || !a.anyAbove()) {
 		a.tracks = map[string]*track{}
 		if slices.Contains(a.roles, Dosimeter) {
-			a.tracks[Dosimeter] = &track{role: Dosimeter, thresh: 5 * e.cfg.Limits.BeamFloor, risen: true, above: true}
+			a.tracks[Dosimeter] = &track{role: Dosimeter, thresh: 5 * e.cfg.Settings.BeamFloor, risen: true, above: true}
 		} else {
 			a.beamOn = false
 		}

@@ -28,7 +28,7 @@ func isTask(k StepKind) bool {
 	return k == Instruct || k == Checklist || k == Enter || k == Measure
 }
 
-func newProgress(p Procedure, l Limits) progress {
+func newProgress(p Procedure, l Settings) progress {
 	n := len(p.Steps)
 	pr := progress{task: make([]int, n), part: make([]int, n), expo: make([]int, n), effort: make([]time.Duration, n)}
 	bench := script.Bench{}
@@ -52,7 +52,7 @@ func newProgress(p Procedure, l Limits) progress {
 
 // stepEffort estimates the exposures a step takes and the engineer's time
 // it needs, with the bench as the earlier prompts left it.
-func stepEffort(s Step, bench script.Bench, l Limits) (int, time.Duration) {
+func stepEffort(s Step, bench script.Bench, l Settings) (int, time.Duration) {
 	say := script.SpeakingTime(s.Text)
 	switch s.Kind {
 	case Announce:

@@ -142,7 +142,7 @@ func ParseResults(name string, b []byte) (ResultsFile, error) {
 	return rf, nil
 }
 
-// Baselines turns earlier results into Limits.Baseline keys
+// Baselines turns earlier results into Settings.Baseline keys
 // ("conversion_factor@32cm", and "conversion_factor" for results without a mode).
 func Baselines(rf ResultsFile) map[string]float64 {
 	m := map[string]float64{}

@@ -64,7 +64,7 @@ func (e *Engine) run(ctx context.Context) (Summary, error) {
 			return sum, err
 		}
 	} else {
-		st = newState(cfg.Limits)
+		st = newState(cfg.Settings)
 		sess := cfg.Session
 		if sess.Procedure == "" {
 			sess.Procedure = cfg.Procedure.Name

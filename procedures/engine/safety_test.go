@@ -21,7 +21,7 @@ func TestFiveMinuteAlarmAndWarning(t *testing.T) {
 	// holding the beam for its 100 s maximum: 400 s of beam in all.
 	steps := longReadings(4, 100*time.Second)
 	r := newRig(steps)
-	r.cfg.Limits.SettleMax = 200 * time.Second
+	r.cfg.Settings.SettleMax = 200 * time.Second
 	resetAsked := false
 	r.reply = func(p panel.Prompt) (panel.Response, bool) {
 		if strings.Contains(p.Text, "reset the beam-on alarm") {
@@ -227,7 +227,7 @@ func TestRebuildRefusesUnreadableRecords(t *testing.T) {
 func TestAlarmKeepsTheReadingTaken(t *testing.T) {
 	steps := longReadings(4, 80*time.Second)
 	r := newRig(steps)
-	r.cfg.Limits.SettleMax = 200 * time.Second
+	r.cfg.Settings.SettleMax = 200 * time.Second
 	sum, err := r.run(context.Background())
 	if err != nil {
 		t.Fatal(err)

@@ -131,7 +131,7 @@ type state struct {
 	resumed   bool
 }
 
-func newState(l Limits) *state {
+func newState(l Settings) *state {
 	return &state{
 		done: map[int]bool{}, values: map[string]float64{}, origins: map[string]valueOrigin{}, meas: map[string][]positionStats{},
 		results: map[string]entry.Result{}, darks: map[string]DarkLevel{},
@@ -140,7 +140,7 @@ func newState(l Limits) *state {
 }
 
 // setBeamOn sets the cumulative beam-on time and the next timer marks.
-func (st *state) setBeamOn(d time.Duration, l Limits) {
+func (st *state) setBeamOn(d time.Duration, l Settings) {
 	st.beamOn = d
 	st.nextSpeak = (d/l.SpeakEvery + 1) * l.SpeakEvery
 	st.nextAlarm = (d/l.BeamAlarm + 1) * l.BeamAlarm
@@ -178,7 +178,7 @@ func (e *Engine) rebuild(ctx context.Context, id string) (*state, resumeInfo, er
 	if len(envs) == 0 {
 		return nil, info, fmt.Errorf("resume session %s: the journal has no records of it", id)
 	}
-	st := newState(e.cfg.Limits)
+	st := newState(e.cfg.Settings)
 	st.session = id
 	st.resumed = true
 	steps := e.cfg.Procedure.Steps
@@ -343,14 +343,14 @@ func (e *Engine) rebuild(ctx context.Context, id string) (*state, resumeInfo, er
 	st.checklist = len(safeDone) > 0
 	last := envs[len(envs)-1]
 	info.lastBoot, info.lastWall = last.BootID, last.Wall
-	st.setBeamOn(time.Duration(beam*float64(time.Second)), e.cfg.Limits)
+	st.setBeamOn(time.Duration(beam*float64(time.Second)), e.cfg.Settings)
 	return st, info, nil
 }
 
 // recheckReason says why a resumed session must confirm its pre-exposure
 // checklist again ("" if it need not): the board booted since the
 // session's last record (a power cut), or the session was idle longer
-// than Limits.RecheckAfter. An unknown boot id on either side decides
+// than Settings.RecheckAfter. An unknown boot id on either side decides
 // nothing; the idle time still does.
 func (e *Engine) recheckReason(info resumeInfo) string {
 	now := e.cfg.BootID
@@ -358,7 +358,7 @@ func (e *Engine) recheckReason(info resumeInfo) string {
 		return "the board was restarted"
 	}
 	if !info.lastWall.IsZero() {
-		if idle := e.cfg.Clock.Now().Sub(info.lastWall); idle > e.cfg.Limits.RecheckAfter {
+		if idle := e.cfg.Clock.Now().Sub(info.lastWall); idle > e.cfg.Settings.RecheckAfter {
 			return fmt.Sprintf("the session was idle for %s", spokenDuration(idle))
 		}
 	}

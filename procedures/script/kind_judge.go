@@ -34,7 +34,7 @@ func (ps *parse) judgeField(s *Step, f field) {
 			if t == "" {
 				continue
 			}
-			l := Limit{Kind: k, Pos: g.vpos}
+			l := JudgeLimit{Kind: k, Pos: g.vpos}
 			if isRef(t) {
 				l.Ref = t
 			} else {
@@ -116,7 +116,7 @@ func (x *expander) judge(at place) {
 		}
 		l.Value, l.Unit = v, unit
 	}
-	lim := map[LimitKind]Limit{}
+	lim := map[LimitKind]JudgeLimit{}
 	for _, l := range j.Limits {
 		lim[l.Kind] = l
 	}
@@ -134,7 +134,7 @@ func (x *expander) judge(at place) {
 func judgeInstance(x *expander, p *Procedure, s, st *Step, mode string) {
 	if s.Judge != nil {
 		j := *s.Judge
-		j.Limits = append([]Limit(nil), s.Judge.Limits...)
+		j.Limits = append([]JudgeLimit(nil), s.Judge.Limits...)
 		st.Judge = &j
 	}
 }

@@ -297,10 +297,10 @@ const (
 	ActionMax   LimitKind = "action_max"   // action level: result ≤ value
 )
 
-// Limit is one limit of a judge step: either a number (Value, already
+// JudgeLimit is one limit of a judge step: either a number (Value, already
 // converted from Unit: "90 %" is 0.9) or a reference to a session input
 // such as "spec.conversion_factor_min" (Ref set, Value unused).
-type Limit struct {
+type JudgeLimit struct {
 	Kind  LimitKind
 	Value float64
 	Unit  string
@@ -313,7 +313,7 @@ type JudgeSpec struct {
 	Result string // id of the compute step
 	// Resolved is the flattened id of the compute step; set by Flatten.
 	Resolved string
-	Limits   []Limit
+	Limits   []JudgeLimit
 }
 
 // RepeatSpec repeats Steps once per field mode, substituting {mode} in

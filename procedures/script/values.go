@@ -284,7 +284,7 @@ func conversionFactorUnit(u string) (float64, error) {
 
 // limitValue converts a numeric limit into the canonical unit of fig's
 // value; baseline limits are fractions.
-func limitValue(fig Figure, quantity units.Quantity, l Limit) (float64, string, error) {
+func limitValue(fig Figure, quantity units.Quantity, l JudgeLimit) (float64, string, error) {
 	if l.Kind == BaselineMin || l.Kind == BaselineMax {
 		v, err := units.ToCanonical(units.Ratio, l.Value, l.Unit)
 		if err != nil {
