@@ -3,6 +3,8 @@ package demo
 import (
 	"bytes"
 	"context"
+	"html"
+	"regexp"
 	"strings"
 	"testing"
 	"time"
@@ -47,6 +49,25 @@ func TestSeededReportInSessionLanguage(t *testing.T) {
 	for _, want := range []string{`<html lang="de">`, "<h2>Ergebnisse</h2>", "<h2>Messunsicherheitsbudgets</h2>", "<h2>Sicherheitshinweise</h2>", "Röntgenstrahlung ist gefährlich."} {
 		if !strings.Contains(deHTML, want) {
 			t.Errorf("the German session's report lacks %q", want)
+		}
+	}
+	// What the English report says in English that once stayed English in
+	// the German one: the result flags and the review list the engine's
+	// texts make, the entered values' sources, the limits, the budgets'
+	// components, the set-up, the events and the readings' groups.
+	visible := func(page string) string {
+		page = regexp.MustCompile(`(?s)<(style|script|svg)\b.*?</(style|script|svg)>`).ReplaceAllString(page, " ")
+		page = regexp.MustCompile(`(?s)<[^>]*>`).ReplaceAllString(page, "")
+		return strings.Join(strings.Fields(html.UnescapeString(page)), " ")
+	}
+	enText, deText := visible(enHTML), visible(deHTML)
+	for _, english := range []string{"ositions without their own dark reading", "not read off", "at steps", "no baseline: baseline limit not checked",
+		"specification at most", "action level at", "baseline rule", "repeatability", "display resolution", "with k =", "Focal spot",
+		"added filter", "as set at step", "Attempt phase", "not ok", "readings in", "Simulated session:", "procedure “", ", serial "} {
+		if !strings.Contains(enText, english) {
+			t.Errorf("the English report lacks %q (the check below could not fail)", english)
+		} else if strings.Contains(deText, english) {
+			t.Errorf("the German report still says %q", english)
 		}
 	}
 	if len(en.Results) == 0 || len(en.Results) != len(de.Results) {

@@ -217,8 +217,8 @@ func TestTranslateWhole(t *testing.T) {
 		src, want string
 		ok        bool
 	}{
-		{"Conversion factor, 32cm field", "Konversionsfaktor, Feld 32cm", true}, // a name as a value
-		{"CR = L_open / L_disk at the centre, lead disk at the centre of the input field", "", false},
+		{"Conversion factor, 32cm field", "Konversionsfaktor, Feld 32cm", true},                 // a name as a value
+		{"XY = L_one / L_two at the edge, lead ring at the edge of the input field", "", false}, // an invented text no catalog has
 		{"not measurable: the reading did not settle within its beam-on limit", "nicht messbar: der Messwert hat sich innerhalb seiner Strahlzeitgrenze nicht stabilisiert", true},
 		{"not measurable: the meter was dropped on the floor", "", false},
 	} {

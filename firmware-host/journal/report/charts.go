@@ -217,7 +217,7 @@ func mapSpec(m LuminanceMap, tr func(string) string) (chartSpec, error) {
 		if m.Centre > 0 {
 			labels = append(labels, fmt.Sprintf("%.0f %%", 100*q.Fraction))
 		} else {
-			labels = append(labels, Number(q.Mean))
+			labels = append(labels, tr(Number(q.Mean)))
 		}
 	}
 	if len(pts) == 0 {
@@ -456,15 +456,23 @@ func (yearTicks) Ticks(min, max float64) []plot.Tick {
 	return ts
 }
 
-func trendSpec(t Trend) (chartSpec, error) {
+// trendSpec draws one intensifier's history of a quantity: the sessions
+// with their U, the least-squares line and its band, and each configured
+// limit with its projected date, the legend in the language tr translates
+// into (nil: English).
+func trendSpec(t Trend, tr func(string) string) (chartSpec, error) {
+	if tr == nil {
+		tr = func(s string) string { return s }
+	}
 	if len(t.Points) == 0 {
 		return chartSpec{}, fmt.Errorf("trend chart: no sessions")
 	}
-	title := quantityWords(t.Quantity) + " of " + t.Serial
+	q := tr(quantityWords(t.Quantity))
+	title := fmt.Sprintf(tr("%s of %s"), q, t.Serial)
 	if t.FieldMode != "" {
-		title += ", " + t.FieldMode + " field"
+		title = fmt.Sprintf(tr("%s, %s field"), title, t.FieldMode)
 	}
-	p := newPlot(title, "year", quantityWords(t.Quantity)+" ("+unitText(t.Unit)+")")
+	p := newPlot(title, "year", q+" ("+tr(unitText(t.Unit))+")")
 	p.Add(plotter.NewGrid())
 	p.X.Tick.Marker = yearTicks{}
 	pts := make(plotter.XYs, len(t.Points))
@@ -506,7 +514,7 @@ func trendSpec(t Trend) (chartSpec, error) {
 		}
 		fit.Color, fit.Width, fit.Dashes = fitColor, vg.Points(1.2), []vg.Length{vg.Points(5), vg.Points(3)}
 		p.Add(fit)
-		p.Legend.Add(fmt.Sprintf("least-squares line, %s %% of baseline a year", strings.Replace(fmt.Sprintf("%+.1f", 100*t.FracPerYear), "-", "−", 1)), fit)
+		p.Legend.Add(tr(fmt.Sprintf("least-squares line, %s %% of baseline a year", strings.Replace(fmt.Sprintf("%+.1f", 100*t.FracPerYear), "-", "−", 1))), fit)
 		if len(upper) > 0 {
 			for i, b := range []plotter.XYs{upper, lower} {
 				bl, err := plotter.NewLine(b)
@@ -516,7 +524,7 @@ func trendSpec(t Trend) (chartSpec, error) {
 				bl.Color, bl.Width, bl.Dashes = fitColor, vg.Points(0.7), []vg.Length{vg.Points(1.5), vg.Points(2)}
 				p.Add(bl)
 				if i == 0 {
-					p.Legend.Add(fmt.Sprintf("%.0f %% band of the line", 100*BandLevel), bl)
+					p.Legend.Add(tr(fmt.Sprintf("%.0f %% band of the line", 100*BandLevel)), bl)
 				}
 			}
 		}
@@ -535,9 +543,9 @@ func trendSpec(t Trend) (chartSpec, error) {
 		p.Add(al)
 		// The legend names the limit and the projected month with its
 		// band; labels inside the plot would squeeze the data area.
-		name := pdfText(limitShort(pr.Kind, pr.Fraction, pr.Value))
+		name := pdfText(limitShort(pr.Kind, pr.Fraction, pr.Value, tr))
 		if pr.HasCrossing {
-			name += ": " + crossingShort(pr)
+			name += ": " + crossingShort(pr, tr)
 		}
 		p.Legend.Add(name, al)
 		ymin, ymax = math.Min(ymin, pr.Value), math.Max(ymax, pr.Value)
@@ -556,7 +564,7 @@ func trendSpec(t Trend) (chartSpec, error) {
 		return chartSpec{}, err
 	}
 	p.Add(eb, sc)
-	p.Legend.Add("session (bars: U)", sc)
+	p.Legend.Add(tr("session (bars: U)"), sc)
 	p.Legend.Top = true
 	p.Legend.TextStyle.Font = sansStyle(8)
 	p.Legend.XOffs, p.Legend.YOffs = -vg.Points(6), -vg.Points(4)
@@ -600,9 +608,9 @@ func slug(s string) string {
 // in the returned notes (the report still renders).
 func (r *Report) Charts() (charts []Chart, notes []string) { return r.charts(nil, true, true) }
 
-// charts draws the report's charts, their titles and axis labels in w's
-// language (their legends stay English, their tick labels keep the
-// decimal point).
+// charts draws the report's charts in w's language: titles, axis labels,
+// legends and the luminance maps' words and figures translated, tick
+// labels with the language's decimal separator.
 func (r *Report) charts(w *words, svg, png bool) (charts []Chart, notes []string) {
 	add := func(s chartSpec, err error) {
 		if err == nil && w != nil {
@@ -610,6 +618,8 @@ func (r *Report) charts(w *words, svg, png bool) (charts []Chart, notes []string
 			s.p.Title.Text = w.text(s.p.Title.Text)
 			s.p.X.Label.Text = w.text(s.p.X.Label.Text)
 			s.p.Y.Label.Text = w.text(s.p.Y.Label.Text)
+			s.p.X.Tick.Marker = localTicks{s.p.X.Tick.Marker, w.c.Decimal}
+			s.p.Y.Tick.Marker = localTicks{s.p.Y.Tick.Marker, w.c.Decimal}
 		}
 		if err == nil {
 			var c Chart
@@ -636,9 +646,25 @@ func (r *Report) charts(w *words, svg, png bool) (charts []Chart, notes []string
 		}
 	}
 	for _, t := range r.Trends {
-		add(trendSpec(t))
+		add(trendSpec(t, w.text))
 	}
 	return charts, notes
+}
+
+// localTicks writes the tick labels of m with the decimal separator sep
+// (DIN 1333, SI Brochure 5.4.4: the comma or the point, as the language
+// writes it).
+type localTicks struct {
+	m   plot.Ticker
+	sep string
+}
+
+func (t localTicks) Ticks(min, max float64) []plot.Tick {
+	ts := t.m.Ticks(min, max)
+	for i := range ts {
+		ts[i].Label = decimals(ts[i].Label, t.sep)
+	}
+	return ts
 }
 
 // pointsWithBars draws values as dots of the given radius (points) with
@@ -672,24 +698,25 @@ func limitColor(kind string) color.Color {
 }
 
 // limitShort names a limit for a chart legend: "specification 120",
-// "baseline rule 80 % = 144.0".
-func limitShort(kind string, fraction, value float64) string {
+// "baseline rule 80 % = 144.0", in the language tr translates into.
+func limitShort(kind string, fraction, value float64, tr func(string) string) string {
 	if kind == "baseline" {
-		return fmt.Sprintf("baseline rule %.0f %% = %s", 100*fraction, Number(value))
+		return tr(fmt.Sprintf("baseline rule %.0f %% = %s", 100*fraction, Number(value)))
 	}
-	return kind + " " + Exact(value)
+	return tr(kind) + " " + tr(Exact(value))
 }
 
 // crossingShort is a projected month with its band, for a legend:
-// "Jul 2030 (Apr 2029 to Jun 2032)".
-func crossingShort(pr Projection) string {
-	const m = "Jan 2006"
-	s := pr.Crossing.Format(m)
+// "Jul 2030 (Apr 2029 to Jun 2032)", the month names and the words in the
+// language tr translates into.
+func crossingShort(pr Projection, tr func(string) string) string {
+	month := func(t time.Time) string { return tr(t.Format("Jan")) + " " + t.Format("2006") }
+	s := month(pr.Crossing)
 	switch {
 	case pr.HasEarly && pr.HasLate:
-		s += " (" + pr.Early.Format(m) + " to " + pr.Late.Format(m) + ")"
+		s += tr(fmt.Sprintf(" (%s to %s)", month(pr.Early), month(pr.Late)))
 	case pr.HasEarly:
-		s += " (from " + pr.Early.Format(m) + ")"
+		s += tr(fmt.Sprintf(" (from %s)", month(pr.Early)))
 	}
 	return s
 }

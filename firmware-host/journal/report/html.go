@@ -36,39 +36,46 @@ func (o Options) generated() time.Time {
 	return o.Generated
 }
 
-var htmlTemplate = template.Must(template.New("report").Funcs(template.FuncMap{
-	"day":           Day,
-	"stamp":         Stamp,
-	"clock":         Clock,
-	"short":         short,
-	"num":           Number,
-	"exact":         Exact,
-	"kf":            Kf,
-	"nw":            noBreak,
-	"right":         func(t infoTable, i int) bool { return i < len(t.Right) && t.Right[i] },
-	"dof":           DoF,
-	"valu":          ValueWithUnc,
-	"pct":           Percent,
-	"pctSigned":     func(f float64) string { return fmt.Sprintf("%+.1f %%", 100*f) },
-	"beam":          BeamTime,
-	"factor":        Factor,
-	"quantity":      quantityWords,
-	"correction":    correctionWords,
-	"corrections":   correctionsText,
-	"verdictClass":  verdictClass,
-	"verdictWords":  verdictWords,
-	"certClass":     certClass,
-	"neg":           func(n int) int { return -n },
-	"inc":           func(n int) int { return n + 1 },
-	"unit":          unitShown,
-	"unitq":         unitForQuantity,
-	"join":          func(s []string) string { return strings.Join(s, ", ") },
-	"trendSentence": trendSentence,
-	"rel":           func(u, v float64) float64 { return u / math.Abs(v) },
-	// svg marks a chart rendered by this package as safe HTML: it is
-	// produced by gonum/plot's SVG canvas, which escapes all text.
-	"svg": func(s string) template.HTML { return template.HTML(s) },
-}).Parse(htmlText))
+var htmlTemplate = newHTMLTemplate(noBreak)
+
+// newHTMLTemplate parses the report's page with nw as the function that
+// keeps a cell's words with digits or hyphens on one line (a rendering in
+// another language translates the cell first).
+func newHTMLTemplate(nw func(string) template.HTML) *template.Template {
+	return template.Must(template.New("report").Funcs(template.FuncMap{
+		"day":           Day,
+		"stamp":         Stamp,
+		"clock":         Clock,
+		"short":         short,
+		"num":           Number,
+		"exact":         Exact,
+		"kf":            Kf,
+		"nw":            nw,
+		"right":         func(t infoTable, i int) bool { return i < len(t.Right) && t.Right[i] },
+		"dof":           DoF,
+		"valu":          ValueWithUnc,
+		"pct":           Percent,
+		"pctSigned":     func(f float64) string { return fmt.Sprintf("%+.1f %%", 100*f) },
+		"beam":          BeamTime,
+		"factor":        Factor,
+		"quantity":      quantityWords,
+		"correction":    correctionWords,
+		"corrections":   correctionsText,
+		"verdictClass":  verdictClass,
+		"verdictWords":  verdictWords,
+		"certClass":     certClass,
+		"neg":           func(n int) int { return -n },
+		"inc":           func(n int) int { return n + 1 },
+		"unit":          unitShown,
+		"unitq":         unitForQuantity,
+		"join":          func(s []string) string { return strings.Join(s, ", ") },
+		"trendSentence": trendSentence,
+		"rel":           func(u, v float64) float64 { return u / math.Abs(v) },
+		// svg marks a chart rendered by this package as safe HTML: it is
+		// produced by gonum/plot's SVG canvas, which escapes all text.
+		"svg": func(s string) template.HTML { return template.HTML(s) },
+	}).Parse(htmlText))
+}
 
 type eventRow struct {
 	Event
@@ -135,7 +142,7 @@ func (r *Report) view(opt Options, use chartUse) htmlView {
 	}
 	v.Exposures = r.Exposures()
 	v.Groups = r.ReadingGroups()
-	v.Signing = r.signing()
+	v.Signing = r.signing(r.wordsFor(opt))
 	v.SigningPre, v.SigningLimits, v.SigningPost = v.Signing[:4], v.Signing[6:7], v.Signing[4:6]
 	for _, res := range r.Results {
 		if len(res.Budget) > 0 {
@@ -181,8 +188,12 @@ func (r *Report) writeHTML(w io.Writer, opt Options, use chartUse) error {
 		}
 		return nil
 	}
+	// A cell kept on one line word by word (nw) is translated whole
+	// before it is cut into words: the page's text runs after it are
+	// fragments no catalog could look up.
+	t := newHTMLTemplate(func(s string) template.HTML { return noBreak(tr.text(s)) })
 	var b bytes.Buffer
-	if err := htmlTemplate.Execute(&b, r.view(opt, use)); err != nil {
+	if err := t.Execute(&b, r.view(opt, use)); err != nil {
 		return fmt.Errorf("render HTML report of session %s: %w", r.Session.ID, err)
 	}
 	page := bytes.Replace(b.Bytes(), []byte(`<html lang="en">`), []byte(`<html lang="`+tr.c.Code()+`">`), 1)

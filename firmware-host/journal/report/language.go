@@ -74,7 +74,7 @@ func (w *words) translate(s string, localNumbers bool) string {
 	t := s
 	if strings.ContainsFunc(s, unicode.IsLetter) {
 		core := strings.TrimSpace(s)
-		if tr, ok := w.c.TranslateWhole(core); ok {
+		if tr, ok := w.whole(core); ok {
 			i := strings.Index(s, core)
 			t = s[:i] + tr + s[i+len(core):]
 		}
@@ -84,6 +84,49 @@ func (w *words) translate(s string, localNumbers bool) string {
 	}
 	w.memo[key] = t
 	return t
+}
+
+// whole translates s whole (catalog.TranslateWhole) or, when s is a list
+// joined by "; " (a step's set-up, a correction's notes), item by item:
+// the list is translated only when each item that is prose is, so a list
+// is never half translated.
+func (w *words) whole(s string) (string, bool) {
+	if tr, ok := w.c.TranslateWhole(s); ok {
+		return tr, true
+	}
+	items := strings.Split(s, "; ")
+	if len(items) < 2 {
+		return s, false
+	}
+	changed := false
+	for i, it := range items {
+		tr, ok := w.c.TranslateWhole(it)
+		switch {
+		case ok:
+			items[i], changed = tr, changed || tr != it
+		case prose(it):
+			return s, false
+		}
+	}
+	return strings.Join(items, "; "), changed
+}
+
+// prose: s has two or more words of three letters or more (as
+// catalog.TranslateWhole tells a value that needs a translation from a
+// name or a number).
+func prose(s string) bool {
+	n := 0
+	for _, f := range strings.Fields(s) {
+		if strings.Count(strings.Map(func(r rune) rune {
+			if unicode.IsLetter(r) {
+				return 'a'
+			}
+			return -1
+		}, f), "a") >= 3 {
+			n++
+		}
+	}
+	return n >= 2
 }
 
 // standardRef finds a text that cites a standard or a handbook: its

@@ -138,3 +138,52 @@ func TestReportInTheSessionLanguage(t *testing.T) {
 		t.Errorf("German PDF still holds English headings")
 	}
 }
+
+// The charts of a German report speak German too: the trend's legend
+// (the least-squares line, its band, the sessions, each limit with its
+// projected month) and every tick label with the decimal comma (DIN 1333;
+// the expected German written by hand, procedures/catalog/lang/de). The
+// English charts of the same report show the decimal point, so the check
+// can fail.
+func TestChartsInTheSessionLanguage(t *testing.T) {
+	r, err := Build(sampleSession())
+	if err != nil {
+		t.Fatal(err)
+	}
+	r.AttachHistory(sampleHistory(7, 180, -4.5), 0.85) // and an action level at 85 % of baseline
+	svgText := func(lang string) string {
+		var b bytes.Buffer
+		opt := fixedOpts
+		opt.Language = lang
+		if err := r.WriteHTML(&b, opt); err != nil {
+			t.Fatal(err)
+		}
+		var texts []string
+		for _, svg := range regexp.MustCompile(`(?s)<svg\b.*?</svg>`).FindAllString(b.String(), -1) {
+			for _, m := range regexp.MustCompile(`(?s)<text[^>]*>(.*?)</text>`).FindAllStringSubmatch(svg, -1) {
+				texts = append(texts, html.UnescapeString(m[1]))
+			}
+		}
+		return strings.Join(texts, "\n")
+	}
+	decimal := regexp.MustCompile(`(?m)^[0-9]+[.,][0-9]+$`) // a tick label alone in its text element
+	en, de := svgText("en"), svgText("de")
+	if ticks := decimal.FindAllString(en, -1); len(ticks) == 0 || !strings.Contains(strings.Join(ticks, " "), ".") {
+		t.Fatalf("the English charts show no tick label with a decimal point: %q", ticks)
+	}
+	for _, tick := range decimal.FindAllString(de, -1) {
+		if strings.Contains(tick, ".") {
+			t.Errorf("German chart tick label %q keeps the decimal point", tick)
+		}
+	}
+	for _, want := range []string{"Ausgleichsgerade, ", "% des Basiswerts pro Jahr", "-%-Vertrauensband der Geraden", "Sitzung (Balken: U)", "Eingriffsschwelle 153: Nov. 2026 (Nov. 2026 bis Nov. 2026)", "Konversionsfaktor von HV-2291, Feld 32cm", "Jahr"} {
+		if !strings.Contains(de, want) {
+			t.Errorf("German charts lack %q", want)
+		}
+	}
+	for _, english := range []string{"least-squares line", "band of the line", "session (bars: U)", "action level", " to ", "Conversion factor"} {
+		if strings.Contains(de, english) {
+			t.Errorf("German charts still hold %q", english)
+		}
+	}
+}

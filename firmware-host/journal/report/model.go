@@ -399,7 +399,7 @@ func (r *Report) reviewLists(tr func(string) string) (per, list []string) {
 			why = append(why, fmt.Sprintf(tr("outside the %s"), tr(orDash(res.DecidedBy))))
 		case "pass", "info":
 		default:
-			why = append(why, fmt.Sprintf(tr("verdict %q"), res.Verdict))
+			why = append(why, fmt.Sprintf(tr("verdict %q"), tr(res.Verdict)))
 		}
 		if !res.Calibrated {
 			why = append(why, tr("not calibrated"))

@@ -294,7 +294,7 @@ func WriteTrendCharts(path string, trends []Trend) ([]string, error) {
 		if len(trends) > 1 {
 			p = strings.TrimSuffix(path, filepath.Ext(path)) + "-" + slug(t.FieldMode) + filepath.Ext(path)
 		}
-		spec, err := trendSpec(t)
+		spec, err := trendSpec(t, nil)
 		if err != nil {
 			return paths, err
 		}

@@ -28,8 +28,8 @@ const notStated = "not stated in the bench file"
 // against what: the test and the X-ray system, the meters, the beam
 // quality, the geometry, the set-up per step, the formulas and every
 // limit with its margin.
-func (r *Report) signing() []infoTable {
-	return []infoTable{r.testTable(), r.meterTable(), r.beamTable(), r.geometryTable(), r.setupTable(), formulaTable(), r.limitTable()}
+func (r *Report) signing(w *words) []infoTable {
+	return []infoTable{r.testTable(w), r.meterTable(), r.beamTable(), r.geometryTable(), r.setupTable(), formulaTable(), r.limitTable()}
 }
 
 func orNotStated(parts ...string) string {
@@ -45,13 +45,28 @@ func orNotStated(parts ...string) string {
 	return strings.Join(ps, ", serial ")
 }
 
-func (r *Report) testTable() infoTable {
+// testTable is the test and the X-ray system, the word "serial" and the
+// kind of test in w's language (the models and serials are names, which a
+// translation of the whole cell would refuse to take as prose).
+func (r *Report) testTable(w *words) infoTable {
 	s := r.Session
 	t := infoTable{Title: "The test and the X-ray system", Head: []string{"", ""}}
 	testType := s.TestType
-	if testType == "" {
+	switch {
+	case testType == "":
 		testType = notStated + " (test_type: acceptance, yearly or after repair)"
+	case w != nil:
+		// Keyed apart from the word alone: "acceptance" is also the name
+		// of a procedure, which stays as it is.
+		if tr, ok := w.c.Lookup("test type: " + testType); ok {
+			testType = tr
+		}
 	}
+	serial := ", serial "
+	if w != nil {
+		serial = ", " + w.text("serial") + " "
+	}
+	orNotStated := func(parts ...string) string { return strings.ReplaceAll(orNotStated(parts...), ", serial ", serial) }
 	x := s.XRay
 	if x == nil {
 		x = &entry.XRaySystem{}
