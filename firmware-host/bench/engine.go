@@ -78,7 +78,7 @@ func (b *Bench) EngineSettings() (engine.Settings, error) {
 		l.KermaCeiling = b.Limits.KermaCeiling
 	}
 	if b.Limits.Precision > 0 {
-		l.Target = b.Limits.Precision
+		l.Precision = b.Limits.Precision
 	}
 	if b.Intensifier.Baseline != "" {
 		rf, err := engine.ReadResults(b.Rel(b.Intensifier.Baseline))

@@ -200,7 +200,7 @@ func TestModeScalingResult(t *testing.T) {
 	steps := cfSteps()[:5]
 	for _, m := range []string{"32cm", "17cm"} {
 		steps = append(steps, Step{ID: "rate@" + m, Kind: Measure, FieldMode: m, Text: "Press the switch, then step on the pedal.",
-			Measure: &MeasureSpec{Meters: []string{Dosimeter}, Beam: true, Target: 0.02, MaxBeamOn: 20 * time.Second}})
+			Measure: &MeasureSpec{Meters: []string{Dosimeter}, Beam: true, Precision: 0.02, MaxBeam: 20 * time.Second}})
 	}
 	steps = append(steps,
 		Step{ID: "scale@32cm", Kind: Compute, FieldMode: "32cm", Compute: &ComputeSpec{Figure: "kerma_rate_scaling", Inputs: map[string]string{"air_kerma_rate": "rate@32cm", "reference": "rate@32cm"}}},

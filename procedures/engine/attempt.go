@@ -589,10 +589,10 @@ func (e *Engine) settleTol(a *attempt) float64 {
 // uncertainty of repeatability (the mean's type A, at its coverage
 // factor) at which sampling stops. The procedure's own, else the bench's.
 func (e *Engine) target(a *attempt) float64 {
-	if a.spec.Target > 0 {
-		return a.spec.Target
+	if a.spec.Precision > 0 {
+		return a.spec.Precision
 	}
-	return e.cfg.Settings.Target
+	return e.cfg.Settings.Precision
 }
 
 // minSamples is the smallest number of readings of each meter the

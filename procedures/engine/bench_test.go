@@ -123,7 +123,7 @@ func benchBeamOn(b *testing.B, rise time.Duration) {
 			}
 		}))
 		steps := cfSteps()
-		steps[5].Measure.Target = target
+		steps[5].Measure.Precision = target
 		jr := newMemJournal(clk)
 		cfg := Config{
 			Procedure: Procedure{Name: "bench", Steps: steps},

@@ -114,13 +114,13 @@ type MeasureSpec struct {
 	Beam      bool     // false: a dark (beam-off) reading
 	Quality   string   // beam quality, e.g. RQA5
 	Positions []Position
-	Target    float64       // relative expanded uncertainty to reach (0.02 = 2 %); 0: Settings.Target
-	MaxBeamOn time.Duration // per position; 0: Settings.MaxBeamOn
-	// MinBeamOn is what each position keeps in reserve in its pools
-	// (0: MaxBeamOn, the whole of it).
-	MinBeamOn time.Duration
-	Duration  time.Duration // read this long instead of stopping at the target (dark, stability)
-	Expect    []Expect
+	Precision float64       // relative expanded uncertainty to reach (0.02 = 2 %); 0: Settings.Precision
+	MaxBeam   time.Duration // per position; 0: Settings.MaxBeam
+	// MinBeam is what each position keeps in reserve in its pools
+	// (0: MaxBeam, the whole of it).
+	MinBeam  time.Duration
+	Duration time.Duration // read this long instead of stopping at the target (dark, stability)
+	Expect   []Expect
 }
 
 // ComputeSpec computes a figure of merit.
@@ -265,12 +265,12 @@ type Settings struct {
 	SettleSlope  float64
 	SettleMax    time.Duration // give up settling (retake) after this
 
-	// Target is the default type A target: the relative expanded
+	// Precision is the default type A target: the relative expanded
 	// uncertainty of repeatability at which sampling stops (0.01); a
 	// procedure's own precision takes its place. The calibration's part
 	// is not in it (it cannot be reduced by sampling longer).
-	Target    float64
-	MaxBeamOn time.Duration // default per-attempt maximum
+	Precision float64
+	MaxBeam   time.Duration // default per-attempt maximum
 	MinPairs  int           // minimum time-aligned pairs before the stopping rule may stop
 
 	Retries    int           // attempts per measurement before the step fails
@@ -300,8 +300,8 @@ func DefaultSettings() Settings {
 		SettleWindow:     time.Second,
 		SettleSlope:      0.02,
 		SettleMax:        20 * time.Second,
-		Target:           0.01,
-		MaxBeamOn:        30 * time.Second,
+		Precision:        0.01,
+		MaxBeam:          30 * time.Second,
 		MinPairs:         minSamples,
 		Retries:          3,
 		LinkRetry:        time.Second,
@@ -384,8 +384,8 @@ func fillSettings(l *Settings) {
 	setD(&l.SettleWindow, d.SettleWindow)
 	setF(&l.SettleSlope, d.SettleSlope)
 	setD(&l.SettleMax, d.SettleMax)
-	setF(&l.Target, d.Target)
-	setD(&l.MaxBeamOn, d.MaxBeamOn)
+	setF(&l.Precision, d.Precision)
+	setD(&l.MaxBeam, d.MaxBeam)
 	setD(&l.LinkRetry, d.LinkRetry)
 	setD(&l.RecheckAfter, d.RecheckAfter)
 	if l.MinPairs == 0 {

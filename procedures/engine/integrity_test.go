@@ -79,7 +79,7 @@ func TestIntegrityAtTheEdges(t *testing.T) {
 				r.phot.noise = 0.01
 				r.cfg.Procedure.Steps = []Step{
 					{ID: "safety", Kind: Checklist, Safety: true, Items: safetyItems},
-					{ID: "disk", Kind: Measure, Text: "Press the switch, then step on the pedal.", Measure: &MeasureSpec{Meters: []string{Photometer}, Beam: true, MaxBeamOn: 20 * time.Second}},
+					{ID: "disk", Kind: Measure, Text: "Press the switch, then step on the pedal.", Measure: &MeasureSpec{Meters: []string{Photometer}, Beam: true, MaxBeam: 20 * time.Second}},
 				}
 			},
 			check: func(t *testing.T, r *rig, sum Summary, err error) {
@@ -264,7 +264,7 @@ func TestIntegrityAtTheEdges(t *testing.T) {
 				// and a loose target a count alone stops there.
 				r.dos.period, r.phot.period = 20*time.Millisecond, 20*time.Millisecond
 				r.dos.noise, r.phot.noise = 0.001, 0.001
-				r.cfg.Procedure.Steps[5].Measure.Target = 0.05
+				r.cfg.Procedure.Steps[5].Measure.Precision = 0.05
 			},
 			check: func(t *testing.T, r *rig, sum Summary, err error) {
 				if err != nil {
@@ -322,8 +322,8 @@ func TestTypeATargetFromBench(t *testing.T) {
 	n := map[float64]int{}
 	for _, target := range []float64{0.02, 0.005} {
 		r := newRig(cfSteps())
-		r.cfg.Procedure.Steps[5].Measure.Target = 0 // the bench's
-		r.cfg.Settings.Target = target
+		r.cfg.Procedure.Steps[5].Measure.Precision = 0 // the bench's
+		r.cfg.Settings.Precision = target
 		sum, err := r.run(context.Background())
 		if err != nil {
 			t.Fatal(err)

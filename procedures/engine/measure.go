@@ -126,9 +126,9 @@ func (e *Engine) measure(ctx context.Context, idx int, s Step) error {
 func (e *Engine) measurePosition(ctx context.Context, idx int, s Step, pi int, pos Position, npos int) error {
 	l := e.cfg.Settings
 	m := s.Measure
-	maxOn := m.MaxBeamOn
+	maxOn := m.MaxBeam
 	if maxOn == 0 {
-		maxOn = l.MaxBeamOn
+		maxOn = l.MaxBeam
 	}
 	// used is the beam-on of this position's attempts, their releases
 	// included: together they may not pass the position's limit, nor what
@@ -250,15 +250,15 @@ func (e *Engine) poolLeft(pl BeamPool, idx, pi int, used time.Duration) time.Dur
 }
 
 // reserve is what one position of the step keeps in its pools, its
-// release not counted: MinBeamOn, else its whole limit.
+// release not counted: MinBeam, else its whole limit.
 func (m *MeasureSpec) reserve(l Settings) time.Duration {
 	switch {
-	case m.MinBeamOn > 0:
-		return m.MinBeamOn
-	case m.MaxBeamOn > 0:
-		return m.MaxBeamOn
+	case m.MinBeam > 0:
+		return m.MinBeam
+	case m.MaxBeam > 0:
+		return m.MaxBeam
 	}
-	return l.MaxBeamOn
+	return l.MaxBeam
 }
 
 // notMeasurable records a position that could not be measured, with its

@@ -23,7 +23,7 @@ func TestBeamOnSurvivesPowerCut(t *testing.T) {
 				t.Fatalf("step 6 is %s, want the exposure", cf.ID)
 			}
 			// A tight target keeps the beam on for tens of seconds.
-			cf.Measure.Target, cf.Measure.MaxBeamOn = 0.002, 60*time.Second
+			cf.Measure.Precision, cf.Measure.MaxBeam = 0.002, 60*time.Second
 			ctx, cancel := context.WithCancel(context.Background())
 			defer cancel()
 			var cutAt time.Duration
