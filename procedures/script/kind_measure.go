@@ -2,11 +2,13 @@ package script
 
 import (
 	"cmp"
-	"kermalux/drivers/units"
 	"sort"
 	"strings"
+	"time"
 
 	"github.com/goccy/go-yaml/ast"
+
+	"kermalux/drivers/units"
 )
 
 // measureField reads a key of a measure step (its entry in kindTable).
@@ -15,6 +17,9 @@ func (ps *parse) measureField(s *Step, f field) {
 		s.Measure = &MeasureSpec{}
 	}
 	m := s.Measure
+	if ps.measureShared(f, &m.Precision, &m.MaxBeam, &m.MinBeam, &m.Expect) {
+		return
+	}
 	switch f.key {
 	case "read":
 		fields, ok := ps.mapping(f.value, "read")
@@ -51,18 +56,6 @@ func (ps *parse) measureField(s *Step, f field) {
 				m.Positions = append(m.Positions, p)
 			}
 		}
-	case "precision":
-		if v, ok := ps.fraction(f, "precision"); ok {
-			m.Precision = v
-		}
-	case "max_beam":
-		if v, ok := ps.duration(f, "max_beam"); ok {
-			m.MaxBeam = v
-		}
-	case "min_beam":
-		if v, ok := ps.duration(f, "min_beam"); ok {
-			m.MinBeam = v
-		}
 	case "duration":
 		if v, ok := ps.duration(f, "duration"); ok {
 			m.Duration = v
@@ -71,9 +64,35 @@ func (ps *parse) measureField(s *Step, f field) {
 		if v, ok := ps.fraction(f, "max_drift"); ok {
 			m.MaxDrift = v
 		}
-	case "expect":
-		m.Expect = ps.expect(f)
 	}
+}
+
+// measureSharedKeys are the keys a measure step and the procedure's
+// defaults both take (the step's own value wins: measureInstance).
+var measureSharedKeys = []string{"precision", "max_beam", "min_beam", "expect"}
+
+// measureShared reads one of measureSharedKeys into its field, a measure
+// step's or the defaults'; it reports false for any other key.
+func (ps *parse) measureShared(f field, precision *float64, maxBeam, minBeam *time.Duration, expect *[]Expect) bool {
+	switch f.key {
+	case "precision":
+		if v, ok := ps.fraction(f, "precision"); ok {
+			*precision = v
+		}
+	case "max_beam":
+		if v, ok := ps.duration(f, "max_beam"); ok {
+			*maxBeam = v
+		}
+	case "min_beam":
+		if v, ok := ps.duration(f, "min_beam"); ok {
+			*minBeam = v
+		}
+	case "expect":
+		*expect = ps.expect(f)
+	default:
+		return false
+	}
+	return true
 }
 
 // position reads a photometer position: "centre", "up 0.9 r" or a

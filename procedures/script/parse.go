@@ -304,23 +304,8 @@ func (ps *parse) defaults(f field, d *Defaults) {
 		return
 	}
 	for _, g := range fields {
-		switch g.key {
-		case "precision":
-			if v, ok := ps.fraction(g, "precision"); ok {
-				d.Precision = v
-			}
-		case "max_beam":
-			if v, ok := ps.duration(g, "max_beam"); ok {
-				d.MaxBeam = v
-			}
-		case "min_beam":
-			if v, ok := ps.duration(g, "min_beam"); ok {
-				d.MinBeam = v
-			}
-		case "expect":
-			d.Expect = ps.expect(g)
-		default:
-			ps.errf(g.kpos, "unknown defaults field %q (expected precision, max_beam, min_beam, expect)", g.key)
+		if !ps.measureShared(g, &d.Precision, &d.MaxBeam, &d.MinBeam, &d.Expect) {
+			ps.errf(g.kpos, "unknown defaults field %q (expected %s)", g.key, strings.Join(measureSharedKeys, ", "))
 		}
 	}
 }
