@@ -102,6 +102,32 @@ func TestDemoSummaryTable(t *testing.T) {
 	}
 }
 
+// TestBusyHostLine: the demo names a busy host only when a figure came
+// out not measurable and the host kept it waiting (demo.HostLag.Busy), and
+// suggests a slower speed.
+func TestBusyHostLine(t *testing.T) {
+	missed := []entry.Result{{Quantity: "non_uniformity", Verdict: "not_measurable"}}
+	fine := []entry.Result{{Quantity: "non_uniformity", Verdict: "pass"}}
+	busy := demo.HostLag{Known: true, Wait: 20 * time.Second, Wall: 25 * time.Second, Speed: 20}
+	idle := demo.HostLag{Known: true, Wait: time.Second, Wall: 25 * time.Second, Speed: 20}
+	for _, c := range []struct {
+		name    string
+		l       demo.HostLag
+		results []entry.Result
+		want    string
+	}{
+		{"busy, a figure missed", busy, missed, "--speed 5"},
+		{"busy, nothing missed", busy, fine, ""},
+		{"idle, a figure missed", idle, missed, ""},
+		{"not known", demo.HostLag{Speed: 20}, missed, ""},
+	} {
+		got := hostLine(c.l, c.results)
+		if (c.want == "") != (got == "") || !strings.Contains(got, c.want) {
+			t.Errorf("%s: %q, want %q", c.name, got, c.want)
+		}
+	}
+}
+
 // TestJournalCommandsAsDocumented: export needs no --json (JSON lines is
 // its only format), sessions takes FILE or --journal and prints JSON with
 // --json, key takes FILE as README writes it, and prints the journal's

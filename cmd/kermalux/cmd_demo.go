@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"math"
 	"os"
 	"os/signal"
 	"strings"
@@ -61,6 +62,14 @@ type demoJSON struct {
 	OperatorWaitFor map[string]float64 `json:"operator_wait_for_s"`
 	Exposures       int                `json:"exposures"`
 	Hurried         bool               `json:"hurried"` // the operator took no time to listen, set up or read off
+	// How long the process waited for a CPU (demo.HostLag; absent where
+	// the system does not tell): its threads' time on a CPU and waiting
+	// for one, the pressure (simulated seconds waited per real second),
+	// and whether that was enough to disturb the simulated meters.
+	HostCPUS     *float64 `json:"host_cpu_s,omitempty"`
+	HostWaitS    *float64 `json:"host_cpu_wait_s,omitempty"`
+	HostPressure *float64 `json:"host_pressure,omitempty"`
+	HostBusy     bool     `json:"host_busy"`
 }
 
 func init() {
@@ -165,7 +174,12 @@ func printDemoJSON(w io.Writer, out *demo.Outcome) error {
 	doc := demoJSON{ResultsPath: out.Results, Journal: out.Journal, Bench: out.Bench, Reports: out.Reports,
 		SimulatedS: out.Elapsed.Seconds(), WallS: out.Wall.Seconds(),
 		EngineerS: out.Engineer.Seconds(), EngineerTargetS: demo.EngineerTarget.Seconds(), OperatorWaitS: out.Waited.Seconds(),
-		Exposures: out.Exposures, Hurried: out.Hurried, OperatorWaitFor: map[string]float64{}}
+		Exposures: out.Exposures, Hurried: out.Hurried, OperatorWaitFor: map[string]float64{},
+		HostBusy: out.Host.Busy()}
+	if h := out.Host; h.Known {
+		c, w, p := h.CPU.Seconds(), h.Wait.Seconds(), h.Pressure()
+		doc.HostCPUS, doc.HostWaitS, doc.HostPressure = &c, &w, &p
+	}
 	for k, d := range out.WaitedFor {
 		doc.OperatorWaitFor[k] = d.Seconds()
 	}
@@ -187,6 +201,9 @@ func printDemoSummary(w io.Writer, out *demo.Outcome) {
 	fmt.Fprintf(w, "\nSession %s (SIMULATED): %s, %d of %d steps, beam-on %.0f s, %s simulated in %s.\n",
 		s.Session, s.Outcome, s.Steps, s.Of, s.BeamOn.Seconds(), out.Elapsed.Round(1e9), out.Wall.Round(1e8))
 	fmt.Fprintln(w, visitLine(out))
+	if l := hostLine(out.Host, s.Results); l != "" {
+		fmt.Fprintln(w, l)
+	}
 	writeSummaryTable(w, s.Results)
 	if s.Review > 0 {
 		fmt.Fprintf(w, "%d result(s) need review.\n", s.Review)
@@ -216,6 +233,26 @@ func visitLine(out *demo.Outcome) string {
 	}
 	return fmt.Sprintf("Visit: engineer time %s (%s the %s target; %s of it %s), beam-on %.0f s, %d exposures.",
 		minSec(out.Engineer), verdict, minSec(demo.EngineerTarget), minSec(out.Waited), who, out.Summary.BeamOn.Seconds(), out.Exposures)
+}
+
+// hostLine warns when the machine was too busy for the demo's speed:
+// the simulated meters then lag and bunch their readings, and a retake
+// or a reading "not measurable" may be the host's, not the bench's.
+// It is said only when a figure came out not measurable: a busy host that
+// disturbed nothing needs no excuse.
+func hostLine(l demo.HostLag, results []entry.Result) string {
+	missed := 0
+	for _, r := range results {
+		if r.Verdict == string(calib.NotMeasurable) {
+			missed++
+		}
+	}
+	if !l.Busy() || missed == 0 {
+		return ""
+	}
+	slower := max(1, math.Floor(l.Speed/4))
+	return fmt.Sprintf("Busy host: at %g× real time this machine kept the demo waiting for a CPU %.1f s of simulated time a second (%.0f s in %.0f s). The %d figure(s) not measurable may come from this machine, not from the simulated bench: run again with --speed %g, or on a quieter machine.",
+		l.Speed, l.Pressure(), l.Wait.Seconds(), l.Wall.Seconds(), missed, slower)
 }
 
 // minSec writes d as "12 min 05 s".

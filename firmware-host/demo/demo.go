@@ -107,6 +107,9 @@ type Outcome struct {
 	Waited    time.Duration
 	WaitedFor map[string]time.Duration // Waited by kind of action (keys of Delays)
 	Hurried   bool                     // the operator was hurried (Options.Hurried)
+	// Host is how long the process waited for a CPU while the session
+	// ran: a busy machine disturbs the simulated meters' timing (HostLag).
+	Host HostLag
 }
 
 // Run runs the whole sequence against the simulator: it starts the bench
@@ -233,11 +236,13 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 		return nil, err
 	}
 	start := clk.Mono()
+	watch := watchHost(speed)
 	sum, runErr := eng.Run(ctx)
+	host := watch.Stop()
 	op.Wait()
 	out := &Outcome{Summary: sum, Journal: jpath, Bench: benchPath, Scenario: scn, Truth: sim.Truth(),
 		Operator: op.Actions(), Elapsed: clk.Mono() - start, Engineer: clk.Mono() - first,
-		Exposures: op.Exposures(), Waits: op.Waits(), Waited: op.Waited(), WaitedFor: op.WaitedFor(), Hurried: o.Hurried}
+		Exposures: op.Exposures(), Waits: op.Waits(), Waited: op.Waited(), WaitedFor: op.WaitedFor(), Hurried: o.Hurried, Host: host}
 	if sum.Session != "" {
 		out.Results, err = engine.WriteResultsFile(o.Out, engine.NewResultsFile(sum, cfg.Session))
 		if err != nil {
