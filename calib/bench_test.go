@@ -63,7 +63,7 @@ func BenchmarkFullSession(b *testing.B) {
 // BenchmarkCorrectReading is the per-reading cost of the corrections.
 func BenchmarkCorrectReading(b *testing.B) {
 	c := load(b, "veltrane-kr40-1187.yaml")
-	s := Setup{Cert: c, Meter: own(c), Day: day("2026-12-02"), Quality: Quality{HVL: 7.3}, Air: Air{Temperature: 23, Pressure: 99},
+	s := Setup{Cert: c, Meter: own(c), Day: day("2026-12-02"), BeamQuality: BeamQuality{HVL: 7.3}, Air: Air{Temperature: 23, Pressure: 99},
 		Geometry: Geometry{SourceToChamber: 950, SourceToInput: 1000}}
 	b.ReportAllocs()
 	for i := 0; i < b.N; i++ {

@@ -28,9 +28,9 @@ const (
 
 // Point is one row of a certificate's coefficient table.
 type Point struct {
-	Quality Quality // the beam quality the coefficient was measured at
-	Factor  float64 // calibration coefficient: true value = Factor × reading
-	Line    int     // line in the certificate file
+	BeamQuality BeamQuality // the beam quality the coefficient was measured at
+	Factor      float64     // calibration coefficient: true value = Factor × reading
+	Line        int         // line in the certificate file
 }
 
 // Certificate is a meter's calibration certificate as kermalux uses it.
@@ -284,10 +284,10 @@ func readTable(r *reader, t *object, c *Certificate) {
 		path := fmt.Sprintf("coefficients.points[%d]", i)
 		p := r.asObject(it, path, lineOf(it), "quality", "tube_voltage_kv", "hvl_mm_al", "added_al_mm", "factor")
 		pt := Point{Line: lineOf(it)}
-		pt.Quality.Name = p.text("quality", c.Along == AlongQuality)
-		pt.Quality.TubeVoltage, _ = p.number("tube_voltage_kv", false)
-		pt.Quality.HVL, _ = p.number("hvl_mm_al", false)
-		pt.Quality.AddedAl, _ = p.number("added_al_mm", false)
+		pt.BeamQuality.Name = p.text("quality", c.Along == AlongQuality)
+		pt.BeamQuality.TubeVoltage, _ = p.number("tube_voltage_kv", false)
+		pt.BeamQuality.HVL, _ = p.number("hvl_mm_al", false)
+		pt.BeamQuality.AddedAl, _ = p.number("added_al_mm", false)
 		f, ok := p.number("factor", true)
 		if ok && !plausibleFactor(f) {
 			r.fail(pt.Line, path+".factor", "must lie between %g and %g (a meter that reads true within a factor of two), got %g", MinFactor, MaxFactor, f)
@@ -298,11 +298,11 @@ func readTable(r *reader, t *object, c *Certificate) {
 		}
 		switch c.Along {
 		case AlongHVL:
-			if pt.Quality.HVL <= 0 {
+			if pt.BeamQuality.HVL <= 0 {
 				r.fail(pt.Line, path+".hvl_mm_al", "missing or not positive (the table is along hvl)")
 			}
 		case AlongTubeVoltage:
-			if pt.Quality.TubeVoltage <= 0 {
+			if pt.BeamQuality.TubeVoltage <= 0 {
 				r.fail(pt.Line, path+".tube_voltage_kv", "missing or not positive (the table is along tube_voltage)")
 			}
 		}
@@ -311,19 +311,21 @@ func readTable(r *reader, t *object, c *Certificate) {
 	if r.err != nil {
 		return
 	}
-	sort.SliceStable(c.Points, func(i, j int) bool { return c.axisValue(c.Points[i].Quality) < c.axisValue(c.Points[j].Quality) })
+	sort.SliceStable(c.Points, func(i, j int) bool {
+		return c.axisValue(c.Points[i].BeamQuality) < c.axisValue(c.Points[j].BeamQuality)
+	})
 	for i := 1; i < len(c.Points); i++ {
 		a, b := c.Points[i-1], c.Points[i]
 		if c.Along == AlongQuality {
 			for _, e := range c.Points[:i] {
-				if strings.EqualFold(e.Quality.Name, b.Quality.Name) {
-					r.fail(b.Line, "coefficients.points", "quality %q appears twice (also line %d)", b.Quality.Name, e.Line)
+				if strings.EqualFold(e.BeamQuality.Name, b.BeamQuality.Name) {
+					r.fail(b.Line, "coefficients.points", "quality %q appears twice (also line %d)", b.BeamQuality.Name, e.Line)
 					return
 				}
 			}
 			continue
 		}
-		if c.axisValue(a.Quality) == c.axisValue(b.Quality) {
+		if c.axisValue(a.BeamQuality) == c.axisValue(b.BeamQuality) {
 			r.fail(b.Line, "coefficients.points", "two points at the same %s (also line %d)", c.Along, a.Line)
 			return
 		}
@@ -331,7 +333,7 @@ func readTable(r *reader, t *object, c *Certificate) {
 }
 
 // axisValue is q's coordinate along the table's axis.
-func (c *Certificate) axisValue(q Quality) float64 {
+func (c *Certificate) axisValue(q BeamQuality) float64 {
 	switch c.Along {
 	case AlongHVL:
 		return q.HVL

@@ -47,7 +47,7 @@ func TestExampleCertificates(t *testing.T) {
 	if c.Quantity != units.AirKermaRate || !c.Vented || c.RefTemperature != 20 || c.RefPressure != 101.325 {
 		t.Errorf("chamber = %v vented %v T0 %v P0 %v", c.Quantity, c.Vented, c.RefTemperature, c.RefPressure)
 	}
-	if c.Along != AlongHVL || len(c.Points) != 4 || c.Points[0].Quality.Name != "RQA3" {
+	if c.Along != AlongHVL || len(c.Points) != 4 || c.Points[0].BeamQuality.Name != "RQA3" {
 		t.Errorf("table = %v %+v", c.Along, c.Points)
 	}
 	// "2.4 %" at k = 2 is a relative standard uncertainty of 1.2 % (GUM 4.3.3: u = U/k).
@@ -186,20 +186,20 @@ func TestLoadMissingFile(t *testing.T) {
 func TestCoefficientAt(t *testing.T) {
 	c := load(t, "veltrane-kr40-1187.yaml") // RQA3 3.8→1.021, RQA5 6.8→1.008, RQA7 9.2→1.003, RQA9 11.6→0.997
 	tests := []struct {
-		q    Quality
+		q    BeamQuality
 		want float64
 		out  bool
 	}{
-		{Quality{Name: "RQA5"}, 1.008, false},                                              // HVL from the RQA table (6.8 mm Al)
-		{Quality{HVL: 6.8}, 1.008, false},                                                  // a table point
-		{Quality{HVL: 8.0}, 1.008 - 0.005*(1.2/2.4), false},                                // linear interpolation by hand: 1.0055
-		{Quality{HVL: 3.8}, 1.021, false},                                                  // lower end
-		{Quality{HVL: 11.6}, 0.997, false},                                                 // upper end
-		{Quality{HVL: 3.0}, 0, true},                                                       // below the table
-		{Quality{HVL: 12.5}, 0, true},                                                      // above the table
-		{Quality{Name: "RQA5", TubeVoltage: 70, HVL: 7.1}, 1.008 - 0.005*(0.3/2.4), false}, // stated HVL wins
-		{Quality{TubeVoltage: 80}, (1.008 + 1.003) / 2, false},                             // no HVL (phantom beam): along kV, 70→1.008, 90→1.003
-		{Quality{TubeVoltage: 130}, 0, true},                                               // by kV, above the table's 120 kV
+		{BeamQuality{Name: "RQA5"}, 1.008, false},                                              // HVL from the RQA table (6.8 mm Al)
+		{BeamQuality{HVL: 6.8}, 1.008, false},                                                  // a table point
+		{BeamQuality{HVL: 8.0}, 1.008 - 0.005*(1.2/2.4), false},                                // linear interpolation by hand: 1.0055
+		{BeamQuality{HVL: 3.8}, 1.021, false},                                                  // lower end
+		{BeamQuality{HVL: 11.6}, 0.997, false},                                                 // upper end
+		{BeamQuality{HVL: 3.0}, 0, true},                                                       // below the table
+		{BeamQuality{HVL: 12.5}, 0, true},                                                      // above the table
+		{BeamQuality{Name: "RQA5", TubeVoltage: 70, HVL: 7.1}, 1.008 - 0.005*(0.3/2.4), false}, // stated HVL wins
+		{BeamQuality{TubeVoltage: 80}, (1.008 + 1.003) / 2, false},                             // no HVL (phantom beam): along kV, 70→1.008, 90→1.003
+		{BeamQuality{TubeVoltage: 130}, 0, true},                                               // by kV, above the table's 120 kV
 	}
 	for _, tc := range tests {
 		got, err := c.CoefficientAt(tc.q)
@@ -216,18 +216,18 @@ func TestCoefficientAt(t *testing.T) {
 	}
 	// Tube-voltage table.
 	h := load(t, "ondrakel-dx2-30417.yaml")
-	if got, err := h.CoefficientAt(Quality{TubeVoltage: 80}); err != nil || abs(got-1.0055) > 1e-12 {
+	if got, err := h.CoefficientAt(BeamQuality{TubeVoltage: 80}); err != nil || abs(got-1.0055) > 1e-12 {
 		t.Errorf("80 kV = %v, %v; want (1.000+1.011)/2 = 1.0055", got, err)
 	}
-	if _, err := h.CoefficientAt(Quality{TubeVoltage: 40}); err == nil {
+	if _, err := h.CoefficientAt(BeamQuality{TubeVoltage: 40}); err == nil {
 		t.Error("40 kV is below the table and must be refused")
 	}
-	// Quality table: names only.
+	// A table of beam qualities: names only.
 	o := load(t, "veltrane-kr40-1187-expired.yaml")
-	if got, err := o.CoefficientAt(Quality{Name: "rqa7"}); err != nil || got != 1.004 {
+	if got, err := o.CoefficientAt(BeamQuality{Name: "rqa7"}); err != nil || got != 1.004 {
 		t.Errorf("RQA7 = %v, %v", got, err)
 	}
-	if _, err := o.CoefficientAt(Quality{Name: "RQA9"}); err == nil {
+	if _, err := o.CoefficientAt(BeamQuality{Name: "RQA9"}); err == nil {
 		t.Error("RQA9 is not in the table and must be refused")
 	}
 }

@@ -138,11 +138,11 @@ type Geometry struct {
 
 // Setup is everything a reading's corrections depend on besides its value.
 type Setup struct {
-	Cert     *Certificate // nil: no certificate for this meter
-	Day      time.Time    // the session's wall-clock time, for certificate validity
-	Quality  Quality      // beam quality (dosimeter)
-	Air      Air          // room air (vented chambers)
-	Geometry Geometry     // dosimeter position
+	Cert        *Certificate // nil: no certificate for this meter
+	Day         time.Time    // the session's wall-clock time, for certificate validity
+	BeamQuality BeamQuality  // beam quality (dosimeter)
+	Air         Air          // room air (vented chambers)
+	Geometry    Geometry     // dosimeter position
 	// Meter is what the meter reported when asked who it is
 	// (drivers.Identifier), nil when it was not identified. A certificate
 	// applies only to the meter whose model and serial it names
@@ -221,16 +221,16 @@ func (c Corrected) RelStdUncB() float64 {
 
 // OutsideTableError says a beam quality lies outside a certificate's table.
 type OutsideTableError struct {
-	Cert    string
-	Axis    Axis
-	Value   float64
-	Lo, Hi  float64
-	Quality string
+	Cert        string
+	Axis        Axis
+	Value       float64
+	Lo, Hi      float64
+	BeamQuality string
 }
 
 func (e *OutsideTableError) Error() string {
 	if e.Axis == AlongQuality {
-		return fmt.Sprintf("beam quality %q is not in certificate %s", e.Quality, e.Cert)
+		return fmt.Sprintf("beam quality %q is not in certificate %s", e.BeamQuality, e.Cert)
 	}
 	return fmt.Sprintf("beam quality outside certificate %s: %s %g lies outside %g to %g", e.Cert, axisWords(e.Axis), e.Value, e.Lo, e.Hi)
 }
@@ -251,7 +251,7 @@ const relTol = 1e-9
 // It refuses to extrapolate: a quality outside the table's range is an
 // *OutsideTableError. A quality named after an IEC 61267 RQA quality has
 // its HVL and tube voltage filled from [RQAQualities] when not stated.
-func (c *Certificate) CoefficientAt(q Quality) (float64, error) {
+func (c *Certificate) CoefficientAt(q BeamQuality) (float64, error) {
 	if len(c.Points) == 0 {
 		return c.Coefficient, nil
 	}
@@ -266,20 +266,20 @@ func (c *Certificate) CoefficientAt(q Quality) (float64, error) {
 			return 0, fmt.Errorf("certificate %s is tabulated by beam quality name, but no quality was given", c.Number)
 		}
 		for _, p := range c.Points {
-			if strings.EqualFold(p.Quality.Name, q.Name) {
+			if strings.EqualFold(p.BeamQuality.Name, q.Name) {
 				return p.Factor, nil
 			}
 		}
-		return 0, &OutsideTableError{Cert: c.Number, Axis: AlongQuality, Quality: q.Name}
+		return 0, &OutsideTableError{Cert: c.Number, Axis: AlongQuality, BeamQuality: q.Name}
 	}
 	x := c.axisValue(q)
-	lo, hi := c.axisValue(c.Points[0].Quality), c.axisValue(c.Points[len(c.Points)-1].Quality)
+	lo, hi := c.axisValue(c.Points[0].BeamQuality), c.axisValue(c.Points[len(c.Points)-1].BeamQuality)
 	if x <= 0 || math.IsNaN(x) {
 		return 0, fmt.Errorf("certificate %s is tabulated along %s, but the beam quality gives none", c.Number, axisWords(c.Along))
 	}
 	tol := relTol * hi
 	if x < lo-tol || x > hi+tol {
-		return 0, &OutsideTableError{Cert: c.Number, Axis: c.Along, Value: x, Lo: lo, Hi: hi, Quality: q.Name}
+		return 0, &OutsideTableError{Cert: c.Number, Axis: c.Along, Value: x, Lo: lo, Hi: hi, BeamQuality: q.Name}
 	}
 	if len(c.Points) == 1 {
 		return c.Points[0].Factor, nil
@@ -287,7 +287,7 @@ func (c *Certificate) CoefficientAt(q Quality) (float64, error) {
 	xs := make([]float64, len(c.Points))
 	ys := make([]float64, len(c.Points))
 	for i, p := range c.Points {
-		xs[i], ys[i] = c.axisValue(p.Quality), p.Factor
+		xs[i], ys[i] = c.axisValue(p.BeamQuality), p.Factor
 	}
 	var pl interp.PiecewiseLinear
 	if err := pl.Fit(xs, ys); err != nil {
@@ -303,12 +303,12 @@ func (c *Certificate) CoefficientAt(q Quality) (float64, error) {
 // voltage. The coefficient then carries the chamber's energy dependence
 // only approximately, which the correction's note says (common practice:
 // the nearest calibrated quality by kV is used when the HVL is unknown).
-func (c *Certificate) voltageFallback(q Quality) bool {
+func (c *Certificate) voltageFallback(q BeamQuality) bool {
 	if c.Along != AlongHVL || q.HVL > 0 || q.TubeVoltage <= 0 || len(c.Points) == 0 {
 		return false
 	}
 	for _, p := range c.Points {
-		if p.Quality.TubeVoltage <= 0 {
+		if p.BeamQuality.TubeVoltage <= 0 {
 			return false
 		}
 	}
@@ -397,17 +397,17 @@ func Correct(value float64, q units.Quantity, s Setup) Corrected {
 		} else if v.DueSoon {
 			flag(FlagDueSoon, "%s", v.Text)
 		}
-		n, err := c.CoefficientAt(s.Quality)
+		n, err := c.CoefficientAt(s.BeamQuality)
 		switch {
 		case err == nil:
 			note := fmt.Sprintf("certificate %s", c.Number)
 			switch {
 			case len(c.Points) > 1 && c.Along == AlongQuality:
-				note = fmt.Sprintf("certificate %s, row %s", c.Number, s.Quality.Name)
-			case len(c.Points) > 1 && c.voltageFallback(s.Quality.filled()):
-				note = fmt.Sprintf("certificate %s, interpolated at tube voltage %g kV (half-value layer not measured: energy dependence approximate)", c.Number, s.Quality.filled().TubeVoltage)
+				note = fmt.Sprintf("certificate %s, row %s", c.Number, s.BeamQuality.Name)
+			case len(c.Points) > 1 && c.voltageFallback(s.BeamQuality.filled()):
+				note = fmt.Sprintf("certificate %s, interpolated at tube voltage %g kV (half-value layer not measured: energy dependence approximate)", c.Number, s.BeamQuality.filled().TubeVoltage)
 			case len(c.Points) > 1:
-				fq := s.Quality.filled()
+				fq := s.BeamQuality.filled()
 				note = fmt.Sprintf("certificate %s, interpolated at %s %g", c.Number, axisWords(c.Along), c.axisValue(fq))
 			}
 			apply(Applied{Name: CorrCoefficient, Factor: n, Note: note})

@@ -64,12 +64,12 @@ func hasFlag(c Corrected, code FlagCode) bool {
 func TestCorrectDosimeterOrderAndRecord(t *testing.T) {
 	c := load(t, "veltrane-kr40-1187.yaml")
 	s := Setup{
-		Cert:     c,
-		Meter:    own(c),
-		Day:      day("2026-12-02"),
-		Quality:  Quality{Name: "RQA5"},
-		Air:      Air{Temperature: 24, Pressure: 98.0},
-		Geometry: Geometry{SourceToChamber: 900, SourceToInput: 1000, OnFace: true, GridRemoved: true},
+		Cert:        c,
+		Meter:       own(c),
+		Day:         day("2026-12-02"),
+		BeamQuality: BeamQuality{Name: "RQA5"},
+		Air:         Air{Temperature: 24, Pressure: 98.0},
+		Geometry:    Geometry{SourceToChamber: 900, SourceToInput: 1000, OnFace: true, GridRemoved: true},
 	}
 	got := Correct(0.5, units.AirKermaRate, s)
 	if !got.Calibrated || len(got.Flags) != 0 {
@@ -106,7 +106,7 @@ func TestCorrectPhotometer(t *testing.T) {
 func TestCorrectFlagsInsteadOfCalibrating(t *testing.T) {
 	good := load(t, "veltrane-kr40-1187.yaml")
 	old := load(t, "veltrane-kr40-1187-expired.yaml")
-	base := Setup{Cert: good, Meter: own(good), Day: day("2026-12-02"), Quality: Quality{Name: "RQA5"}, Air: Air{Temperature: 21, Pressure: 100.9}}
+	base := Setup{Cert: good, Meter: own(good), Day: day("2026-12-02"), BeamQuality: BeamQuality{Name: "RQA5"}, Air: Air{Temperature: 21, Pressure: 100.9}}
 	tests := []struct {
 		name  string
 		edit  func(*Setup)
@@ -115,8 +115,8 @@ func TestCorrectFlagsInsteadOfCalibrating(t *testing.T) {
 	}{
 		{"expired certificate", func(s *Setup) { s.Cert = old }, FlagExpired, "expired"},
 		{"no certificate", func(s *Setup) { s.Cert = nil }, FlagNoCertificate, "no calibration certificate"},
-		{"quality above the table", func(s *Setup) { s.Quality = Quality{HVL: 14} }, FlagOutsideQuality, "outside"},
-		{"quality not in a named table", func(s *Setup) { s.Cert = old; s.Day = day("2024-06-01"); s.Quality = Quality{Name: "RQA3"} }, FlagOutsideQuality, "RQA3"},
+		{"quality above the table", func(s *Setup) { s.BeamQuality = BeamQuality{HVL: 14} }, FlagOutsideQuality, "outside"},
+		{"quality not in a named table", func(s *Setup) { s.Cert = old; s.Day = day("2024-06-01"); s.BeamQuality = BeamQuality{Name: "RQA3"} }, FlagOutsideQuality, "RQA3"},
 		{"missing pressure", func(s *Setup) { s.Air.Pressure = 0 }, FlagNoAirDensity, "pressure"},
 		{"missing temperature", func(s *Setup) { s.Air.Temperature = math.NaN() }, FlagNoAirDensity, "temperature"},
 		{"pressure in the wrong unit", func(s *Setup) { s.Air.Pressure = 1013 }, FlagNoAirDensity, "pressure"},
@@ -137,7 +137,7 @@ func TestCorrectFlagsInsteadOfCalibrating(t *testing.T) {
 	}
 	// A sealed detector needs no air density: missing T and P are fine.
 	h := load(t, "ondrakel-dx2-30417.yaml")
-	c := Correct(1, units.AirKermaRate, Setup{Cert: h, Meter: own(h), Day: day("2026-12-02"), Quality: Quality{TubeVoltage: 70}})
+	c := Correct(1, units.AirKermaRate, Setup{Cert: h, Meter: own(h), Day: day("2026-12-02"), BeamQuality: BeamQuality{TubeVoltage: 70}})
 	if !c.Calibrated || !hasFlag(c, FlagDueSoon) {
 		t.Errorf("sealed detector, due in 16 days: calibrated %v flags %v", c.Calibrated, c.Flags)
 	}
@@ -145,7 +145,7 @@ func TestCorrectFlagsInsteadOfCalibrating(t *testing.T) {
 
 func TestCorrectedTypeBAndCollect(t *testing.T) {
 	c := load(t, "veltrane-kr40-1187.yaml")
-	s := Setup{Cert: c, Meter: own(c), Day: day("2026-12-02"), Quality: Quality{Name: "RQA5"},
+	s := Setup{Cert: c, Meter: own(c), Day: day("2026-12-02"), BeamQuality: BeamQuality{Name: "RQA5"},
 		Air:      Air{Temperature: 24, Pressure: 98.0, TemperatureUnc: 0.3, PressureUnc: 0.1},
 		Geometry: Geometry{SourceToChamber: 900, SourceToInput: 1000, DistanceUnc: 2}}
 	var rs []Corrected
@@ -187,7 +187,7 @@ func TestCorrectedTypeBAndCollect(t *testing.T) {
 func TestGridStateAlwaysRecorded(t *testing.T) {
 	h := load(t, "ondrakel-dx2-30417.yaml")
 	for _, removed := range []bool{true, false} {
-		c := Correct(1, units.AirKermaRate, Setup{Cert: h, Meter: own(h), Day: day("2026-12-02"), Quality: Quality{TubeVoltage: 70}, Geometry: Geometry{GridRemoved: removed}})
+		c := Correct(1, units.AirKermaRate, Setup{Cert: h, Meter: own(h), Day: day("2026-12-02"), BeamQuality: BeamQuality{TubeVoltage: 70}, Geometry: Geometry{GridRemoved: removed}})
 		last := c.Applied[len(c.Applied)-1]
 		want := map[bool]string{true: "grid removed", false: "grid in place"}[removed]
 		if last.Name != CorrGeometry || last.Factor != 1 || !strings.Contains(last.Note, want) || c.Value != 1 {

@@ -38,7 +38,7 @@ func TestCertificateAppliesOnlyToItsMeter(t *testing.T) {
 	}
 	// A reading from another meter gets none of the certificate: no
 	// coefficient, no k_TP from its chamber, not calibrated, and says why.
-	s := Setup{Cert: c, Day: day("2026-12-02"), Quality: Quality{Name: "RQA5"}, Air: Air{Temperature: 21, Pressure: 100.9},
+	s := Setup{Cert: c, Day: day("2026-12-02"), BeamQuality: BeamQuality{Name: "RQA5"}, Air: Air{Temperature: 21, Pressure: 100.9},
 		Meter: &drivers.Identity{Maker: "VELTRANE", Model: "KR-40", Serial: "KR40-0921"}}
 	got := Correct(0.5, units.AirKermaRate, s)
 	if got.Calibrated || !hasFlag(got, FlagOtherMeter) || got.Value != 0.5 || hasApplied(got.Applied, CorrCoefficient) || hasApplied(got.Applied, CorrKTP) {

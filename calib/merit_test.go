@@ -159,7 +159,7 @@ func TestContrastRatioCancelsPhotometerCalibration(t *testing.T) {
 
 func TestConversionFactorUncalibratedInput(t *testing.T) {
 	old := load(t, "veltrane-kr40-1187-expired.yaml")
-	k := Correct(1, units.AirKermaRate, Setup{Cert: old, Meter: own(old), Day: day("2026-12-02"), Quality: Quality{Name: "RQA5"}, Air: Air{Temperature: 21, Pressure: 100}})
+	k := Correct(1, units.AirKermaRate, Setup{Cert: old, Meter: own(old), Day: day("2026-12-02"), BeamQuality: BeamQuality{Name: "RQA5"}, Air: Air{Temperature: 21, Pressure: 100}})
 	in := Measured{Name: "K", Samples: Summary{N: 5, Mean: k.Value, SD: 0.01}, Calibrated: k.Calibrated, Flags: k.Flags}
 	r := ConversionFactor(meas(150, 5, 1), in, 0)
 	if r.Calibrated || len(r.Flags) == 0 || r.Flags[0].Code != FlagExpired {

@@ -2,10 +2,10 @@ package calib
 
 import "strings"
 
-// Quality describes an X-ray beam quality: its name (for example "RQA5"),
+// BeamQuality describes an X-ray beam quality: its name (for example "RQA5"),
 // tube voltage in kV, added aluminium filtration in mm and first half-value
 // layer in mm Al. Zero means "not stated".
-type Quality struct {
+type BeamQuality struct {
 	Name        string  `json:"name,omitempty"`
 	TubeVoltage float64 `json:"tube_voltage_kv,omitempty"`
 	AddedAl     float64 `json:"added_al_mm,omitempty"`
@@ -29,7 +29,7 @@ type Quality struct {
 // wrong point of its table and give a calibrated reading that is wrong.
 // A beam that is none of these is described by tube voltage in the
 // procedure's setup instead.
-var RQAQualities = []Quality{
+var RQAQualities = []BeamQuality{
 	{Name: "RQA3", TubeVoltage: 50, AddedAl: 10, HVL: 3.8},
 	{Name: "RQA5", TubeVoltage: 70, AddedAl: 21, HVL: 6.8},
 	{Name: "RQA7", TubeVoltage: 90, AddedAl: 30, HVL: 9.2},
@@ -42,18 +42,18 @@ var RQA1994HVL = map[string]float64{"RQA3": 4.0, "RQA5": 7.1, "RQA7": 9.1, "RQA9
 
 // RQA returns the IEC 61267 (2005) RQA quality of that name (case is
 // ignored).
-func RQA(name string) (Quality, bool) {
+func RQA(name string) (BeamQuality, bool) {
 	for _, q := range RQAQualities {
 		if strings.EqualFold(q.Name, strings.TrimSpace(name)) {
 			return q, true
 		}
 	}
-	return Quality{}, false
+	return BeamQuality{}, false
 }
 
 // filled returns q with its tube voltage and HVL taken from the RQA table
 // when q names an RQA quality and leaves them unstated.
-func (q Quality) filled() Quality {
+func (q BeamQuality) filled() BeamQuality {
 	if r, ok := RQA(q.Name); ok {
 		if q.TubeVoltage == 0 {
 			q.TubeVoltage = r.TubeVoltage

@@ -37,11 +37,11 @@ func (cc CalibCorrector) Correct(r drivers.Reading, c Conditions) Corrected {
 	if s.Day.IsZero() {
 		s.Day = r.Wall
 	}
-	if q, ok := calib.RQA(c.Quality); ok {
-		s.Quality = q
+	if q, ok := calib.RQA(c.BeamQuality); ok {
+		s.BeamQuality = q
 	}
-	if kv, ok := c.Values["tube_voltage"]; ok && s.Quality == (calib.Quality{}) {
-		s.Quality.TubeVoltage = kv
+	if kv, ok := c.Values["tube_voltage"]; ok && s.BeamQuality == (calib.BeamQuality{}) {
+		s.BeamQuality.TubeVoltage = kv
 	}
 	s.Air = calib.Air{Temperature: math.NaN(), Pressure: math.NaN(), TemperatureUnc: cc.TemperatureUnc, PressureUnc: cc.PressureUnc}
 	if t, ok := c.Values["temperature"]; ok {

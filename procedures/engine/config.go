@@ -110,12 +110,12 @@ type Expect struct {
 
 // MeasureSpec describes a measurement.
 type MeasureSpec struct {
-	Meters    []string // roles: Dosimeter, Photometer
-	Beam      bool     // false: a dark (beam-off) reading
-	Quality   string   // beam quality, e.g. RQA5
-	Positions []Position
-	Precision float64       // relative expanded uncertainty to reach (0.02 = 2 %); 0: Settings.Precision
-	MaxBeam   time.Duration // per position; 0: Settings.MaxBeam
+	Meters      []string // roles: Dosimeter, Photometer
+	Beam        bool     // false: a dark (beam-off) reading
+	BeamQuality string   // beam quality, e.g. RQA5
+	Positions   []Position
+	Precision   float64       // relative expanded uncertainty to reach (0.02 = 2 %); 0: Settings.Precision
+	MaxBeam     time.Duration // per position; 0: Settings.MaxBeam
 	// MinBeam is what each position keeps in reserve in its pools
 	// (0: MaxBeam, the whole of it).
 	MinBeam  time.Duration
@@ -179,9 +179,9 @@ type Conditions struct {
 	// Unc are the standard uncertainties (canonical units) of values read
 	// by a sensor (the room-air sensor's temperature and pressure); a
 	// value without one takes the corrector's own.
-	Unc       map[string]float64
-	Quality   string
-	FieldMode string
+	Unc         map[string]float64
+	BeamQuality string
+	FieldMode   string
 	// Dark is this meter's beam-off level in its own scale (before any
 	// correction), nil when none was taken: the corrector subtracts it
 	// before applying the coefficient.

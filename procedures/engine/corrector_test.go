@@ -21,7 +21,7 @@ func TestCorrectorAddsAirInstruments(t *testing.T) {
 	}
 	day := time.Date(2026, 12, 2, 10, 0, 0, 0, time.UTC)
 	r := drivers.Reading{Quantity: units.AirKermaRate, Value: 0.45, Unit: "µGy/s", Status: drivers.StatusOK, Wall: day}
-	c := Conditions{Quality: "RQA5", Values: map[string]float64{"temperature": 23.5, "pressure": 99.2}}
+	c := Conditions{BeamQuality: "RQA5", Values: map[string]float64{"temperature": 23.5, "pressure": 99.2}}
 	own := &drivers.Identity{Maker: "VELTRANE", Model: "KR-40", Serial: cert.Serial}
 	plain := CalibCorrector{Cert: cert, Day: day, Geometry: calib.Geometry{GridRemoved: true}, Meter: own}.Correct(r, c)
 	uT, uP := 0.5/math.Sqrt(3), 0.2/math.Sqrt(3)

@@ -396,7 +396,7 @@ func cfSteps() []Step {
 		{ID: "dark", Kind: Measure, Text: "Keep the beam off. Press the switch for the dark reading.", Measure: &MeasureSpec{Meters: []string{Photometer}, Duration: 2 * time.Second}},
 		{ID: "cf@32cm", Kind: Measure, FieldMode: "32cm", Text: "Select the 32 centimetre field. Set 70 kV. Press the switch, then step on the pedal.",
 			Setup:   map[string]string{"field_mode": "32cm", "tube_voltage": "70 kV"},
-			Measure: &MeasureSpec{Meters: []string{Dosimeter, Photometer}, Beam: true, Quality: "RQA5", Precision: 0.02, MaxBeam: 30 * time.Second}},
+			Measure: &MeasureSpec{Meters: []string{Dosimeter, Photometer}, Beam: true, BeamQuality: "RQA5", Precision: 0.02, MaxBeam: 30 * time.Second}},
 		{ID: "g@32cm", Kind: Compute, FieldMode: "32cm", Compute: &ComputeSpec{Figure: "conversion_factor", Inputs: map[string]string{"luminance": "cf@32cm", "air_kerma_rate": "cf@32cm"}}},
 		{ID: "judge@32cm", Kind: Judge, FieldMode: "32cm", Judge: &JudgeSpec{Result: "g@32cm", Limits: []JudgeLimit{{Kind: "min", Value: 100}}}},
 	}

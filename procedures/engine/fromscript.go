@@ -68,7 +68,7 @@ func measureFrom(s *script.Step, st *Step) {
 	if m == nil {
 		return
 	}
-	ms := &MeasureSpec{Beam: m.Beam, Quality: m.BeamQuality, Precision: m.Precision, MaxBeam: m.MaxBeam, MinBeam: m.MinBeam, Duration: m.Duration}
+	ms := &MeasureSpec{Beam: m.Beam, BeamQuality: m.BeamQuality, Precision: m.Precision, MaxBeam: m.MaxBeam, MinBeam: m.MinBeam, Duration: m.Duration}
 	for _, r := range m.Reads {
 		ms.Meters = append(ms.Meters, strings.ToLower(r.Meter))
 	}

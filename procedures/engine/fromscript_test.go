@@ -81,7 +81,7 @@ func TestFromFlatEveryKind(t *testing.T) {
 	// RQA5 is 70 kV with 21 mm Al added (IEC 61267, as in reference.md);
 	// the expected range is written in µGy/s, the canonical unit.
 	m := byID["light@17 cm"]
-	wantM := MeasureSpec{Meters: []string{Dosimeter, Photometer}, Beam: true, Quality: "RQA5", MaxBeam: 20 * time.Second,
+	wantM := MeasureSpec{Meters: []string{Dosimeter, Photometer}, Beam: true, BeamQuality: "RQA5", MaxBeam: 20 * time.Second,
 		Expect: []Expect{{Quantity: "air_kerma_rate", Min: 0.02, Max: 20}}}
 	if m.Measure == nil || !reflect.DeepEqual(*m.Measure, wantM) || m.FieldMode != "17 cm" ||
 		m.Setup["tube_voltage"] != "70 kV" || m.Setup["added_filter"] != "21 mm Al" {

@@ -923,7 +923,7 @@ func (e *Engine) readOne(ctx context.Context, a *attempt, role string) (drivers.
 
 // correct applies the meter's calibration, with the session's conditions.
 func (e *Engine) correct(a *attempt, role string, r drivers.Reading) Corrected {
-	cond := Conditions{Values: e.st.values, Unc: e.st.valueUnc, Quality: a.spec.Quality, FieldMode: a.step.FieldMode}
+	cond := Conditions{Values: e.st.values, Unc: e.st.valueUnc, BeamQuality: a.spec.BeamQuality, FieldMode: a.step.FieldMode}
 	if d, ok := e.st.darkFor(role, a.label); ok && a.spec.Beam {
 		cond.Dark = &d
 	}
@@ -937,7 +937,7 @@ func (e *Engine) correct(a *attempt, role string, r drivers.Reading) Corrected {
 			c.Corrections = append(c.Corrections, entry.Correction{Name: "dark", Factor: 1, Offset: -cond.Dark.Mean})
 		}
 	}
-	if role == Dosimeter && a.spec.Quality == "" {
+	if role == Dosimeter && a.spec.BeamQuality == "" {
 		// The coefficient is taken at the tube voltage entered: say where
 		// that value came from when nobody read it off for this reading.
 		if note := e.kvNote(a); note != "" {

@@ -71,7 +71,7 @@ func TestResumeAfterPowerCut(t *testing.T) {
 	// A second field mode makes the cut land between measurements too.
 	steps = append(steps,
 		Step{ID: "cf@17cm", Kind: Measure, FieldMode: "17cm", Text: "Select the 17 centimetre field. Press the switch, then step on the pedal.",
-			Measure: &MeasureSpec{Meters: []string{Dosimeter, Photometer}, Beam: true, Quality: "RQA5", Precision: 0.02, MaxBeam: 30 * time.Second}},
+			Measure: &MeasureSpec{Meters: []string{Dosimeter, Photometer}, Beam: true, BeamQuality: "RQA5", Precision: 0.02, MaxBeam: 30 * time.Second}},
 		Step{ID: "g@17cm", Kind: Compute, FieldMode: "17cm", Compute: &ComputeSpec{Figure: "conversion_factor", Inputs: map[string]string{"luminance": "cf@17cm", "air_kerma_rate": "cf@17cm"}}},
 	)
 	// Count the appends of an uninterrupted run.

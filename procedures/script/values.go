@@ -17,7 +17,7 @@ import (
 // exactly the qualities the corrections know, so a procedure can never
 // name a quality whose half-value layer the certificate table cannot be
 // read at.
-func beamQuality(name string) (calib.Quality, bool) { return calib.RQA(name) }
+func beamQuality(name string) (calib.BeamQuality, bool) { return calib.RQA(name) }
 
 func qualityNames() string {
 	var s []string

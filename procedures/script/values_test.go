@@ -174,7 +174,7 @@ func TestConversionFactorUnit(t *testing.T) {
 // tabulates them).
 func TestBeamQualitiesAreCalibs(t *testing.T) {
 	cert := &calib.Certificate{Number: "T", Along: calib.AlongHVL, Points: []calib.Point{
-		{Quality: calib.Quality{HVL: 1}, Factor: 1}, {Quality: calib.Quality{HVL: 20}, Factor: 1}}}
+		{BeamQuality: calib.BeamQuality{HVL: 1}, Factor: 1}, {BeamQuality: calib.BeamQuality{HVL: 20}, Factor: 1}}}
 	want := map[string][2]float64{"RQA3": {50, 10}, "RQA5": {70, 21}, "RQA7": {90, 30}, "RQA9": {120, 40}}
 	for i := 1; i <= 10; i++ {
 		name := fmt.Sprintf("RQA%d", i)
@@ -184,7 +184,7 @@ func TestBeamQualitiesAreCalibs(t *testing.T) {
 		for _, p := range asProblems(err) {
 			refused = refused || strings.Contains(p.Reason, "unknown radiation quality")
 		}
-		_, cerr := cert.CoefficientAt(calib.Quality{Name: name})
+		_, cerr := cert.CoefficientAt(calib.BeamQuality{Name: name})
 		if refused != (cerr != nil) {
 			t.Errorf("%s: checker refuses %v, but calib's coefficient lookup gives error %v", name, refused, cerr)
 		}
