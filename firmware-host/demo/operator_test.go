@@ -126,8 +126,13 @@ func TestOperatorTakesAPersonsTime(t *testing.T) {
 	// Engineer time = the operator's waits + the board's own time, which
 	// the delays do not change: within 25 % and 20 s of the hurried run's
 	// (a retake in one run and not the other is 10 s or so).
+	// A host that kept either run waiting for a CPU (HostLag.Busy) makes
+	// retakes that lengthen the board's time: then this comparison says
+	// nothing about the delays, and is left out.
 	board, fastBoard := slow.Engineer-slow.Waited, fast.Engineer-fast.Waited
-	if math.Abs((board - fastBoard).Seconds()) > 20+0.25*fastBoard.Seconds() {
+	if slow.Host.Busy() || fast.Host.Busy() {
+		t.Logf("busy host (pressure %.1f and %.1f): board time %v and %v not compared", slow.Host.Pressure(), fast.Host.Pressure(), board, fastBoard)
+	} else if math.Abs((board - fastBoard).Seconds()) > 20+0.25*fastBoard.Seconds() {
 		t.Errorf("board time %v with the operator's delays, %v hurried: the delays are not what the engineer time adds", board, fastBoard)
 	}
 	if slow.Engineer < fast.Engineer+3*time.Minute {
