@@ -5,6 +5,7 @@ import (
 	"errors"
 	"strings"
 	"testing"
+	"time"
 
 	"kermalux/drivers"
 	"kermalux/procedures/entry"
@@ -162,3 +163,32 @@ func TestClosingSummarySaidBeforeEnd(t *testing.T) {
 type correctorFunc func(r drivers.Reading, c Conditions) Corrected
 
 func (f correctorFunc) Correct(r drivers.Reading, c Conditions) Corrected { return f(r, c) }
+
+// TestClosingSummaryNamesWhy: the closing summary says why results need
+// review in the engineer's terms: a figure that could not be measured is
+// "not measurable", not "not calibrated" (it was said so of eight
+// not-measurable figures).
+func TestClosingSummaryNamesWhy(t *testing.T) {
+	nm := entry.Result{Quantity: "contrast_ratio", Verdict: "not_measurable"}
+	unc := entry.Result{Quantity: "conversion_factor", FieldMode: "25cm", Verdict: "pass"}
+	ok := entry.Result{Quantity: "conversion_factor", FieldMode: "17cm", Verdict: "pass", Calibrated: true}
+	for _, c := range []struct {
+		results []entry.Result
+		want    string
+	}{
+		{[]entry.Result{nm, ok}, "One result needs review: not measurable."},
+		{[]entry.Result{unc, ok}, "One result needs review: not calibrated."},
+		{[]entry.Result{nm, nm, unc}, "Three results need review: not measurable, not calibrated."},
+		{[]entry.Result{ok}, "No results need review."},
+	} {
+		sum := Summary{Results: c.results}
+		for _, r := range c.results {
+			if needsReview(r) {
+				sum.Review++
+			}
+		}
+		if got := (&Engine{}).closingSummary(sum, 90*time.Second); !strings.Contains(got, c.want) {
+			t.Errorf("%q, want %q in it", got, c.want)
+		}
+	}
+}

@@ -363,6 +363,8 @@ func (e *Engine) closingSummary(sum Summary, beamOn time.Duration) string {
 				w += ", " + e.text(r.DecidedBy)
 			}
 			fails = append(fails, w)
+		case r.Verdict == string(calib.NotMeasurable):
+			why = appendUnique(why, e.t("not measurable"))
 		case needsReview(r):
 			why = appendUnique(why, e.t("not calibrated"))
 		}
