@@ -10,6 +10,7 @@ import (
 	"time"
 
 	"kermalux/firmware-host/demo"
+	"kermalux/procedures/catalog"
 	"kermalux/procedures/entry"
 )
 
@@ -75,12 +76,31 @@ func TestCompletionOffersNames(t *testing.T) {
 // decimals, no exponent.
 func TestDemoSummaryTable(t *testing.T) {
 	var b bytes.Buffer
-	writeSummaryTable(&b, []entry.Result{
+	results := []entry.Result{
 		{Quantity: "conversion_factor", FieldMode: "25cm", Value: 95.17, ExpUnc: 3.5, K: 2.002, Unit: "cd·m⁻²/(µGy·s⁻¹)", Verdict: "pass", Calibrated: true},
 		{Quantity: "dark_level", Value: 0.03004, ExpUnc: 5.4e-06, K: 2, Unit: "cd/m²", Verdict: "pass", Calibrated: true},
 		{Quantity: "stability", Value: 0.00378, Unit: "1", Verdict: "info", Calibrated: true},
 		{Quantity: "contrast_ratio", Value: 0, Unit: "1", Verdict: "not_measurable", DecidedBy: "the photometer is over range"},
-	})
+	}
+	writeSummaryTable(&b, results, nil)
+	// The board's German shows the same table in German, numbers with the
+	// decimal comma (the German written by hand: procedures/catalog/lang/de).
+	de, err := catalog.Builtin("de")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var g bytes.Buffer
+	writeSummaryTable(&g, results, de)
+	for _, want := range []string{"Größe", "Feld", "Wert", "Einheit", "Bewertung", "95,2", "± 3,5", "2,00", "0,0300400", "nicht ermittelt", "nicht gemessen", "Verhältnis", "bestanden", "nicht messbar"} {
+		if !strings.Contains(g.String(), want) {
+			t.Errorf("German summary lacks %q:\n%s", want, g.String())
+		}
+	}
+	for _, english := range []string{"quantity", "value", "95.2", "not evaluated", "not measured", "pass", " ratio"} {
+		if strings.Contains(g.String(), english) {
+			t.Errorf("German summary says %q:\n%s", english, g.String())
+		}
+	}
 	out := b.String()
 	lines := strings.Split(strings.TrimSpace(out), "\n")
 	// A figure that could not be measured shows no value (it printed 0).
@@ -273,7 +293,7 @@ func TestVisitLine(t *testing.T) {
 	} {
 		out := &demo.Outcome{Engineer: c.engineer, Waited: 9*time.Minute + 30*time.Second, Exposures: 19}
 		out.Summary.BeamOn = 95 * time.Second
-		if got := visitLine(out); !strings.Contains(got, c.want) {
+		if got := visitLine(out, nil); !strings.Contains(got, c.want) {
 			t.Errorf("visit line\n%s\nlacks\n%s", got, c.want)
 		}
 	}

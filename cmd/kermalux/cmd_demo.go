@@ -158,13 +158,15 @@ func runDemo(parent context.Context, w, errw io.Writer, o demoOptions, hasSeed b
 			return withCode(exitFailure, errors.Join(runErr, err))
 		}
 	case out != nil:
-		printDemoSummary(w, out)
+		msgs, _ := catalog.Builtin(o.language) // refused above when unknown
+		printDemoSummary(w, out, msgs)
 	}
 	if runErr != nil {
 		return withCode(exitFailure, runErr)
 	}
 	if view != nil && ctx.Err() == nil {
-		fmt.Fprintf(errw, "live view: the session is over; the page stays up on %s until interrupted (Ctrl-C)\n", view.Addr())
+		msgs, _ := catalog.Builtin(o.language)
+		fmt.Fprintln(errw, tr(msgs, "live view: the session is over; the page stays up on %s until interrupted (Ctrl-C)", view.Addr()))
 		<-ctx.Done()
 	}
 	return nil
@@ -196,33 +198,45 @@ func printDemoJSON(w io.Writer, out *demo.Outcome) error {
 	return writeJSON(w, doc)
 }
 
-func printDemoSummary(w io.Writer, out *demo.Outcome) {
+// printDemoSummary prints the session's summary in the language m
+// translates into (nil: English), as the board shows it; the quantities
+// keep the names results.json gives them.
+func printDemoSummary(w io.Writer, out *demo.Outcome, m *catalog.Catalog) {
 	s := out.Summary
-	fmt.Fprintf(w, "\nSession %s (SIMULATED): %s, %d of %d steps, beam-on %.0f s, %s simulated in %s.\n",
-		s.Session, s.Outcome, s.Steps, s.Of, s.BeamOn.Seconds(), out.Elapsed.Round(1e9), out.Wall.Round(1e8))
-	fmt.Fprintln(w, visitLine(out))
+	fmt.Fprintln(w)
+	fmt.Fprintln(w, tr(m, "Session %s (SIMULATED): %s, %d of %d steps, beam-on %.0f s, %s simulated in %s.",
+		s.Session, m.Text(s.Outcome), s.Steps, s.Of, s.BeamOn.Seconds(), out.Elapsed.Round(1e9), m.Number(out.Wall.Round(1e8).String())))
+	fmt.Fprintln(w, visitLine(out, m))
 	if l := hostLine(out.Host, s.Results); l != "" {
 		fmt.Fprintln(w, l)
 	}
-	writeSummaryTable(w, s.Results)
+	writeSummaryTable(w, s.Results, m)
 	if s.Review > 0 {
-		fmt.Fprintf(w, "%d result(s) need review.\n", s.Review)
+		fmt.Fprintln(w, tr(m, "%d result(s) need review.", s.Review))
 	}
 	if out.Results != "" {
-		fmt.Fprintf(w, "Results: %s\nJournal: %s\nBench:   %s\n", out.Results, out.Journal, out.Bench)
+		fmt.Fprintln(w, tr(m, "Results: %s", out.Results))
+		fmt.Fprintln(w, tr(m, "Journal: %s", out.Journal))
+		fmt.Fprintln(w, tr(m, "Bench:   %s", out.Bench))
 	}
 	for _, r := range out.Reports {
-		fmt.Fprintf(w, "Report:  %s\n", r)
+		fmt.Fprintln(w, tr(m, "Report:  %s", r))
 	}
 	if len(out.Reports) == 0 && out.Results != "" {
-		fmt.Fprintf(w, "Report:  not rendered by this build; at the office: kermalux report --journal %s --out DIR\n", out.Journal)
+		fmt.Fprintln(w, tr(m, "Report:  not rendered by this build; at the office: kermalux report --journal %s --out DIR", out.Journal))
 	}
-	fmt.Fprintln(w, "Simulated bench: these figures are not measurements.")
+	fmt.Fprintln(w, m.Text("Simulated bench: these figures are not measurements."))
+}
+
+// tr is format in the language m translates into (nil: English), filled
+// with args.
+func tr(m *catalog.Catalog, format string, args ...any) string {
+	return fmt.Sprintf(m.Text(format), args...)
 }
 
 // visitLine is the visit's figures: the engineer's time against the
 // target, with the operator's part of it, beside beam-on and exposures.
-func visitLine(out *demo.Outcome) string {
+func visitLine(out *demo.Outcome, m *catalog.Catalog) string {
 	verdict := "within"
 	if out.Engineer > demo.EngineerTarget {
 		verdict = "over"
@@ -231,8 +245,8 @@ func visitLine(out *demo.Outcome) string {
 	if out.Hurried {
 		who = "a hurried operator's reaction times only (--hurried)"
 	}
-	return fmt.Sprintf("Visit: engineer time %s (%s the %s target; %s of it %s), beam-on %.0f s, %d exposures.",
-		minSec(out.Engineer), verdict, minSec(demo.EngineerTarget), minSec(out.Waited), who, out.Summary.BeamOn.Seconds(), out.Exposures)
+	return tr(m, "Visit: engineer time %s (%s the %s target; %s of it %s), beam-on %.0f s, %d exposures.",
+		minSec(out.Engineer, m), m.Text(verdict), minSec(demo.EngineerTarget, m), minSec(out.Waited, m), m.Text(who), out.Summary.BeamOn.Seconds(), out.Exposures)
 }
 
 // hostLine warns when the machine was too busy for the demo's speed:
@@ -256,18 +270,22 @@ func hostLine(l demo.HostLag, results []entry.Result) string {
 }
 
 // minSec writes d as "12 min 05 s".
-func minSec(d time.Duration) string {
+func minSec(d time.Duration, m *catalog.Catalog) string {
 	d = d.Round(time.Second)
-	m := d / time.Minute
-	return fmt.Sprintf("%d min %02d s", m, (d-m*time.Minute)/time.Second)
+	n := d / time.Minute
+	return tr(m, "%d min %02d s", n, (d-n*time.Minute)/time.Second)
 }
 
 // writeSummaryTable prints the results of a run as a table with a header:
 // the value rounded to its expanded uncertainty's two significant digits
 // (JCGM 100:2008 7.2.6), U, the coverage factor k with two decimals, the
 // unit and the verdict. Text columns are aligned left, numbers right.
-func writeSummaryTable(w io.Writer, results []entry.Result) {
-	rows := [][]string{{"quantity", "field", "value", "U", "k", "unit", "verdict"}}
+//
+// The heads, the words in the cells and the decimal separator are in the
+// language m translates into (nil: English); the quantities keep their
+// results.json names.
+func writeSummaryTable(w io.Writer, results []entry.Result, m *catalog.Catalog) {
+	rows := [][]string{{m.Text("quantity"), m.Text("field"), m.Text("value"), "U", "k", m.Text("unit"), m.Text("verdict")}}
 	for _, r := range results {
 		mode := r.FieldMode
 		if mode == "" {
@@ -278,19 +296,19 @@ func writeSummaryTable(w io.Writer, results []entry.Result) {
 		switch {
 		case r.Verdict == string(calib.NotMeasurable):
 			// No value to print: the verdict column and the report say why.
-			val, unc, k = "-", "not measured", "-"
+			val, unc, k = "-", m.Text("not measured"), "-"
 		case unc == "":
-			unc, k = "not evaluated", "-"
+			val, unc, k = m.Number(val), m.Text("not evaluated"), "-"
 		default:
-			unc = "± " + unc
+			val, unc, k = m.Number(val), "± "+m.Number(unc), m.Number(k)
 		}
-		verdict := r.Verdict
+		verdict := m.Text(r.Verdict)
 		if !r.Calibrated && r.Verdict != string(calib.NotMeasurable) {
-			verdict += " (not calibrated)"
+			verdict = tr(m, "%s (not calibrated)", verdict)
 		}
 		unit := r.Unit
 		if unit == "1" {
-			unit = "ratio"
+			unit = m.Text("ratio")
 		}
 		rows = append(rows, []string{r.Quantity, mode, val, unc, k, unit, verdict})
 	}

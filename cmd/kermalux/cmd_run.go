@@ -215,7 +215,8 @@ func runRun(parent context.Context, o runOptions, name string) error {
 		if err != nil {
 			return withCode(exitFailure, errors.Join(runErr, err))
 		}
-		fmt.Fprintf(errw, "session %s: %s, %d results, %d to review, beam-on %.0f s; %s\n", sum.Session, sum.Outcome, len(sum.Results), sum.Review, sum.BeamOn.Seconds(), path)
+		m := b.Messages() // shown on the board: in its language
+		fmt.Fprintln(errw, tr(m, "session %s: %s, %d results, %d to review, beam-on %.0f s; %s", sum.Session, m.Text(sum.Outcome), len(sum.Results), sum.Review, sum.BeamOn.Seconds(), path))
 		if o.asJSON {
 			if err := engine.WriteResults(os.Stdout, engine.NewResultsFile(sum, cfg.Session)); err != nil {
 				return withCode(exitFailure, errors.Join(runErr, err))

@@ -15,6 +15,7 @@ import (
 	"sync"
 	"syscall"
 	"time"
+	"unicode/utf8"
 
 	"kermalux/calib"
 	"kermalux/drivers/benchsim"
@@ -176,7 +177,7 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	if a := scn.Air; a != nil {
 		op.Readings["temperature"], op.Readings["pressure"] = a.TemperatureC, a.PressureKPa
 	}
-	t := &dialogue{w: o.Dialogue, clk: clk}
+	t := newDialogue(o.Dialogue, clk, b.Messages())
 	pan := scripted.New(clk,
 		scripted.WithResponder(func(p panel.Prompt) panel.Response {
 			t.ask(p)
@@ -319,6 +320,27 @@ type dialogue struct {
 	clk   clock.Clock
 	start time.Duration
 	began bool
+	tags  map[string]string // each kind's tag in the board's language
+	width int               // of the widest tag, for the column
+}
+
+// dialogueKinds are the kinds of line the dialogue prints, as tagged in
+// English.
+var dialogueKinds = []string{"ask", "check", "say", "WARN", "ALARM", "retry"}
+
+// newDialogue prints to w (nil: nothing) with each line's tag in the
+// language m translates into (nil: English), as the terminal panel does.
+func newDialogue(w io.Writer, clk clock.Clock, m engine.Messages) *dialogue {
+	t := &dialogue{w: w, clk: clk, tags: map[string]string{}, width: 5}
+	for _, k := range dialogueKinds {
+		tag := k
+		if m != nil {
+			tag = m.Text(k)
+		}
+		t.tags[k] = tag
+		t.width = max(t.width, utf8.RuneCountInString(tag))
+	}
+	return t
 }
 
 func (t *dialogue) line(kind, text string) {
@@ -330,7 +352,12 @@ func (t *dialogue) line(kind, text string) {
 	if !t.began {
 		t.start, t.began = t.clk.Mono(), true
 	}
-	fmt.Fprintf(t.w, "%s %-5s %s\n", clockText(t.clk.Mono()-t.start), kind, text)
+	tag := kind
+	if tr, ok := t.tags[kind]; ok {
+		tag = tr
+	}
+	tag += strings.Repeat(" ", max(0, t.width-utf8.RuneCountInString(tag)))
+	fmt.Fprintf(t.w, "%s %s %s\n", clockText(t.clk.Mono()-t.start), tag, text)
 }
 
 // clockText is the dialogue's clock, minutes and seconds to a tenth:

@@ -145,10 +145,13 @@ func (v *View) Announcement() panel.Message {
 // addresses, the pairing code, and the token link that pairs a browser
 // without the code. Whoever holds the token link sees the session, so it
 // is printed once and never spoken, shown or journalled.
+// It is in the board's language, as everything the board shows.
 func (v *View) Printed() string {
+	m := v.opts.Messages
+	tf := func(format string, a ...any) string { return fmt.Sprintf(m.Text(format), a...) }
 	var b strings.Builder
-	fmt.Fprintf(&b, "live view: listening on %s (read-only; plain HTTP: use the board's own link, not a shared network)\n", v.ln.Addr())
-	fmt.Fprintf(&b, "live view: open %s and enter the pairing code %s (spoken and shown at start)\n", strings.Join(v.URLs(), " or "), v.srv.Code())
-	fmt.Fprintf(&b, "live view: or pair with this link, printed once (keep it private): %s?token=%s\n", v.URLs()[0], v.srv.Token())
+	fmt.Fprintln(&b, tf("live view: listening on %s (read-only; plain HTTP: use the board's own link, not a shared network)", v.ln.Addr()))
+	fmt.Fprintln(&b, tf("live view: open %s and enter the pairing code %s (spoken and shown at start)", strings.Join(v.URLs(), " "+m.Text("or")+" "), v.srv.Code()))
+	fmt.Fprintln(&b, tf("live view: or pair with this link, printed once (keep it private): %s?token=%s", v.URLs()[0], v.srv.Token()))
 	return b.String()
 }
