@@ -351,7 +351,7 @@ func (e *Engine) positionDarks(ps []positionStats) map[int]modelledDark {
 	}
 	centre := -1
 	for i, p := range ps {
-		if p.R == 0 && centre < 0 {
+		if p.Radius == 0 && centre < 0 {
 			centre = i
 		}
 	}

@@ -214,7 +214,7 @@ func (e *Engine) compute(ctx context.Context, idx int, s Step) error {
 					m.Samples.Mean += md.shift
 					m.TypeB = append(m.TypeB, md.Component)
 				}
-				spots = append(spots, calib.Spot{Label: p.Label, Radius: p.R, Angle: p.Angle, Luminance: m})
+				spots = append(spots, calib.Spot{Label: p.Label, Radius: p.Radius, Angle: p.Angle, Luminance: m})
 			}
 			res, err = calib.Uniformity(spots, 0)
 			if err == nil && len(modelled) > 0 {

@@ -95,9 +95,9 @@ type ValueRequest struct {
 
 // Position is a photometer position on the output face.
 type Position struct {
-	Label string  // "centre", "up 0.9r"
-	R     float64 // fraction of the output radius
-	Angle float64 // degrees
+	Label  string  // "centre", "up 0.9r"
+	Radius float64 // fraction of the output radius
+	Angle  float64 // degrees
 }
 
 // Expect is the range a quantity is expected in (canonical unit). A kerma

@@ -73,7 +73,7 @@ func measureFrom(s *script.Step, st *Step) {
 		ms.Meters = append(ms.Meters, strings.ToLower(r.Meter))
 	}
 	for _, ps := range m.Positions {
-		ms.Positions = append(ms.Positions, Position{Label: ps.Label, R: ps.Radius, Angle: ps.Angle})
+		ms.Positions = append(ms.Positions, Position{Label: ps.Label, Radius: ps.Radius, Angle: ps.Angle})
 	}
 	for _, x := range m.Expect {
 		ms.Expect = append(ms.Expect, Expect{Quantity: string(x.Quantity), Min: x.Min, Max: x.Max})

@@ -268,7 +268,7 @@ func (e *Engine) notMeasurable(ctx context.Context, idx int, s Step, pi int, pos
 	p := positionStats{Step: s.ID, Index: pi, Mode: s.FieldMode, Unmeasurable: reason, Dark: !s.Measure.Beam, UsedS: used.Seconds()}
 	what := "This reading"
 	if npos > 0 {
-		p.Label, p.R, p.Angle = pos.Label, pos.R, pos.Angle
+		p.Label, p.Radius, p.Angle = pos.Label, pos.Radius, pos.Angle
 		what = "Position " + pos.Label
 	}
 	e.st.putPos(p)
@@ -535,7 +535,7 @@ func (a *attempt) setup() map[string]string {
 		m["field_mode"] = a.resolveMode(v)
 	}
 	if a.label != "" {
-		m["photometer_radius"] = fmt.Sprintf("%g r", a.pos.R)
+		m["photometer_radius"] = fmt.Sprintf("%g r", a.pos.Radius)
 		m["photometer_angle"] = fmt.Sprintf("%g deg", a.pos.Angle)
 		m["position"] = a.label
 	}
@@ -581,7 +581,7 @@ func after(xs []timedValue, t time.Duration) []timedValue {
 func (e *Engine) precise(a *attempt) (positionStats, bool) {
 	l := e.cfg.Settings
 	target := e.target(a)
-	p := positionStats{Step: a.step.ID, Index: a.posIdx, Label: a.label, R: a.pos.R, Angle: a.pos.Angle, Mode: a.step.FieldMode, Calib: a.calib, Flags: slices.Clone(a.flags)}
+	p := positionStats{Step: a.step.ID, Index: a.posIdx, Label: a.label, Radius: a.pos.Radius, Angle: a.pos.Angle, Mode: a.step.FieldMode, Calib: a.calib, Flags: slices.Clone(a.flags)}
 	// Each meter of the step, by role: its mean and the type A of the
 	// mean (JCGM 100:2008 4.2.3, autocorrelated readings allowed for).
 	p.Meters = map[string]meterStat{}

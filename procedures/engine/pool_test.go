@@ -19,7 +19,7 @@ func poolSteps(budget time.Duration) []Step {
 		{ID: "dark", Kind: Measure, Text: "Keep the beam off. Press the switch for the dark reading.", Measure: &MeasureSpec{Meters: []string{Photometer}, Duration: 2 * time.Second}},
 		{ID: "spots", Kind: Measure, Text: "Press the switch, then step on the pedal.", Pools: pool,
 			Measure: &MeasureSpec{Meters: []string{Photometer}, Beam: true, MaxBeam: 20 * time.Second, MinBeam: 4 * time.Second,
-				Positions: []Position{{Label: "centre"}, {Label: "up 0.5 r", R: 0.5, Angle: 90}, {Label: "down 0.5 r", R: 0.5, Angle: 270}, {Label: "left 0.5 r", R: 0.5, Angle: 180}}}},
+				Positions: []Position{{Label: "centre"}, {Label: "up 0.5 r", Radius: 0.5, Angle: 90}, {Label: "down 0.5 r", Radius: 0.5, Angle: 270}, {Label: "left 0.5 r", Radius: 0.5, Angle: 180}}}},
 		{ID: "cf", Kind: Measure, Text: "Press the switch, then step on the pedal.", Pools: pool,
 			Measure: &MeasureSpec{Meters: []string{Dosimeter, Photometer}, Beam: true, MaxBeam: 20 * time.Second, MinBeam: 5 * time.Second}},
 	}

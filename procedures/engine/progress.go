@@ -92,7 +92,7 @@ func stepEffort(s Step, bench script.Bench, l Settings) (int, time.Duration) {
 				setup[k] = v
 			}
 			if p.Label != "" {
-				setup[script.SetPhotometerRadius] = fmt.Sprintf("%g r", p.R)
+				setup[script.SetPhotometerRadius] = fmt.Sprintf("%g r", p.Radius)
 				setup[script.SetPhotometerAngle] = fmt.Sprintf("%g deg", p.Angle)
 			}
 			d += say + bench.Change(setup) + 3*script.ReactionTime + script.ExposureTime

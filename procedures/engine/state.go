@@ -18,11 +18,11 @@ import (
 // resumed session can compute results from measurements taken before a
 // power cut without repeating them.
 type positionStats struct {
-	Step  string  `json:"step"`  // step ID
-	Index int     `json:"index"` // position index (0 without positions)
-	Label string  `json:"label,omitempty"`
-	R     float64 `json:"r,omitempty"`
-	Angle float64 `json:"angle,omitempty"`
+	Step   string  `json:"step"`  // step ID
+	Index  int     `json:"index"` // position index (0 without positions)
+	Label  string  `json:"label,omitempty"`
+	Radius float64 `json:"r,omitempty"`
+	Angle  float64 `json:"angle,omitempty"`
 	// Meters are the statistics of each meter the step reads, by role
 	// (Photometer, Dosimeter, or any other the bench names): a third
 	// sensor joins without a field of its own.
