@@ -40,7 +40,7 @@ func newRig(t *testing.T, buf int) *rig {
 	r.j = NewJournal(r.mem, r.hub, clk)
 	var err error
 	r.srv, err = NewServer(r.hub, r.j, Options{Log: quiet, Code: "417209", Token: "feedc0ffee", Procedure: engine.Procedure{Name: "p", Title: "Test procedure",
-		Steps: []engine.Step{{ID: "a", Kind: engine.Instruct, Text: "First. More."}, {ID: "b", Kind: engine.Measure, Text: "Second step"}}}})
+		Steps: []engine.Step{{ID: "a", Kind: engine.Prepare, Text: "First. More."}, {ID: "b", Kind: engine.Measure, Text: "Second step"}}}})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -53,7 +53,7 @@ func TestLiveViewInGerman(t *testing.T) {
 	j := NewJournal(demo.NewMemJournal(clk), hub, clk)
 	srv, err := NewServer(hub, j, Options{Log: quiet, Code: "417209", Token: "feedc0ffee", Messages: de,
 		Procedure: engine.Procedure{Name: "p", Title: "Room temperature and pressure",
-			Steps: []engine.Step{{ID: "a", Kind: engine.Instruct, Text: "Release the beam."}}}})
+			Steps: []engine.Step{{ID: "a", Kind: engine.Prepare, Text: "Release the beam."}}}})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -34,10 +34,13 @@ const (
 // StepKind says what a step does.
 type StepKind string
 
-// The step kinds the engine walks.
+// The step kinds the engine walks, named as the procedure file names them
+// (script.KindSay...). The values are the journal's words for them (a step
+// record's kind): say and prepare were journalled as "announce" and
+// "instruct" from the start and keep those values.
 const (
-	Announce  StepKind = "announce"  // say, do not wait
-	Instruct  StepKind = "instruct"  // say and wait for a press
+	Say       StepKind = "announce"  // say, do not wait
+	Prepare   StepKind = "instruct"  // say and wait for a press
 	Checklist StepKind = "checklist" // one press per line (Safety: the pre-exposure checklist)
 	Enter     StepKind = "enter"     // enter or confirm a value
 	Measure   StepKind = "measure"   // dark or beam reading with one or both meters

@@ -17,7 +17,7 @@ import (
 func TestRetakeLastStep(t *testing.T) {
 	steps := cfSteps()
 	// An instruction after the measurement, where the engineer long-presses once.
-	steps = append(steps[:6], append([]Step{{ID: "check", Kind: Instruct, Text: "Check the photometer bracket. Press when done."}}, steps[6:]...)...)
+	steps = append(steps[:6], append([]Step{{ID: "check", Kind: Prepare, Text: "Check the photometer bracket. Press when done."}}, steps[6:]...)...)
 	r := newRig(steps)
 	pressed := false
 	r.reply = func(p panel.Prompt) (panel.Response, bool) {

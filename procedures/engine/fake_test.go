@@ -389,7 +389,7 @@ var safetyItems = []string{
 // cfSteps is a conversion factor sequence for one field mode.
 func cfSteps() []Step {
 	return []Step{
-		{ID: "hello", Kind: Announce, Text: "Conversion factor check."},
+		{ID: "hello", Kind: Say, Text: "Conversion factor check."},
 		{ID: "safety", Kind: Checklist, Safety: true, Items: safetyItems},
 		{ID: "temp", Kind: Enter, Value: &ValueRequest{Name: "temperature", Unit: "°C", Min: 10, Max: 40}},
 		{ID: "press", Kind: Enter, Value: &ValueRequest{Name: "pressure", Unit: "kPa", Min: 70, Max: 110}},

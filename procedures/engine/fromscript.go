@@ -40,8 +40,8 @@ var fromScript = map[script.Kind]struct {
 	kind    StepKind
 	convert func(s *script.Step, st *Step)
 }{
-	script.KindSay:             {kind: Announce},
-	script.KindPrepare:         {kind: Instruct},
+	script.KindSay:             {kind: Say},
+	script.KindPrepare:         {kind: Prepare},
 	script.KindChecklist:       {Checklist, checklistFrom},
 	script.KindSafetyChecklist: {Checklist, checklistFrom},
 	script.KindEnter:           {Enter, enterFrom},

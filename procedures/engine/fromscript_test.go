@@ -59,8 +59,8 @@ func TestFromFlatEveryKind(t *testing.T) {
 	for _, s := range proc.Steps {
 		byID[s.ID] = s
 	}
-	want := map[string]StepKind{"hello": Announce, "cables": Checklist, "safety": Checklist, "air/temperature": Enter,
-		"kv": Enter, "select@32 cm": Instruct, "light@32 cm": Measure, "factor@32 cm": Compute, "factor-check@32 cm": Judge}
+	want := map[string]StepKind{"hello": Say, "cables": Checklist, "safety": Checklist, "air/temperature": Enter,
+		"kv": Enter, "select@32 cm": Prepare, "light@32 cm": Measure, "factor@32 cm": Compute, "factor-check@32 cm": Judge}
 	for id, k := range want {
 		if byID[id].Kind != k {
 			t.Errorf("%s: kind %q, want %q", id, byID[id].Kind, k)

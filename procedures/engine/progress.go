@@ -25,7 +25,7 @@ type progress struct {
 
 // isTask: the step asks the operator something.
 func isTask(k StepKind) bool {
-	return k == Instruct || k == Checklist || k == Enter || k == Measure
+	return k == Prepare || k == Checklist || k == Enter || k == Measure
 }
 
 func newProgress(p Procedure, l Settings) progress {
@@ -55,9 +55,9 @@ func newProgress(p Procedure, l Settings) progress {
 func stepEffort(s Step, bench script.Bench, l Settings) (int, time.Duration) {
 	say := script.SpeakingTime(s.Text)
 	switch s.Kind {
-	case Announce:
+	case Say:
 		return 0, say
-	case Instruct:
+	case Prepare:
 		return 0, say + bench.Change(s.Setup) + script.ReactionTime
 	case Checklist:
 		d := say

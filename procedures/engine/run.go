@@ -288,7 +288,7 @@ func (e *Engine) recheckChecklist(ctx context.Context, info resumeInfo) (string,
 func (e *Engine) previousRetakable(i int) int {
 	for j := i - 1; j >= 0; j-- {
 		switch e.cfg.Procedure.Steps[j].Kind {
-		case Announce, Compute, Judge:
+		case Say, Compute, Judge:
 			continue
 		}
 		return j
@@ -653,9 +653,9 @@ func (e *Engine) doStep(ctx context.Context, idx int, s Step) error {
 	n := len(e.cfg.Procedure.Steps)
 	base := panel.Prompt{Step: idx, Of: n, StepID: s.ID}
 	switch s.Kind {
-	case Announce:
+	case Say:
 		return e.say(ctx, idx, panel.Message{Text: s.Text, Level: panel.Info, Setup: s.Setup})
-	case Instruct:
+	case Prepare:
 		p := base
 		p.Message = panel.Message{Text: s.Text, Level: panel.Info, Action: panel.ActAcknowledge, Setup: e.resolveSetup(s.Setup)}
 		if len(s.Setup) > 0 {

@@ -260,7 +260,7 @@ func TestProgressByEar(t *testing.T) {
 	}
 	computes := 0
 	for _, s := range v.proc.Steps {
-		if s.Kind == Compute || s.Kind == Judge || s.Kind == Announce {
+		if s.Kind == Compute || s.Kind == Judge || s.Kind == Say {
 			computes++
 		}
 	}
