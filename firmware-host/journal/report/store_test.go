@@ -31,6 +31,13 @@ func historyScale(i, n int) float64 { return 1 + 0.028*float64(n-1-i) }
 // small sessions (session, three conversion factors, end).
 func buildStore(tb testing.TB, dir string, intensifiers, years int) string {
 	tb.Helper()
+	return buildStoreAt(tb, dir, filepath.Join(dir, "workstation.store"), intensifiers, years)
+}
+
+// buildStoreAt is buildStore into the store at target (a file or a
+// PostgreSQL URL).
+func buildStoreAt(tb testing.TB, dir, target string, intensifiers, years int) string {
+	tb.Helper()
 	ctx := context.Background()
 	first := time.Date(2026-years+1, 11, 18, 9, 2, 0, 0, time.UTC)
 	clk := clock.NewManual(first)
@@ -77,7 +84,7 @@ func buildStore(tb testing.TB, dir string, intensifiers, years int) string {
 			ids = append(ids, id)
 		}
 	}
-	path := filepath.Join(dir, "workstation.store")
+	path := target
 	st, err := store.Open(path)
 	if err != nil {
 		tb.Fatal(err)

@@ -116,8 +116,27 @@ func checkWithOwnKey(recs []journal.Record) *journal.Problem {
 // hash and link; each signed head the store kept (the segment signatures
 // of what was pushed) verifies with that key and names the hash of its
 // last record; and the last head covers the last record. Records stored
-// with their own signatures are checked by them too.
+// with their own signatures are checked by them too. Then the store's
+// session row, which no signature covers, against those records (its
+// site, room, model, serial, start, payloads and mark): a row edited in
+// the store is named, column by column (store.SessionInfo.Changed).
 func VerifyStoreSession(ctx context.Context, st *store.Store, id string) ([]string, error) {
+	problems, err := verifyStoreRecords(ctx, st, id)
+	if err != nil || len(problems) > 0 {
+		return problems, err
+	}
+	info, err := st.Session(ctx, id)
+	if err != nil {
+		return nil, err
+	}
+	for _, c := range info.Changed {
+		problems = append(problems, fmt.Sprintf("session %s: %s", id, c))
+	}
+	return problems, nil
+}
+
+// verifyStoreRecords is VerifyStoreSession's check of the records.
+func verifyStoreRecords(ctx context.Context, st *store.Store, id string) ([]string, error) {
 	recs, err := st.Records(ctx, id, 0, 0)
 	if err != nil {
 		return nil, err
@@ -179,7 +198,8 @@ func VerifyStoreSession(ctx context.Context, st *store.Store, id string) ([]stri
 }
 
 // VerifyStoreSerial checks every stored session of an intensifier (what a
-// trend is computed from).
+// trend is computed from): the sessions the store indexes under serial,
+// each with its row checked against its records (VerifyStoreSession).
 func VerifyStoreSerial(ctx context.Context, st *store.Store, serial string) ([]string, error) {
 	infos, err := st.Sessions(ctx, store.Query{Serial: serial})
 	if err != nil {

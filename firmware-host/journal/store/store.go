@@ -12,6 +12,13 @@
 // enrolled and not revoked, the signed head with this store as its
 // audience, the hash chain continuing what is stored) and applied in one
 // transaction: a segment is stored whole or not at all.
+//
+// Only the records and the signed heads (proofs) are covered by the
+// board's signatures; the sessions and results rows copy some of their
+// fields to be found by. Readers take what they show from the records
+// (Sessions, History) and name a row that says otherwise
+// (SessionInfo.Changed), so an SQL edit of a row is caught by the
+// verification that report and trend run first.
 package store
 
 import (
@@ -795,74 +802,6 @@ func valuesSQL(insert string, cols, rows int) string {
 	return b.String()
 }
 
-// Query selects sessions; empty fields and zero times match everything.
-// From is inclusive, To exclusive, compared with the session's start.
-type Query struct {
-	Site, Room, Serial string
-	From, To           time.Time
-}
-
-// SessionInfo describes a stored session.
-type SessionInfo struct {
-	ID        string
-	BoardKey  string
-	BoardName string
-	Session   entry.Session
-	End       *entry.SessionEnd // nil while the session has no session_end
-	Records   int64             // records stored (the high-water mark)
-}
-
-// Sessions returns the sessions matching q, oldest first.
-func (s *Store) Sessions(ctx context.Context, q Query) ([]SessionInfo, error) {
-	var where []string
-	var args []any
-	if q.Site != "" {
-		where, args = append(where, "s.site = ?"), append(args, q.Site)
-	}
-	if q.Room != "" {
-		where, args = append(where, "s.room = ?"), append(args, q.Room)
-	}
-	if q.Serial != "" {
-		where, args = append(where, "s.serial = ?"), append(args, q.Serial)
-	}
-	if !q.From.IsZero() {
-		where, args = append(where, "s.started_ns >= ?"), append(args, q.From.UnixNano())
-	}
-	if !q.To.IsZero() {
-		where, args = append(where, "s.started_ns < ?"), append(args, q.To.UnixNano())
-	}
-	sqlq := `SELECT s.id, s.board, b.name, s.payload, s.end_payload, s.high FROM sessions s JOIN boards b ON b.key = s.board`
-	if len(where) > 0 {
-		sqlq += " WHERE " + strings.Join(where, " AND ")
-	}
-	sqlq += " ORDER BY s.started_ns, s.id"
-	rows, err := s.db.QueryContext(ctx, s.q(sqlq), args...)
-	if err != nil {
-		return nil, fmt.Errorf("store %s: sessions: %w", s.name, err)
-	}
-	defer rows.Close()
-	var out []SessionInfo
-	for rows.Next() {
-		var si SessionInfo
-		var payload string
-		var end sql.NullString
-		if err := rows.Scan(&si.ID, &si.BoardKey, &si.BoardName, &payload, &end, &si.Records); err != nil {
-			return nil, fmt.Errorf("store %s: sessions: %w", s.name, err)
-		}
-		if err := json.Unmarshal([]byte(payload), &si.Session); err != nil {
-			return nil, fmt.Errorf("store %s: session %s record 1: %w", s.name, si.ID, err)
-		}
-		if end.Valid {
-			si.End = new(entry.SessionEnd)
-			if err := json.Unmarshal([]byte(end.String), si.End); err != nil {
-				return nil, fmt.Errorf("store %s: session %s end: %w", s.name, si.ID, err)
-			}
-		}
-		out = append(out, si)
-	}
-	return out, rows.Err()
-}
-
 // Records returns up to limit stored records of session after seq after
 // (limit <= 0: all), with their hashes (records received by a version 2
 // stream carry no per-record signature: the signed heads in Proofs prove
@@ -932,46 +871,6 @@ func (s *Store) Envelopes(ctx context.Context, session string) ([]entry.Envelope
 		}
 	}
 	return out, nil
-}
-
-// HistoryPoint is one result of one session of an intensifier.
-type HistoryPoint struct {
-	Session string
-	Date    time.Time // session start
-	Site    string
-	Room    string
-	Result  entry.Result
-}
-
-// History returns every result recorded for the intensifier serial, oldest
-// session first, in record order within a session.
-func (s *Store) History(ctx context.Context, serial string) ([]HistoryPoint, error) {
-	// The result's payload is read from its record, which verifies (a
-	// signature covers it), not from the results row, which only indexes
-	// it: an edit of the row must not reach a trend or a report's history.
-	rows, err := s.db.QueryContext(ctx, s.q(`SELECT r.session, r.started_ns, s.site, s.room, rec.payload
-		FROM results r JOIN sessions s ON s.id = r.session
-		JOIN records rec ON rec.session = r.session AND rec.seq = r.seq AND rec.kind = 'result'
-		WHERE r.serial = ? ORDER BY r.started_ns, r.session, r.seq`), serial)
-	if err != nil {
-		return nil, fmt.Errorf("store %s: history of %s: %w", s.name, serial, err)
-	}
-	defer rows.Close()
-	var out []HistoryPoint
-	for rows.Next() {
-		var h HistoryPoint
-		var ns int64
-		var payload string
-		if err := rows.Scan(&h.Session, &ns, &h.Site, &h.Room, &payload); err != nil {
-			return nil, fmt.Errorf("store %s: history of %s: %w", s.name, serial, err)
-		}
-		h.Date = time.Unix(0, ns).UTC()
-		if err := json.Unmarshal([]byte(payload), &h.Result); err != nil {
-			return nil, fmt.Errorf("store %s: history of %s: session %s: %w", s.name, serial, h.Session, err)
-		}
-		out = append(out, h)
-	}
-	return out, rows.Err()
 }
 
 // Exists reports whether target exists (for commands that must not create
