@@ -12,17 +12,17 @@ import (
 	"kermalux/drivers/units"
 )
 
-// Applied is one correction applied to a reading, in the order applied:
+// Correction is one correction applied to a reading, in the order applied:
 // value_after = value_before × Factor + Offset. It carries the same fields
 // as the journal's correction record.
-type Applied struct {
+type Correction struct {
 	Name   string  // "dark", "calibration_coefficient", "k_tp", "backscatter", "inverse_square"
 	Factor float64 // multiplicative factor (1 if none)
 	Offset float64 // additive term after the factor (0 if none)
 	Note   string  // what it was computed from
 }
 
-// Names of corrections, as recorded in [Applied].
+// Names of corrections, as recorded in [Correction].
 const (
 	CorrDark          = "dark"
 	CorrCoefficient   = "calibration_coefficient"
@@ -195,7 +195,7 @@ func DarkUncertainty(s Summary, resolution float64) (u, dof float64) {
 type Corrected struct {
 	Value       float64 // corrected, canonical unit
 	Raw         float64 // the value as it arrived (canonical)
-	Applied     []Applied
+	Corrections []Correction
 	Calibrated  bool   // every correction could be applied with an in-date certificate
 	Flags       []Flag // why not calibrated (and notes)
 	Certificate string // certificate number used, if any
@@ -355,9 +355,9 @@ func Correct(value float64, q units.Quantity, s Setup) Corrected {
 			out.Calibrated = false
 		}
 	}
-	apply := func(a Applied) {
+	apply := func(a Correction) {
 		out.Value = out.Value*a.Factor + a.Offset
-		out.Applied = append(out.Applied, a)
+		out.Corrections = append(out.Corrections, a)
 	}
 	c := s.Cert
 	dark := q == units.Luminance && s.Dark != nil
@@ -366,7 +366,7 @@ func Correct(value float64, q units.Quantity, s Setup) Corrected {
 		if s.Dark.Note != "" {
 			note += "; " + s.Dark.Note
 		}
-		apply(Applied{Name: CorrDark, Factor: 1, Offset: -s.Dark.Value, Note: note})
+		apply(Correction{Name: CorrDark, Factor: 1, Offset: -s.Dark.Value, Note: note})
 	}
 	refused := false
 	if c != nil {
@@ -410,7 +410,7 @@ func Correct(value float64, q units.Quantity, s Setup) Corrected {
 				fq := s.BeamQuality.filled()
 				note = fmt.Sprintf("certificate %s, interpolated at %s %g", c.Number, axisWords(c.Along), c.axisValue(fq))
 			}
-			apply(Applied{Name: CorrCoefficient, Factor: n, Note: note})
+			apply(Correction{Name: CorrCoefficient, Factor: n, Note: note})
 			out.TypeB = append(out.TypeB, Component{Source: "calibration coefficient, certificate " + c.Number, Rel: c.RelStdUnc(), Calibration: true})
 		case isOutside(err):
 			flag(FlagOutsideQuality, "%v: reading not calibrated", err)
@@ -438,7 +438,7 @@ func Correct(value float64, q units.Quantity, s Setup) Corrected {
 			flag(FlagNoAirDensity, "air pressure missing or implausible (%g kPa) for the vented chamber: reading not calibrated", a.Pressure)
 		default:
 			k := KTP(a.Temperature, a.Pressure, c.RefTemperature, c.RefPressure)
-			apply(Applied{Name: CorrKTP, Factor: k, Note: fmt.Sprintf("T %.1f °C, P %.2f kPa; reference %.1f °C, %.3f kPa", a.Temperature, a.Pressure, c.RefTemperature, c.RefPressure)})
+			apply(Correction{Name: CorrKTP, Factor: k, Note: fmt.Sprintf("T %.1f °C, P %.2f kPa; reference %.1f °C, %.3f kPa", a.Temperature, a.Pressure, c.RefTemperature, c.RefPressure)})
 			// Relative sensitivities of k_TP (GUM 5.1.3): 1/(273.15+T) per °C, −1/P per kPa.
 			if a.TemperatureUnc > 0 {
 				out.TypeB = append(out.TypeB, Component{Source: "room temperature (k_TP)", Rel: a.TemperatureUnc / (273.15 + a.Temperature)})
@@ -458,7 +458,7 @@ func Correct(value float64, q units.Quantity, s Setup) Corrected {
 		if b < 1 || b > 2 || math.IsNaN(b) {
 			flag(FlagNoBackscatter, "chamber on the input face but no usable backscatter factor: reading not calibrated")
 		} else {
-			apply(Applied{Name: CorrBackscatter, Factor: BackscatterFactor(b), Note: fmt.Sprintf("B = %.3g %s; chamber on the input face, %s", b, from, gridWords(g.GridRemoved))})
+			apply(Correction{Name: CorrBackscatter, Factor: BackscatterFactor(b), Note: fmt.Sprintf("B = %.3g %s; chamber on the input face, %s", b, from, gridWords(g.GridRemoved))})
 		}
 	}
 	if g.SourceToChamber != 0 || g.SourceToInput != 0 {
@@ -469,21 +469,21 @@ func Correct(value float64, q units.Quantity, s Setup) Corrected {
 		case dc < 0 || di < 0 || math.IsNaN(dc) || math.IsNaN(di):
 			flag(FlagGeometry, "distances from the focal spot must be positive (chamber %g mm, input %g mm): reading not calibrated", dc, di)
 		case dc != di:
-			apply(Applied{Name: CorrInverseSquare, Factor: InverseSquare(dc, di), Note: fmt.Sprintf("chamber at %g mm, input plane at %g mm from the focal spot; %s", dc, di, gridWords(g.GridRemoved))})
+			apply(Correction{Name: CorrInverseSquare, Factor: InverseSquare(dc, di), Note: fmt.Sprintf("chamber at %g mm, input plane at %g mm from the focal spot; %s", dc, di, gridWords(g.GridRemoved))})
 			// (d_c/d_i)²: relative sensitivity 2 to each distance (GUM 5.1.6).
 			if u := g.DistanceUnc; u > 0 {
 				out.TypeB = append(out.TypeB, Component{Source: "distances (inverse square)", Rel: 2 * math.Hypot(u/dc, u/di)})
 			}
 		}
 	}
-	if !g.OnFace && !hasApplied(out.Applied, CorrInverseSquare) {
-		apply(Applied{Name: CorrGeometry, Factor: 1, Note: "chamber at the input plane, free in air; " + gridWords(g.GridRemoved)})
+	if !g.OnFace && !hasCorrection(out.Corrections, CorrInverseSquare) {
+		apply(Correction{Name: CorrGeometry, Factor: 1, Note: "chamber at the input plane, free in air; " + gridWords(g.GridRemoved)})
 	}
 	out.addResolution(c)
 	return out
 }
 
-func hasApplied(list []Applied, name string) bool {
+func hasCorrection(list []Correction, name string) bool {
 	for _, a := range list {
 		if a.Name == name {
 			return true
@@ -499,7 +499,7 @@ func (out *Corrected) addResolution(c *Certificate) {
 		return
 	}
 	f := 1.0
-	for _, a := range out.Applied {
+	for _, a := range out.Corrections {
 		f *= a.Factor
 	}
 	r := ResolutionComponent(c.Resolution * math.Abs(f))
@@ -539,7 +539,7 @@ func (out *Corrected) addDark(d Dark) {
 		return
 	}
 	f := 1.0
-	for _, a := range out.Applied {
+	for _, a := range out.Corrections {
 		f *= a.Factor
 	}
 	out.TypeB = append(out.TypeB, Component{Source: "dark (beam-off) level subtracted", Abs: d.StdUnc * math.Abs(f), DoF: d.DoF})

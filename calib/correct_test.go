@@ -76,7 +76,7 @@ func TestCorrectDosimeterOrderAndRecord(t *testing.T) {
 		t.Fatalf("flags %v", got.Flags)
 	}
 	names := []string{}
-	for _, a := range got.Applied {
+	for _, a := range got.Corrections {
 		names = append(names, a.Name)
 	}
 	if strings.Join(names, ",") != "calibration_coefficient,k_tp,backscatter,inverse_square" {
@@ -87,8 +87,8 @@ func TestCorrectDosimeterOrderAndRecord(t *testing.T) {
 	if math.Abs(got.Value-want) > 1e-5*want {
 		t.Errorf("value = %v, want %v", got.Value, want)
 	}
-	if !strings.Contains(got.Applied[2].Note, "grid removed") || got.Certificate != "NRML-26-0318" {
-		t.Errorf("notes %+v certificate %q", got.Applied, got.Certificate)
+	if !strings.Contains(got.Corrections[2].Note, "grid removed") || got.Certificate != "NRML-26-0318" {
+		t.Errorf("notes %+v certificate %q", got.Corrections, got.Certificate)
 	}
 }
 
@@ -96,7 +96,7 @@ func TestCorrectPhotometer(t *testing.T) {
 	p := load(t, "vessoric-lm9-5521.yaml")
 	got := Correct(100.5, units.Luminance, Setup{Cert: p, Meter: own(p), Day: day("2026-12-02"), Dark: &Dark{Value: 0.5}})
 	// (100.5 − 0.5) × 1.012 = 101.2
-	if !got.Calibrated || math.Abs(got.Value-101.2) > 1e-9 || len(got.Applied) != 2 || got.Applied[0].Name != CorrDark || got.Applied[0].Offset != -0.5 {
+	if !got.Calibrated || math.Abs(got.Value-101.2) > 1e-9 || len(got.Corrections) != 2 || got.Corrections[0].Name != CorrDark || got.Corrections[0].Offset != -0.5 {
 		t.Errorf("got %+v", got)
 	}
 }
@@ -188,10 +188,10 @@ func TestGridStateAlwaysRecorded(t *testing.T) {
 	h := load(t, "ondrakel-dx2-30417.yaml")
 	for _, removed := range []bool{true, false} {
 		c := Correct(1, units.AirKermaRate, Setup{Cert: h, Meter: own(h), Day: day("2026-12-02"), BeamQuality: BeamQuality{TubeVoltage: 70}, Geometry: Geometry{GridRemoved: removed}})
-		last := c.Applied[len(c.Applied)-1]
+		last := c.Corrections[len(c.Corrections)-1]
 		want := map[bool]string{true: "grid removed", false: "grid in place"}[removed]
 		if last.Name != CorrGeometry || last.Factor != 1 || !strings.Contains(last.Note, want) || c.Value != 1 {
-			t.Errorf("grid removed %v: %+v", removed, c.Applied)
+			t.Errorf("grid removed %v: %+v", removed, c.Corrections)
 		}
 	}
 }

@@ -8,7 +8,7 @@
 //
 // # Order of corrections
 //
-// [Correct] applies, in this order, and records each step as an [Applied]:
+// [Correct] applies, in this order, and records each step as a [Correction]:
 //
 //	photometer (luminance):
 //	  1. dark          L' = M − M_dark            (beam-off reading, meter's own scale)

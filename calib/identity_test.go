@@ -41,8 +41,8 @@ func TestCertificateAppliesOnlyToItsMeter(t *testing.T) {
 	s := Setup{Cert: c, Day: day("2026-12-02"), BeamQuality: BeamQuality{Name: "RQA5"}, Air: Air{Temperature: 21, Pressure: 100.9},
 		Meter: &drivers.Identity{Maker: "VELTRANE", Model: "KR-40", Serial: "KR40-0921"}}
 	got := Correct(0.5, units.AirKermaRate, s)
-	if got.Calibrated || !hasFlag(got, FlagOtherMeter) || got.Value != 0.5 || hasApplied(got.Applied, CorrCoefficient) || hasApplied(got.Applied, CorrKTP) {
-		t.Errorf("another meter: calibrated %v value %v applied %+v flags %v", got.Calibrated, got.Value, got.Applied, got.Flags)
+	if got.Calibrated || !hasFlag(got, FlagOtherMeter) || got.Value != 0.5 || hasCorrection(got.Corrections, CorrCoefficient) || hasCorrection(got.Corrections, CorrKTP) {
+		t.Errorf("another meter: calibrated %v value %v applied %+v flags %v", got.Calibrated, got.Value, got.Corrections, got.Flags)
 	}
 	s.Meter = nil
 	if got := Correct(0.5, units.AirKermaRate, s); got.Calibrated || !hasFlag(got, FlagNotIdentified) {
@@ -80,8 +80,8 @@ func TestDarkUncertaintyHasResolution(t *testing.T) {
 func TestDarkSubtractedInRawScale(t *testing.T) {
 	p := load(t, "vessoric-lm9-5521.yaml")
 	got := Correct(100.5, units.Luminance, Setup{Cert: p, Meter: own(p), Day: day("2026-12-02"), Dark: &Dark{Value: 0.5, StdUnc: 0.003, DoF: 9}})
-	if math.Abs(got.Value-101.2) > 1e-9 || got.Applied[0].Name != CorrDark || got.Applied[1].Name != CorrCoefficient {
-		t.Fatalf("got %v, applied %+v", got.Value, got.Applied)
+	if math.Abs(got.Value-101.2) > 1e-9 || got.Corrections[0].Name != CorrDark || got.Corrections[1].Name != CorrCoefficient {
+		t.Fatalf("got %v, applied %+v", got.Value, got.Corrections)
 	}
 	var found bool
 	for _, b := range got.TypeB {

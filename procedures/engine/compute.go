@@ -73,14 +73,14 @@ func (cc CalibCorrector) Correct(r drivers.Reading, c Conditions) Corrected {
 		res.Resolution, res.Floor = cc.Cert.Resolution, cc.Cert.RangeFloor
 	}
 	res.Scale = 1
-	for _, a := range out.Applied {
+	for _, a := range out.Corrections {
 		res.Scale *= a.Factor
 	}
 	if c.Dark != nil && c.Dark.Unknown && r.Quantity == units.Luminance {
 		res.Calibrated = false
 		res.Flags = append(res.Flags, "the dark reading was under range and the meter's range floor is not known: the dark light could not be subtracted, reading not calibrated")
 	}
-	for _, a := range out.Applied {
+	for _, a := range out.Corrections {
 		res.Corrections = append(res.Corrections, entry.Correction{Name: a.Name, Factor: a.Factor, Offset: a.Offset, Note: a.Note})
 	}
 	// Every type B component of the corrected value: the coefficient, the
