@@ -137,6 +137,18 @@ func TestReportInTheSessionLanguage(t *testing.T) {
 	if strings.Contains(pdf, "Uncertainty budgets") {
 		t.Errorf("German PDF still holds English headings")
 	}
+	// The cautions (bulleted), the signature box, the subtitle, the facts
+	// and the footer, which the PDF writes apart from the HTML.
+	for _, want := range []string{"Röntgenstrahlung ist gefährlich.", "Abgenommen mit Auflagen", "Prüfablauf „acceptance“", "Seriennummer HV-2291", "acceptance · 31 Schritte"} {
+		if !strings.Contains(pdf, want) {
+			t.Errorf("German PDF lacks %q", want)
+		}
+	}
+	for _, english := range []string{"X-rays are dangerous", "Accepted with conditions", "procedure “", ", serial ", " steps"} {
+		if strings.Contains(pdf, english) {
+			t.Errorf("German PDF still says %q", english)
+		}
+	}
 }
 
 // The charts of a German report speak German too: the trend's legend

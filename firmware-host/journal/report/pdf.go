@@ -334,12 +334,12 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 		f.SetY(-12)
 		d.font("", 7.5)
 		f.SetTextColor(0x5b, 0x67, 0x75)
-		left := fmt.Sprintf("%s · %s · session %s", r.Session.IntensifierSerial, Day(r.Session.Started), r.Session.ID)
+		left := fmt.Sprintf(d.words.text("%s · %s · session %s"), r.Session.IntensifierSerial, Day(r.Session.Started), r.Session.ID)
 		if r.Simulated {
-			left = "SIMULATED, NOT A MEASUREMENT · " + left
+			left = d.words.text("SIMULATED, NOT A MEASUREMENT") + " · " + left
 		}
 		if len(r.Unverified) > 0 {
-			left = "NOT VERIFIED · " + left
+			left = d.words.text("NOT VERIFIED") + " · " + left
 		}
 		f.CellFormat(d.w*0.8, 5, d.tx(left), "T", 0, "L", false, 0, "")
 		f.CellFormat(d.w*0.2, 5, d.tx(fmt.Sprintf("page %d of {nb}", f.PageNo())), "T", 0, "R", false, 0, "")
@@ -352,7 +352,7 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 	f.CellFormat(d.w, 9, d.tx("Image intensifier check: "+r.Session.IntensifierSerial), "", 1, "L", false, 0, "")
 	d.font("", 9.5)
 	f.SetTextColor(0x5b, 0x67, 0x75)
-	f.CellFormat(d.w, 5, fmt.Sprintf("%s · %s · %s · %s · procedure “%s”", r.Session.Site, r.Session.Room, r.Session.IntensifierModel, Day(r.Session.Started), r.Session.Procedure), "", 1, "L", false, 0, "")
+	f.CellFormat(d.w, 5, pdfText(fmt.Sprintf("%s · %s · %s · %s · ", r.Session.Site, r.Session.Room, r.Session.IntensifierModel, Day(r.Session.Started)))+d.tx(fmt.Sprintf("procedure “%s”", r.Session.Procedure)), "", 1, "L", false, 0, "")
 	f.SetTextColor(0x1d, 0x26, 0x30)
 	f.Ln(3)
 	if r.Simulated {
@@ -415,12 +415,12 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 
 	finished := "not finished"
 	if r.End != nil {
-		finished = Stamp(r.End.Finished) + " (" + r.End.Outcome + ")"
+		finished = Stamp(r.End.Finished) + " (" + d.words.text(r.End.Outcome) + ")"
 	}
 	facts := [][2]string{
-		{"Site", r.Session.Site}, {"Room", r.Session.Room}, {"Intensifier", r.Session.IntensifierModel + ", serial " + r.Session.IntensifierSerial},
+		{"Site", r.Session.Site}, {"Room", r.Session.Room}, {"Intensifier", r.Session.IntensifierModel + ", " + d.words.text("serial") + " " + r.Session.IntensifierSerial},
 		{"Engineer", r.Session.Engineer}, {"Started", Stamp(r.Session.Started)}, {"Finished", finished},
-		{"Procedure", fmt.Sprintf("%s · %d steps", r.Session.Procedure, r.StepCount)}, {"Board", short(r.Session.BoardKey)}, {"Software", "kermalux " + r.Session.SoftwareVersion},
+		{"Procedure", fmt.Sprintf(d.words.text("%s · %d steps"), r.Session.Procedure, r.StepCount)}, {"Board", short(r.Session.BoardKey)}, {"Software", "kermalux " + r.Session.SoftwareVersion},
 	}
 	cw := d.w / 3
 	for i := 0; i < len(facts); i += 3 {
@@ -457,7 +457,7 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 		if !res.Calibrated {
 			notes = append([]string{"not calibrated"}, notes...)
 		}
-		rows = append(rows, []string{quantityWords(res.Quantity), res.FieldMode, strings.ReplaceAll(res.Shown(), " ± ", "\u00a0±\u00a0"), unitForQuantity(res.Quantity, res.Unit), Kf(res.K), of, strings.ToUpper(res.Verdict), res.DecidedBy, strings.Join(notes, "; ")})
+		rows = append(rows, []string{quantityWords(res.Quantity), res.FieldMode, strings.ReplaceAll(res.Shown(), " ± ", "\u00a0±\u00a0"), unitForQuantity(res.Quantity, res.Unit), Kf(res.K), of, strings.ToUpper(d.words.text(res.Verdict)), res.DecidedBy, strings.Join(notes, "; ")})
 	}
 	d.table([]pdfCol{{"Result", .12, false}, {"Field", .05, false}, {"Value ± U", .12, true}, {"Unit", .1, false}, {"k", .05, true}, {"Of baseline", .1, true}, {"Verdict", .07, false}, {"Decided by", .17, false}, {"Notes", .22, false}}, rows)
 	d.para("U is the expanded uncertainty with coverage factor k (JCGM 100:2008). A verdict compares the value itself with every limit; “Decided by” names the one that failed, or the closest. Every limit and its margin follow.", 7.5)
@@ -494,7 +494,7 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 				if p.Simulated {
 					day += " (simulated)"
 				}
-				rows = append(rows, []string{day, p.Site + " / " + p.Room, pdfValue(p.Value, p.ExpUnc), Percent(p.Fraction), strings.ToUpper(p.Verdict)})
+				rows = append(rows, []string{day, p.Site + " / " + p.Room, pdfValue(p.Value, p.ExpUnc), Percent(p.Fraction), strings.ToUpper(d.words.text(p.Verdict))})
 			}
 			d.table([]pdfCol{{"Date", .15, false}, {"Site / room", .4, false}, {"Value ± U", .17, true}, {"Of baseline", .15, true}, {"Verdict", .13, false}}, rows)
 			d.para(trendSentence(t), 8.5)
@@ -622,7 +622,7 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 
 	d.heading("Cautions")
 	for _, c := range cautions(r.Simulated) {
-		d.para("• "+c, 9)
+		d.para("• "+d.words.text(c), 9) // the caution is catalogued without its bullet
 	}
 
 	d.heading("Review and signature")
@@ -639,6 +639,7 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 		f.SetDrawColor(0x1d, 0x26, 0x30)
 		f.Rect(x, yb+0.6, 3.4, 3.4, "D")
 		f.SetXY(x+5, yb)
+		lab = d.tx(lab)
 		f.CellFormat(f.GetStringWidth(lab)+2, 4.6, lab, "", 0, "L", false, 0, "")
 		x += 5 + f.GetStringWidth(lab) + 12
 	}
@@ -651,7 +652,7 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 		f.Line(x, y, x+d.w/3-6, y)
 		f.SetXY(x, y+1)
 		d.font("", 7.5)
-		f.CellFormat(d.w/3-6, 4, lab, "", 0, "L", false, 0, "")
+		f.CellFormat(d.w/3-6, 4, d.tx(lab), "", 0, "L", false, 0, "")
 	}
 	f.SetY(y + 8)
 
