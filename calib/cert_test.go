@@ -240,21 +240,32 @@ func abs(x float64) float64 {
 }
 
 func FuzzParseCertificate(f *testing.F) {
+	bases := [][]byte{[]byte(valid)}
 	files, _ := filepath.Glob(filepath.Join(certDir, "*.yaml"))
 	for _, p := range files {
 		b, err := os.ReadFile(p)
 		if err != nil {
 			f.Fatal(err)
 		}
-		f.Add(b)
+		bases = append(bases, b)
 	}
-	f.Add([]byte(valid))
-	f.Add([]byte("certificate: [\n"))
-	f.Add([]byte("meter: {model: x}\nquantity: luminance\n"))
-	f.Add([]byte("- a\n- b\n"))
-	f.Add([]byte("---\na: 1\n---\nb: 2\n"))
-	f.Add([]byte("certificate: &a x\nlaboratory: *a\n"))
-	f.Fuzz(func(t *testing.T, data []byte) {
+	for i := range bases {
+		f.Add(uint8(i), uint16(0), uint16(0), []byte{})
+	}
+	for _, whole := range []string{"certificate: [\n", "meter: {model: x}\nquantity: luminance\n", "- a\n- b\n",
+		"---\na: 1\n---\nb: 2\n", "certificate: &a x\nlaboratory: *a\n"} {
+		f.Add(uint8(0), uint16(0), uint16(len(valid)), []byte(whole))
+	}
+	f.Add(uint8(0), uint16(strings.Index(valid, "2024")), uint16(4), []byte("2099"))
+	// An input edits one of the seed files (which) by writing patch at at
+	// over drop bytes, so inputs stay a few bytes long (the fuzzer's
+	// minimiser runs a number of inputs that grows with the square of an
+	// input's length: whole files as inputs kept both workers minimising
+	// for the whole run); a drop over the whole file writes any file.
+	f.Fuzz(func(t *testing.T, which uint8, at, drop uint16, patch []byte) {
+		base := bases[int(which)%len(bases)]
+		off := int(at) % (len(base) + 1)
+		data := append(append(append([]byte{}, base[:off]...), patch...), base[min(off+int(drop), len(base)):]...)
 		c, err := ParseCertificate("fuzz.yaml", data)
 		if err != nil {
 			var fe *FileError

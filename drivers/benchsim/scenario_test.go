@@ -111,15 +111,28 @@ func TestLoadScenarioMissingFile(t *testing.T) {
 // FuzzParseScenario: no input makes the parser panic, and whatever it
 // accepts builds a model.
 func FuzzParseScenario(f *testing.F) {
+	bases := [][]byte{[]byte(quietYAML)}
 	files, _ := filepath.Glob(filepath.Join(scenarioDir, "*.yaml"))
 	for _, p := range files {
 		if b, err := os.ReadFile(p); err == nil {
-			f.Add(b)
+			bases = append(bases, b)
 		}
 	}
-	f.Add([]byte(quietYAML))
-	f.Add([]byte("intensifier: {field_modes: [{name: a, diameter_cm: 1e309}]}"))
-	f.Fuzz(func(t *testing.T, data []byte) {
+	for i := range bases {
+		f.Add(uint8(i), uint16(0), uint16(0), []byte{})
+	}
+	for _, whole := range []string{"intensifier: {field_modes: [{name: a, diameter_cm: 1e309}]}", "faults: ! "} {
+		f.Add(uint8(0), uint16(0), uint16(len(quietYAML)), []byte(whole))
+	}
+	// An input edits one of the seed files (which) by writing patch at at
+	// over drop bytes, so inputs stay a few bytes long (the fuzzer's
+	// minimiser runs a number of inputs that grows with the square of an
+	// input's length: whole files as inputs kept both workers minimising
+	// for the whole run); a drop over the whole file writes any file.
+	f.Fuzz(func(t *testing.T, which uint8, at, drop uint16, patch []byte) {
+		base := bases[int(which)%len(bases)]
+		off := int(at) % (len(base) + 1)
+		data := append(append(append([]byte{}, base[:off]...), patch...), base[min(off+int(drop), len(base)):]...)
 		if len(data) > 8<<10 {
 			return // scenarios are a few kilobytes
 		}

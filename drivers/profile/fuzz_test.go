@@ -71,17 +71,30 @@ func FuzzNumbers(f *testing.F) {
 }
 
 func FuzzParse(f *testing.F) {
+	bases := [][]byte{[]byte(minimal)}
 	for _, name := range []string{"veltrane-kr40.yaml", "vessoric-lm9.yaml"} {
 		b, err := os.ReadFile("../../testdata/profiles/" + name)
 		if err != nil {
 			f.Fatal(err)
 		}
-		f.Add(b)
+		bases = append(bases, b)
 	}
-	f.Add([]byte(minimal))
-	f.Add([]byte("reading: {mode: streaming, start: {send: GO}, period: 1ms}\n"))
-	f.Add([]byte("\t- [}"))
-	f.Fuzz(func(t *testing.T, data []byte) {
+	for i := range bases {
+		f.Add(uint8(i), uint16(0), uint16(0), []byte{})
+	}
+	for _, whole := range []string{"reading: {mode: streaming, start: {send: GO}, period: 1ms}\n", "\t- [}",
+		"name: \n0:000000000\nquantity: 00000000000000\nserial:\n  baud: 0000\n  send_line_end: 00\n  receive_line_end: 0000\nreading:\n  mode: 000000\n  send: 0\n  reply: 00\nunits: !00000000000000\n  00: 0000\n000000000008: 00000"} {
+		f.Add(uint8(0), uint16(0), uint16(len(minimal)), []byte(whole))
+	}
+	// An input edits one of the seed files (which) by writing patch at at
+	// over drop bytes, so inputs stay a few bytes long (the fuzzer's
+	// minimiser runs a number of inputs that grows with the square of an
+	// input's length: whole files as inputs kept both workers minimising
+	// for the whole run); a drop over the whole file writes any file.
+	f.Fuzz(func(t *testing.T, which uint8, at, drop uint16, patch []byte) {
+		base := bases[int(which)%len(bases)]
+		off := int(at) % (len(base) + 1)
+		data := append(append(append([]byte{}, base[:off]...), patch...), base[min(off+int(drop), len(base)):]...)
 		p, err := profile.Parse("fuzz.yaml", data)
 		if err != nil {
 			var pe *profile.Error

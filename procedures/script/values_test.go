@@ -198,12 +198,13 @@ func TestBeamQualitiesAreCalibs(t *testing.T) {
 // FuzzParse: no input makes the parser, the checker or flatten panic, and
 // every problem names the file and has a line when it has a column.
 func FuzzParse(f *testing.F) {
+	var bases [][]byte
 	for _, n := range builtin.Names() {
 		data, err := builtin.Read(n)
 		if err != nil {
 			f.Fatal(err)
 		}
-		f.Add(data)
+		bases = append(bases, data)
 	}
 	for _, dir := range []string{badDir, goodDir} {
 		files, _ := filepath.Glob(filepath.Join(dir, "*.yaml"))
@@ -212,10 +213,21 @@ func FuzzParse(f *testing.F) {
 			if err != nil {
 				f.Fatal(err)
 			}
-			f.Add(data)
+			bases = append(bases, data)
 		}
 	}
-	f.Fuzz(func(t *testing.T, data []byte) {
+	for i := range bases {
+		f.Add(uint8(i), uint16(0), uint16(0), []byte{})
+	}
+	// An input edits one of the seed files (which) by writing patch at at
+	// over drop bytes, so inputs stay a few bytes long (the fuzzer's
+	// minimiser runs a number of inputs that grows with the square of an
+	// input's length: whole files as inputs kept both workers minimising
+	// for the whole run); a drop over the whole file writes any file.
+	f.Fuzz(func(t *testing.T, which uint8, at, drop uint16, patch []byte) {
+		base := bases[int(which)%len(bases)]
+		off := int(at) % (len(base) + 1)
+		data := append(append(append([]byte{}, base[:off]...), patch...), base[min(off+int(drop), len(base)):]...)
 		p, err := Parse("fuzz.yaml", data)
 		if ps, ok := err.(Problems); ok {
 			for _, q := range ps {
