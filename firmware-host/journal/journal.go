@@ -301,7 +301,7 @@ func (j *Journal) init() error {
 	case err != nil:
 		return fmt.Errorf("read board key: %w", err)
 	case key != j.pubHex:
-		return fmt.Errorf("%w: written with board key %s, the key file holds %s", ErrWrongBoard, short(key), short(j.pubHex))
+		return fmt.Errorf("%w: written with board key %s, the key file holds %s", ErrWrongBoard, abbrevHex(key), abbrevHex(j.pubHex))
 	}
 	return tx.Commit()
 }
@@ -361,7 +361,7 @@ func (j *Journal) Begin(ctx context.Context, s entry.Session) (string, error) {
 		s.Started = j.clk.Now()
 	}
 	if s.BoardKey != "" && s.BoardKey != j.pubHex {
-		return "", fmt.Errorf("begin session: %w: session names board key %s, journal key is %s", ErrWrongBoard, short(s.BoardKey), short(j.pubHex))
+		return "", fmt.Errorf("begin session: %w: session names board key %s, journal key is %s", ErrWrongBoard, abbrevHex(s.BoardKey), abbrevHex(j.pubHex))
 	}
 	s.BoardKey = j.pubHex
 	if s.SoftwareVersion == "" {

@@ -115,7 +115,7 @@ func writeKey(path string, priv ed25519.PrivateKey) error {
 func ParsePublicKey(s string) (ed25519.PublicKey, error) {
 	b, err := hex.DecodeString(strings.TrimSpace(s))
 	if err != nil || len(b) != ed25519.PublicKeySize {
-		return nil, fmt.Errorf("board key %q: expected %d hex digits (an ed25519 public key)", short(s), 2*ed25519.PublicKeySize)
+		return nil, fmt.Errorf("board key %q: expected %d hex digits (an ed25519 public key)", abbrevHex(s), 2*ed25519.PublicKeySize)
 	}
 	return ed25519.PublicKey(b), nil
 }

@@ -139,11 +139,11 @@ func decodeMark(slot []byte, pub ed25519.PublicKey) (*Mark, error) {
 	}
 	h, err := hex.DecodeString(m.Hash)
 	if err != nil || len(h) != HashSize {
-		return nil, fmt.Errorf("mark hash %q is not %d hex bytes", short(m.Hash), HashSize)
+		return nil, fmt.Errorf("mark hash %q is not %d hex bytes", abbrevHex(m.Hash), HashSize)
 	}
 	sig, err := hex.DecodeString(m.Sig)
 	if err != nil || !ed25519.Verify(pub, markMessage(m.N, m.Session, m.Seq, h), sig) {
-		return nil, fmt.Errorf("%w: the mark is not signed by board key %s", ErrBadSignature, short(hex.EncodeToString(pub)))
+		return nil, fmt.Errorf("%w: the mark is not signed by board key %s", ErrBadSignature, abbrevHex(hex.EncodeToString(pub)))
 	}
 	return &m.Mark, nil
 }
@@ -170,7 +170,7 @@ func checkMark(ctx context.Context, db *sql.DB, m *Mark) (string, error) {
 	case err != nil:
 		return "", err
 	case hash != m.Hash:
-		return fmt.Sprintf("record %d of session %s hashes to %s, but the board committed %s (high-water mark): the journal was rewritten", m.Seq, m.Session, short(hash), short(m.Hash)), nil
+		return fmt.Sprintf("record %d of session %s hashes to %s, but the board committed %s (high-water mark): the journal was rewritten", m.Seq, m.Session, abbrevHex(hash), abbrevHex(m.Hash)), nil
 	}
 	return "", nil
 }

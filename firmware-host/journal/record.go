@@ -164,7 +164,7 @@ func (r *Record) check(pub ed25519.PublicKey, sig bool) error {
 	}
 	prev, err := hex.DecodeString(r.Prev)
 	if err != nil || len(prev) != HashSize {
-		return fmt.Errorf("previous hash %q is not %d hex bytes", short(r.Prev), HashSize)
+		return fmt.Errorf("previous hash %q is not %d hex bytes", abbrevHex(r.Prev), HashSize)
 	}
 	if sig {
 		canon, err := CanonicalPayload(r.Payload)
@@ -183,10 +183,10 @@ func (r *Record) check(pub ed25519.PublicKey, sig bool) error {
 	want := r.ComputeHash()
 	got, err := hex.DecodeString(r.Hash)
 	if err != nil || len(got) != HashSize {
-		return fmt.Errorf("hash %q is not %d hex bytes", short(r.Hash), HashSize)
+		return fmt.Errorf("hash %q is not %d hex bytes", abbrevHex(r.Hash), HashSize)
 	}
 	if !bytes.Equal(got, want[:]) {
-		return fmt.Errorf("%w: stored %s, contents hash to %s", ErrHashMismatch, short(r.Hash), short(hex.EncodeToString(want[:])))
+		return fmt.Errorf("%w: stored %s, contents hash to %s", ErrHashMismatch, abbrevHex(r.Hash), abbrevHex(hex.EncodeToString(want[:])))
 	}
 	if !sig {
 		return nil // authenticated by the caller; a stream may carry no record signature
@@ -196,7 +196,7 @@ func (r *Record) check(pub ed25519.PublicKey, sig bool) error {
 		return fmt.Errorf("%w: signature is not %d hex bytes", ErrBadSignature, ed25519.SignatureSize)
 	}
 	if !ed25519.Verify(pub, recordMessage(got), sb) {
-		return fmt.Errorf("%w: record signature does not verify with board key %s", ErrBadSignature, short(hex.EncodeToString(pub)))
+		return fmt.Errorf("%w: record signature does not verify with board key %s", ErrBadSignature, abbrevHex(hex.EncodeToString(pub)))
 	}
 	return nil
 }
@@ -255,7 +255,7 @@ func checkChain(pub ed25519.PublicKey, prevSeq int64, prevHash string, recs []Re
 			return i, err
 		}
 		if r.Prev != prevHash {
-			return i, fmt.Errorf("%w: previous hash %s does not match the hash %s of record %d", ErrChainBroken, short(r.Prev), short(prevHash), prevSeq)
+			return i, fmt.Errorf("%w: previous hash %s does not match the hash %s of record %d", ErrChainBroken, abbrevHex(r.Prev), abbrevHex(prevHash), prevSeq)
 		}
 		if i > 0 && r.Session != recs[0].Session {
 			return i, fmt.Errorf("session %q differs from %q in the same chain", r.Session, recs[0].Session)
@@ -265,7 +265,8 @@ func checkChain(pub ed25519.PublicKey, prevSeq int64, prevHash string, recs []Re
 	return -1, nil
 }
 
-func short(h string) string {
+// abbrevHex shortens a hash or key in hex to its first 12 digits for a message.
+func abbrevHex(h string) string {
 	if len(h) > 12 {
 		return h[:12] + "…"
 	}

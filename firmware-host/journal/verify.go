@@ -377,7 +377,7 @@ func compareStore(ctx context.Context, head func(context.Context, string) (int64
 	case seq > last.Seq:
 		return &Problem{Session: session, Seq: last.Seq, Kind: last.Kind, What: fmt.Sprintf("%s: the store holds this session up to record %d, the journal only up to record %d", ErrRolledBack, seq, last.Seq), Hint: hintRolledBack}, nil
 	case recs[seq-1].Hash != hash:
-		return &Problem{Session: session, Seq: seq, Kind: recs[seq-1].Kind, What: fmt.Sprintf("record %d hashes to %s in the journal but %s in the store: the journal and the store hold different sessions under one id (a fork)", seq, short(recs[seq-1].Hash), short(hash)), Hint: hintEdited}, nil
+		return &Problem{Session: session, Seq: seq, Kind: recs[seq-1].Kind, What: fmt.Sprintf("record %d hashes to %s in the journal but %s in the store: the journal and the store hold different sessions under one id (a fork)", seq, abbrevHex(recs[seq-1].Hash), abbrevHex(hash)), Hint: hintEdited}, nil
 	}
 	return nil, nil
 }
@@ -395,7 +395,7 @@ func (h headRow) check(pub ed25519.PublicKey, recs []Record) *Problem {
 	sig, err2 := hex.DecodeString(h.sig)
 	switch {
 	case h.seq != last.Seq || h.hash != last.Hash:
-		p.What = fmt.Sprintf("the signed head names record %d (%s) but the last record is %d (%s)", h.seq, short(h.hash), last.Seq, short(last.Hash))
+		p.What = fmt.Sprintf("the signed head names record %d (%s) but the last record is %d (%s)", h.seq, abbrevHex(h.hash), last.Seq, abbrevHex(last.Hash))
 		p.Hint = hintMissing
 		if h.seq < last.Seq {
 			p.Hint = hintEdited
@@ -443,7 +443,7 @@ func checkSessionShape(pub ed25519.PublicKey, recs []Record, base int64) *Proble
 				return &Problem{Session: r.Session, Seq: 1, Kind: r.Kind, What: fmt.Sprintf("session record names id %q", s.ID), Hint: hintEdited}
 			}
 			if s.BoardKey != hex.EncodeToString(pub) {
-				return &Problem{Session: r.Session, Seq: 1, Kind: r.Kind, What: fmt.Sprintf("session record names board key %s, signed by %s", short(s.BoardKey), short(hex.EncodeToString(pub))), Hint: hintKey}
+				return &Problem{Session: r.Session, Seq: 1, Kind: r.Kind, What: fmt.Sprintf("session record names board key %s, signed by %s", abbrevHex(s.BoardKey), abbrevHex(hex.EncodeToString(pub))), Hint: hintKey}
 			}
 		} else if r.Kind == entry.KindSession {
 			return &Problem{Session: r.Session, Seq: r.Seq, Kind: r.Kind, What: "a second session record inside the session", Hint: hintEdited}

@@ -57,18 +57,18 @@ func (e *Engine) enterPhase(ctx context.Context, a *attempt, ph phase, detail st
 // (for timing the exposure). Kept by role, so any sensor the attempt
 // reads detects and times the beam the same way.
 type track struct {
-	role   string
-	dark   float64 // mean of the beam-off readings (corrected scale)
-	noise  float64 // their experimental standard deviation
-	step   float64 // display resolution, corrected scale (0: not known)
-	thresh float64
-	risen  bool         // has been above the threshold in this exposure
-	above  bool         // is above it now (two readings at or below end it)
-	low    int          // consecutive readings at or below the threshold
-	under  int          // readings under range since the prompt
-	over   int          // readings over range since the prompt: its fall cannot time the beam
-	peak   float64      // highest reading since it rose
-	all    []timedValue // usable readings since the prompt
+	role          string
+	dark          float64 // mean of the beam-off readings (corrected scale)
+	noise         float64 // their experimental standard deviation
+	step          float64 // display resolution, corrected scale (0: not known)
+	thresh        float64
+	risen         bool         // has been above the threshold in this exposure
+	overThreshold bool         // is above it now (two readings at or below end it)
+	low           int          // consecutive readings at or below the threshold
+	under         int          // readings under range since the prompt
+	over          int          // readings over range since the prompt: its fall cannot time the beam
+	peak          float64      // highest reading since it rose
+	all           []timedValue // usable readings since the prompt
 }
 
 // minFloor is the smallest threshold above the dark a meter may use: far
@@ -111,8 +111,8 @@ func (t *track) seeStatus(at time.Duration, v float64, usable, over bool) (rose,
 	if usable && t.high(v) {
 		t.low = 0
 		t.peak = math.Max(t.peak, v)
-		if !t.above {
-			t.above = true
+		if !t.overThreshold {
+			t.overThreshold = true
 			if !t.risen {
 				t.risen = true
 				return true, false
@@ -120,10 +120,10 @@ func (t *track) seeStatus(at time.Duration, v float64, usable, over bool) (rose,
 		}
 		return false, false
 	}
-	if t.above {
+	if t.overThreshold {
 		t.low++
 		if t.low >= 2 {
-			t.above = false
+			t.overThreshold = false
 			return false, true
 		}
 	}
@@ -705,7 +705,7 @@ func (a *attempt) risenAll() bool {
 // anyAbove: some meter of the attempt sees the beam now.
 func (a *attempt) anyAbove() bool {
 	for _, t := range a.tracks {
-		if t.above {
+		if t.overThreshold {
 			return true
 		}
 	}

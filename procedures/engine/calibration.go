@@ -209,8 +209,8 @@ type typeB struct {
 // finishStat fills the calibration part of an accepted position from the
 // readings the attempt holds (those that enter the result).
 func (e *Engine) finishStat(p *positionStats, a *attempt) {
-	byRole := map[string][]held{}
-	for _, h := range a.hold {
+	byRole := map[string][]unconfirmedReading{}
+	for _, h := range a.unconfirmed {
 		if a.inStep[h.role] {
 			byRole[h.role] = append(byRole[h.role], h)
 		}

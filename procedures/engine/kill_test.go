@@ -23,9 +23,9 @@ const (
 // right after the Nth record of a kind is durable.
 type killingJournal struct {
 	*journal.Journal
-	kind entry.Kind
-	n    int
-	seen map[entry.Kind]int
+	kind   entry.Kind
+	n      int
+	counts map[entry.Kind]int
 }
 
 func (k *killingJournal) Append(ctx context.Context, s string, kind entry.Kind, p any) (int64, error) {
@@ -48,8 +48,8 @@ func (k *killingJournal) AppendAll(ctx context.Context, s string, items []entry.
 }
 
 func (k *killingJournal) saw(kind entry.Kind) {
-	k.seen[kind]++
-	if kind == k.kind && k.seen[kind] == k.n {
+	k.counts[kind]++
+	if kind == k.kind && k.counts[kind] == k.n {
 		syscall.Kill(os.Getpid(), syscall.SIGKILL)
 		select {}
 	}
@@ -69,7 +69,7 @@ func TestKillChild(t *testing.T) {
 	}
 	k, c, _ := strings.Cut(os.Getenv(killAtEnv), ":")
 	n, _ := strconv.Atoi(c)
-	r.cfg.Journal = &killingJournal{Journal: jr, kind: entry.Kind(k), n: n, seen: map[entry.Kind]int{}}
+	r.cfg.Journal = &killingJournal{Journal: jr, kind: entry.Kind(k), n: n, counts: map[entry.Kind]int{}}
 	if _, err := r.run(context.Background()); err != nil {
 		t.Fatal(err)
 	}

@@ -20,8 +20,8 @@ import (
 
 // retryError ends an attempt that must be taken again; reason is said.
 type retryError struct {
-	reason string
-	free   bool // does not count against the attempts (timer reset, meter back)
+	reason    string
+	uncounted bool // does not count against the attempts (timer reset, meter back)
 	// rangeOrSettle: the signal itself is the problem (over or under
 	// range, never settling, a meter that does not see the beam), which
 	// taking it again the same way is unlikely to change.
@@ -44,8 +44,8 @@ var errIgnore = errors.New("reading set aside")
 // errBeamAlarm: the five-minute alarm ended the attempt.
 var errBeamAlarm = errors.New("five-minute beam-on alarm")
 
-// held is a reading kept back until its attempt is accepted or discarded.
-type held struct {
+// unconfirmedReading is a reading kept back until its attempt is accepted or discarded.
+type unconfirmedReading struct {
 	role string
 	r    drivers.Reading
 	c    Corrected
@@ -79,14 +79,14 @@ type attempt struct {
 	// readings from then on are held, and become the samples if a second
 	// look confirms it (settled = candidate), so the confirmation costs
 	// no beam time of its own.
-	candidate time.Duration
-	series    map[string][]timedValue
-	hold      []held
-	flags     []string
-	calib     bool
-	typeB     map[string]float64 // relative type B of one reading, by role (the latest correction's)
-	modes     map[string]float64
-	above     int // consecutive dosimeter readings above the kerma ceiling
+	candidate   time.Duration
+	series      map[string][]timedValue
+	unconfirmed []unconfirmedReading
+	flags       []string
+	calib       bool
+	typeB       map[string]float64 // relative type B of one reading, by role (the latest correction's)
+	modes       map[string]float64
+	overCeiling int // consecutive dosimeter readings above the kerma ceiling
 }
 
 func roleName(role string) string {
@@ -160,7 +160,7 @@ func (e *Engine) measurePosition(ctx context.Context, idx int, s Step, pi int, p
 		if !errors.As(err, &re) {
 			return err
 		}
-		if !re.free {
+		if !re.uncounted {
 			failures++
 			if re.rangeOrSettle {
 				signalFails++
@@ -180,7 +180,7 @@ func (e *Engine) measurePosition(ctx context.Context, idx int, s Step, pi int, p
 		case signalFails >= l.Retries, failures >= 2*l.Retries:
 			return e.notMeasurable(ctx, idx, s, pi, pos, npos, fmt.Sprintf("%s, %s times", re.reason, strings.ToLower(spellCount(failures))), used)
 		}
-		if failures > 0 && failures%l.Retries == 0 && !re.free {
+		if failures > 0 && failures%l.Retries == 0 && !re.uncounted {
 			text := fmt.Sprintf("This reading failed %d times: %s. Press the switch to try again, or long press to go back.", failures, re.reason)
 			if !m.Beam {
 				text = fmt.Sprintf("This reading failed %d times: %s. Press the switch to try again.", failures, re.reason)
@@ -340,14 +340,14 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (positionStats, err
 		// The beam is already on (a pedal held through a restart): have it
 		// released before taking the dark level again.
 		t.thresh = 5 * l.BeamFloor
-		t.risen, t.above = true, true
+		t.risen, t.overThreshold = true, true
 		a.beamOn, a.prompted = true, true
 		a.lastSig = e.cfg.Clock.Mono()
 		a.onAt, a.onBase = a.lastSig, e.st.beamOn
 		if err := e.release(ctx, a, panel.Warn, "The beam is on. Release the beam."); err != nil {
 			return positionStats{}, err
 		}
-		return positionStats{}, &retryError{reason: "the beam was on before the prompt", free: true}
+		return positionStats{}, &retryError{reason: "the beam was on before the prompt", uncounted: true}
 	}
 
 	p := panel.Prompt{Step: a.idx, StepID: a.step.ID}
@@ -451,7 +451,7 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (positionStats, err
 			if !done && a.lastSig-lastCheck >= driftEvery {
 				lastCheck = a.lastSig
 				if who, ok := e.drifting(a); ok {
-					n := len(a.hold)
+					n := len(a.unconfirmed)
 					if err := e.flush(ctx, a, false); err != nil {
 						return positionStats{}, err
 					}
@@ -915,7 +915,7 @@ func (e *Engine) readOne(ctx context.Context, a *attempt, role string) (drivers.
 		c := e.correct(a, role, r)
 		if r.AfterReconnect {
 			_ = e.record(ctx, a, role, r, c, false)
-			return r, c, &retryError{reason: "the " + role + " reconnected", free: true}
+			return r, c, &retryError{reason: "the " + role + " reconnected", uncounted: true}
 		}
 		return r, c, nil
 	}
@@ -1004,15 +1004,15 @@ func (e *Engine) guard(ctx context.Context, a *attempt, role string, r drivers.R
 		if (r.Usable() || r.Status == drivers.StatusOverRange) && v > ceil {
 			// Two readings in a row: a single corrupted value does not
 			// end a session; 0.1 to 0.2 s more beam does not matter.
-			a.above++
-			if a.above >= 2 {
+			a.overCeiling++
+			if a.overCeiling >= 2 {
 				_ = e.record(ctx, a, role, r, c, false)
 				return e.kermaStop(ctx, a, v, ceil)
 			}
 			_ = e.record(ctx, a, role, r, c, false)
 			return errIgnore
 		}
-		a.above = 0
+		a.overCeiling = 0
 	}
 	switch r.Status {
 	case drivers.StatusOK:
@@ -1099,7 +1099,7 @@ func (e *Engine) observe(ctx context.Context, a *attempt, role string, r drivers
 	}
 	sampling := live && a.inStep[role] && (a.settled >= 0 || a.candidate >= 0 || !a.spec.Beam)
 	if sampling && (usable || !a.spec.Beam) {
-		a.hold = append(a.hold, held{role, r, c})
+		a.unconfirmed = append(a.unconfirmed, unconfirmedReading{role, r, c})
 		return nil
 	}
 	return e.record(ctx, a, role, r, c, false)
@@ -1184,8 +1184,8 @@ func (e *Engine) attemptFailed(ctx context.Context, a *attempt, err error) error
 	if ctx.Err() != nil {
 		return ctx.Err()
 	}
-	if len(a.hold) > 0 {
-		n := len(a.hold)
+	if len(a.unconfirmed) > 0 {
+		n := len(a.unconfirmed)
 		if ferr := e.flush(ctx, a, false); ferr != nil && e.journalErr == nil {
 			return ferr
 		}
@@ -1206,7 +1206,7 @@ func (e *Engine) attemptFailed(ctx context.Context, a *attempt, err error) error
 				return werr
 			}
 		}
-		return &retryError{reason: "the " + lost.role + " was lost", free: true}
+		return &retryError{reason: "the " + lost.role + " was lost", uncounted: true}
 	case errors.Is(err, errBeamAlarm):
 		if werr := e.waitOff(ctx, a, panel.Alarm, "Release the beam."); werr != nil {
 			return werr
@@ -1214,7 +1214,7 @@ func (e *Engine) attemptFailed(ctx context.Context, a *attempt, err error) error
 		if _, aerr := e.ask(ctx, panel.Prompt{Message: panel.Message{Text: "Press the switch to reset the beam-on alarm and go on.", Level: panel.Alarm, Action: panel.ActAcknowledge}, Step: a.idx, StepID: a.step.ID}); aerr != nil {
 			return aerr
 		}
-		return &retryError{reason: "the beam-on alarm was reset", free: true}
+		return &retryError{reason: "the beam-on alarm was reset", uncounted: true}
 	case errors.As(err, &re):
 		if werr := e.releaseAfter(ctx, a, panel.Retry); werr != nil {
 			return werr
@@ -1310,7 +1310,7 @@ func (e *Engine) waitOff(ctx context.Context, a *attempt, lv panel.Level, text s
 	if a.beamOn && (a.tracks == nil || !a.anyAbove()) {
 		a.tracks = map[string]*track{}
 		if slices.Contains(a.roles, Dosimeter) {
-			a.tracks[Dosimeter] = &track{role: Dosimeter, thresh: 5 * e.cfg.Settings.BeamFloor, risen: true, above: true}
+			a.tracks[Dosimeter] = &track{role: Dosimeter, thresh: 5 * e.cfg.Settings.BeamFloor, risen: true, overThreshold: true}
 		} else {
 			a.beamOn = false
 		}
@@ -1325,12 +1325,12 @@ func (e *Engine) waitOff(ctx context.Context, a *attempt, lv panel.Level, text s
 				if errors.As(err, &lost) || ctx.Err() != nil {
 					return err
 				}
-				if t := a.tracks[role]; t != nil && t.above && a.beamOn {
+				if t := a.tracks[role]; t != nil && t.overThreshold && a.beamOn {
 					// The meter no longer gives readings (three errors in a
 					// row): it cannot show the beam off. The other meters
 					// decide; with none left, the engineer does.
 					_ = e.journal(ctx, entry.KindEvent, entry.Event{Step: a.idx, Name: evReadError, Detail: fmt.Sprintf("%s cannot show the beam off: %v", role, err), BeamOn: e.st.beamOn.Seconds()})
-					t.above, t.risen = false, false
+					t.overThreshold, t.risen = false, false
 					if err := e.offByHand(ctx, a); err != nil {
 						return err
 					}
@@ -1401,11 +1401,11 @@ func (e *Engine) record(ctx context.Context, a *attempt, role string, r drivers.
 
 // flush journals the held readings as used or not, in one write.
 func (e *Engine) flush(ctx context.Context, a *attempt, used bool) error {
-	for _, h := range a.hold {
+	for _, h := range a.unconfirmed {
 		if err := e.record(ctx, a, h.role, h.r, h.c, used); err != nil {
 			return err
 		}
 	}
-	a.hold = a.hold[:0]
+	a.unconfirmed = a.unconfirmed[:0]
 	return e.flushReadings(ctx)
 }

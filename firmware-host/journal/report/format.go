@@ -121,8 +121,8 @@ func Day(t time.Time) string {
 	return t.Format("2006-01-02")
 }
 
-// short abbreviates a long hex string for display.
-func short(s string) string {
+// abbrevHex abbreviates a long hex string for display.
+func abbrevHex(s string) string {
 	if len(s) <= 16 {
 		return s
 	}

@@ -46,7 +46,7 @@ func newHTMLTemplate(nw func(string) template.HTML) *template.Template {
 		"day":           Day,
 		"stamp":         Stamp,
 		"clock":         Clock,
-		"short":         short,
+		"short":         abbrevHex,
 		"num":           Number,
 		"exact":         Exact,
 		"kf":            Kf,

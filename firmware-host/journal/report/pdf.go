@@ -420,7 +420,7 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 	facts := [][2]string{
 		{"Site", r.Session.Site}, {"Room", r.Session.Room}, {"Intensifier", r.Session.IntensifierModel + ", " + d.words.text("serial") + " " + r.Session.IntensifierSerial},
 		{"Engineer", r.Session.Engineer}, {"Started", Stamp(r.Session.Started)}, {"Finished", finished},
-		{"Procedure", fmt.Sprintf(d.words.text("%s · %d steps"), r.Session.Procedure, r.StepCount)}, {"Board", short(r.Session.BoardKey)}, {"Software", "kermalux " + r.Session.SoftwareVersion},
+		{"Procedure", fmt.Sprintf(d.words.text("%s · %d steps"), r.Session.Procedure, r.StepCount)}, {"Board", abbrevHex(r.Session.BoardKey)}, {"Software", "kermalux " + r.Session.SoftwareVersion},
 	}
 	cw := d.w / 3
 	for i := 0; i < len(facts); i += 3 {
@@ -507,7 +507,7 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 	} else {
 		var rows [][]string
 		for _, c := range r.Certificates {
-			rows = append(rows, []string{c.ID, c.Meter, c.Model + ", " + c.Serial, c.Laboratory, Day(c.Calibrated), Day(c.Due), certStanding(c), short(c.SHA256)})
+			rows = append(rows, []string{c.ID, c.Meter, c.Model + ", " + c.Serial, c.Laboratory, Day(c.Calibrated), Day(c.Due), certStanding(c), abbrevHex(c.SHA256)})
 		}
 		d.table([]pdfCol{{"Certificate", .12, false}, {"Meter", .1, false}, {"Model, serial", .15, false}, {"Laboratory", .16, false}, {"Calibrated", .1, false}, {"Due", .1, false}, {"Standing on the day", .14, false}, {"File SHA-256", .13, false}}, rows)
 	}

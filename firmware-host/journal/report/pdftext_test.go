@@ -44,7 +44,7 @@ func TestPDFKeepsWordsWhole(t *testing.T) {
 	}
 	text := string(out)
 	for _, c := range sampleCerts() {
-		for _, w := range []string{c.ID, c.Serial, short(c.SHA256)} {
+		for _, w := range []string{c.ID, c.Serial, abbrevHex(c.SHA256)} {
 			if !strings.Contains(text, w) {
 				t.Errorf("%q is broken or missing in the PDF text", w)
 			}

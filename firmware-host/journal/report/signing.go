@@ -77,7 +77,7 @@ func (r *Report) testTable(w *words) infoTable {
 		{"Generator", orNotStated(x.Generator, x.GeneratorSerial)},
 		{"X-ray tube", orNotStated(x.Tube, x.TubeSerial)},
 		{"Image intensifier", orNotStated(s.IntensifierModel, s.IntensifierSerial)},
-		{"Procedure", fmt.Sprintf("%s, %d steps, script SHA-256 %s", s.Procedure, r.StepCount, short(s.ProcedureHash))},
+		{"Procedure", fmt.Sprintf("%s, %d steps, script SHA-256 %s", s.Procedure, r.StepCount, abbrevHex(s.ProcedureHash))},
 	}
 	if r.Simulated {
 		t.Notes = append(t.Notes, "Simulated session: the X-ray system, the intensifier and the meters are the bench simulator's inventions.")
