@@ -487,7 +487,9 @@ func (j *Journal) appendItems(ctx context.Context, session string, items []Item,
 		return fail(ErrSessionEnded)
 	}
 	// Hash the records first, then sign the head on another core while
-	// the records are signed and inserted (two signatures per append).
+	// the records are signed (two signatures per append: the record's
+	// proves it on its own, the head's that nothing was cut from the
+	// session's end); the last record's statement carries the head's.
 	recs := make([]Record, len(items))
 	hashes := make([][HashSize]byte, len(items))
 	for i, it := range items {
