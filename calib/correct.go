@@ -65,8 +65,6 @@ type Flag struct {
 	Text string
 }
 
-func (f Flag) String() string { return f.Text }
-
 // informational flags do not stop a reading being calibrated.
 func (f Flag) informational() bool {
 	return f.Code == FlagDueSoon || f.Code == FlagDiskSize || f.Code == FlagDarkModel

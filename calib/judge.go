@@ -5,9 +5,6 @@ import (
 	"math"
 	"sort"
 	"strings"
-	"time"
-
-	"gonum.org/v1/gonum/stat"
 )
 
 // Bound is which side of a limit passes.
@@ -207,92 +204,4 @@ func floorBlocks(r Result, b Bound, limit float64, words string) string {
 		return fmt.Sprintf("the meter's range floor %.4g lies above the %s: not measurable with this meter", r.Floor, words)
 	}
 	return ""
-}
-
-// Dated is a value of a figure of merit on a day.
-type Dated struct {
-	Day   time.Time
-	Value float64
-}
-
-// Trend compares a result with the intensifier's baseline and history.
-type Trend struct {
-	Baseline   float64
-	Fraction   float64 // current / baseline
-	AnnualRate float64 // change per year, as a fraction of the baseline (−0.05: losing 5 % of baseline a year); NaN when unknown
-	Method     string  // how AnnualRate was found
-	Points     int     // results the rate was found from
-	// Crossing is the date the fitted line reaches the action level, when
-	// it moves toward it; zero otherwise.
-	Crossing time.Time
-	Beyond   bool // the current value is already past the action level
-}
-
-const daysPerYear = 365.25
-
-// Compare computes the fraction of baseline, the annual rate of change
-// and the date the action level would be crossed at that rate. The rate
-// comes from the current and all earlier results: with more than two
-// results, an ordinary least-squares line (gonum stat.LinearRegression);
-// with two, the line through them. action may be nil.
-func Compare(current Dated, baseline float64, earlier []Dated, action *Limit) (Trend, error) {
-	if !(baseline > 0) {
-		return Trend{}, fmt.Errorf("baseline %g is not positive", baseline)
-	}
-	t := Trend{Baseline: baseline, Fraction: current.Value / baseline, AnnualRate: math.NaN()}
-	pts := append(append([]Dated(nil), earlier...), current)
-	sort.SliceStable(pts, func(i, j int) bool { return pts[i].Day.Before(pts[j].Day) })
-	t.Points = len(pts)
-	t0 := pts[0].Day
-	years := func(d time.Time) float64 { return d.Sub(t0).Hours() / 24 / daysPerYear }
-	var alpha, beta float64
-	switch {
-	case len(pts) == 1:
-		t.Method = "no earlier results"
-		return t, nil
-	case len(pts) == 2:
-		dt := years(pts[1].Day)
-		if dt <= 0 {
-			return t, fmt.Errorf("two results on the same day: no rate of change")
-		}
-		beta = (pts[1].Value - pts[0].Value) / dt
-		alpha = pts[0].Value
-		t.Method = "line through two results"
-	default:
-		xs := make([]float64, len(pts))
-		ys := make([]float64, len(pts))
-		for i, p := range pts {
-			xs[i], ys[i] = years(p.Day), p.Value
-		}
-		if xs[len(xs)-1] == 0 {
-			return t, fmt.Errorf("all results on the same day: no rate of change")
-		}
-		alpha, beta = stat.LinearRegression(xs, ys, nil, false)
-		t.Method = fmt.Sprintf("least-squares line through %d results", len(pts))
-	}
-	t.AnnualRate = beta / baseline
-	if action == nil {
-		return t, nil
-	}
-	level := action.Value
-	if action.Kind == KindBaseline {
-		level *= baseline
-	}
-	switch action.Bound {
-	case AtLeast:
-		t.Beyond = current.Value < level
-	case AtMost:
-		t.Beyond = current.Value > level
-	}
-	toward := (action.Bound == AtLeast && beta < 0) || (action.Bound == AtMost && beta > 0)
-	if toward && !t.Beyond {
-		x := (level - alpha) / beta
-		t.Crossing = t0.Add(time.Duration(x * daysPerYear * 24 * float64(time.Hour)))
-		if t.Crossing.Before(current.Day) {
-			// The fitted line is already past the level though the
-			// current value is not: the crossing is now.
-			t.Crossing = current.Day
-		}
-	}
-	return t, nil
 }

@@ -4,7 +4,6 @@ import (
 	"math"
 	"strings"
 	"testing"
-	"time"
 
 	"kermalux/drivers/units"
 )
@@ -187,48 +186,6 @@ func TestModeScaling(t *testing.T) {
 	}
 	if _, err := ModeScaling(modes[:1], 0); err == nil {
 		t.Error("one mode must be an error")
-	}
-}
-
-func TestCompareTrend(t *testing.T) {
-	y := func(x float64) time.Time {
-		return day("2020-01-01").Add(time.Duration(x * 365.25 * 24 * float64(time.Hour)))
-	}
-	earlier := []Dated{{y(0), 100}, {y(1), 95}}
-	action := &Limit{Kind: KindActionLevel, Bound: AtLeast, Value: 80}
-	// Least squares by hand through (0,100), (1,95), (2,91):
-	//   x̄ = 1, ȳ = 95.333, Sxy = −9, Sxx = 2 → slope −4.5/yr, intercept 99.833;
-	//   the line reaches 80 at x = (80 − 99.833)/(−4.5) = 4.4074 years.
-	tr, err := Compare(Dated{y(2), 91}, 100, earlier, action)
-	if err != nil {
-		t.Fatal(err)
-	}
-	if math.Abs(tr.AnnualRate+0.045) > 1e-9 || tr.Fraction != 0.91 || tr.Points != 3 || tr.Beyond {
-		t.Errorf("trend %+v", tr)
-	}
-	if got, want := tr.Crossing, y(4.407407); got.Sub(want).Abs() > 24*time.Hour {
-		t.Errorf("crossing %v, want %v", got, want)
-	}
-	// Two results: the line through them. 100 → 95 in a year: −5 %/yr; 80 reached at 4 years.
-	tr, _ = Compare(Dated{y(1), 95}, 100, earlier[:1], action)
-	if math.Abs(tr.AnnualRate+0.05) > 1e-9 || tr.Crossing.Sub(y(4)).Abs() > 24*time.Hour {
-		t.Errorf("two points: %+v", tr)
-	}
-	// Rising gain never reaches a minimum; a value already below it is Beyond.
-	tr, _ = Compare(Dated{y(1), 105}, 100, earlier[:1], action)
-	if !tr.Crossing.IsZero() || tr.Beyond {
-		t.Errorf("rising: %+v", tr)
-	}
-	tr, _ = Compare(Dated{y(1), 75}, 100, earlier[:1], action)
-	if !tr.Beyond {
-		t.Errorf("below the action level: %+v", tr)
-	}
-	tr, _ = Compare(Dated{y(0), 100}, 100, nil, action)
-	if !math.IsNaN(tr.AnnualRate) {
-		t.Errorf("no history: rate %v", tr.AnnualRate)
-	}
-	if _, err := Compare(Dated{y(0), 100}, 0, nil, nil); err == nil {
-		t.Error("zero baseline must be an error")
 	}
 }
 

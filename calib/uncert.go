@@ -27,12 +27,6 @@ func (r *Running) Add(x float64) {
 	r.m2 += d * (x - r.mean)
 }
 
-// N is the number of samples.
-func (r *Running) N() int { return r.n }
-
-// Mean is the arithmetic mean (JCGM 100:2008 4.2.1).
-func (r *Running) Mean() float64 { return r.mean }
-
 // Variance is the experimental variance s² of the samples (GUM 4.2.2);
 // 0 with fewer than two samples.
 func (r *Running) Variance() float64 {
@@ -42,7 +36,9 @@ func (r *Running) Variance() float64 {
 	return r.m2 / float64(r.n-1)
 }
 
-// Summary returns what a figure of merit needs from the samples.
+// Summary returns what a figure of merit needs from the samples: their
+// count, arithmetic mean (JCGM 100:2008 4.2.1) and experimental standard
+// deviation.
 func (r *Running) Summary() Summary {
 	return Summary{N: r.n, Mean: r.mean, SD: math.Sqrt(r.Variance())}
 }
@@ -52,15 +48,6 @@ type Summary struct {
 	N    int
 	Mean float64
 	SD   float64 // experimental standard deviation s (GUM 4.2.2)
-}
-
-// Summarize summarises samples.
-func Summarize(samples []float64) Summary {
-	var r Running
-	for _, x := range samples {
-		r.Add(x)
-	}
-	return r.Summary()
 }
 
 // SDMean is the experimental standard deviation of the mean, the type A

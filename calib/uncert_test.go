@@ -99,10 +99,10 @@ func TestRunningMatchesGonum(t *testing.T) {
 		r.Add(x)
 	}
 	mean, variance := stat.MeanVariance(xs, nil) // gonum: unbiased (n − 1) variance
-	if math.Abs(r.Mean()-mean) > 1e-12 || math.Abs(r.Variance()-variance) > 1e-9 {
-		t.Errorf("Running = %v, %v; gonum stat.MeanVariance = %v, %v", r.Mean(), r.Variance(), mean, variance)
+	s := r.Summary()
+	if s.N != len(xs) || math.Abs(s.Mean-mean) > 1e-12 || math.Abs(r.Variance()-variance) > 1e-9 {
+		t.Errorf("Running = %d, %v, %v; gonum stat.MeanVariance = %v, %v", s.N, s.Mean, r.Variance(), mean, variance)
 	}
-	s := Summarize(xs)
 	if math.Abs(s.SDMean()-math.Sqrt(variance/8)) > 1e-12 {
 		t.Errorf("SDMean = %v", s.SDMean())
 	}

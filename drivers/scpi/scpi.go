@@ -28,7 +28,6 @@ import (
 
 	"kermalux/drivers"
 	"kermalux/drivers/clock"
-	"kermalux/drivers/poller"
 	"kermalux/drivers/serialline"
 	"kermalux/drivers/units"
 )
@@ -116,17 +115,10 @@ func (c *Config) defaults() {
 type Option func(*options)
 
 type options struct {
-	name       string
-	clk        clock.Clock
-	log        *slog.Logger
-	background bool
+	name string
+	clk  clock.Clock
+	log  *slog.Logger
 }
-
-// WithBackground has a goroutine ask the meter at its own pace (Period)
-// and queue the readings (package poller), so the caller takes every
-// reading the meter gave, stamped when it came, however slow the caller
-// is; Pending and Discard then work as for a streaming meter.
-func WithBackground() Option { return func(o *options) { o.background = true } }
 
 // WithName sets the meter's role ("dosimeter"), copied into readings.
 func WithName(name string) Option { return func(o *options) { o.name = name } }
@@ -156,14 +148,11 @@ type Meter struct {
 	idKnown bool
 	changed error // set when a reconnection found another meter
 
-	bg *poller.Poller // the background reader, or nil
 }
 
 var (
 	_ drivers.Meter      = (*Meter)(nil)
 	_ drivers.Identifier = (*Meter)(nil)
-	_ drivers.Queued     = (*Meter)(nil)
-	_ drivers.Freshener  = (*Meter)(nil)
 )
 
 // Open opens the port, sends the set-up commands and learns the unit.
@@ -204,27 +193,7 @@ func Open(ctx context.Context, port string, cfg Config, opts ...Option) (*Meter,
 		sp.Close()
 		return nil, err
 	}
-	if o.background {
-		m.bg = poller.New(o.name, m.read, 0, o.log)
-	}
 	return m, nil
-}
-
-// Pending implements drivers.Queued: readings the background reader has
-// taken that wait to be read (0 without WithBackground).
-func (m *Meter) Pending() int {
-	if m.bg == nil {
-		return 0
-	}
-	return m.bg.Pending()
-}
-
-// Discard implements drivers.Freshener: with WithBackground, the queued
-// readings are dropped so the next one was asked after the call.
-func (m *Meter) Discard() {
-	if m.bg != nil {
-		m.bg.Discard()
-	}
 }
 
 // Port returns the transport.
@@ -422,7 +391,7 @@ func (m *Meter) Identify(ctx context.Context) (id drivers.Identity, err error) {
 			m.id, m.idKnown = id, true
 		}
 	}
-	m.bg.Exclusive(run)
+	run()
 	return id, err
 }
 
@@ -580,9 +549,6 @@ const dataOutOfRange = -222
 // or under-range reading whose only entries are -222 "Data out of range"
 // keeps its status).
 func (m *Meter) Read(ctx context.Context) (drivers.Reading, error) {
-	if m.bg != nil {
-		return m.bg.Next(ctx)
-	}
 	return m.read(ctx)
 }
 
@@ -692,10 +658,7 @@ func (m *Meter) recheckUnit(ctx context.Context) error {
 	return nil
 }
 
-// Close stops the background reader and closes the port.
+// Close closes the port.
 func (m *Meter) Close() error {
-	if m.bg != nil {
-		m.bg.Stop()
-	}
 	return m.port.Close()
 }

@@ -298,35 +298,12 @@ func (p *Port) stopReader() {
 	}
 }
 
-// changedLocked tells those watching the reader (tests, through
-// waitChange) that something changed. The caller holds p.mu.
+// changedLocked tells those watching the reader (the tests, through
+// WaitFor in export_test.go) that something changed. The caller holds p.mu.
 func (p *Port) changedLocked() {
 	if p.changed != nil {
 		close(p.changed)
 		p.changed = nil
-	}
-}
-
-// waitChange waits until cond holds, looking again each time the
-// background reader changes something (bytes read, a line queued, a flush
-// taken, the device gone), or until ctx ends. cond must not be called
-// with p.mu held; it may take it.
-func (p *Port) waitChange(ctx context.Context, cond func() bool) error {
-	for {
-		p.mu.Lock()
-		if p.changed == nil {
-			p.changed = make(chan struct{})
-		}
-		ch := p.changed
-		p.mu.Unlock()
-		if cond() {
-			return nil
-		}
-		select {
-		case <-ch:
-		case <-ctx.Done():
-			return ctx.Err()
-		}
 	}
 }
 

@@ -94,13 +94,13 @@ func TestDarkSubtractedOnceInMeterScale(t *testing.T) {
 			beam = append(beam, rd)
 		}
 	}
-	if dark.N() < 5 || len(beam) < 5 {
-		t.Fatalf("%d dark and %d beam readings", dark.N(), len(beam))
+	if dark.Summary().N < 5 || len(beam) < 5 {
+		t.Fatalf("%d dark and %d beam readings", dark.Summary().N, len(beam))
 	}
 	for _, rd := range beam {
-		want := 1.25 * (rd.RawValue - dark.Mean())
+		want := 1.25 * (rd.RawValue - dark.Summary().Mean)
 		if math.Abs(rd.Value-want) > 1e-9*want {
-			t.Fatalf("corrected %v from raw %v, want 1.25 × (raw − dark %v) = %v; corrections %+v", rd.Value, rd.RawValue, dark.Mean(), want, rd.Corrections)
+			t.Fatalf("corrected %v from raw %v, want 1.25 × (raw − dark %v) = %v; corrections %+v", rd.Value, rd.RawValue, dark.Summary().Mean, want, rd.Corrections)
 		}
 		if !rd.Calibrated {
 			t.Fatalf("reading not calibrated: %v", rd.Flags)
