@@ -228,3 +228,47 @@ func TestTranslateWhole(t *testing.T) {
 		}
 	}
 }
+
+// The result flags and reasons the engine and calib journal, as they
+// compose them (values filled in), translate whole in every built-in
+// language: the report shows them and the board may say them. The
+// seeded sessions never reach most of them. Two German ones are checked
+// word for word (written by hand, lang/de/engine.yaml).
+func TestResultFlagsTranslated(t *testing.T) {
+	flags := []string{
+		"the dark reading was under range and the meter's range floor is not known: the dark light could not be subtracted, reading not calibrated",
+		"limit spec_max not given in the bench file: not checked",
+		"no calibration certificate",
+		"position up 0.9 r: fewer than two samples, repeatability unknown",
+		"photometer: fewer than two samples, repeatability unknown",
+		"photometer: mean is not positive",
+		"certificate CPS-1 for the Vessoric LM-9 expired on 2025-01-01: reading not calibrated",
+		"no calibration certificate for this meter: reading not calibrated",
+		"the meter read under range and its range floor is not known: specification maximum 0.01 µGy/s cannot be judged",
+		"the meter's range floor 0.02 lies above the specification maximum 0.01 µGy/s: not measurable with this meter",
+		"result not calibrated: no calibration certificate for this meter: reading not calibrated",
+		"positions without their own dark reading: dark modelled from the centre's, between unchanged and scaled by each position's light (calib.PositionDark)",
+		"dosimeter coefficient taken at a tube voltage nobody read off: 70.0 kV, bench default, not read off",
+		"no baseline: baseline limit not checked",
+	}
+	for _, lang := range Languages()[1:] {
+		c, err := Builtin(lang)
+		if err != nil {
+			t.Fatal(err)
+		}
+		for _, f := range flags {
+			if _, ok := c.TranslateWhole(f); !ok {
+				t.Errorf("%s: no translation of the flag %q", lang, f)
+			}
+		}
+	}
+	de, _ := Builtin("de")
+	for src, want := range map[string]string{
+		"certificate CPS-1 for the Vessoric LM-9 expired on 2025-01-01: reading not calibrated": "Zertifikat CPS-1 für das Vessoric LM-9 abgelaufen am 2025-01-01: Messwert nicht kalibriert",
+		"position up 0.9 r: fewer than two samples, repeatability unknown":                      "Position oben 0,9 r: weniger als zwei Stichproben, Wiederholbarkeit unbekannt",
+	} {
+		if got, _ := de.TranslateWhole(src); got != want {
+			t.Errorf("%q in German: %q, want %q", src, got, want)
+		}
+	}
+}
