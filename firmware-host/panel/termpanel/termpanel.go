@@ -332,15 +332,6 @@ func (p *Panel) isClosed() bool {
 	return p.closed
 }
 
-// Progress is the progress line of a prompt: "step 5 of 31 — next: lead
-// disk", or "" when the prompt carries no progress.
-//
-// The step counted is the operator's own (silent computations are not
-// counted) when the prompt carries it, with the part of a sequence and the
-// line of a checklist: "part 4 of 7, Conversion factor in each field mode;
-// step 12 of 41 — next: ...", "step 2 of 41, line 3 of 4".
-func Progress(pr panel.Prompt) string { return progressIn(nil, pr) }
-
 // progressIn is the progress line in the ear's language.
 func progressIn(ear *speech.Ear, pr panel.Prompt) string {
 	tf := func(format string, a ...any) string { return fmt.Sprintf(ear.Text(format), a...) }

@@ -18,6 +18,15 @@ import (
 	"kermalux/procedures/panel"
 )
 
+// Progress is the progress line of a prompt: "step 5 of 31 — next: lead
+// disk", or "" when the prompt carries no progress.
+//
+// The step counted is the operator's own (silent computations are not
+// counted) when the prompt carries it, with the part of a sequence and the
+// line of a checklist: "part 4 of 7, Conversion factor in each field mode;
+// step 12 of 41 — next: ...", "step 2 of 41, line 3 of 4".
+func Progress(pr panel.Prompt) string { return progressIn(nil, pr) }
+
 var update = flag.Bool("update", false, "rewrite golden files")
 
 var t0 = time.Date(2026, 3, 4, 9, 0, 0, 0, time.UTC)
