@@ -249,6 +249,15 @@ func BenchmarkReportAndTrend(b *testing.B) {
 			}
 		}
 	})
+	// The search of every session's record 1 for one filed under another
+	// serial, which the trend's and the report's verification run.
+	b.Run("misfiled", func(b *testing.B) {
+		for i := 0; i < b.N; i++ {
+			if m, err := st.Misfiled(ctx, "HV-2291"); err != nil || len(m) != 0 {
+				b.Fatalf("misfiled: %d, %v", len(m), err)
+			}
+		}
+	})
 	b.Run("trend", func(b *testing.B) {
 		out := b.TempDir()
 		for i := 0; i < b.N; i++ {

@@ -199,7 +199,9 @@ func verifyStoreRecords(ctx context.Context, st *store.Store, id string) ([]stri
 
 // VerifyStoreSerial checks every stored session of an intensifier (what a
 // trend is computed from): the sessions the store indexes under serial,
-// each with its row checked against its records (VerifyStoreSession).
+// each with its row checked against its records (VerifyStoreSession), and
+// those whose signed session record names serial while the store files
+// them under another (store.Misfiled).
 func VerifyStoreSerial(ctx context.Context, st *store.Store, serial string) ([]string, error) {
 	infos, err := st.Sessions(ctx, store.Query{Serial: serial})
 	if err != nil {
@@ -242,6 +244,17 @@ func VerifyStoreSerial(ctx context.Context, st *store.Store, serial string) ([]s
 	}
 	for id, n := range indexed {
 		out = append(out, fmt.Sprintf("session %s: %d results indexed under intensifier %s, which the store's session does not name (the index was changed)", id, n, serial))
+	}
+	// A session the store files under another serial while its signed
+	// record names this one: its row was edited away from this trend.
+	moved, err := st.Misfiled(ctx, serial)
+	if err != nil {
+		return nil, err
+	}
+	for _, m := range moved {
+		for _, c := range m.Changed {
+			out = append(out, fmt.Sprintf("session %s: %s; its signed session record names intensifier %q", m.ID, c, serial))
+		}
 	}
 	return out, nil
 }

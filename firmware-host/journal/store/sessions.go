@@ -335,3 +335,64 @@ func (s *Store) History(ctx context.Context, serial string) ([]HistoryPoint, err
 	}
 	return hs, nil
 }
+
+// Misfiled returns the sessions whose signed session record names the
+// intensifier serial while their row in the store files them under
+// another serial. Such a row (its serial edited, with its results index)
+// would otherwise take a session out of the intensifier's trend unseen.
+// Candidates are found by the record's text (a LIKE over record 1 of every
+// session, one indexed lookup each, no decoding) and confirmed by reading
+// the session as Session does.
+func (s *Store) Misfiled(ctx context.Context, serial string) ([]SessionInfo, error) {
+	rows, err := s.db.QueryContext(ctx, s.q(`SELECT s.id FROM sessions s JOIN records f ON f.session = s.id AND f.seq = 1
+		WHERE s.serial <> ? AND f.payload LIKE ? ESCAPE '!'`), serial, serialPattern(serial))
+	if err != nil {
+		return nil, fmt.Errorf("store %s: sessions of %s: %w", s.name, serial, err)
+	}
+	var ids []string
+	for rows.Next() {
+		var id string
+		if err := rows.Scan(&id); err != nil {
+			rows.Close()
+			return nil, fmt.Errorf("store %s: sessions of %s: %w", s.name, serial, err)
+		}
+		ids = append(ids, id)
+	}
+	rows.Close()
+	if err := rows.Err(); err != nil {
+		return nil, fmt.Errorf("store %s: sessions of %s: %w", s.name, serial, err)
+	}
+	var out []SessionInfo
+	for _, id := range ids {
+		si, err := s.Session(ctx, id)
+		if err != nil {
+			return nil, err
+		}
+		if si.Session.IntensifierSerial == serial {
+			out = append(out, si)
+		}
+	}
+	return out, nil
+}
+
+// serialPattern is a LIKE pattern (escape character '!') matching the
+// JSON text of a session record that names serial. A character JSON may
+// write escaped or not matches any text there: the pattern finds
+// candidates, which are then decoded.
+func serialPattern(serial string) string {
+	var b strings.Builder
+	b.WriteString(`%"intensifier_serial":"`)
+	for _, r := range serial {
+		switch {
+		case r == '%' || r == '_' || r == '!':
+			b.WriteRune('!')
+			b.WriteRune(r)
+		case r < 0x20 || r > 0x7e || r == '"' || r == '\\' || r == '<' || r == '>' || r == '&':
+			b.WriteByte('%')
+		default:
+			b.WriteRune(r)
+		}
+	}
+	b.WriteString(`"%`)
+	return b.String()
+}

@@ -72,6 +72,23 @@ func Open(t testing.TB, target string) *store.Store {
 	return st
 }
 
+// SQL opens target's database directly, as a person with access to it
+// would, for tests that edit it behind the store's back; closed when the
+// test ends.
+func SQL(t testing.TB, target string) *sql.DB {
+	t.Helper()
+	driver := "sqlite"
+	if store.IsURL(target) {
+		driver = "pgx"
+	}
+	db, err := sql.Open(driver, target)
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(func() { db.Close() })
+	return db
+}
+
 // New opens a new, empty store on backend.
 func New(t testing.TB, backend string) *store.Store { return Open(t, Target(t, backend)) }
 
