@@ -105,3 +105,17 @@ one JSON document, instead of the table.`,
 	_ = cmd.MarkFlagRequired("store")
 	register(cmd)
 }
+
+// exactArgs wants n arguments and names what is missing: "missing the
+// intensifier's serial number, e.g. ...".
+func exactArgs(n int, what string) cobra.PositionalArgs {
+	return func(c *cobra.Command, args []string) error {
+		switch {
+		case len(args) < n:
+			return withCode(exitUsage, fmt.Errorf("%s: missing %s (usage: %s)", c.CommandPath(), what, c.UseLine()))
+		case len(args) > n:
+			return withCode(exitUsage, fmt.Errorf("%s: %d arguments, want %d: %s (usage: %s)", c.CommandPath(), len(args), n, what, c.UseLine()))
+		}
+		return nil
+	}
+}

@@ -52,3 +52,11 @@ func wireStoreCompletion() {
 		})
 	}
 }
+
+// quantities are the figures of merit results carry.
+var quantities = []string{"conversion_factor", "input_kerma_rate", "kerma_rate_scaling", "non_uniformity", "contrast_ratio", "dark_level", "stability"}
+
+// completeQuantities offers the result quantities.
+func completeQuantities(c *cobra.Command, args []string, toComplete string) ([]string, cobra.ShellCompDirective) {
+	return withPrefix(quantities, toComplete), cobra.ShellCompDirectiveNoFileComp
+}

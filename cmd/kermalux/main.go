@@ -141,20 +141,6 @@ func execute(args []string, stdout, stderr io.Writer) int {
 
 var completionOnce sync.Once
 
-// exactArgs wants n arguments and names what is missing: "missing the
-// intensifier's serial number, e.g. ...".
-func exactArgs(n int, what string) cobra.PositionalArgs {
-	return func(c *cobra.Command, args []string) error {
-		switch {
-		case len(args) < n:
-			return withCode(exitUsage, fmt.Errorf("%s: missing %s (usage: %s)", c.CommandPath(), what, c.UseLine()))
-		case len(args) > n:
-			return withCode(exitUsage, fmt.Errorf("%s: %d arguments, want %d: %s (usage: %s)", c.CommandPath(), len(args), n, what, c.UseLine()))
-		}
-		return nil
-	}
-}
-
 // missingArgument turns cobra's bare "accepts 1 arg(s), received 0" or
 // "requires at least 1 arg(s)" into a message that says which command
 // wanted what, from its usage line; "" for any other error.
