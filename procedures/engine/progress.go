@@ -184,7 +184,8 @@ func (e *Engine) opening(title string) string {
 	if pr.parts > 1 {
 		b.WriteString(" " + e.t("%d parts,", pr.parts))
 	}
-	fmt.Fprintf(&b, " %s, %s.", e.exposures(n, false), e.spokenMinutes(d))
+	// Without the parts the exposures open a sentence of their own.
+	fmt.Fprintf(&b, " %s, %s.", e.exposures(n, pr.parts <= 1), e.spokenMinutes(d))
 	if bb := e.cfg.Procedure.BeamBudget; bb > 0 {
 		b.WriteString(" " + e.t("Beam-on budget %s.", e.duration(bb)))
 	}

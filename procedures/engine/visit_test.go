@@ -339,3 +339,17 @@ func TestSayAgainAndSkipFieldMode(t *testing.T) {
 		t.Errorf("summary skipped %v", v.sum.Skipped)
 	}
 }
+
+// A procedure of one part opens with its exposures as a sentence of their
+// own, capitalised ("Starting Meter checks before use. No exposures,
+// about 2 minutes."; it said "no exposures" after the full stop).
+func TestOpeningOfOnePart(t *testing.T) {
+	v := runBuiltinOnSimulator(t, room2, "meter-checks", room2Values)
+	msgs := v.pan.Messages()
+	if len(msgs) == 0 || !strings.HasPrefix(msgs[0].Text, "Starting ") {
+		t.Fatalf("no opening message")
+	}
+	if open := msgs[0].Text; !strings.Contains(open, ". No exposures, ") {
+		t.Errorf("opening %q: the exposures do not open their sentence", open)
+	}
+}
