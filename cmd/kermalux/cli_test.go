@@ -141,10 +141,18 @@ func TestBusyHostLine(t *testing.T) {
 		{"idle, a figure missed", idle, missed, ""},
 		{"not known", demo.HostLag{Speed: 20}, missed, ""},
 	} {
-		got := hostLine(c.l, c.results)
+		got := hostLine(c.l, c.results, nil)
 		if (c.want == "") != (got == "") || !strings.Contains(got, c.want) {
 			t.Errorf("%s: %q, want %q", c.name, got, c.want)
 		}
+	}
+	// A German board warns in German (lang/de/terminal.yaml).
+	de, err := catalog.Builtin("de")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if got := hostLine(busy, missed, de); !strings.HasPrefix(got, "Ausgelasteter Rechner: ") || !strings.Contains(got, "--speed 5") {
+		t.Errorf("German warning %q", got)
 	}
 }
 

@@ -207,7 +207,7 @@ func printDemoSummary(w io.Writer, out *demo.Outcome, m *catalog.Catalog) {
 	fmt.Fprintln(w, tr(m, "Session %s (SIMULATED): %s, %d of %d steps, beam-on %.0f s, %s simulated in %s.",
 		s.Session, m.Text(s.Outcome), s.Steps, s.Of, s.BeamOn.Seconds(), out.Elapsed.Round(1e9), m.Number(out.Wall.Round(1e8).String())))
 	fmt.Fprintln(w, visitLine(out, m))
-	if l := hostLine(out.Host, s.Results); l != "" {
+	if l := hostLine(out.Host, s.Results, m); l != "" {
 		fmt.Fprintln(w, l)
 	}
 	writeSummaryTable(w, s.Results, m)
@@ -254,7 +254,7 @@ func visitLine(out *demo.Outcome, m *catalog.Catalog) string {
 // or a reading "not measurable" may be the host's, not the bench's.
 // It is said only when a figure came out not measurable: a busy host that
 // disturbed nothing needs no excuse.
-func hostLine(l demo.HostLag, results []entry.Result) string {
+func hostLine(l demo.HostLag, results []entry.Result, m *catalog.Catalog) string {
 	missed := 0
 	for _, r := range results {
 		if r.Verdict == string(calib.NotMeasurable) {
@@ -265,8 +265,9 @@ func hostLine(l demo.HostLag, results []entry.Result) string {
 		return ""
 	}
 	slower := max(1, math.Floor(l.Speed/4))
-	return fmt.Sprintf("Busy host: at %g× real time this machine kept the demo waiting for a CPU %.1f s of simulated time a second (%.0f s in %.0f s). The %d figure(s) not measurable may come from this machine, not from the simulated bench: run again with --speed %g, or on a quieter machine.",
-		l.Speed, l.Pressure(), l.Wait.Seconds(), l.Wall.Seconds(), missed, slower)
+	num := func(format string, v float64) string { return m.Number(fmt.Sprintf(format, v)) }
+	return tr(m, "Busy host: at %s× real time this machine kept the demo waiting for a CPU %s s of simulated time a second (%s s in %s s). The %d figure(s) not measurable may come from this machine, not from the simulated bench: run again with --speed %s, or on a quieter machine.",
+		num("%g", l.Speed), num("%.1f", l.Pressure()), num("%.0f", l.Wait.Seconds()), num("%.0f", l.Wall.Seconds()), missed, num("%g", slower))
 }
 
 // minSec writes d as "12 min 05 s".
