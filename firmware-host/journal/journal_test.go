@@ -173,7 +173,7 @@ func TestCanonicalPayload(t *testing.T) {
 
 // tamper makes a copy of the journal, changes it with f, verifies the copy
 // and returns the report.
-func tamper(t *testing.T, src string, f func(db *sql.DB, path string)) Report {
+func tamper(t *testing.T, src string, f func(db *sql.DB, path string)) VerifyReport {
 	t.Helper()
 	dst := filepath.Join(t.TempDir(), "copy.db")
 	b, err := os.ReadFile(src)

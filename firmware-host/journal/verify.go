@@ -49,8 +49,8 @@ func (p Problem) String() string {
 	return b.String()
 }
 
-// Report is what Verify found.
-type Report struct {
+// VerifyReport is what Verify found.
+type VerifyReport struct {
 	Path       string    `json:"path"`
 	Schema     int       `json:"schema"`
 	BoardKey   string    `json:"board_key"`
@@ -62,7 +62,7 @@ type Report struct {
 }
 
 // OK reports whether nothing is wrong.
-func (r Report) OK() bool { return len(r.Problems) == 0 }
+func (r VerifyReport) OK() bool { return len(r.Problems) == 0 }
 
 const (
 	hintEdited   = "the record was changed after it was written; use an untouched copy of the journal (the board's own file, or the workstation store)"
@@ -88,7 +88,7 @@ func openRead(path string) (*sql.DB, error) {
 // every signature against the board key recorded in the file. A Report
 // with problems means the journal is bad; an error means it could not be
 // read at all.
-func Verify(ctx context.Context, path string) (Report, error) {
+func Verify(ctx context.Context, path string) (VerifyReport, error) {
 	return VerifyWith(ctx, path, VerifyOptions{})
 }
 
@@ -113,8 +113,8 @@ type VerifyOptions struct {
 // it never checkpoints, never deletes the -wal file, never writes.
 // SQLite's own integrity check runs first; a damaged file is reported as
 // such, before anything read through its damaged indexes.
-func VerifyWith(ctx context.Context, path string, opts VerifyOptions) (Report, error) {
-	rep := Report{Path: path}
+func VerifyWith(ctx context.Context, path string, opts VerifyOptions) (VerifyReport, error) {
+	rep := VerifyReport{Path: path}
 	db, err := openRead(path)
 	if err != nil {
 		return rep, err
@@ -129,7 +129,7 @@ func VerifyWith(ctx context.Context, path string, opts VerifyOptions) (Report, e
 			return verifyCopy(ctx, path, opts)
 		}
 	}
-	fileProblem := func(what, hint string) (Report, error) {
+	fileProblem := func(what, hint string) (VerifyReport, error) {
 		rep.Problems = append(rep.Problems, Problem{What: what, Hint: hint})
 		return rep, nil
 	}
@@ -261,10 +261,10 @@ func needsRecovery(err error) bool {
 // verifyCopy verifies a copy of the journal's files (journal, -wal,
 // -journal, mark) in a temporary folder, so that SQLite may recover the
 // copy while the original stays untouched.
-func verifyCopy(ctx context.Context, path string, opts VerifyOptions) (Report, error) {
+func verifyCopy(ctx context.Context, path string, opts VerifyOptions) (VerifyReport, error) {
 	dir, err := os.MkdirTemp("", "kermalux-verify-")
 	if err != nil {
-		return Report{Path: path}, fmt.Errorf("journal %s: %w", path, err)
+		return VerifyReport{Path: path}, fmt.Errorf("journal %s: %w", path, err)
 	}
 	defer os.RemoveAll(dir)
 	cp := filepath.Join(dir, "journal.db")
@@ -277,18 +277,18 @@ func verifyCopy(ctx context.Context, path string, opts VerifyOptions) (Report, e
 			err = os.WriteFile(cp+suf, data, 0o600)
 		}
 		if err != nil {
-			return Report{Path: path}, fmt.Errorf("journal %s: copy for verification: %w", path, err)
+			return VerifyReport{Path: path}, fmt.Errorf("journal %s: copy for verification: %w", path, err)
 		}
 	}
 	db, err := sql.Open("sqlite", dsn(cp, true))
 	if err != nil {
-		return Report{Path: path}, fmt.Errorf("journal %s: %w", path, err)
+		return VerifyReport{Path: path}, fmt.Errorf("journal %s: %w", path, err)
 	}
 	var n int
 	err = db.QueryRowContext(ctx, `SELECT count(*) FROM sqlite_master`).Scan(&n) // recovers the copy
 	db.Close()
 	if err != nil && !strings.Contains(err.Error(), "not a database") {
-		return Report{Path: path}, fmt.Errorf("journal %s: recover a copy: %w", path, err)
+		return VerifyReport{Path: path}, fmt.Errorf("journal %s: recover a copy: %w", path, err)
 	}
 	rep, err := VerifyWith(ctx, cp, opts)
 	rep.Path = path

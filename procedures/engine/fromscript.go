@@ -36,7 +36,7 @@ func FromFlat(f *script.Flat) Procedure {
 // (every script.Kinds entry that does not expand), the engine's kind and
 // the conversion of the kind's own part. A new kind gets its entry here,
 // beside what the engine does with it.
-var fromScript = map[script.Kind]struct {
+var fromScript = map[script.StepKind]struct {
 	kind    StepKind
 	convert func(s *script.Step, st *Step)
 }{

@@ -16,7 +16,7 @@ import (
 // kind has one.
 func TestFromScriptCoversKinds(t *testing.T) {
 	flat := flatEveryKind(t)
-	reach := map[script.Kind]bool{}
+	reach := map[script.StepKind]bool{}
 	for _, s := range flat.Steps {
 		reach[s.Step.Kind] = true
 	}

@@ -4,33 +4,33 @@ import (
 	"strings"
 )
 
-// Kind is a step's kind.
-type Kind string
+// StepKind is a step's kind.
+type StepKind string
 
 // The step kinds.
 const (
 	// KindSay shows and speaks Text and goes on without waiting.
-	KindSay Kind = "say"
+	KindSay StepKind = "say"
 	// KindPrepare shows and speaks Text and the Setup wanted, then waits
 	// for a press.
-	KindPrepare Kind = "prepare"
+	KindPrepare StepKind = "prepare"
 	// KindChecklist reads Items one at a time; each needs a press.
-	KindChecklist Kind = "checklist"
+	KindChecklist StepKind = "checklist"
 	// KindSafetyChecklist is the pre-exposure safety checklist: like
 	// KindChecklist, and no beam step may come before one is acknowledged.
-	KindSafetyChecklist Kind = "safety_checklist"
+	KindSafetyChecklist StepKind = "safety_checklist"
 	// KindEnter asks for a value (see ValueRequest).
-	KindEnter Kind = "enter"
+	KindEnter StepKind = "enter"
 	// KindMeasure takes readings (see MeasureSpec).
-	KindMeasure Kind = "measure"
+	KindMeasure StepKind = "measure"
 	// KindCompute computes a figure of merit from earlier measurements.
-	KindCompute Kind = "compute"
+	KindCompute StepKind = "compute"
 	// KindJudge judges a computed result against limits.
-	KindJudge Kind = "judge"
+	KindJudge StepKind = "judge"
 	// KindPerFieldMode repeats its nested steps once for each field mode.
-	KindPerFieldMode Kind = "per_field_mode"
+	KindPerFieldMode StepKind = "per_field_mode"
 	// KindInclude runs another procedure's steps in its place.
-	KindInclude Kind = "include"
+	KindInclude StepKind = "include"
 )
 
 // kindDef is one entry of the table of step kinds: what the parser, the
@@ -40,7 +40,7 @@ const (
 // procedures/engine/fromscript.go) beside what it does with the kind.
 // DEVELOPERS.md, "How to add a step kind", lists the steps.
 type kindDef struct {
-	kind Kind
+	kind StepKind
 	// fields are the keys a step of the kind may have besides id and
 	// kind, in the order FORMAT.md lists them; need are those it must
 	// have.
@@ -115,10 +115,10 @@ func init() {
 }
 
 // Kinds lists every step kind, in the order FORMAT.md describes them.
-var Kinds []Kind
+var Kinds []StepKind
 
 // kindOf returns the table entry of a kind and whether there is one.
-func kindOf(k Kind) (*kindDef, bool) {
+func kindOf(k StepKind) (*kindDef, bool) {
 	for i := range kindTable {
 		if kindTable[i].kind == k {
 			return &kindTable[i], true

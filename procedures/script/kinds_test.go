@@ -80,7 +80,7 @@ func TestKindFieldsGolden(t *testing.T) {
 // (each kind copies its own part for its place in the run).
 func TestEveryKind(t *testing.T) {
 	p := loadGood(t, "every-kind.yaml")
-	written := map[Kind]bool{}
+	written := map[StepKind]bool{}
 	var walk func([]Step)
 	walk = func(ss []Step) {
 		for i := range ss {
@@ -106,7 +106,7 @@ func TestEveryKind(t *testing.T) {
 	if !reflect.DeepEqual(p.Steps, fresh.Steps) {
 		t.Error("Flatten changed the written steps")
 	}
-	flat := map[Kind]int{}
+	flat := map[StepKind]int{}
 	for _, s := range f.Steps {
 		flat[s.Step.Kind]++
 	}

@@ -336,7 +336,7 @@ func (ps *parse) step(n ast.Node, nested bool) (Step, bool) {
 		ps.errf(s.Pos, "step has no kind (one of %s)", kindNames())
 		return Step{}, false
 	}
-	s.Kind = Kind(ps.text(kf, "kind"))
+	s.Kind = StepKind(ps.text(kf, "kind"))
 	k, known := kindOf(s.Kind)
 	if !known {
 		ps.errf(kf.vpos, "unknown step kind %q (expected one of %s)", s.Kind, kindNames())

@@ -63,7 +63,7 @@ type Defaults struct {
 // Text, Setup and Items).
 type Step struct {
 	ID    string
-	Kind  Kind
+	Kind  StepKind
 	Text  string // spoken and shown; may contain {mode} within per_field_mode
 	Setup Setup  // bench state wanted (prepare, measure)
 	Items []Item // checklist lines

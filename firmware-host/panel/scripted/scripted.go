@@ -19,18 +19,18 @@ import (
 	"kermalux/procedures/panel"
 )
 
-// Kind names what a recorded event was.
-type Kind string
+// EventKind names what a recorded event was.
+type EventKind string
 
 const (
-	KindSay      Kind = "say"
-	KindAsk      Kind = "ask"
-	KindIndicate Kind = "indicate"
+	KindSay      EventKind = "say"
+	KindAsk      EventKind = "ask"
+	KindIndicate EventKind = "indicate"
 )
 
 // Event is one recorded call on the panel.
 type Event struct {
-	Kind      Kind
+	Kind      EventKind
 	At        time.Time       // the clock's time when the call was made
 	Message   panel.Message   // KindSay
 	Prompt    panel.Prompt    // KindAsk
