@@ -76,6 +76,7 @@ type Journal struct {
 	path   string
 	db     *sql.DB
 	priv   ed25519.PrivateKey
+	signer *signer // the appends' signatures, their nonces made ahead (sign.go)
 	pub    ed25519.PublicKey
 	pubHex string
 	clk    clock.Clock
@@ -208,6 +209,7 @@ func Open(path string, opts Options) (*Journal, error) {
 	db := sql.OpenDB(appendConnector{base})
 	db.SetMaxOpenConns(1)
 	j := &Journal{path: path, db: db, priv: priv, pub: priv.Public().(ed25519.PublicKey), clk: opts.Clock, soft: opts.SoftwareVersion, heads: map[string]headState{}}
+	j.signer = newSigner(priv)
 	j.pubHex = hex.EncodeToString(j.pub)
 	if j.clk == nil {
 		j.clk = clock.NewReal()
@@ -219,6 +221,7 @@ func Open(path string, opts Options) (*Journal, error) {
 	}
 	if err := j.init(); err != nil {
 		db.Close()
+		j.signer.Close()
 		return nil, fmt.Errorf("open journal %s: %w", path, err)
 	}
 	for _, p := range []struct {
@@ -230,6 +233,7 @@ func Open(path string, opts Options) (*Journal, error) {
 	} {
 		if *p.st, err = db.Prepare(p.q); err != nil {
 			db.Close()
+			j.signer.Close()
 			return nil, fmt.Errorf("open journal %s: %w", path, err)
 		}
 	}
@@ -330,6 +334,7 @@ func (j *Journal) Sign(msg []byte) []byte { return ed25519.Sign(j.priv, msg) }
 // Close writes the high-water mark of the last commit and closes the
 // journal.
 func (j *Journal) Close() error {
+	j.signer.Close()
 	var merr error
 	if j.mark != nil {
 		merr = j.mark.close()
@@ -486,10 +491,11 @@ func (j *Journal) appendItems(ctx context.Context, session string, items []Item,
 	case ended:
 		return fail(ErrSessionEnded)
 	}
-	// Hash the records first, then sign the head on another core while
-	// the records are signed (two signatures per append: the record's
-	// proves it on its own, the head's that nothing was cut from the
-	// session's end); the last record's statement carries the head's.
+	// Hash the records first, then sign each and the head (two
+	// signatures per append: the record's proves it on its own, the
+	// head's that nothing was cut from the session's end); the last
+	// record's statement carries the head's. The signer's nonces are made
+	// ahead of time, so a signature costs a few microseconds (sign.go).
 	recs := make([]Record, len(items))
 	hashes := make([][HashSize]byte, len(items))
 	for i, it := range items {
@@ -499,21 +505,16 @@ func (j *Journal) appendItems(ctx context.Context, session string, items []Item,
 		recs[i].Hash = hex.EncodeToString(hashes[i][:])
 		seq, prev = recs[i].Seq, recs[i].Hash
 	}
-	headc := make(chan string, 1)
-	go func(h [HashSize]byte) {
-		headc <- hex.EncodeToString(ed25519.Sign(j.priv, headMessage(session, seq, h[:])))
-	}(hashes[len(hashes)-1])
+	last := hashes[len(hashes)-1]
+	headSigned := hex.EncodeToString(j.signer.Sign(headMessage(session, seq, last[:])))
 	for i := range recs {
 		r := &recs[i]
-		r.Sig = hex.EncodeToString(ed25519.Sign(j.priv, recordMessage(hashes[i][:])))
+		r.Sig = hex.EncodeToString(j.signer.Sign(recordMessage(hashes[i][:])))
 		headSig := "" // replaced by the last record's within the transaction
 		if i == len(recs)-1 {
-			headSig = <-headc
+			headSig = headSigned
 		}
 		if _, err := put.ExecContext(ctx, r.Session, r.Seq, string(r.Kind), r.Wall, r.Mono, r.BootID, string(r.Payload), r.Prev, r.Hash, r.Sig, headSig); err != nil {
-			if i < len(recs)-1 {
-				<-headc
-			}
 			return fail(err)
 		}
 	}
