@@ -206,13 +206,13 @@ func (p *port) read(f *os.File, done chan struct{}) {
 		// Commands that came in together were all sent before any reply
 		// to the first of them existed: a reply followed by another
 		// command of the same read was never read by the host.
-		held := false
+		replyHeld := false
 		for i, r := range got {
 			if r.overrun {
 				p.overrun()
 				continue
 			}
-			held = p.handle(r.cmd, held, i < len(got)-1)
+			replyHeld = p.handle(r.cmd, replyHeld, i < len(got)-1)
 		}
 		if err != nil {
 			// Closed by unplug or shutdown. (EIO, "no client", cannot
@@ -240,7 +240,7 @@ func (p *port) overrun() {
 // have read it); more says another command follows in the same read, so
 // a reply to this one is held back in turn. It reports whether it held a
 // reply back. Only an interrupter dialect holds replies back.
-func (p *port) handle(cmd string, unreadReply, more bool) (held bool) {
+func (p *port) handle(cmd string, unreadReply, more bool) (replyHeld bool) {
 	if _, _, ok := p.b.fault(p.role, FaultStalled); ok {
 		return false // a stalled meter ignores what it is sent
 	}
@@ -263,7 +263,7 @@ func (p *port) handle(cmd string, unreadReply, more bool) (held bool) {
 	now := p.d.streamPeriod()
 	p.dmu.Unlock()
 	if interrupts && more && len(replies) > 0 {
-		held = true
+		replyHeld = true
 		replies = nil
 	}
 	for _, r := range replies {
@@ -275,7 +275,7 @@ func (p *port) handle(cmd string, unreadReply, more bool) (held bool) {
 		default:
 		}
 	}
-	return held
+	return replyHeld
 }
 
 // send writes one line, unless the meter is stalled; during a garbage

@@ -65,9 +65,9 @@ func (s *footSwitch) settle(ctx context.Context, want bool, deadline time.Durati
 // short presses close together are Pause, and three are Repeat (say it
 // again). Pause and Repeat need the double-press gap set. A switch already held when
 // press is called must be released first, so a stuck or resting foot
-// cannot acknowledge a string of prompts; held is called once if that
+// cannot acknowledge a string of prompts; whileStuck is called once if that
 // takes longer than the long-press time.
-func (s *footSwitch) press(ctx context.Context, held func()) (panel.Answer, error) {
+func (s *footSwitch) press(ctx context.Context, whileStuck func()) (panel.Answer, error) {
 	if s.pressed() {
 		warned := false
 		deadline := s.clk.Mono() + 2*s.long
@@ -79,8 +79,8 @@ func (s *footSwitch) press(ctx context.Context, held func()) (panel.Answer, erro
 			if ok {
 				break
 			}
-			if !warned && held != nil {
-				held()
+			if !warned && whileStuck != nil {
+				whileStuck()
 				warned = true
 			}
 			deadline = 0
