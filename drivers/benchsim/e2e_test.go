@@ -263,17 +263,17 @@ func TestEndToEndFaults(t *testing.T) {
 				t.Fatal(err)
 			}
 			end := r.b.Now() + lasts
-			seen, recovered, reconnectSeen := false, false, false
+			faultSeen, recovered, reconnectSeen := false, false, false
 			var last error
-			for ctx.Err() == nil && !(seen && recovered) {
+			for ctx.Err() == nil && !(faultSeen && recovered) {
 				rd, err := m.Read(ctx)
 				switch {
 				case tc.want.err != nil && errors.Is(err, tc.want.err):
-					seen = true
+					faultSeen = true
 				case tc.want.err == nil && err == nil && rd.Status == tc.want.status:
-					seen = true
+					faultSeen = true
 				case err == nil && rd.Usable() && r.b.Now() > end:
-					recovered = seen
+					recovered = faultSeen
 					reconnectSeen = reconnectSeen || rd.AfterReconnect
 				}
 				if err != nil {
@@ -283,7 +283,7 @@ func TestEndToEndFaults(t *testing.T) {
 					break
 				}
 			}
-			if !seen {
+			if !faultSeen {
 				t.Fatalf("%s on the %s never surfaced as %+v (last error %v)", tc.kind, tc.role, tc.want, last)
 			}
 			if !recovered {
