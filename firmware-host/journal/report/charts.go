@@ -160,6 +160,10 @@ func circle(r float64, n int) plotter.XYs {
 	return pts
 }
 
+// mapHalfWidth is the luminance map's half width in output radii (its
+// half height is 1.25).
+const mapHalfWidth = 1.5
+
 // mapDiscRadius is the radius of a position's disc on the luminance map.
 const mapDiscRadius = 13 // points
 
@@ -188,7 +192,10 @@ func mapSpec(m LuminanceMap, tr func(string) string) (chartSpec, error) {
 	}
 	p := newPlot(title, "", "")
 	p.HideAxes()
-	p.X.Min, p.X.Max, p.Y.Min, p.Y.Max = -1.25, 1.25, -1.25, 1.25
+	// Room beside the face for the words left and right, which are longer
+	// in German and French ("rechts", "gauche" were cut at the edge); the
+	// chart is wider by as much, so the face stays round.
+	p.X.Min, p.X.Max, p.Y.Min, p.Y.Max = -mapHalfWidth, mapHalfWidth, -1.25, 1.25
 
 	edge, err := plotter.NewLine(circle(1, 120))
 	if err != nil {
@@ -242,7 +249,7 @@ func mapSpec(m LuminanceMap, tr func(string) string) (chartSpec, error) {
 	p.Add(lb)
 	// Direction words around the face so the map reads without a legend.
 	dirs, err := plotter.NewLabels(plotter.XYLabels{
-		XYs:    plotter.XYs{{X: 0, Y: 1.15}, {X: 0, Y: -1.15}, {X: -1.15, Y: 0}, {X: 1.15, Y: 0}},
+		XYs:    plotter.XYs{{X: 0, Y: 1.15}, {X: 0, Y: -1.15}, {X: -1.1, Y: 0}, {X: 1.1, Y: 0}},
 		Labels: []string{tr("up"), tr("down"), tr("left"), tr("right")},
 	})
 	if err != nil {
@@ -254,9 +261,11 @@ func mapSpec(m LuminanceMap, tr func(string) string) (chartSpec, error) {
 		dirs.TextStyle[i].XAlign = draw.XCenter
 		dirs.TextStyle[i].YAlign = draw.YCenter
 	}
+	// Left and right grow away from the face, however long the word.
+	dirs.TextStyle[2].XAlign, dirs.TextStyle[3].XAlign = draw.XRight, draw.XLeft
 	p.Add(dirs)
 	caption := "Each disc is a photometer position; the figure in it is the luminance there as a percentage of the centre. Dashed rings: 0.5 and 0.9 of the output radius."
-	return chartSpec{p: p, name: "map-" + slug(m.FieldMode), title: title, caption: caption, w: 3.5 * vg.Inch, h: 3.7 * vg.Inch}, nil
+	return chartSpec{p: p, name: "map-" + slug(m.FieldMode), title: title, caption: caption, w: 3.5 * mapHalfWidth / 1.25 * vg.Inch, h: 3.7 * vg.Inch}, nil
 }
 
 func profileSpec(m LuminanceMap) (chartSpec, error) {

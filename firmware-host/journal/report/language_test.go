@@ -139,12 +139,12 @@ func TestReportInTheSessionLanguage(t *testing.T) {
 	}
 	// The cautions (bulleted), the signature box, the subtitle, the facts
 	// and the footer, which the PDF writes apart from the HTML.
-	for _, want := range []string{"Röntgenstrahlung ist gefährlich.", "Abgenommen mit Auflagen", "Prüfablauf „acceptance“", "Seriennummer HV-2291", "acceptance · 31 Schritte"} {
+	for _, want := range []string{"Röntgenstrahlung ist gefährlich.", "Abgenommen mit Auflagen", "Prüfablauf „acceptance“", "Seriennummer HV-2291", "acceptance · 31 Schritte", "Eingangs-Luftkermaleistung, 32cm: "} {
 		if !strings.Contains(pdf, want) {
 			t.Errorf("German PDF lacks %q", want)
 		}
 	}
-	for _, english := range []string{"X-rays are dangerous", "Accepted with conditions", "procedure “", ", serial ", " steps"} {
+	for _, english := range []string{"X-rays are dangerous", "Accepted with conditions", "procedure “", ", serial ", " steps", "Input air kerma rate"} {
 		if strings.Contains(pdf, english) {
 			t.Errorf("German PDF still says %q", english)
 		}

@@ -679,8 +679,10 @@ func quantityWords(q string) string {
 	return strings.ToUpper(s[:1]) + s[1:]
 }
 
-func resultName(res entry.Result) string {
-	n := quantityWords(res.Quantity)
+// resultName is a result's name in w's language (nil: English), with its
+// field mode: "Input air kerma rate (32cm)".
+func (w *words) resultName(res entry.Result) string {
+	n := w.text(quantityWords(res.Quantity))
 	if res.FieldMode != "" {
 		n += " (" + res.FieldMode + ")"
 	}

@@ -29,7 +29,7 @@ const notStated = "not stated in the bench file"
 // quality, the geometry, the set-up per step, the formulas and every
 // limit with its margin.
 func (r *Report) signing(w *words) []infoTable {
-	return []infoTable{r.testTable(w), r.meterTable(), r.beamTable(), r.geometryTable(), r.setupTable(), formulaTable(), r.limitTable()}
+	return []infoTable{r.testTable(w), r.meterTable(), r.beamTable(), r.geometryTable(), r.setupTable(), formulaTable(), r.limitTable(w)}
 }
 
 func orNotStated(parts ...string) string {
@@ -314,7 +314,10 @@ func formulaTable() infoTable {
 	}}
 }
 
-func (r *Report) limitTable() infoTable {
+// limitTable is every limit each result was judged against, the results
+// named in w's language (a name with its field mode is no text a catalog
+// could look up whole).
+func (r *Report) limitTable(w *words) infoTable {
 	t := infoTable{Title: "Every limit, with its margin", Head: []string{"Result", "Limit", "Limit value", "Value", "Margin", "Outcome"},
 		Right: []bool{false, false, true, true, true, false}}
 	for _, res := range r.Results {
@@ -344,7 +347,7 @@ func (r *Report) limitTable() infoTable {
 			if l.Kind == "baseline" {
 				lv = Number(l.Value)
 			}
-			t.Rows = append(t.Rows, []string{resultName(res.Result), name + " " + side, strings.TrimSpace(lv + " " + u), strings.TrimSpace(val + " " + u), margin, outcome})
+			t.Rows = append(t.Rows, []string{w.resultName(res.Result), name + " " + side, strings.TrimSpace(lv + " " + u), strings.TrimSpace(val + " " + u), margin, outcome})
 		}
 	}
 	t.Intro = []string{"Margin: how far the value lies inside the limit (negative: outside), rounded like the value. “Within U”: the limit lies within the expanded uncertainty of the value, so the verdict could go either way."}
