@@ -85,6 +85,7 @@ type eventRow struct {
 
 type htmlView struct {
 	R          *Report
+	Title      string // the page's title, in the rendering's language
 	Review     []string // the review list in the rendering's language
 	S          entry.Session
 	Verdict    string
@@ -130,6 +131,9 @@ func (r *Report) view(opt Options, use chartUse) htmlView {
 	if v.Version == "" {
 		v.Version = r.Session.SoftwareVersion
 	}
+	// Composed here: the site and room are names, which a translation of
+	// the whole title would refuse to take as prose.
+	v.Title = fmt.Sprintf(r.wordsFor(opt).text("Intensifier check %s, %s %s, %s"), r.Session.IntensifierSerial, r.Session.Site, r.Session.Room, Day(r.Session.Started))
 	if use != noCharts {
 		v.Charts, v.ChartNotes = r.charts(r.wordsFor(opt), use == chartsSVG, use == chartsPNG)
 	}

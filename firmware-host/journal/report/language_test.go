@@ -55,7 +55,7 @@ func TestReportInTheSessionLanguage(t *testing.T) {
 		t.Fatal(err)
 	}
 	got := de.String()
-	for _, want := range []string{`<html lang="de">`, "<h1>Bildverstärkerprüfung: HV-2291</h1>", "<h2>Ergebnisse</h2>",
+	for _, want := range []string{`<html lang="de">`, "<title>Bildverstärkerprüfung HV-2291, ", "<h1>Bildverstärkerprüfung: HV-2291</h1>", "<h2>Ergebnisse</h2>",
 		"<h2>Messunsicherheitsbudgets</h2>", "<h2>Sicherheitshinweise</h2>", "Röntgenstrahlung ist gefährlich.",
 		"Strahlenschutzbeauftragten", "<h2>Prüfung und Unterschrift</h2>", "Außerhalb eines eingestellten Grenzwerts",
 		"4 bestanden · 1 nicht bestanden · 3 zur Information", "<th class=\"num\">Wert ± U</th>", "<th>Bewertung</th>",
