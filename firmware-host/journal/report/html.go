@@ -85,7 +85,7 @@ type eventRow struct {
 
 type htmlView struct {
 	R          *Report
-	Title      string // the page's title, in the rendering's language
+	Title      string   // the page's title, in the rendering's language
 	Review     []string // the review list in the rendering's language
 	S          entry.Session
 	Verdict    string
