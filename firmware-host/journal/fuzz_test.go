@@ -11,6 +11,7 @@ import (
 	"testing"
 
 	"kermalux/firmware-host/journal/journaltest"
+	"kermalux/procedures/entry"
 )
 
 // FuzzCanonicalPayload: the canonical form is valid JSON, a fixed point,
@@ -185,10 +186,20 @@ func FuzzCheckSession(f *testing.F) {
 		f.Fatal(err)
 	}
 	id, _ := j.Begin(ctx, journaltest.Session(0))
-	journaltest.WriteSession(ctx, j, id, 1, true, nil)
+	// A short session (the session record, a step, a reading, its end):
+	// each input checks every record's signature, so the records' number
+	// sets the rate (20 records: some 300 inputs a second on a loaded
+	// machine, 6: some thousands); edits reach every kind of check.
+	j.Append(ctx, id, entry.KindStep, entry.Step{Index: 1, Of: 1, ID: "kerma", Kind: "conversion_factor", State: entry.StepStarted})
+	j.Append(ctx, id, entry.KindReading, entry.Reading{Step: 1, StepID: "kerma", Meter: "dosimeter", Quantity: "air_kerma_rate", Raw: "MEAS 0.8710 uGy/s OK", RawValue: 0.871, Value: 0.882, Unit: "µGy/s", Status: "ok", Used: true})
+	j.Append(ctx, id, entry.KindStep, entry.Step{Index: 1, Of: 1, ID: "kerma", Kind: "conversion_factor", State: entry.StepDone})
+	j.Append(ctx, id, entry.KindSessionEnd, entry.SessionEnd{Steps: 1, Outcome: "complete"})
 	recs, _ := j.Records(ctx, id, 0, 0)
 	pub := j.PublicKey()
 	j.Close()
+	if len(recs) != 5 {
+		f.Fatalf("the seed session has %d records, want 5", len(recs))
+	}
 	texts := make([][]byte, len(recs))
 	for i, r := range recs {
 		texts[i], _ = json.Marshal(r)
