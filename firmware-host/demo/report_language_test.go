@@ -4,6 +4,9 @@ import (
 	"bytes"
 	"context"
 	"html"
+	"os"
+	"os/exec"
+	"path/filepath"
 	"regexp"
 	"strings"
 	"testing"
@@ -89,5 +92,36 @@ func TestSeededReportInSessionLanguage(t *testing.T) {
 	}
 	if shown == 0 {
 		t.Fatal("no measured result to compare")
+	}
+
+	// The PDF writes its tables apart from the HTML: the limits table
+	// names each result with its field mode, which a whole-text lookup
+	// could not translate ("Input air kerma rate (32cm)" stayed English).
+	tool, err := exec.LookPath("pdftotext")
+	if err != nil {
+		t.Skip("pdftotext (poppler-utils) not installed: the PDF is not read back")
+	}
+	var pdf bytes.Buffer
+	if err := de.WritePDF(&pdf, report.Options{Generated: time.Date(2026, 9, 1, 12, 0, 0, 0, time.UTC), Version: "test"}); err != nil {
+		t.Fatal(err)
+	}
+	p := filepath.Join(t.TempDir(), "de.pdf")
+	if err := os.WriteFile(p, pdf.Bytes(), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	out, err := exec.Command(tool, "-layout", p, "-").Output()
+	if err != nil {
+		t.Fatalf("pdftotext: %v", err)
+	}
+	text := string(out)
+	for _, want := range []string{"Eingangs-Luftkermaleistung (32cm)", "Eingriffsschwelle höchstens", "innerhalb"} {
+		if !strings.Contains(text, want) {
+			t.Errorf("the German PDF lacks %q", want)
+		}
+	}
+	for _, english := range []string{"Input air kerma rate", "action level at", "inside"} {
+		if strings.Contains(text, english) {
+			t.Errorf("the German PDF still says %q", english)
+		}
 	}
 }
