@@ -62,6 +62,9 @@ type SeededOutcome struct {
 	// Model is the simulator's physics after the run: its answer key
 	// (Truth) and its true beam log (BeamOnTime, BeamLog).
 	Model *benchsim.Model
+	// Ran is the real time the engine's run took, set-up and teardown
+	// around it left out (benchmarks of sampling speed).
+	Ran time.Duration
 }
 
 // Seeded runs a procedure against the simulator's physics model in this
@@ -152,8 +155,10 @@ func Seeded(ctx context.Context, o SeededOptions) (*SeededOutcome, error) {
 	if err != nil {
 		return nil, err
 	}
+	began := time.Now()
 	sum, err := eng.Run(ctx)
-	return &SeededOutcome{Summary: sum, Journal: j, Readings: count.get(), Config: cfg, Model: model}, err
+	ran := time.Since(began)
+	return &SeededOutcome{Summary: sum, Journal: j, Readings: count.get(), Config: cfg, Model: model, Ran: ran}, err
 }
 
 type countReads struct {
