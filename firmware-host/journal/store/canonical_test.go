@@ -2,12 +2,10 @@ package store_test
 
 import (
 	"context"
-	"path/filepath"
 	"regexp"
 	"strconv"
 	"strings"
 	"testing"
-	"time"
 
 	"kermalux/firmware-host/journal/journaltest"
 	"kermalux/firmware-host/journal/store"
@@ -22,12 +20,7 @@ import (
 func TestStoredHexIsCanonical(t *testing.T) {
 	storetest.Each(t, func(t *testing.T, backend string) {
 		ctx := context.Background()
-		target := storetest.Target(t, backend)
-		st := storetest.Open(t, target)
-		j := openBoard(t, t.TempDir(), filepath.Join(t.TempDir(), "key"), time.Date(2026, 1, 1, 0, 0, 0, 0, time.UTC))
-		if err := st.Enroll(ctx, j.PublicKey(), "van-1"); err != nil {
-			t.Fatal(err)
-		}
+		st, j, target := enrolledBoard(t, backend)
 		if err := st.Enroll(ctx, nil, "x"); err == nil {
 			t.Error("an empty key was enrolled")
 		}

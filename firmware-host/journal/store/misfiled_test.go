@@ -2,9 +2,7 @@ package store_test
 
 import (
 	"context"
-	"path/filepath"
 	"testing"
-	"time"
 
 	"kermalux/firmware-host/journal/journaltest"
 	"kermalux/firmware-host/journal/store"
@@ -19,12 +17,7 @@ import (
 func TestMisfiled(t *testing.T) {
 	storetest.Each(t, func(t *testing.T, backend string) {
 		ctx := context.Background()
-		target := storetest.Target(t, backend)
-		st := storetest.Open(t, target)
-		j := openBoard(t, t.TempDir(), filepath.Join(t.TempDir(), "key"), time.Date(2026, 1, 1, 0, 0, 0, 0, time.UTC))
-		if err := st.Enroll(ctx, j.PublicKey(), "van-1"); err != nil {
-			t.Fatal(err)
-		}
+		st, j, target := enrolledBoard(t, backend)
 		serials := []string{"LX_1%!", `HV "2291" \ <&>`, "Ø-77 é", "LX_1%!-2"}
 		ids := map[string]string{}
 		for i, serial := range serials {

@@ -33,6 +33,20 @@ func openBoard(t testing.TB, dir, keyDir string, start time.Time) *journal.Journ
 	return j
 }
 
+// enrolledBoard opens the backend's store and a board journal enrolled
+// in it as "van-1", and returns them with the store's target (for SQL
+// edits of what it holds).
+func enrolledBoard(t *testing.T, backend string) (*store.Store, *journal.Journal, string) {
+	t.Helper()
+	target := storetest.Target(t, backend)
+	st := storetest.Open(t, target)
+	j := openBoard(t, t.TempDir(), filepath.Join(t.TempDir(), "key"), time.Date(2026, 1, 1, 0, 0, 0, 0, time.UTC))
+	if err := st.Enroll(context.Background(), j.PublicKey(), "van-1"); err != nil {
+		t.Fatal(err)
+	}
+	return st, j, target
+}
+
 // seal returns records after..after+n of session, signed for audience.
 func seal(t testing.TB, j *journal.Journal, audience, session string, after int64, n int) *wire.Segment {
 	t.Helper()
