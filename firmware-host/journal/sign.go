@@ -32,13 +32,13 @@ import (
 // library's crypto/ed25519, published as a module; writing that
 // arithmetic here would be the riskier choice.
 type signer struct {
-	priv   ed25519.PrivateKey
 	a      *edwards25519.Scalar // the secret scalar
 	prefix []byte               // the secret half of SHA-512(seed) that hedges the nonces
 	pub    []byte
 	pool   chan nonce
 	stop   chan struct{}
 	wg     sync.WaitGroup
+	start  sync.Once // the pool fills from the first signature on
 }
 
 // nonce is a precomputed r and its R = r·B, encoded.
@@ -53,29 +53,30 @@ type nonce struct {
 // start-up on a single-core board.
 const signerPool = 128
 
-// newSigner starts a signer for priv with its pool filling in the
-// background; Close stops it.
+// newSigner makes a signer for priv. Its pool starts filling in the
+// background at the first signature, so that opening a journal only to
+// read it, or the board's start-up, pays nothing for it; Close stops it.
 func newSigner(priv ed25519.PrivateKey) *signer {
 	h := sha512.Sum512(priv.Seed())
 	a, err := new(edwards25519.Scalar).SetBytesWithClamping(h[:32])
 	if err != nil {
 		panic("journal: clamping a 32-byte scalar cannot fail: " + err.Error())
 	}
-	s := &signer{priv: priv, a: a, prefix: append([]byte(nil), h[32:]...), pub: priv.Public().(ed25519.PublicKey),
+	return &signer{a: a, prefix: append([]byte(nil), h[32:]...), pub: priv.Public().(ed25519.PublicKey),
 		pool: make(chan nonce, signerPool), stop: make(chan struct{})}
-	s.wg.Add(1)
-	go func() {
-		defer s.wg.Done()
-		for {
-			n := s.fresh()
-			select {
-			case s.pool <- n:
-			case <-s.stop:
-				return
-			}
+}
+
+// fill keeps the pool full until Close.
+func (s *signer) fill() {
+	defer s.wg.Done()
+	for {
+		n := s.fresh()
+		select {
+		case s.pool <- n:
+		case <-s.stop:
+			return
 		}
-	}()
-	return s
+	}
 }
 
 // fresh draws a hedged nonce and computes its R.
@@ -95,6 +96,14 @@ func (s *signer) fresh() nonce {
 // Sign signs msg: with a nonce from the pool, or one made now when the
 // pool is empty (a long burst of appends).
 func (s *signer) Sign(msg []byte) []byte {
+	s.start.Do(func() {
+		select {
+		case <-s.stop: // closed: sign on the spot, start nothing
+		default:
+			s.wg.Add(1)
+			go s.fill()
+		}
+	})
 	var n nonce
 	select {
 	case n = <-s.pool:
