@@ -26,6 +26,9 @@ type retryError struct {
 	// range, never settling, a meter that does not see the beam), which
 	// taking it again the same way is unlikely to change.
 	rangeOrSettle bool
+	// final: taking it again cannot help (the same bench would give the
+	// same readings): the position is not measurable at once.
+	final bool
 }
 
 func (r *retryError) Error() string { return "retake: " + r.reason }
@@ -175,6 +178,8 @@ func (e *Engine) measurePosition(ctx context.Context, idx int, s Step, pi int, p
 		// the sequence goes on.
 		left, limit := e.beamLeft(idx, s, pi, used, maxOn)
 		switch {
+		case re.final:
+			return e.notMeasurable(ctx, idx, s, pi, pos, npos, re.reason, used)
 		case m.Beam && left < minAttempt:
 			return e.notMeasurable(ctx, idx, s, pi, pos, npos, fmt.Sprintf("%s, and %s is used up", re.reason, limit), used)
 		case signalFails >= l.Retries, failures >= 2*l.Retries:
@@ -474,6 +479,11 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (positionStats, err
 			return positionStats{}, e.attemptFailed(ctx, a, &retryError{reason: reason, rangeOrSettle: true})
 		}
 	}
+	if !alarmed {
+		if err := e.lockedToPulses(a); err != nil {
+			return positionStats{}, e.attemptFailed(ctx, a, err)
+		}
+	}
 	if short != "" {
 		stat.Flags = append(stat.Flags, short)
 	}
@@ -496,6 +506,21 @@ func (e *Engine) runAttempt(ctx context.Context, a *attempt) (positionStats, err
 		}
 	}
 	return stat, nil
+}
+
+// lockedToPulses refuses an attempt whose sampled readings, of any meter
+// of the step, repeat a pattern every few readings (phaseLocked): a
+// pulsed beam read at a fixed phase of its pulses, whose mean no number of
+// readings would bring to the mean rate. Another exposure would read the
+// same way, so the position is not measurable, with what to change.
+func (e *Engine) lockedToPulses(a *attempt) error {
+	for _, role := range a.spec.Meters {
+		xs := values(after(a.series[role], a.settled))
+		if r, ok := phaseLocked(xs, e.target(a)/4); ok {
+			return &retryError{final: true, reason: fmt.Sprintf("the %s's readings repeat every %d readings, their groups %.0f %% apart: a pulsed beam read at a fixed phase of its pulses, whose mean is not the mean rate; measure in continuous fluoroscopy, or set the meter to integrate over whole pulses", role, r.Every, 100*r.Dev)}
+		}
+	}
+	return nil
 }
 
 // riseMax is how long after the first meter saw the beam every meter of

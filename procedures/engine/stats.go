@@ -4,6 +4,8 @@ import (
 	"math"
 	"time"
 
+	"gonum.org/v1/gonum/stat/distuv"
+
 	"kermalux/calib"
 )
 
@@ -181,4 +183,80 @@ func values(xs []timedValue) []float64 {
 		out[i] = x.v
 	}
 	return out
+}
+
+// lockedRipple is what phaseLocked found: the readings repeat every Every
+// readings, their phase groups' means spread by Dev (the largest
+// relative distance of a group's mean from the mean of all).
+type lockedRipple struct {
+	Every int
+	Dev   float64
+}
+
+// lockedMaxEvery is the longest repetition phaseLocked looks for: a
+// meter read every 100 ms under 30, 25, 15, 12.5, 10 or 7.5 pulses a
+// second sees its readings repeat every 1, 2, 3, 4 or 5 readings (3
+// pulse periods in 2 readings at 15 pulses a second, 4 in 3 at 7.5 and
+// so on).
+const lockedMaxEvery = 5
+
+// lockedAlpha is the false-alarm probability of phaseLocked's test on
+// readings with white noise, for all the repetitions it tries together.
+const lockedAlpha = 1e-6
+
+// phaseLocked tests whether readings xs, taken at a fixed reading period,
+// follow a pattern that repeats every q readings (q = 2..lockedMaxEvery):
+// the signature of a pulsed beam read by a meter fast enough to follow
+// the pulses, at a reading period commensurate with the pulse period, so
+// that the readings see the same few phases of the pulse cycle again and
+// again. Their mean is then the mean of those phases, not of the cycle,
+// however many readings are averaged, and the readings' spread does not
+// show the bias. For each q the readings are grouped by their index modulo
+// q and the groups' means compared by one-way analysis of variance (F
+// test, e.g. Montgomery, Design and Analysis of Experiments, ch. 3, from
+// memory): white noise gives F distributed as F(q-1, n-q); a slow meter's
+// correlated readings make neighbouring readings alike and the groups'
+// means closer still. A pattern counts when its F test is significant at
+// lockedAlpha (Bonferroni over the q tried) and the groups' means stray
+// more than minDev (relative) from the mean of all: a ripple too small to
+// move the mean beyond that does no harm.
+func phaseLocked(xs []float64, minDev float64) (lockedRipple, bool) {
+	n := len(xs)
+	mean, _ := meanSD(xs)
+	if mean == 0 || math.IsNaN(mean) {
+		return lockedRipple{}, false
+	}
+	for q := 2; q <= lockedMaxEvery; q++ {
+		if n < 4*q {
+			break
+		}
+		sums, counts := make([]float64, q), make([]float64, q)
+		for i, x := range xs {
+			sums[i%q] += x
+			counts[i%q]++
+		}
+		var between, within, dev float64
+		for g := range q {
+			gm := sums[g] / counts[g]
+			between += counts[g] * (gm - mean) * (gm - mean)
+			dev = math.Max(dev, math.Abs(gm-mean)/math.Abs(mean))
+		}
+		for i, x := range xs {
+			d := x - sums[i%q]/counts[i%q]
+			within += d * d
+		}
+		d1, d2 := float64(q-1), float64(n-q)
+		if dev <= minDev {
+			continue
+		}
+		if within == 0 {
+			return lockedRipple{Every: q, Dev: dev}, true
+		}
+		f := (between / d1) / (within / d2)
+		p := distuv.F{D1: d1, D2: d2}.Survival(f)
+		if p < lockedAlpha/float64(lockedMaxEvery-1) {
+			return lockedRipple{Every: q, Dev: dev}, true
+		}
+	}
+	return lockedRipple{}, false
 }

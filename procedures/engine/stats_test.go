@@ -2,6 +2,7 @@ package engine
 
 import (
 	"math"
+	"math/rand/v2"
 	"testing"
 	"time"
 
@@ -83,5 +84,99 @@ func TestPairsInterpolate(t *testing.T) {
 	g := pairs(l, k)
 	if len(g) != 2 || math.Abs(g[0]-100) > 1e-9 || math.Abs(g[1]-150) > 1e-9 {
 		t.Errorf("pairs %v", g)
+	}
+}
+
+// pulsedLag is the steady-state reading at time t of a meter with a
+// first-order response of time constant tau that follows a pulse train of
+// period T and width w (mean 1): during a pulse it rises towards T/w,
+// between pulses it decays towards 0, and in the steady state the level
+// at each pulse's start repeats (a geometric series; worked here from the
+// meter's equation dy/dt = (x − y)/tau, not from the simulator).
+func pulsedLag(t, T, w, tau float64) float64 {
+	a := T / w
+	in, out := math.Exp(-w/tau), math.Exp(-(T-w)/tau)
+	y0 := a * (1 - in) * out / (1 - in*out) // level at a pulse's start
+	ph := math.Mod(t, T)
+	if ph < w {
+		return a + (y0-a)*math.Exp(-ph/tau)
+	}
+	peak := a + (y0-a)*in
+	return peak * math.Exp(-(ph-w)/tau)
+}
+
+// TestPhaseLocked: readings that repeat a pattern every few readings are
+// found, whatever the pattern's period up to lockedMaxEvery; white noise,
+// a slow meter's correlated noise, a drift and a ripple too small to
+// matter are not. The false-alarm rate on white noise is checked over
+// 3,000 series (the test's design rate is 1e-6: none expected).
+func TestPhaseLocked(t *testing.T) {
+	rng := rand.New(rand.NewPCG(5, 9))
+	noisy := func(n int, f func(i int) float64, rel float64) []float64 {
+		xs := make([]float64, n)
+		for i := range xs {
+			xs[i] = f(i) * (1 + rel*rng.NormFloat64())
+		}
+		return xs
+	}
+	// A 15 pulses/s beam (8 ms pulses) read by a 50 ms meter every 100 ms:
+	// the readings see two phases of the pulse cycle (100 ms is 1.5
+	// periods), and their mean is not the cycle's mean of 1.
+	period, width, tau := 1/15.0, 0.008, 0.05
+	locked := func(phase float64) func(int) float64 {
+		return func(i int) float64 { return pulsedLag(phase+0.1*float64(i), period, width, tau) }
+	}
+	var sum float64
+	for i := range 40 {
+		sum += locked(0.0005)(i)
+	}
+	if m := sum / 40; math.Abs(m-1) < 0.1 {
+		t.Fatalf("the locked readings' mean %.3f is near the true mean 1: the case does not show the bias", m)
+	}
+	tests := []struct {
+		name  string
+		xs    []float64
+		every int // 0: none expected
+	}{
+		{"pulsed beam, fast meter, 100 ms readings", noisy(40, locked(0.0005), 0.003), 2},
+		{"pulsed beam at another phase", noisy(30, locked(0.041), 0.01), 2},
+		{"a pattern of three", noisy(30, func(i int) float64 { return []float64{1, 1.2, 0.9}[i%3] }, 0.02), 3},
+		{"a pattern of four", noisy(40, func(i int) float64 { return 1 + 0.1*math.Sin(2*math.Pi*float64(i)/4+0.3) }, 0.01), 4},
+		{"a pattern of five, stepping two phases a reading", noisy(40, func(i int) float64 { return 1 + 0.1*math.Cos(2*math.Pi*2*float64(i)/5) }, 0.01), 5},
+		{"too few readings for a pattern of two", noisy(7, locked(0.0005), 0.003), 0},
+		{"white noise", noisy(60, func(int) float64 { return 1 }, 0.05), 0},
+		{"a drift of 5 % across the readings", noisy(40, func(i int) float64 { return 1 + 0.05*float64(i)/40 }, 0.002), 0},
+		{"a ripple of 0.2 %, below what moves the mean", noisy(40, func(i int) float64 { return 1 + 0.002*float64(i%2) }, 0.0002), 0},
+		{"constant readings", noisy(20, func(int) float64 { return 0.5 }, 0), 0},
+		{"zero readings", noisy(20, func(int) float64 { return 0 }, 0), 0},
+	}
+	// A slow meter: readings of a first-order lag of white noise (AR(1)
+	// with ρ = 0.9), strongly correlated but with no pattern.
+	slow := make([]float64, 60)
+	y := 0.0
+	for i := range slow {
+		y = 0.9*y + math.Sqrt(1-0.81)*rng.NormFloat64()
+		slow[i] = 1 + 0.03*y
+	}
+	tests = append(tests, struct {
+		name  string
+		xs    []float64
+		every int
+	}{"a slow meter's correlated noise", slow, 0})
+	for _, tt := range tests {
+		r, ok := phaseLocked(tt.xs, 0.005)
+		if got := map[bool]int{true: r.Every}[ok]; got != tt.every {
+			t.Errorf("%s: found a pattern of %d (%+v), want %d", tt.name, got, r, tt.every)
+		}
+	}
+	alarms := 0
+	for range 3000 {
+		n := 8 + rng.IntN(100)
+		if _, ok := phaseLocked(noisy(n, func(int) float64 { return 1 }, 0.05), 0.005); ok {
+			alarms++
+		}
+	}
+	if alarms > 0 {
+		t.Errorf("%d of 3000 white-noise series called locked", alarms)
 	}
 }
