@@ -95,7 +95,10 @@ func TestDemoRecoversTruth(t *testing.T) {
 		{"", 3, nil, true, nil},
 		{"../../testdata/scenarios/wendlemoor-aged-tube.yaml", 1, []string{"contrast_ratio", "conversion_factor"}, false, nil},
 		// Pulsed fluoroscopy read by a dosimeter that follows the pulses:
-		// each reading needs several times the beam of a steady one to
+		// read at a fixed phase of the pulses, its figures are not
+		// measurable (the engine's answer, accepted below); read at
+		// scrambled phases (the host's timing jitter at high speed), each
+		// reading needs several times the beam of a steady one to
 		// reach its precision, so the whole visit does not fit the
 		// acceptance sequence's 120 s (its last figures would be not
 		// measurable, the budget used up: README); the parts run on their
@@ -218,6 +221,14 @@ func demoRun(t *testing.T, file, procedure string, speed float64, wantModes int,
 			continue
 		}
 		checked[r.Quantity]++
+		if r.Verdict == "not_measurable" && strings.Contains(r.DecidedBy, "fixed phase of its pulses") {
+			// A pulsed beam read at a fixed phase of its pulses (the
+			// pulsed bench, when the host's timing jitter is too small to
+			// scramble the phase, as on a real board): the engine's
+			// right answer, with no U to check.
+			t.Logf("%s %s not measurable: %s", r.Quantity, r.FieldMode, r.DecidedBy)
+			continue
+		}
 		if r.Verdict == "not_measurable" {
 			// Honest, but not what this bench should give: on a loaded
 			// machine the engine can fall behind the meters and a reading
