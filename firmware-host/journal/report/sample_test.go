@@ -312,3 +312,47 @@ func sampleHistory(n int, g0, slope float64) []HistoryPoint {
 	}
 	return hs
 }
+
+// compactSession is the sample session cut to one step of each shape, for
+// fuzz targets whose cost grows with the records: the checklist, the room
+// conditions, the photometer's dark, two conversion-factor steps (the
+// second with its retake), the first and last uniformity positions (the
+// last carries the non-uniformity result), the contrast pair, and the
+// session's end; at most one reading, prompt and acknowledgement per step
+// and two events (beam on, beam off). Every kind of record and every
+// quantity of result is still in it (57 records instead of 166).
+func compactSession() []entry.Envelope {
+	keep := map[int]bool{1: true, 2: true, 3: true, 4: true, 5: true, 7: true, 15: true, 16: true, 17: true}
+	limit := map[entry.Kind]int{entry.KindReading: 1, entry.KindPrompt: 1, entry.KindAck: 1, entry.KindEvent: 2}
+	type stepKind struct {
+		step int
+		kind entry.Kind
+	}
+	seen := map[stepKind]int{}
+	var out []entry.Envelope
+	for _, e := range sampleSession() {
+		var p struct {
+			Step  int `json:"step"`
+			Index int `json:"index"`
+		}
+		if err := json.Unmarshal(e.Payload, &p); err != nil {
+			panic(fmt.Sprintf("sample record %d: %v", e.Seq, err))
+		}
+		step := p.Step
+		if e.Kind == entry.KindStep {
+			step = p.Index
+		}
+		if step != 0 && !keep[step] {
+			continue
+		}
+		if n, ok := limit[e.Kind]; ok {
+			k := stepKind{step, e.Kind}
+			if seen[k]++; seen[k] > n {
+				continue
+			}
+		}
+		e.Seq = int64(len(out) + 1)
+		out = append(out, e)
+	}
+	return out
+}

@@ -134,22 +134,60 @@ func FuzzReadExport(f *testing.F) {
 	})
 }
 
-// FuzzBuild feeds damaged payloads to each kind of record: Build either
-// refuses with an error naming the record or yields a report that renders.
-// An input edits the sample session's record i: it writes patch into the
-// payload's JSON text at at, over drop bytes, or, when patch is itself a
-// JSON value, replaces the payload with it. Inputs stay short (the
-// fuzzer's minimiser runs a number of inputs that grows with the square of
-// an input's length) and yet reach every byte of every payload.
+// FuzzBuild feeds damaged payloads to each kind of record: Build, the
+// reader of a session's records, either refuses with an error naming the
+// record or yields a report whose page model (the values, rows and words
+// every rendering is made of) and results CSV are made without a panic or
+// an error. An input edits the compact session's record i: it writes
+// patch into the payload's JSON text at at, over drop bytes, or, when
+// patch is itself a JSON value, replaces the payload with it. Inputs stay
+// short (the fuzzer's minimiser runs a number of inputs that grows with
+// the square of an input's length) and yet reach every byte of every
+// payload. Rendering the page is FuzzRenderHTML's (html/template makes it
+// several times slower than reading).
 func FuzzBuild(f *testing.F) {
-	envs := sampleSession()
+	fuzzEdits(f, func(t *testing.T, r *Report) {
+		_ = r.view(fixedOpts, noCharts)
+		var b bytes.Buffer
+		if err := r.WriteResultsCSV(&b); err != nil {
+			t.Fatalf("results CSV: %v", err)
+		}
+	})
+}
+
+// FuzzRenderHTML: every report Build yields from damaged payloads (as
+// FuzzBuild makes them) renders as HTML: the template's formatting
+// functions see every value the reader let through.
+func FuzzRenderHTML(f *testing.F) {
+	fuzzEdits(f, func(t *testing.T, r *Report) {
+		// Charts are left out: drawing them is slow under the fuzzer's
+		// instrumentation and TestCharts covers them.
+		var b bytes.Buffer
+		if err := r.writeHTML(&b, fixedOpts, noCharts); err != nil {
+			t.Fatalf("render: %v", err)
+		}
+	})
+}
+
+// fuzzEdits runs check on the report built from each input's edit of the
+// compact session (see FuzzBuild), when Build accepts it.
+func fuzzEdits(f *testing.F, check func(t *testing.T, r *Report)) {
+	envs := compactSession()
+	if r, err := Build(envs); err != nil || len(r.Results) < 6 {
+		f.Fatalf("the compact session does not build a report of its 6 results: %v", err)
+	}
 	for _, i := range []int{0, 5, 20, 40, len(envs) - 1} {
 		f.Add(i, uint16(0), uint8(0), []byte{})           // the record as it is
 		f.Add(i, uint16(10), uint8(3), []byte(`"x"`))     // a value of another type
 		f.Add(i, uint16(0), uint8(0), []byte(`{"id":1}`)) // replaced whole
 	}
+	for i, e := range envs {
+		if e.Kind == entry.KindEvent {
+			f.Add(i, uint16(0), uint8(0), []byte(`{"name":""}`)) // an event without a name
+			break
+		}
+	}
 	f.Add(3, uint16(0), uint8(0), []byte(`{"position":"up 9e999r"}`))
-	f.Add(3, uint16(0), uint8(0), []byte(`{"name":""}`))
 	// The session is made once; each input edits a copy of its slice
 	// (Build does not write into payloads).
 	f.Fuzz(func(t *testing.T, i int, at uint16, drop uint8, patch []byte) {
@@ -168,17 +206,12 @@ func FuzzBuild(f *testing.F) {
 		}
 		r, err := Build(envs)
 		if err != nil {
+			if !strings.Contains(err.Error(), "record") {
+				t.Fatalf("error does not name the record: %v", err)
+			}
 			return
 		}
-		// Charts are left out: drawing them is slow under the fuzzer's
-		// instrumentation and TestCharts covers them.
-		var b bytes.Buffer
-		if err := r.writeHTML(&b, fixedOpts, noCharts); err != nil {
-			t.Fatalf("render: %v", err)
-		}
-		if err := r.WriteResultsCSV(&b); err != nil {
-			t.Fatalf("results CSV: %v", err)
-		}
+		check(t, r)
 	})
 }
 
