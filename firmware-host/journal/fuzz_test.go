@@ -123,12 +123,17 @@ func FuzzReadMark(f *testing.F) {
 
 // FuzzVerifyFile: journal verify on a damaged journal file never panics
 // and never calls a file good that is not the real journal. The fuzzer
-// edits a real journal (about 40 KB: SQLite's pages) rather than writing
-// whole files: an input is where to cut it (0: not cut), where to write
-// and what, so inputs stay a few bytes long (the fuzzer's minimiser runs
-// a number of inputs that grows with the square of an input's length)
-// and yet reach every byte of the file; a patch longer than the file
-// replaces it whole.
+// edits a real journal (28 KB: SQLite's pages of every table and index)
+// rather than writing whole files: an input is where to cut it (0: not
+// cut), where to write and what, so inputs stay a few bytes long (the
+// fuzzer's minimiser runs a number of inputs that grows with the square
+// of an input's length) and yet reach every byte of the file; a patch
+// longer than the file replaces it whole. The journal holds a session of
+// three records (its start, a reading, its end): every table and index
+// has rows, and each input costs one SQLite open and three records'
+// signatures (a session of 22 records made verification, not the file's
+// damage, the cost: 400 inputs a second); the checks of records and
+// chains themselves are FuzzCheckSession's and FuzzRecordCheck's.
 func FuzzVerifyFile(f *testing.F) {
 	ctx := context.Background()
 	dir := f.TempDir()
@@ -137,8 +142,15 @@ func FuzzVerifyFile(f *testing.F) {
 		f.Fatal(err)
 	}
 	id, _ := j.Begin(ctx, journaltest.Session(0))
-	journaltest.WriteSession(ctx, j, id, 2, true, nil)
+	j.Append(ctx, id, entry.KindReading, entry.Reading{Step: 1, StepID: "kerma", Meter: "dosimeter", Quantity: "air_kerma_rate", Raw: "MEAS 0.8710 uGy/s OK", RawValue: 0.871, Value: 0.882, Unit: "µGy/s", Status: "ok", Used: true})
+	j.Append(ctx, id, entry.KindSessionEnd, entry.SessionEnd{Steps: 1, Outcome: "complete"})
+	if recs, err := j.Records(ctx, id, 0, 0); err != nil || len(recs) != 3 {
+		f.Fatalf("the seed journal has %d records (%v), want 3", len(recs), err)
+	}
 	j.Close()
+	if rep, err := Verify(ctx, filepath.Join(dir, "seed.db")); err != nil || rep.Records != 3 {
+		f.Fatalf("the seed journal does not verify as 3 records: %+v %v", rep, err)
+	}
 	good, _ := os.ReadFile(filepath.Join(dir, "seed.db"))
 	f.Add(uint32(0), uint32(0), []byte{})                                                   // the journal as written (good, but no mark beside it)
 	f.Add(uint32(len(good)/2), uint32(0), []byte{})                                         // cut in half
