@@ -104,3 +104,13 @@ type Freshener interface {
 type Queued interface {
 	Pending() int
 }
+
+// PollDither is how far into each reading period a polled meter's reading
+// instant is spread (clock.Cadence.Dither, which says why: readings on a
+// fixed grid can see a pulsed beam at a fixed phase of its pulses): 1, the
+// whole period, a stratified random sample of time, as many readings as
+// on the grid. A meter that updates exactly once a period then gives the
+// same value twice when two polls fall within one of its updates (about
+// one reading in six), a small excess of readings counted for the type A
+// uncertainty, against a bias of up to a quarter without.
+const PollDither = 1.0

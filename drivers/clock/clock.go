@@ -124,17 +124,64 @@ func (c *Manual) Sleep(ctx context.Context, d time.Duration) error {
 // loop down: it runs once a period of the clock's time on average. A tick
 // missed by more than a period is not made up in a burst: Wait returns at
 // once and the schedule goes on from the last grid point passed.
+//
+// A dithered cadence (Dither) keeps the grid but ticks at a random
+// instant within each period of it.
 type Cadence struct {
 	clk     Clock
 	period  time.Duration
-	next    time.Duration // the clock's Mono of the next tick
+	next    time.Duration // the clock's Mono of the next tick (dithered: of the next slot's start)
 	started bool
+
+	dither float64 // 0: ticks on the grid; else at a random instant within each slot
+	seed   uint64
+	slot   uint64 // the number of the slot that starts at next
 }
 
 // NewCadence returns a cadence of period on clk; its first Wait returns
 // at once and starts the schedule.
 func NewCadence(clk Clock, period time.Duration) *Cadence {
 	return &Cadence{clk: clk, period: period}
+}
+
+// Dither makes the cadence tick once within each period of its grid (each
+// slot) at a random instant: fraction·u of the way into the slot, u
+// uniform in [0, 1) and drawn afresh for every slot (SplitMix64 of seed
+// and the slot's number: a seed gives the same ticks every time), so the
+// ticks still come once a period on average. With fraction 1 the ticks
+// are a stratified random sample of time (one uniform instant in each
+// slot): the mean of any signal over the ticks is then an unbiased
+// estimate of its mean over the slots (Cochran, Sampling Techniques, 3rd
+// ed., 1977, ch. 5, stratified random sampling, from memory), however
+// the signal repeats. Two ticks may then come as close as the work
+// between them allows, or two periods apart.
+//
+// Why: a meter read on a fixed grid under a pulsed beam whose pulse
+// period is commensurate with the grid (100 ms readings at 10 or 30
+// pulses a second see one phase of the pulse cycle, at 15 two) averages
+// those phases, not the cycle, whatever the number of readings; its
+// ripple never shows in their spread. Read at stratified instants, the
+// readings' phases cover the cycle evenly and the ripple shows as
+// scatter, which the type A uncertainty counts.
+func (c *Cadence) Dither(fraction float64, seed uint64) {
+	c.dither, c.seed = min(max(fraction, 0), 1), seed
+}
+
+// offset is where in slot n the dithered tick falls.
+func (c *Cadence) offset(n uint64) time.Duration {
+	u := float64(splitMix64(c.seed^(n*0x2545f4914f6cdd1d))>>11) / (1 << 53)
+	return time.Duration(c.dither * u * float64(c.period))
+}
+
+// splitMix64 is the output function of SplitMix64 (Steele, Lea and
+// Flood, "Fast splittable pseudorandom number generators", OOPSLA 2014):
+// a well-mixed 64-bit value of each input, for ticks that depend on their
+// slot's number and not on the calls before them.
+func splitMix64(z uint64) uint64 {
+	z += 0x9e3779b97f4a7c15
+	z = (z ^ (z >> 30)) * 0xbf58476d1ce4e5b9
+	z = (z ^ (z >> 27)) * 0x94d049bb133111eb
+	return z ^ (z >> 31)
 }
 
 // Period returns the cadence's period.
@@ -147,7 +194,24 @@ func (c *Cadence) Wait(ctx context.Context) error {
 	if !c.started || c.period <= 0 {
 		c.started = true
 		c.next = now + c.period
+		c.slot = 1
 		return ctx.Err()
+	}
+	if c.dither > 0 {
+		// Slots wholly passed are skipped (not made up in a burst);
+		// in the slot at hand, wait for its instant, or tick now when
+		// it has passed.
+		if passed := (now - c.next) / c.period; passed > 0 {
+			c.next += passed * c.period
+			c.slot += uint64(passed)
+		}
+		tick := c.next + c.offset(c.slot)
+		c.next += c.period
+		c.slot++
+		if now >= tick {
+			return ctx.Err()
+		}
+		return c.clk.Sleep(ctx, tick-now)
 	}
 	if late := now - c.next; late >= 0 {
 		// On time or late: tick now; the next one stays on the grid

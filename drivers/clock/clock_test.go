@@ -2,9 +2,13 @@ package clock
 
 import (
 	"context"
+	"math"
 	"math/rand/v2"
+	"slices"
 	"testing"
 	"time"
+
+	"gonum.org/v1/gonum/stat/distuv"
 )
 
 func TestManualAdvancesOnlyWhenTold(t *testing.T) {
@@ -147,5 +151,103 @@ func TestCadenceSkipsMissedTicks(t *testing.T) {
 	cancel()
 	if err := c.Wait(cancelled); err == nil {
 		t.Error("Wait on a cancelled context returned no error")
+	}
+}
+
+// ticks returns the clock times of n ticks of a cadence of period,
+// dithered by fraction (0: the fixed grid) with seed.
+func ticks(n int, period time.Duration, fraction float64, seed uint64) []time.Duration {
+	clk := NewManual(time.Time{})
+	c := NewCadence(clk, period)
+	c.Dither(fraction, seed)
+	out := make([]time.Duration, n)
+	for i := range out {
+		if err := c.Wait(context.Background()); err != nil {
+			panic(err)
+		}
+		out[i] = clk.Mono()
+	}
+	return out
+}
+
+// A dithered cadence ticks once in each period-long slot of its grid, at
+// an instant spread over the slot's first fraction, the same for a seed;
+// a late Wait ticks at once, and the slots wholly passed are skipped.
+func TestCadenceDitherSlots(t *testing.T) {
+	const period = 100 * time.Millisecond
+	ts := ticks(20001, period, 1, 7)
+	var offs float64
+	for k := 1; k < len(ts); k++ {
+		slot := time.Duration(k) * period
+		if ts[k] < slot || ts[k] >= slot+period {
+			t.Fatalf("tick %d at %v, outside its slot [%v, %v)", k, ts[k], slot, slot+period)
+		}
+		offs += (ts[k] - slot).Seconds()
+	}
+	// Uniform instants in a 100 ms slot: mean 50 ms, standard deviation
+	// 100/√12 = 28.9 ms, so the mean of 20,000 is within 0.82 ms at 4σ.
+	if mean := offs / float64(len(ts)-1); math.Abs(mean-0.05) > 0.00082 {
+		t.Errorf("mean instant %.2f ms into the slot, want 50", 1000*mean)
+	}
+	half := ticks(2001, period, 0.5, 7)
+	for k := 1; k < len(half); k++ {
+		if off := half[k] - time.Duration(k)*period; off < 0 || off >= period/2 {
+			t.Fatalf("fraction 0.5: tick %d %v into its slot, want under 50 ms", k, off)
+		}
+	}
+	if again := ticks(50, period, 1, 7); !slices.Equal(again, ts[:50]) {
+		t.Error("the same seed gave other ticks")
+	}
+	if other := ticks(50, period, 1, 8); slices.Equal(other, ts[:50]) {
+		t.Error("another seed gave the same ticks")
+	}
+	clk := NewManual(time.Time{})
+	c := NewCadence(clk, period)
+	c.Dither(1, 1)
+	ctx := context.Background()
+	c.Wait(ctx)
+	clk.Advance(1050 * time.Millisecond) // slots 1 to 9 passed, in slot 10
+	if err := c.Wait(ctx); err != nil || clk.Mono() < 1050*time.Millisecond || clk.Mono() >= 1100*time.Millisecond {
+		t.Fatalf("late Wait at %v (%v), want in the slot at hand [1.05 s, 1.1 s)", clk.Mono(), err)
+	}
+	c.Wait(ctx)
+	if now := clk.Mono(); now < 1100*time.Millisecond || now >= 1200*time.Millisecond {
+		t.Errorf("the tick after a late one at %v, want in the next slot [1.1 s, 1.2 s)", now)
+	}
+}
+
+// The phases of a dithered cadence's ticks in the cycle of a pulsed beam
+// are uniform for every pulse rate of fluoroscopy, 3 to 30 pulses a
+// second (a chi-square test of 20 phase bins at p = 0.001, gonum's
+// distuv.ChiSquared as the reference), while a fixed 100 ms grid sees one
+// phase at 10 and 30 pulses a second and two at 15.
+func TestCadenceDitherCoversPulsePhases(t *testing.T) {
+	const period = 100 * time.Millisecond
+	const bins = 20
+	crit := distuv.ChiSquared{K: bins - 1}.Quantile(0.999)
+	phases := func(ts []time.Duration, pulse time.Duration) (chi2 float64, seen int) {
+		counts := make([]float64, bins)
+		for _, x := range ts {
+			counts[int(x%pulse)*bins/int(pulse)]++
+		}
+		want := float64(len(ts)) / bins
+		for _, c := range counts {
+			chi2 += (c - want) * (c - want) / want
+			if c > 0 {
+				seen++
+			}
+		}
+		return chi2, seen
+	}
+	dithered := ticks(4000, period, 1, 3)
+	grid := ticks(4000, period, 0, 3)
+	for _, hz := range []float64{30, 25, 15, 12.5, 10, 7.5, 6, 5, 3.75, 3} {
+		pulse := time.Duration(float64(time.Second) / hz)
+		if chi2, _ := phases(dithered, pulse); chi2 > crit {
+			t.Errorf("%g pulses/s: the dithered ticks' phases are not uniform (chi-square %.1f > %.1f)", hz, chi2, crit)
+		}
+		if _, seen := phases(grid, pulse); (hz == 10 || hz == 30) && seen != 1 || hz == 15 && seen != 2 {
+			t.Errorf("%g pulses/s: the fixed grid saw %d phase bins", hz, seen)
+		}
 	}
 }

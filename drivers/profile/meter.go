@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"log/slog"
+	"math/rand/v2"
 	"time"
 
 	"kermalux/drivers"
@@ -78,6 +79,7 @@ func Open(ctx context.Context, p *Profile, port string, opts Options) (*Meter, e
 		return nil, fmt.Errorf("%s (%s): %w", opts.Name, p.Name, err)
 	}
 	m := &Meter{p: p, port: sp, opts: opts, cadence: clock.NewCadence(opts.Clock, p.Period)}
+	m.cadence.Dither(drivers.PollDither, rand.Uint64())
 	if err := m.prepare(ctx); err != nil {
 		sp.Close()
 		return nil, err

@@ -22,6 +22,7 @@ import (
 	"fmt"
 	"log/slog"
 	"math"
+	"math/rand/v2"
 	"strconv"
 	"strings"
 	"time"
@@ -183,6 +184,7 @@ func Open(ctx context.Context, port string, cfg Config, opts ...Option) (*Meter,
 		period = 100 * time.Millisecond
 	}
 	m := &Meter{cfg: cfg, port: sp, o: o, cadence: clock.NewCadence(o.clk, period)}
+	m.cadence.Dither(drivers.PollDither, rand.Uint64())
 	if cfg.Unit != "" {
 		if err := m.setUnit(cfg.Unit); err != nil {
 			sp.Close()

@@ -96,8 +96,8 @@ func Seeded(ctx context.Context, o SeededOptions) (*SeededOutcome, error) {
 	}
 	var count countReads
 	meters := map[string]drivers.Meter{
-		engine.Dosimeter:  &modelMeter{role: engine.Dosimeter, m: model, clk: clk, period: period, n: &count, spec: scn.Dosimeter},
-		engine.Photometer: &modelMeter{role: engine.Photometer, m: model, clk: clk, period: period, phase: period / 2, n: &count, spec: scn.Photometer},
+		engine.Dosimeter:  &modelMeter{role: engine.Dosimeter, m: model, clk: clk, cad: meterCadence(clk, period, 1), n: &count, spec: scn.Dosimeter},
+		engine.Photometer: &modelMeter{role: engine.Photometer, m: model, clk: clk, cad: meterCadence(clk, period, 2), n: &count, spec: scn.Photometer},
 	}
 	air := map[string]float64{"temperature": 20, "pressure": 101.325}
 	if a := scn.Air; a != nil {
@@ -174,29 +174,31 @@ func (c *countReads) get() int {
 }
 
 // modelMeter reads the physics model in-process; Read advances the manual
-// clock to the meter's next sample time.
+// clock to the meter's next sample time, as the drivers' polling does
+// (a dithered cadence: clock.Cadence.Dither).
 type modelMeter struct {
-	role   string
-	m      *benchsim.Model
-	clk    *clock.Manual
-	period time.Duration
-	next   time.Duration
-	phase  time.Duration
-	n      *countReads
-	spec   benchsim.MeterSpec
+	role string
+	m    *benchsim.Model
+	clk  *clock.Manual
+	cad  *clock.Cadence
+	n    *countReads
+	spec benchsim.MeterSpec
+}
+
+// meterCadence is a simulated meter's reading schedule: the drivers'
+// dithered one (drivers.PollDither), with a fixed seed per meter so that
+// a seed gives the same session.
+func meterCadence(clk clock.Clock, period time.Duration, seed uint64) *clock.Cadence {
+	c := clock.NewCadence(clk, period)
+	c.Dither(drivers.PollDither, seed)
+	return c
 }
 
 func (s *modelMeter) Read(ctx context.Context) (drivers.Reading, error) {
-	if err := ctx.Err(); err != nil {
+	if err := s.cad.Wait(ctx); err != nil {
 		return drivers.Reading{}, err
 	}
-	now := s.clk.Mono()
-	if s.next <= now {
-		s.next = (now/s.period+1)*s.period + s.phase
-	}
-	s.clk.Advance(s.next - now)
-	t := s.next
-	s.next += s.period
+	t := s.clk.Mono()
 	q, role := units.AirKermaRate, benchsim.RoleDosimeter
 	if s.role == engine.Photometer {
 		q, role = units.Luminance, benchsim.RolePhotometer

@@ -88,7 +88,21 @@ func (e *Engine) minFloor(role string) float64 {
 // the dark, because the photometer is moved between its dark reading and
 // the beam (a uniformity map) and a vignetted dark differs from place to
 // place by a fifth or more.
+//
+// A meter still falling from the last exposure (a photometer's afterglow
+// through its response time) while its dark is read would set the
+// threshold from the fall, above a dim beam's light: when the first half
+// of the dark readings stands out of the second half's noise (more than
+// three of its standard deviations and more than the floor), the second
+// half alone is the dark.
 func (e *Engine) newTrack(role string, dark []float64, step float64) *track {
+	if n := len(dark); n >= 6 {
+		m1, _ := meanSD(dark[:n/2])
+		m2, sd2 := meanSD(dark[n/2:])
+		if d := math.Abs(m1 - m2); d > 3*sd2 && d > e.minFloor(role) {
+			dark = dark[n/2:]
+		}
+	}
 	m, sd := meanSD(dark)
 	t := &track{role: role, dark: m, noise: sd, step: step}
 	t.thresh = m + max(e.cfg.Settings.BeamSigmas*sd, 3*step, 0.5*math.Abs(m), e.minFloor(role))
