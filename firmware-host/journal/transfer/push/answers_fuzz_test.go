@@ -205,3 +205,24 @@ func FuzzPushAnswers(f *testing.F) {
 		pushAnswers(t, src, codes, marks, pushed)
 	})
 }
+
+// A workstation whose marks fall back below what its push answer
+// acknowledged (it stores record 2 of a session, then says it holds only
+// record 1, every time) is refused as having lost records, after a few
+// requests: the push went round until the runaway bound before (found by
+// FuzzPushAnswers, its corpus keeps the input).
+func TestPushRefusesStoreGoingBack(t *testing.T) {
+	src := newMemSource()
+	a := src.id(0)
+	marks, _ := json.Marshal(wire.MarksResponse{Store: "st-0001", Marks: map[string]wire.Mark{a: {Seq: 1, Head: src.head(0, 1)}}})
+	pushed, _ := json.Marshal(wire.PushResponse{Stored: 1, High: map[string]int64{a: 2}})
+	ans := &answers{marksStatus: 200, pushStatus: 200, marks: marks, push: pushed}
+	_, err := Push(context.Background(), src, Options{URL: "http://workstation.invalid:8470", Client: &http.Client{Transport: ans},
+		SegmentSize: 2, Retries: 3, RetryDelay: time.Millisecond, Clock: noWait{}})
+	if !errors.Is(err, ErrStoreLost) || !strings.Contains(err.Error(), "acknowledged record 2 of session "+a) {
+		t.Fatalf("push error %v, want the store named as having lost record 2 of %s", err, a)
+	}
+	if n := ans.requests.Load(); n > 6 {
+		t.Errorf("%d requests before the refusal, want a few", n)
+	}
+}

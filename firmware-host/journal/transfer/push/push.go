@@ -174,6 +174,9 @@ func Push(ctx context.Context, src Source, opts Options) (sum Summary, err error
 				if high > s.Last {
 					return sum, fmt.Errorf("push to %s: the workstation's answer says it holds record %d of session %s, the journal ends at record %d", p.base, high, s.ID, s.Last)
 				}
+				if err := p.checkBack(s.ID, high, marks.Marks[s.ID].Seq); err != nil {
+					return sum, err
+				}
 				if m := marks.Marks[s.ID]; high > m.Seq {
 					sum.Sent += high - m.Seq
 					prog.Add(int(high - m.Seq))
@@ -216,6 +219,9 @@ func Push(ctx context.Context, src Source, opts Options) (sum Summary, err error
 			if err := p.checkFork(ctx, s, nm); err != nil {
 				return sum, err
 			}
+			if err := p.checkBack(s.ID, nm.Seq, marks.Marks[s.ID].Seq); err != nil {
+				return sum, err
+			}
 			if old := marks.Marks[s.ID]; nm.Seq > old.Seq {
 				sum.Sent += nm.Seq - old.Seq
 				prog.Add(int(nm.Seq - old.Seq))
@@ -226,12 +232,28 @@ func Push(ctx context.Context, src Source, opts Options) (sum Summary, err error
 	}
 }
 
+// ErrStoreLost: the workstation now says it holds less of a session than
+// it acknowledged earlier in the same push (a store restored from an older
+// backup or rolled back, a proxy answering for another): pushing again
+// would go round for ever, and records it acknowledged are gone there.
+var ErrStoreLost = errors.New("the workstation lost records it had acknowledged")
+
+// checkBack refuses an answer that puts the workstation's copy of session
+// below what it acknowledged before (acked): the board's view of what the
+// store holds only grows within a push.
+func (p *pusher) checkBack(session string, seq, acked int64) error {
+	if seq < acked {
+		return fmt.Errorf("push to %s: %w: it acknowledged record %d of session %s, and now says it holds up to record %d; ask the workstation's keeper to check its store", p.base, ErrStoreLost, acked, session, seq)
+	}
+	return nil
+}
+
 func retryable(err error) bool {
 	var re *RefusedError
 	if errors.As(err, &re) {
 		return re.Status != http.StatusForbidden && re.Status != http.StatusBadRequest || re.Refusal.Error == "malformed"
 	}
-	return !errors.Is(err, ErrFork)
+	return !errors.Is(err, ErrFork) && !errors.Is(err, ErrStoreLost)
 }
 
 func pendingOf(sessions []journal.SessionSummary, marks map[string]wire.Mark) []journal.SessionSummary {
