@@ -375,6 +375,13 @@ func (j *Journal) Begin(ctx context.Context, s entry.Session) (string, error) {
 	if s.ID == "" {
 		s.ID = NewSessionID(s.Started, j.pubHex)
 	}
+	if s.PrevSession == "" {
+		prev, err := j.lastBegun(ctx)
+		if err != nil {
+			return "", fmt.Errorf("begin session: %w", err)
+		}
+		s.PrevSession, s.PrevSerial, s.PrevHead = prev.ID, prev.Session.IntensifierSerial, prev.Head
+	}
 	if _, err := j.append(ctx, s.ID, entry.KindSession, s, true); err != nil {
 		return "", err
 	}
@@ -591,6 +598,31 @@ type SessionSummary struct {
 	Last    int64             // sequence number of the last record
 	Ended   bool              // a session_end was recorded
 	End     *entry.SessionEnd // nil unless Ended
+}
+
+// begun is the session begun last, with the hash of its last record.
+type begun struct {
+	ID      string
+	Session entry.Session
+	Head    string
+}
+
+// lastBegun returns the session the journal began last (zero when none),
+// for the next session's link to it (entry.Session.PrevSession).
+func (j *Journal) lastBegun(ctx context.Context) (begun, error) {
+	var b begun
+	var first string
+	err := j.db.QueryRowContext(ctx, `SELECT h.session, h.hash, r.payload FROM heads h JOIN records r ON r.session = h.session AND r.seq = 1 ORDER BY h.rowid DESC LIMIT 1`).Scan(&b.ID, &b.Head, &first)
+	if errors.Is(err, sql.ErrNoRows) {
+		return begun{}, nil
+	}
+	if err != nil {
+		return begun{}, fmt.Errorf("the session begun before: %w", err)
+	}
+	if err := json.Unmarshal([]byte(first), &b.Session); err != nil {
+		return begun{}, fmt.Errorf("the session begun before (%s), record 1: %w", b.ID, err)
+	}
+	return b, nil
 }
 
 // Sessions lists the journal's sessions in the order they began.

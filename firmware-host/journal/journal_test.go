@@ -8,6 +8,7 @@ import (
 	"encoding/hex"
 	"encoding/json"
 	"errors"
+	"fmt"
 	"os"
 	"path/filepath"
 	"strings"
@@ -336,5 +337,48 @@ func TestAppendRefusesStaleHead(t *testing.T) {
 	j.Close()
 	if rep, err := Verify(ctx, filepath.Join(dir, "journal.db")); err != nil || !rep.OK() {
 		t.Errorf("verify: %+v %v", rep, err)
+	}
+}
+
+// Each session a board begins names, in its signed session record, the
+// session begun before it: its id, its intensifier and the hash of its
+// last record at that moment (the chain a store's check of deleted
+// sessions follows); the board's first session names none.
+func TestBeginNamesTheSessionBefore(t *testing.T) {
+	ctx := context.Background()
+	j := openTest(t, t.TempDir())
+	defer j.Close()
+	var ids []string
+	for i := range 3 {
+		s := journaltest.Session(i)
+		s.IntensifierSerial = fmt.Sprintf("HV-%04d", 100+i)
+		id, err := j.Begin(ctx, s)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if err := journaltest.WriteSession(ctx, j, id, 1, i != 1, nil); err != nil {
+			t.Fatal(err)
+		}
+		ids = append(ids, id)
+	}
+	ss, err := j.Sessions(ctx)
+	if err != nil || len(ss) != 3 {
+		t.Fatalf("sessions: %d %v", len(ss), err)
+	}
+	if p := ss[0].Session; p.PrevSession != "" || p.PrevSerial != "" || p.PrevHead != "" {
+		t.Errorf("the first session names one before it: %q %q %q", p.PrevSession, p.PrevSerial, p.PrevHead)
+	}
+	for i := 1; i < 3; i++ {
+		recs, err := j.Records(ctx, ids[i-1], 0, 0)
+		if err != nil {
+			t.Fatal(err)
+		}
+		s := ss[i].Session
+		if s.PrevSession != ids[i-1] || s.PrevSerial != fmt.Sprintf("HV-%04d", 100+i-1) || s.PrevHead != recs[len(recs)-1].Hash {
+			t.Errorf("session %d names %q (%q, %.12s), want %q (%q, %.12s)", i, s.PrevSession, s.PrevSerial, s.PrevHead, ids[i-1], fmt.Sprintf("HV-%04d", 100+i-1), recs[len(recs)-1].Hash)
+		}
+	}
+	if rep, err := Verify(ctx, j.Path()); err != nil || !rep.OK() {
+		t.Errorf("journal with linked sessions: %+v %v", rep, err)
 	}
 }

@@ -65,6 +65,15 @@ type Session struct {
 	// Language is the code of the language the board spoke and the
 	// report is written in (the bench file's language; empty: English).
 	Language string `json:"language,omitempty"`
+	// PrevSession, PrevSerial and PrevHead name the session the board
+	// began before this one (empty for its first): its id, the
+	// intensifier it measured and the hash of its last record then. Signed
+	// with this record, they chain the board's sessions, so that a store
+	// missing a session the board sent (deleted, a failing yearly check
+	// taken out of an intensifier's history) shows it from the next one.
+	PrevSession string `json:"prev_session,omitempty"`
+	PrevSerial  string `json:"prev_serial,omitempty"`
+	PrevHead    string `json:"prev_head,omitempty"`
 }
 
 // XRaySystem identifies the fluoroscopy system the intensifier is part of.

@@ -5,6 +5,7 @@ import (
 	"crypto/ed25519"
 	"encoding/hex"
 	"errors"
+	"fmt"
 	"strings"
 	"testing"
 
@@ -142,4 +143,53 @@ func containsAll(lines []string, words ...string) bool {
 		}
 	}
 	return false
+}
+
+// A session deleted from the store whole (its row, records, results and
+// proofs), on either backend: nothing left in the store is wrong, but the
+// session the board began next names it as the one before, so the
+// verification that report and trend run first names it. Here the 2025
+// yearly check of HV-2291, followed on the board by another intensifier's
+// session; the trend of that other intensifier is not stopped by it.
+func TestStoreMissingSession(t *testing.T) {
+	storetest.Each(t, func(t *testing.T, backend string) {
+		ctx := context.Background()
+		target := storetest.Target(t, backend)
+		buildStoreAt(t, t.TempDir(), target, 2, 3)
+		st := storetest.Open(t, target)
+		db := storetest.SQL(t, target)
+		if ps, err := VerifyStoreSerial(ctx, st, "HV-2291"); err != nil || len(ps) != 0 {
+			t.Fatalf("untouched store: %q %v", ps, err)
+		}
+		infos, err := st.Sessions(ctx, store.Query{Serial: "HV-2291"})
+		if err != nil || len(infos) != 3 {
+			t.Fatalf("sessions of HV-2291: %d, %v", len(infos), err)
+		}
+		middle := infos[1]
+		for _, q := range []string{`DELETE FROM records WHERE session = '%s'`, `DELETE FROM results WHERE session = '%s'`, `DELETE FROM proofs WHERE session = '%s'`, `DELETE FROM sessions WHERE id = '%s'`} {
+			if _, err := db.Exec(fmt.Sprintf(q, middle.ID)); err != nil {
+				t.Fatalf("%s: %v", q, err)
+			}
+		}
+		ps, err := VerifyStoreSerial(ctx, st, "HV-2291")
+		if err != nil {
+			t.Fatal(err)
+		}
+		if len(ps) != 1 || !strings.Contains(ps[0], "session "+middle.ID+" of intensifier HV-2291 is not in the store") {
+			t.Fatalf("after deleting %s: problems %q, want it named", middle.ID, ps)
+		}
+		others, err := st.Sessions(ctx, store.Query{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		for _, o := range others {
+			if o.Session.IntensifierSerial == "HV-2291" {
+				continue
+			}
+			if ps, err := VerifyStoreSerial(ctx, st, o.Session.IntensifierSerial); err != nil || len(ps) != 0 {
+				t.Errorf("the trend of %s, whose sessions are all there: %q %v", o.Session.IntensifierSerial, ps, err)
+			}
+			break
+		}
+	})
 }

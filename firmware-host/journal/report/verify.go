@@ -256,6 +256,15 @@ func VerifyStoreSerial(ctx context.Context, st *store.Store, serial string) ([]s
 			out = append(out, fmt.Sprintf("session %s: %s; its signed session record names intensifier %q", m.ID, c, serial))
 		}
 	}
+	// A session of this intensifier deleted from the store whole: the
+	// board's next session names it as the one before (store.MissingBefore).
+	gaps, err := st.MissingBefore(ctx, serial)
+	if err != nil {
+		return nil, err
+	}
+	for _, g := range gaps {
+		out = append(out, fmt.Sprintf("session %s of intensifier %s is not in the store, yet session %s, begun next on board %s, names it as the one before: it was deleted from the store, or never sent here", g.Missing, serial, g.Next, abbrevHex(g.Board)))
+	}
 	return out, nil
 }
 

@@ -375,13 +375,69 @@ func (s *Store) Misfiled(ctx context.Context, serial string) ([]SessionInfo, err
 	return out, nil
 }
 
+// Gap is a session a store lacks although a stored session's signed
+// record names it as the one its board began just before.
+type Gap struct {
+	Missing string // the session the store lacks
+	Serial  string // the intensifier it measured, as the next session says
+	Next    string // the stored session that names it
+	Board   string // the board's key (hex), as the next session says
+}
+
+// MissingBefore returns the sessions of intensifier serial that stored
+// sessions (of any intensifier: a board measures several) name as their
+// board's previous session (entry.Session.PrevSession) and that the store
+// does not hold, its row or its first record gone: a session deleted from
+// the store, which nothing else in it shows. The last session a board
+// sent has no next one yet to name it; sessions begun before boards named
+// their predecessor name none.
+func (s *Store) MissingBefore(ctx context.Context, serial string) ([]Gap, error) {
+	rows, err := s.db.QueryContext(ctx, s.q(`SELECT session, payload FROM records WHERE seq = 1 AND kind = 'session' AND payload LIKE ? ESCAPE '!'`), fieldPattern("prev_serial", serial))
+	if err != nil {
+		return nil, fmt.Errorf("store %s: sessions naming one of %s before them: %w", s.name, serial, err)
+	}
+	var next []Gap
+	for rows.Next() {
+		var id, payload string
+		if err := rows.Scan(&id, &payload); err != nil {
+			rows.Close()
+			return nil, fmt.Errorf("store %s: sessions naming one of %s before them: %w", s.name, serial, err)
+		}
+		var sess entry.Session
+		if json.Unmarshal([]byte(payload), &sess) != nil || sess.PrevSerial != serial || sess.PrevSession == "" {
+			continue
+		}
+		next = append(next, Gap{Missing: sess.PrevSession, Serial: serial, Next: id, Board: sess.BoardKey})
+	}
+	rows.Close()
+	if err := rows.Err(); err != nil {
+		return nil, fmt.Errorf("store %s: sessions naming one of %s before them: %w", s.name, serial, err)
+	}
+	var out []Gap
+	for _, g := range next {
+		var n int
+		if err := s.db.QueryRowContext(ctx, s.q(`SELECT count(*) FROM sessions s JOIN records f ON f.session = s.id AND f.seq = 1 WHERE s.id = ?`), g.Missing).Scan(&n); err != nil {
+			return nil, fmt.Errorf("store %s: session %s: %w", s.name, g.Missing, err)
+		}
+		if n == 0 {
+			out = append(out, g)
+		}
+	}
+	return out, nil
+}
+
 // serialPattern is a LIKE pattern (escape character '!') matching the
 // JSON text of a session record that names serial. A character JSON may
 // write escaped or not matches any text there: the pattern finds
 // candidates, which are then decoded.
 func serialPattern(serial string) string {
+	return fieldPattern("intensifier_serial", serial)
+}
+
+// fieldPattern is serialPattern for the JSON string field name.
+func fieldPattern(name, serial string) string {
 	var b strings.Builder
-	b.WriteString(`%"intensifier_serial":"`)
+	b.WriteString(`%"` + name + `":"`)
 	for _, r := range serial {
 		switch {
 		case r == '%' || r == '_' || r == '!':
