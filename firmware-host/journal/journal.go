@@ -73,6 +73,9 @@ func (o Options) KeyFile(journalPath string) string {
 // Journal is an open board journal. Its methods are safe for concurrent
 // use; one process should write a journal file at a time.
 type Journal struct {
+	closeOnce sync.Once
+	closeErr  error
+
 	path   string
 	db     *sql.DB
 	priv   ed25519.PrivateKey
@@ -332,8 +335,13 @@ func (j *Journal) BoardKey() string { return j.pubHex }
 func (j *Journal) Sign(msg []byte) []byte { return ed25519.Sign(j.priv, msg) }
 
 // Close writes the high-water mark of the last commit and closes the
-// journal.
+// journal. A second Close returns the first one's result.
 func (j *Journal) Close() error {
+	j.closeOnce.Do(func() { j.closeErr = j.close() })
+	return j.closeErr
+}
+
+func (j *Journal) close() error {
 	j.signer.Close()
 	var merr error
 	if j.mark != nil {

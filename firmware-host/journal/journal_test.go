@@ -381,4 +381,25 @@ func TestBeginNamesTheSessionBefore(t *testing.T) {
 	if rep, err := Verify(ctx, j.Path()); err != nil || !rep.OK() {
 		t.Errorf("journal with linked sessions: %+v %v", rep, err)
 	}
+	// The middle session deleted whole from the file: every record and
+	// head left verifies, and the next session names it.
+	path := j.Path()
+	j.Close()
+	db, err := sql.Open("sqlite", path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, q := range []string{`DELETE FROM records WHERE session = ?`, `DELETE FROM heads WHERE session = ?`} {
+		if _, err := db.Exec(q, ids[1]); err != nil {
+			t.Fatal(err)
+		}
+	}
+	db.Close()
+	rep, err := Verify(ctx, path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if rep.OK() || len(rep.Problems) != 1 || rep.Problems[0].Session != ids[2] || !strings.Contains(rep.Problems[0].What, "names session "+ids[1]) {
+		t.Errorf("a session deleted whole: problems %v, want one naming %s from %s", rep.Problems, ids[1], ids[2])
+	}
 }

@@ -214,6 +214,9 @@ func VerifyWith(ctx context.Context, path string, opts VerifyOptions) (VerifyRep
 		}
 	}
 	srows.Close()
+	// The session each verified session names as begun before it
+	// (entry.Session.PrevSession), to find one deleted whole.
+	before := map[string]string{}
 	for _, s := range order {
 		rep.Sessions++
 		h := heads[s]
@@ -234,6 +237,10 @@ func VerifyWith(ctx context.Context, path string, opts VerifyOptions) (VerifyRep
 			rep.Problems = append(rep.Problems, *p)
 			continue
 		}
+		var first entry.Session
+		if recs[0].Kind == entry.KindSession && json.Unmarshal(recs[0].Payload, &first) == nil && first.PrevSession != "" {
+			before[s] = first.PrevSession
+		}
 		if opts.StoreHead != nil {
 			p, err := compareStore(ctx, opts.StoreHead, s, recs)
 			if err != nil {
@@ -241,6 +248,13 @@ func VerifyWith(ctx context.Context, path string, opts VerifyOptions) (VerifyRep
 			}
 			if p != nil {
 				rep.Problems = append(rep.Problems, *p)
+			}
+		}
+	}
+	for _, s := range order {
+		if p, ok := before[s]; ok {
+			if _, held := heads[p]; !held {
+				rep.Problems = append(rep.Problems, Problem{Session: s, Seq: 1, Kind: entry.KindSession, What: fmt.Sprintf("its signed session record names session %s as the one the board began before it, which the journal does not hold (deleted whole)", p), Hint: hintMissing})
 			}
 		}
 	}
