@@ -288,3 +288,37 @@ func TestTrendLeavesOutNotMeasurable(t *testing.T) {
 		t.Errorf("crossing on %v, without the unmeasured year %v", got.Projections[0].Crossing, want.Projections[0].Crossing)
 	}
 }
+
+// Sessions close together give no rate of change a year: three
+// conversion factors minutes apart (the demo's runs) once gave "+318231 a
+// year" from a 0.2 difference; a repeat check ten days after a repair
+// likewise. At 90 days and more the line is fitted (common practice, not
+// from a standard).
+func TestTrendTooShortForARate(t *testing.T) {
+	for _, tt := range []struct {
+		name    string
+		apart   time.Duration
+		fitted  bool
+		spanned string
+	}{
+		{"minutes apart", 3 * time.Minute, false, "6 minutes"},
+		{"ten days apart", 10 * 24 * time.Hour, false, "20 days"},
+		{"fifty days apart", 50 * 24 * time.Hour, true, ""},
+	} {
+		hs := sampleHistory(3, 150, 0)
+		for i := range hs {
+			hs[i].Date = hs[0].Date.Add(time.Duration(i) * tt.apart)
+			hs[i].Result.Value = 150 + 0.1*float64(i%2)
+		}
+		ts := Fit("HV-2291", "conversion_factor", hs, 0.5)
+		if len(ts) != 1 || ts[0].Fitted != tt.fitted {
+			t.Fatalf("%s: fitted %v, want %v (%+v)", tt.name, len(ts) == 1 && ts[0].Fitted, tt.fitted, ts)
+		}
+		if !tt.fitted && !strings.Contains(ts[0].Note, "the sessions span "+tt.spanned+", too short for a rate of change") {
+			t.Errorf("%s: note %q", tt.name, ts[0].Note)
+		}
+		if s := trendSentence(ts[0]); !tt.fitted && strings.Contains(s, "Rate of change") {
+			t.Errorf("%s: the sentence still gives a rate: %s", tt.name, s)
+		}
+	}
+}
