@@ -169,6 +169,7 @@ func (e *Engine) compute(ctx context.Context, idx int, s Step) error {
 		return fmt.Errorf("step %d (%s): compute step without a figure", idx, s.ID)
 	}
 	var res calib.Result
+	var meter string // of a one-meter figure
 	var err error
 	fig := s.Compute.Figure
 	if why := e.unmeasured(s); why != "" {
@@ -260,6 +261,7 @@ func (e *Engine) compute(ctx context.Context, idx int, s Step) error {
 			case "luminance":
 				lum = true
 			}
+			meter = roleOf(lum)
 			m := measured(p, lum)
 			// The level with its resolution and type B in the budget
 			// (calib.Level); stability is a relative change, below.
@@ -294,7 +296,7 @@ func (e *Engine) compute(ctx context.Context, idx int, s Step) error {
 		_ = e.say(ctx, idx, panel.Message{Text: fmt.Sprintf("%s cannot be computed: %v.", spokenQuantity(fig), err), Level: panel.Warn})
 		return &skipError{reason: err.Error()}
 	}
-	r := entry.Result{Step: idx, Procedure: s.Procedure, FieldMode: s.FieldMode, Quantity: res.Quantity,
+	r := entry.Result{Step: idx, Procedure: s.Procedure, FieldMode: s.FieldMode, Quantity: res.Quantity, Meter: meter,
 		Value: res.Value, Unit: res.Unit, StdUnc: res.StdUnc, ExpUnc: res.ExpUnc, K: res.K,
 		Calibrated: res.Calibrated, Flags: calib.FlagTexts(res.Flags), Detail: res.Detail, Verdict: string(calib.Info),
 		RangeFloor: res.Floor, BelowRangeFloor: res.BelowFloor, FlagCodes: calib.FlagCodes(res.Flags)}
@@ -354,7 +356,7 @@ func (e *Engine) notMeasurableResult(ctx context.Context, idx int, s Step, why s
 	if q == "kerma_mode_scaling" {
 		q = calib.QKermaScaling
 	}
-	r := entry.Result{Step: idx, Procedure: s.Procedure, FieldMode: s.FieldMode, Quantity: q,
+	r := entry.Result{Step: idx, Procedure: s.Procedure, FieldMode: s.FieldMode, Quantity: q, Meter: e.resultMeter(s.ID),
 		Verdict: string(calib.NotMeasurable), DecidedBy: why, Flags: []string{"not measurable: " + why}}
 	e.storeResult(s.ID, r)
 	if err := e.journal(ctx, entry.KindResult, r); err != nil {

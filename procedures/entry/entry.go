@@ -249,10 +249,14 @@ type BudgetRow struct {
 
 // Result is a figure of merit as judged.
 type Result struct {
-	Step       int      `json:"step"`
-	Procedure  string   `json:"procedure"`
-	FieldMode  string   `json:"field_mode,omitempty"`
-	Quantity   string   `json:"quantity"` // conversion_factor, non_uniformity, contrast_ratio, input_kerma_rate, ...
+	Step      int    `json:"step"`
+	Procedure string `json:"procedure"`
+	FieldMode string `json:"field_mode,omitempty"`
+	Quantity  string `json:"quantity"` // conversion_factor, non_uniformity, contrast_ratio, input_kerma_rate, ...
+	// Meter is the meter a one-meter figure (dark_level, stability) is
+	// of: dosimeter or photometer; empty for the others, and in journals
+	// of earlier releases (the unit tells them apart there).
+	Meter      string   `json:"meter,omitempty"`
 	Value      float64  `json:"value"`
 	Unit       string   `json:"unit"`
 	StdUnc     float64  `json:"standard_uncertainty"`

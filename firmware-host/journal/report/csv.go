@@ -21,7 +21,7 @@ func (r *Report) WriteResultsCSV(w io.Writer) error {
 	cw := csv.NewWriter(w)
 	r.stampCSV(cw)
 	head := []string{"session", "site", "room", "intensifier_serial", "started", "step", "field_mode", "quantity", "value", "unit",
-		"standard_uncertainty", "expanded_uncertainty", "coverage_factor", "verdict", "decided_by", "calibrated", "baseline", "baseline_fraction", "flags", "review", "limits", "simulated"}
+		"standard_uncertainty", "expanded_uncertainty", "coverage_factor", "verdict", "decided_by", "calibrated", "baseline", "baseline_fraction", "flags", "review", "limits", "simulated", "meter"}
 	if err := cw.Write(head); err != nil {
 		return fmt.Errorf("results CSV: %w", err)
 	}
@@ -34,7 +34,7 @@ func (r *Report) WriteResultsCSV(w io.Writer) error {
 		}
 		row := []string{s.ID, s.Site, s.Room, s.IntensifierSerial, s.Started.Format(time.RFC3339), strconv.Itoa(res.Step), res.FieldMode, res.Quantity,
 			value, res.Unit, std, exp, k, res.Verdict, res.DecidedBy, strconv.FormatBool(res.Calibrated),
-			optional(res.Baseline), optional(res.BaselineFrac), strings.Join(res.Flags, "; "), res.Review, limitsCSV(res.Limits), strconv.FormatBool(r.Simulated)}
+			optional(res.Baseline), optional(res.BaselineFrac), strings.Join(res.Flags, "; "), res.Review, limitsCSV(res.Limits), strconv.FormatBool(r.Simulated), res.Meter}
 		if err := cw.Write(row); err != nil {
 			return fmt.Errorf("results CSV: %w", err)
 		}

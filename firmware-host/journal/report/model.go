@@ -382,7 +382,7 @@ func (r *Report) reviewLists(tr func(string) string) (per, list []string) {
 		results []string
 	}
 	name := func(res entry.Result) string {
-		n := tr(quantityWords(res.Quantity))
+		n := tr(resultWords(res))
 		if res.FieldMode != "" {
 			n += " (" + res.FieldMode + ")"
 		}
@@ -657,6 +657,23 @@ func eventWords(name string) string {
 }
 
 // quantityWords names a result quantity for people.
+// resultWords is a result's quantity in words, with its meter for a
+// one-meter figure ("Photometer dark level", as the board says it):
+// a session's two dark levels and two stabilities are told apart by name.
+func resultWords(res entry.Result) string {
+	q := quantityWords(res.Quantity)
+	switch res.Meter {
+	case "dosimeter":
+		return "Dosimeter " + strings.ToLower(q)
+	case "photometer":
+		return "Photometer " + strings.ToLower(q)
+	}
+	return q
+}
+
+// Name is the result's quantity in words with its meter (resultWords).
+func (r Result) Name() string { return resultWords(r.Result) }
+
 func quantityWords(q string) string {
 	switch q {
 	case "conversion_factor":
@@ -682,7 +699,7 @@ func quantityWords(q string) string {
 // resultName is a result's name in w's language (nil: English), with its
 // field mode: "Input air kerma rate (32cm)".
 func (w *words) resultName(res entry.Result) string {
-	n := w.text(quantityWords(res.Quantity))
+	n := w.text(resultWords(res))
 	if res.FieldMode != "" {
 		n += " (" + res.FieldMode + ")"
 	}

@@ -457,7 +457,7 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 		if !res.Calibrated {
 			notes = append([]string{"not calibrated"}, notes...)
 		}
-		rows = append(rows, []string{quantityWords(res.Quantity), res.FieldMode, strings.ReplaceAll(res.Shown(), " ± ", "\u00a0±\u00a0"), unitForQuantity(res.Quantity, res.Unit), Kf(res.K), of, strings.ToUpper(d.words.text(res.Verdict)), res.DecidedBy, strings.Join(notes, "; ")})
+		rows = append(rows, []string{res.Name(), res.FieldMode, strings.ReplaceAll(res.Shown(), " ± ", "\u00a0±\u00a0"), unitForQuantity(res.Quantity, res.Unit), Kf(res.K), of, strings.ToUpper(d.words.text(res.Verdict)), res.DecidedBy, strings.Join(notes, "; ")})
 	}
 	d.table([]pdfCol{{"Result", .12, false}, {"Field", .05, false}, {"Value ± U", .12, true}, {"Unit", .1, false}, {"k", .05, true}, {"Of baseline", .1, true}, {"Verdict", .07, false}, {"Decided by", .17, false}, {"Notes", .22, false}}, rows)
 	d.para("U is the expanded uncertainty with coverage factor k (JCGM 100:2008). A verdict compares the value itself with every limit; “Decided by” names the one that failed, or the closest. Every limit and its margin follow.", 7.5)
@@ -546,7 +546,7 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 	d.heading("Uncertainty budgets")
 	for _, bv := range v.Budgets {
 		res := bv.Result
-		d.subheading(fmt.Sprintf("%s%s: %s %s (k = %s)", d.words.text(quantityWords(res.Quantity)), prefixed(", ", res.FieldMode), res.Shown(), unitShown(res.Unit), Kf(res.K)))
+		d.subheading(fmt.Sprintf("%s%s: %s %s (k = %s)", d.words.text(res.Name()), prefixed(", ", res.FieldMode), res.Shown(), unitShown(res.Unit), Kf(res.K)))
 		var rows [][]string
 		for _, b := range res.Budget {
 			dof := "∞"

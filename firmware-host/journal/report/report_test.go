@@ -528,3 +528,51 @@ func TestNotMeasurableShownAsSuch(t *testing.T) {
 		}
 	}
 }
+
+// A session's two dark levels (and two stabilities) are told apart by
+// their meter in the results table and the budgets, as the board says
+// them ("Photometer dark level"), in English and in the session's other
+// languages (the catalogs' own words for them); a result of an earlier
+// release, with no meter, keeps its plain name.
+func TestOneMeterResultsNamed(t *testing.T) {
+	envs := sampleSession()
+	end := envs[len(envs)-1]
+	envs = envs[:len(envs)-1]
+	for i, m := range []string{"dosimeter", "photometer", ""} {
+		unit := "µGy/s"
+		if m != "dosimeter" {
+			unit = "cd/m²"
+		}
+		b, err := json.Marshal(entry.Result{Step: 1 + i, Procedure: "acceptance", Quantity: "dark_level", Meter: m, Value: 0.002, Unit: unit, StdUnc: 0.0005, ExpUnc: 0.001, K: 2, Verdict: "info", Calibrated: true})
+		if err != nil {
+			t.Fatal(err)
+		}
+		envs = append(envs, entry.Envelope{Seq: int64(len(envs) + 1), Session: end.Session, Kind: entry.KindResult, Wall: end.Wall, Mono: end.Mono, BootID: end.BootID, Payload: b})
+	}
+	end.Seq = int64(len(envs) + 1)
+	envs = append(envs, end)
+	r, err := Build(envs)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, tt := range []struct {
+		lang string
+		want []string
+	}{
+		{"en", []string{"<td>Dosimeter dark level</td>", "<td>Photometer dark level</td>", "<td>Dark level</td>"}},
+		// procedures/catalog/lang/de/engine.yaml
+		{"de", []string{"Dunkelwert des Dosimeters", "Dunkelwert des Photometers"}},
+	} {
+		var b bytes.Buffer
+		opts := fixedOpts
+		opts.Language = tt.lang
+		if err := r.writeHTML(&b, opts, noCharts); err != nil {
+			t.Fatal(err)
+		}
+		for _, w := range tt.want {
+			if !strings.Contains(b.String(), w) {
+				t.Errorf("%s: the page has no %q", tt.lang, w)
+			}
+		}
+	}
+}
