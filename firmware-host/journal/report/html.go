@@ -36,13 +36,15 @@ func (o Options) generated() time.Time {
 	return o.Generated
 }
 
-var htmlTemplate = newHTMLTemplate(noBreak)
+var htmlTemplate = newHTMLTemplate(noBreak, ":")
 
 // newHTMLTemplate parses the report's page with nw as the function that
 // keeps a cell's words with digits or hyphens on one line (a rendering in
-// another language translates the cell first).
-func newHTMLTemplate(nw func(string) template.HTML) *template.Template {
+// another language translates the cell first) and colon as the colon the
+// page's own headings put after a name (words.colon).
+func newHTMLTemplate(nw func(string) template.HTML, colon string) *template.Template {
 	return template.Must(template.New("report").Funcs(template.FuncMap{
+		"colon":         func() string { return colon },
 		"day":           Day,
 		"stamp":         Stamp,
 		"clock":         Clock,
@@ -195,7 +197,7 @@ func (r *Report) writeHTML(w io.Writer, opt Options, use chartUse) error {
 	// A cell kept on one line word by word (nw) is translated whole
 	// before it is cut into words: the page's text runs after it are
 	// fragments no catalog could look up.
-	t := newHTMLTemplate(func(s string) template.HTML { return noBreak(tr.text(s)) })
+	t := newHTMLTemplate(func(s string) template.HTML { return noBreak(tr.text(s)) }, tr.colon())
 	var b bytes.Buffer
 	if err := t.Execute(&b, r.view(opt, use)); err != nil {
 		return fmt.Errorf("render HTML report of session %s: %w", r.Session.ID, err)

@@ -59,6 +59,15 @@ func (r *Report) Language(opt Options) string {
 // around s is kept.
 func (w *words) text(s string) string { return w.translate(s, true) }
 
+// colon is the colon after a name in w's language: French sets a space
+// (here a no-break one) before it, English and German none.
+func (w *words) colon() string {
+	if w != nil && w.c.Code() == "fr" {
+		return "\u00a0:"
+	}
+	return ":"
+}
+
 func (w *words) translate(s string, localNumbers bool) string {
 	if w == nil || !strings.ContainsFunc(s, func(r rune) bool { return unicode.IsLetter(r) || r == '.' }) {
 		return s

@@ -199,3 +199,24 @@ func TestChartsInTheSessionLanguage(t *testing.T) {
 		}
 	}
 }
+
+// The budgets' headings put a colon after the result's name: French sets
+// a space before it (no-break, so the colon never starts a line), English
+// and German none (the French catalogs write " :" the same way).
+func TestBudgetHeadingColon(t *testing.T) {
+	r, err := Build(sampleSession())
+	if err != nil {
+		t.Fatal(err)
+	}
+	for lang, want := range map[string]string{"en": "</span>, 32cm: 152", "de": "</span>, 32cm: 152", "fr": "</span>, 32cm\u00a0: 152"} {
+		var b bytes.Buffer
+		opts := fixedOpts
+		opts.Language = lang
+		if err := r.writeHTML(&b, opts, noCharts); err != nil {
+			t.Fatal(err)
+		}
+		if !strings.Contains(b.String(), want) {
+			t.Errorf("%s: no budget heading %q", lang, want)
+		}
+	}
+}

@@ -546,7 +546,7 @@ func (r *Report) WritePDF(w io.Writer, opt Options) error {
 	d.heading("Uncertainty budgets")
 	for _, bv := range v.Budgets {
 		res := bv.Result
-		d.subheading(fmt.Sprintf("%s%s: %s %s (k = %s)", d.words.text(res.Name()), prefixed(", ", res.FieldMode), res.Shown(), unitShown(res.Unit), Kf(res.K)))
+		d.subheading(fmt.Sprintf("%s%s%s %s %s (k = %s)", d.words.text(res.Name()), prefixed(", ", res.FieldMode), d.words.colon(), res.Shown(), unitShown(res.Unit), Kf(res.K)))
 		var rows [][]string
 		for _, b := range res.Budget {
 			dof := "∞"
