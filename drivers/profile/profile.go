@@ -87,7 +87,8 @@ type Profile struct {
 	Start Exchange
 	Stop  string
 	// Period is the streaming interval, or for a polled meter its update
-	// interval (it is not queried more often); SilentPeriods how many may
+	// interval (it is queried once a period, at a random instant within
+	// it: drivers.PollDither); SilentPeriods how many may
 	// pass without a line before the watchdog reports a streaming meter
 	// silent.
 	Period        time.Duration

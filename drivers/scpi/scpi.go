@@ -61,9 +61,11 @@ type Config struct {
 	ErrorQuery string
 	// ReplyTimeout bounds each reply (meter's clock time); 1 s when zero.
 	ReplyTimeout time.Duration
-	// Period is how often the meter updates its reading: it is not asked
-	// more often (a faster query returns the same value again, which would
-	// pass repeated values off as independent samples); 100 ms when zero.
+	// Period is how often the meter updates its reading: it is asked once
+	// a period on average (a faster query returns the same value again,
+	// which would pass repeated values off as independent samples), at a
+	// random instant within each period (drivers.PollDither); 100 ms when
+	// zero.
 	Period time.Duration
 	// UnitEvery is how many readings may pass between two checks of the
 	// unit with UnitQuery: 0 checks after every reading, a negative value
