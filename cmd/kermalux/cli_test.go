@@ -78,7 +78,7 @@ func TestDemoSummaryTable(t *testing.T) {
 	var b bytes.Buffer
 	results := []entry.Result{
 		{Quantity: "conversion_factor", FieldMode: "25cm", Value: 95.17, ExpUnc: 3.5, K: 2.002, Unit: "cd·m⁻²/(µGy·s⁻¹)", Verdict: "pass", Calibrated: true},
-		{Quantity: "dark_level", Value: 0.03004, ExpUnc: 5.4e-06, K: 2, Unit: "cd/m²", Verdict: "pass", Calibrated: true},
+		{Quantity: "dark_level", Meter: "photometer", Value: 0.03004, ExpUnc: 5.4e-06, K: 2, Unit: "cd/m²", Verdict: "pass", Calibrated: true},
 		{Quantity: "stability", Value: 0.00378, Unit: "1", Verdict: "info", Calibrated: true},
 		{Quantity: "contrast_ratio", Value: 0, Unit: "1", Verdict: "not_measurable", DecidedBy: "the photometer is over range"},
 	}
@@ -109,6 +109,10 @@ func TestDemoSummaryTable(t *testing.T) {
 	}
 	if len(lines) != 5 || !strings.Contains(lines[0], "quantity") || !strings.Contains(lines[0], " k ") || !strings.Contains(lines[0], "U") {
 		t.Fatalf("no header with k:\n%s", out)
+	}
+	// The dark level has no field: its meter stands there.
+	if !strings.Contains(lines[2], "dark_level") || !strings.Contains(lines[2], " photometer ") {
+		t.Errorf("dark level row without its meter: %q", lines[2])
 	}
 	for _, want := range []string{"95.2", "± 3.5", "2.00", "0.0300400", "± 0.0000054", "not evaluated", "ratio"} {
 		if !strings.Contains(out, want) {

@@ -284,11 +284,16 @@ func minSec(d time.Duration, m *catalog.Catalog) string {
 //
 // The heads, the words in the cells and the decimal separator are in the
 // language m translates into (nil: English); the quantities keep their
-// results.json names.
+// results.json names. A dark level or a stability, which has no field,
+// shows its meter there.
 func writeSummaryTable(w io.Writer, results []entry.Result, m *catalog.Catalog) {
 	rows := [][]string{{m.Text("quantity"), m.Text("field"), m.Text("value"), "U", "k", m.Text("unit"), m.Text("verdict")}}
 	for _, r := range results {
 		mode := r.FieldMode
+		if mode == "" && r.Meter != "" {
+			// A dark level or a stability: the meter it is of.
+			mode = m.Text(r.Meter)
+		}
 		if mode == "" {
 			mode = "-"
 		}
