@@ -150,7 +150,7 @@ func (v *View) Printed() string {
 	m := v.opts.Messages
 	tf := func(format string, a ...any) string { return fmt.Sprintf(m.Text(format), a...) }
 	var b strings.Builder
-	fmt.Fprintln(&b, tf("live view: listening on %s (read-only; plain HTTP: use the board's own link, not a shared network)", v.ln.Addr()))
+	fmt.Fprintln(&b, tf("live view: listening on %s (read-only; unencrypted HTTP: connect over the instrument's own direct link, not a shared network)", v.ln.Addr()))
 	fmt.Fprintln(&b, tf("live view: open %s and enter the pairing code %s (spoken and shown at start)", strings.Join(v.URLs(), " "+m.Text("or")+" "), v.srv.Code()))
 	fmt.Fprintln(&b, tf("live view: or pair with this link, printed once (keep it private): %s?token=%s", v.URLs()[0], v.srv.Token()))
 	return b.String()
