@@ -656,7 +656,6 @@ func eventWords(name string) string {
 	return strings.ReplaceAll(name, "_", " ")
 }
 
-// quantityWords names a result quantity for people.
 // resultWords is a result's quantity in words, with its meter for a
 // one-meter figure ("Photometer dark level", as the board says it):
 // a session's two dark levels and two stabilities are told apart by name.
@@ -674,6 +673,7 @@ func resultWords(res entry.Result) string {
 // Name is the result's quantity in words with its meter (resultWords).
 func (r Result) Name() string { return resultWords(r.Result) }
 
+// quantityWords names a result quantity for people.
 func quantityWords(q string) string {
 	switch q {
 	case "conversion_factor":

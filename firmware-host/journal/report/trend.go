@@ -333,7 +333,7 @@ func fitOne(serial, quantity, mode string, hs []HistoryPoint, actionLevels []flo
 		// Sessions days apart (a repeat after a repair, the demo's runs
 		// minutes apart) give a slope a year of noise divided by a
 		// sliver of a year.
-		t.Note = fmt.Sprintf("the sessions span %s, too short for a rate of change a year (at least %.0f days)", spanWords(xs[len(xs)-1]-xs[0]), minTrendSpan*365.25)
+		t.Note = fmt.Sprintf("the sessions span %s, too short for a rate of change a year (at least %.0f days)", spanWords(xs[len(xs)-1]-xs[0]), minTrendSpan*yearDays)
 	case err != nil:
 		t.Note = "no rate of change: " + err.Error()
 	default:
@@ -413,11 +413,11 @@ func joinNote(a, b string) string {
 // minTrendSpan is the least time, in years, the fitted sessions must
 // span for a rate of change a year: 90 days (common practice for an
 // annual check's trend, not from a standard).
-const minTrendSpan = 90 / 365.25
+const minTrendSpan = 90 / yearDays
 
 // spanWords says a span in years as days, hours or minutes.
 func spanWords(y float64) string {
-	d := time.Duration(y * 365.25 * 24 * float64(time.Hour))
+	d := time.Duration(y * yearDays * 24 * float64(time.Hour))
 	switch {
 	case d >= 48*time.Hour:
 		return fmt.Sprintf("%.0f days", d.Hours()/24)

@@ -379,7 +379,6 @@ func (s *Store) Misfiled(ctx context.Context, serial string) ([]SessionInfo, err
 // record names it as the one its board began just before.
 type Gap struct {
 	Missing string // the session the store lacks
-	Serial  string // the intensifier it measured, as the next session says
 	Next    string // the stored session that names it
 	Board   string // the board's key (hex), as the next session says
 }
@@ -407,7 +406,7 @@ func (s *Store) MissingBefore(ctx context.Context, serial string) ([]Gap, error)
 		if json.Unmarshal([]byte(payload), &sess) != nil || sess.PrevSerial != serial || sess.PrevSession == "" {
 			continue
 		}
-		next = append(next, Gap{Missing: sess.PrevSession, Serial: serial, Next: id, Board: sess.BoardKey})
+		next = append(next, Gap{Missing: sess.PrevSession, Next: id, Board: sess.BoardKey})
 	}
 	rows.Close()
 	if err := rows.Err(); err != nil {
