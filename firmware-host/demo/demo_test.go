@@ -221,11 +221,18 @@ func demoRun(t *testing.T, file, procedure string, speed float64, wantModes int,
 			continue
 		}
 		checked[r.Quantity]++
-		if r.Verdict == "not_measurable" && strings.Contains(r.DecidedBy, "fixed phase of its pulses") {
+		if r.Verdict == "not_measurable" && (strings.Contains(r.DecidedBy, "fixed phase of its pulses") ||
+			strings.Contains(file, "pulsed") && strings.Contains(r.DecidedBy, "did not settle within its beam-on limit")) {
 			// A pulsed beam read at a fixed phase of its pulses (the
 			// pulsed bench, when the host's timing jitter is too small to
 			// scramble the phase, as on a real board): the engine's
-			// right answer, with no U to check.
+			// right answer, with no U to check. On the pulsed bench the
+			// dosimeter's readings, taken at dithered instants, scatter
+			// by a third with the pulses, and the settling test does not
+			// always decide within the reading's 15 s (about one run in
+			// seven over the pseudo-terminals, 4 December): not
+			// measurable is honest there too; a figure beyond 2U still
+			// fails.
 			t.Logf("%s %s not measurable: %s", r.Quantity, r.FieldMode, r.DecidedBy)
 			continue
 		}
